@@ -1,0 +1,168 @@
+package forest
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+)
+
+// Rows is a table of feature values read from a CSV file, NumFeatures values
+// per row back to back, NaN where a value is missing.
+type Rows struct {
+	Features []string  // the model's feature names, in model order
+	Values   []float64 // len = Len()*len(Features)
+	// Extra holds, per row, the cells of columns asked for by name with
+	// RowOptions.Keep, in the order asked.
+	Extra [][]string
+	Line  []int // the file's line number of each row, for messages
+}
+
+// Len is the number of rows.
+func (r *Rows) Len() int { return len(r.Line) }
+
+// Row returns row i's feature values.
+func (r *Rows) Row(i int) []float64 {
+	p := len(r.Features)
+	return r.Values[i*p : (i+1)*p : (i+1)*p]
+}
+
+// RowOptions says which extra columns to keep.
+type RowOptions struct {
+	Keep []string // columns to carry through by name (need not be features)
+}
+
+// ReadRowsFile reads a CSV row file for a model with the given features.
+func ReadRowsFile(path string, features []string, o RowOptions) (*Rows, error) {
+	fh, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer fh.Close()
+	return ReadRows(fh, path, features, o)
+}
+
+// ReadRows reads CSV with a header line. Columns are matched to features by
+// name and other columns are ignored; an empty cell or NaN is missing; inf and
+// -inf are infinities, as strconv reads them. Any other non-number is an
+// error naming the line and column; all problems are reported up to a cap.
+func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows, error) {
+	cr := csv.NewReader(r)
+	cr.ReuseRecord = true
+	header, err := cr.Read()
+	if err == io.EOF {
+		return nil, fmt.Errorf("%s: empty file: expected a header line naming the columns", name)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("%s: %s", name, csvError(err))
+	}
+	cols := make(map[string]int, len(header))
+	var p Problems
+	for i, h := range header {
+		h = strings.TrimSpace(h)
+		if i == 0 {
+			h = strings.TrimPrefix(h, "\ufeff") // a byte-order mark from spreadsheet exports
+		}
+		if j, dup := cols[h]; dup {
+			p.Add("%s:1: columns %d and %d are both named %q", name, j+1, i+1, h)
+		}
+		cols[h] = i
+	}
+	idx := make([]int, len(features))
+	for i, f := range features {
+		c, ok := cols[f]
+		if !ok {
+			p.Add("%s:1: no column named %q, a feature of the model", name, f)
+		}
+		idx[i] = c
+	}
+	keep := make([]int, len(o.Keep))
+	for i, k := range o.Keep {
+		c, ok := cols[k]
+		if !ok {
+			p.Add("%s:1: no column named %q (asked to keep it)", name, k)
+		}
+		keep[i] = c
+	}
+	if p.Len() > 0 {
+		return nil, p.Err()
+	}
+	rows := &Rows{Features: features}
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		line, _ := cr.FieldPos(0)
+		if err != nil {
+			var pe *csv.ParseError
+			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
+				p.Add("%s:%d: has %d cells, the header has %d", name, pe.StartLine, len(rec), len(header))
+				if p.Full() {
+					break
+				}
+				continue
+			}
+			p.Add("%s: %s", name, csvError(err))
+			break
+		}
+		for i, c := range idx {
+			v, msg := ParseCell(rec[c])
+			if msg != "" {
+				p.Add("%s:%d: column %q: %s", name, line, features[i], msg)
+			}
+			rows.Values = append(rows.Values, v)
+		}
+		if len(keep) > 0 {
+			ex := make([]string, len(keep))
+			for i, c := range keep {
+				ex[i] = rec[c]
+			}
+			rows.Extra = append(rows.Extra, ex)
+		}
+		rows.Line = append(rows.Line, line)
+		if p.Full() {
+			break
+		}
+	}
+	if err := p.Err(); err != nil {
+		return nil, err
+	}
+	return rows, nil
+}
+
+// ParseCell reads one cell: empty or NaN is missing (NaN), inf and -inf are
+// infinities, anything else must be a number strconv.ParseFloat accepts and
+// within float64's range. msg is non-empty when the cell is not a number.
+func ParseCell(s string) (v float64, msg string) {
+	t := strings.TrimSpace(s)
+	if t == "" {
+		return math.NaN(), ""
+	}
+	v, err := strconv.ParseFloat(t, 64)
+	if err != nil {
+		if errors.Is(err, strconv.ErrRange) && !math.IsInf(v, 0) {
+			return v, "" // underflow to zero or a subnormal is still the nearest double
+		}
+		if errors.Is(err, strconv.ErrRange) {
+			return 0, fmt.Sprintf("%q is beyond the range of a float64 (write inf or -inf for an infinity)", s)
+		}
+		return 0, fmt.Sprintf("%q is not a number", s)
+	}
+	if math.IsNaN(v) {
+		return math.NaN(), ""
+	}
+	return v, ""
+}
+
+func csvError(err error) string {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return fmt.Sprintf("line %d, column %d: %v", pe.Line, pe.Column, pe.Err)
+	}
+	return err.Error()
+}
