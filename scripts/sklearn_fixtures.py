@@ -9,13 +9,16 @@ are built with Debian's python3-sklearn 1.2.1, run as /usr/bin/python3):
 Tests never run this script; they read the committed files. Running it twice
 gives byte-identical files.
 
-Datasets, both shipped inside scikit-learn (no download):
+Datasets, both shipped inside scikit-learn (no download); citations as the
+datasets' DESCR text in scikit-learn gives them:
 
-- Wine: M. Forina et al., PARVUS; UCI Machine Learning Repository, "Wine"
-  (sklearn.datasets.load_wine).
-- Breast Cancer Wisconsin (Diagnostic): W. N. Street, W. H. Wolberg,
-  O. L. Mangasarian, "Nuclear feature extraction for breast tumor diagnosis"
-  (1993) and Wolberg, Street, Mangasarian (1995); UCI Machine Learning
+- Wine: Forina, M. et al., PARVUS - An Extendible Package for Data
+  Exploration, Classification and Correlation; UCI Machine Learning
+  Repository (sklearn.datasets.load_wine).
+- Breast Cancer Wisconsin (Diagnostic): W.N. Street, W.H. Wolberg and
+  O.L. Mangasarian, Nuclear feature extraction for breast tumor diagnosis
+  (1993); O.L. Mangasarian, W.N. Street and W.H. Wolberg, Breast cancer
+  diagnosis and prognosis via linear programming (1995); UCI Machine Learning
   Repository (sklearn.datasets.load_breast_cancer).
 
 For each dataset, in golden/testdata/sklearn-<name>/:
