@@ -1,0 +1,94 @@
+package compile
+
+import "math"
+
+// float32Compare removes float32 arithmetic from comparisons.
+//
+// A float32 model compares round32(x) <= t, with round32 IEEE 754
+// round-to-nearest-even (IEEE 754-2019, 4.3.1) and t a float64. Let t32 be
+// the largest float32 not above t (possibly -Inf) and u the next float32 up
+// (+Inf standing for 2^128 past MaxFloat32). Then round32(x) <= t exactly
+// when round32(x) <= t32, and:
+//
+//   - for float32 inputs (SingleInputs): x <= t32, as a float32 comparison;
+//     when t32 is -Inf that is x < -MaxFloat32, keeping thresholds finite;
+//   - for float64 inputs: x against m, the midpoint of t32 and u, which is
+//     exact in float64. Below m, x rounds to t32 or lower; above, to u or
+//     higher; at m, to whichever of the two has an even significand. So the
+//     test is x <= m when t32's significand is even and x < m when odd.
+//
+// A float64 model compiled for float32 inputs gets the same Single form,
+// which is exact for every float32 input (narrowing the input is the
+// target's choice, not this pass's).
+func float32Compare(p *Program) {
+	switch {
+	case p.Compare == Round32 && !p.SingleInputs:
+		for ti := range p.Trees {
+			for i := range p.Trees[ti].Nodes {
+				n := &p.Trees[ti].Nodes[i]
+				if !n.IsLeaf() {
+					n.Op, n.Threshold = Midpoint32(n.Threshold)
+				}
+			}
+		}
+		p.Compare = Double
+	case p.SingleInputs && p.Compare != Single:
+		for ti := range p.Trees {
+			for i := range p.Trees[ti].Nodes {
+				n := &p.Trees[ti].Nodes[i]
+				if !n.IsLeaf() {
+					n.Op, n.Threshold = Single32(n.Op, n.Threshold)
+				}
+			}
+		}
+		p.Compare = Single
+	}
+}
+
+// Floor32 is the largest float32 not above t (possibly -Inf).
+func Floor32(t float64) float32 {
+	f := float32(t)
+	if float64(f) > t {
+		f = math.Nextafter32(f, float32(math.Inf(-1)))
+	}
+	return f
+}
+
+// Midpoint32 gives the float64 comparison equivalent to round32(x) <= t for
+// every float64 x that is not NaN: x op m.
+func Midpoint32(t float64) (Op, float64) {
+	t32 := Floor32(t)
+	lo := float64(t32)
+	if math.IsInf(lo, -1) {
+		lo = -0x1p128
+	}
+	var hi float64
+	if t32 == math.MaxFloat32 {
+		hi = 0x1p128
+	} else {
+		hi = float64(math.Nextafter32(t32, float32(math.Inf(1))))
+	}
+	m := lo/2 + hi/2 // exact: both halves and their sum fit in float64
+	if math.Float32bits(t32)&1 == 0 {
+		return LE, m
+	}
+	return LT, m
+}
+
+// Single32 gives the float32 comparison equivalent to x op t for every
+// float32 x that is not NaN: x op2 t2 with t2 a finite float32 value.
+func Single32(op Op, t float64) (Op, float64) {
+	var t32 float32
+	if op == LE {
+		t32 = Floor32(t) // x <= t  ⇔  x <= largest float32 <= t
+	} else {
+		t32 = Floor32(t) // x < t  ⇔  x <= largest float32 < t
+		if float64(t32) == t {
+			t32 = math.Nextafter32(t32, float32(math.Inf(-1)))
+		}
+	}
+	if math.IsInf(float64(t32), -1) {
+		return LT, -math.MaxFloat32 // x <= -Inf  ⇔  x < -MaxFloat32
+	}
+	return LE, float64(t32)
+}

@@ -1,0 +1,121 @@
+// Package emit holds what every target shares: the File type emitters
+// return, the sawmill version named in headers, layout names, and the
+// identifier and number helpers. Each target is a sub-package (emit/golang,
+// emit/c, emit/sql) with a pure function
+//
+//	Emit(p *compile.Program, o Options) ([]emit.File, error)
+//
+// that never touches the disk: only the command line writes files.
+package emit
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"unicode"
+)
+
+// Version is the sawmill version emitted in every generated header. Golden
+// tests pin it (SetVersion) so a release does not rewrite every golden file.
+var Version = "0.1.0"
+
+// File is one generated file: a name relative to the output folder, and its
+// bytes.
+type File struct {
+	Name string
+	Data []byte
+}
+
+// Layout names, shared by every target.
+const (
+	Auto       = "auto"       // pick by node count and depth
+	Nested     = "nested"     // if/else (or CASE) per tree
+	Table      = "table"      // constant arrays walked by one loop
+	Branchless = "branchless" // implicit-heap descent for bounded depth
+)
+
+// Float formats a finite float64 as the shortest decimal that reads back as
+// the same value ("-0" for negative zero, exponent form "1e+300" for large
+// magnitudes). Targets needing another spelling adapt it; NaN and ±Inf are
+// not literals in any target and panic as a BUG.
+func Float(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		panic(fmt.Sprintf("BUG: emit.Float(%v): not a finite number", v))
+	}
+	return strconv.FormatFloat(v, 'g', -1, 64)
+}
+
+// Float32 formats a value that is exactly a float32 as the shortest decimal
+// that reads back as that float32.
+func Float32(v float64) string {
+	f := float32(v)
+	if float64(f) != v || math.IsInf(v, 0) || math.IsNaN(v) {
+		panic(fmt.Sprintf("BUG: emit.Float32(%v): not a finite float32 value", v))
+	}
+	return strconv.FormatFloat(float64(f), 'g', -1, 32)
+}
+
+// Identifiers makes one valid, unique identifier per name for a language
+// whose identifiers are ASCII letters, digits and underscores not starting
+// with a digit. Runs of other characters become one underscore, a leading
+// digit or an empty result gets prefix, names in reserved (compared as is)
+// and repeats get a numeric suffix, so distinct names always stay distinct
+// and the mapping depends only on the list, never on map order.
+func Identifiers(names []string, prefix string, reserved map[string]bool) []string {
+	out := make([]string, len(names))
+	taken := map[string]bool{}
+	for i, n := range names {
+		base := sanitize(n, prefix)
+		id := base
+		for k := 2; taken[id] || reserved[id]; k++ {
+			id = fmt.Sprintf("%s_%d", base, k)
+		}
+		taken[id] = true
+		out[i] = id
+	}
+	return out
+}
+
+func sanitize(name, prefix string) string {
+	var b strings.Builder
+	under := false
+	for _, r := range name {
+		if r < unicode.MaxASCII && (unicode.IsLetter(r) || unicode.IsDigit(r)) {
+			b.WriteRune(r)
+			under = false
+		} else if !under {
+			b.WriteByte('_')
+			under = true
+		}
+	}
+	s := strings.Trim(b.String(), "_")
+	if s == "" || s[0] >= '0' && s[0] <= '9' {
+		s = prefix + s
+	}
+	return s
+}
+
+// CommentSafe makes text safe inside a line or block comment of C-like
+// languages and SQL: no line breaks, no "*/", no "/*", no "--" left intact,
+// and no non-printable characters. It is for display only.
+func CommentSafe(s string) string {
+	var b strings.Builder
+	for _, r := range s {
+		switch {
+		case r == '\n' || r == '\r' || r == '\u2028' || r == '\u2029':
+			b.WriteString(`\n`)
+		case !unicode.IsPrint(r):
+			fmt.Fprintf(&b, `\u%04x`, r)
+		default:
+			b.WriteRune(r)
+		}
+	}
+	s = b.String()
+	s = strings.ReplaceAll(s, "*/", "* /")
+	s = strings.ReplaceAll(s, "/*", "/ *")
+	s = strings.ReplaceAll(s, "--", "- -")
+	s = strings.ReplaceAll(s, "??", "? ?") // C trigraphs
+	s = strings.ReplaceAll(s, `\`, `\\`)   // a trailing backslash continues a C line comment
+	return s
+}
