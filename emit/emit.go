@@ -103,6 +103,8 @@ func CommentSafe(s string) string {
 	var b strings.Builder
 	for _, r := range s {
 		switch {
+		case r == '\\':
+			b.WriteString(`\\`) // a trailing backslash would continue a C line comment
 		case r == '\n' || r == '\r' || r == '\u2028' || r == '\u2029':
 			b.WriteString(`\n`)
 		case !unicode.IsPrint(r):
@@ -116,6 +118,5 @@ func CommentSafe(s string) string {
 	s = strings.ReplaceAll(s, "/*", "/ *")
 	s = strings.ReplaceAll(s, "--", "- -")
 	s = strings.ReplaceAll(s, "??", "? ?") // C trigraphs
-	s = strings.ReplaceAll(s, `\`, `\\`)   // a trailing backslash continues a C line comment
 	return s
 }
