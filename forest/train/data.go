@@ -1,0 +1,313 @@
+package train
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"slices"
+	"strconv"
+	"strings"
+
+	"sawmill/forest"
+)
+
+// Data is a training table: a feature matrix and one label per row.
+type Data struct {
+	Features []string  // feature names, in column order
+	X        []float64 // row-major, len(Features) values per row; all finite
+	Label    string    // name of the label column, for provenance
+	Task     forest.Task
+	// Classes are the class labels in output order (classification only).
+	Classes []string
+	// Y is, per row, the regression target, or the index in Classes of the
+	// row's class.
+	Y []float64
+	// Line is the file line of each row, for messages; may be nil.
+	Line []int
+}
+
+// Len is the number of rows.
+func (d *Data) Len() int { return len(d.Y) }
+
+// ReadOptions says how to read a training CSV.
+type ReadOptions struct {
+	Label  string      // the label column (required)
+	Ignore []string    // columns that are neither features nor the label
+	Task   forest.Task // "" infers: classification unless every label is a number
+}
+
+// ReadCSVFile reads a training table from a CSV file with a header line.
+func ReadCSVFile(path string, o ReadOptions) (*Data, error) {
+	fh, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer fh.Close()
+	return ReadCSV(fh, path, o)
+}
+
+// ReadCSV reads a training table: a header line naming the columns, then one
+// row per line. The label column is o.Label; every other column except those
+// in o.Ignore is a feature, in file order. Every feature cell must be a
+// finite number: a missing (empty or NaN) cell, an infinity or a non-number
+// is an error naming the file line and column. All problems are reported,
+// up to forest.MaxProblems.
+//
+// With no task given, the table is a classification problem when any label
+// is not a number, and a regression otherwise. Classes are the distinct
+// labels sorted numerically when all are numbers, else byte-wise.
+func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
+	if o.Label == "" {
+		return nil, fmt.Errorf("%s: no label column given\nhint: name the column to predict with --label", name)
+	}
+	switch o.Task {
+	case "", forest.Classification, forest.Regression:
+	default:
+		return nil, fmt.Errorf("task %q is unknown: use classification or regression", o.Task)
+	}
+	cr := csv.NewReader(r)
+	cr.ReuseRecord = true
+	header, err := cr.Read()
+	if err == io.EOF {
+		return nil, fmt.Errorf("%s: empty file: expected a header line naming the columns", name)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("%s: %s", name, csvError(err))
+	}
+	var p forest.Problems
+	cols := make(map[string]int, len(header))
+	names := make([]string, len(header))
+	for i, h := range header {
+		h = strings.TrimSpace(h)
+		if i == 0 {
+			h = strings.TrimPrefix(h, "\ufeff")
+		}
+		names[i] = h
+		if j, dup := cols[h]; dup {
+			p.Add("%s:1: columns %d and %d are both named %q", name, j+1, i+1, h)
+		}
+		cols[h] = i
+	}
+	label, ok := cols[o.Label]
+	if !ok {
+		p.Add("%s:1: no column named %q (the label)\nhint: the columns are %s", name, o.Label, quoteList(names))
+	}
+	skip := make([]bool, len(header))
+	for _, ig := range o.Ignore {
+		c, ok := cols[ig]
+		if !ok {
+			p.Add("%s:1: no column named %q (asked to ignore it)", name, ig)
+			continue
+		}
+		if c == label {
+			p.Add("%s:1: column %q is the label and cannot be ignored", name, ig)
+		}
+		skip[c] = true
+	}
+	var feat []int
+	d := &Data{Label: o.Label}
+	for i := range header {
+		if i != label && !skip[i] {
+			feat = append(feat, i)
+			d.Features = append(d.Features, names[i])
+		}
+	}
+	if p.Len() == 0 && len(feat) == 0 {
+		p.Add("%s:1: no feature columns: every column is the label or ignored", name)
+	}
+	if p.Len() > 0 {
+		return nil, p.Err()
+	}
+
+	var labels []string
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			var pe *csv.ParseError
+			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
+				p.Add("%s:%d: has %d cells, the header has %d", name, pe.StartLine, len(rec), len(header))
+				if p.Full() {
+					break
+				}
+				continue
+			}
+			p.Add("%s: %s", name, csvError(err))
+			break
+		}
+		line, _ := cr.FieldPos(0)
+		for j, c := range feat {
+			v, msg := forest.ParseCell(rec[c])
+			switch {
+			case msg != "":
+				p.Add("%s:%d: column %q: %s", name, line, d.Features[j], msg)
+			case math.IsNaN(v):
+				p.Add("%s:%d: column %q: missing value\nhint: training needs every feature cell filled; fill the gap or drop the row", name, line, d.Features[j])
+			case math.IsInf(v, 0):
+				p.Add("%s:%d: column %q: %q is infinite: training needs finite values", name, line, d.Features[j], rec[c])
+			}
+			d.X = append(d.X, v)
+		}
+		lv := strings.TrimSpace(rec[label])
+		if lv == "" {
+			p.Add("%s:%d: column %q: missing label", name, line, o.Label)
+		}
+		labels = append(labels, lv)
+		d.Line = append(d.Line, line)
+		if p.Full() {
+			break
+		}
+	}
+	if p.Len() > 0 {
+		return nil, p.Err()
+	}
+	if len(labels) == 0 {
+		return nil, fmt.Errorf("%s: no rows after the header", name)
+	}
+	if err := d.setLabels(labels, o.Task, name); err != nil {
+		return nil, err
+	}
+	return d, nil
+}
+
+// setLabels decides the task and fills Y (and Classes).
+func (d *Data) setLabels(labels []string, task forest.Task, name string) error {
+	nums := make([]float64, len(labels))
+	numeric := true
+	firstBad := -1
+	for i, s := range labels {
+		v, err := strconv.ParseFloat(s, 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			numeric = false
+			if firstBad < 0 {
+				firstBad = i
+			}
+		}
+		nums[i] = v
+	}
+	if task == "" {
+		task = forest.Regression
+		if !numeric {
+			task = forest.Classification
+		}
+	}
+	d.Task = task
+	d.Y = make([]float64, len(labels))
+	if task == forest.Regression {
+		if !numeric {
+			return fmt.Errorf("%s:%d: column %q: %q is not a finite number, and a regression needs numeric labels\nhint: use --task classification to predict classes",
+				name, d.lineOf(firstBad), d.Label, labels[firstBad])
+		}
+		copy(d.Y, nums)
+		return nil
+	}
+	seen := map[string]bool{}
+	for _, s := range labels {
+		if !seen[s] {
+			seen[s] = true
+			d.Classes = append(d.Classes, s)
+		}
+	}
+	if numeric {
+		val := make(map[string]float64, len(d.Classes))
+		for i, s := range labels {
+			val[s] = nums[i]
+		}
+		slices.SortFunc(d.Classes, func(a, b string) int {
+			if c := cmpFloat(val[a], val[b]); c != 0 {
+				return c
+			}
+			return strings.Compare(a, b)
+		})
+	} else {
+		slices.Sort(d.Classes)
+	}
+	if len(d.Classes) < 2 {
+		return fmt.Errorf("%s: column %q holds one class only (%q): a classifier needs at least two", name, d.Label, d.Classes[0])
+	}
+	index := make(map[string]int, len(d.Classes))
+	for i, c := range d.Classes {
+		index[c] = i
+	}
+	for i, s := range labels {
+		d.Y[i] = float64(index[s])
+	}
+	return nil
+}
+
+func (d *Data) lineOf(i int) int {
+	if i < len(d.Line) {
+		return d.Line[i]
+	}
+	return i + 2
+}
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}
+
+func quoteList(s []string) string {
+	q := make([]string, len(s))
+	for i, x := range s {
+		q[i] = strconv.Quote(x)
+	}
+	return strings.Join(q, ", ")
+}
+
+func csvError(err error) string {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return fmt.Sprintf("line %d, column %d: %v", pe.Line, pe.Column, pe.Err)
+	}
+	return err.Error()
+}
+
+// check verifies that d is a usable table before training.
+func (d *Data) check() error {
+	p := len(d.Features)
+	n := len(d.Y)
+	switch {
+	case p == 0:
+		return errors.New("training data has no features")
+	case n == 0:
+		return errors.New("training data has no rows")
+	case len(d.X) != n*p:
+		return fmt.Errorf("training data has %d values for %d rows of %d features", len(d.X), n, p)
+	}
+	for i, v := range d.X {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("row %d, feature %q: %v: training needs finite values", i/p, d.Features[i%p], v)
+		}
+	}
+	switch d.Task {
+	case forest.Classification:
+		if len(d.Classes) < 2 {
+			return errors.New("a classifier needs at least two classes")
+		}
+		for i, y := range d.Y {
+			if y != math.Trunc(y) || y < 0 || int(y) >= len(d.Classes) {
+				return fmt.Errorf("row %d: class index %v is not one of the %d classes", i, y, len(d.Classes))
+			}
+		}
+	case forest.Regression:
+		for i, y := range d.Y {
+			if math.IsNaN(y) || math.IsInf(y, 0) {
+				return fmt.Errorf("row %d: target %v is not finite", i, y)
+			}
+		}
+	default:
+		return fmt.Errorf("task %q is unknown: use classification or regression", d.Task)
+	}
+	return nil
+}
