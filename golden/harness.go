@@ -1,0 +1,292 @@
+// Package golden is sawmill's equivalence harness: it builds emitted code
+// with its real toolchain or engine, runs it over rows, and compares every
+// output with the reference interpreter.
+//
+// A case is a folder under testdata holding model.json and rows.csv, found by
+// walking for model.json, so a new case is a new folder. Optional files:
+//
+//	case.json    flags: {"snapshot": true} keeps the generated source under
+//	             want/<runner>/<layout>[-<variant>]/ and compares it;
+//	             {"runners": ["go"]} limits the runners; {"skip_layouts": [...]}
+//	sklearn.csv  reference outputs from scikit-learn, one row per rows.csv row:
+//	             id, one column per class, sklearn_class; checked within 1e-12
+//	stderr.txt   the case must fail to load, with this message
+package golden
+
+import (
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"time"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/forest"
+)
+
+// Runner builds and runs one target's emitted code.
+type Runner interface {
+	Name() string      // "go", "c", "sqlite", "duckdb", "postgres"
+	Layouts() []string // layouts to test
+	Variants() []string
+	// CompileOptions are the compile.Options this variant needs.
+	CompileOptions(variant string) compile.Options
+	// Score emits p into dir, builds or loads it, scores every row and
+	// returns the outputs back to back and, for classifiers, the classes.
+	Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error)
+	// Tolerance reports whether the variant must be bit-exact, else the
+	// bound on the absolute difference from the interpreter.
+	Tolerance(variant string, p *compile.Program) (exact bool, bound float64)
+}
+
+// Emitter is implemented by runners whose generated source can be kept as
+// a snapshot.
+type Emitter interface {
+	Emit(p *compile.Program, layout, variant string) ([]emit.File, error)
+}
+
+// Result is what one run of emitted code gave.
+type Result struct {
+	Outputs []float64 // NumOutputs per row, back to back
+	Classes []int     // per row for classifiers, else nil
+	Build   time.Duration
+	Run     time.Duration
+}
+
+// Runners lists every target's runner. A new target adds one line here.
+func Runners() []Runner {
+	return []Runner{
+		// one line per target runner, e.g. goRunner{},
+	}
+}
+
+// Case is one golden case.
+type Case struct {
+	Name    string
+	Dir     string
+	Flags   Flags
+	Model   *forest.Forest
+	Rows    *forest.Rows
+	Sklearn [][]float64 // per row, per class; nil when the case has none
+	// WantErr is the expected load error (stderr.txt), "" for a normal case.
+	WantErr string
+	LoadErr error
+}
+
+// Flags are a case's options from case.json.
+type Flags struct {
+	Snapshot    bool     `json:"snapshot"`
+	Runners     []string `json:"runners"`
+	SkipLayouts []string `json:"skip_layouts"`
+	// Slow marks a big case that only runs outside -short.
+	Slow bool `json:"slow"`
+}
+
+// Cases finds every case under root, in path order.
+func Cases(root string) ([]*Case, error) {
+	var cases []*Case
+	err := filepath.WalkDir(root, func(path string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		if d.IsDir() && d.Name() == "want" {
+			return filepath.SkipDir
+		}
+		if d.IsDir() || d.Name() != "model.json" {
+			return nil
+		}
+		dir := filepath.Dir(path)
+		name, _ := filepath.Rel(root, dir)
+		c, err := LoadCase(dir, filepath.ToSlash(name))
+		if err != nil {
+			return err
+		}
+		cases = append(cases, c)
+		return nil
+	})
+	return cases, err
+}
+
+// LoadCase reads one case folder. A model that fails to load is returned
+// with LoadErr set, so that cases holding stderr.txt can check the message.
+func LoadCase(dir, name string) (*Case, error) {
+	c := &Case{Name: name, Dir: dir}
+	if b, err := os.ReadFile(filepath.Join(dir, "case.json")); err == nil {
+		if err := json.Unmarshal(b, &c.Flags); err != nil {
+			return nil, fmt.Errorf("%s: %v", filepath.Join(dir, "case.json"), err)
+		}
+	}
+	if b, err := os.ReadFile(filepath.Join(dir, "stderr.txt")); err == nil {
+		c.WantErr = string(b)
+	}
+	c.Model, c.LoadErr = forest.ReadFile(filepath.Join(dir, "model.json"))
+	if c.LoadErr != nil {
+		if c.WantErr == "" {
+			return nil, c.LoadErr
+		}
+		return c, nil
+	}
+	rows, err := forest.ReadRowsFile(filepath.Join(dir, "rows.csv"), c.Model.Features, forest.RowOptions{})
+	if err != nil {
+		return nil, err
+	}
+	c.Rows = rows
+	sk := filepath.Join(dir, "sklearn.csv")
+	if _, err := os.Stat(sk); err == nil {
+		c.Sklearn, err = readSklearn(sk, c.Model, rows.Len())
+		if err != nil {
+			return nil, err
+		}
+	}
+	return c, nil
+}
+
+// readSklearn reads recorded reference probabilities: a header of id, the
+// class labels in model order, sklearn_class.
+func readSklearn(path string, f *forest.Forest, n int) ([][]float64, error) {
+	fh, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer fh.Close()
+	recs, err := csv.NewReader(fh).ReadAll()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	if len(recs) != n+1 {
+		return nil, fmt.Errorf("%s: %d rows, rows.csv has %d", path, len(recs)-1, n)
+	}
+	if want := append(append([]string{"id"}, f.Classes...), "sklearn_class"); !slices.Equal(recs[0], want) {
+		return nil, fmt.Errorf("%s: header %v, want %v", path, recs[0], want)
+	}
+	out := make([][]float64, n)
+	for i, r := range recs[1:] {
+		out[i] = make([]float64, len(f.Classes))
+		for j := range f.Classes {
+			v, err := strconv.ParseFloat(r[1+j], 64)
+			if err != nil {
+				return nil, fmt.Errorf("%s:%d: %v", path, i+2, err)
+			}
+			out[i][j] = v
+		}
+	}
+	return out, nil
+}
+
+// Reference scores every row of c with the interpreter.
+func (c *Case) Reference() (outputs []float64, classes []int) {
+	k := c.Model.NumOutputs()
+	outputs = make([]float64, c.Rows.Len()*k)
+	for i := 0; i < c.Rows.Len(); i++ {
+		o := outputs[i*k : (i+1)*k]
+		c.Model.Predict(c.Rows.Row(i), o)
+		if c.Model.IsClassifier() {
+			classes = append(classes, c.Model.ClassOf(o))
+		}
+	}
+	return outputs, classes
+}
+
+// Mismatch describes the first disagreement between a run and the
+// reference, with the measured maximum difference over all rows.
+type Mismatch struct {
+	Rows, Exact    int
+	MaxAbsDiff     float64
+	LabelMismatch  int
+	FirstRow       int // -1 when every row agrees
+	FirstOutput    int
+	Got, Want      float64
+	GotCls, WantCl int
+}
+
+// Compare holds got against want. Outputs agree when bit-identical (NaN
+// agrees with NaN) or, when exact is false, within bound; classes must agree
+// wherever the reference's top two outputs are further apart than 2×bound.
+func Compare(want, got []float64, wantCls, gotCls []int, k int, exact bool, bound float64) Mismatch {
+	m := Mismatch{FirstRow: -1, Rows: len(want) / k}
+	if len(got) != len(want) {
+		m.FirstRow, m.FirstOutput = 0, -1
+		return m
+	}
+	for r := 0; r < m.Rows; r++ {
+		rowOK := true
+		for j := 0; j < k; j++ {
+			w, g := want[r*k+j], got[r*k+j]
+			same := math.Float64bits(w) == math.Float64bits(g) || math.IsNaN(w) && math.IsNaN(g)
+			d := math.Abs(w - g)
+			if !same && !math.IsNaN(d) {
+				m.MaxAbsDiff = max(m.MaxAbsDiff, d)
+			}
+			ok := same || !exact && d <= bound
+			if !ok {
+				rowOK = false
+				if m.FirstRow < 0 {
+					m.FirstRow, m.FirstOutput, m.Got, m.Want = r, j, g, w
+				}
+			}
+		}
+		if wantCls != nil {
+			if gotCls == nil || len(gotCls) != len(wantCls) {
+				m.LabelMismatch++
+				rowOK = false
+			} else if gotCls[r] != wantCls[r] && (exact || margin(want[r*k:(r+1)*k]) > 2*bound) {
+				m.LabelMismatch++
+				rowOK = false
+				if m.FirstRow < 0 {
+					m.FirstRow, m.FirstOutput, m.GotCls, m.WantCl = r, -1, gotCls[r], wantCls[r]
+				}
+			}
+		}
+		if rowOK {
+			m.Exact++
+		}
+	}
+	return m
+}
+
+// margin is the gap between the two largest outputs (for one logistic
+// output, its distance from 0.5).
+func margin(v []float64) float64 {
+	if len(v) == 1 {
+		return math.Abs(v[0] - 0.5)
+	}
+	a, b := math.Inf(-1), math.Inf(-1)
+	for _, x := range v {
+		if x > a {
+			a, b = x, a
+		} else if x > b {
+			b = x
+		}
+	}
+	return a - b
+}
+
+// OK reports whether every row agreed.
+func (m Mismatch) OK() bool { return m.FirstRow < 0 && m.LabelMismatch == 0 }
+
+func (m Mismatch) String() string {
+	if m.OK() {
+		return fmt.Sprintf("%d rows agree (max |diff| %g)", m.Rows, m.MaxAbsDiff)
+	}
+	if m.FirstOutput == -1 && m.GotCls == m.WantCl {
+		return "output count differs from the reference"
+	}
+	if m.FirstOutput == -1 {
+		return fmt.Sprintf("row %d: class %d, want %d (%d label mismatches)", m.FirstRow, m.GotCls, m.WantCl, m.LabelMismatch)
+	}
+	return fmt.Sprintf("row %d, output %d: got %v (%#x), want %v (%#x); %d of %d rows agree, max |diff| %g, %d label mismatches",
+		m.FirstRow, m.FirstOutput, m.Got, math.Float64bits(m.Got), m.Want, math.Float64bits(m.Want),
+		m.Exact, m.Rows, m.MaxAbsDiff, m.LabelMismatch)
+}
+
+// ErrSkip is returned by a runner whose toolchain or engine is not present
+// on this machine; the harness reports it plainly.
+var ErrSkip = errors.New("not available here")
