@@ -374,7 +374,7 @@ type sklearnOOB struct {
 		MinSamplesLeaf int    `json:"min_samples_leaf"`
 		Bootstrap      bool   `json:"bootstrap"`
 	} `json:"settings"`
-	Seeds  []uint64 `json:"seeds"`
+	Seeds  []uint64  `json:"seeds"`
 	Errors []float64 `json:"oob_errors"`
 	Mean   float64   `json:"oob_error_mean"`
 }
