@@ -1,0 +1,108 @@
+package compile
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"sawmill/forest"
+)
+
+// thresholds32 is a spread of thresholds that exercise the float32 rule:
+// float32 values, exact midpoints between neighbouring float32s (where
+// round-half-even decides), values just off those, subnormals, the edges of
+// float32's range and beyond it, and random doubles of every magnitude.
+func thresholds32(rng *rand.Rand) []float64 {
+	ts := []float64{0, math.Copysign(0, -1), 1, -1, 0.1, -0.1, 61.5, 1e-40, -1e-40, 1e-45, 1.4e-45, 2.9e-45,
+		math.MaxFloat32, -math.MaxFloat32, math.MaxFloat32 * 1.0000001, -math.MaxFloat32 * 1.0000001,
+		1e39, -1e39, 1e300, -1e300, math.SmallestNonzeroFloat64, 0x1p-149, 0x1p-150, 0x1p-126, 16777217}
+	for i := 0; i < 400; i++ {
+		f := math.Float32frombits(rng.Uint32())
+		if math.IsNaN(float64(f)) || math.IsInf(float64(f), 0) {
+			continue
+		}
+		g := math.Nextafter32(f, float32(math.Inf(1)))
+		mid := float64(f)/2 + float64(g)/2
+		if !math.IsInf(float64(g), 0) {
+			ts = append(ts, mid, math.Nextafter(mid, math.Inf(1)), math.Nextafter(mid, math.Inf(-1)))
+		}
+		ts = append(ts, float64(f))
+		ts = append(ts, math.Float64frombits(rng.Uint64()&^(0x7ff<<52)|uint64(rng.IntN(2046)+1)<<52))
+	}
+	return ts
+}
+
+// walk64 returns x and its n float64 neighbours on each side.
+func walk64(x float64, n int) []float64 {
+	out := []float64{x}
+	lo, hi := x, x
+	for i := 0; i < n; i++ {
+		lo, hi = math.Nextafter(lo, math.Inf(-1)), math.Nextafter(hi, math.Inf(1))
+		out = append(out, lo, hi)
+	}
+	return out
+}
+
+// The float64-input form: for every threshold and every float64 near the
+// threshold, near its float32 neighbours and near the midpoint between them,
+// `round32(x) <= t` (IEEE 754-2019 section 4.3.1, round to nearest, ties to
+// even: Go's float32 conversion on this hardware) equals `x op m`.
+func TestMidpoint32Exhaustive(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	checked := 0
+	for _, th := range thresholds32(rng) {
+		op, m := Midpoint32(th)
+		t32 := Floor32(th)
+		u := math.Nextafter32(t32, float32(math.Inf(1)))
+		var xs []float64
+		for _, c := range []float64{th, float64(t32), float64(u), m} {
+			if !math.IsInf(c, 0) {
+				xs = append(xs, walk64(c, 40)...)
+			}
+		}
+		xs = append(xs, math.Inf(1), math.Inf(-1), 0, math.Copysign(0, -1), math.MaxFloat64, -math.MaxFloat64)
+		for _, x := range xs {
+			want := forest.Round32(x) <= th
+			got := op == LE && x <= m || op == LT && x < m
+			if got != want {
+				t.Fatalf("t=%v (%#x): x=%v (%#x): round32(x)<=t is %v, x %v %v is %v",
+					th, math.Float64bits(th), x, math.Float64bits(x), want, op, m, got)
+			}
+			checked++
+		}
+	}
+	t.Logf("%d (threshold, input) pairs agree", checked)
+}
+
+// The float32-input form: for every float32 x near the threshold's float32
+// neighbours, `x <= t` (and `x < t`) in float64 equals the Single32
+// comparison, whose threshold is a finite float32.
+func TestSingle32Exhaustive(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	for _, th := range thresholds32(rng) {
+		for _, op := range []Op{LE, LT} {
+			op2, t2 := Single32(op, th)
+			if float64(float32(t2)) != t2 || math.IsInf(t2, 0) {
+				t.Fatalf("Single32(%v, %v) = %v, not a finite float32", op, th, t2)
+			}
+			c := Floor32(th)
+			if math.IsInf(float64(c), 0) {
+				c = -math.MaxFloat32
+			}
+			xs := []float32{c, float32(math.Inf(1)), float32(math.Inf(-1))}
+			lo, hi := c, c
+			for i := 0; i < 40; i++ {
+				lo, hi = math.Nextafter32(lo, float32(math.Inf(-1))), math.Nextafter32(hi, float32(math.Inf(1)))
+				xs = append(xs, lo, hi)
+			}
+			for _, x32 := range xs {
+				x := float64(x32)
+				want := op == LE && x <= th || op == LT && x < th
+				got := op2 == LE && x32 <= float32(t2) || op2 == LT && x32 < float32(t2)
+				if got != want {
+					t.Fatalf("%v %v: x=%v: want %v, got %v (%v %v)", op, th, x32, want, got, op2, t2)
+				}
+			}
+		}
+	}
+}

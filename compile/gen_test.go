@@ -1,0 +1,143 @@
+package compile
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+
+	"sawmill/forest"
+)
+
+// randomForest makes a small random valid forest with repeated and adjacent
+// thresholds, every combine, transform and precision, and both missing
+// directions, so that the passes have work to do.
+func randomForest(rng *rand.Rand) *forest.Forest {
+	nf := 1 + rng.IntN(4)
+	f := &forest.Forest{InputPrecision: forest.Float64, Transform: forest.NoTransform}
+	for i := 0; i < nf; i++ {
+		f.Features = append(f.Features, fmt.Sprintf("f%d", i))
+	}
+	if rng.IntN(2) == 0 {
+		f.Task = forest.Regression
+		f.Combine = []forest.Combine{forest.Sum, forest.Average}[rng.IntN(2)]
+	} else {
+		f.Task = forest.Classification
+		nc := 2 + rng.IntN(3)
+		for i := 0; i < nc; i++ {
+			f.Classes = append(f.Classes, fmt.Sprintf("c%d", i))
+		}
+		f.Combine = []forest.Combine{forest.Sum, forest.Average, forest.Vote}[rng.IntN(3)]
+		switch rng.IntN(3) {
+		case 1:
+			f.Transform = forest.Softmax
+		case 2:
+			if nc == 2 && f.Combine != forest.Vote {
+				f.Transform = forest.Logistic
+			}
+		}
+	}
+	if rng.IntN(2) == 0 {
+		f.InputPrecision = forest.Float32
+	}
+	k := f.NumOutputs()
+	f.BaseScore = make([]float64, k)
+	for j := range f.BaseScore {
+		if rng.IntN(2) == 0 {
+			f.BaseScore[j] = rng.NormFloat64()
+		}
+	}
+	pool := thresholdPool(rng)
+	for ti := 0; ti < 1+rng.IntN(4); ti++ {
+		f.Trees = append(f.Trees, randomTree(rng, nf, k, pool))
+	}
+	if err := f.Validate("random"); err != nil {
+		panic(err)
+	}
+	return f
+}
+
+func thresholdPool(rng *rand.Rand) []float64 {
+	pool := []float64{0, math.Copysign(0, -1), 0.1, 1, -1, 1e-310, 0.5}
+	for i := 0; i < 4; i++ {
+		v := math.Round(rng.NormFloat64()*8) / 4
+		pool = append(pool, v, math.Nextafter(v, 9), float64(math.Nextafter32(float32(v), 9)))
+	}
+	return pool
+}
+
+func randomTree(rng *rand.Rand, nf, k int, pool []float64) forest.Tree {
+	var t forest.Tree
+	add := func() int {
+		t.Feature = append(t.Feature, -1)
+		t.Threshold = append(t.Threshold, 0)
+		t.Left = append(t.Left, -1)
+		t.Right = append(t.Right, -1)
+		t.MissingLeft = append(t.MissingLeft, false)
+		for j := 0; j < k; j++ {
+			v := float64(rng.IntN(5)) / 4
+			if rng.IntN(10) == 0 {
+				v = -v
+			}
+			t.Value = append(t.Value, v)
+		}
+		return len(t.Left) - 1
+	}
+	type item struct{ node, depth int }
+	stack := []item{{add(), 0}}
+	for len(stack) > 0 {
+		it := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		if it.depth >= 6 || rng.IntN(4) == 0 {
+			continue
+		}
+		i := it.node
+		t.Feature[i] = rng.IntN(nf)
+		t.Threshold[i] = pool[rng.IntN(len(pool))]
+		t.MissingLeft[i] = rng.IntN(2) == 0
+		l, r := add(), add()
+		t.Left[i], t.Right[i] = l, r
+		stack = append(stack, item{l, it.depth + 1}, item{r, it.depth + 1})
+	}
+	return t
+}
+
+// randomRows draws rows that hit thresholds exactly, their float64 and
+// float32 neighbours, ±0, ±Inf and missing values.
+func randomRows(rng *rand.Rand, f *forest.Forest, n int) [][]float64 {
+	var ts []float64
+	for _, t := range f.Trees {
+		for i, l := range t.Left {
+			if l != -1 {
+				ts = append(ts, t.Threshold[i])
+			}
+		}
+	}
+	ts = append(ts, 0)
+	rows := make([][]float64, n)
+	for r := range rows {
+		x := make([]float64, len(f.Features))
+		for j := range x {
+			t := ts[rng.IntN(len(ts))]
+			switch rng.IntN(9) {
+			case 0:
+				x[j] = math.NaN()
+			case 1:
+				x[j] = math.Inf(1 - 2*rng.IntN(2))
+			case 2:
+				x[j] = math.Nextafter(t, math.Inf(1-2*rng.IntN(2)))
+			case 3:
+				x[j] = float64(math.Nextafter32(float32(t), float32(math.Inf(1-2*rng.IntN(2)))))
+			case 4:
+				x[j] = float64(float32(t))
+			case 5:
+				x[j] = rng.NormFloat64() * 4
+			case 6:
+				x[j] = math.Copysign(0, -1)
+			default:
+				x[j] = t
+			}
+		}
+		rows[r] = x
+	}
+	return rows
+}
