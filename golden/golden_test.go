@@ -3,6 +3,7 @@ package golden
 import (
 	"bytes"
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"math"
@@ -87,8 +88,11 @@ func runOne(t *testing.T, c *Case, r Runner, layout, variant string, wantFiles m
 		}
 	}
 	res, err := r.Score(context.Background(), p, layout, variant, c.Rows, t.TempDir())
-	if err == ErrSkip {
-		t.Skipf("%s: %v", r.Name(), err)
+	if errors.Is(err, ErrSkip) {
+		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
+			t.Fatalf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", r.Name(), err)
+		}
+		t.Skipf("skipped: %s: %v", r.Name(), err)
 	}
 	if err != nil {
 		t.Fatalf("%s %s: %v", r.Name(), layout, err)
