@@ -1,0 +1,28 @@
+package compile
+
+import (
+	"math/rand/v2"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+)
+
+// Leaf rows reach every leaf of random forests (whose leaves are all
+// reachable unless an ancestor decides them, which LeafRows then skips), and
+// threshold rows exercise both directions of every split.
+func TestLeafRowsCoverage(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 8))
+	for i := 0; i < 100; i++ {
+		f := randomForest(rng)
+		rows := LeafRows(f, 0)
+		c := Cover(f, rows)
+		p, _, err := Compile(f, Options{Skip: []string{"fold"}})
+		assert.NoError(t, err)
+		// After pruning, the leaves left are exactly the reachable ones: each
+		// must be hit.
+		assert.GreaterOrEqual(t, c.LeavesHit, p.NumLeaves(), "forest %d", i)
+		all := append(rows, ThresholdRows(f, 0)...)
+		c2 := Cover(f, all)
+		assert.GreaterOrEqual(t, c2.BranchesHit, c.BranchesHit)
+	}
+}
