@@ -23,7 +23,7 @@ func LeafRows(f *forest.Forest, limit int) [][]float64 {
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
 		src := &f.Trees[t.Source]
-		walkBoxes(t.Nodes, len(p.Features), func(leaf int, box []span) bool {
+		walkBoxes(t.Nodes, len(p.Features), f32, func(leaf int, box []span) bool {
 			x := make([]float64, len(box))
 			for j, s := range box {
 				x[j] = s.pick(f32)
@@ -84,7 +84,7 @@ func (s span) pick(f32 bool) float64 {
 // walkBoxes visits every leaf reachable under the path facts with the box
 // of spans, one per feature, valid during the call. visit returns false to
 // stop. The walk is depth-first with an undo log, no recursion.
-func walkBoxes(nodes []Node, nf int, visit func(leaf int, box []span) bool) {
+func walkBoxes(nodes []Node, nf int, round32 bool, visit func(leaf int, box []span) bool) {
 	st := make([]span, nf)
 	for i := range st {
 		st[i] = fullSpan()
@@ -111,7 +111,7 @@ func walkBoxes(nodes []Node, nf int, visit func(leaf int, box []span) bool) {
 		if it.from >= 0 {
 			n := &nodes[it.from]
 			log = append(log, undo{n.Feature, st[n.Feature]})
-			st[n.Feature].narrow(n.Op, n.Threshold, n.MissingLeft, it.left)
+			st[n.Feature].narrow(n.Op, effective(n.Threshold, round32), n.MissingLeft, it.left)
 		}
 		n := &nodes[it.node]
 		if n.IsLeaf() {

@@ -8,7 +8,10 @@ import "math"
 // decided when every value its path allows, missing included, goes the same
 // way; sweep then replaces it by that child. Features are independent, so
 // each reached node is reachable by some input, and only decided splits are
-// removed: the pass is exact.
+// removed: the pass is exact. Before the float32 pass every split is x <= t,
+// so every interval is (lo, hi] or unbounded, and one that is not empty
+// holds hi itself: the analysis is complete, every split left can go both
+// ways.
 //
 // The walk is one depth-first traversal with an undo log, O(nodes) in time
 // and O(features + depth) in memory, with no recursion.
@@ -19,7 +22,7 @@ func prune(p *Program) {
 		for f := range st {
 			st[f] = fullSpan()
 		}
-		pruneTree(p.Trees[ti].Nodes, st)
+		pruneTree(p.Trees[ti].Nodes, st, p.Compare == Round32)
 	}
 	sweep(p)
 }
@@ -68,7 +71,18 @@ func (s *span) narrow(op Op, t float64, missingLeft, left bool) {
 	s.nan = s.nan && !missingLeft
 }
 
-func pruneTree(nodes []Node, st []span) {
+// effective is the threshold a split really compares with: for a float32
+// model the compared value is a float32, and v <= t holds exactly when
+// v <= Floor32(t). Using it makes the facts exact on the float32 grid, so an
+// interval with no float32 in it counts as empty.
+func effective(t float64, round32 bool) float64 {
+	if round32 {
+		return float64(Floor32(t))
+	}
+	return t
+}
+
+func pruneTree(nodes []Node, st []span, round32 bool) {
 	type undo struct {
 		f   int
 		old span
@@ -93,7 +107,7 @@ func pruneTree(nodes []Node, st []span) {
 		if v.f >= 0 {
 			from := &nodes[v.from]
 			log = append(log, undo{v.f, st[v.f]})
-			st[v.f].narrow(from.Op, from.Threshold, from.MissingLeft, v.left)
+			st[v.f].narrow(from.Op, effective(from.Threshold, round32), from.MissingLeft, v.left)
 		}
 		i := v.node
 		for {
@@ -101,9 +115,9 @@ func pruneTree(nodes []Node, st []span) {
 			if n.IsLeaf() {
 				break
 			}
-			s := st[n.Feature]
-			canLeft := s.allows(n.Op, n.Threshold, true) || s.nan && n.MissingLeft
-			canRight := s.allows(n.Op, n.Threshold, false) || s.nan && !n.MissingLeft
+			s, t := st[n.Feature], effective(n.Threshold, round32)
+			canLeft := s.allows(n.Op, t, true) || s.nan && n.MissingLeft
+			canRight := s.allows(n.Op, t, false) || s.nan && !n.MissingLeft
 			switch {
 			case canLeft && canRight:
 				mark := len(log)
