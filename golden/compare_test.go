@@ -1,0 +1,33 @@
+package golden
+
+import (
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+)
+
+// Compare is bit-exact where asked: -0 differs from +0, NaN agrees with
+// NaN, one ulp is a mismatch; within a bound only when not exact, and then
+// labels are forgiven only where the reference's top two are within 2×bound.
+func TestCompare(t *testing.T) {
+	negZero := math.Copysign(0, -1)
+	want := []float64{0.25, 0.75, negZero, math.NaN()}
+	assert.True(t, Compare(want, []float64{0.25, 0.75, negZero, math.NaN()}, nil, nil, 2, true, 0).OK())
+	m := Compare(want, []float64{0.25, 0.75, 0, math.NaN()}, nil, nil, 2, true, 0)
+	assert.False(t, m.OK())
+	assert.Equal(t, 1, m.FirstRow)
+	assert.Equal(t, 0, m.FirstOutput)
+
+	up := math.Nextafter(0.75, 1)
+	assert.False(t, Compare(want[:2], []float64{0.25, up}, nil, nil, 2, true, 0).OK())
+	assert.True(t, Compare(want[:2], []float64{0.25, up}, nil, nil, 2, false, 1e-15).OK())
+
+	// a label that differs where the margin is wide fails even within bound
+	m = Compare([]float64{0.2, 0.8}, []float64{0.2, 0.8}, []int{1}, []int{0}, 2, false, 1e-9)
+	assert.False(t, m.OK())
+	assert.Equal(t, 1, m.LabelMismatch)
+	// and is forgiven on a near tie
+	m = Compare([]float64{0.5, 0.5 + 1e-12}, []float64{0.5, 0.5}, []int{1}, []int{0}, 2, false, 1e-9)
+	assert.True(t, m.OK(), m.String())
+}
