@@ -123,6 +123,11 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 	}
 
 	var labels []string
+	// Per feature column, the cells that are not finite numbers: the first
+	// few are named by line, the rest counted, so that a column of ids
+	// gives a short message with a hint instead of one line per row.
+	const perColumn = 3
+	badCells := make([]int, len(feat))
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -144,12 +149,16 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 		for j, c := range feat {
 			v, msg := forest.ParseCell(rec[c])
 			switch {
-			case msg != "":
-				p.Add("%s:%d: column %q: %s", name, line, d.Features[j], msg)
-			case math.IsNaN(v):
-				p.Add("%s:%d: column %q: missing value\nhint: training needs every feature cell filled; fill the gap or drop the row", name, line, d.Features[j])
-			case math.IsInf(v, 0):
-				p.Add("%s:%d: column %q: %q is infinite: training needs finite values", name, line, d.Features[j], rec[c])
+			case msg == "" && math.IsNaN(v):
+				msg = "missing value"
+			case msg == "" && math.IsInf(v, 0):
+				msg = fmt.Sprintf("%q is infinite: training needs finite values", rec[c])
+			}
+			if msg != "" {
+				if badCells[j] < perColumn {
+					p.Add("%s:%d: column %q: %s", name, line, d.Features[j], msg)
+				}
+				badCells[j]++
 			}
 			d.X = append(d.X, v)
 		}
@@ -159,9 +168,22 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 		}
 		labels = append(labels, lv)
 		d.Line = append(d.Line, line)
-		if p.Full() {
-			break
+	}
+	hint := ""
+	for j, n := range badCells {
+		switch {
+		case n == len(labels) && n > 0:
+			p.Add("%s: column %q: no cell is a finite number", name, d.Features[j])
+			hint = "hint: leave such a column out with --ignore " + d.Features[j]
+		case n > perColumn:
+			p.Add("%s: column %q: %d more cells are missing or not numbers", name, d.Features[j], n-perColumn)
 		}
+		if n > 0 && hint == "" {
+			hint = "hint: training needs every feature cell to be a finite number; fill or drop the rows named, or leave a column out with --ignore"
+		}
+	}
+	if p.Len() > 0 && hint != "" {
+		return nil, fmt.Errorf("%w\n%s", p.Err(), hint)
 	}
 	if p.Len() > 0 {
 		return nil, p.Err()

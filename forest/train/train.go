@@ -84,6 +84,14 @@ type CurvePoint struct {
 	Error float64
 }
 
+// SettingError is a setting out of its range. Name is the setting as the
+// command line spells it (mtry, min-leaf, sample-fraction, ...).
+type SettingError struct {
+	Name, Value, Problem string
+}
+
+func (e *SettingError) Error() string { return e.Name + " " + e.Value + ": " + e.Problem }
+
 // resolved are the settings with defaults applied and checked.
 type resolved struct {
 	trees, mtry, maxDepth, draws, threads int
@@ -110,24 +118,27 @@ func resolve(d *Data, s Settings) (*resolved, error) {
 	if r.threads == 0 {
 		r.threads = runtime.GOMAXPROCS(0)
 	}
+	bad := func(name string, v any, problem string) error {
+		return &SettingError{Name: name, Value: fmt.Sprint(v), Problem: problem}
+	}
 	switch {
 	case r.trees < 0:
-		return nil, fmt.Errorf("trees %d: must be at least 1", s.Trees)
+		return nil, bad("trees", s.Trees, "must be at least 1")
 	case r.mtry < 1 || r.mtry > p:
-		return nil, fmt.Errorf("mtry %d: must be between 1 and %d, the number of features", s.Mtry, p)
+		return nil, bad("mtry", s.Mtry, fmt.Sprintf("must be between 1 and %d, the number of features", p))
 	case r.minLeafInt < 1:
-		return nil, fmt.Errorf("min-leaf %d: must be at least 1", s.MinLeaf)
+		return nil, bad("min-leaf", s.MinLeaf, "must be at least 1")
 	case r.maxDepth < 0:
-		return nil, fmt.Errorf("max-depth %d: must be 0 (unlimited) or more", s.MaxDepth)
+		return nil, bad("max-depth", s.MaxDepth, "must be 0 (unlimited) or more")
 	case !(r.fraction > 0) || math.IsInf(r.fraction, 0):
-		return nil, fmt.Errorf("sample-fraction %v: must be a number above 0", s.SampleFraction)
+		return nil, bad("sample-fraction", s.SampleFraction, "must be a number above 0")
 	case r.threads < 1:
-		return nil, fmt.Errorf("threads %d: must be at least 1", s.Threads)
+		return nil, bad("threads", s.Threads, "must be at least 1")
 	}
 	r.minLeaf = float64(r.minLeafInt)
 	draws := math.Round(r.fraction * float64(n))
 	if draws > math.MaxInt32 {
-		return nil, fmt.Errorf("sample-fraction %v: %v draws per tree is too many", s.SampleFraction, draws)
+		return nil, bad("sample-fraction", s.SampleFraction, fmt.Sprintf("%v draws per tree is too many", draws))
 	}
 	r.draws = max(1, int(draws))
 	r.threads = min(r.threads, r.trees)

@@ -340,7 +340,7 @@ func TestReadCSVErrors(t *testing.T) {
 		o    ReadOptions
 		want []string
 	}{
-		{"a,b,y\n1,,x\n2,3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "b": missing value`, "hint:"}},
+		{"a,b,y\n1,,x\n2,3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "b": missing value`, "hint: training needs every feature cell"}},
 		{"a,b,y\n1,2,x\n2,abc,z\n", ReadOptions{Label: "y"}, []string{`d.csv:3: column "b": "abc" is not a number`}},
 		{"a,b,y\n1,inf,x\n2,3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "b": "inf" is infinite`}},
 		{"a,b,y\n1,NaN,x\n2,3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "b": missing value`}},
@@ -352,6 +352,10 @@ func TestReadCSVErrors(t *testing.T) {
 		{"a,y\n1,x\n2,x\n", ReadOptions{Label: "y"}, []string{`d.csv: column "y" holds one class only ("x")`}},
 		{"a,y\n1,2\n2,x\n", ReadOptions{Label: "y", Task: forest.Regression}, []string{`d.csv:3: column "y": "x" is not a finite number`}},
 		{"a,y\n", ReadOptions{Label: "y"}, []string{`d.csv: no rows after the header`}},
+		{"id,a,y\nP1,1,x\nP2,2,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "id": "P1" is not a number`,
+			`d.csv: column "id": no cell is a finite number`, "hint: leave such a column out with --ignore id"}},
+		{"a,y\n,x\n,x\n,x\n,x\n,x\n3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:4: column "a": missing value`,
+			`d.csv: column "a": 2 more cells are missing or not numbers`}},
 		{"", ReadOptions{Label: "y"}, []string{`d.csv: empty file`}},
 		{"a,y\n1,x\n", ReadOptions{}, []string{`d.csv: no label column given`}},
 	}

@@ -1,0 +1,346 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"slices"
+	"strings"
+	"text/tabwriter"
+	"unicode/utf8"
+
+	"github.com/spf13/cobra"
+
+	"sawmill/forest"
+)
+
+func newInspectCmd() *cobra.Command {
+	var asJSON bool
+	c := &cobra.Command{
+		Use:   "inspect MODEL.json [--json]",
+		Short: "Show what is in a model: trees, nodes, depth, features, sizes",
+		Long: `Read and validate a model file and describe it: the number of trees,
+nodes and leaves, tree depths, which features the splits use and how often,
+the outputs and classes, how trees are combined, the output transform, the
+input precision, the provenance, and the file size.
+
+Only nodes reachable from a tree's root are counted.`,
+		Example: `  sawmill inspect pump-health.json
+  sawmill inspect pump-health.json --json`,
+		Args: exactArgs(1, "one model file"),
+		RunE: func(c *cobra.Command, args []string) error {
+			return runInspect(c.OutOrStdout(), args[0], asJSON)
+		},
+	}
+	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
+	return c
+}
+
+// stats describes a forest's shape, over reachable nodes only.
+type stats struct {
+	nodes, leaves      int
+	depthMin, depthMax int
+	depthMean          float64
+	splits             []int // per feature, the number of splits that test it
+}
+
+// forestStats walks every tree with an explicit stack: trees can be far too
+// deep for recursion.
+func forestStats(f *forest.Forest) stats {
+	st := stats{splits: make([]int, len(f.Features)), depthMin: -1}
+	type item struct{ node, depth int }
+	var stack []item
+	sum := 0
+	for ti := range f.Trees {
+		t := &f.Trees[ti]
+		deepest := 0
+		stack = append(stack[:0], item{0, 0})
+		for len(stack) > 0 {
+			it := stack[len(stack)-1]
+			stack = stack[:len(stack)-1]
+			st.nodes++
+			if t.IsLeaf(it.node) {
+				st.leaves++
+				deepest = max(deepest, it.depth)
+				continue
+			}
+			st.splits[t.Feature[it.node]]++
+			stack = append(stack, item{t.Right[it.node], it.depth + 1}, item{t.Left[it.node], it.depth + 1})
+		}
+		sum += deepest
+		st.depthMax = max(st.depthMax, deepest)
+		if st.depthMin < 0 || deepest < st.depthMin {
+			st.depthMin = deepest
+		}
+	}
+	if len(f.Trees) > 0 {
+		st.depthMean = float64(sum) / float64(len(f.Trees))
+	}
+	st.depthMin = max(st.depthMin, 0)
+	return st
+}
+
+type inspectFeature struct {
+	Name   string `json:"name"`
+	Splits int    `json:"splits"`
+}
+
+type inspectDepth struct {
+	Min  int     `json:"min"`
+	Mean float64 `json:"mean"`
+	Max  int     `json:"max"`
+}
+
+type inspectDoc struct {
+	File           string           `json:"file"`
+	Bytes          int64            `json:"bytes"`
+	Task           forest.Task      `json:"task"`
+	Trees          int              `json:"trees"`
+	Nodes          int              `json:"nodes"`
+	Leaves         int              `json:"leaves"`
+	Depth          inspectDepth     `json:"depth"`
+	Features       []inspectFeature `json:"features"`
+	FeaturesUsed   int              `json:"features_used"`
+	Outputs        int              `json:"outputs"`
+	Classes        []string         `json:"classes,omitempty"`
+	Combine        forest.Combine   `json:"combine"`
+	Transform      forest.Transform `json:"output_transform"`
+	InputPrecision forest.Precision `json:"input_precision"`
+	BaseScore      []float64        `json:"base_score"`
+	Provenance     json.RawMessage  `json:"provenance,omitempty"`
+}
+
+func runInspect(w io.Writer, path string, asJSON bool) error {
+	fi, err := os.Stat(path)
+	if err != nil {
+		return located(path, err)
+	}
+	f, err := readModel(path)
+	if err != nil {
+		return err
+	}
+	st := forestStats(f)
+	doc := inspectDoc{
+		File: path, Bytes: fi.Size(), Task: f.Task,
+		Trees: len(f.Trees), Nodes: st.nodes, Leaves: st.leaves,
+		Depth:   inspectDepth{Min: st.depthMin, Mean: st.depthMean, Max: st.depthMax},
+		Outputs: f.NumOutputs(), Classes: f.Classes,
+		Combine: f.Combine, Transform: f.Transform, InputPrecision: f.InputPrecision,
+		BaseScore: f.BaseScore, Provenance: f.Provenance,
+	}
+	for i, name := range f.Features {
+		doc.Features = append(doc.Features, inspectFeature{Name: name, Splits: st.splits[i]})
+		if st.splits[i] > 0 {
+			doc.FeaturesUsed++
+		}
+	}
+	if asJSON {
+		b, err := json.MarshalIndent(doc, "", "  ")
+		if err != nil {
+			return fmt.Errorf("BUG: inspect: %v", err)
+		}
+		_, err = fmt.Fprintf(w, "%s\n", b)
+		return err
+	}
+	return printInspect(w, &doc)
+}
+
+func printInspect(w io.Writer, d *inspectDoc) error {
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	row := func(k, format string, a ...any) { fmt.Fprintf(tw, "%s\t"+format+"\n", append([]any{k}, a...)...) }
+	size := fmt.Sprintf("%d bytes", d.Bytes)
+	if d.Bytes >= 1<<10 {
+		size += " (" + byteSize(d.Bytes) + ")"
+	}
+	row("file", "%s, %s", d.File, size)
+	row("task", "%s", d.Task)
+	row("trees", "%d", d.Trees)
+	row("nodes", "%d (%s, %s)", d.Nodes, plural(d.Nodes-d.Leaves, "split"), plural(d.Leaves, "leaf"))
+	row("depth", "min %d, mean %.1f, max %d", d.Depth.Min, d.Depth.Mean, d.Depth.Max)
+	row("outputs", "%d", d.Outputs)
+	if d.Classes != nil {
+		row("classes", "%s", strings.Join(quoteAll(d.Classes), ", "))
+	}
+	row("combine", "%s", d.Combine)
+	row("transform", "%s", d.Transform)
+	row("precision", "%s", d.InputPrecision)
+	if nonZero(d.BaseScore) {
+		row("base score", "%s", floatList(d.BaseScore))
+	}
+	row("features", "%d, %d used", len(d.Features), d.FeaturesUsed)
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	nameW, countW := 0, 0
+	counts := make([]string, len(d.Features))
+	for i, ft := range d.Features {
+		counts[i] = "unused"
+		if ft.Splits > 0 {
+			counts[i] = plural(ft.Splits, "split")
+		}
+		nameW = max(nameW, utf8.RuneCountInString(ft.Name))
+		countW = max(countW, len(counts[i]))
+	}
+	for i, ft := range d.Features {
+		pad := strings.Repeat(" ", nameW-utf8.RuneCountInString(ft.Name))
+		fmt.Fprintf(w, "  %s%s  %*s\n", ft.Name, pad, countW, counts[i])
+	}
+	if len(d.Provenance) == 0 {
+		return nil
+	}
+	fmt.Fprintln(w, "provenance")
+	tw = tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	keys, vals, err := objectFields(d.Provenance)
+	if err != nil {
+		fmt.Fprintf(tw, "  %s\n", shorten(string(d.Provenance), 76))
+	}
+	for i, k := range keys {
+		fmt.Fprintf(tw, "  %s\t%s\n", k, provenanceValue(k, vals[i]))
+	}
+	return tw.Flush()
+}
+
+// provenanceValue summarises one provenance entry on one line: sawmill's
+// own keys readably, anything else as compact JSON, shortened.
+func provenanceValue(key string, v json.RawMessage) string {
+	switch key {
+	case "settings":
+		if keys, vals, err := objectFields(v); err == nil {
+			parts := make([]string, len(keys))
+			for i, k := range keys {
+				parts[i] = k + "=" + strings.Trim(string(vals[i]), `"`)
+			}
+			return shorten(strings.Join(parts, " "), 76)
+		}
+	case "oob_curve":
+		var c struct {
+			Trees []int     `json:"trees"`
+			Error []float64 `json:"error"`
+		}
+		if json.Unmarshal(v, &c) == nil && len(c.Trees) > 0 && len(c.Trees) == len(c.Error) {
+			last := len(c.Trees) - 1
+			return fmt.Sprintf("%.4g after %s, %.4g after %s (%d points)",
+				c.Error[0], plural(c.Trees[0], "tree"), c.Error[last], plural(c.Trees[last], "tree"), len(c.Trees))
+		}
+	case "importance":
+		var imp struct {
+			Increase json.RawMessage `json:"increase"`
+		}
+		if json.Unmarshal(v, &imp) == nil && imp.Increase != nil {
+			if keys, vals, err := objectFields(imp.Increase); err == nil {
+				type kv struct {
+					k string
+					v float64
+				}
+				var list []kv
+				for i, k := range keys {
+					var x float64
+					if json.Unmarshal(vals[i], &x) == nil {
+						list = append(list, kv{k, x})
+					}
+				}
+				slices.SortStableFunc(list, func(a, b kv) int { return cmpDesc(a.v, b.v) })
+				var parts []string
+				for _, e := range list[:min(5, len(list))] {
+					parts = append(parts, fmt.Sprintf("%s %.4g", e.k, e.v))
+				}
+				return "top: " + strings.Join(parts, ", ")
+			}
+		}
+	}
+	return shorten(string(v), 76)
+}
+
+func cmpDesc(a, b float64) int {
+	switch {
+	case a > b:
+		return -1
+	case a < b:
+		return 1
+	}
+	return 0
+}
+
+func plural(n int, word string) string {
+	switch {
+	case n == 1:
+		return "1 " + word
+	case word == "leaf":
+		return fmt.Sprintf("%d leaves", n)
+	}
+	return fmt.Sprintf("%d %ss", n, word)
+}
+
+// objectFields lists a JSON object's keys in document order, each with its
+// compact value.
+func objectFields(raw json.RawMessage) (keys []string, vals []json.RawMessage, err error) {
+	dec := json.NewDecoder(bytes.NewReader(raw))
+	if tok, err := dec.Token(); err != nil || tok != json.Delim('{') {
+		return nil, nil, fmt.Errorf("not an object")
+	}
+	for dec.More() {
+		tok, err := dec.Token()
+		if err != nil {
+			return nil, nil, err
+		}
+		var v json.RawMessage
+		if err := dec.Decode(&v); err != nil {
+			return nil, nil, err
+		}
+		var c bytes.Buffer
+		if json.Compact(&c, v) == nil {
+			v = c.Bytes()
+		}
+		keys = append(keys, fmt.Sprint(tok))
+		vals = append(vals, v)
+	}
+	return keys, vals, nil
+}
+
+func shorten(s string, n int) string {
+	r := []rune(s)
+	if len(r) <= n {
+		return s
+	}
+	return string(r[:n-1]) + "…"
+}
+
+func quoteAll(s []string) []string {
+	q := make([]string, len(s))
+	for i, x := range s {
+		b, _ := json.Marshal(x)
+		q[i] = string(b)
+	}
+	return q
+}
+
+func nonZero(v []float64) bool {
+	for _, x := range v {
+		if x != 0 {
+			return true
+		}
+	}
+	return false
+}
+
+func floatList(v []float64) string {
+	s := make([]string, len(v))
+	for i, x := range v {
+		s[i] = num(x)
+	}
+	return strings.Join(s, ", ")
+}
+
+func byteSize(n int64) string {
+	switch {
+	case n >= 1<<30:
+		return fmt.Sprintf("%.1f GiB", float64(n)/(1<<30))
+	case n >= 1<<20:
+		return fmt.Sprintf("%.1f MiB", float64(n)/(1<<20))
+	case n >= 1<<10:
+		return fmt.Sprintf("%.1f KiB", float64(n)/(1<<10))
+	}
+	return fmt.Sprintf("%d bytes", n)
+}

@@ -1,0 +1,65 @@
+package main
+
+import (
+	"encoding/json"
+	"path/filepath"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+)
+
+// forest/testdata/pump.json is the format page's example: one tree, a split
+// on bearing_temp_c and two leaves.
+func TestInspectText(t *testing.T) {
+	code, out, errs := sawmill(t, "inspect", "../../forest/testdata/pump.json")
+	require.Equal(t, 0, code, errs)
+	for _, want := range []string{
+		"task       classification\n",
+		"trees      1\n",
+		"nodes      3 (1 split, 2 leaves)\n",
+		"depth      min 1, mean 1.0, max 1\n",
+		"outputs    3\n",
+		`classes    "healthy", "imbalance", "bearing_wear"` + "\n",
+		"combine    average\n",
+		"transform  none\n",
+		"precision  float64\n",
+		"features   3, 1 used\n",
+		"  vibration_rms     unused\n",
+		"  bearing_temp_c   1 split\n",
+		"provenance\n",
+		`  trainer    "sawmill train"` + "\n",
+		"  oob_error  0.043\n",
+	} {
+		assert.Contains(t, out, want)
+	}
+	assert.Regexp(t, `file       \.\./\.\./forest/testdata/pump\.json, \d+ bytes\n`, out)
+}
+
+func TestInspectJSON(t *testing.T) {
+	model := filepath.Join(t.TempDir(), "m.json")
+	code, _, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "--trees", "7", "--max-depth", "4", "-o", model)
+	require.Equal(t, 0, code, errs)
+	code, out, errs := sawmill(t, "inspect", model, "--json")
+	require.Equal(t, 0, code, errs)
+	var d inspectDoc
+	require.NoError(t, json.Unmarshal([]byte(out), &d))
+	assert.Equal(t, 7, d.Trees)
+	assert.Equal(t, d.Nodes, 2*d.Leaves-1-(d.Trees-1), "binary trees: nodes = 2·leaves − trees")
+	assert.LessOrEqual(t, d.Depth.Max, 4)
+	assert.LessOrEqual(t, d.Depth.Min, d.Depth.Max)
+	splits := 0
+	for _, f := range d.Features {
+		splits += f.Splits
+	}
+	assert.Equal(t, d.Nodes-d.Leaves, splits, "every split tests one feature")
+	assert.Greater(t, d.Bytes, int64(0))
+	var prov map[string]json.RawMessage
+	require.NoError(t, json.Unmarshal(d.Provenance, &prov))
+	assert.Contains(t, prov, "oob_error")
+
+	code, text, errs := sawmill(t, "inspect", model)
+	require.Equal(t, 0, code, errs)
+	assert.Contains(t, text, "  oob_curve ")
+	assert.Contains(t, text, "  importance  top: ")
+}
