@@ -1,0 +1,282 @@
+package golden
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"sync"
+	"testing"
+	"time"
+
+	"sawmill/compile"
+	"sawmill/forest"
+)
+
+// Differential testing after Yang, Chen, Eide and Regehr, "Finding and
+// Understanding Bugs in C Compilers" (PLDI 2011): random models that nobody
+// chose, scored by every target and held against the interpreter.
+//
+//	SAWMILL_DIFF_MODELS=N   models to run (default diffDefaultModels)
+//	SAWMILL_DIFF_SEED=S     first seed (default 1); seeds S to S+N-1 run
+//	SAWMILL_DIFF_ROWS=R     rows per model (default 48)
+//	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default testdata)
+const diffDefaultModels = 24
+
+// diffGenOptions keeps default models small: building emitted code per
+// model is the cost, and small models reach the same corners.
+var diffGenOptions = GenOptions{MaxTrees: 5, MaxFeatures: 5, MaxDepth: 7, MaxChain: 24, MaxNodes: 120, Garbage: true}
+
+func envInt(t *testing.T, name string, def uint64) uint64 {
+	s := os.Getenv(name)
+	if s == "" {
+		return def
+	}
+	v, err := strconv.ParseUint(s, 10, 64)
+	if err != nil {
+		t.Fatalf("%s=%q: want a non-negative integer", name, s)
+	}
+	return v
+}
+
+// target is one runner, variant and layout.
+type target struct {
+	r               Runner
+	variant, layout string
+}
+
+func (tg target) String() string {
+	s := tg.r.Name() + "/" + tg.layout
+	if tg.variant != "" {
+		s += "-" + tg.variant
+	}
+	return s
+}
+
+func allTargets() []target {
+	var ts []target
+	for _, r := range Runners() {
+		for _, v := range r.Variants() {
+			for _, l := range r.Layouts() {
+				ts = append(ts, target{r, v, l})
+			}
+		}
+	}
+	return ts
+}
+
+// outcome is what one target did with one model.
+type outcome struct {
+	skipped  error // ErrSkip: the toolchain is absent
+	err      error // compile, emit, build or run failed
+	mismatch *Mismatch
+	took     time.Duration
+}
+
+func (o outcome) failed() bool { return o.err != nil || o.mismatch != nil }
+
+func (o outcome) String() string {
+	if o.err != nil {
+		return o.err.Error()
+	}
+	if o.mismatch != nil {
+		return o.mismatch.String()
+	}
+	return "ok"
+}
+
+// runTarget compiles f for the target, scores rows, and compares.
+func runTarget(ctx context.Context, tg target, f *forest.Forest, rows *forest.Rows, dir string) outcome {
+	start := time.Now()
+	p, _, err := compile.Compile(f, tg.r.CompileOptions(tg.variant))
+	if err != nil {
+		return outcome{err: fmt.Errorf("compile: %v", err)}
+	}
+	res, err := tg.r.Score(ctx, p, tg.layout, tg.variant, rows, dir)
+	if errors.Is(err, ErrSkip) {
+		return outcome{skipped: err}
+	}
+	if err != nil {
+		return outcome{err: err, took: time.Since(start)}
+	}
+	c := &Case{Model: f, Rows: rows}
+	want, wantCls := c.Reference()
+	exact, bound := tg.r.Tolerance(tg.variant, p)
+	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), exact, bound)
+	o := outcome{took: time.Since(start)}
+	if !m.OK() {
+		o.mismatch = &m
+	}
+	return o
+}
+
+// checkEval holds compile.Eval against the interpreter bit for bit: with
+// Options{} on the rows as given, and with SingleInputs on the rows rounded to
+// float32, where the Single form is exact.
+func checkEval(f *forest.Forest, rows *forest.Rows) error {
+	k := f.NumOutputs()
+	want, got := make([]float64, k), make([]float64, k)
+	for _, single := range []bool{false, true} {
+		p, _, err := compile.Compile(f, compile.Options{SingleInputs: single})
+		if err != nil {
+			return fmt.Errorf("compile (SingleInputs %v): %v", single, err)
+		}
+		x := make([]float64, len(f.Features))
+		for r := 0; r < rows.Len(); r++ {
+			copy(x, rows.Row(r))
+			if single {
+				for j := range x {
+					x[j] = float64(float32(x[j]))
+				}
+			}
+			f.Predict(x, want)
+			compile.Eval(p, x, got)
+			for j := range want {
+				if math.Float64bits(want[j]) != math.Float64bits(got[j]) && !(math.IsNaN(want[j]) && math.IsNaN(got[j])) {
+					return fmt.Errorf("compile.Eval (SingleInputs %v), row %d, output %d: %v, interpreter %v", single, r, j, got[j], want[j])
+				}
+			}
+		}
+	}
+	return nil
+}
+
+// TestDifferential draws random models, runs each through every registered
+// target, and holds every output against the interpreter. A failing model is
+// shrunk and written as a golden case folder, named in the failure.
+func TestDifferential(t *testing.T) {
+	n := envInt(t, "SAWMILL_DIFF_MODELS", diffDefaultModels)
+	first := envInt(t, "SAWMILL_DIFF_SEED", 1)
+	nrows := int(envInt(t, "SAWMILL_DIFF_ROWS", 48))
+	keep := os.Getenv("SAWMILL_DIFF_KEEP")
+	if keep == "" {
+		keep = "testdata"
+	}
+	targets := allTargets()
+	if len(targets) == 0 {
+		t.Log("no target runners are registered in Runners(): only compile.Eval is held against the interpreter")
+	}
+	var mu sync.Mutex
+	runs := map[string]int{}    // per target: models that ran
+	skips := map[string]error{} // per target: why it was skipped
+	var total time.Duration
+	start := time.Now()
+	t.Run("models", func(t *testing.T) {
+		for seed := first; seed < first+n; seed++ {
+			t.Run(fmt.Sprintf("seed%d", seed), func(t *testing.T) {
+				t.Parallel()
+				f := RandomForest(seed, diffGenOptions)
+				rows := RandomRows(seed, f, nrows)
+				if err := checkRowsRoundTrip(f, rows); err != nil {
+					t.Fatalf("seed %d: %v", seed, err)
+				}
+				if err := checkEval(f, rows); err != nil {
+					t.Errorf("seed %d: %v", seed, err)
+				}
+				for _, tg := range targets {
+					o := runTarget(context.Background(), tg, f, rows, t.TempDir())
+					mu.Lock()
+					total += o.took
+					if o.skipped != nil {
+						skips[tg.String()] = o.skipped
+					} else {
+						runs[tg.String()]++
+					}
+					mu.Unlock()
+					if o.skipped != nil {
+						if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
+							t.Errorf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", tg, o.skipped)
+						}
+						continue
+					}
+					if !o.failed() {
+						continue
+					}
+					dir := filepath.Join(keep, fmt.Sprintf("diff-seed%d", seed))
+					small, srows := shrinkFor(tg, f, rows, o)
+					if err := WriteCase(dir, small, srows); err != nil {
+						t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", seed, tg, o, err)
+						continue
+					}
+					again := runTarget(context.Background(), tg, small, srows, t.TempDir())
+					t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s",
+						seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again)
+				}
+			})
+		}
+	})
+	wall := time.Since(start)
+	for _, tg := range targets {
+		if err, ok := skips[tg.String()]; ok && runs[tg.String()] == 0 {
+			t.Logf("%s: skipped: %v", tg, err)
+			continue
+		}
+		t.Logf("%s: %d models", tg, runs[tg.String()])
+	}
+	t.Logf("seeds %d to %d: %d models, %d rows each, %d targets; wall %v (%v per model), target time %v",
+		first, first+n-1, n, nrows, len(targets), wall.Round(time.Millisecond),
+		(wall / time.Duration(max(n, 1))).Round(time.Millisecond), total.Round(time.Millisecond))
+}
+
+// shrinkFor shrinks a failing model for one target, keeping the kind of
+// failure (an error stays an error, a mismatch a mismatch).
+func shrinkFor(tg target, f *forest.Forest, rows *forest.Rows, first outcome) (*forest.Forest, *forest.Rows) {
+	dir, err := os.MkdirTemp("", "sawmill-shrink")
+	if err != nil {
+		return f, rows
+	}
+	defer os.RemoveAll(dir)
+	n := 0
+	fails := func(g *forest.Forest, r *forest.Rows) bool {
+		n++
+		d := filepath.Join(dir, strconv.Itoa(n))
+		if os.Mkdir(d, 0o755) != nil {
+			return false
+		}
+		defer os.RemoveAll(d)
+		o := runTarget(context.Background(), tg, g, r, d)
+		if first.err != nil {
+			return o.err != nil
+		}
+		return o.mismatch != nil
+	}
+	budget := int(envIntOr("SAWMILL_DIFF_SHRINK", 300))
+	return Shrink(f, rows, fails, budget)
+}
+
+func envIntOr(name string, def uint64) uint64 {
+	if v, err := strconv.ParseUint(os.Getenv(name), 10, 64); err == nil {
+		return v
+	}
+	return def
+}
+
+func nodeCount(f *forest.Forest) int {
+	n := 0
+	for i := range f.Trees {
+		n += f.Trees[i].NumNodes()
+	}
+	return n
+}
+
+// checkRowsRoundTrip makes sure that a case written from rows reads back bit
+// for bit, so a kept failing case fails the same way.
+func checkRowsRoundTrip(f *forest.Forest, rows *forest.Rows) error {
+	back, err := forest.ReadRows(bytes.NewReader(EncodeRows(rows)), "rows.csv", f.Features, forest.RowOptions{})
+	if err != nil {
+		return fmt.Errorf("rows do not read back: %v", err)
+	}
+	if back.Len() != rows.Len() {
+		return fmt.Errorf("rows read back: %d rows, wrote %d", back.Len(), rows.Len())
+	}
+	for i, v := range rows.Values {
+		if math.Float64bits(v) != math.Float64bits(back.Values[i]) && !(math.IsNaN(v) && math.IsNaN(back.Values[i])) {
+			return fmt.Errorf("rows read back: value %d is %v, wrote %v", i, back.Values[i], v)
+		}
+	}
+	return nil
+}
