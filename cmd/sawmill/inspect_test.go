@@ -36,6 +36,8 @@ func TestInspectText(t *testing.T) {
 	assert.Regexp(t, `file       \.\./\.\./forest/testdata/pump\.json, \d+ bytes\n`, out)
 }
 
+// inspect --json: counts that must agree with each other for binary trees
+// (every split has two children) and with the flags used to train.
 func TestInspectJSON(t *testing.T) {
 	model := filepath.Join(t.TempDir(), "m.json")
 	code, _, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "--trees", "7", "--max-depth", "4", "-o", model)

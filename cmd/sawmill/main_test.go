@@ -24,6 +24,8 @@ func sawmill(t *testing.T, args ...string) (code int, stdout, stderr string) {
 	return code, out.String(), errb.String()
 }
 
+// Every command's -h carries an example of the pump-health scenario (the
+// project's rule for examples).
 func TestHelpHasExamples(t *testing.T) {
 	for _, cmd := range []string{"train", "predict", "inspect"} {
 		code, out, _ := sawmill(t, cmd, "-h")
@@ -38,6 +40,8 @@ func TestHelpHasExamples(t *testing.T) {
 	}
 }
 
+// Misuse of the command line: "sawmill: " and the command first, a hint,
+// exit code 2, no usage dump (style.md, "Errors and the CLI").
 func TestUsageErrors(t *testing.T) {
 	cases := []struct {
 		args []string
@@ -63,6 +67,9 @@ func TestUsageErrors(t *testing.T) {
 	}
 }
 
+// Bad inputs: the message starts with the file (and line and column for a
+// cell), exit code 1, nothing written (style.md, "Errors and the CLI";
+// design.md, "The command line").
 func TestFileErrors(t *testing.T) {
 	dir := t.TempDir()
 	broken := filepath.Join(dir, "broken.json")

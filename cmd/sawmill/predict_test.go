@@ -14,6 +14,9 @@ import (
 	"sawmill/forest"
 )
 
+// `sawmill predict` prints the kept columns, one column per class in class
+// order, then the class, each number in shortest round-trip form, exactly
+// the interpreter's outputs (design.md, "The command line").
 func TestPredictClassifier(t *testing.T) {
 	model := filepath.Join(t.TempDir(), "pump-health.json")
 	code, _, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "--trees", "20", "-o", model)
@@ -76,6 +79,8 @@ func TestPredictLogistic(t *testing.T) {
 	assert.Equal(t, []string{"P004", num(1 - p), num(p), "bearing_wear"}, recs[4])
 }
 
+// A regressor prints one column, "prediction" (design.md, "The command
+// line").
 func TestPredictRegression(t *testing.T) {
 	model := filepath.Join(t.TempDir(), "flow.json")
 	code, _, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "flow_m3h", "--ignore", "pump_id,state", "--trees", "10", "-o", model)

@@ -15,6 +15,8 @@ import (
 	"sawmill/forest"
 )
 
+// `sawmill train` on a classification table (design.md, "The command line"
+// and "Training").
 func TestTrainClassifier(t *testing.T) {
 	dir := t.TempDir()
 	model := filepath.Join(dir, "pump-health.json")
@@ -72,6 +74,8 @@ func TestTrainDeterministic(t *testing.T) {
 	assert.True(t, bytes.Equal(models[0], models[2]))
 }
 
+// A numeric label gives a regression (design.md, "Training"); --max-depth
+// caps the depth.
 func TestTrainRegression(t *testing.T) {
 	model := filepath.Join(t.TempDir(), "flow.json")
 	code, out, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "flow_m3h", "--ignore", "pump_id,state",
@@ -143,6 +147,8 @@ func TestTrainOutputsHook(t *testing.T) {
 	assert.NoError(t, err, "the model is written before the extra outputs run")
 }
 
+// The progress bar's drawing (sawmill's own format), and no bar off a
+// terminal.
 func TestProgressBar(t *testing.T) {
 	var b bytes.Buffer
 	p := &progressBar{w: &b, label: "training", unit: "trees", total: 4}

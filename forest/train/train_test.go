@@ -275,6 +275,8 @@ func TestMinLeaf(t *testing.T) {
 	}
 }
 
+// The OOB curve records the error after the first t trees at the points the
+// package comment lists (sawmill's own choice), ending at the final error.
 func TestCurve(t *testing.T) {
 	res, err := Train(pumpData(200, 1), Settings{Trees: 120, Seed: 1, SkipImportance: true})
 	require.NoError(t, err)
@@ -287,6 +289,8 @@ func TestCurve(t *testing.T) {
 	assert.Equal(t, res.OOB.Error, res.OOB.Curve[len(res.OOB.Curve)-1].Error)
 }
 
+// Out-of-range settings are refused with the setting named first
+// (style.md, "Errors and the CLI").
 func TestSettingsErrors(t *testing.T) {
 	d := pumpData(50, 1)
 	for _, c := range []struct {
@@ -307,6 +311,9 @@ func TestSettingsErrors(t *testing.T) {
 	}
 }
 
+// Training CSV: the label column, --ignore, features in file order, and
+// classes in sorted order, numerically for numeric labels (this package's
+// documented rule; design.md, "Training").
 func TestReadCSV(t *testing.T) {
 	in := "id,vibration_rms,bearing_temp_c,state\n" +
 		"p1,1.5,60,healthy\n" +
@@ -334,6 +341,8 @@ func TestReadCSV(t *testing.T) {
 	assert.Equal(t, []float64{2, 1, 0, 2}, d.Y)
 }
 
+// Every bad cell is named by file line and column (style.md, "Errors and
+// the CLI"; design.md, "The command line").
 func TestReadCSVErrors(t *testing.T) {
 	cases := []struct {
 		in   string
