@@ -3,6 +3,7 @@ module sawmill
 go 1.26.8
 
 require (
+	github.com/dave/jennifer v1.7.1
 	github.com/spf13/cobra v1.10.2
 	github.com/stretchr/testify v1.12.1
 )

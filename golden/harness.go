@@ -65,6 +65,7 @@ type Result struct {
 func Runners() []Runner {
 	return []Runner{
 		// one line per target runner, e.g. goRunner{},
+		goRunner{},
 	}
 }
 
