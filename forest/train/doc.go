@@ -27,6 +27,12 @@
 // Classes are the distinct labels in sorted order: by numeric value when
 // every label is a number, otherwise by byte-wise string order.
 //
+// Splits are searched on pre-sorted orders: every worker keeps, for the tree
+// it grows, one list of the in-bag rows per feature, sorted by that feature,
+// and partitions all of them at each split. That costs 4·p·n bytes per
+// worker and p·m steps per node of m rows, which is the fastest way for
+// tables of up to some hundreds of features.
+//
 // Randomness: tree i draws from its own generator seeded from (Seed, i)
 // alone, so the forest is the same, byte for byte, whatever the number of
 // threads. Out-of-bag results are accumulated in tree order for the same
