@@ -126,7 +126,10 @@ func (c *Check) Name() string {
 	if c.Variant != "" {
 		n += "/" + c.Variant
 	}
-	return n + " " + c.Layout
+	if c.Layout != "" {
+		n += " " + c.Layout
+	}
+	return n
 }
 
 // Row is a mismatching row shown in full.
@@ -240,7 +243,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 
 	for _, name := range missing {
-		ch := &Check{Target: name, Layout: "-", Status: NotRun, Reason: "no " + name + " runner in this build of sawmill"}
+		ch := &Check{Target: name, Status: NotRun, Reason: "no " + name + " runner in this build of sawmill"}
 		rep.Checks = append(rep.Checks, ch)
 		if o.Done != nil {
 			o.Done(ch)
@@ -250,7 +253,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 		r, restore := usePostgres(r, o.PostgresDSN)
 		variants, layouts := selectNames(r.Variants(), o.Variants), selectNames(r.Layouts(), o.Layouts)
 		if len(variants) == 0 || len(layouts) == 0 {
-			ch := &Check{Target: r.Name(), Layout: "-", Status: NotRun,
+			ch := &Check{Target: r.Name(), Status: NotRun,
 				Reason: fmt.Sprintf("none of the layouts and variants asked for: it has layouts %s and variants %s",
 					strings.Join(r.Layouts(), ", "), strings.Join(r.Variants(), ", "))}
 			rep.Checks = append(rep.Checks, ch)
@@ -291,7 +294,16 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 		}
 		restore()
 	}
+	slices.SortStableFunc(rep.Checks, func(a, b *Check) int { return targetRank(a.Target) - targetRank(b.Target) })
 	return rep, nil
+}
+
+// targetRank orders checks in a report: go, c, the SQL engines, then others.
+func targetRank(name string) int {
+	if i := slices.Index(append([]string{"go", "c"}, sqlEngines...), name); i >= 0 {
+		return i
+	}
+	return 100
 }
 
 func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows *forest.Rows, f *forest.Forest, want []float64, wantCls []int, tmp string) {

@@ -1,0 +1,301 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"sawmill/compile"
+	"sawmill/forest"
+	"sawmill/golden"
+)
+
+type verifyFlags struct {
+	data     string
+	targets  []string
+	layouts  []string
+	variants []string
+	dialects []string
+	postgres string
+	maxRows  int
+	probes   bool
+	require  bool
+	asJSON   bool
+}
+
+// verifyTamper, when set (by tests only), edits each compiled program before
+// it is emitted, planting a fault that verify must catch.
+var verifyTamper func(target, layout, variant string, p *compile.Program)
+
+func newVerifyCmd() *cobra.Command {
+	var fl verifyFlags
+	c := &cobra.Command{
+		Use:   "verify MODEL.json [--data ROWS.csv] [--target go,c,sql]",
+		Short: "Emit, build and run every target and compare each row with the model",
+		Long: `verify emits the model for each target, builds it with the real toolchain
+(the Go toolchain, the C compiler) or loads it into the engine (SQLite,
+DuckDB, PostgreSQL), scores every row, and holds each output against
+sawmill's reference interpreter: bit for bit where the target computes in
+double precision, within a stated bound where it cannot (C with --float).
+
+Rows come from --data, or are generated from the model itself: one row for
+every reachable leaf, and rows at every threshold, at its float64 and
+float32 neighbours and with the value missing, at most --max-rows of them.
+The coverage line says which share of the leaves and of the branch
+directions the rows exercised.
+
+Each target, variant and layout gets a line: rows checked, rows that agree,
+the largest absolute difference, predicted labels that differ, build and
+scoring time. The first row that disagrees is shown in full.
+
+Exit status: 0 when every check that ran agreed; 1 when a row disagreed or
+a target failed to emit, build or run. A target whose toolchain or engine
+is not on this machine is printed as "not run" with the reason and does not
+fail the run, unless --require is given.`,
+		Example: `  sawmill verify pump-health.json
+  sawmill verify pump-health.json --data readings.csv --target go,c
+  sawmill verify pump-health.json --target sql --dialect sqlite,postgres --postgres postgres://localhost/scratch
+  sawmill verify pump-health.json --target c --variant float --layout table --json`,
+		Args: exactArgs(1, "MODEL.json"),
+		RunE: func(c *cobra.Command, args []string) error { return runVerify(c, args[0], &fl) },
+	}
+	f := c.Flags()
+	f.StringVar(&fl.data, "data", "", "rows to check (CSV with a header naming the features); default: rows generated from the model")
+	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres); default all")
+	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless); default each target's own")
+	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
+	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres; default all")
+	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN)")
+	f.IntVar(&fl.maxRows, "max-rows", golden.DefaultMaxRows, "most rows to generate (0: no cap)")
+	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
+	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
+	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
+	return c
+}
+
+func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
+	if fl.maxRows < 0 {
+		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
+	}
+	f, err := readModel(modelPath)
+	if err != nil {
+		return err
+	}
+	var rows *forest.Rows
+	if fl.data != "" {
+		if rows, err = forest.ReadRowsFile(fl.data, f.Features, forest.RowOptions{}); err != nil {
+			return located(fl.data, err)
+		}
+	}
+	o := golden.VerifyOptions{
+		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
+		PostgresDSN: fl.postgres, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
+	}
+	if fl.maxRows == 0 {
+		o.MaxRows = -1
+	}
+	stderr := c.ErrOrStderr()
+	if isTerminal(stderr) {
+		o.Done = func(ch *golden.Check) { fmt.Fprintf(stderr, "verify: %s: %s\n", ch.Name(), ch.Status) }
+	}
+	rep, err := golden.Verify(context.Background(), f, rows, o)
+	if err != nil {
+		return usageError{fmt.Errorf("sawmill verify: %v\nhint: see 'sawmill verify -h'", err)}
+	}
+	out := c.OutOrStdout()
+	if fl.asJSON {
+		b, err := json.MarshalIndent(rep, "", "  ")
+		if err != nil {
+			return fmt.Errorf("BUG: verify: %v", err)
+		}
+		fmt.Fprintf(out, "%s\n", b)
+	} else {
+		printVerify(out, modelPath, fl.data, rep)
+	}
+	return verifyVerdict(rep, fl.data, fl.require)
+}
+
+// verifyVerdict is the command's error: nil when every check that ran
+// agreed (and, with require, every check ran).
+func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
+	var bad []string
+	for _, ch := range rep.Checks {
+		switch {
+		case ch.Status == golden.Differ:
+			bad = append(bad, fmt.Sprintf("%s differs at %s", ch.Name(), rowPlace(ch.First, dataPath)))
+		case ch.Status == golden.Failed:
+			bad = append(bad, fmt.Sprintf("%s failed: %s", ch.Name(), firstLine(ch.Reason)))
+		case ch.Status == golden.NotRun && require:
+			bad = append(bad, fmt.Sprintf("%s could not run (--require): %s", ch.Name(), firstLine(ch.Reason)))
+		}
+	}
+	if len(bad) == 0 {
+		return nil
+	}
+	return fmt.Errorf("verify: %d of %d checks did not pass:\n  %s", len(bad), len(rep.Checks), strings.Join(bad, "\n  "))
+}
+
+// rowPlace names a mismatching row for a person: the file and line for a
+// given row, else the generated row's origin, with its index.
+func rowPlace(r *golden.Row, dataPath string) string {
+	if r == nil {
+		return "no row (output count differs)"
+	}
+	if r.Line > 0 && dataPath != "" {
+		return fmt.Sprintf("%s:%d", dataPath, r.Line)
+	}
+	return fmt.Sprintf("%s (row %d)", r.Origin, r.Index)
+}
+
+func firstLine(s string) string {
+	if i := strings.IndexByte(s, '\n'); i >= 0 {
+		return s[:i] + " ..."
+	}
+	return s
+}
+
+func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
+	fmt.Fprintf(w, "model     %s (sha256 %s)\n", modelPath, shortHash(rep.Model))
+	switch {
+	case rep.Given > 0 && rep.LeafRows+rep.ThresholdRows > 0:
+		fmt.Fprintf(w, "rows      %d: %d from %s, %d generated leaf rows, %d threshold rows\n",
+			rep.Rows, rep.Given, dataPath, rep.LeafRows, rep.ThresholdRows)
+	case dataPath != "":
+		fmt.Fprintf(w, "rows      %d from %s\n", rep.Rows, dataPath)
+	default:
+		capped := ""
+		if rep.Capped {
+			capped = " (thinned to --max-rows)"
+		}
+		fmt.Fprintf(w, "rows      %d generated: %d leaf rows, %d threshold rows%s\n", rep.Rows, rep.LeafRows, rep.ThresholdRows, capped)
+	}
+	cv := rep.Coverage
+	fmt.Fprintf(w, "coverage  leaves %d of %d (%.1f%%), branch directions %d of %d (%.1f%%)\n\n",
+		cv.LeavesHit, cv.Leaves, 100*cv.LeafShare(), cv.BranchesHit, cv.Branches, 100*cv.BranchShare())
+
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	fmt.Fprintln(tw, "target\tlayout\tresult\trows\tagree\tmax |diff|\tlabels off\tbuild\tscore\tcompared")
+	for _, ch := range rep.Checks {
+		name := ch.Target
+		if ch.Variant != "" {
+			name += "/" + ch.Variant
+		}
+		layout := ch.Layout
+		if layout == "" {
+			layout = "-"
+		}
+		switch ch.Status {
+		case golden.NotRun, golden.Failed:
+			fmt.Fprintf(tw, "%s\t%s\t%s\n", name, layout, ch.Status)
+			continue
+		}
+		cmp := "bit for bit"
+		if !ch.Exact {
+			cmp = fmt.Sprintf("within %.3g", float64(ch.Bound))
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%s\t%d\t%s\t%s\t%s\n", name, layout, ch.Status, ch.Rows, ch.Matches,
+			diffString(float64(ch.MaxAbsDiff)), ch.LabelMismatches, seconds(time.Duration(ch.Build)), seconds(time.Duration(ch.Run)), cmp)
+	}
+	tw.Flush()
+
+	for _, ch := range rep.Checks {
+		switch ch.Status {
+		case golden.Failed:
+			fmt.Fprintf(w, "\n%s: failed: %s\n", ch.Name(), strings.TrimRight(ch.Reason, "\n"))
+		case golden.Differ:
+			printMismatch(w, ch, dataPath)
+		}
+	}
+	if rep.Count(golden.NotRun) > 0 {
+		fmt.Fprintln(w, "\nnot run (does not fail verify without --require):")
+		tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+		for _, ch := range rep.Checks {
+			if ch.Status == golden.NotRun {
+				fmt.Fprintf(tw, "  %s\t%s\n", ch.Name(), firstLine(ch.Reason))
+			}
+		}
+		tw.Flush()
+	}
+	ran := len(rep.Checks) - rep.Count(golden.NotRun)
+	fmt.Fprintf(w, "\n%d of %d checks ran; %d agree", ran, len(rep.Checks), rep.Count(golden.Agree))
+	if n := rep.Count(golden.Differ) + rep.Count(golden.Failed); n > 0 {
+		fmt.Fprintf(w, ", %d did not", n)
+	}
+	fmt.Fprintln(w)
+}
+
+func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
+	r := ch.First
+	fmt.Fprintf(w, "\n%s: first mismatch at %s\n", ch.Name(), rowPlace(r, dataPath))
+	if r == nil {
+		return
+	}
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	for _, v := range r.Values {
+		fmt.Fprintf(tw, "  %s\t%s\n", v.Name, cell(float64(v.Value)))
+	}
+	tw.Flush()
+	tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	vec := func(v []golden.Num) string {
+		s := make([]string, len(v))
+		for i, x := range v {
+			s[i] = cell(float64(x))
+		}
+		return strings.Join(s, "\t")
+	}
+	cls := func(c string) string {
+		if c == "" {
+			return ""
+		}
+		return "\tclass " + c
+	}
+	fmt.Fprintf(tw, "  want\t%s%s\n", vec(r.Want), cls(r.WantClass))
+	fmt.Fprintf(tw, "  got\t%s%s\n", vec(r.Got), cls(r.GotClass))
+	tw.Flush()
+	if r.Output >= 0 {
+		d := math.Abs(float64(r.Got[r.Output]) - float64(r.Want[r.Output]))
+		fmt.Fprintf(w, "  output %d differs by %s; %d of %d rows agree, %d labels differ\n", r.Output, diffString(d), ch.Matches, ch.Rows, ch.LabelMismatches)
+	} else {
+		fmt.Fprintf(w, "  the predicted class differs; %d of %d rows agree, %d labels differ\n", ch.Matches, ch.Rows, ch.LabelMismatches)
+	}
+}
+
+// cell prints a value as predict does, with missing shown as empty cells
+// are in CSV: "(missing)".
+func cell(v float64) string {
+	if math.IsNaN(v) {
+		return "(missing)"
+	}
+	return num(v)
+}
+
+func diffString(d float64) string {
+	if d == 0 {
+		return "0"
+	}
+	return fmt.Sprintf("%.3g", d)
+}
+
+func seconds(d time.Duration) string {
+	switch {
+	case d <= 0:
+		return "-"
+	case d < time.Second:
+		return fmt.Sprintf("%dms", d.Milliseconds())
+	}
+	return fmt.Sprintf("%.2fs", d.Seconds())
+}
+
+func shortHash(h string) string {
+	if len(h) > 12 {
+		return h[:12]
+	}
+	return h
+}
