@@ -19,6 +19,7 @@ var commands = []func() *cobra.Command{
 	newTrainCmd,
 	newPredictCmd,
 	newInspectCmd,
+	newCompileCmd,
 	newVerifyCmd,
 }
 

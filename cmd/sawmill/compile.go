@@ -1,0 +1,201 @@
+package main
+
+import (
+	"bufio"
+	"bytes"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+	"text/tabwriter"
+
+	"github.com/spf13/cobra"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/forest"
+)
+
+// target is one --target value: the compile options it needs and how it
+// turns a Program into files.
+type target struct {
+	name    string
+	options func(fl *compileFlags) compile.Options
+	emit    func(p *compile.Program, fl *compileFlags) ([]emit.File, error)
+}
+
+// allTargets lists every emitter the command line knows, each defined in its
+// target_*.go file; a new target adds one line here.
+func allTargets() []target {
+	return []target{
+		goTarget(),
+	}
+}
+
+func findTarget(name string) (target, bool) {
+	for _, t := range allTargets() {
+		if t.name == name {
+			return t, true
+		}
+	}
+	return target{}, false
+}
+
+type compileFlags struct {
+	target    string
+	out       string
+	layout    string
+	pkg       string
+	name      string
+	float     bool
+	dialect   string
+	table     string
+	keep      []string
+	view      string
+	sample    string
+	lossy     []string
+	dumpAfter string
+	verbose   bool
+	force     bool
+}
+
+func newCompileCmd() *cobra.Command {
+	fl := &compileFlags{}
+	c := &cobra.Command{
+		Use:   "compile MODEL.json --target go|c|sql -o DIR",
+		Short: "Emit dependency-free source code that scores like the model",
+		Long: `compile lowers the model to an if/else form, runs the exact passes (which
+never change an output), and emits source for one target into DIR:
+
+  go   a Go package: Predict, PredictClass, NumFeatures, FeatureNames, ...
+       and a model_test.go that checks it against the model's own answers
+  c    NAME.h and NAME.c, C99, no heap, no recursion
+  sql  one SELECT (or CREATE VIEW) over a table whose columns are the features
+
+Files are written through a temporary file and a rename. A file in DIR that
+sawmill did not generate is never overwritten (unless --force).`,
+		Example: `  sawmill compile pump-health.json --target go -o internal/pumpmodel --package pumpmodel
+  sawmill compile pump-health.json --target c --name pump -o firmware/model --float
+  sawmill compile pump-health.json --target sql --dialect postgres --table readings --keep pump_id -o sql/
+  sawmill compile pump-health.json --target go -o out -v --dump-after prune`,
+		Args: exactArgs(1, "MODEL.json"),
+		RunE: func(c *cobra.Command, args []string) error { return runCompile(c, args[0], fl) },
+	}
+	f := c.Flags()
+	f.StringVar(&fl.target, "target", "", "go, c or sql (required)")
+	f.StringVarP(&fl.out, "output", "o", "", "output folder (required; created if missing)")
+	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table or branchless (target-dependent)")
+	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
+	f.StringVar(&fl.name, "name", "model", "C: base name of NAME.h, NAME.c and the NAME_ prefix; SQL: file name")
+	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
+	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb or ansi")
+	f.StringVar(&fl.table, "table", "input", "SQL: the relation to read; its columns are named like the features")
+	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
+	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")
+	f.StringVar(&fl.sample, "sample", "", "Go: rows (CSV) to check in the emitted test besides rows built from leaves")
+	f.StringSliceVar(&fl.lossy, "lossy", nil, "lossy passes to run (changes outputs; verify measures by how much)")
+	f.StringVar(&fl.dumpAfter, "dump-after", "", "print the program's text form after this pass ('lower' for before any)")
+	f.BoolVarP(&fl.verbose, "verbose", "v", false, "print what each pass did")
+	f.BoolVar(&fl.force, "force", false, "overwrite files in DIR even if sawmill did not generate them")
+	return c
+}
+
+func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
+	if fl.target == "" {
+		return usageError{fmt.Errorf("compile: --target is required (%s)", targetNames())}
+	}
+	t, ok := findTarget(fl.target)
+	if !ok {
+		return usageError{fmt.Errorf("compile: unknown target %q (want %s)", fl.target, targetNames())}
+	}
+	if fl.out == "" {
+		return usageError{fmt.Errorf("compile: -o DIR is required")}
+	}
+	f, err := forest.ReadFile(modelPath)
+	if err != nil {
+		return err
+	}
+	o := t.options(fl)
+	o.Lossy = fl.lossy
+	if fl.dumpAfter != "" {
+		o.DumpAfter, o.Dump = fl.dumpAfter, c.OutOrStdout()
+	}
+	p, stats, err := compile.Compile(f, o)
+	if err != nil {
+		return fmt.Errorf("%s: %v", modelPath, err)
+	}
+	if fl.verbose {
+		printPassStats(c.ErrOrStderr(), stats)
+	}
+	files, err := t.emit(p, fl)
+	if err != nil {
+		return fmt.Errorf("%s: %v", modelPath, err)
+	}
+	if err := writeGenerated(fl.out, files, fl.force); err != nil {
+		return err
+	}
+	size := 0
+	for _, file := range files {
+		size += len(file.Data)
+	}
+	fmt.Fprintf(c.OutOrStdout(), "%s: %d trees, %d nodes after passes (%d before), %s into %s: %d files, %d bytes\n",
+		modelPath, len(p.Trees), p.NumNodes(), stats[0].NodesBefore, fl.target, fl.out, len(files), size)
+	return nil
+}
+
+func targetNames() string {
+	var names []string
+	for _, t := range allTargets() {
+		names = append(names, t.name)
+	}
+	return strings.Join(names, ", ")
+}
+
+func printPassStats(w io.Writer, stats []compile.Stat) {
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "pass\texact\tran\tnodes before\tnodes after\tleaves after\ttime\t")
+	for _, s := range stats {
+		fmt.Fprintf(tw, "%s\t%v\t%v\t%d\t%d\t%d\t%v\t\n", s.Pass, s.Exact, s.Ran, s.NodesBefore, s.NodesAfter, s.LeavesAfter, s.Duration.Round(1000))
+	}
+	tw.Flush()
+}
+
+// generatedMarker is in the first lines of every file sawmill emits; a file
+// without it is the user's and is not overwritten.
+func isGenerated(path string) (exists, generated bool) {
+	fh, err := os.Open(path)
+	if err != nil {
+		return false, false
+	}
+	defer fh.Close()
+	sc := bufio.NewScanner(io.LimitReader(fh, 4096))
+	for i := 0; i < 8 && sc.Scan(); i++ {
+		l := bytes.ToLower(sc.Bytes())
+		if bytes.Contains(l, []byte("sawmill")) && bytes.Contains(l, []byte("generated")) {
+			return true, true
+		}
+	}
+	return true, false
+}
+
+// writeGenerated writes every file atomically, after checking that none
+// would replace a file sawmill did not generate, so a refusal writes nothing.
+func writeGenerated(dir string, files []emit.File, force bool) error {
+	for _, f := range files {
+		path := filepath.Join(dir, f.Name)
+		if exists, gen := isGenerated(path); exists && !gen && !force {
+			return fmt.Errorf("%s: exists and was not generated by sawmill; not overwriting it\nhint: choose another -o folder, or pass --force", path)
+		}
+	}
+	for _, f := range files {
+		path := filepath.Join(dir, f.Name)
+		if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+			return err
+		}
+		if err := forest.WriteFileAtomic(path, f.Data, 0o644); err != nil {
+			return err
+		}
+	}
+	return nil
+}

@@ -1,0 +1,33 @@
+package main
+
+import (
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/emit/golang"
+	"sawmill/forest"
+)
+
+// goTarget emits a Go package through emit/golang.
+func goTarget() target {
+	return target{
+		name:    "go",
+		options: func(*compileFlags) compile.Options { return compile.Options{} },
+		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
+			o := golang.Options{Package: fl.pkg, Layout: fl.layout}
+			if fl.sample != "" {
+				names := make([]string, len(p.Features))
+				for i, f := range p.Features {
+					names[i] = f.Name
+				}
+				rows, err := forest.ReadRowsFile(fl.sample, names, forest.RowOptions{})
+				if err != nil {
+					return nil, err
+				}
+				for i := 0; i < rows.Len(); i++ {
+					o.Sample = append(o.Sample, rows.Row(i))
+				}
+			}
+			return golang.Emit(p, o)
+		},
+	}
+}
