@@ -152,7 +152,10 @@ func FuzzReadRows(f *testing.F) {
 		// for bit (a header naming each feature once).
 		uniq := map[string]bool{}
 		for _, s := range features {
-			if uniq[s] || strings.TrimSpace(s) != s || strings.ContainsAny(s, "\r") || s == "" && len(features) == 1 {
+			// Carriage returns in a quoted header cell read back as line
+			// feeds (encoding/csv), a lone empty name is an empty line, and
+			// a leading byte-order mark is dropped from the header.
+			if uniq[s] || strings.ContainsAny(s, "\r") || s == "" && len(features) == 1 || strings.HasPrefix(features[0], "\ufeff") {
 				return
 			}
 			uniq[s] = true

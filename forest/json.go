@@ -17,11 +17,23 @@ import (
 // told otherwise (ReadOptions.MaxBytes).
 const DefaultMaxFileBytes = 2 << 30
 
+// DefaultMaxNodes caps the node slots over all trees unless told otherwise
+// (ReadOptions.MaxNodes): about as many as a file of DefaultMaxFileBytes
+// can hold.
+const DefaultMaxNodes = 100_000_000
+
 // ReadOptions bounds what a reader accepts. Zero values mean the defaults.
 type ReadOptions struct {
 	MaxBytes int64 // largest file accepted; default DefaultMaxFileBytes
-	MaxNodes int64 // most node slots over all trees; default unlimited
+	MaxNodes int64 // most node slots over all trees; default DefaultMaxNodes
 }
+
+// valueBudget is how many value entries a file of n bytes may make a reader
+// hold. A value written in the file takes at least two bytes ("0,"), so a
+// file that gives every node its vector stays well within it; a file of many
+// short or empty vectors for a model of many outputs (each node slot holds a
+// full vector in memory) does not.
+func valueBudget(n int) int64 { return 4*int64(n) + 1<<20 }
 
 // ReadFile reads and validates a model file. Errors name the file first.
 func ReadFile(path string) (*Forest, error) {
@@ -85,6 +97,13 @@ type treeDoc struct {
 
 // Decode parses and validates a model document held in memory.
 func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
+	if o.MaxBytes > 0 && int64(len(data)) > o.MaxBytes {
+		return nil, fmt.Errorf("%s: file is larger than the limit of %d bytes\nhint: raise the limit if the model is meant to be this large", name, o.MaxBytes)
+	}
+	maxNodes := o.MaxNodes
+	if maxNodes <= 0 {
+		maxNodes = DefaultMaxNodes
+	}
 	var d fileDoc
 	if err := json.Unmarshal(data, &d); err != nil {
 		return nil, fmt.Errorf("%s: %s", name, describeJSONError(data, err))
@@ -139,7 +158,7 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 		k = 1 // the header check below reports the real problem
 	}
 	f.Trees = make([]Tree, len(d.Trees))
-	var nodes int64
+	var nodes, values int64
 	var wrongLen map[int]map[int]int // tree -> node -> length found
 	for ti, raw := range d.Trees {
 		var td treeDoc
@@ -149,8 +168,14 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 		}
 		d.Trees[ti] = nil // let the raw text go as soon as it is decoded
 		nodes += int64(len(td.Left))
-		if o.MaxNodes > 0 && nodes > o.MaxNodes {
-			p.Add("%s: tree %d: the model has more than %d nodes, the limit\nhint: raise the limit if the model is meant to be this large", name, ti, o.MaxNodes)
+		if nodes > maxNodes {
+			p.Add("%s: tree %d: the model has more than %d nodes, the limit\nhint: raise the limit if the model is meant to be this large", name, ti, maxNodes)
+			return nil, p.Err()
+		}
+		values += int64(len(td.Left)) * int64(k)
+		if values > valueBudget(len(data)) {
+			p.Add("%s: tree %d: %d node slots of %d outputs each would take %d MiB, far more than a file of %d bytes holds: most value vectors are missing or short\nhint: give every node a value vector of %d entries, as the format asks",
+				name, ti, len(td.Left), k, values*8>>20, len(data), k)
 			return nil, p.Err()
 		}
 		var wl map[int]int

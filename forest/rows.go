@@ -61,20 +61,36 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 		return nil, fmt.Errorf("%s: %s", name, csvError(err))
 	}
 	cols := make(map[string]int, len(header))
+	// exact holds the header cells as written, so that a name with leading
+	// or trailing spaces (the format allows any text) still finds its column.
+	exact := make(map[string]int, len(header))
 	var p Problems
+	twice := map[string]int{} // trimmed names that two cells share: the second cell
 	for i, h := range header {
-		h = strings.TrimSpace(h)
 		if i == 0 {
 			h = strings.TrimPrefix(h, "\ufeff") // a byte-order mark from spreadsheet exports
 		}
-		if j, dup := cols[h]; dup {
+		if j, dup := exact[h]; dup {
 			p.Add("%s:1: columns %d and %d are both named %q", name, j+1, i+1, h)
+		} else {
+			exact[h] = i
 		}
-		cols[h] = i
+		h = strings.TrimSpace(h)
+		if _, dup := cols[h]; dup {
+			twice[h] = i
+		} else {
+			cols[h] = i
+		}
 	}
 	idx := make([]int, len(features))
 	for i, f := range features {
-		c, ok := cols[f]
+		c, ok := exact[f]
+		if !ok {
+			c, ok = cols[f]
+			if j, dup := twice[f]; ok && dup {
+				p.Add("%s:1: columns %d and %d are both named %q once spaces are trimmed", name, c+1, j+1, f)
+			}
+		}
 		if !ok {
 			p.Add("%s:1: no column named %q, a feature of the model", name, f)
 		}

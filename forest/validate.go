@@ -3,6 +3,8 @@ package forest
 import (
 	"fmt"
 	"math"
+	"strconv"
+	"unicode/utf8"
 )
 
 // Validate checks every rule of the format; messages start with name. A Forest
@@ -39,7 +41,7 @@ func (f *Forest) validate(name string, wrongLen map[int]map[int]int) error {
 	seen := make(map[string]int, len(f.Features))
 	for i, s := range f.Features {
 		if j, dup := seen[s]; dup {
-			p.Add("%s: feature %d has the same name as feature %d: %q", name, i, j, s)
+			p.Add("%s: feature %d has the same name as feature %d: %s", name, i, j, quoteName(s))
 		} else {
 			seen[s] = i
 		}
@@ -51,7 +53,7 @@ func (f *Forest) validate(name string, wrongLen map[int]map[int]int) error {
 		cs := make(map[string]int, len(f.Classes))
 		for i, s := range f.Classes {
 			if j, dup := cs[s]; dup {
-				p.Add("%s: class %d has the same label as class %d: %q", name, i, j, s)
+				p.Add("%s: class %d has the same label as class %d: %s", name, i, j, quoteName(s))
 			} else {
 				cs[s] = i
 			}
@@ -147,4 +149,18 @@ func (t *Tree) check(name string, ti, nf, k int, wrongLen map[int]int, p *Proble
 		}
 	}
 	return stack
+}
+
+// quoteName quotes a name for a message, cutting a long one short and
+// giving its length, so a name of a megabyte does not fill the screen.
+func quoteName(s string) string {
+	const keep = 64
+	if len(s) <= keep {
+		return strconv.Quote(s)
+	}
+	cut := keep
+	for cut > 0 && !utf8.RuneStart(s[cut]) {
+		cut--
+	}
+	return fmt.Sprintf("%s… (%d bytes)", strconv.Quote(s[:cut]), len(s))
 }

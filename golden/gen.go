@@ -54,8 +54,9 @@ func (o GenOptions) withDefaults() GenOptions {
 // sanitising and quoting: quotes and backslashes, comment markers, keywords
 // of Go, C and SQL, leading digits, names that collide once non-identifier
 // characters are replaced, non-ASCII, and the empty string (the format
-// requires names to be unique, not non-empty). Leading and trailing
-// whitespace and carriage returns are left out: CSV headers lose them.
+// requires names to be unique, not non-empty), names with leading or
+// trailing spaces, and names too long for some engines' identifiers.
+// Carriage returns are left out: encoding/csv reads a quoted "\r\n" as "\n".
 var hostileNames = []string{
 	"a-b", "a_b", "a b", "a.b", "a__b", "_a_b", "a_b_2", "A_B",
 	"'", `"`, "`", `\`, `\\`, `a\nb`, "a\nb", "a\tb", `'; DROP TABLE t; --`, `x" OR "1"="1`,
@@ -66,7 +67,10 @@ var hostileNames = []string{
 	"x", "out", "Predict", "PredictClass", "NumFeatures", "main", "_", "__", "f0", "f1", "c0",
 	"0", "1", "9lives", "1e5", "-1", "+", "0x10", "NaN", "inf", "-inf",
 	"é", "e\u0301", "Ω", "ñandú", "温度", "🌡", "\u200b", "\u00a0x", "x\u00a0y", "\u202eabc",
-	"", "a,b", "a;b", "a\"\"b", "a'b", "id",
+	"", "a,b", "a;b", "a\"\"b", "a'b", "id", " a", "a ", "\ta", "a\t", " ",
+	// 64 bytes each, equal in their first 63: PostgreSQL keeps 63 bytes of
+	// an identifier (NAMEDATALEN 64, from memory).
+	strings.Repeat("n", 63) + "1", strings.Repeat("n", 63) + "2",
 }
 
 // Shapes a tree can take.
@@ -163,7 +167,7 @@ func (g *gen) names(n int, plain string) []string {
 		default:
 			s = pick(g.rng, hostileNames...)
 		}
-		if seen[s] || strings.TrimSpace(s) != s {
+		if seen[s] {
 			continue
 		}
 		seen[s] = true
