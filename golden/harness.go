@@ -66,6 +66,9 @@ func Runners() []Runner {
 	return []Runner{
 		// one line per target runner, e.g. goRunner{},
 		goRunner{},
+		sqliteRunner{sqlRunner{"sqlite"}},
+		sqlRunner{"duckdb"},
+		sqlRunner{"postgres"},
 	}
 }
 

@@ -1,0 +1,347 @@
+package sql
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+	"unicode/utf8"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/forest"
+)
+
+// Dialect is the SQL engine the statement is written for.
+type Dialect string
+
+const (
+	SQLite   Dialect = "sqlite"
+	Postgres Dialect = "postgres"
+	DuckDB   Dialect = "duckdb"
+	ANSI     Dialect = "ansi" // ISO/IEC 9075:2016, no engine's extensions
+)
+
+// Dialects lists every dialect, in the order help texts show them.
+var Dialects = []Dialect{SQLite, Postgres, DuckDB, ANSI}
+
+// ParseDialect returns the dialect named s.
+func ParseDialect(s string) (Dialect, error) {
+	for _, d := range Dialects {
+		if string(d) == s {
+			return d, nil
+		}
+	}
+	return "", fmt.Errorf("unknown SQL dialect %q\nhint: use one of sqlite, postgres, duckdb, ansi", s)
+}
+
+// Options controls the statement.
+type Options struct {
+	Dialect Dialect // "" means ANSI
+	// Table is the relation the statement reads, one column per feature
+	// named exactly like the feature; "" means "input". Schema, when set,
+	// qualifies it. Both are quoted as identifiers, whatever they hold.
+	Table, Schema string
+	// Keep names columns of Table passed through to the result, first and
+	// in this order.
+	Keep []string
+	// View, when set, makes the statement CREATE VIEW View AS ... .
+	View string
+	// Layout is Auto (""), Nested or Table; see the package doc.
+	Layout string
+	// MaxNest bounds how deep CASE expressions nest; 0 means the dialect's
+	// default (DefaultMaxNest). Lower it for engines with smaller parser
+	// stacks, e.g. 15 for the SQLite 3.40 command-line shell.
+	MaxNest int
+	// TreesPerStage is how many trees one sub-query adds to the running
+	// sums; 0 means 100.
+	TreesPerStage int
+	// Comments forces node-id comments on (1) or off (-1); 0 writes them
+	// for programs of at most 5,000 nodes.
+	Comments int
+	// Columns, when set, names the table column of each feature (one entry
+	// per feature, in model order) instead of the feature's own name: for
+	// models whose names no table can hold (empty, or equal up to case
+	// where the engine folds it).
+	Columns []string
+	// Outputs, when set, names the output columns instead of OutputNames.
+	Outputs []string
+}
+
+// ErrNames is wrapped by every error about a name the dialect cannot use
+// as an identifier; Columns and Outputs are the way around it.
+var ErrNames = errors.New("name not usable in SQL")
+
+// DefaultMaxNest is the CASE nesting each dialect gets by default, well
+// inside what was measured (see the package doc).
+var DefaultMaxNest = map[Dialect]int{SQLite: 100, Postgres: 200, DuckDB: 200, ANSI: 100}
+
+// FileName is the name of the one file Emit returns.
+const FileName = "score.sql"
+
+// Emit writes p as one SQL statement for o.Dialect.
+func Emit(p *compile.Program, o Options) ([]emit.File, error) {
+	g, err := newGen(p, o)
+	if err != nil {
+		return nil, err
+	}
+	g.statement()
+	return []emit.File{{Name: FileName, Data: g.out.Bytes()}}, nil
+}
+
+// Layout returns the layout Emit uses for p under o (resolving Auto).
+func Layout(p *compile.Program, o Options) (string, error) {
+	g, err := newGen(p, o)
+	if err != nil {
+		return "", err
+	}
+	return g.layout, nil
+}
+
+type gen struct {
+	p        *compile.Program
+	d        Dialect
+	o        Options
+	layout   string
+	nest     int // CASE nesting budget
+	chunk    int // trees per accumulation stage
+	comments bool
+	out      bytes.Buffer
+
+	used   []int    // used feature indices
+	cols   []string // table column per feature
+	outs   []string // output column names
+	prefix string   // CTE name prefix
+	ctes   []string // CTE texts so far
+	last   string   // name of the last CTE
+	stage  int
+	// per tree: preorder depth of every node, and leaf ordinals
+	depth [][]int32
+	ord   [][]int32
+}
+
+func newGen(p *compile.Program, o Options) (*gen, error) {
+	switch p.Compare {
+	case compile.Double:
+	case compile.Single:
+		return nil, fmt.Errorf("sql: the program was compiled for float32 inputs (SingleInputs), but SQL engines compare doubles\nhint: compile without SingleInputs")
+	default:
+		return nil, fmt.Errorf("BUG: sql.Emit: program comparison is %v; the float32 pass must run first", p.Compare)
+	}
+	if p.Combine != forest.Sum && p.Combine != forest.Average {
+		return nil, fmt.Errorf("BUG: sql.Emit: combine %q reached an emitter", p.Combine)
+	}
+	g := &gen{p: p, o: o, d: o.Dialect}
+	if g.d == "" {
+		g.d = ANSI
+	}
+	if _, err := ParseDialect(string(g.d)); err != nil {
+		return nil, err
+	}
+	if g.o.Table == "" {
+		g.o.Table = "input"
+	}
+	g.nest = o.MaxNest
+	if g.nest == 0 {
+		g.nest = DefaultMaxNest[g.d]
+	}
+	if g.nest < 2 {
+		return nil, fmt.Errorf("sql: MaxNest %d is too small: the table layout needs at least 2", g.nest)
+	}
+	g.chunk = o.TreesPerStage
+	if g.chunk <= 0 {
+		g.chunk = 100
+	}
+	switch o.Comments {
+	case 0:
+		g.comments = p.NumNodes() <= 5000
+	default:
+		g.comments = o.Comments > 0
+	}
+	if err := g.checkNames(); err != nil {
+		return nil, err
+	}
+	for ti := range p.Trees {
+		t := &p.Trees[ti]
+		for i := range t.Nodes {
+			n := &t.Nodes[i]
+			for _, v := range n.Value {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return nil, fmt.Errorf("sql: tree %d, node %d: leaf value %v is not a finite number, which SQL cannot spell", t.Source, n.ID, v)
+				}
+			}
+		}
+	}
+	for _, v := range p.BaseScore {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil, fmt.Errorf("sql: base score %v is not a finite number, which SQL cannot spell", v)
+		}
+	}
+	g.used = p.UsedFeatures()
+	g.depth = make([][]int32, len(p.Trees))
+	g.ord = make([][]int32, len(p.Trees))
+	maxDepth := 0
+	for ti := range p.Trees {
+		g.depth[ti], g.ord[ti] = treeInfo(&p.Trees[ti])
+		maxDepth = max(maxDepth, p.Trees[ti].Depth())
+	}
+	switch o.Layout {
+	case "", emit.Auto:
+		g.layout = g.auto(maxDepth)
+	case emit.Nested:
+		if maxDepth > g.nest {
+			for ti := range p.Trees {
+				if d := p.Trees[ti].Depth(); d > g.nest {
+					return nil, fmt.Errorf("sql: tree %d is %d splits deep, and the nested layout nests CASE at most %d deep for %s\nhint: use the table or auto layout", p.Trees[ti].Source, d, g.nest, g.d)
+				}
+			}
+		}
+		g.layout = emit.Nested
+	case emit.Table:
+		g.layout = emit.Table
+	default:
+		return nil, fmt.Errorf("sql: unknown layout %q\nhint: use auto, nested or table", o.Layout)
+	}
+	return g, nil
+}
+
+// auto picks the layout: nested while every tree fits the nesting budget
+// and the model has at most two outputs; table otherwise (deep trees, or
+// multi-class models, where nested would repeat each tree once per class).
+func (g *gen) auto(maxDepth int) string {
+	if maxDepth > g.nest || g.p.NumOutputs > 2 {
+		return emit.Table
+	}
+	return emit.Nested
+}
+
+// checkNames validates every name that reaches the statement and the
+// result's column names, which must be distinct as the dialect compares
+// identifiers. Problems with names wrap ErrNames.
+func (g *gen) checkNames() error {
+	p := g.p
+	g.cols = make([]string, len(p.Features))
+	for i, f := range p.Features {
+		g.cols[i] = f.Name
+	}
+	if g.o.Columns != nil {
+		if len(g.o.Columns) != len(p.Features) {
+			return fmt.Errorf("sql: %d column names for %d features", len(g.o.Columns), len(p.Features))
+		}
+		copy(g.cols, g.o.Columns)
+	}
+	g.outs = OutputNames(p)
+	if g.o.Outputs != nil {
+		if len(g.o.Outputs) != p.NumOutputs {
+			return fmt.Errorf("sql: %d output names for %d outputs", len(g.o.Outputs), p.NumOutputs)
+		}
+		g.outs = slices.Clone(g.o.Outputs)
+	}
+	bad := func(err error) error { return fmt.Errorf("sql: %w: %v", ErrNames, err) }
+	for _, c := range p.Classes {
+		if strings.IndexByte(c, 0) >= 0 || !utf8.ValidString(c) {
+			if err := checkText("class label", c); err != nil {
+				return bad(err)
+			}
+		}
+	}
+	for _, k := range g.o.Keep {
+		if err := checkText("kept column", k); err != nil {
+			return bad(err)
+		}
+	}
+	if err := checkText("table", g.o.Table); err != nil {
+		return bad(err)
+	}
+	if g.o.Schema != "" {
+		if err := checkText("schema", g.o.Schema); err != nil {
+			return bad(err)
+		}
+	}
+	if g.o.View != "" {
+		if err := checkText("view", g.o.View); err != nil {
+			return bad(err)
+		}
+	}
+	seen := map[string]string{}
+	for _, i := range p.UsedFeatures() {
+		n := g.cols[i]
+		if err := checkText("feature column", n); err != nil {
+			return bad(err)
+		}
+		f := g.d.foldName(n)
+		if prev, ok := seen[f]; ok {
+			return bad(fmt.Errorf("features %q and %q name the same column in %s\nhint: rename one of them in the model, or name the columns (Columns)", prev, n, g.d))
+		}
+		seen[f] = n
+	}
+	seen = map[string]string{}
+	for _, c := range g.resultColumns() {
+		if err := checkText("result column", c); err != nil {
+			return bad(err)
+		}
+		f := g.d.foldName(c)
+		if prev, ok := seen[f]; ok {
+			return bad(fmt.Errorf("result columns %q and %q clash in %s (result: kept columns, then outputs, then class)\nhint: keep other columns, relabel the classes, or name the outputs (Outputs)", prev, c, g.d))
+		}
+		seen[f] = c
+	}
+	g.prefix = "sawmill_"
+	for strings.HasPrefix(g.d.foldName(g.o.Table), g.d.foldName(g.prefix)) {
+		g.prefix = "x" + g.prefix
+	}
+	return nil
+}
+
+// resultColumns names the result's columns in order.
+func (g *gen) resultColumns() []string {
+	cols := slices.Clone(g.o.Keep)
+	cols = append(cols, g.outs...)
+	if g.p.IsClassifier() {
+		cols = append(cols, "class")
+	}
+	return cols
+}
+
+// OutputNames names the output columns: the class labels for a classifier
+// (for one logistic output, p(class 1), the label of class 1), "prediction"
+// for one regression output, "prediction_<j>" for several.
+func OutputNames(p *compile.Program) []string {
+	if p.IsClassifier() {
+		if p.NumOutputs == 1 {
+			return []string{p.Classes[1]}
+		}
+		return slices.Clone(p.Classes[:p.NumOutputs])
+	}
+	if p.NumOutputs == 1 {
+		return []string{"prediction"}
+	}
+	var out []string
+	for j := 0; j < p.NumOutputs; j++ {
+		out = append(out, "prediction_"+strconv.Itoa(j))
+	}
+	return out
+}
+
+// treeInfo returns each node's depth and each leaf's ordinal (its rank
+// among the tree's leaves in preorder; -1 at splits).
+func treeInfo(t *compile.Tree) (depth, ord []int32) {
+	depth = make([]int32, len(t.Nodes))
+	ord = make([]int32, len(t.Nodes))
+	k := int32(0)
+	for i := range t.Nodes {
+		n := &t.Nodes[i]
+		if n.IsLeaf() {
+			ord[i] = k
+			k++
+			continue
+		}
+		ord[i] = -1
+		depth[n.Left] = depth[i] + 1
+		depth[n.Right] = depth[i] + 1
+	}
+	return depth, ord
+}

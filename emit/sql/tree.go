@@ -1,0 +1,251 @@
+package sql
+
+import (
+	"fmt"
+	"strconv"
+	"strings"
+
+	"sawmill/compile"
+)
+
+// maxIndent caps indentation, so that a 300-deep tree does not spend most
+// of its bytes on spaces.
+const maxIndent = 24
+
+func newline(b *strings.Builder, indent int) {
+	b.WriteByte('\n')
+	b.WriteString(strings.Repeat("  ", min(indent, maxIndent)))
+}
+
+// cond is the test that sends a row to the first branch written, and which
+// child that is. A NULL makes every comparison unknown, and CASE takes the
+// ELSE branch on unknown (ISO/IEC 9075, <case expression>), so a split
+// whose missing values go right is written "x <= t" (left first) and one
+// whose missing values go left is written "x > t" (right first).
+func (g *gen) cond(n *compile.Node) (test string, first, second int32) {
+	x := featCol(n.Feature)
+	t := g.d.num(n.Threshold)
+	switch {
+	case !n.MissingLeft && n.Op == compile.LE:
+		return x + " <= " + t, n.Left, n.Right
+	case !n.MissingLeft:
+		return x + " < " + t, n.Left, n.Right
+	case n.Op == compile.LE:
+		return x + " > " + t, n.Right, n.Left
+	default:
+		return x + " >= " + t, n.Right, n.Left
+	}
+}
+
+// writeTree writes the subtree of tree ti under root as a nested CASE. A
+// leaf, or a split at depth cut (when cut >= 0), is written as code(node).
+// The first line starts where b is; later lines are indented from indent.
+// It walks with an explicit stack, so any depth is fine; nothing trails the
+// last line.
+func (g *gen) writeTree(b *strings.Builder, ti int, root, cut int32, code func(int32) string, indent int) {
+	t := &g.p.Trees[ti]
+	depth := g.depth[ti]
+	terminal := func(i int32) bool { return t.Nodes[i].IsLeaf() || cut >= 0 && depth[i] == cut }
+	comment := func(i int32) string {
+		if !g.comments {
+			return ""
+		}
+		if t.Nodes[i].IsLeaf() {
+			return fmt.Sprintf(" -- leaf %d", t.Nodes[i].ID)
+		}
+		return fmt.Sprintf(" -- to node %d", t.Nodes[i].ID)
+	}
+	if terminal(root) {
+		b.WriteString(code(root))
+		return
+	}
+	type frame struct {
+		node   int32
+		indent int
+		state  uint8 // 0: write the CASE line; 1: write ELSE; 2: write END
+	}
+	stack := []frame{{root, indent, 0}}
+	startLine := false // whether the next write starts a new line
+	for len(stack) > 0 {
+		f := &stack[len(stack)-1]
+		n := &t.Nodes[f.node]
+		test, first, second := g.cond(n)
+		switch f.state {
+		case 0:
+			if startLine {
+				newline(b, f.indent)
+			}
+			b.WriteString("CASE WHEN " + test + " THEN")
+			f.state = 1
+			if terminal(first) {
+				b.WriteString(" " + code(first))
+				if g.comments {
+					fmt.Fprintf(b, " -- node %d%s", n.ID, strings.Replace(comment(first), " --", ",", 1))
+				}
+				startLine = true
+				continue
+			}
+			if g.comments {
+				fmt.Fprintf(b, " -- node %d", n.ID)
+			}
+			startLine = true
+			stack = append(stack, frame{first, f.indent + 1, 0})
+		case 1:
+			newline(b, f.indent)
+			b.WriteString("ELSE")
+			if terminal(second) {
+				b.WriteString(" " + code(second) + comment(second))
+				newline(b, f.indent)
+				b.WriteString("END")
+				stack = stack[:len(stack)-1]
+				continue
+			}
+			f.state = 2
+			startLine = true
+			stack = append(stack, frame{second, f.indent + 1, 0})
+		case 2:
+			newline(b, f.indent)
+			b.WriteString("END")
+			stack = stack[:len(stack)-1]
+		}
+	}
+}
+
+// The table layout: trees become leaf numbers first. A descent stage
+// computes, per tree, an integer state: -(k+1) once the row has reached the
+// tree's k-th leaf (in preorder), or the index of the node it has reached
+// when the tree is deeper than one stage may nest. Stage 0 walks from the
+// root down to depth cut(1) = MaxNest; every later stage s walks from the
+// splits at depth cut(s), picked by a binary search on the state, down
+// D = MaxNest/2 more levels, so no CASE nests deeper than MaxNest.
+
+func (g *gen) cut(s int) int32 {
+	if s == 0 {
+		return 0
+	}
+	d := max(1, g.nest/2)
+	return int32(g.nest + (s-1)*d)
+}
+
+// descentStages is how many descent stages tree ti needs.
+func (g *gen) descentStages(ti int) int {
+	deepest := g.p.Trees[ti].Depth() - 1 // depth of the deepest split
+	s := 1
+	for deepest >= 0 && g.cut(s) <= int32(deepest) {
+		s++
+	}
+	return s
+}
+
+// stateCode writes a node's state: a leaf's -(ordinal+1), a split's index.
+func (g *gen) stateCode(ti int) func(int32) string {
+	t := &g.p.Trees[ti]
+	ord := g.ord[ti]
+	return func(i int32) string {
+		if t.Nodes[i].IsLeaf() {
+			return strconv.Itoa(int(-(ord[i] + 1)))
+		}
+		return strconv.Itoa(int(i))
+	}
+}
+
+// writeDispatch writes descent stage s (>= 1) of tree ti: rows whose state
+// is one of the splits at depth cut(s) walk on from it; every other state
+// (a leaf reached earlier) stays as it is.
+func (g *gen) writeDispatch(b *strings.Builder, ti, s int) {
+	t := &g.p.Trees[ti]
+	at := g.cut(s)
+	var front []int32
+	for i := range t.Nodes {
+		if !t.Nodes[i].IsLeaf() && g.depth[ti][i] == at {
+			front = append(front, int32(i))
+		}
+	}
+	if len(front) == 0 {
+		panic(fmt.Sprintf("BUG: sql: tree %d has no splits at depth %d in stage %d", ti, at, s))
+	}
+	levels := g.nest - max(1, g.nest/2) - 1 // binary-search levels left
+	n := nodeCol(ti)
+	next := g.cut(s + 1)
+	code := g.stateCode(ti)
+	var rec func(lo, hi, levels, indent int)
+	rec = func(lo, hi, levels, indent int) { // recursion depth <= log2(len(front))
+		switch {
+		case hi-lo == 1:
+			fmt.Fprintf(b, "CASE WHEN %s = %d THEN", n, front[lo])
+			newline(b, indent+1)
+			g.writeTree(b, ti, front[lo], next, code, indent+1)
+			newline(b, indent)
+			b.WriteString("ELSE " + n + " END")
+		case levels == 0:
+			b.WriteString("CASE " + n)
+			for _, f := range front[lo:hi] {
+				newline(b, indent)
+				fmt.Fprintf(b, "WHEN %d THEN", f)
+				newline(b, indent+1)
+				g.writeTree(b, ti, f, next, code, indent+1)
+			}
+			newline(b, indent)
+			b.WriteString("ELSE " + n + " END")
+		default:
+			mid := (lo + hi) / 2
+			fmt.Fprintf(b, "CASE WHEN %s < %d THEN", n, front[mid])
+			newline(b, indent+1)
+			rec(lo, mid, levels-1, indent+1)
+			newline(b, indent)
+			b.WriteString("ELSE")
+			newline(b, indent+1)
+			rec(mid, hi, levels-1, indent+1)
+			newline(b, indent)
+			b.WriteString("END")
+		}
+	}
+	rec(0, len(front), levels, 2)
+}
+
+// writeLookup writes output j of tree ti's leaf from its state column: a
+// binary search on the leaf number, nesting at most MaxNest deep (then a
+// simple CASE over what is left).
+func (g *gen) writeLookup(b *strings.Builder, ti, j int) {
+	t := &g.p.Trees[ti]
+	var leaves []int32
+	for i := range t.Nodes {
+		if t.Nodes[i].IsLeaf() {
+			leaves = append(leaves, int32(i))
+		}
+	}
+	n := nodeCol(ti)
+	val := func(k int) string { return g.d.num(t.Nodes[leaves[k]].Value[j]) }
+	var rec func(lo, hi, levels, indent int)
+	rec = func(lo, hi, levels, indent int) { // recursion depth <= log2(len(leaves))
+		switch {
+		case hi-lo == 1:
+			b.WriteString(val(lo))
+		case hi-lo == 2 && levels > 0:
+			fmt.Fprintf(b, "CASE WHEN %s >= %d THEN %s ELSE %s END", n, -(lo + 1), val(lo), val(lo+1))
+		case levels == 0:
+			b.WriteString("CASE " + n)
+			for k := lo; k < hi-1; k++ {
+				newline(b, indent+1)
+				fmt.Fprintf(b, "WHEN %d THEN %s", -(k + 1), val(k))
+			}
+			newline(b, indent+1)
+			b.WriteString("ELSE " + val(hi-1))
+			newline(b, indent)
+			b.WriteString("END")
+		default:
+			mid := (lo + hi) / 2
+			// leaf k has state -(k+1): leaves below mid have state >= -mid.
+			fmt.Fprintf(b, "CASE WHEN %s >= %d THEN", n, -mid)
+			newline(b, indent+1)
+			rec(lo, mid, levels-1, indent+1)
+			newline(b, indent)
+			b.WriteString("ELSE")
+			newline(b, indent+1)
+			rec(mid, hi, levels-1, indent+1)
+			newline(b, indent)
+			b.WriteString("END")
+		}
+	}
+	rec(0, len(leaves), g.nest, 2)
+}
