@@ -32,7 +32,7 @@ type goRunner struct {
 
 func (goRunner) Name() string { return "go" }
 
-func (goRunner) Layouts() []string { return []string{emit.Nested} }
+func (goRunner) Layouts() []string { return []string{emit.Nested, emit.Table} }
 
 func (goRunner) Variants() []string { return []string{""} }
 

@@ -94,7 +94,7 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	default:
 		return nil, fmt.Errorf("unknown layout %q\nhint: use auto, nested, table or branchless", o.Layout)
 	}
-	if layout != emit.Nested {
+	if layout == emit.Branchless {
 		return nil, fmt.Errorf("layout %s: not available yet in the Go target\nhint: use nested", layout)
 	}
 	for i, r := range o.Sample {
@@ -180,6 +180,7 @@ type gen struct {
 	k        int  // outputs
 	comments bool // one comment per node
 	usesNeg0 bool // some literal is -0: declare negZero
+	tab      *tableData
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {

@@ -5,8 +5,6 @@ import (
 	"sawmill/compile"
 )
 
-func (g *gen) table() []jen.Code                 { return nil }
-func (g *gen) tablePredictBody() []jen.Code      { return nil }
 func (g *gen) branchless() []jen.Code            { return nil }
 func (g *gen) branchlessPredictBody() []jen.Code { return nil }
 func useBranchless(p *compile.Program) bool      { return false }
