@@ -1,0 +1,84 @@
+package cemit
+
+import (
+	"math"
+
+	"sawmill/compile"
+	"sawmill/forest"
+)
+
+// ErrorBound bounds |C output - interpreter output| for every row, 0 when
+// the emitted code is bit-exact. In float mode the interpreter is understood
+// on the inputs rounded to float, which is what the float API receives.
+//
+// Double mode: comparisons, additions and the division are the
+// interpreter's own IEEE operations, so without a transform the outputs are
+// identical. A transform calls the C library's exp where the interpreter
+// calls Go's math.Exp; both are within 1 ulp of e^z (glibc's documented
+// bound; Go's math.Exp "error < 1 ulp"), so the two results are within 2 ulp,
+// a relative 2^-51. For the logistic, out = 1/(1+e) or e/(1+e) moves by at
+// most that relative error of e, plus one rounding of 1+e and of the
+// division each (2^-53 each, out being at most 1): under 2^-50. For softmax,
+// out_j = e_j/s with s the sum of K terms: the relative error of e_j, of s
+// (2^-51 from its terms plus K roundings of 2^-53) and of the division add
+// up to under (2K+8)·2^-52. Class labels must still agree except where the
+// top two outputs are within twice the bound.
+//
+// Float mode, with u = 2^-24 (half an ulp of float, IEEE 754 round to
+// nearest) and gamma(n) = n·u/(1-n·u), the bound on n rounding errors in
+// recursive summation (Higham, Accuracy and Stability of Numerical
+// Algorithms, 2nd ed., section 4.2): leaves and base scores are rounded to
+// float once each and the T+1 terms are summed in float, so with M the sum
+// over trees of each tree's largest |leaf| and b the largest |base|,
+//
+//	sum:     |z~ - z| <= gamma(T+2)·(M + b)
+//	average: |z~ - z| <= gamma(T+3)·(M/T + b)   (the division and the base
+//	                                            addition round once more)
+//
+// The logistic's slope is at most 1/4, so its output moves by at most a
+// quarter of that, plus 8u for expf (2 ulp) and two roundings; a softmax
+// output moves by at most 2·p(1-p)·max|dz| <= half of it, plus (K+12)u for
+// the K expfs, the sum and the division. The result is doubled, for the
+// second-order terms and the interpreter's own float64 rounding.
+func ErrorBound(p *compile.Program, float bool) float64 {
+	k := float64(p.NumOutputs)
+	if !float {
+		switch p.Transform {
+		case forest.Logistic:
+			return 0x1p-50
+		case forest.Softmax:
+			return (2*k + 8) * 0x1p-52
+		}
+		return 0
+	}
+	const u = 0x1p-24
+	gamma := func(n float64) float64 { return n * u / (1 - n*u) }
+	m := 0.0
+	for ti := range p.Trees {
+		big := 0.0
+		for i := range p.Trees[ti].Nodes {
+			for _, v := range p.Trees[ti].Nodes[i].Value {
+				big = math.Max(big, math.Abs(v))
+			}
+		}
+		m += big
+	}
+	b := 0.0
+	for _, v := range p.BaseScore {
+		b = math.Max(b, math.Abs(v))
+	}
+	T := float64(len(p.Trees))
+	var e float64
+	if p.Combine == forest.Sum {
+		e = gamma(T+2) * (m + b)
+	} else {
+		e = gamma(T+3) * (m/T + b)
+	}
+	switch p.Transform {
+	case forest.Logistic:
+		e = e/4 + 8*u
+	case forest.Softmax:
+		e = e/2 + (k+12)*u
+	}
+	return 2 * e
+}

@@ -1,0 +1,732 @@
+// Package cemit emits a compiled forest as C99: NAME.h, declaring the API and
+// documenting the model, and NAME.c, the scorer. The code needs no heap, no
+// recursion and nothing beyond the C standard library (math.h only when a
+// transform needs exp); every table is static const.
+//
+// Two arithmetic modes exist. Double (the default) takes and returns double
+// and is bit-exact with the forest interpreter: the same comparisons, the same
+// additions in the same order, the average divided by the number of trees
+// (not multiplied by its inverse), and exp from libm in the transforms (which
+// may differ from Go's math.Exp in the last bit). Float (Options.Float) takes
+// and returns float for FPUs without double: its program must be compiled with
+// compile.Options{SingleInputs: true}, so every threshold is a float32 value
+// and the comparisons are exact for float inputs; leaves are rounded to float
+// and accumulated in float, and the transforms use expf.
+//
+// Layouts (Options.Layout):
+//
+//   - nested: one static function per tree, if/else to depth 100 and a flat
+//     goto form for deeper trees (C guarantees only 127 nesting levels);
+//   - table: static const arrays walked by one loop. Splits are packed words
+//     in preorder, one per split, with the left child implicit (the next
+//     word) and only the size of the left subtree stored; leaves take no word
+//     (their preorder position is counted on the way down) and index a table
+//     of the distinct leaf vectors; thresholds come from per-feature tables
+//     of the distinct values;
+//   - auto: nested up to AutoNestedNodes nodes, else table.
+package cemit
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/forest"
+)
+
+// Options controls the emitted C.
+type Options struct {
+	// Name prefixes the files (NAME.h, NAME.c) and every external symbol; a
+	// C identifier of ASCII letters, digits and single underscores, starting
+	// with a letter. Default "model".
+	Name string
+	// Layout is emit.Auto (the default when empty), emit.Nested or
+	// emit.Table.
+	Layout string
+	// Float makes the API and the arithmetic float instead of double. The
+	// program must have been compiled with compile.Options{SingleInputs: true}.
+	Float bool
+}
+
+// AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
+// gcc -O2 needs about 0.2 ms per node of nested code in one translation unit
+// (limits.md, section 4a), so 50,000 nodes build in about 10 s; past that the
+// table layout builds in well under a second per 100,000 nodes.
+const AutoNestedNodes = 50000
+
+// MaxNesting is the deepest tree emitted as nested if/else; deeper trees get
+// the flat goto form. C99 (5.2.4.1) guarantees 127 nested blocks, clang's
+// default bracket depth is 256.
+const MaxNesting = 100
+
+// commentNodes is the largest forest, in nodes, whose code carries a comment
+// with the model's node id at every node.
+const commentNodes = 5000
+
+// Resolve returns the layout Emit uses for p under o, and why.
+func Resolve(p *compile.Program, o Options) (string, string, error) {
+	switch o.Layout {
+	case emit.Nested, emit.Table:
+		return o.Layout, "asked for", nil
+	case "", emit.Auto:
+		n := p.NumNodes()
+		if n <= AutoNestedNodes {
+			return emit.Nested, fmt.Sprintf("%d nodes, at most %d: nested code is fastest and builds quickly", n, AutoNestedNodes), nil
+		}
+		return emit.Table, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes), nil
+	}
+	return "", "", fmt.Errorf("layout %q: unknown\nhint: use %s, %s or %s", o.Layout, emit.Auto, emit.Nested, emit.Table)
+}
+
+// Emit returns NAME.h and NAME.c for p.
+func Emit(p *compile.Program, o Options) ([]emit.File, error) {
+	g, err := newGen(p, o)
+	if err != nil {
+		return nil, err
+	}
+	var body printer
+	switch g.layout {
+	case emit.Nested:
+		g.nested(&body)
+	case emit.Table:
+		if err := g.table(&body); err != nil {
+			return nil, err
+		}
+	default:
+		panic("BUG: cemit: layout " + g.layout)
+	}
+	return []emit.File{
+		{Name: g.name + ".h", Data: g.header()},
+		{Name: g.name + ".c", Data: g.source(body.bytes())},
+	}, nil
+}
+
+// gen carries what every part of the output needs.
+type gen struct {
+	p      *compile.Program
+	o      Options
+	name   string // lower-case-or-as-given prefix of functions and tables
+	upper  string // upper-case prefix of macros
+	layout string
+	why    string
+	ft     string // "double" or "float"
+	// leaves holds every leaf value as the target computes with it (rounded to
+	// float in float mode), by tree and node.
+	leaves   [][][]float64
+	base     []float64
+	tables   []table // static tables of NAME.c, for the size report
+	comments bool
+	featMac  []string // NAME_F_... macro per feature
+	classMac []string // NAME_C_... macro per class
+}
+
+// table is one static array of the generated code.
+type table struct {
+	Name      string // the C identifier
+	What      string // what it holds
+	Len       int    // elements
+	ElemBytes int    // bytes per element
+}
+
+// Bytes is the array's size.
+func (t table) Bytes() int { return t.Len * t.ElemBytes }
+
+func newGen(p *compile.Program, o Options) (*gen, error) {
+	switch p.Compare {
+	case compile.Round32:
+		return nil, fmt.Errorf("BUG: cemit: program still has round32 comparisons; the float32 pass must run first")
+	case compile.Single:
+		if !o.Float {
+			return nil, fmt.Errorf("program compiled for float32 inputs cannot be emitted as double C\nhint: compile without SingleInputs, or emit with the float option")
+		}
+	case compile.Double:
+		if o.Float {
+			return nil, fmt.Errorf("float C needs a program compiled for float32 inputs\nhint: compile with compile.Options{SingleInputs: true}")
+		}
+	}
+	if p.Combine != forest.Sum && p.Combine != forest.Average {
+		return nil, fmt.Errorf("BUG: cemit: combine %q reached the emitter; the vote pass lowers it", p.Combine)
+	}
+	if len(p.Trees) == 0 || p.NumOutputs < 1 || len(p.BaseScore) != p.NumOutputs {
+		return nil, fmt.Errorf("BUG: cemit: program with %d trees, %d outputs, %d base scores", len(p.Trees), p.NumOutputs, len(p.BaseScore))
+	}
+	name := o.Name
+	if name == "" {
+		name = "model"
+	}
+	if err := CheckName(name); err != nil {
+		return nil, err
+	}
+	layout, why, err := Resolve(p, o)
+	if err != nil {
+		return nil, err
+	}
+	g := &gen{p: p, o: o, name: name, upper: upperASCII(name), layout: layout, why: why, ft: "double",
+		comments: p.NumNodes() <= commentNodes}
+	if o.Float {
+		g.ft = "float"
+	}
+	g.leaves = make([][][]float64, len(p.Trees))
+	for ti := range p.Trees {
+		t := &p.Trees[ti]
+		g.leaves[ti] = make([][]float64, len(t.Nodes))
+		for ni := range t.Nodes {
+			n := &t.Nodes[ni]
+			if !n.IsLeaf() {
+				continue
+			}
+			v, err := g.narrow(n.Value)
+			if err != nil {
+				return nil, fmt.Errorf("tree %d, node %d: leaf value %v", t.Source, n.ID, err)
+			}
+			g.leaves[ti][ni] = v
+		}
+	}
+	if g.base, err = g.narrow(p.BaseScore); err != nil {
+		return nil, fmt.Errorf("base score %v", err)
+	}
+	g.featMac = macroNames(g.upper+"_F_", featureNames(p))
+	if p.IsClassifier() {
+		g.classMac = macroNames(g.upper+"_C_", p.Classes)
+	}
+	return g, nil
+}
+
+// narrow returns v as the target computes with it: unchanged in double mode,
+// rounded to the nearest float in float mode (an error when that overflows).
+func (g *gen) narrow(v []float64) ([]float64, error) {
+	if !g.o.Float {
+		return v, nil
+	}
+	out := make([]float64, len(v))
+	for i, x := range v {
+		f := float64(float32(x))
+		if math.IsInf(f, 0) {
+			return nil, fmt.Errorf("%v is out of float range\nhint: emit double C", x)
+		}
+		out[i] = f
+	}
+	return out, nil
+}
+
+func featureNames(p *compile.Program) []string {
+	n := make([]string, len(p.Features))
+	for i, f := range p.Features {
+		n[i] = f.Name
+	}
+	return n
+}
+
+// macroNames makes one macro name per label: prefix followed by the label's
+// ASCII letters and digits in upper case, unique.
+func macroNames(prefix string, labels []string) []string {
+	up := make([]string, len(labels))
+	for i, l := range labels {
+		up[i] = upperASCII(l)
+	}
+	ids := emit.Identifiers(up, "N", nil)
+	for i := range ids {
+		ids[i] = prefix + ids[i]
+	}
+	return ids
+}
+
+func upperASCII(s string) string {
+	b := []byte(s)
+	for i, c := range b {
+		if c >= 'a' && c <= 'z' {
+			b[i] = c - 'a' + 'A'
+		}
+	}
+	return string(b)
+}
+
+// reservedPrefixes are the beginnings of identifiers C99 7.26 and 7.1.3
+// reserve for future library use, as (prefix, class of the next character).
+var reservedPrefixes = []struct{ prefix, next string }{
+	{"E", "digit or upper"},          // errno.h
+	{"is", "lower"}, {"to", "lower"}, // ctype.h
+	{"LC_", "upper"},                    // locale.h
+	{"SIG", "upper"}, {"SIG_", "upper"}, // signal.h
+	{"str", "lower"}, {"mem", "lower"}, {"wcs", "lower"}, // string.h, stdlib.h
+	{"PRI", "lower or X"}, {"SCN", "lower or X"}, // inttypes.h
+	{"int", ""}, {"uint", ""}, {"INT", ""}, {"UINT", ""}, // stdint.h: intN_t, INTN_MAX...
+	{"cerf", ""}, {"cexp", ""}, {"clog", ""}, {"cpow", ""}, {"csin", ""}, {"csqrt", ""}, {"ctan", ""}, {"cabs", ""}, // complex.h
+	{"FE_", "upper"},                                           // fenv.h
+	{"DECIMAL", ""}, {"FLT_", ""}, {"DBL_", ""}, {"LDBL_", ""}, // float.h
+	{"ATOMIC_", "upper"}, {"memory_", "lower"}, {"atomic_", "lower"}, {"cnd_", "lower"}, {"mtx_", "lower"}, {"thrd_", "lower"}, {"tss_", "lower"}, // C11
+}
+
+// CheckName reports whether name can prefix the generated files, functions
+// and macros: an ASCII identifier starting with a letter, without double
+// underscores (reserved in C++, which includes the header), whose lower- and
+// upper-case forms start no reserved identifier of the C library.
+func CheckName(name string) error {
+	bad := func(why string) error {
+		return fmt.Errorf("name %q: %s\nhint: use letters, digits and underscores, starting with a letter, e.g. pump_health", name, why)
+	}
+	if name == "" {
+		return bad("empty")
+	}
+	for i := 0; i < len(name); i++ {
+		c := name[i]
+		ok := c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c == '_' || i > 0 && c >= '0' && c <= '9'
+		if !ok {
+			return bad("not a C identifier")
+		}
+	}
+	if name[0] == '_' {
+		return bad("identifiers starting with an underscore are reserved in C")
+	}
+	if strings.Contains(name, "__") {
+		return bad("double underscores are reserved in C++")
+	}
+	// The generated identifiers are name_xxx and NAME_XXX: the character
+	// after the name is an underscore. Check both forms.
+	for _, id := range []string{name + "_", upperASCII(name) + "_"} {
+		for _, r := range reservedPrefixes {
+			if !strings.HasPrefix(id, r.prefix) {
+				continue
+			}
+			c := id[len(r.prefix)]
+			isUpper, isLower, isDigit := c >= 'A' && c <= 'Z', c >= 'a' && c <= 'z', c >= '0' && c <= '9'
+			hit := false
+			switch r.next {
+			case "":
+				hit = true
+			case "digit or upper":
+				hit = isDigit || isUpper
+			case "lower":
+				hit = isLower
+			case "upper":
+				hit = isUpper
+			case "lower or X":
+				hit = isLower || c == 'X'
+			}
+			if hit {
+				return bad(fmt.Sprintf("%s... is reserved by the C standard library", id[:len(r.prefix)+1]))
+			}
+		}
+	}
+	return nil
+}
+
+// lit formats a value as a literal of the generated floating type. Values are
+// exact: the shortest decimal that reads back as the same double (or float),
+// which C compilers round correctly; negative zero keeps its sign.
+func (g *gen) lit(v float64) string {
+	if g.o.Float {
+		return floatLit(v)
+	}
+	return doubleLit(v)
+}
+
+func doubleLit(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		panic(fmt.Sprintf("BUG: cemit: %v has no C literal", v))
+	}
+	s := strconv.FormatFloat(v, 'g', -1, 64)
+	if !strings.ContainsAny(s, ".e") {
+		s += ".0"
+	}
+	return s
+}
+
+func floatLit(v float64) string {
+	f := float32(v)
+	if float64(f) != v || math.IsNaN(v) || math.IsInf(v, 0) {
+		panic(fmt.Sprintf("BUG: cemit: %v is not a finite float value", v))
+	}
+	s := strconv.FormatFloat(v, 'g', -1, 32)
+	if !strings.ContainsAny(s, ".e") {
+		s += ".0"
+	}
+	return s + "f"
+}
+
+// comment makes s safe inside a C block comment, byte by byte: printable
+// ASCII stays, a backslash is doubled, every other byte (controls, newlines,
+// each byte of a non-ASCII character) becomes an octal escape \ooo, and a
+// space breaks up "*/", "/*" and "??" (which could start a trigraph such as
+// ??/, a backslash). The result is pure ASCII.
+func comment(s string) string {
+	var b strings.Builder
+	var prev byte
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		switch {
+		case c == '\\':
+			b.WriteString(`\\`)
+			prev = '\\'
+			continue
+		case c < 0x20 || c > 0x7e:
+			fmt.Fprintf(&b, `\%03o`, c)
+			prev = '0'
+			continue
+		case c == '/' && prev == '*', c == '*' && prev == '/', c == '?' && prev == '?':
+			b.WriteByte(' ')
+		}
+		b.WriteByte(c)
+		prev = c
+	}
+	return b.String()
+}
+
+// cString makes s a C string literal with the same bytes: printable ASCII
+// stays except that ", \ and ? are escaped (\? keeps trigraphs from forming),
+// and every other byte is an octal escape of three digits (so a following
+// digit is never absorbed).
+func cString(s string) string {
+	var b strings.Builder
+	b.WriteByte('"')
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		switch {
+		case c == '"' || c == '\\' || c == '?':
+			b.WriteByte('\\')
+			b.WriteByte(c)
+		case c < 0x20 || c > 0x7e:
+			fmt.Fprintf(&b, `\%03o`, c)
+		default:
+			b.WriteByte(c)
+		}
+	}
+	b.WriteByte('"')
+	return b.String()
+}
+
+// printer accumulates indented lines of C.
+type printer struct {
+	buf    bytes.Buffer
+	indent int
+}
+
+func (w *printer) line(format string, args ...any) {
+	if format == "" {
+		w.buf.WriteByte('\n')
+		return
+	}
+	for i := 0; i < w.indent; i++ {
+		w.buf.WriteByte('\t')
+	}
+	if len(args) == 0 {
+		w.buf.WriteString(format)
+	} else {
+		fmt.Fprintf(&w.buf, format, args...)
+	}
+	w.buf.WriteByte('\n')
+}
+
+func (w *printer) in()  { w.indent++ }
+func (w *printer) out() { w.indent-- }
+
+func (w *printer) bytes() []byte { return w.buf.Bytes() }
+
+// header returns NAME.h.
+func (g *gen) header() []byte {
+	p := g.p
+	var w printer
+	u, ft := g.upper, g.ft
+	w.line("/* Code generated by sawmill %s. DO NOT EDIT.", comment(emit.Version))
+	w.line(" *")
+	w.line(" * Model: SHA-256 %s", comment(p.Hash))
+	w.line(" * %s with %d trees, %d nodes (%d leaves), depth %d; layout %s (%s).",
+		p.Task, len(p.Trees), p.NumNodes(), p.NumLeaves(), p.MaxDepth(), g.layout, comment(g.why))
+	w.line(" *")
+	for _, l := range g.docLines() {
+		if l == "" {
+			w.line(" *")
+		} else {
+			w.line(" * %s", l)
+		}
+	}
+	w.line(" *")
+	w.line(" * Inputs x[0..%d] (%s_NUM_FEATURES), in this order; a missing value is NaN:", len(p.Features)-1, u)
+	for i, f := range p.Features {
+		unused := ""
+		if !f.Used {
+			unused = " (not tested by any split)"
+		}
+		w.line(" *   x[%d] %s%s", i, comment(f.Name), unused)
+	}
+	w.line(" * Outputs out[0..%d] (%s_NUM_OUTPUTS):", p.NumOutputs-1, u)
+	for j := 0; j < p.NumOutputs; j++ {
+		w.line(" *   out[%d] %s", j, comment(g.outputName(j)))
+	}
+	if p.IsClassifier() {
+		w.line(" * Classes, as %s_predict_class numbers them:", g.name)
+		for i, c := range p.Classes {
+			w.line(" *   %d %s", i, comment(c))
+		}
+	}
+	w.line(" *")
+	total := 0
+	w.line(" * Static tables in %s.c:", g.name)
+	for _, t := range g.tables {
+		w.line(" *   %s: %s, %d x %d = %d bytes", t.Name, comment(t.What), t.Len, t.ElemBytes, t.Bytes())
+		total += t.Bytes()
+	}
+	w.line(" *   total %d bytes (%.2f bytes per node)", total, float64(total)/float64(p.NumNodes()))
+	w.line(" *")
+	if g.o.Float {
+		w.line(" * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every")
+		w.line(" * float input: each threshold is the float the model's comparison reduces")
+		w.line(" * to. Leaves are rounded to float and summed in float, so outputs differ")
+		w.line(" * from the double model by a rounding error bounded by the number of trees")
+		w.line(" * times the largest leaf times about 2^-23.")
+	} else {
+		w.line(" * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to")
+		w.line(" * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,")
+		w.line(" * ARM VFP): the same comparisons and additions in the same order")
+		if p.Transform != forest.NoTransform {
+			w.line(" * (the transform uses the C library's exp, which may differ from the")
+			w.line(" * interpreter's in the last bit)")
+		}
+		w.line(" * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the")
+		w.line(" * last bit; comparisons stay exact.")
+	}
+	w.line(" * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations")
+	w.line(" * or flush-to-zero: missing values are NaN and signed zeros and subnormals")
+	w.line(" * must be kept.")
+	w.line(" */")
+	w.line("#ifndef %s_H", u)
+	w.line("#define %s_H", u)
+	w.line("")
+	w.line("#ifdef __cplusplus")
+	w.line(`extern "C" {`)
+	w.line("#endif")
+	w.line("")
+	w.line("#define %s_NUM_FEATURES %d", u, len(p.Features))
+	w.line("#define %s_NUM_OUTPUTS %d", u, p.NumOutputs)
+	if p.IsClassifier() {
+		w.line("#define %s_NUM_CLASSES %d", u, len(p.Classes))
+	}
+	w.line("")
+	w.line("/* Index of each feature in x. */")
+	for i, m := range g.featMac {
+		w.line("#define %s %d", m, i)
+	}
+	if p.IsClassifier() {
+		w.line("")
+		w.line("/* Number of each class. */")
+		for i, m := range g.classMac {
+			w.line("#define %s %d", m, i)
+		}
+	}
+	w.line("")
+	w.line("/* Scores x (%s_NUM_FEATURES values) into out (%s_NUM_OUTPUTS values). */", u, u)
+	w.line("void %s_predict(const %s *x, %s *out);", g.name, ft, ft)
+	if p.IsClassifier() {
+		w.line("")
+		if p.NumOutputs == 1 {
+			w.line("/* The predicted class of x: 1 when the output is above 0.5, else 0. */")
+		} else {
+			w.line("/* The predicted class of x: the index of the largest output, ties to the lowest. */")
+		}
+		w.line("int %s_predict_class(const %s *x);", g.name, ft)
+	}
+	w.line("")
+	w.line("/* The model's feature names, in input order (UTF-8). */")
+	w.line("extern const char *const %s_feature_names[%s_NUM_FEATURES];", g.name, u)
+	if p.IsClassifier() {
+		w.line("/* The model's class labels, in class order (UTF-8). */")
+		w.line("extern const char *const %s_class_names[%s_NUM_CLASSES];", g.name, u)
+	}
+	w.line("")
+	w.line("#ifdef __cplusplus")
+	w.line("}")
+	w.line("#endif")
+	w.line("")
+	w.line("#endif /* %s_H */", u)
+	return w.bytes()
+}
+
+// outputName describes output j.
+func (g *gen) outputName(j int) string {
+	p := g.p
+	switch {
+	case p.IsClassifier() && p.NumOutputs == 1:
+		return "probability of class " + p.Classes[1]
+	case p.IsClassifier():
+		return p.Classes[j]
+	}
+	return "prediction"
+}
+
+// docLines says what predict computes.
+func (g *gen) docLines() []string {
+	p := g.p
+	var l []string
+	T := len(p.Trees)
+	each := "leaf_t(x), the value vector of the leaf x reaches in tree t"
+	switch p.Combine {
+	case forest.Sum:
+		l = append(l, fmt.Sprintf("%s_predict: z = base + leaf_0(x) + ... + leaf_%d(x), added in that order,", g.name, T-1),
+			"with "+each+";")
+	case forest.Average:
+		l = append(l, fmt.Sprintf("%s_predict: z = (0 + leaf_0(x) + ... + leaf_%d(x)) / %d + base, added in that", g.name, T-1, T),
+			"order, with "+each+";")
+	}
+	var bs []string
+	for _, b := range g.base {
+		bs = append(bs, g.lit(b))
+	}
+	l = append(l, "base = {"+strings.Join(bs, ", ")+"}.")
+	switch p.Transform {
+	case forest.Logistic:
+		l = append(l, "Then out = 1/(1+exp(-z)) for z >= 0, exp(z)/(1+exp(z)) for z < 0.")
+	case forest.Softmax:
+		l = append(l, "Then out = softmax(z): m = max z, e_j = exp(z_j - m), s = e_0 + ... (in order),", "out_j = e_j / s.")
+	default:
+		l = append(l, "out = z.")
+	}
+	l = append(l, "A split sends x left when x[f] <= t (some splits, from float32 models, use <);",
+		"a missing (NaN) input goes the way the model says for that split.")
+	return l
+}
+
+// source returns NAME.c around the layout's body.
+func (g *gen) source(body []byte) []byte {
+	p := g.p
+	var w printer
+	w.line("/* Code generated by sawmill %s. DO NOT EDIT.", comment(emit.Version))
+	w.line(" * Model: SHA-256 %s; layout %s, %s arithmetic. See %s.h. */", comment(p.Hash), g.layout, g.ft, g.name)
+	w.line("")
+	w.line(`#include "%s.h"`, g.name)
+	if g.layout == emit.Table {
+		w.line("")
+		w.line("#include <stdint.h>")
+	}
+	if p.Transform != forest.NoTransform {
+		w.line("")
+		w.line("#include <math.h>")
+	}
+	w.line("")
+	w.line("const char *const %s_feature_names[%s_NUM_FEATURES] = {", g.name, g.upper)
+	for i, f := range p.Features {
+		w.line("\t%s%s", cString(f.Name), comma(i, len(p.Features)))
+	}
+	w.line("};")
+	if p.IsClassifier() {
+		w.line("")
+		w.line("const char *const %s_class_names[%s_NUM_CLASSES] = {", g.name, g.upper)
+		for i, c := range p.Classes {
+			w.line("\t%s%s", cString(c), comma(i, len(p.Classes)))
+		}
+		w.line("};")
+	}
+	w.line("")
+	w.buf.Write(body)
+	g.finish(&w)
+	return w.bytes()
+}
+
+func comma(i, n int) string {
+	if i < n-1 {
+		return ","
+	}
+	return ""
+}
+
+// finish writes the transform, the copy to out and predict_class: the end of
+// predict, whose accumulator acc (K values) holds z, and what follows it.
+func (g *gen) finish(w *printer) {
+	p := g.p
+	k := p.NumOutputs
+	ft := g.ft
+	if p.Combine == forest.Average {
+		n := g.lit(float64(len(p.Trees)))
+		for j := 0; j < k; j++ {
+			w.line("acc[%d] = acc[%d] / %s + %s;", j, j, n, g.lit(g.base[j]))
+		}
+	}
+	exp := "exp"
+	if g.o.Float {
+		exp = "expf"
+	}
+	switch p.Transform {
+	case forest.Logistic:
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.in()
+		w.line("if (acc[j] >= %s) {", g.lit(0))
+		w.line("\tout[j] = %s / (%s + %s(-acc[j]));", g.lit(1), g.lit(1), exp)
+		w.line("} else {")
+		w.line("\t%s e = %s(acc[j]);", ft, exp)
+		w.line("\tout[j] = e / (%s + e);", g.lit(1))
+		w.line("}")
+		w.out()
+		w.line("}")
+	case forest.Softmax:
+		w.line("{")
+		w.in()
+		w.line("%s m = acc[0], s = %s;", ft, g.lit(0))
+		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tif (acc[j] > m) {")
+		w.line("\t\tm = acc[j];")
+		w.line("\t}")
+		w.line("}")
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tacc[j] = %s(acc[j] - m);", exp)
+		w.line("\ts += acc[j];")
+		w.line("}")
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tout[j] = acc[j] / s;")
+		w.line("}")
+		w.out()
+		w.line("}")
+	default:
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tout[j] = acc[j];")
+		w.line("}")
+	}
+	w.out()
+	w.line("}")
+	if !p.IsClassifier() {
+		return
+	}
+	w.line("")
+	w.line("int %s_predict_class(const %s *x)", g.name, ft)
+	w.line("{")
+	w.in()
+	w.line("%s out[%s_NUM_OUTPUTS];", ft, g.upper)
+	if k == 1 {
+		w.line("%s_predict(x, out);", g.name)
+		w.line("return out[0] > %s ? 1 : 0;", g.lit(0.5))
+	} else {
+		w.line("int j, best = 0;")
+		w.line("%s_predict(x, out);", g.name)
+		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tif (out[j] > out[best]) {")
+		w.line("\t\tbest = j;")
+		w.line("\t}")
+		w.line("}")
+		w.line("return best;")
+	}
+	w.out()
+	w.line("}")
+}
+
+// predictStart opens predict and sets the accumulator acc to its start:
+// the base score for a sum, zero for an average.
+func (g *gen) predictStart(w *printer, locals ...string) {
+	p := g.p
+	w.line("void %s_predict(const %s *x, %s *out)", g.name, g.ft, g.ft)
+	w.line("{")
+	w.in()
+	w.line("%s acc[%s_NUM_OUTPUTS];", g.ft, g.upper)
+	w.line("int j;")
+	for _, l := range locals {
+		w.line("%s", l)
+	}
+	for j := 0; j < p.NumOutputs; j++ {
+		start := g.lit(0)
+		if p.Combine == forest.Sum {
+			start = g.lit(g.base[j])
+		}
+		w.line("acc[%d] = %s;", j, start)
+	}
+}

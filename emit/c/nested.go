@@ -1,0 +1,258 @@
+package cemit
+
+import (
+	"fmt"
+	"math"
+
+	"sawmill/compile"
+)
+
+// nested writes one static function per tree and predict calling them in
+// tree order. With one output a tree function returns its leaf value; with
+// several it returns a row of NAME_leaf, the table of distinct leaf vectors.
+//
+//	static double model_tree0(const double *x)
+//	{
+//		if (x[3] <= 0.5) { /* node 0 */
+//			return 0.25; /* node 1 */
+//		} else {
+//			...
+//		}
+//	}
+func (g *gen) nested(w *printer) {
+	p := g.p
+	k := p.NumOutputs
+	var rows *leafRows
+	if k > 1 {
+		rows = g.distinctLeaves()
+		w.line("static const %s %s_leaf[%d][%s_NUM_OUTPUTS] = {", g.ft, g.name, len(rows.vecs), g.upper)
+		for i, v := range rows.vecs {
+			w.line("\t{%s}%s", g.joinLits(v), comma(i, len(rows.vecs)))
+		}
+		w.line("};")
+		w.line("")
+		g.tables = append(g.tables, table{Name: g.name + "_leaf", What: "distinct leaf vectors", Len: len(rows.vecs) * k, ElemBytes: g.elemBytes()})
+		w.line("static void %s_add(%s *acc, const %s *v)", g.name, g.ft, g.ft)
+		w.line("{")
+		w.line("\tint j;")
+		w.line("\tfor (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\t\tacc[j] += v[j];")
+		w.line("\t}")
+		w.line("}")
+		w.line("")
+	}
+	for ti := range p.Trees {
+		t := &p.Trees[ti]
+		depth := t.Depth()
+		if g.comments || ti == 0 {
+			w.line("/* tree %d: %d nodes, depth %d */", t.Source, len(t.Nodes), depth)
+		}
+		if k == 1 {
+			w.line("static %s %s_tree%d(const %s *x)", g.ft, g.name, ti, g.ft)
+		} else {
+			w.line("static const %s *%s_tree%d(const %s *x)", g.ft, g.name, ti, g.ft)
+		}
+		w.line("{")
+		w.in()
+		if len(t.Nodes) == 1 {
+			w.line("(void)x;")
+		}
+		if depth > MaxNesting {
+			g.treeGoto(w, ti, rows)
+		} else {
+			g.treeIf(w, ti, rows)
+		}
+		w.out()
+		w.line("}")
+		w.line("")
+	}
+	g.predictStart(w)
+	for ti := range p.Trees {
+		if k == 1 {
+			w.line("acc[0] += %s_tree%d(x);", g.name, ti)
+		} else {
+			w.line("%s_add(acc, %s_tree%d(x));", g.name, g.name, ti)
+		}
+	}
+}
+
+// treeIf writes tree ti as nested if/else, with an explicit stack.
+func (g *gen) treeIf(w *printer, ti int, rows *leafRows) {
+	t := &g.p.Trees[ti]
+	const (
+		open   = iota // write the node
+		orElse        // "} else {"
+		closed        // "}"
+	)
+	type item struct {
+		node int32
+		step int
+	}
+	stack := []item{{0, open}}
+	for len(stack) > 0 {
+		it := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		switch it.step {
+		case orElse:
+			w.out()
+			w.line("} else {")
+			w.in()
+			continue
+		case closed:
+			w.out()
+			w.line("}")
+			continue
+		}
+		n := &t.Nodes[it.node]
+		if n.IsLeaf() {
+			w.line("return %s;%s", g.leafExpr(ti, it.node, rows), g.nodeComment(n))
+			continue
+		}
+		w.line("if (%s) {%s", g.goesLeft(n), g.nodeComment(n))
+		w.in()
+		stack = append(stack, item{-1, closed}, item{n.Right, open}, item{-1, orElse}, item{n.Left, open})
+	}
+}
+
+// treeGoto writes tree ti flat, for trees too deep to nest: nodes in
+// preorder, each split jumping to its right child and falling through to its
+// left child, which comes next.
+//
+//	if (!(x[3] <= 0.5)) goto n7; /* node 0 */
+//	...
+//	n7: return 0.25;
+func (g *gen) treeGoto(w *printer, ti int, rows *leafRows) {
+	t := &g.p.Trees[ti]
+	isRight := make([]bool, len(t.Nodes))
+	for i := range t.Nodes {
+		if n := &t.Nodes[i]; !n.IsLeaf() {
+			isRight[n.Right] = true
+		}
+	}
+	stack := []int32{0}
+	for len(stack) > 0 {
+		i := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		n := &t.Nodes[i]
+		label := ""
+		if isRight[i] {
+			label = fmt.Sprintf("n%d: ", i)
+		}
+		if n.IsLeaf() {
+			w.line("%sreturn %s;%s", label, g.leafExpr(ti, i, rows), g.nodeComment(n))
+			continue
+		}
+		w.line("%sif (%s) goto n%d;%s", label, g.goesRight(n), n.Right, g.nodeComment(n))
+		stack = append(stack, n.Right, n.Left)
+	}
+}
+
+func (g *gen) nodeComment(n *compile.Node) string {
+	if !g.comments {
+		return ""
+	}
+	return fmt.Sprintf(" /* node %d */", n.ID)
+}
+
+// goesLeft is the condition under which a row goes left at split n: the
+// comparison when missing values go right (NaN fails it), its negated
+// complement when they go left (NaN fails the complement).
+func (g *gen) goesLeft(n *compile.Node) string {
+	x := fmt.Sprintf("x[%d]", n.Feature)
+	t := g.lit(n.Threshold)
+	switch {
+	case n.Op == compile.LE && !n.MissingLeft:
+		return x + " <= " + t
+	case n.Op == compile.LE:
+		return "!(" + x + " > " + t + ")"
+	case !n.MissingLeft:
+		return x + " < " + t
+	default:
+		return "!(" + x + " >= " + t + ")"
+	}
+}
+
+// goesRight is the negation of goesLeft.
+func (g *gen) goesRight(n *compile.Node) string {
+	x := fmt.Sprintf("x[%d]", n.Feature)
+	t := g.lit(n.Threshold)
+	switch {
+	case n.Op == compile.LE && !n.MissingLeft:
+		return "!(" + x + " <= " + t + ")"
+	case n.Op == compile.LE:
+		return x + " > " + t
+	case !n.MissingLeft:
+		return "!(" + x + " < " + t + ")"
+	default:
+		return x + " >= " + t
+	}
+}
+
+func (g *gen) leafExpr(ti int, ni int32, rows *leafRows) string {
+	v := g.leaves[ti][ni]
+	if rows == nil {
+		return g.lit(v[0])
+	}
+	return fmt.Sprintf("%s_leaf[%d]", g.name, rows.row(v))
+}
+
+func (g *gen) joinLits(v []float64) string {
+	s := ""
+	for i, x := range v {
+		if i > 0 {
+			s += ", "
+		}
+		s += g.lit(x)
+	}
+	return s
+}
+
+func (g *gen) elemBytes() int {
+	if g.o.Float {
+		return 4
+	}
+	return 8
+}
+
+// leafRows is the table of distinct leaf vectors (as the target computes
+// with them), in order of first appearance; vectors are equal when their
+// bits are, so -0 and 0 stay apart.
+type leafRows struct {
+	vecs  [][]float64
+	index map[string]int
+}
+
+func (r *leafRows) row(v []float64) int {
+	i, ok := r.index[vecKey(v)]
+	if !ok {
+		panic("BUG: cemit: leaf vector not in the table")
+	}
+	return i
+}
+
+func vecKey(v []float64) string {
+	b := make([]byte, 0, 8*len(v))
+	for _, x := range v {
+		u := math.Float64bits(x)
+		b = append(b, byte(u), byte(u>>8), byte(u>>16), byte(u>>24), byte(u>>32), byte(u>>40), byte(u>>48), byte(u>>56))
+	}
+	return string(b)
+}
+
+func (g *gen) distinctLeaves() *leafRows {
+	r := &leafRows{index: map[string]int{}}
+	for ti := range g.p.Trees {
+		for ni := range g.p.Trees[ti].Nodes {
+			v := g.leaves[ti][ni]
+			if v == nil {
+				continue
+			}
+			key := vecKey(v)
+			if _, ok := r.index[key]; !ok {
+				r.index[key] = len(r.vecs)
+				r.vecs = append(r.vecs, v)
+			}
+		}
+	}
+	return r
+}

@@ -1,0 +1,463 @@
+package cemit
+
+import (
+	"fmt"
+	"math"
+	"math/bits"
+	"slices"
+	"strings"
+
+	"sawmill/compile"
+)
+
+// The table layout. Each tree's splits are packed words in preorder, one
+// word per split and none per leaf:
+//
+//	bits, low to high: feature | threshold index | missing-left | less-than |
+//	                   left is a leaf | right is a leaf | size of the left subtree
+//
+// The left child, when a split, is the next word; the right child, when a
+// split, is the word after the left subtree. A walk also counts the leaves it
+// passes: in preorder, a tree with s splits has s+1 leaves, so the leaves
+// before tree t number start[t]+t, and going right over a left subtree of a
+// splits passes a+1 of them. The leaf reached is therefore known by its
+// preorder number without being stored; it indexes a table of the distinct
+// leaf vectors (or the vectors themselves, when that is smaller).
+//
+// Thresholds live in tables of the distinct values, sorted per feature,
+// addressed either globally or per feature (then through thr_base), whichever
+// keeps the word narrower. A "<" comparison becomes "<=" against the next
+// value below the threshold in the target's type (exact: no value lies
+// between); the less-than bit remains only for a threshold whose next value
+// below would be -infinity.
+type tableLayout struct {
+	wordBits  int // 16, 32 or 64
+	fBits     int
+	tBits     int
+	hasML     bool
+	hasLT     bool
+	aBits     int
+	perFeat   bool      // threshold index is local to the feature
+	thr       []float64 // distinct thresholds, by feature then value
+	thrBase   []int     // per feature, first index in thr (when perFeat)
+	thrFloat  bool      // every threshold is a float value
+	words     []uint64
+	treeStart []int // len T+1, in words
+	treeNodes []int // words per tree, for comments
+	leafRows  *leafRows
+	leafOf    []int // per leaf in preorder, its row of leafRows
+	direct    bool  // leaf vectors stored per leaf, not by row
+	leafFloat bool  // every leaf value is a float value
+}
+
+func (g *gen) buildTable() (*tableLayout, error) {
+	p := g.p
+	tl := &tableLayout{leafRows: g.distinctLeaves()}
+	type split struct {
+		feature   int
+		thr       float64
+		lt, ml    bool
+		ll, rl    bool
+		leftCount int
+	}
+	var splits []split
+	// Per feature, the distinct normalised thresholds.
+	thrSet := make([]map[uint64]bool, len(p.Features))
+	for i := range thrSet {
+		thrSet[i] = map[uint64]bool{}
+	}
+	tl.treeStart = append(tl.treeStart, 0)
+	for ti := range p.Trees {
+		t := &p.Trees[ti]
+		// Splits below each node, by a reverse sweep of the preorder
+		// (children come after their parent).
+		below := make([]int, len(t.Nodes))
+		for i := len(t.Nodes) - 1; i >= 0; i-- {
+			if n := &t.Nodes[i]; !n.IsLeaf() {
+				below[i] = 1 + below[n.Left] + below[n.Right]
+			}
+		}
+		stack := []int32{0}
+		for len(stack) > 0 {
+			i := stack[len(stack)-1]
+			stack = stack[:len(stack)-1]
+			n := &t.Nodes[i]
+			if n.IsLeaf() {
+				tl.leafOf = append(tl.leafOf, tl.leafRows.row(g.leaves[ti][i]))
+				continue
+			}
+			th, lt := g.normalise(n.Op, n.Threshold)
+			if th == 0 {
+				th = 0 // x <= -0 and x <= 0 agree everywhere
+			}
+			thrSet[n.Feature][math.Float64bits(th)] = true
+			splits = append(splits, split{feature: n.Feature, thr: th, lt: lt, ml: n.MissingLeft,
+				ll: t.Nodes[n.Left].IsLeaf(), rl: t.Nodes[n.Right].IsLeaf(), leftCount: below[n.Left]})
+			stack = append(stack, n.Right, n.Left)
+		}
+		tl.treeStart = append(tl.treeStart, len(splits))
+		tl.treeNodes = append(tl.treeNodes, len(t.Nodes))
+	}
+	// Threshold tables.
+	index := make([]map[uint64]int, len(p.Features))
+	maxLocal := 0
+	tl.thrFloat = true
+	for f := range p.Features {
+		vals := make([]float64, 0, len(thrSet[f]))
+		for b := range thrSet[f] {
+			vals = append(vals, math.Float64frombits(b))
+		}
+		slices.Sort(vals)
+		index[f] = map[uint64]int{}
+		tl.thrBase = append(tl.thrBase, len(tl.thr))
+		for i, v := range vals {
+			index[f][math.Float64bits(v)] = i
+			tl.thr = append(tl.thr, v)
+			if float64(float32(v)) != v {
+				tl.thrFloat = false
+			}
+		}
+		maxLocal = max(maxLocal, len(vals))
+	}
+	tl.fBits = bitsFor(len(p.Features) - 1)
+	maxLeft := 0
+	for _, s := range splits {
+		tl.hasML = tl.hasML || s.ml
+		tl.hasLT = tl.hasLT || s.lt
+		maxLeft = max(maxLeft, s.leftCount)
+	}
+	tl.aBits = bitsFor(maxLeft)
+	flags := b2i(tl.hasML) + b2i(tl.hasLT) + 2
+	local := tl.fBits + bitsFor(maxLocal-1) + flags + tl.aBits
+	global := tl.fBits + bitsFor(len(tl.thr)-1) + flags + tl.aBits
+	tl.perFeat = wordBits(global) > wordBits(local)
+	tl.tBits = bitsFor(len(tl.thr) - 1)
+	if tl.perFeat {
+		tl.tBits = bitsFor(maxLocal - 1)
+	}
+	total := min(global, local)
+	tl.wordBits = wordBits(total)
+	if tl.wordBits == 0 {
+		return nil, fmt.Errorf("table layout: a split needs %d bits, more than 64 (%d features, %d distinct thresholds, left subtrees of %d splits)\nhint: use the nested layout",
+			total, len(p.Features), len(tl.thr), maxLeft)
+	}
+	for _, s := range splits {
+		ti := index[s.feature][math.Float64bits(s.thr)]
+		if !tl.perFeat {
+			ti += tl.thrBase[s.feature]
+		}
+		w := uint64(s.feature) | uint64(ti)<<tl.tShift()
+		if s.ml {
+			w |= tl.mlBit()
+		}
+		if s.lt {
+			w |= tl.ltBit()
+		}
+		if s.ll {
+			w |= tl.llBit()
+		}
+		if s.rl {
+			w |= tl.rlBit()
+		}
+		w |= uint64(s.leftCount) << tl.aShift()
+		tl.words = append(tl.words, w)
+	}
+	tl.leafFloat = true
+	for _, v := range tl.leafRows.vecs {
+		for _, x := range v {
+			if float64(float32(x)) != x {
+				tl.leafFloat = false
+			}
+		}
+	}
+	k := p.NumOutputs
+	vb := tl.leafElemBytes(g)
+	indirect := len(tl.leafOf)*intBytes(len(tl.leafRows.vecs)-1) + len(tl.leafRows.vecs)*k*vb
+	tl.direct = len(tl.leafOf)*k*vb <= indirect
+	return tl, nil
+}
+
+// normalise returns the threshold to store and whether the less-than bit is
+// needed: x < t is x <= (the next value below t) for every x of the target
+// type that is not NaN.
+func (g *gen) normalise(op compile.Op, t float64) (float64, bool) {
+	if op == compile.LE {
+		return t, false
+	}
+	var below float64
+	if g.o.Float {
+		below = float64(math.Nextafter32(float32(t), float32(math.Inf(-1))))
+	} else {
+		below = math.Nextafter(t, math.Inf(-1))
+	}
+	if math.IsInf(below, -1) {
+		return t, true
+	}
+	return below, false
+}
+
+func (tl *tableLayout) tShift() int    { return tl.fBits }
+func (tl *tableLayout) flagShift() int { return tl.fBits + tl.tBits }
+func (tl *tableLayout) mlBit() uint64  { return 1 << tl.flagShift() }
+func (tl *tableLayout) ltBit() uint64  { return 1 << (tl.flagShift() + b2i(tl.hasML)) }
+func (tl *tableLayout) llBit() uint64 {
+	return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT))
+}
+func (tl *tableLayout) rlBit() uint64 { return tl.llBit() << 1 }
+func (tl *tableLayout) aShift() int {
+	return tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + 2
+}
+
+func (tl *tableLayout) thrElemBytes(g *gen) int {
+	if g.o.Float || tl.thrFloat {
+		return 4
+	}
+	return 8
+}
+
+func (tl *tableLayout) leafElemBytes(g *gen) int {
+	if g.o.Float || tl.leafFloat {
+		return 4
+	}
+	return 8
+}
+
+// bitsFor is the number of bits that hold 0..n (0 for n <= 0).
+func bitsFor(n int) int {
+	if n <= 0 {
+		return 0
+	}
+	return bits.Len(uint(n))
+}
+
+// wordBits is the narrowest unsigned type holding n bits, 0 past 64.
+func wordBits(n int) int {
+	switch {
+	case n <= 16:
+		return 16
+	case n <= 32:
+		return 32
+	case n <= 64:
+		return 64
+	}
+	return 0
+}
+
+// intBytes is the size of the narrowest unsigned type holding 0..n.
+func intBytes(n int) int {
+	switch {
+	case n < 1<<8:
+		return 1
+	case n < 1<<16:
+		return 2
+	}
+	return 4
+}
+
+func uintType(b int) string { return fmt.Sprintf("uint%d_t", 8*b) }
+
+func b2i(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// hexLit is an unsigned constant of the word type.
+func hexLit(v uint64) string {
+	if v > math.MaxUint32 {
+		return fmt.Sprintf("0x%xull", v)
+	}
+	return fmt.Sprintf("0x%xu", v)
+}
+
+// table writes the tables and the loop that walks them.
+func (g *gen) table(w *printer) error {
+	tl, err := g.buildTable()
+	if err != nil {
+		return err
+	}
+	p := g.p
+	k := p.NumOutputs
+	wt := fmt.Sprintf("uint%d_t", tl.wordBits)
+	T := len(p.Trees)
+
+	// The split words, one line per tree (or several when long).
+	w.line("/* Splits, per tree in preorder: feature (%d bits), threshold index (%d bits)%s%s,", tl.fBits, tl.tBits,
+		map[bool]string{true: ", missing goes left (1)"}[tl.hasML], map[bool]string{true: ", less-than (1)"}[tl.hasLT])
+	w.line(" * left is a leaf (1), right is a leaf (1), splits in the left subtree (%d bits). */", tl.aBits)
+	nWords := max(len(tl.words), 1) // C has no empty arrays
+	w.line("static const %s %s_node[%d] = {", wt, g.name, nWords)
+	for ti := 0; ti < T; ti++ {
+		ws := tl.words[tl.treeStart[ti]:tl.treeStart[ti+1]]
+		if g.comments && len(ws) > 0 {
+			w.line("\t/* tree %d */", p.Trees[ti].Source)
+		}
+		g.numbers(w, len(ws), func(i int) string { return hexLit(ws[i]) })
+	}
+	if len(tl.words) == 0 {
+		w.line("\t0")
+	}
+	w.line("};")
+	g.tables = append(g.tables, table{g.name + "_node", "split words", nWords, tl.wordBits / 8})
+	w.line("")
+
+	sb := intBytes(len(tl.words))
+	w.line("/* First word of each tree; tree t has words start[t] to start[t+1]-1. */")
+	w.line("static const %s %s_start[%d] = {", uintType(sb), g.name, T+1)
+	g.numbers(w, T+1, func(i int) string { return fmt.Sprint(tl.treeStart[i]) })
+	w.line("};")
+	g.tables = append(g.tables, table{g.name + "_start", "first word per tree", T + 1, sb})
+	w.line("")
+
+	tt := g.ft
+	if !g.o.Float && tl.thrFloat {
+		tt = "float"
+	}
+	nThr := max(len(tl.thr), 1)
+	w.line("/* Distinct thresholds, by feature, ascending%s. */", map[bool]string{true: " (all exact as float)"}[tt != g.ft])
+	w.line("static const %s %s_thr[%d] = {", tt, g.name, nThr)
+	if len(tl.thr) == 0 {
+		w.line("\t0")
+	}
+	lit := g.lit
+	if tt == "float" {
+		lit = floatLit
+	}
+	g.numbers(w, len(tl.thr), func(i int) string { return lit(tl.thr[i]) })
+	w.line("};")
+	g.tables = append(g.tables, table{g.name + "_thr", "distinct thresholds", nThr, tl.thrElemBytes(g)})
+	w.line("")
+	bb := intBytes(len(tl.thr))
+	if tl.perFeat {
+		w.line("/* First threshold of each feature. */")
+		w.line("static const %s %s_thr_base[%d] = {", uintType(bb), g.name, len(tl.thrBase))
+		g.numbers(w, len(tl.thrBase), func(i int) string { return fmt.Sprint(tl.thrBase[i]) })
+		w.line("};")
+		g.tables = append(g.tables, table{g.name + "_thr_base", "first threshold per feature", len(tl.thrBase), bb})
+		w.line("")
+	}
+
+	lt := g.ft
+	if !g.o.Float && tl.leafFloat {
+		lt = "float"
+	}
+	llit := g.lit
+	if lt == "float" {
+		llit = floatLit
+	}
+	if tl.direct {
+		w.line("/* Leaf vectors, per leaf in preorder%s. */", map[bool]string{true: " (all exact as float)"}[lt != g.ft])
+		w.line("static const %s %s_leaf[%d] = {", lt, g.name, len(tl.leafOf)*k)
+		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return llit(tl.leafRows.vecs[tl.leafOf[i/k]][i%k]) })
+		w.line("};")
+		g.tables = append(g.tables, table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
+	} else {
+		rb := intBytes(len(tl.leafRows.vecs) - 1)
+		w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
+		w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
+		g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
+		w.line("};")
+		g.tables = append(g.tables, table{g.name + "_leaf_row", "leaf row per leaf", len(tl.leafOf), rb})
+		w.line("")
+		n := len(tl.leafRows.vecs)
+		w.line("/* Distinct leaf vectors%s. */", map[bool]string{true: " (all exact as float)"}[lt != g.ft])
+		w.line("static const %s %s_leaf[%d] = {", lt, g.name, n*k)
+		g.numbers(w, n*k, func(i int) string { return llit(tl.leafRows.vecs[i/k][i%k]) })
+		w.line("};")
+		g.tables = append(g.tables, table{g.name + "_leaf", "distinct leaf vectors", n * k, tl.leafElemBytes(g)})
+	}
+	w.line("")
+
+	g.predictStart(w, "uint32_t t;")
+	field := func(shift, width int) string {
+		if width == 0 {
+			return "0u"
+		}
+		return fmt.Sprintf("((uint32_t)(w >> %d) & %s)", shift, hexLit(1<<width-1))
+	}
+	flag := func(bit uint64) string { return fmt.Sprintf("(w & %s) != 0", hexLit(bit)) }
+	w.line("for (t = 0; t < %du; t++) {", T)
+	w.in()
+	w.line("uint32_t i = %s_start[t];", g.name)
+	w.line("uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */")
+	w.line("if (i < %s_start[t + 1]) {", g.name)
+	w.in()
+	w.line("for (;;) {")
+	w.in()
+	w.line("const %s w = %s_node[i];", wt, g.name)
+	if tl.fBits == 0 {
+		w.line("const uint32_t f = 0u;")
+	} else {
+		w.line("const uint32_t f = (uint32_t)(w & %s);", hexLit(1<<tl.fBits-1))
+	}
+	w.line("const %s v = x[f];", g.ft)
+	idx := field(tl.tShift(), tl.tBits)
+	if tl.perFeat {
+		idx = fmt.Sprintf("%s_thr_base[f] + %s", g.name, idx)
+	}
+	th := fmt.Sprintf("%s_thr[%s]", g.name, idx)
+	if tt != g.ft {
+		th = "(double)" + th
+	}
+	w.line("const %s th = %s;", g.ft, th)
+	cond := "v <= th"
+	if tl.hasLT {
+		cond = fmt.Sprintf("(v <= th && (%s || v < th))", strings.Replace(flag(tl.ltBit()), "!=", "==", 1))
+	}
+	if tl.hasML {
+		cond = fmt.Sprintf("%s || (%s && v != v)", cond, flag(tl.mlBit()))
+	}
+	w.line("if (%s) {", cond)
+	w.line("\tif (%s) {", flag(tl.llBit()))
+	w.line("\t\tbreak;")
+	w.line("\t}")
+	w.line("\ti++;")
+	w.line("} else {")
+	w.line("\tconst uint32_t a = %s + 1u;", field(tl.aShift(), tl.aBits))
+	w.line("\tl += a;")
+	w.line("\tif (%s) {", flag(tl.rlBit()))
+	w.line("\t\tbreak;")
+	w.line("\t}")
+	w.line("\ti += a;")
+	w.line("}")
+	w.out()
+	w.line("}")
+	w.out()
+	w.line("}")
+	row := "l"
+	if !tl.direct {
+		row = fmt.Sprintf("%s_leaf_row[l]", g.name)
+	}
+	conv := ""
+	if lt != g.ft {
+		conv = "(double)"
+	}
+	if k == 1 {
+		w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, row)
+	} else {
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tacc[j] += %s%s_leaf[%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, row, g.upper)
+		w.line("}")
+	}
+	w.out()
+	w.line("}")
+	return nil
+}
+
+// numbers writes n array elements, 8 to a line, each followed by a comma
+// (C allows one after the last).
+func (g *gen) numbers(w *printer, n int, elem func(int) string) {
+	const perLine = 8
+	for i := 0; i < n; i += perLine {
+		var b strings.Builder
+		for j := i; j < min(i+perLine, n); j++ {
+			if j > i {
+				b.WriteByte(' ')
+			}
+			b.WriteString(elem(j))
+			b.WriteByte(',')
+		}
+		w.line("\t%s", b.String())
+	}
+}

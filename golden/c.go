@@ -1,0 +1,395 @@
+package golden
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"fmt"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	cemit "sawmill/emit/c"
+	"sawmill/forest"
+)
+
+// cRunner builds emitted C with the real compilers and runs it. Every Score
+// builds the program, with a small driver that reads rows as float64 bit
+// patterns and prints outputs with %a (exact), in a matrix of toolchains:
+// gcc and clang, -std=c99 and -std=c11, -O0 and -O2, each with -Wall -Wextra
+// -Wpedantic -Wshadow -Wconversion -Wdouble-promotion -Werror, plus one gcc
+// build with -fsanitize=address,undefined and a C++ compile of the header.
+// Programs above cFullMatrixNodes nodes get the reduced matrix
+// (cReducedMatrix). Every build must print the same bytes.
+type cRunner struct{}
+
+// cName is the --name used in tests; not the default, so that a missed
+// Options.Name shows.
+const cName = "pumpmodel"
+
+// cFullMatrixNodes is the largest program built in every configuration.
+const cFullMatrixNodes = 3000
+
+// cBuild is one toolchain configuration.
+type cBuild struct {
+	cc, std, opt string
+	sanitize     bool
+}
+
+func (b cBuild) String() string {
+	s := fmt.Sprintf("%s -std=%s -%s", b.cc, b.std, b.opt)
+	if b.sanitize {
+		s += " -fsanitize=address,undefined"
+	}
+	return s
+}
+
+// cMatrix is every configuration; the first is the one whose run is timed.
+var cMatrix = []cBuild{
+	{"gcc", "c99", "O2", false},
+	{"gcc", "c99", "O0", false},
+	{"gcc", "c11", "O2", false},
+	{"gcc", "c11", "O0", false},
+	{"clang", "c99", "O2", false},
+	{"clang", "c99", "O0", false},
+	{"clang", "c11", "O2", false},
+	{"clang", "c11", "O0", false},
+	{"gcc", "c99", "O1", true},
+}
+
+// cReducedMatrix is for big programs: both compilers and standards at -O2,
+// and the sanitizers.
+var cReducedMatrix = []cBuild{
+	{"gcc", "c99", "O2", false},
+	{"clang", "c11", "O2", false},
+	{"gcc", "c99", "O1", true},
+}
+
+// cWarnings are the warning flags of every build.
+var cWarnings = []string{"-Wall", "-Wextra", "-Wpedantic", "-Wshadow", "-Wconversion", "-Wdouble-promotion",
+	"-Wstrict-prototypes", "-Wmissing-prototypes", "-Werror"}
+
+// cJobs bounds the compilers and drivers running at once, over all Score
+// calls of the process.
+var cJobs = make(chan struct{}, runtime.NumCPU())
+
+func (cRunner) Name() string { return "c" }
+
+func (cRunner) Layouts() []string { return []string{emit.Nested, emit.Table} }
+
+// Variants: double (bit-exact) and float (float API and arithmetic).
+func (cRunner) Variants() []string { return []string{"double", "float"} }
+
+func (cRunner) CompileOptions(variant string) compile.Options {
+	return compile.Options{SingleInputs: variant == "float"}
+}
+
+// Float32Inputs: the float variant takes float inputs, so its reference is
+// the interpreter on the rows rounded to float32.
+func (cRunner) Float32Inputs(variant string) bool { return variant == "float" }
+
+// Tolerance: double C is bit-exact except that the transforms call the C
+// library's exp; float C differs by float rounding. cemit.ErrorBound derives
+// both bounds.
+func (cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
+	b := cemit.ErrorBound(p, variant == "float")
+	return b == 0, b
+}
+
+func (cRunner) options(layout, variant string) cemit.Options {
+	return cemit.Options{Name: cName, Layout: layout, Float: variant == "float"}
+}
+
+func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
+	return cemit.Emit(p, r.options(layout, variant))
+}
+
+var cToolsOnce struct {
+	sync.Once
+	err error
+}
+
+// cTools checks that the compilers are installed; ErrSkip when they are not.
+func cTools() error {
+	cToolsOnce.Do(func() {
+		var missing []string
+		for _, t := range []string{"gcc", "clang", "g++"} {
+			if _, err := exec.LookPath(t); err != nil {
+				missing = append(missing, t)
+			}
+		}
+		if len(missing) > 0 {
+			cToolsOnce.err = fmt.Errorf("%w: %s not on PATH", ErrSkip, strings.Join(missing, ", "))
+		}
+	})
+	return cToolsOnce.err
+}
+
+func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
+	if err := cTools(); err != nil {
+		return nil, err
+	}
+	matrix := cMatrix
+	if p.NumNodes() > cFullMatrixNodes {
+		matrix = cReducedMatrix
+	}
+	return r.score(ctx, p, r.options(layout, variant), rows, dir, matrix, len(matrix) == len(cMatrix))
+}
+
+// score emits p, builds it in every configuration of matrix (and checks the
+// header as C++ when cxx is set), runs each build over rows, requires every
+// build to print the same bytes, and parses the output.
+func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
+	files, err := cemit.Emit(p, o)
+	if err != nil {
+		return nil, err
+	}
+	for _, f := range files {
+		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
+			return nil, err
+		}
+	}
+	ft := "double"
+	if o.Float {
+		ft = "float"
+	}
+	if err := os.WriteFile(filepath.Join(dir, "driver.c"), []byte(cDriver(o.Name, ft, p.IsClassifier())), 0o644); err != nil {
+		return nil, err
+	}
+	in := filepath.Join(dir, "rows.txt")
+	if err := os.WriteFile(in, cRows(rows), 0o644); err != nil {
+		return nil, err
+	}
+	if cxx {
+		src := fmt.Sprintf("#include \"%s.h\"\nint use(const %s *x);\nint use(const %s *x) { %s y[%s_NUM_OUTPUTS]; %s_predict(x, y); return y[0] > 0 ? 1 : 0; }\n",
+			o.Name, ft, ft, ft, strings.ToUpper(o.Name), o.Name)
+		if err := os.WriteFile(filepath.Join(dir, "header.cc"), []byte(src), 0o644); err != nil {
+			return nil, err
+		}
+	}
+
+	type job struct {
+		b       cBuild
+		bin     string
+		out     []byte
+		err     error
+		buildAt time.Duration
+		runFor  time.Duration
+	}
+	jobs := make([]*job, len(matrix))
+	var wg sync.WaitGroup
+	start := time.Now()
+	for i, b := range matrix {
+		jobs[i] = &job{b: b, bin: filepath.Join(dir, fmt.Sprintf("score%d", i))}
+		wg.Add(1)
+		go func(j *job) {
+			defer wg.Done()
+			cJobs <- struct{}{}
+			defer func() { <-cJobs }()
+			args := append([]string{"-std=" + j.b.std}, cWarnings...)
+			args = append(args, "-"+j.b.opt)
+			if j.b.sanitize {
+				args = append(args, "-g", "-fsanitize=address,undefined", "-fno-sanitize-recover=all", "-fno-omit-frame-pointer")
+			}
+			args = append(args, "-o", j.bin, "driver.c", o.Name+".c", "-lm")
+			if j.err = cCommand(ctx, dir, nil, nil, j.b.cc, args...); j.err != nil {
+				return
+			}
+			j.buildAt = time.Since(start)
+			var stdout bytes.Buffer
+			t0 := time.Now()
+			j.err = cCommand(ctx, dir, nil, &stdout, j.bin, in)
+			j.runFor = time.Since(t0)
+			j.out = stdout.Bytes()
+		}(jobs[i])
+	}
+	var cxxErr error
+	if cxx {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			cJobs <- struct{}{}
+			defer func() { <-cJobs }()
+			cxxErr = cCommand(ctx, dir, nil, nil, "g++", "-std=c++11", "-Wall", "-Wextra", "-Wpedantic", "-Werror", "-fsyntax-only", "header.cc")
+		}()
+	}
+	wg.Wait()
+	if cxxErr != nil {
+		return nil, fmt.Errorf("the header as C++: %v", cxxErr)
+	}
+	res := &Result{}
+	for _, j := range jobs {
+		if j.err != nil {
+			return nil, fmt.Errorf("%s: %v", j.b, j.err)
+		}
+		res.Build = max(res.Build, j.buildAt)
+	}
+	for _, j := range jobs[1:] {
+		if !bytes.Equal(j.out, jobs[0].out) {
+			return nil, fmt.Errorf("%s and %s print different outputs:\n%s", jobs[0].b, j.b, firstDiff(jobs[0].out, j.out))
+		}
+	}
+	res.Run = jobs[0].runFor
+	if err := parseCOutput(jobs[0].out, p, rows.Len(), res); err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+// cCommand runs name in dir; a failure returns its output.
+func cCommand(ctx context.Context, dir string, stdin []byte, stdout *bytes.Buffer, name string, args ...string) error {
+	cmd := exec.CommandContext(ctx, name, args...)
+	cmd.Dir = dir
+	if stdin != nil {
+		cmd.Stdin = bytes.NewReader(stdin)
+	}
+	var stderr bytes.Buffer
+	cmd.Stderr = &stderr
+	if stdout != nil {
+		cmd.Stdout = stdout
+	} else {
+		cmd.Stdout = &stderr
+	}
+	if err := cmd.Run(); err != nil {
+		msg := stderr.String()
+		if len(msg) > 4000 {
+			msg = msg[:4000] + "\n..."
+		}
+		return fmt.Errorf("%s %s: %v\n%s", name, strings.Join(args, " "), err, msg)
+	}
+	return nil
+}
+
+func firstDiff(a, b []byte) string {
+	la, lb := strings.Split(string(a), "\n"), strings.Split(string(b), "\n")
+	for i := 0; i < len(la) && i < len(lb); i++ {
+		if la[i] != lb[i] {
+			return fmt.Sprintf("line %d:\n  %s\n  %s", i+1, la[i], lb[i])
+		}
+	}
+	return fmt.Sprintf("%d lines against %d", len(la), len(lb))
+}
+
+// cRows writes rows for the driver: a line "rows features", then each row's
+// values as float64 bit patterns in hex.
+func cRows(rows *forest.Rows) []byte {
+	var b bytes.Buffer
+	fmt.Fprintf(&b, "%d %d\n", rows.Len(), len(rows.Features))
+	for i := 0; i < rows.Len(); i++ {
+		for j, v := range rows.Row(i) {
+			if j > 0 {
+				b.WriteByte(' ')
+			}
+			b.WriteString(strconv.FormatUint(math.Float64bits(v), 16))
+		}
+		b.WriteByte('\n')
+	}
+	return b.Bytes()
+}
+
+// cDriver is the test main: it reads the rows file named by argv[1],
+// narrows each value to the API's type (a no-op for double), and prints per
+// row the outputs with %a and the predicted class (-1 for a regressor).
+func cDriver(name, ft string, classifier bool) string {
+	up := strings.ToUpper(name)
+	class := "-1"
+	if classifier {
+		class = name + "_predict_class(x)"
+	}
+	return `#include <stdio.h>
+#include <string.h>
+
+#include "` + name + `.h"
+
+int main(int argc, char **argv)
+{
+	FILE *in;
+	unsigned long rows, cols, r, i;
+	int j;
+	` + ft + ` x[` + up + `_NUM_FEATURES];
+	` + ft + ` y[` + up + `_NUM_OUTPUTS];
+	if (argc != 2 || (in = fopen(argv[1], "r")) == NULL) {
+		fprintf(stderr, "usage: score ROWS\n");
+		return 2;
+	}
+	if (fscanf(in, "%lu %lu", &rows, &cols) != 2 || cols != ` + up + `_NUM_FEATURES) {
+		fprintf(stderr, "bad header\n");
+		return 2;
+	}
+	for (r = 0; r < rows; r++) {
+		for (i = 0; i < cols; i++) {
+			unsigned long long bits;
+			double d;
+			if (fscanf(in, "%llx", &bits) != 1) {
+				fprintf(stderr, "row %lu: bad value\n", r);
+				return 2;
+			}
+			memcpy(&d, &bits, sizeof d);
+			x[i] = (` + ft + `)d;
+		}
+		` + name + `_predict(x, y);
+		for (j = 0; j < ` + up + `_NUM_OUTPUTS; j++) {
+			printf("%a ", (double)y[j]);
+		}
+		printf("%d\n", ` + class + `);
+	}
+	fclose(in);
+	return 0;
+}
+`
+}
+
+// parseCOutput reads the driver's lines: NumOutputs %a numbers and a class.
+func parseCOutput(out []byte, p *compile.Program, n int, res *Result) error {
+	sc := bufio.NewScanner(bytes.NewReader(out))
+	sc.Buffer(make([]byte, 1<<20), 1<<30)
+	k := p.NumOutputs
+	line := 0
+	for sc.Scan() {
+		line++
+		f := strings.Fields(sc.Text())
+		if len(f) != k+1 {
+			return fmt.Errorf("c driver output line %d: %d fields, want %d", line, len(f), k+1)
+		}
+		for _, s := range f[:k] {
+			v, err := parseHexFloat(s)
+			if err != nil {
+				return fmt.Errorf("c driver output line %d: %v", line, err)
+			}
+			res.Outputs = append(res.Outputs, v)
+		}
+		if p.IsClassifier() {
+			c, err := strconv.Atoi(f[k])
+			if err != nil {
+				return fmt.Errorf("c driver output line %d: %v", line, err)
+			}
+			res.Classes = append(res.Classes, c)
+		}
+	}
+	if line != n {
+		return fmt.Errorf("c driver printed %d rows, want %d", line, n)
+	}
+	return nil
+}
+
+// parseHexFloat reads printf's %a: hex floats, inf, nan (with signs).
+func parseHexFloat(s string) (float64, error) {
+	switch strings.TrimLeft(s, "+-") {
+	case "nan":
+		return math.NaN(), nil
+	case "inf":
+		if s[0] == '-' {
+			return math.Inf(-1), nil
+		}
+		return math.Inf(1), nil
+	}
+	return strconv.ParseFloat(s, 64)
+}
