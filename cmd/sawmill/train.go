@@ -29,7 +29,7 @@ type trainRun struct {
 // returns the function that writes its output once the model is written;
 // that function does nothing when its flags were not given. Adding one is
 // one line here.
-var trainOutputs = []func(c *cobra.Command) func(r *trainRun) error{}
+var trainOutputs = []func(c *cobra.Command) func(r *trainRun) error{plotsOutput}
 
 type trainFlags struct {
 	label, output, task string
