@@ -30,6 +30,8 @@ type target struct {
 func allTargets() []target {
 	return []target{
 		goTarget(),
+		cTarget(),
+		sqlTarget(),
 	}
 }
 

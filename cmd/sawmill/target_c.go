@@ -1,0 +1,21 @@
+package main
+
+import (
+	"sawmill/compile"
+	"sawmill/emit"
+	cemit "sawmill/emit/c"
+)
+
+// cTarget emits NAME.h and NAME.c through emit/c. --float compiles the
+// comparisons for float inputs (exact for every float input).
+func cTarget() target {
+	return target{
+		name: "c",
+		options: func(fl *compileFlags) compile.Options {
+			return compile.Options{SingleInputs: fl.float}
+		},
+		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
+			return cemit.Emit(p, cemit.Options{Name: fl.name, Layout: fl.layout, Float: fl.float})
+		},
+	}
+}
