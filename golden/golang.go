@@ -5,6 +5,7 @@ import (
 	"bytes"
 	"context"
 	"fmt"
+	"go/format"
 	"math"
 	"os"
 	"os/exec"
@@ -20,13 +21,15 @@ import (
 	"sawmill/forest"
 )
 
-// goRunner builds emitted Go with the real toolchain: the package goes into
-// a temporary module (module sawmilltest) beside a small main that reads
-// rows as float64 bit patterns and prints outputs the same way, so nothing
-// is lost to decimal formatting. Each Score also runs gofmt -l and the
-// package's own model_test.go under every go vet check.
+// goRunner builds emitted Go with the real toolchain. The package goes into
+// a temporary module (module sawmilltest) with one more test file, a driver
+// that reads rows as float64 bit patterns and writes outputs the same way,
+// so nothing is lost to decimal formatting. One go test run then vets the
+// package and its tests with every go vet check, builds them, runs the
+// package's own model_test.go and scores the rows; the files are also
+// checked to be gofmt-clean.
 type goRunner struct {
-	// NoChecks skips vet, gofmt and the emitted test (benchmarks).
+	// NoChecks skips vet and gofmt (benchmarks).
 	NoChecks bool
 }
 
@@ -50,9 +53,11 @@ func (goRunner) Emit(p *compile.Program, layout, _ string) ([]emit.File, error) 
 	return golang.Emit(p, golang.Options{Package: goPackage, Layout: layout})
 }
 
-// goDriver is the main of the test module: rows of space-separated hex bit
-// patterns on stdin, outputs (and the class) the same way on stdout.
-const goDriver = `package main
+// goDriver is a test beside the emitted package's own: it scores the rows
+// in $SAWMILL_ROWS (space-separated hex bit patterns, one row a line) into
+// $SAWMILL_OUT (the outputs, then the class or -1), after a first line
+// holding the scoring time in nanoseconds.
+const goDriver = `package ` + goPackage + `
 
 import (
 	"bufio"
@@ -61,43 +66,68 @@ import (
 	"os"
 	"strconv"
 	"strings"
-
-	model "sawmilltest/` + goPackage + `"
+	"testing"
+	"time"
 )
 
-func main() {
-	in := bufio.NewScanner(os.Stdin)
-	in.Buffer(make([]byte, 1<<20), 1<<30)
-	out := bufio.NewWriter(os.Stdout)
-	defer out.Flush()
-	for in.Scan() {
-		var x [model.NumFeatures]float64
-		for i, f := range strings.Fields(in.Text()) {
+func TestSawmillScore(t *testing.T) {
+	rows := os.Getenv("SAWMILL_ROWS")
+	if rows == "" {
+		t.Skip("SAWMILL_ROWS is not set: no rows to score")
+	}
+	data, err := os.ReadFile(rows)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(strings.TrimSuffix(string(data), "\n"), "\n")
+	if len(data) == 0 {
+		lines = nil
+	}
+	xs := make([][NumFeatures]float64, len(lines))
+	for r, line := range lines {
+		for i, f := range strings.Fields(line) {
 			b, err := strconv.ParseUint(f, 16, 64)
 			if err != nil {
-				fmt.Fprintln(os.Stderr, err)
-				os.Exit(2)
+				t.Fatal(err)
 			}
-			x[i] = math.Float64frombits(b)
+			xs[r][i] = math.Float64frombits(b)
 		}
-		for _, v := range model.Predict(&x) {
-			fmt.Fprintf(out, "%x ", math.Float64bits(v))
-		}
-		fmt.Fprintln(out, class(&x))
 	}
-	if err := in.Err(); err != nil {
-		fmt.Fprintln(os.Stderr, err)
-		os.Exit(2)
+	outs := make([][NumOutputs]float64, len(xs))
+	classes := make([]int, len(xs))
+	start := time.Now()
+	for r := range xs {
+		outs[r] = Predict(&xs[r])
+		classes[r] = class(&xs[r])
+	}
+	elapsed := time.Since(start)
+	fh, err := os.Create(os.Getenv("SAWMILL_OUT"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := bufio.NewWriter(fh)
+	fmt.Fprintln(w, elapsed.Nanoseconds())
+	for r := range outs {
+		for _, v := range outs[r] {
+			fmt.Fprintf(w, "%x ", math.Float64bits(v))
+		}
+		fmt.Fprintln(w, classes[r])
+	}
+	if err := w.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	if err := fh.Close(); err != nil {
+		t.Fatal(err)
 	}
 }
 `
 
 const goClassifierTail = `
-func class(x *[model.NumFeatures]float64) int { return model.PredictClass(x) }
+func class(x *[NumFeatures]float64) int { return PredictClass(x) }
 `
 
 const goRegressorTail = `
-func class(x *[model.NumFeatures]float64) int { return -1 }
+func class(*[NumFeatures]float64) int { return -1 }
 `
 
 func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ string, rows *forest.Rows, dir string) (*Result, error) {
@@ -114,6 +144,11 @@ func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ strin
 		return nil, err
 	}
 	for _, f := range files {
+		if !r.NoChecks {
+			if formatted, err := format.Source(f.Data); err != nil || !bytes.Equal(formatted, f.Data) {
+				return nil, fmt.Errorf("%s: generated file is not gofmt-clean (%v)", f.Name, err)
+			}
+		}
 		if err := os.WriteFile(filepath.Join(pkgDir, f.Name), f.Data, 0o644); err != nil {
 			return nil, err
 		}
@@ -125,22 +160,9 @@ func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ strin
 	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte("module sawmilltest\n\ngo 1.21\n"), 0o644); err != nil {
 		return nil, err
 	}
-	if err := os.WriteFile(filepath.Join(dir, "main.go"), []byte(driver), 0o644); err != nil {
+	if err := os.WriteFile(filepath.Join(pkgDir, "sawmill_driver_test.go"), []byte(driver), 0o644); err != nil {
 		return nil, err
 	}
-	res := &Result{}
-	start := time.Now()
-	bin := filepath.Join(dir, "score")
-	if err := goTool(ctx, env, dir, "go", "build", "-o", bin, "."); err != nil {
-		return nil, err
-	}
-	res.Build = time.Since(start)
-	if !r.NoChecks {
-		if err := goChecks(ctx, env, dir, pkgDir); err != nil {
-			return nil, err
-		}
-	}
-
 	var in bytes.Buffer
 	for i := 0; i < rows.Len(); i++ {
 		for j, v := range rows.Row(i) {
@@ -151,45 +173,44 @@ func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ strin
 		}
 		in.WriteByte('\n')
 	}
-	start = time.Now()
-	cmd := exec.CommandContext(ctx, bin)
-	cmd.Dir = dir
-	cmd.Stdin = &in
-	var stdout, stderr bytes.Buffer
-	cmd.Stdout, cmd.Stderr = &stdout, &stderr
-	if err := cmd.Run(); err != nil {
-		return nil, fmt.Errorf("%s: %v\n%s", bin, err, stderr.Bytes())
-	}
-	res.Run = time.Since(start)
-	if err := parseGoOutput(&stdout, p, rows.Len(), res); err != nil {
+	rowsFile, outFile := filepath.Join(dir, "rows.txt"), filepath.Join(dir, "out.txt")
+	if err := os.WriteFile(rowsFile, in.Bytes(), 0o644); err != nil {
 		return nil, err
 	}
+	vet := "-vet=all"
+	if r.NoChecks {
+		vet = "-vet=off"
+	}
+	start := time.Now()
+	env = append(env[:len(env):len(env)], "SAWMILL_ROWS="+rowsFile, "SAWMILL_OUT="+outFile)
+	if err := goTool(ctx, env, dir, "go", "test", "-count=1", vet, "./"+goPackage); err != nil {
+		return nil, err
+	}
+	total := time.Since(start)
+	out, err := os.ReadFile(outFile)
+	if err != nil {
+		return nil, fmt.Errorf("go test ran but wrote no outputs: %v", err)
+	}
+	res := &Result{}
+	if err := parseGoOutput(bytes.NewBuffer(out), p, rows.Len(), res); err != nil {
+		return nil, err
+	}
+	res.Build = total - res.Run
 	return res, nil
-}
-
-// goChecks runs gofmt -l over the package, then the package's own test
-// with every go vet check (go test -vet=all vets the package and its test
-// in the same run).
-func goChecks(ctx context.Context, env []string, dir, pkgDir string) error {
-	gofmt, err := gofmtPath(ctx, env)
-	if err != nil {
-		return err
-	}
-	cmd := exec.CommandContext(ctx, gofmt, "-l", pkgDir)
-	out, err := cmd.CombinedOutput()
-	if err != nil {
-		return fmt.Errorf("gofmt -l: %v\n%s", err, out)
-	}
-	if len(bytes.TrimSpace(out)) > 0 {
-		return fmt.Errorf("gofmt -l: generated files are not gofmt-clean:\n%s", out)
-	}
-	return goTool(ctx, env, dir, "go", "test", "-count=1", "-vet=all", "./"+goPackage)
 }
 
 func parseGoOutput(out *bytes.Buffer, p *compile.Program, n int, res *Result) error {
 	sc := bufio.NewScanner(out)
 	sc.Buffer(make([]byte, 1<<20), 1<<30)
 	k := p.NumOutputs
+	if !sc.Scan() {
+		return fmt.Errorf("go driver output is empty")
+	}
+	ns, err := strconv.ParseInt(sc.Text(), 10, 64)
+	if err != nil {
+		return fmt.Errorf("go driver output line 1: %v", err)
+	}
+	res.Run = time.Duration(ns)
 	line := 0
 	for sc.Scan() {
 		line++
@@ -242,30 +263,6 @@ func goEnv() ([]string, error) {
 		goEnvOnce.env = env
 	})
 	return goEnvOnce.env, goEnvOnce.err
-}
-
-var gofmtOnce struct {
-	sync.Once
-	path string
-	err  error
-}
-
-// gofmtPath finds the gofmt of the go command in use.
-func gofmtPath(ctx context.Context, env []string) (string, error) {
-	gofmtOnce.Do(func() {
-		cmd := exec.CommandContext(ctx, "go", "env", "GOROOT")
-		cmd.Env = env
-		out, err := cmd.Output()
-		if err != nil {
-			gofmtOnce.err = fmt.Errorf("go env GOROOT: %v", err)
-			return
-		}
-		gofmtOnce.path = filepath.Join(strings.TrimSpace(string(out)), "bin", "gofmt")
-		if _, err := os.Stat(gofmtOnce.path); err != nil {
-			gofmtOnce.err = fmt.Errorf("gofmt is not beside the go command: %v", err)
-		}
-	})
-	return gofmtOnce.path, gofmtOnce.err
 }
 
 // goTool runs one go command in dir and returns its output in the error
