@@ -113,7 +113,6 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 		if err == io.EOF {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
@@ -126,6 +125,9 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 			p.Add("%s: %s", name, csvError(err))
 			break
 		}
+		// Only after a successful read: FieldPos panics on a record that
+		// failed with no fields (an unterminated quote).
+		line, _ := cr.FieldPos(0)
 		for i, c := range idx {
 			v, msg := ParseCell(rec[c])
 			if msg != "" {

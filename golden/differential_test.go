@@ -25,7 +25,11 @@ import (
 //	SAWMILL_DIFF_SEED=S     first seed (default 1); seeds S to S+N-1 run
 //	SAWMILL_DIFF_ROWS=R     rows per model (default 48)
 //	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default testdata)
+//	SAWMILL_DIFF_SHRINK=D   time spent shrinking one failure (default 3m)
 const diffDefaultModels = 24
+
+// scoreTimeout bounds one build and run, so that a hang is a failure.
+const scoreTimeout = 3 * time.Minute
 
 // diffGenOptions keeps default models small: building emitted code per
 // model is the cost, and small models reach the same corners.
@@ -91,6 +95,8 @@ func (o outcome) String() string {
 
 // runTarget compiles f for the target, scores rows, and compares.
 func runTarget(ctx context.Context, tg target, f *forest.Forest, rows *forest.Rows, dir string) outcome {
+	ctx, cancel := context.WithTimeout(ctx, scoreTimeout)
+	defer cancel()
 	start := time.Now()
 	p, _, err := compile.Compile(f, tg.r.CompileOptions(tg.variant))
 	if err != nil {
@@ -101,10 +107,13 @@ func runTarget(ctx context.Context, tg target, f *forest.Forest, rows *forest.Ro
 		return outcome{skipped: err}
 	}
 	if err != nil {
+		if ctx.Err() != nil {
+			err = fmt.Errorf("no result within %v: %v", scoreTimeout, err)
+		}
 		return outcome{err: err, took: time.Since(start)}
 	}
 	c := &Case{Model: f, Rows: rows}
-	want, wantCls := c.Reference()
+	want, wantCls := c.ReferenceFor(tg.r, tg.variant)
 	exact, bound := tg.r.Tolerance(tg.variant, p)
 	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), exact, bound)
 	o := outcome{took: time.Since(start)}
@@ -179,6 +188,7 @@ func TestDifferential(t *testing.T) {
 				}
 				for _, tg := range targets {
 					o := runTarget(context.Background(), tg, f, rows, t.TempDir())
+					t.Logf("%s: %s (%v)", tg, o, o.took.Round(time.Millisecond))
 					mu.Lock()
 					total += o.took
 					if o.skipped != nil {
@@ -230,8 +240,16 @@ func shrinkFor(tg target, f *forest.Forest, rows *forest.Rows, first outcome) (*
 		return f, rows
 	}
 	defer os.RemoveAll(dir)
+	limit := 3 * time.Minute
+	if d, err := time.ParseDuration(os.Getenv("SAWMILL_DIFF_SHRINK")); err == nil {
+		limit = d
+	}
+	deadline := time.Now().Add(limit)
 	n := 0
 	fails := func(g *forest.Forest, r *forest.Rows) bool {
+		if time.Now().After(deadline) {
+			return false
+		}
 		n++
 		d := filepath.Join(dir, strconv.Itoa(n))
 		if os.Mkdir(d, 0o755) != nil {
@@ -244,15 +262,7 @@ func shrinkFor(tg target, f *forest.Forest, rows *forest.Rows, first outcome) (*
 		}
 		return o.mismatch != nil
 	}
-	budget := int(envIntOr("SAWMILL_DIFF_SHRINK", 300))
-	return Shrink(f, rows, fails, budget)
-}
-
-func envIntOr(name string, def uint64) uint64 {
-	if v, err := strconv.ParseUint(os.Getenv(name), 10, 64); err == nil {
-		return v
-	}
-	return def
+	return Shrink(f, rows, fails, 1000)
 }
 
 func nodeCount(f *forest.Forest) int {
