@@ -35,7 +35,7 @@ type goRunner struct {
 
 func (goRunner) Name() string { return "go" }
 
-func (goRunner) Layouts() []string { return []string{emit.Nested, emit.Table} }
+func (goRunner) Layouts() []string { return []string{emit.Nested, emit.Table, emit.Branchless} }
 
 func (goRunner) Variants() []string { return []string{""} }
 

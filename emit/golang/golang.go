@@ -94,9 +94,6 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	default:
 		return nil, fmt.Errorf("unknown layout %q\nhint: use auto, nested, table or branchless", o.Layout)
 	}
-	if layout == emit.Branchless {
-		return nil, fmt.Errorf("layout %s: not available yet in the Go target\nhint: use nested", layout)
-	}
 	for i, r := range o.Sample {
 		if len(r) != len(p.Features) {
 			return nil, fmt.Errorf("sample row %d: %d values, the model has %d features", i, len(r), len(p.Features))
@@ -181,6 +178,7 @@ type gen struct {
 	comments bool // one comment per node
 	usesNeg0 bool // some literal is -0: declare negZero
 	tab      *tableData
+	heap     *heapData
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {

@@ -3,6 +3,7 @@ package golang
 import (
 	"encoding/base64"
 	"encoding/binary"
+	"fmt"
 	"math"
 	"strings"
 
@@ -65,20 +66,22 @@ func testFor(n *compile.Node, nf int) (feat int, thr float64, first, second int3
 	}
 }
 
-func buildTable(p *compile.Program) *tableData {
+// buildTable lays out the given trees (all when nil) in table form.
+func buildTable(p *compile.Program, trees []int) *tableData {
 	nf := len(p.Features)
-	d := &tableData{width: nf}
-	for ti := range p.Trees {
-		for i := range p.Trees[ti].Nodes {
-			if n := &p.Trees[ti].Nodes[i]; !n.IsLeaf() && n.MissingLeft {
-				d.negated = true
-				d.width = 2 * nf
-			}
+	if trees == nil {
+		trees = make([]int, len(p.Trees))
+		for i := range trees {
+			trees[i] = i
 		}
+	}
+	d := &tableData{width: nf, negated: negates(p)}
+	if d.negated {
+		d.width = 2 * nf
 	}
 	leafRow := uint32(0)
 	maxFar := uint32(0)
-	for ti := range p.Trees {
+	for _, ti := range trees {
 		t := &p.Trees[ti]
 		d.roots = append(d.roots, uint32(len(d.nodes)))
 		type item struct {
@@ -124,6 +127,19 @@ func buildTable(p *compile.Program) *tableData {
 	}
 	d.farType, _ = narrowest(uint64(max(maxFar, leafRow)))
 	return d
+}
+
+// negates reports whether some split sends missing values left, so that
+// the extended input must hold -x.
+func negates(p *compile.Program) bool {
+	for ti := range p.Trees {
+		for i := range p.Trees[ti].Nodes {
+			if n := &p.Trees[ti].Nodes[i]; !n.IsLeaf() && n.MissingLeft {
+				return true
+			}
+		}
+	}
+	return false
 }
 
 // narrowest is the smallest unsigned type holding 0..n, and its maximum
@@ -190,78 +206,136 @@ func (bl *blob) decl(name string) jen.Code {
 	return jen.Var().Id(name).Op("=").Index(jen.Op("...")).String().Values(items...)
 }
 
-// table declares the arrays, their decoding and the descent.
-func (g *gen) table() []jen.Code {
-	d := buildTable(g.p)
-	g.tab = d
+// section is one array carried in the blob.
+type section struct {
+	name, typ string // variable and element type
+	n         int    // elements
+	doc       string
+	write     func(*blob)
+}
+
+// blobDecls declares the arrays of sections, the init that decodes them
+// from one blob, the decoders and the blob itself:
+//
+//	var (
+//		feat []uint8 // …
+//		…
+//	)
+//
+//	func init() {
+//		b, err := base64.StdEncoding.DecodeString(strings.Join(blob[:], ""))
+//		…
+//		feat, b = decodeUint8(b, 1234)
+//		…
+//	}
+func (g *gen) blobDecls(sections []section) []jen.Code {
 	var bl blob
-	for _, n := range d.nodes {
-		bl.uint(d.featType, n.feat)
-	}
-	for _, n := range d.nodes {
-		bl.uint(d.farType, n.far)
-	}
-	for _, r := range d.roots {
-		bl.uint("uint32", r)
-	}
-	for _, n := range d.nodes {
-		bl.float(n.thr)
-	}
-	for _, v := range d.leaves {
-		bl.float(v)
-	}
-	vars := []jen.Code{
-		jen.Id("feat").Index().Id(d.featType).Comment("index into xx tested at each node; leafMark at a leaf"),
-		jen.Id("far").Index().Id(d.farType).Comment("offset to the child taken when the test fails"),
-		jen.Id("thr").Index().Float64().Comment("threshold; the value at a leaf"),
-		jen.Id("roots").Index().Uint32().Comment("first node of each tree"),
-	}
-	if g.k > 1 {
-		vars[1] = jen.Id("far").Index().Id(d.farType).Comment("offset to the child taken when the test fails; the row in leafValues at a leaf")
-		vars[2] = jen.Id("thr").Index().Float64().Comment("threshold")
-		vars = append(vars, jen.Id("leafValues").Index().Float64().Comment("leaf vectors, NumOutputs values each"))
-	}
-	decode := []jen.Code{
+	var vars, decode []jen.Code
+	var types, names []string
+	decode = append(decode,
 		jen.List(jen.Id("b"), jen.Err()).Op(":=").Qual("encoding/base64", "StdEncoding").Dot("DecodeString").
 			Call(jen.Qual("strings", "Join").Call(jen.Id("blob").Index(jen.Op(":")), jen.Lit(""))),
-		jen.If(jen.Err().Op("!=").Nil().Op("||").Len(jen.Id("b")).Op("!=").Lit(len(bl.b))).Block(
-			jen.Panic(jen.Lit(g.pkg + ": the node table does not decode")),
-		),
-		jen.Id("feat").Op(",").Id("b").Op("=").Id(decoderName(d.featType)).Call(jen.Id("b"), jen.Id("numNodes")),
-		jen.Id("far").Op(",").Id("b").Op("=").Id(decoderName(d.farType)).Call(jen.Id("b"), jen.Id("numNodes")),
-		jen.Id("roots").Op(",").Id("b").Op("=").Id(decoderName("uint32")).Call(jen.Id("b"), jen.Id("numTrees")),
-		jen.Id("thr").Op(",").Id("b").Op("=").Id(decoderName("float64")).Call(jen.Id("b"), jen.Id("numNodes")),
+		nil, // the length check, once the size is known
+	)
+	for i, sc := range sections {
+		sc.write(&bl)
+		vars = append(vars, jen.Id(sc.name).Index().Id(sc.typ).Comment(sc.doc))
+		rest := jen.Id("b")
+		if i == len(sections)-1 {
+			rest = jen.Id("_")
+		}
+		decode = append(decode, jen.List(jen.Id(sc.name), rest).Op("=").Id(decoderName(sc.typ)).Call(jen.Id("b"), jen.Lit(sc.n)))
+		types = append(types, sc.typ)
+		names = append(names, sc.name)
+	}
+	decode[1] = jen.If(jen.Err().Op("!=").Nil().Op("||").Len(jen.Id("b")).Op("!=").Lit(len(bl.b))).Block(
+		jen.Panic(jen.Lit(g.pkg + ": the forest's tables do not decode")),
+	)
+	out := []jen.Code{
+		jen.Var().Defs(vars...),
+		jen.Func().Id("init").Params().Block(decode...),
+	}
+	out = append(out, decoders(types...)...)
+	return append(out, jen.Comment(fmt.Sprintf("blob holds %s in order, little-endian, base64-encoded.", strings.Join(names, ", "))).Line().
+		Add(bl.decl("blob")))
+}
+
+// tableSections are the arrays of the table layout.
+func (g *gen) tableSections(d *tableData) []section {
+	farDoc, thrDoc := "offset to the child taken when the test fails", "threshold; the value at a leaf"
+	if g.k > 1 {
+		farDoc, thrDoc = "offset to the child taken when the test fails; the row in leafValues at a leaf", "threshold"
+	}
+	out := []section{
+		{"feat", d.featType, len(d.nodes), "index into xx tested at each node; leafMark at a leaf", func(bl *blob) {
+			for _, n := range d.nodes {
+				bl.uint(d.featType, n.feat)
+			}
+		}},
+		{"far", d.farType, len(d.nodes), farDoc, func(bl *blob) {
+			for _, n := range d.nodes {
+				bl.uint(d.farType, n.far)
+			}
+		}},
+		{"thr", "float64", len(d.nodes), thrDoc, func(bl *blob) {
+			for _, n := range d.nodes {
+				bl.float(n.thr)
+			}
+		}},
+		{"roots", "uint32", len(d.roots), "first node of each tree", func(bl *blob) {
+			for _, r := range d.roots {
+				bl.uint("uint32", r)
+			}
+		}},
 	}
 	if g.k > 1 {
-		decode = append(decode, jen.Id("leafValues").Op(",").Id("_").Op("=").Id(decoderName("float64")).
-			Call(jen.Id("b"), jen.Lit(len(d.leaves))))
+		out = append(out, section{"leafValues", "float64", len(d.leaves), "leaf vectors, NumOutputs values each", func(bl *blob) {
+			for _, v := range d.leaves {
+				bl.float(v)
+			}
+		}})
 	}
+	return out
+}
+
+// table declares the arrays, their decoding and the descent.
+func (g *gen) table() []jen.Code {
+	d := g.tableData()
 	out := []jen.Code{
 		jen.Comment("The forest as one table (see the descent in leaf): nodes in depth-first order per").Line().
 			Comment("tree, decoded once by init from blob.").Line().
-			Const().Defs(
-			jen.Id("numNodes").Op("=").Lit(len(d.nodes)),
-			jen.Id("leafMark").Op("=").Lit(int(d.leafMark)),
-		),
-		jen.Var().Defs(vars...),
+			Const().Id("leafMark").Op("=").Lit(int(d.leafMark)),
 		g.tableLeaf(d),
 	}
 	if g.k > 1 {
-		out = append(out, g.baseScoreVar(), jen.Comment("addLeaf adds leaf row r to acc.").Line().
-			Func().Id("addLeaf").Params(jen.Id("acc").Op("*").Index(jen.Id("NumOutputs")).Float64(), jen.Id("r").Int()).Block(
-			jen.Id("v").Op(":=").Id("leafValues").Index(jen.Id("r").Op("*").Id("NumOutputs").Op(":")).Index(jen.Op(":").Id("NumOutputs")),
-			jen.For(jen.Id("j").Op(":=").Range().Id("acc")).Block(
-				jen.Id("acc").Index(jen.Id("j")).Op("+=").Id("v").Index(jen.Id("j")),
-			),
-		))
+		out = append(out, g.baseScoreVar(), g.addRow("leafValues"))
 	}
-	out = append(out,
-		jen.Func().Id("init").Params().Block(decode...),
+	return append(out, g.blobDecls(g.tableSections(d))...)
+}
+
+func (g *gen) tableData() *tableData {
+	if g.tab == nil {
+		g.tab = buildTable(g.p, nil)
+	}
+	return g.tab
+}
+
+// addRow adds one leaf row of a flat table to the accumulator:
+//
+//	func addLeaf(acc *[NumOutputs]float64, r int) {
+//		v := leafValues[r*NumOutputs:][:NumOutputs]
+//		for j := range acc {
+//			acc[j] += v[j]
+//		}
+//	}
+func (g *gen) addRow(table string) jen.Code {
+	return jen.Comment("addLeaf adds leaf row r to acc.").Line().
+		Func().Id("addLeaf").Params(jen.Id("acc").Op("*").Index(jen.Id("NumOutputs")).Float64(), jen.Id("r").Int()).Block(
+		jen.Id("v").Op(":=").Id(table).Index(jen.Id("r").Op("*").Id("NumOutputs").Op(":")).Index(jen.Op(":").Id("NumOutputs")),
+		jen.For(jen.Id("j").Op(":=").Range().Id("acc")).Block(
+			jen.Id("acc").Index(jen.Id("j")).Op("+=").Id("v").Index(jen.Id("j")),
+		),
 	)
-	out = append(out, decoders(d.featType, d.farType, "uint32", "float64")...)
-	out = append(out, jen.Comment("blob holds, base64-encoded, little-endian: feat, far, roots, thr"+
-		map[bool]string{true: ", leafValues.", false: "."}[g.k > 1]).Line().Add(bl.decl("blob")))
-	return out
 }
 
 // tableLeaf is the descent:
@@ -333,11 +407,7 @@ func (g *gen) extendInput(negated bool) []jen.Code {
 //		s += thr[leaf(xx, int(r))]
 //	}
 func (g *gen) tablePredictBody() []jen.Code {
-	d := g.tab
-	if d == nil {
-		d = buildTable(g.p)
-		g.tab = d
-	}
+	d := g.tableData()
 	body := g.extendInput(d.negated)
 	xx := jen.Id("xx")
 	if d.negated {

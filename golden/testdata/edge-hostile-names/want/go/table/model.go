@@ -101,18 +101,7 @@ func PredictClass(x *[NumFeatures]float64) int {
 
 // The forest as one table (see the descent in leaf): nodes in depth-first order per
 // tree, decoded once by init from blob.
-const (
-	numNodes = 33
-	leafMark = 255
-)
-
-var (
-	feat       []uint8   // index into xx tested at each node; leafMark at a leaf
-	far        []uint8   // offset to the child taken when the test fails; the row in leafValues at a leaf
-	thr        []float64 // threshold
-	roots      []uint32  // first node of each tree
-	leafValues []float64 // leaf vectors, NumOutputs values each
-)
+const leafMark = 255
 
 // leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)
 // goes to i+far[i], a passed one to i+1; the step is computed, not branched on.
@@ -142,28 +131,28 @@ func addLeaf(acc *[NumOutputs]float64, r int) {
 	}
 }
 
+var (
+	feat       []uint8   // index into xx tested at each node; leafMark at a leaf
+	far        []uint8   // offset to the child taken when the test fails; the row in leafValues at a leaf
+	thr        []float64 // threshold
+	roots      []uint32  // first node of each tree
+	leafValues []float64 // leaf vectors, NumOutputs values each
+)
+
 func init() {
 	b, err := base64.StdEncoding.DecodeString(strings.Join(blob[:], ""))
 	if err != nil || len(b) != 606 {
-		panic("forestmodel: the node table does not decode")
+		panic("forestmodel: the forest's tables do not decode")
 	}
-	feat, b = decodeUint8(b, numNodes)
-	far, b = decodeUint8(b, numNodes)
-	roots, b = decodeUint32(b, numTrees)
-	thr, b = decodeFloat64(b, numNodes)
+	feat, b = decodeUint8(b, 33)
+	far, b = decodeUint8(b, 33)
+	thr, b = decodeFloat64(b, 33)
+	roots, b = decodeUint32(b, 1)
 	leafValues, _ = decodeFloat64(b, 34)
 }
 
 func decodeUint8(b []byte, n int) ([]uint8, []byte) {
 	return b[:n:n], b[n:]
-}
-
-func decodeUint32(b []byte, n int) ([]uint32, []byte) {
-	v := make([]uint32, n)
-	for i := range v {
-		v[i] = binary.LittleEndian.Uint32(b[4*i:])
-	}
-	return v, b[4*n:]
 }
 
 func decodeFloat64(b []byte, n int) ([]float64, []byte) {
@@ -174,7 +163,15 @@ func decodeFloat64(b []byte, n int) ([]float64, []byte) {
 	return v, b[8*n:]
 }
 
-// blob holds, base64-encoded, little-endian: feat, far, roots, thr, leafValues.
+func decodeUint32(b []byte, n int) ([]uint32, []byte) {
+	v := make([]uint32, n)
+	for i := range v {
+		v[i] = binary.LittleEndian.Uint32(b[4*i:])
+	}
+	return v, b[4*n:]
+}
+
+// blob holds feat, far, thr, roots, leafValues in order, little-endian, base64-encoded.
 var blob = [...]string{
-	"EAH/EgP/FAX/Fgf/GAn/Ggv/HA3/Hg//////////////IAIAHAIBGAICFAIDEAIEDAIFCAIGBAIHCAkKCwwNDg8QAAAAAAEAAAAAAACAAAAAAAAA4D8AAAAAAAAAAAEAAAAAAPC/AAAAAAAA+D8AAAAAAAAAAAEAAAAAAADAAAAAAAAABEAAAAAAAAAAAAEAAAAAAAjAAAAAAAAADEAAAAAAAAAAAAEAAAAAABDAAAAAAAAAEkAAAAAAAAAAAAEAAAAAABTAAAAAAAAAFkAAAAAAAAAAAAEAAAAAABjAAAAAAAAAGkAAAAAAAAAAAAEAAAAAABzAAAAAAAAAHkAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAALA/AAAAAAAA7j8AAAAAAADIPwAAAAAAAOo/AAAAAAAA1D8AAAAAAADmPwAAAAAAANw/AAAAAAAA4j8AAAAAAADiPwAAAAAAANw/AAAAAAAA5j8AAAAAAADUPwAAAAAAAOo/AAAAAAAAyD8AAAAAAADuPwAAAAAAALA/AAAAAAAA4D8AAAAAAADgPwAAAAAAAOw/AAAAAAAAwD8AAAAAAADoPwAAAAAAANA/AAAAAAAA5D8AAAAAAADYPwAAAAAAAOA/AAAAAAAA4D8AAAAAAADYPwAAAAAAAOQ/AAAAAAAA0D8AAAAAAADoPwAAAAAAAMA/AAAAAAAA7D8AAAAAAAAAAAAAAAAAAPA/",
+	"EAH/EgP/FAX/Fgf/GAn/Ggv/HA3/Hg//////////////IAIAHAIBGAICFAIDEAIEDAIFCAIGBAIHCAkKCwwNDg8QAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAAAAAQAAAAAAAMAAAAAAAAAEQAAAAAAAAAAAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAAAAQAAAAAAEMAAAAAAAAASQAAAAAAAAAAAAQAAAAAAFMAAAAAAAAAWQAAAAAAAAAAAAQAAAAAAGMAAAAAAAAAaQAAAAAAAAAAAAQAAAAAAHMAAAAAAAAAeQAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAALA/AAAAAAAA7j8AAAAAAADIPwAAAAAAAOo/AAAAAAAA1D8AAAAAAADmPwAAAAAAANw/AAAAAAAA4j8AAAAAAADiPwAAAAAAANw/AAAAAAAA5j8AAAAAAADUPwAAAAAAAOo/AAAAAAAAyD8AAAAAAADuPwAAAAAAALA/AAAAAAAA4D8AAAAAAADgPwAAAAAAAOw/AAAAAAAAwD8AAAAAAADoPwAAAAAAANA/AAAAAAAA5D8AAAAAAADYPwAAAAAAAOA/AAAAAAAA4D8AAAAAAADYPwAAAAAAAOQ/AAAAAAAA0D8AAAAAAADoPwAAAAAAAMA/AAAAAAAA7D8AAAAAAAAAAAAAAAAAAPA/",
 }

@@ -63,17 +63,7 @@ func PredictClass(x *[NumFeatures]float64) int {
 
 // The forest as one table (see the descent in leaf): nodes in depth-first order per
 // tree, decoded once by init from blob.
-const (
-	numNodes = 11
-	leafMark = 255
-)
-
-var (
-	feat  []uint8   // index into xx tested at each node; leafMark at a leaf
-	far   []uint8   // offset to the child taken when the test fails
-	thr   []float64 // threshold; the value at a leaf
-	roots []uint32  // first node of each tree
-)
+const leafMark = 255
 
 // leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)
 // goes to i+far[i], a passed one to i+1; the step is computed, not branched on.
@@ -92,27 +82,26 @@ func leaf(xx *[2 * NumFeatures]float64, i int) int {
 	}
 }
 
+var (
+	feat  []uint8   // index into xx tested at each node; leafMark at a leaf
+	far   []uint8   // offset to the child taken when the test fails
+	thr   []float64 // threshold; the value at a leaf
+	roots []uint32  // first node of each tree
+)
+
 func init() {
 	b, err := base64.StdEncoding.DecodeString(strings.Join(blob[:], ""))
 	if err != nil || len(b) != 122 {
-		panic("forestmodel: the node table does not decode")
+		panic("forestmodel: the forest's tables do not decode")
 	}
-	feat, b = decodeUint8(b, numNodes)
-	far, b = decodeUint8(b, numNodes)
-	roots, b = decodeUint32(b, numTrees)
-	thr, b = decodeFloat64(b, numNodes)
+	feat, b = decodeUint8(b, 11)
+	far, b = decodeUint8(b, 11)
+	thr, b = decodeFloat64(b, 11)
+	roots, _ = decodeUint32(b, 3)
 }
 
 func decodeUint8(b []byte, n int) ([]uint8, []byte) {
 	return b[:n:n], b[n:]
-}
-
-func decodeUint32(b []byte, n int) ([]uint32, []byte) {
-	v := make([]uint32, n)
-	for i := range v {
-		v[i] = binary.LittleEndian.Uint32(b[4*i:])
-	}
-	return v, b[4*n:]
 }
 
 func decodeFloat64(b []byte, n int) ([]float64, []byte) {
@@ -123,9 +112,17 @@ func decodeFloat64(b []byte, n int) ([]float64, []byte) {
 	return v, b[8*n:]
 }
 
-// blob holds, base64-encoded, little-endian: feat, far, roots, thr.
+func decodeUint32(b []byte, n int) ([]uint32, []byte) {
+	v := make([]uint32, n)
+	for i := range v {
+		v[i] = binary.LittleEndian.Uint32(b[4*i:])
+	}
+	return v, b[4*n:]
+}
+
+// blob holds feat, far, thr, roots in order, little-endian, base64-encoded.
 var blob = [...]string{
-	"AQL///8A//8B//8EAgAAAAIAAAIAAAAAAAAFAAAACAAAAAAAAAAAwE5AAQAAAACAKMAzMzMzMzPjPzMzMzMzM9O/AAAAAAAA/D8AAAAAAAAkQJqZmZmZmcm/AAAAAAAAREAAAAAAAIBRQAAAAAAAAInAexSuR+F6hD8=",
+	"AQL///8A//8B//8EAgAAAAIAAAIAAAAAAAAAwE5AAQAAAACAKMAzMzMzMzPjPzMzMzMzM9O/AAAAAAAA/D8AAAAAAAAkQJqZmZmZmcm/AAAAAAAAREAAAAAAAIBRQAAAAAAAAInAexSuR+F6hD8AAAAABQAAAAgAAAA=",
 }
 
 // sigmoid is the logistic function in the form that never overflows.
