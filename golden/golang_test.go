@@ -6,8 +6,10 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+	"time"
 
 	"sawmill/compile"
+	"sawmill/emit"
 	"sawmill/emit/golang"
 	"sawmill/forest"
 )
@@ -35,14 +37,19 @@ func stump(feature int, t float64, missingLeft bool, lv, rv []float64) forest.Tr
 }
 
 // chain is a tree of depth d whose node i splits feature i%nf at
-// thresholds[i%len]; each left child is a leaf of value i, the last right
-// child a leaf of value -1. Missing goes left at odd depths.
+// thresholds[i%len] (at i itself when thresholds is nil, so that no split
+// is decided by the ones above it); each left child is a leaf of value i,
+// the last right child a leaf of value -1. Missing goes left at odd depths.
 func chain(d, nf int, thresholds []float64) forest.Tree {
 	var t forest.Tree
 	for i := 0; i < d; i++ {
 		split := len(t.Left)
 		t.Feature = append(t.Feature, i%nf, -1)
-		t.Threshold = append(t.Threshold, thresholds[i%len(thresholds)], 0)
+		th := float64(i)
+		if thresholds != nil {
+			th = thresholds[i%len(thresholds)]
+		}
+		t.Threshold = append(t.Threshold, th, 0)
 		t.Left = append(t.Left, split+1, -1)
 		t.Right = append(t.Right, split+2, -1)
 		t.MissingLeft = append(t.MissingLeft, i%2 == 1, false)
@@ -285,5 +292,40 @@ func TestGoEmittedHeader(t *testing.T) {
 		if !strings.Contains(string(files[0].Data), p.Hash) {
 			t.Errorf("%s: the model hash is not in the header", layout)
 		}
+	}
+}
+
+// TestGoDeepChain builds a 100,000-deep chain the way auto emits it (the
+// table: nested code of that depth is a single function the Go compiler
+// builds slowly) and a 3,000-deep one nested, which the nested layout keeps
+// flat, and scores both exactly.
+func TestGoDeepChain(t *testing.T) {
+	if _, err := goEnv(); err != nil {
+		t.Skip("no go command on PATH: the Go runner needs the toolchain")
+	}
+	for _, c := range []struct {
+		depth  int
+		layout string
+	}{{100_000, emit.Auto}, {3_000, emit.Nested}} {
+		f := &forest.Forest{Task: forest.Regression, Features: []string{"a", "b", "c"}, InputPrecision: forest.Float64,
+			Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5},
+			Trees: []forest.Tree{chain(c.depth, 3, nil), randomTree(rand.New(rand.NewPCG(3, 4)), 20, 3, 1, edgeThresholds)}}
+		if err := f.Validate("chain"); err != nil {
+			t.Fatal(err)
+		}
+		p, _, err := compile.Compile(f, compile.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if d := p.MaxDepth(); d != c.depth {
+			t.Fatalf("compiled chain has depth %d, want %d", d, c.depth)
+		}
+		rows := edgeRows(f, 200, 5)
+		res, err := goRunner{}.Score(context.Background(), p, c.layout, "", rows, t.TempDir())
+		if err != nil {
+			t.Fatalf("depth %d, %s: %v", c.depth, c.layout, err)
+		}
+		checkAgainstInterpreter(t, f, rows, res)
+		t.Logf("depth %d, %s: build %v", c.depth, c.layout, res.Build.Round(time.Millisecond))
 	}
 }
