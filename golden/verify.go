@@ -29,9 +29,12 @@ type VerifyOptions struct {
 	// Layouts limits the layouts to these (each runner's Layouts()
 	// otherwise); a layout a runner does not have is left out for it.
 	Layouts []string
-	// Variants limits the variants ("double", "float" for C).
+	// Variants limits the variants ("double", "float" for C) of the runners
+	// that have any of them; other runners run all of theirs.
 	Variants []string
-	// Dialects limits the SQL engines, by runner name.
+	// Dialects limits the SQL dialects: an engine's name for its own
+	// dialect (variant "" of its runner), AnsiDialect for the portable one
+	// (run on every selected engine). Engines are chosen with Targets.
 	Dialects []string
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
 	// to the runner (SAWMILL_POSTGRES_DSN).
@@ -109,7 +112,11 @@ type Check struct {
 	Reason string `json:"reason,omitempty"`
 	// Exact is whether outputs must be bit-identical; otherwise Bound is
 	// the largest absolute difference allowed.
-	Exact           bool   `json:"exact"`
+	Exact bool `json:"exact"`
+	// Float32Inputs says the target takes float32 inputs (C's float
+	// variant), so the reference is the model on the rows rounded to
+	// float32, all the target receives.
+	Float32Inputs   bool   `json:"float32_inputs,omitempty"`
 	Bound           Num    `json:"bound,omitempty"`
 	Rows            int    `json:"rows"`
 	Matches         int    `json:"matches"` // rows whose outputs and class agree
@@ -231,15 +238,12 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	c := compile.Cover(f, x)
 	rep.Coverage = Coverage{c.Leaves, c.LeavesHit, c.Branches, c.BranchesHit}
 
-	k := f.NumOutputs()
-	want := make([]float64, rows.Len()*k)
-	var wantCls []int
-	for i := range x {
-		out := want[i*k : (i+1)*k]
-		f.Predict(x[i], out)
-		if f.IsClassifier() {
-			wantCls = append(wantCls, f.ClassOf(out))
+	refs := map[bool]*reference{}
+	refFor := func(round32 bool) *reference {
+		if refs[round32] == nil {
+			refs[round32] = newReference(f, x, round32)
 		}
+		return refs[round32]
 	}
 
 	for _, name := range missing {
@@ -251,7 +255,10 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 	for _, r := range sel {
 		r, restore := usePostgres(r, o.PostgresDSN)
-		variants, layouts := selectNames(r.Variants(), o.Variants), selectNames(r.Layouts(), o.Layouts)
+		variants, layouts := runnerVariants(r, o.Variants), selectNames(r.Layouts(), o.Layouts)
+		if isSQLEngine(r.Name()) {
+			variants = sqlVariants(r, o)
+		}
 		if len(variants) == 0 || len(layouts) == 0 {
 			ch := &Check{Target: r.Name(), Status: NotRun,
 				Reason: fmt.Sprintf("none of the layouts and variants asked for: it has layouts %s and variants %s",
@@ -284,7 +291,9 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 						p, _, _ = compile.Compile(f, r.CompileOptions(variant))
 						o.Tamper(r.Name(), layout, variant, p)
 					}
-					runCheck(ctx, ch, r, p, rows, f, want, wantCls, o.TempDir)
+					fi, ok := r.(Float32Inputs)
+					ch.Float32Inputs = ok && fi.Float32Inputs(variant)
+					runCheck(ctx, ch, r, p, rows, f, refFor(ch.Float32Inputs), o.TempDir)
 				}
 				rep.Checks = append(rep.Checks, ch)
 				if o.Done != nil {
@@ -306,7 +315,36 @@ func targetRank(name string) int {
 	return 100
 }
 
-func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows *forest.Rows, f *forest.Forest, want []float64, wantCls []int, tmp string) {
+// reference is the interpreter's answer for every row.
+type reference struct {
+	outputs []float64
+	classes []int // nil for a regressor
+}
+
+// newReference scores rows with f, first rounding every value to float32
+// when the target takes float32 inputs: that is all it receives.
+func newReference(f *forest.Forest, x [][]float64, round32 bool) *reference {
+	k := f.NumOutputs()
+	ref := &reference{outputs: make([]float64, len(x)*k)}
+	in := make([]float64, len(f.Features))
+	for i, row := range x {
+		copy(in, row)
+		if round32 {
+			for j, v := range in {
+				in[j] = float64(float32(v))
+			}
+		}
+		out := ref.outputs[i*k : (i+1)*k]
+		f.Predict(in, out)
+		if f.IsClassifier() {
+			ref.classes = append(ref.classes, f.ClassOf(out))
+		}
+	}
+	return ref
+}
+
+func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows *forest.Rows, f *forest.Forest, ref *reference, tmp string) {
+	want, wantCls := ref.outputs, ref.classes
 	dir, err := os.MkdirTemp(tmp, "sawmill-verify-")
 	if err != nil {
 		ch.Status, ch.Reason = Failed, err.Error()
@@ -504,26 +542,22 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 		}
 		want[t] = true
 	}
+	dialects := append(slices.Clone(sqlEngines), AnsiDialect)
 	for _, d := range o.Dialects {
-		d = strings.ToLower(strings.TrimSpace(d))
-		if !slices.Contains(sqlEngines, d) && !known[d] {
-			return nil, nil, fmt.Errorf("dialect %q is unknown: use one of %s", d, strings.Join(sqlEngines, ", "))
+		if !hasFold(dialects, d) {
+			return nil, nil, fmt.Errorf("dialect %q is unknown: use one of %s", d, strings.Join(dialects, ", "))
 		}
 	}
-	isSQL := func(name string) bool { return slices.Contains(sqlEngines, name) }
 	served := map[string]bool{}
 	for _, r := range all {
 		n := r.Name()
-		ok := len(want) == 0 || want[n] || want["sql"] && isSQL(n)
-		if ok && isSQL(n) && len(o.Dialects) > 0 && !hasFold(o.Dialects, n) {
-			ok = false
+		ok := len(want) == 0 || want[n] || want["sql"] && isSQLEngine(n)
+		if ok && isSQLEngine(n) && len(sqlVariants(r, o)) == 0 {
+			ok = false // none of the dialects asked for
 		}
 		if ok {
 			sel = append(sel, r)
 			served[n] = true
-			if isSQL(n) {
-				served["sql"] = true
-			}
 		}
 	}
 	// Name what was asked for and is not here, so a report never hides a
@@ -534,24 +568,54 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 	}
 	for _, t := range ask {
 		t = strings.ToLower(strings.TrimSpace(t))
-		if t == "sql" {
-			engines := o.Dialects
-			if len(engines) == 0 {
-				engines = sqlEngines
-			}
-			for _, d := range engines {
-				d = strings.ToLower(strings.TrimSpace(d))
-				if !served[d] {
-					missing = append(missing, d)
-				}
+		if t != "sql" {
+			if !served[t] && !slices.Contains(missing, t) {
+				missing = append(missing, t)
 			}
 			continue
 		}
-		if !served[t] {
-			missing = append(missing, t)
+		for _, e := range sqlEngines {
+			// An engine is expected when no dialect is named, or when its
+			// own dialect or the portable one is.
+			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect)
+			if expected && !served[e] && !slices.Contains(missing, e) {
+				missing = append(missing, e)
+			}
 		}
 	}
 	return sel, missing, nil
+}
+
+// runnerVariants applies --variant to a runner that has one of the variants
+// named: "float" picks C's float build and leaves Go and SQL as they are.
+func runnerVariants(r Runner, only []string) []string {
+	v := selectNames(r.Variants(), only)
+	if len(v) == 0 {
+		return r.Variants()
+	}
+	return v
+}
+
+// AnsiDialect is the portable SQL dialect, a variant every SQL engine
+// runner runs beside its own dialect (variant "").
+const AnsiDialect = "ansi"
+
+func isSQLEngine(name string) bool { return slices.Contains(sqlEngines, name) }
+
+// sqlVariants are the variants of an SQL engine runner whose dialect is
+// asked for: variant "" is the engine's own dialect, named like the engine.
+func sqlVariants(r Runner, o VerifyOptions) []string {
+	var out []string
+	for _, v := range runnerVariants(r, o.Variants) {
+		d := v
+		if d == "" {
+			d = r.Name()
+		}
+		if len(o.Dialects) == 0 || hasFold(o.Dialects, d) {
+			out = append(out, v)
+		}
+	}
+	return out
 }
 
 func hasFold(list []string, s string) bool {

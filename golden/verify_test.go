@@ -140,7 +140,15 @@ func TestVerifyGivenRowsCoverage(t *testing.T) {
 
 // evalFirstDiff finds the first row where p, as a target would compute it,
 // disagrees with the interpreter on rows: the row Verify must name.
-func evalFirstDiff(f *forest.Forest, p *compile.Program, rows *forest.Rows, exact bool, bound float64) int {
+func evalFirstDiff(f *forest.Forest, p *compile.Program, rows *forest.Rows, exact bool, bound float64, round32 bool) int {
+	if round32 { // the reference for a float-input target
+		r := *rows
+		r.Values = make([]float64, len(rows.Values))
+		for i, v := range rows.Values {
+			r.Values[i] = float64(float32(v))
+		}
+		rows = &r
+	}
 	k := f.NumOutputs()
 	want := make([]float64, rows.Len()*k)
 	got := make([]float64, rows.Len()*k)
@@ -189,7 +197,7 @@ var plantedFaults = []plantedFault{
 // plantFirstVisible finds the first node of tree 0 where the plantedFault changes
 // some row's result under the given tolerance, and returns it with the
 // row Verify must report, or -1.
-func plantFirstVisible(t *testing.T, f *forest.Forest, opts compile.Options, fl plantedFault, rows *forest.Rows, exact bool, bound float64) (node, row int) {
+func plantFirstVisible(t *testing.T, f *forest.Forest, opts compile.Options, fl plantedFault, rows *forest.Rows, exact bool, bound float64, round32 bool) (node, row int) {
 	t.Helper()
 	base, _, err := compile.Compile(f, opts)
 	require.NoError(t, err)
@@ -198,7 +206,7 @@ func plantFirstVisible(t *testing.T, f *forest.Forest, opts compile.Options, fl 
 		if !fl.plant(p, i) {
 			continue
 		}
-		if r := evalFirstDiff(f, p, rows, exact, bound); r >= 0 {
+		if r := evalFirstDiff(f, p, rows, exact, bound, round32); r >= 0 {
 			return i, r
 		}
 	}
@@ -218,7 +226,7 @@ func TestVerifyCatchesPlantedFault(t *testing.T) {
 	rows := verifyProbeRows(f)
 	for _, fl := range plantedFaults {
 		t.Run(fl.name, func(t *testing.T) {
-			node, wantRow := plantFirstVisible(t, f, compile.Options{}, fl, rows, true, 0)
+			node, wantRow := plantFirstVisible(t, f, compile.Options{}, fl, rows, true, 0, false)
 			require.GreaterOrEqual(t, node, 0, "no node of tree 0 where the plantedFault shows")
 			rep, err := Verify(context.Background(), f, nil, VerifyOptions{
 				Runners: []Runner{evalRunner{name: "go", layouts: []string{"nested"}, variants: []string{""}}},
@@ -304,12 +312,37 @@ func TestVerifySelection(t *testing.T) {
 	}
 	// duckdb has no table layout: said so, not dropped.
 	require.Equal(t, []string{"c:float:table:agree", "duckdb:::not run"}, names)
+
+	// The portable dialect runs on every engine, the engine's own dialects
+	// only where named; a variant no runner of a kind has leaves it alone.
+	rs = []Runner{
+		evalRunner{name: "go", layouts: []string{"nested"}, variants: []string{""}},
+		evalRunner{name: "sqlite", layouts: []string{"nested"}, variants: []string{"", "ansi"}},
+		evalRunner{name: "duckdb", layouts: []string{"nested"}, variants: []string{"", "ansi"}},
+		evalRunner{name: "postgres", layouts: []string{"nested"}, variants: []string{"", "ansi"}},
+	}
+	checks := func(o VerifyOptions) []string {
+		o.Runners, o.MaxRows = rs, 20
+		rep, err := Verify(context.Background(), f, nil, o)
+		require.NoError(t, err)
+		var names []string
+		for _, c := range rep.Checks {
+			names = append(names, c.Target+":"+c.Variant+":"+string(c.Status))
+		}
+		return names
+	}
+	require.Equal(t, []string{"sqlite:ansi:agree", "duckdb:ansi:agree", "postgres:ansi:agree"},
+		checks(VerifyOptions{Targets: []string{"sql"}, Dialects: []string{"ansi"}}))
+	require.Equal(t, []string{"go::agree", "postgres::agree"},
+		checks(VerifyOptions{Targets: []string{"go", "postgres"}, Dialects: []string{"postgres"}}))
+	require.Equal(t, []string{"go::agree", "sqlite::agree", "sqlite:ansi:agree"},
+		checks(VerifyOptions{Targets: []string{"go", "sqlite"}, Variants: []string{"float"}}))
 }
 
 func TestReportJSON(t *testing.T) {
 	f := verifyWine(t)
 	rows := verifyProbeRows(f)
-	node, _ := plantFirstVisible(t, f, compile.Options{}, plantedFaults[0], rows, true, 0)
+	node, _ := plantFirstVisible(t, f, compile.Options{}, plantedFaults[0], rows, true, 0, false)
 	rep, err := Verify(context.Background(), f, nil, VerifyOptions{
 		Runners: []Runner{evalRunner{name: "go", layouts: []string{"nested"}, variants: []string{""}}},
 		Targets: []string{"go"},
@@ -350,7 +383,9 @@ func TestVerifyTargetsCatchPlantedFaults(t *testing.T) {
 					base, _, err := compile.Compile(f, r.CompileOptions(variant))
 					require.NoError(t, err)
 					exact, bound := r.Tolerance(variant, base)
-					node, wantRow := plantFirstVisible(t, f, r.CompileOptions(variant), fl, rows, exact, bound)
+					fi, ok := r.(Float32Inputs)
+					round32 := ok && fi.Float32Inputs(variant)
+					node, wantRow := plantFirstVisible(t, f, r.CompileOptions(variant), fl, rows, exact, bound, round32)
 					require.GreaterOrEqual(t, node, 0, "no node of tree 0 where the plantedFault shows")
 					rep, err := Verify(context.Background(), f, nil, VerifyOptions{
 						Runners:  []Runner{r},

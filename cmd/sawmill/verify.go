@@ -43,7 +43,9 @@ func newVerifyCmd() *cobra.Command {
 (the Go toolchain, the C compiler) or loads it into the engine (SQLite,
 DuckDB, PostgreSQL), scores every row, and holds each output against
 sawmill's reference interpreter: bit for bit where the target computes in
-double precision, within a stated bound where it cannot (C with --float).
+double precision, within a stated bound where it cannot (C's float variant,
+which also receives its inputs as float32: its reference is the model on
+the rows rounded to float32).
 
 Rows come from --data, or are generated from the model itself: one row for
 every reachable leaf, and rows at every threshold, at its float64 and
@@ -180,7 +182,8 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 	fmt.Fprintf(w, "coverage  leaves %d of %d (%.1f%%), branch directions %d of %d (%.1f%%)\n\n",
 		cv.LeavesHit, cv.Leaves, 100*cv.LeafShare(), cv.BranchesHit, cv.Branches, 100*cv.BranchShare())
 
-	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	var table strings.Builder
+	tw := tabwriter.NewWriter(&table, 2, 8, 2, ' ', 0)
 	fmt.Fprintln(tw, "target\tlayout\tresult\trows\tagree\tmax |diff|\tlabels off\tbuild\tscore\tcompared")
 	for _, ch := range rep.Checks {
 		name := ch.Target
@@ -193,17 +196,24 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 		}
 		switch ch.Status {
 		case golden.NotRun, golden.Failed:
-			fmt.Fprintf(tw, "%s\t%s\t%s\n", name, layout, ch.Status)
+			// Every cell, even empty, keeps the columns aligned.
+			fmt.Fprintf(tw, "%s\t%s\t%s\t\t\t\t\t\t\t\n", name, layout, ch.Status)
 			continue
 		}
 		cmp := "bit for bit"
 		if !ch.Exact {
 			cmp = fmt.Sprintf("within %.3g", float64(ch.Bound))
 		}
+		if ch.Float32Inputs {
+			cmp += ", float32 inputs"
+		}
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%s\t%d\t%s\t%s\t%s\n", name, layout, ch.Status, ch.Rows, ch.Matches,
 			diffString(float64(ch.MaxAbsDiff)), ch.LabelMismatches, seconds(time.Duration(ch.Build)), seconds(time.Duration(ch.Run)), cmp)
 	}
 	tw.Flush()
+	for _, line := range strings.SplitAfter(table.String(), "\n") {
+		fmt.Fprint(w, strings.TrimRight(line, " "))
+	}
 
 	for _, ch := range rep.Checks {
 		switch ch.Status {
@@ -242,6 +252,9 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 		fmt.Fprintf(tw, "  %s\t%s\n", v.Name, cell(float64(v.Value)))
 	}
 	tw.Flush()
+	if ch.Float32Inputs {
+		fmt.Fprintln(w, "  (the target takes float32 inputs: want is the model on these values rounded to float32)")
+	}
 	tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
 	vec := func(v []golden.Num) string {
 		s := make([]string, len(v))
