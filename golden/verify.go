@@ -291,7 +291,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 						p, _, _ = compile.Compile(f, r.CompileOptions(variant))
 						o.Tamper(r.Name(), layout, variant, p)
 					}
-					fi, ok := r.(Float32Inputs)
+					fi, ok := r.(interface{ Float32Inputs(variant string) bool })
 					ch.Float32Inputs = ok && fi.Float32Inputs(variant)
 					runCheck(ctx, ch, r, p, rows, f, refFor(ch.Float32Inputs), o.TempDir)
 				}

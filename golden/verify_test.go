@@ -383,7 +383,7 @@ func TestVerifyTargetsCatchPlantedFaults(t *testing.T) {
 					base, _, err := compile.Compile(f, r.CompileOptions(variant))
 					require.NoError(t, err)
 					exact, bound := r.Tolerance(variant, base)
-					fi, ok := r.(Float32Inputs)
+					fi, ok := r.(interface{ Float32Inputs(variant string) bool })
 					round32 := ok && fi.Float32Inputs(variant)
 					node, wantRow := plantFirstVisible(t, f, r.CompileOptions(variant), fl, rows, exact, bound, round32)
 					require.GreaterOrEqual(t, node, 0, "no node of tree 0 where the plantedFault shows")
