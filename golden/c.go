@@ -22,14 +22,19 @@ import (
 )
 
 // cRunner builds emitted C with the real compilers and runs it. Every Score
-// builds the program, with a small driver that reads rows as float64 bit
-// patterns and prints outputs with %a (exact), in a matrix of toolchains:
-// gcc and clang, -std=c99 and -std=c11, -O0 and -O2, each with -Wall -Wextra
-// -Wpedantic -Wshadow -Wconversion -Wdouble-promotion -Werror, plus one gcc
-// build with -fsanitize=address,undefined and a C++ compile of the header.
-// Programs above cFullMatrixNodes nodes get the reduced matrix
-// (cReducedMatrix). Every build must print the same bytes.
-type cRunner struct{}
+// builds the program with a small driver that reads rows as float64 bit
+// patterns and prints outputs with %a (exact), with several toolchains, each
+// with -Wall -Wextra -Wpedantic -Wshadow -Wconversion -Wdouble-promotion
+// -Wstrict-prototypes -Wmissing-prototypes -Werror; every build must print
+// the same bytes. The registered runner uses cQuickMatrix (gcc -std=c99 -O2
+// and clang -std=c11 -O0), which keeps the differential test cheap; with
+// Full set (c_test.go runs every golden case so) it uses cMatrix, gcc and
+// clang at -std=c99 and -std=c11 and -O0 and -O2 plus a gcc build with
+// -fsanitize=address,undefined and a C++ compile of the header, or, above
+// cFullMatrixNodes nodes, cBigMatrix.
+type cRunner struct {
+	Full bool
+}
 
 // cName is the --name used in tests; not the default, so that a missed
 // Options.Name shows.
@@ -65,9 +70,16 @@ var cMatrix = []cBuild{
 	{"gcc", "c99", "O1", true},
 }
 
-// cReducedMatrix is for big programs: both compilers and standards at -O2,
-// and the sanitizers.
-var cReducedMatrix = []cBuild{
+// cQuickMatrix is the registered runner's: both compilers, standards and
+// optimisation levels, two builds.
+var cQuickMatrix = []cBuild{
+	{"gcc", "c99", "O2", false},
+	{"clang", "c11", "O0", false},
+}
+
+// cBigMatrix is for big programs: both compilers and standards at -O2, and
+// the sanitizers.
+var cBigMatrix = []cBuild{
 	{"gcc", "c99", "O2", false},
 	{"clang", "c11", "O2", false},
 	{"gcc", "c99", "O1", true},
@@ -137,11 +149,14 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 	if err := cTools(); err != nil {
 		return nil, err
 	}
-	matrix := cMatrix
-	if p.NumNodes() > cFullMatrixNodes {
-		matrix = cReducedMatrix
+	matrix, cxx := cQuickMatrix, false
+	switch {
+	case r.Full && p.NumNodes() <= cFullMatrixNodes:
+		matrix, cxx = cMatrix, true
+	case r.Full:
+		matrix = cBigMatrix
 	}
-	return r.score(ctx, p, r.options(layout, variant), rows, dir, matrix, len(matrix) == len(cMatrix))
+	return r.score(ctx, p, r.options(layout, variant), rows, dir, matrix, cxx)
 }
 
 // score emits p, builds it in every configuration of matrix (and checks the
@@ -392,4 +407,28 @@ func parseHexFloat(s string) (float64, error) {
 		return math.Inf(1), nil
 	}
 	return strconv.ParseFloat(s, 64)
+}
+
+// Float32Inputs is implemented by runners with a variant that takes float32
+// inputs (C's float API): the reference for that variant is the interpreter
+// on the rows rounded to float32, since that is all the emitted code
+// receives.
+type Float32Inputs interface {
+	Float32Inputs(variant string) bool
+}
+
+// ReferenceFor is Reference for runner r's variant: on the rows rounded to
+// float32 when the variant takes float32 inputs.
+func (c *Case) ReferenceFor(r Runner, variant string) (outputs []float64, classes []int) {
+	if fi, ok := r.(Float32Inputs); !ok || !fi.Float32Inputs(variant) {
+		return c.Reference()
+	}
+	rows := *c.Rows
+	rows.Values = make([]float64, len(c.Rows.Values))
+	for i, v := range c.Rows.Values {
+		rows.Values[i] = float64(float32(v))
+	}
+	rounded := *c
+	rounded.Rows = &rows
+	return rounded.Reference()
 }

@@ -3,7 +3,7 @@ package golden
 import (
 	"context"
 	"math"
-	"path/filepath"
+	"slices"
 	"testing"
 
 	"github.com/stretchr/testify/require"
@@ -131,9 +131,9 @@ func checkC(t *testing.T, f *forest.Forest, rows *forest.Rows) {
 	if err := cTools(); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
-	r := cRunner{}
+	r := cRunner{Full: true}
 	for _, variant := range r.Variants() {
-		for _, layout := range []string{emit.Nested, emit.Table, emit.Auto} {
+		for _, layout := range r.Layouts() {
 			t.Run(layout+"-"+variant, func(t *testing.T) {
 				t.Parallel()
 				p, _, err := compile.Compile(f, r.CompileOptions(variant))
@@ -227,6 +227,13 @@ func TestCDeepTree(t *testing.T) {
 	require.NoError(t, err)
 	require.Greater(t, p.MaxDepth(), cemit.MaxNesting, "the tree must be deeper than the nesting bound")
 	checkC(t, f, rows)
+	layout, _, err := cemit.Resolve(p, cemit.Options{})
+	require.NoError(t, err)
+	res, err := cRunner{}.Score(context.Background(), p, emit.Auto, "double", rows, t.TempDir())
+	require.NoError(t, err, "auto (%s)", layout)
+	want, _ := cReference(f, rows, false)
+	m := Compare(want, res.Outputs, nil, nil, 1, true, 0)
+	require.True(t, m.OK(), "auto (%s): %s", layout, m)
 }
 
 // Names that could end a comment or a string early, form trigraphs, collide
@@ -260,32 +267,50 @@ func TestCHostileNames(t *testing.T) {
 	}
 }
 
-// The scikit-learn fixtures (see forest/sklearn_test.go for their sources):
-// double C in every layout scores every row within 1e-12 of scikit-learn
-// 1.2.1's predict_proba, and bit-identically to the interpreter.
-func TestCSklearn(t *testing.T) {
+// Every golden case in every layout and variant, with the full toolchain
+// matrix (TestGolden runs the registered runner's quick one). For the
+// scikit-learn fixtures (sources in forest/sklearn_test.go), double C must
+// also score every row within 1e-12 of scikit-learn 1.2.1's recorded
+// predict_proba.
+func TestCGoldenCasesFullMatrix(t *testing.T) {
 	if err := cTools(); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
-	for _, name := range []string{"sklearn-wine", "sklearn-breast-cancer"} {
-		c, err := LoadCase(filepath.Join("testdata", name), name)
-		require.NoError(t, err)
-		require.NotNil(t, c.Sklearn, "%s: sklearn.csv is missing", name)
-		for _, layout := range []string{emit.Nested, emit.Table} {
-			t.Run(name+"/"+layout, func(t *testing.T) {
-				t.Parallel()
-				r := cRunner{}
-				p, _, err := compile.Compile(c.Model, r.CompileOptions("double"))
-				require.NoError(t, err)
-				res, err := r.Score(context.Background(), p, layout, "double", c.Rows, t.TempDir())
-				require.NoError(t, err)
-				want, wantCls := c.Reference()
-				m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, true, 0)
-				require.True(t, m.OK(), "%s", m)
-				checkAgainst(t, c, res.Outputs, "emitted C "+layout)
-			})
+	cases, err := Cases("testdata")
+	require.NoError(t, err)
+	r := cRunner{Full: true}
+	sklearn := 0
+	for _, c := range cases {
+		if c.WantErr != "" || len(c.Flags.Runners) > 0 && !slices.Contains(c.Flags.Runners, r.Name()) {
+			continue
+		}
+		if c.Sklearn != nil {
+			sklearn++
+		}
+		for _, variant := range r.Variants() {
+			for _, layout := range r.Layouts() {
+				t.Run(c.Name+"/"+layout+"-"+variant, func(t *testing.T) {
+					if c.Flags.Slow && testing.Short() {
+						t.Skip("slow case: runs without -short")
+					}
+					t.Parallel()
+					p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
+					require.NoError(t, err)
+					res, err := r.Score(context.Background(), p, layout, variant, c.Rows, t.TempDir())
+					require.NoError(t, err)
+					want, wantCls := c.ReferenceFor(r, variant)
+					exact, bound := r.Tolerance(variant, p)
+					m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound)
+					require.True(t, m.OK(), "%s", m)
+					t.Logf("%s (bound %g)", m, bound)
+					if c.Sklearn != nil && variant == "double" {
+						checkAgainst(t, c, res.Outputs, "emitted C "+layout)
+					}
+				})
+			}
 		}
 	}
+	require.GreaterOrEqual(t, sklearn, 2, "the scikit-learn fixtures sklearn-wine and sklearn-breast-cancer must be among the cases")
 }
 
 func TestCParseHexFloat(t *testing.T) {

@@ -97,7 +97,7 @@ func runOne(t *testing.T, c *Case, r Runner, layout, variant string, wantFiles m
 	if err != nil {
 		t.Fatalf("%s %s: %v", r.Name(), layout, err)
 	}
-	want, wantCls := c.Reference()
+	want, wantCls := c.ReferenceFor(r, variant)
 	exact, bound := r.Tolerance(variant, p)
 	m := Compare(want, res.Outputs, wantCls, res.Classes, c.Model.NumOutputs(), exact, bound)
 	if !m.OK() {

@@ -69,6 +69,7 @@ func Runners() []Runner {
 		sqliteRunner{sqlRunner{"sqlite"}},
 		sqlRunner{"duckdb"},
 		sqlRunner{"postgres"},
+		cRunner{},
 	}
 }
 

@@ -99,6 +99,7 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	default:
 		panic("BUG: cemit: layout " + g.layout)
 	}
+	g.finish(&body)
 	return []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
 		{Name: g.name + ".c", Data: g.source(body.bytes())},
@@ -470,7 +471,7 @@ func (g *gen) header() []byte {
 		w.line(" *   %s: %s, %d x %d = %d bytes", t.Name, comment(t.What), t.Len, t.ElemBytes, t.Bytes())
 		total += t.Bytes()
 	}
-	w.line(" *   total %d bytes (%.2f bytes per node)", total, float64(total)/float64(p.NumNodes()))
+	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
 	w.line(" *")
 	if g.o.Float {
 		w.line(" * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every")
@@ -481,10 +482,12 @@ func (g *gen) header() []byte {
 	} else {
 		w.line(" * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to")
 		w.line(" * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,")
-		w.line(" * ARM VFP): the same comparisons and additions in the same order")
 		if p.Transform != forest.NoTransform {
-			w.line(" * (the transform uses the C library's exp, which may differ from the")
-			w.line(" * interpreter's in the last bit)")
+			w.line(" * ARM VFP): the same comparisons and additions in the same order; the")
+			w.line(" * transform uses the C library's exp, which may differ from the")
+			w.line(" * interpreter's in the last bit.")
+		} else {
+			w.line(" * ARM VFP): the same comparisons and additions in the same order.")
 		}
 		w.line(" * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the")
 		w.line(" * last bit; comparisons stay exact.")
@@ -563,12 +566,16 @@ func (g *gen) docLines() []string {
 	var l []string
 	T := len(p.Trees)
 	each := "leaf_t(x), the value vector of the leaf x reaches in tree t"
+	terms := fmt.Sprintf("leaf_0(x) + ... + leaf_%d(x)", T-1)
+	if T == 1 {
+		terms = "leaf_0(x)"
+	}
 	switch p.Combine {
 	case forest.Sum:
-		l = append(l, fmt.Sprintf("%s_predict: z = base + leaf_0(x) + ... + leaf_%d(x), added in that order,", g.name, T-1),
+		l = append(l, fmt.Sprintf("%s_predict: z = base + %s, added in that order,", g.name, terms),
 			"with "+each+";")
 	case forest.Average:
-		l = append(l, fmt.Sprintf("%s_predict: z = (0 + leaf_0(x) + ... + leaf_%d(x)) / %d + base, added in that", g.name, T-1, T),
+		l = append(l, fmt.Sprintf("%s_predict: z = (0 + %s) / %d + base, added in that", g.name, terms, T),
 			"order, with "+each+";")
 	}
 	var bs []string
@@ -621,7 +628,6 @@ func (g *gen) source(body []byte) []byte {
 	}
 	w.line("")
 	w.buf.Write(body)
-	g.finish(&w)
 	return w.bytes()
 }
 

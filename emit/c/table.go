@@ -222,6 +222,13 @@ func (tl *tableLayout) leafElemBytes(g *gen) int {
 	return 8
 }
 
+func nbits(n int) string {
+	if n == 1 {
+		return "1 bit"
+	}
+	return fmt.Sprintf("%d bits", n)
+}
+
 // bitsFor is the number of bits that hold 0..n (0 for n <= 0).
 func bitsFor(n int) int {
 	if n <= 0 {
@@ -283,9 +290,9 @@ func (g *gen) table(w *printer) error {
 	T := len(p.Trees)
 
 	// The split words, one line per tree (or several when long).
-	w.line("/* Splits, per tree in preorder: feature (%d bits), threshold index (%d bits)%s%s,", tl.fBits, tl.tBits,
-		map[bool]string{true: ", missing goes left (1)"}[tl.hasML], map[bool]string{true: ", less-than (1)"}[tl.hasLT])
-	w.line(" * left is a leaf (1), right is a leaf (1), splits in the left subtree (%d bits). */", tl.aBits)
+	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), threshold index (%s)%s%s,", nbits(tl.fBits), nbits(tl.tBits),
+		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT])
+	w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s). */", nbits(tl.aBits))
 	nWords := max(len(tl.words), 1) // C has no empty arrays
 	w.line("static const %s %s_node[%d] = {", wt, g.name, nWords)
 	for ti := 0; ti < T; ti++ {
