@@ -285,12 +285,20 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options
 
 // Score implements Runner.
 func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
+	return r.score(ctx, p, rows, dir, func(schema string) (sqlemit.Options, error) {
+		return r.options(p, layout, variant, schema)
+	})
+}
+
+// score runs p with the options opts gives for the session's schema ("" but
+// in PostgreSQL). Options.Keep[0] must be the row-number column.
+func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, opts func(schema string) (sqlemit.Options, error)) (*Result, error) {
 	db, err := r.open(ctx)
 	if err != nil {
 		return nil, err
 	}
 	defer db.close()
-	o, err := r.options(p, layout, variant, db.schema)
+	o, err := opts(db.schema)
 	if err != nil {
 		return nil, err
 	}
@@ -307,12 +315,21 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 	if err := db.load(ctx, p, o, rows); err != nil {
 		return nil, fmt.Errorf("%s: %v", r.engine, err)
 	}
-	return db.run(ctx, p, text, rows.Len(), r.engine)
+	if o.View != "" { // create the view, then read it
+		if _, err := db.conn.ExecContext(ctx, text); err != nil {
+			return nil, fmt.Errorf("%s: create view: %v", r.engine, shorten(err))
+		}
+		text = "SELECT * FROM " + quoteIdent(o.View)
+		if o.Schema != "" {
+			text = "SELECT * FROM " + quoteIdent(o.Schema) + "." + quoteIdent(o.View)
+		}
+	}
+	return db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
 }
 
 // run prepares and runs the statement and reads the result. Build is the
 // prepare time, Run the execution and reading.
-func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n int, engine string) (*Result, error) {
+func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n, extraKeep int, engine string) (*Result, error) {
 	res := &Result{Outputs: make([]float64, n*p.NumOutputs)}
 	start := time.Now()
 	stmt, err := db.conn.PrepareContext(ctx, text)
@@ -339,6 +356,9 @@ func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n int
 	vals := make([]dbsql.NullFloat64, k)
 	var label dbsql.NullString
 	dest := []any{&id}
+	for range extraKeep {
+		dest = append(dest, new(any))
+	}
 	for j := range vals {
 		dest = append(dest, &vals[j])
 	}

@@ -39,7 +39,7 @@ func str(s string) string {
 	return "'" + strings.ReplaceAll(s, "'", "''") + "'"
 }
 
-// num spells a finite float64 so that the dialect reads back exactly the same
+// num (Literal) spells a finite float64 so that the dialect reads back exactly the same
 // double, with the type double precision (never an exact numeric):
 //
 //   - sqlite, duckdb: the shortest round-trip decimal in exponent form,
@@ -57,7 +57,10 @@ func str(s string) string {
 //     the cast pins it. -0 is CAST('-0E+00' AS DOUBLE PRECISION), a cast from
 //     text: SQLite turns -CAST(0E+00 AS ...) into +0, PostgreSQL reads -0E+00
 //     as numeric, which has no -0.
-func (d Dialect) num(v float64) string {
+func (d Dialect) num(v float64) string { return d.Literal(v) }
+
+// Literal spells a finite float64 as the dialect's double literal (see num).
+func (d Dialect) Literal(v float64) string {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		panic(fmt.Sprintf("BUG: sql literal %v is not finite", v))
 	}

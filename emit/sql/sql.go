@@ -48,7 +48,8 @@ type Options struct {
 	// Keep names columns of Table passed through to the result, first and
 	// in this order.
 	Keep []string
-	// View, when set, makes the statement CREATE VIEW View AS ... .
+	// View, when set, makes the statement CREATE VIEW View AS ... (in
+	// Schema, when that is set).
 	View string
 	// Layout is Auto (""), Nested or Table; see the package doc.
 	Layout string

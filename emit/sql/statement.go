@@ -82,9 +82,11 @@ func (g *gen) carry(features bool) []string {
 }
 
 // cte appends one stage: name AS [MATERIALIZED] (SELECT items FROM from).
-// Stages after the first are materialized where the dialect can say so, so
-// that no engine inlines the chain into one expression again (that would
-// bring back the depth limits) or evaluates a column once per reference.
+// Stages after the first are materialized (in ANSI text: fenced by a
+// window function), so that no engine inlines the chain into one
+// expression again (that would bring back the depth limits) or evaluates a
+// column once per reference (exponential over a chain of stages that each
+// refer to the last one's columns several times).
 func (g *gen) cte(items []string, materialize bool) {
 	g.stage++
 	name := g.prefix + strconv.Itoa(g.stage)
@@ -96,6 +98,14 @@ func (g *gen) cte(items []string, materialize bool) {
 		b.WriteString(" AS (\n")
 	}
 	b.WriteString("  SELECT\n")
+	if materialize && g.d == ANSI {
+		// ISO/IEC 9075 cannot ask for materialization, but engines do not
+		// inline a sub-query that computes a window function (SQLite's
+		// flattener and PostgreSQL's subquery pull-up both refuse, from
+		// memory of their sources; measured: without it SQLite's flattener
+		// copies each column into every reference and runs for minutes).
+		items = append(items, "ROW_NUMBER() OVER () AS "+g.prefix+"fence")
+	}
 	for i, it := range items {
 		b.WriteString("    ")
 		b.WriteString(it)
@@ -303,7 +313,11 @@ func firstMax(cols []string, val func(i int) string) string {
 func (g *gen) final() {
 	w := &g.out
 	if g.o.View != "" {
-		fmt.Fprintf(w, "CREATE VIEW %s AS\n", ident(g.o.View))
+		v := ident(g.o.View)
+		if g.o.Schema != "" {
+			v = ident(g.o.Schema) + "." + v
+		}
+		fmt.Fprintf(w, "CREATE VIEW %s AS\n", v)
 	}
 	w.WriteString("WITH\n")
 	for i, c := range g.ctes {
