@@ -408,3 +408,15 @@ func shorten(err error) error {
 	}
 	return err
 }
+
+// SQLRunner returns the runner for engine "sqlite", "duckdb" or
+// "postgres" (for benchmarks and the command line).
+func SQLRunner(engine string) (Runner, error) {
+	switch engine {
+	case "sqlite":
+		return sqliteRunner{sqlRunner{engine}}, nil
+	case "duckdb", "postgres":
+		return sqlRunner{engine}, nil
+	}
+	return nil, fmt.Errorf("unknown SQL engine %q\nhint: use sqlite, duckdb or postgres", engine)
+}
