@@ -1,0 +1,127 @@
+package golden
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"os"
+	"slices"
+	"testing"
+	"time"
+
+	"sawmill/compile"
+	"sawmill/emit"
+	"sawmill/forest"
+)
+
+// deepDepth is the depth of the deep-tree limit test, the depth the project
+// promises to take everywhere.
+const deepDepth = 100_000
+
+// deepForest is a regression model of one chain n splits deep in which
+// every node matters, so no pass can shorten it.
+func deepForest(n int) *forest.Forest {
+	m := 2*n + 1
+	t := forest.Tree{Feature: make([]int, m), Threshold: make([]float64, m), Left: make([]int, m),
+		Right: make([]int, m), MissingLeft: make([]bool, m), Value: make([]float64, m)}
+	// Node 2i splits on x <= i: its leaf hangs left and the chain goes on
+	// right past ever larger thresholds, so no split is decided by its
+	// ancestors; missing values go left at every other node.
+	for i := 0; i < n; i++ {
+		t.Feature[2*i], t.Threshold[2*i] = 0, float64(i)
+		t.Left[2*i], t.Right[2*i] = 2*i+1, 2*i+2
+		t.MissingLeft[2*i] = i%2 == 1
+		t.Feature[2*i+1], t.Left[2*i+1], t.Right[2*i+1], t.Value[2*i+1] = -1, -1, -1, float64(i)+0.25
+	}
+	t.Feature[2*n], t.Left[2*n], t.Right[2*n], t.Value[2*n] = -1, -1, -1, -1
+	f := &forest.Forest{Task: forest.Regression, Features: []string{"x"}, InputPrecision: forest.Float64,
+		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0}, Trees: []forest.Tree{t}}
+	if err := f.Validate("deep"); err != nil {
+		panic("BUG: " + err.Error())
+	}
+	return f
+}
+
+func deepRows(n int) *forest.Rows {
+	vals := []float64{-1, 0, 0.5, float64(n/2) + 0.5, float64(n - 1), float64(n) - 0.5, float64(n), 1e300, math.Inf(1), math.NaN()}
+	rows := &forest.Rows{Features: []string{"x"}, Values: vals}
+	for i := range vals {
+		rows.Line = append(rows.Line, i+2)
+	}
+	return rows
+}
+
+// TestDeepTree: a tree 100,000 deep goes through encode, read, compile and
+// the Program's evaluation without recursion, bit-exact with the
+// interpreter. With SAWMILL_DEEP_TARGETS=1 every target, variant and layout
+// (auto included) builds and scores it too; each that cannot take it is
+// reported by name.
+func TestDeepTree(t *testing.T) {
+	f := deepForest(deepDepth)
+	path := t.TempDir() + "/deep.json"
+	if err := forest.WriteFile(path, f); err != nil {
+		t.Fatal(err)
+	}
+	g, err := forest.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows := deepRows(deepDepth)
+	for _, single := range []bool{false, true} {
+		p, _, err := compile.Compile(g, compile.Options{SingleInputs: single})
+		if err != nil {
+			t.Fatalf("compile (SingleInputs %v): %v", single, err)
+		}
+		if d := p.MaxDepth(); d != deepDepth {
+			t.Fatalf("compiled depth %d, want %d: a pass shortened a chain where every split matters", d, deepDepth)
+		}
+	}
+	if err := checkEval(g, rows); err != nil {
+		t.Fatal(err)
+	}
+	if os.Getenv("SAWMILL_DEEP_TARGETS") == "" {
+		t.Log("set SAWMILL_DEEP_TARGETS=1 to build and score the deep tree with every target (minutes)")
+		return
+	}
+	var cannot []string
+	for _, tg := range allTargets() {
+		if !slices.Contains(tg.r.Layouts(), emit.Auto) && tg.layout == tg.r.Layouts()[0] {
+			auto := tg
+			auto.layout = emit.Auto
+			if o := deepOne(t, auto, g, rows); o != "" {
+				cannot = append(cannot, o)
+			}
+		}
+		if o := deepOne(t, tg, g, rows); o != "" {
+			cannot = append(cannot, o)
+		}
+	}
+	for _, c := range cannot {
+		t.Log("cannot take a tree 100,000 deep: " + c)
+	}
+}
+
+// deepOne scores the deep model with one target and returns "" on success,
+// else the target and what went wrong. A failure of auto fails the test: it
+// must pick a layout the toolchain can build.
+func deepOne(t *testing.T, tg target, f *forest.Forest, rows *forest.Rows) string {
+	start := time.Now()
+	o := runTarget(context.Background(), tg, f, rows, t.TempDir())
+	took := time.Since(start).Round(time.Millisecond)
+	switch {
+	case o.skipped != nil:
+		t.Logf("%s: skipped: %v", tg, o.skipped)
+		return ""
+	case !o.failed():
+		t.Logf("%s: ok in %v", tg, took)
+		return ""
+	}
+	msg := o.String()
+	if len(msg) > 400 {
+		msg = msg[:400] + "…"
+	}
+	if tg.layout == emit.Auto {
+		t.Errorf("%s: layout auto cannot take a tree %d deep (%v): %s", tg, deepDepth, took, msg)
+	}
+	return fmt.Sprintf("%s (%v): %s", tg, took, msg)
+}
