@@ -108,7 +108,28 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	}
 	writeFloats(b, filepath.Join(dir, "rows.bin"), rows)
 	writeFloats(b, filepath.Join(dir, "want.bin"), want)
-	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte("module bench\n\ngo 1.21\n"), 0o644); err != nil {
+	// The driver imports sawmill/forest from this checkout, so that the
+	// interpreter is timed in the same process, interleaved with the layouts.
+	root, err := filepath.Abs(filepath.Join("..", ".."))
+	if err != nil {
+		b.Fatal(err)
+	}
+	mod := fmt.Sprintf("module bench\n\ngo 1.21\n\nrequire sawmill v0.0.0\n\nreplace sawmill => %s\n", root)
+	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte(mod), 0o644); err != nil {
+		b.Fatal(err)
+	}
+	sum, err := os.ReadFile(filepath.Join(root, "go.sum"))
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "go.sum"), sum, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	model, err := forestJSON(f)
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "model.json"), model, 0o644); err != nil {
 		b.Fatal(err)
 	}
 	if err := os.WriteFile(filepath.Join(dir, "main.go"), []byte(benchDriver(layouts, nf, k)), 0o644); err != nil {
@@ -117,35 +138,30 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	start := time.Now()
 	build := exec.Command("go", "build", "-o", "bench", ".")
 	build.Dir = dir
-	build.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=", "GOTOOLCHAIN=local", "CGO_ENABLED=0")
+	build.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=-mod=mod", "GOTOOLCHAIN=local", "GOPROXY=off", "CGO_ENABLED=0")
 	if out, err := build.CombinedOutput(); err != nil {
 		b.Fatalf("go build: %v\n%s", err, out)
 	}
 	buildTime := time.Since(start)
 
-	o := make([]float64, k)
-	interp := func() float64 {
-		return timePasses(n, func(r int) float64 { f.Predict(rows[r*nf:(r+1)*nf], o); return o[0] })
-	}
-	var ti []float64
-	for range 4 {
-		ti = append(ti, interp())
-	}
 	run := exec.Command("./bench")
 	run.Dir = dir
 	out, err := run.CombinedOutput()
 	if err != nil {
 		b.Fatalf("bench driver: %v\n%s", err, out)
 	}
-	for range 4 {
-		ti = append(ti, interp())
+	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
+	var interpNs float64
+	if fs := strings.Fields(lines[0]); len(fs) != 2 || fs[0] != "interpreter" {
+		b.Fatalf("bench driver printed %q", lines[0])
+	} else if interpNs, err = strconv.ParseFloat(fs[1], 64); err != nil {
+		b.Fatal(err)
 	}
-	interpNs := median(ti)
 	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v",
 		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond))
 	b.Logf("%-12s %10.0f ns/row %6.2f ns/split", "interpreter", interpNs, interpNs/perRow)
 	b.ReportMetric(interpNs, "interp-ns/row")
-	for _, line := range strings.Split(strings.TrimSpace(string(out)), "\n") {
+	for _, line := range lines[1:] {
 		fs := strings.Fields(line)
 		ns, err := strconv.ParseFloat(fs[1], 64)
 		if err != nil {
@@ -167,28 +183,6 @@ func writeFloats(b *testing.B, path string, v []float64) {
 	}
 }
 
-// timePasses is the median over passes of the time per row of score,
-// each pass at least 50 ms.
-func timePasses(n int, score func(r int) float64) float64 {
-	sink := 0.0
-	var per []float64
-	for range 3 {
-		start := time.Now()
-		rowsDone := 0
-		for time.Since(start) < 50*time.Millisecond {
-			for r := 0; r < n; r++ {
-				sink += score(r)
-			}
-			rowsDone += n
-		}
-		per = append(per, float64(time.Since(start).Nanoseconds())/float64(rowsDone))
-	}
-	if sink == 12345.678 {
-		fmt.Println(sink)
-	}
-	return median(per)
-}
-
 func median(v []float64) float64 {
 	s := slices.Clone(v)
 	slices.Sort(s)
@@ -207,6 +201,8 @@ import (
 	"os"
 	"slices"
 	"time"
+
+	"sawmill/forest"
 `)
 	for _, l := range layouts {
 		fmt.Fprintf(&b, "\t%q\n", "bench/"+l)
@@ -236,7 +232,16 @@ func main() {
 	for r := range rows {
 		copy(rows[r][:], flat[r*%[1]d:])
 	}
+	f, err := forest.ReadFile("model.json")
+	if err != nil {
+		panic(err)
+	}
+	out := make([]float64, %[2]d)
 	scorers := []scorer{
+		{"interpreter", func(x *[%[1]d]float64) [%[2]d]float64 {
+			f.Predict(x[:], out)
+			return [%[2]d]float64(out)
+		}},
 `, nf, k)
 	for _, l := range layouts {
 		fmt.Fprintf(&b, "\t\t{%q, %s.Predict},\n", l, l)
@@ -278,4 +283,10 @@ func main() {
 }
 `, k)
 	return b.String()
+}
+
+func forestJSON(f *forest.Forest) ([]byte, error) {
+	var b bytes.Buffer
+	err := f.Encode(&b)
+	return b.Bytes(), err
 }

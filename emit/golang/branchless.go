@@ -87,7 +87,7 @@ func buildHeap(p *compile.Program) *heapData {
 			h.off[ti] = h.table.roots[i]
 		}
 	}
-	h.featType, _ = narrowest(uint64(h.width))
+	h.featType = narrowest(uint64(h.width))
 	return h
 }
 
@@ -119,6 +119,7 @@ func (g *gen) branchless() []jen.Code {
 		jen.Comment("The forest as full binary heaps (see heapLeaf), decoded once by init from blob.").Line().
 			Comment("A tree whose depth is deepTree is kept in table form (see leaf).").Line().
 			Const().Id("deepTree").Op("=").Lit(deepTree),
+		g.xxConsts(h.negated),
 		g.heapLeafFunc(h),
 	}
 	sections := []section{
@@ -154,7 +155,7 @@ func (g *gen) branchless() []jen.Code {
 		}},
 	}
 	if h.table != nil {
-		out = append(out, jen.Const().Id("leafMark").Op("=").Lit(int(h.table.leafMark)), g.tableLeaf(h.table))
+		out = append(out, g.tableStep(h.table), g.tableLeaf())
 		for _, sc := range g.tableSections(h.table) {
 			if sc.name != "roots" {
 				sections = append(sections, sc)
@@ -197,10 +198,7 @@ func (g *gen) addTableRow() jen.Code {
 //		return k - n
 //	}
 func (g *gen) heapLeafFunc(h *heapData) jen.Code {
-	xxType := jen.Id("NumFeatures")
-	if h.negated {
-		xxType = jen.Lit(2).Op("*").Id("NumFeatures")
-	}
+	xxType := jen.Id("xxLen")
 	return jen.Comment("heapLeaf walks the heap tree at off of the given depth and returns its leaf slot.").Line().
 		Comment("Each step is computed from the test, never branched on (NaN fails every test).").Line().
 		Func().Id("heapLeaf").Params(jen.Id("xx").Op("*").Index(xxType).Float64(), jen.List(jen.Id("off"), jen.Id("depth")).Int()).Int().Block(
@@ -230,10 +228,7 @@ func (g *gen) heapLeafFunc(h *heapData) jen.Code {
 func (g *gen) branchlessPredictBody() []jen.Code {
 	h := g.heapData()
 	body := g.extendInput(h.negated)
-	xx := jen.Id("xx")
-	if h.negated {
-		xx = jen.Op("&").Id("xx")
-	}
+	xx := jen.Op("&").Id("xx")
 	slot := jen.Int().Parens(jen.Id("leafOff").Index(jen.Id("t"))).Op("+").
 		Id("heapLeaf").Call(xx, jen.Int().Parens(jen.Id("treeOff").Index(jen.Id("t"))), jen.Int().Parens(jen.Id("d")))
 	tableLeaf := jen.Id("leaf").Call(xx, jen.Int().Parens(jen.Id("treeOff").Index(jen.Id("t"))))
@@ -252,7 +247,7 @@ func (g *gen) branchlessPredictBody() []jen.Code {
 	}
 	if h.table != nil {
 		loop = append(loop, jen.If(jen.Id("d").Op("==").Id("deepTree")).Block(
-			jen.Id("addTableLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("far").Index(tableLeaf))),
+			jen.Id("addTableLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("thr").Index(tableLeaf))),
 			jen.Continue(),
 		))
 	}

@@ -27,15 +27,19 @@ import (
 // A split that sends missing values right tests x as given. One that sends
 // them left puts its right child next and tests the negated input, which
 // xx holds after x: x > t is -x < -t, and -x < u is -x <= the float below u.
-// At a leaf feat is leafMark; with one output thr holds the leaf value,
-// with several far holds the leaf's row in leafValues. The descent is
-// branch-free apart from the leaf test: the step is computed, not jumped.
+//
+// The step is computed, not branched on: i += 1 + (far[i]-1)&-fail. A leaf
+// tests xx[leafMark], the NaN in xx's last slot, and has far 0, so the walk
+// stays put there; with one output thr holds the leaf's value, with several
+// its row in leafValues. That lets Predict walk four trees in lockstep
+// until all four stand on leaves: the four dependency chains overlap, and
+// the only branch left is the loop's.
 
 // tableNode is a node of the table being built.
 type tableNode struct {
-	feat uint32 // index into xx, or leafMark
-	thr  float64
-	far  uint32 // offset to the other child; at a leaf with several outputs, the leaf row
+	feat uint32  // index into xx; leafMark at a leaf
+	thr  float64 // threshold; at a leaf its value, or its row in leaves
+	far  uint32  // offset to the other child; 0 at a leaf
 }
 
 // tableData is the whole forest in table form.
@@ -44,10 +48,9 @@ type tableData struct {
 	roots    []uint32
 	leaves   []float64 // leaf rows back to back, several outputs only
 	negated  bool      // some split tests -x: xx holds x then -x
-	width    int       // len(xx)
+	width    int       // len(xx) - 1, the index of its NaN slot
 	featType string    // narrowest unsigned type holding every feat and leafMark
 	farType  string
-	leafMark uint32
 }
 
 // testFor rewrites split n as a test that succeeds (never for NaN) exactly
@@ -100,11 +103,11 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 			}
 			n := &t.Nodes[it.node]
 			if n.IsLeaf() {
-				tn := tableNode{feat: math.MaxUint32}
+				tn := tableNode{feat: uint32(d.width)}
 				if p.NumOutputs == 1 {
 					tn.thr = n.Value[0]
 				} else {
-					tn.far = leafRow
+					tn.thr = float64(leafRow)
 					leafRow++
 					d.leaves = append(d.leaves, n.Value...)
 				}
@@ -119,13 +122,8 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 	if len(d.nodes) >= math.MaxUint32 {
 		panic("BUG: golang: table of more than 2^32 nodes")
 	}
-	d.featType, d.leafMark = narrowest(uint64(d.width))
-	for i := range d.nodes {
-		if d.nodes[i].feat == math.MaxUint32 {
-			d.nodes[i].feat = d.leafMark
-		}
-	}
-	d.farType, _ = narrowest(uint64(max(maxFar, leafRow)))
+	d.featType = narrowest(uint64(d.width))
+	d.farType = narrowest(uint64(maxFar))
 	return d
 }
 
@@ -142,16 +140,15 @@ func negates(p *compile.Program) bool {
 	return false
 }
 
-// narrowest is the smallest unsigned type holding 0..n, and its maximum
-// value, which is above n and free to mark leaves.
-func narrowest(n uint64) (string, uint32) {
+// narrowest is the smallest unsigned type holding 0..n.
+func narrowest(n uint64) string {
 	switch {
-	case n < math.MaxUint8:
-		return "uint8", math.MaxUint8
-	case n < math.MaxUint16:
-		return "uint16", math.MaxUint16
+	case n <= math.MaxUint8:
+		return "uint8"
+	case n <= math.MaxUint16:
+		return "uint16"
 	default:
-		return "uint32", math.MaxUint32
+		return "uint32"
 	}
 }
 
@@ -262,9 +259,9 @@ func (g *gen) blobDecls(sections []section) []jen.Code {
 
 // tableSections are the arrays of the table layout.
 func (g *gen) tableSections(d *tableData) []section {
-	farDoc, thrDoc := "offset to the child taken when the test fails", "threshold; the value at a leaf"
+	farDoc, thrDoc := "offset to the child taken when the test fails; 0 at a leaf", "threshold; the value at a leaf"
 	if g.k > 1 {
-		farDoc, thrDoc = "offset to the child taken when the test fails; the row in leafValues at a leaf", "threshold"
+		thrDoc = "threshold; at a leaf its row in leafValues"
 	}
 	out := []section{
 		{"feat", d.featType, len(d.nodes), "index into xx tested at each node; leafMark at a leaf", func(bl *blob) {
@@ -298,14 +295,13 @@ func (g *gen) tableSections(d *tableData) []section {
 	return out
 }
 
-// table declares the arrays, their decoding and the descent.
+// table declares the arrays, their decoding and the descents.
 func (g *gen) table() []jen.Code {
 	d := g.tableData()
 	out := []jen.Code{
-		jen.Comment("The forest as one table (see the descent in leaf): nodes in depth-first order per").Line().
-			Comment("tree, decoded once by init from blob.").Line().
-			Const().Id("leafMark").Op("=").Lit(int(d.leafMark)),
-		g.tableLeaf(d),
+		jen.Comment("The forest as one table (see step): nodes in depth-first order per tree, decoded").Line().
+			Comment("once by init from blob.").Line().Add(g.xxConsts(d.negated)),
+		g.tableStep(d), g.tableLeaf4(),
 	}
 	if g.k > 1 {
 		out = append(out, g.baseScoreVar(), g.addRow("leafValues"))
@@ -338,93 +334,176 @@ func (g *gen) addRow(table string) jen.Code {
 	)
 }
 
-// tableLeaf is the descent:
+// xxConsts sizes the extended input:
 //
-//	func leaf(xx *[NumFeatures]float64, i int) int {
-//		feat, far, thr := feat, far, thr
-//		for {
-//			f := feat[i]
-//			if f == leafMark {
-//				return i
-//			}
-//			fail := 1
-//			if xx[f] <= thr[i] {
-//				fail = 0
-//			}
-//			i += 1 + (int(far[i])-1)&-fail
-//		}
-//	}
-func (g *gen) tableLeaf(d *tableData) jen.Code {
-	return jen.Comment("leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)").Line().
-		Comment("goes to i+far[i], a passed one to i+1; the step is computed, not branched on.").Line().
-		Func().Id("leaf").Params(jen.Id("xx").Op("*").Index(g.xxLen(d)).Float64(), jen.Id("i").Int()).Int().Block(
-		jen.List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")).Op(":=").List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")),
-		jen.For().Block(
-			jen.Id("f").Op(":=").Id("feat").Index(jen.Id("i")),
-			jen.If(jen.Id("f").Op("==").Id("leafMark")).Block(jen.Return(jen.Id("i"))),
-			jen.Id("fail").Op(":=").Lit(1),
-			jen.If(jen.Id("xx").Index(jen.Id("f")).Op("<=").Id("thr").Index(jen.Id("i"))).Block(jen.Id("fail").Op("=").Lit(0)),
-			jen.Id("i").Op("+=").Lit(1).Op("+").Parens(jen.Int().Parens(jen.Id("far").Index(jen.Id("i"))).Op("-").Lit(1)).Op("&").Op("-").Id("fail"),
-		),
+//	const (
+//		xxLen    = 2*NumFeatures + 1 // x, -x, NaN
+//		leafMark = xxLen - 1
+//	)
+func (g *gen) xxConsts(negated bool) jen.Code {
+	size := jen.Id("NumFeatures").Op("+").Lit(1)
+	doc := "x, then a NaN tested at every leaf"
+	if negated {
+		size = jen.Lit(2).Op("*").Id("NumFeatures").Op("+").Lit(1)
+		doc = "x, -x, then a NaN tested at every leaf"
+	}
+	return jen.Const().Defs(
+		jen.Id("xxLen").Op("=").Add(size).Comment(doc),
+		jen.Id("leafMark").Op("=").Id("xxLen").Op("-").Lit(1).Comment("feat at a leaf"),
 	)
 }
 
-// xxLen is the length of the extended input: x, then -x when some split
-// sends missing values left.
-func (g *gen) xxLen(d *tableData) jen.Code {
-	if d.negated {
-		return jen.Lit(2).Op("*").Id("NumFeatures")
+// tableStep is one step of a walk:
+//
+//	func step(xx *[xxLen]float64, feat []uint8, far []uint16, thr []float64, i int) int {
+//		fail := 1
+//		if xx[feat[i]] <= thr[i] {
+//			fail = 0
+//		}
+//		return i + 1 + (int(far[i])-1)&-fail
+//	}
+func (g *gen) tableStep(d *tableData) jen.Code {
+	return jen.Comment("step moves from node i to the next node of the walk: i+1 when xx[feat[i]] <= thr[i],").Line().
+		Comment("else (also when the value is NaN) i+far[i]. A leaf has far 0 and tests the NaN, so").Line().
+		Comment("the walk stays on it.").Line().
+		Func().Id("step").Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.Id("feat").Index().Id(d.featType),
+		jen.Id("far").Index().Id(d.farType), jen.Id("thr").Index().Float64(), jen.Id("i").Int()).Int().Block(
+		jen.Id("fail").Op(":=").Lit(1),
+		jen.If(jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("i"))).Op("<=").Id("thr").Index(jen.Id("i"))).Block(jen.Id("fail").Op("=").Lit(0)),
+		jen.Return(jen.Id("i").Op("+").Lit(1).Op("+").Parens(jen.Int().Parens(jen.Id("far").Index(jen.Id("i"))).Op("-").Lit(1)).Op("&").Op("-").Id("fail")),
+	)
+}
+
+// tableLeaf walks one tree:
+//
+//	func leaf(xx *[xxLen]float64, i int) int {
+//		feat, far, thr := feat, far, thr
+//		for feat[i] != leafMark {
+//			i = step(xx, feat, far, thr, i)
+//		}
+//		return i
+//	}
+func (g *gen) tableLeaf() jen.Code {
+	return jen.Comment("leaf walks one tree from node i to its leaf.").Line().
+		Func().Id("leaf").Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.Id("i").Int()).Int().Block(
+		jen.List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")).Op(":=").List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")),
+		jen.For(jen.Id("feat").Index(jen.Id("i")).Op("!=").Id("leafMark")).Block(
+			jen.Id("i").Op("=").Id("step").Call(jen.Id("xx"), jen.Id("feat"), jen.Id("far"), jen.Id("thr"), jen.Id("i")),
+		),
+		jen.Return(jen.Id("i")),
+	)
+}
+
+// tableLeaf4 walks four trees in lockstep:
+//
+//	func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
+//		feat, far, thr := feat, far, thr
+//		for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|… != 0 {
+//			a = step(xx, feat, far, thr, a)
+//			…
+//		}
+//		return a, b, c, d
+//	}
+func (g *gen) tableLeaf4() jen.Code {
+	ids := []string{"a", "b", "c", "d"}
+	var cond *jen.Statement
+	var steps, params, rets, results []jen.Code
+	for _, id := range ids {
+		t := jen.Parens(jen.Int().Parens(jen.Id("feat").Index(jen.Id(id))).Op("^").Id("leafMark"))
+		if cond == nil {
+			cond = t
+		} else {
+			cond = cond.Op("|").Add(t)
+		}
+		steps = append(steps, jen.Id(id).Op("=").Id("step").Call(jen.Id("xx"), jen.Id("feat"), jen.Id("far"), jen.Id("thr"), jen.Id(id)))
+		params = append(params, jen.Id(id))
+		rets = append(rets, jen.Id(id))
+		results = append(results, jen.Int())
 	}
-	return jen.Id("NumFeatures")
+	return jen.Comment("leaf4 walks four trees at once, from nodes a, b, c and d, until all four stand on").Line().
+		Comment("their leaves: the walks do not wait on each other.").Line().
+		Func().Id("leaf4").Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.List(params...).Int()).Params(results...).Block(
+		jen.List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")).Op(":=").List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")),
+		jen.For(cond.Op("!=").Lit(0)).Block(steps...),
+		jen.Return(rets...),
+	)
 }
 
 // extendInput makes xx:
 //
-//	var xx [2 * NumFeatures]float64
+//	var xx [xxLen]float64
 //	for j, v := range x {
-//		xx[j], xx[NumFeatures+j] = v, -v
+//		xx[j], xx[NumFeatures+j] = v, -v   // or xx[j] = v
 //	}
-//
-// or, when no split needs -x, xx := x.
+//	xx[leafMark] = math.NaN()
 func (g *gen) extendInput(negated bool) []jen.Code {
-	if !negated {
-		return []jen.Code{jen.Id("xx").Op(":=").Id("x")}
+	fill := jen.Id("xx").Index(jen.Id("j")).Op("=").Id("v")
+	if negated {
+		fill = jen.List(jen.Id("xx").Index(jen.Id("j")), jen.Id("xx").Index(jen.Id("NumFeatures").Op("+").Id("j"))).
+			Op("=").List(jen.Id("v"), jen.Op("-").Id("v"))
 	}
 	return []jen.Code{
-		jen.Var().Id("xx").Index(jen.Lit(2).Op("*").Id("NumFeatures")).Float64(),
-		jen.For(jen.List(jen.Id("j"), jen.Id("v")).Op(":=").Range().Id("x")).Block(
-			jen.List(jen.Id("xx").Index(jen.Id("j")), jen.Id("xx").Index(jen.Id("NumFeatures").Op("+").Id("j"))).
-				Op("=").List(jen.Id("v"), jen.Op("-").Id("v")),
-		),
+		jen.Var().Id("xx").Index(jen.Id("xxLen")).Float64(),
+		jen.For(jen.List(jen.Id("j"), jen.Id("v")).Op(":=").Range().Id("x")).Block(fill),
+		jen.Id("xx").Index(jen.Id("leafMark")).Op("=").Qual("math", "NaN").Call(),
 	}
 }
 
-// tablePredictBody walks every tree:
+// tablePredictBody walks the trees four at a time and adds their leaves in
+// tree order:
 //
-//	xx := x
-//	s := 0.0
-//	for _, r := range roots {
-//		s += thr[leaf(xx, int(r))]
+//	r := roots
+//	for ; len(r) >= 4; r = r[4:] {
+//		a, b, c, d := leaf4(&xx, int(r[0]), int(r[1]), int(r[2]), int(r[3]))
+//		s += thr[a]
+//		…
 //	}
+//	a, b, _, _ := leaf4(&xx, int(r[0]), int(r[1]), int(r[1]), int(r[1]))  // the last T%4 trees
+//	s += thr[a]
+//	s += thr[b]
 func (g *gen) tablePredictBody() []jen.Code {
-	d := g.tableData()
-	body := g.extendInput(d.negated)
-	xx := jen.Id("xx")
-	if d.negated {
-		xx = jen.Op("&").Id("xx")
+	body := g.extendInput(g.tableData().negated)
+	add := func(leaf jen.Code) jen.Code {
+		if g.k == 1 {
+			return jen.Id("s").Op("+=").Id("thr").Index(leaf)
+		}
+		return jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("thr").Index(leaf)))
 	}
-	walk := jen.Id("leaf").Call(xx, jen.Int().Parens(jen.Id("r")))
+	four := []jen.Code{
+		jen.List(jen.Id("a"), jen.Id("b"), jen.Id("c"), jen.Id("d")).Op(":=").Id("leaf4").Call(jen.Op("&").Id("xx"),
+			jen.Int().Parens(jen.Id("r").Index(jen.Lit(0))), jen.Int().Parens(jen.Id("r").Index(jen.Lit(1))),
+			jen.Int().Parens(jen.Id("r").Index(jen.Lit(2))), jen.Int().Parens(jen.Id("r").Index(jen.Lit(3)))),
+		add(jen.Id("a")), add(jen.Id("b")), add(jen.Id("c")), add(jen.Id("d")),
+	}
+	walk := []jen.Code{
+		jen.Id("r").Op(":=").Id("roots"),
+		jen.For(jen.Empty(), jen.Len(jen.Id("r")).Op(">=").Lit(4), jen.Id("r").Op("=").Id("r").Index(jen.Lit(4).Op(":"))).Block(four...),
+	}
+	// The last one to three trees go through leaf4 too, the last root
+	// repeated in the unused places.
+	if rem := len(g.p.Trees) % 4; rem > 0 {
+		ids := []string{"a", "b", "c", "d"}
+		var lhs, args []jen.Code
+		for i := range 4 {
+			args = append(args, jen.Int().Parens(jen.Id("r").Index(jen.Lit(min(i, rem-1)))))
+			if i < rem {
+				lhs = append(lhs, jen.Id(ids[i]))
+			} else {
+				lhs = append(lhs, jen.Id("_"))
+			}
+		}
+		walk = append(walk, jen.List(lhs...).Op(":=").Id("leaf4").Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...))
+		for i := range rem {
+			walk = append(walk, add(jen.Id(ids[i])))
+		}
+	}
 	if g.k == 1 {
-		body = append(body, g.scalarStart(),
-			jen.For(jen.List(jen.Id("_"), jen.Id("r")).Op(":=").Range().Id("roots")).Block(
-				jen.Id("s").Op("+=").Id("thr").Index(walk),
-			))
+		body = append(body, g.scalarStart())
+		body = append(body, walk...)
 		return append(body, g.scalarFinish()...)
 	}
-	body = append(body, g.vectorStart(),
-		jen.For(jen.List(jen.Id("_"), jen.Id("r")).Op(":=").Range().Id("roots")).Block(
-			jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("far").Index(walk))),
-		))
+	body = append(body, g.vectorStart())
+	body = append(body, walk...)
 	return append(body, g.vectorFinish()...)
 }
 

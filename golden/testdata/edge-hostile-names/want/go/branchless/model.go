@@ -72,14 +72,15 @@ var ClassNames = [...]string{"ok */", "no\"pe' --"}
 // Predict scores one row: x holds one value per feature (see FeatureNames),
 // NaN where a value is missing.
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
-	var xx [2 * NumFeatures]float64
+	var xx [xxLen]float64
 	for j, v := range x {
 		xx[j], xx[NumFeatures+j] = v, -v
 	}
+	xx[leafMark] = math.NaN()
 	var acc [NumOutputs]float64
 	for t, d := range treeDepth {
 		if d == deepTree {
-			addTableLeaf(&acc, int(far[leaf(&xx, int(treeOff[t]))]))
+			addTableLeaf(&acc, int(thr[leaf(&xx, int(treeOff[t]))]))
 			continue
 		}
 		addLeaf(&acc, int(leafOff[t])+heapLeaf(&xx, int(treeOff[t]), int(d)))
@@ -107,9 +108,14 @@ func PredictClass(x *[NumFeatures]float64) int {
 // A tree whose depth is deepTree is kept in table form (see leaf).
 const deepTree = 255
 
+const (
+	xxLen    = 2*NumFeatures + 1 // x, -x, then a NaN tested at every leaf
+	leafMark = xxLen - 1         // feat at a leaf
+)
+
 // heapLeaf walks the heap tree at off of the given depth and returns its leaf slot.
 // Each step is computed from the test, never branched on (NaN fails every test).
-func heapLeaf(xx *[2 * NumFeatures]float64, off, depth int) int {
+func heapLeaf(xx *[xxLen]float64, off, depth int) int {
 	n := 1<<depth - 1
 	feat, thr := hFeat[off:off+n], hThr[off:off+n]
 	k := 0
@@ -123,23 +129,24 @@ func heapLeaf(xx *[2 * NumFeatures]float64, off, depth int) int {
 	return k - n
 }
 
-const leafMark = 255
-
-// leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)
-// goes to i+far[i], a passed one to i+1; the step is computed, not branched on.
-func leaf(xx *[2 * NumFeatures]float64, i int) int {
-	feat, far, thr := feat, far, thr
-	for {
-		f := feat[i]
-		if f == leafMark {
-			return i
-		}
-		fail := 1
-		if xx[f] <= thr[i] {
-			fail = 0
-		}
-		i += 1 + (int(far[i])-1)&-fail
+// step moves from node i to the next node of the walk: i+1 when xx[feat[i]] <= thr[i],
+// else (also when the value is NaN) i+far[i]. A leaf has far 0 and tests the NaN, so
+// the walk stays on it.
+func step(xx *[xxLen]float64, feat []uint8, far []uint8, thr []float64, i int) int {
+	fail := 1
+	if xx[feat[i]] <= thr[i] {
+		fail = 0
 	}
+	return i + 1 + (int(far[i])-1)&-fail
+}
+
+// leaf walks one tree from node i to its leaf.
+func leaf(xx *[xxLen]float64, i int) int {
+	feat, far, thr := feat, far, thr
+	for feat[i] != leafMark {
+		i = step(xx, feat, far, thr, i)
+	}
+	return i
 }
 
 // baseScore is added to the combined trees.
@@ -169,8 +176,8 @@ var (
 	treeOff    []uint32  // first heap split of each tree, or its root node in the table
 	leafOff    []uint32  // first leaf slot of each heap tree
 	feat       []uint8   // index into xx tested at each node; leafMark at a leaf
-	far        []uint8   // offset to the child taken when the test fails; the row in leafValues at a leaf
-	thr        []float64 // threshold
+	far        []uint8   // offset to the child taken when the test fails; 0 at a leaf
+	thr        []float64 // threshold; at a leaf its row in leafValues
 	leafValues []float64 // leaf vectors, NumOutputs values each
 )
 
@@ -213,5 +220,5 @@ func decodeUint32(b []byte, n int) ([]uint32, []byte) {
 
 // blob holds hFeat, hThr, hLeaf, treeDepth, treeOff, leafOff, feat, far, thr, leafValues in order, little-endian, base64-encoded.
 var blob = [...]string{
-	"/wAAAAAAAAAAEAH/EgP/FAX/Fgf/GAn/Ggv/HA3/Hg//////////////IAIAHAIBGAICFAIDEAIEDAIFCAIGBAIHCAkKCwwNDg8QAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAAAAAQAAAAAAAMAAAAAAAAAEQAAAAAAAAAAAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAAAAQAAAAAAEMAAAAAAAAASQAAAAAAAAAAAAQAAAAAAFMAAAAAAAAAWQAAAAAAAAAAAAQAAAAAAGMAAAAAAAAAaQAAAAAAAAAAAAQAAAAAAHMAAAAAAAAAeQAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAsD8AAAAAAADuPwAAAAAAAMg/AAAAAAAA6j8AAAAAAADUPwAAAAAAAOY/AAAAAAAA3D8AAAAAAADiPwAAAAAAAOI/AAAAAAAA3D8AAAAAAADmPwAAAAAAANQ/AAAAAAAA6j8AAAAAAADIPwAAAAAAAO4/AAAAAAAAsD8AAAAAAADgPwAAAAAAAOA/AAAAAAAA7D8AAAAAAADAPwAAAAAAAOg/AAAAAAAA0D8AAAAAAADkPwAAAAAAANg/AAAAAAAA4D8AAAAAAADgPwAAAAAAANg/AAAAAAAA5D8AAAAAAADQPwAAAAAAAOg/AAAAAAAAwD8AAAAAAADsPwAAAAAAAAAAAAAAAAAA8D8=",
+	"/wAAAAAAAAAAEAEgEgMgFAUgFgcgGAkgGgsgHA0gHg8gICAgICAgICAgIAIAHAIAGAIAFAIAEAIADAIACAIABAIAAAAAAAAAAAAAAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAPA/AQAAAAAAAMAAAAAAAAAEQAAAAAAAAABAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAhAAQAAAAAAEMAAAAAAAAASQAAAAAAAABBAAQAAAAAAFMAAAAAAAAAWQAAAAAAAABRAAQAAAAAAGMAAAAAAAAAaQAAAAAAAABhAAQAAAAAAHMAAAAAAAAAeQAAAAAAAABxAAAAAAAAAIEAAAAAAAAAiQAAAAAAAACRAAAAAAAAAJkAAAAAAAAAoQAAAAAAAACpAAAAAAAAALEAAAAAAAAAuQAAAAAAAADBAAAAAAAAAsD8AAAAAAADuPwAAAAAAAMg/AAAAAAAA6j8AAAAAAADUPwAAAAAAAOY/AAAAAAAA3D8AAAAAAADiPwAAAAAAAOI/AAAAAAAA3D8AAAAAAADmPwAAAAAAANQ/AAAAAAAA6j8AAAAAAADIPwAAAAAAAO4/AAAAAAAAsD8AAAAAAADgPwAAAAAAAOA/AAAAAAAA7D8AAAAAAADAPwAAAAAAAOg/AAAAAAAA0D8AAAAAAADkPwAAAAAAANg/AAAAAAAA4D8AAAAAAADgPwAAAAAAANg/AAAAAAAA5D8AAAAAAADQPwAAAAAAAOg/AAAAAAAAwD8AAAAAAADsPwAAAAAAAAAAAAAAAAAA8D8=",
 }

@@ -72,14 +72,22 @@ var ClassNames = [...]string{"ok */", "no\"pe' --"}
 // Predict scores one row: x holds one value per feature (see FeatureNames),
 // NaN where a value is missing.
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
-	var xx [2 * NumFeatures]float64
+	var xx [xxLen]float64
 	for j, v := range x {
 		xx[j], xx[NumFeatures+j] = v, -v
 	}
+	xx[leafMark] = math.NaN()
 	var acc [NumOutputs]float64
-	for _, r := range roots {
-		addLeaf(&acc, int(far[leaf(&xx, int(r))]))
+	r := roots
+	for ; len(r) >= 4; r = r[4:] {
+		a, b, c, d := leaf4(&xx, int(r[0]), int(r[1]), int(r[2]), int(r[3]))
+		addLeaf(&acc, int(thr[a]))
+		addLeaf(&acc, int(thr[b]))
+		addLeaf(&acc, int(thr[c]))
+		addLeaf(&acc, int(thr[d]))
 	}
+	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
+	addLeaf(&acc, int(thr[a]))
 	for j := range acc {
 		acc[j] = acc[j]/numTrees + baseScore[j]
 	}
@@ -99,25 +107,35 @@ func PredictClass(x *[NumFeatures]float64) int {
 	return best
 }
 
-// The forest as one table (see the descent in leaf): nodes in depth-first order per
-// tree, decoded once by init from blob.
-const leafMark = 255
+// The forest as one table (see step): nodes in depth-first order per tree, decoded
+// once by init from blob.
+const (
+	xxLen    = 2*NumFeatures + 1 // x, -x, then a NaN tested at every leaf
+	leafMark = xxLen - 1         // feat at a leaf
+)
 
-// leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)
-// goes to i+far[i], a passed one to i+1; the step is computed, not branched on.
-func leaf(xx *[2 * NumFeatures]float64, i int) int {
-	feat, far, thr := feat, far, thr
-	for {
-		f := feat[i]
-		if f == leafMark {
-			return i
-		}
-		fail := 1
-		if xx[f] <= thr[i] {
-			fail = 0
-		}
-		i += 1 + (int(far[i])-1)&-fail
+// step moves from node i to the next node of the walk: i+1 when xx[feat[i]] <= thr[i],
+// else (also when the value is NaN) i+far[i]. A leaf has far 0 and tests the NaN, so
+// the walk stays on it.
+func step(xx *[xxLen]float64, feat []uint8, far []uint8, thr []float64, i int) int {
+	fail := 1
+	if xx[feat[i]] <= thr[i] {
+		fail = 0
 	}
+	return i + 1 + (int(far[i])-1)&-fail
+}
+
+// leaf4 walks four trees at once, from nodes a, b, c and d, until all four stand on
+// their leaves: the walks do not wait on each other.
+func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
+	feat, far, thr := feat, far, thr
+	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark) != 0 {
+		a = step(xx, feat, far, thr, a)
+		b = step(xx, feat, far, thr, b)
+		c = step(xx, feat, far, thr, c)
+		d = step(xx, feat, far, thr, d)
+	}
+	return a, b, c, d
 }
 
 // baseScore is added to the combined trees.
@@ -133,8 +151,8 @@ func addLeaf(acc *[NumOutputs]float64, r int) {
 
 var (
 	feat       []uint8   // index into xx tested at each node; leafMark at a leaf
-	far        []uint8   // offset to the child taken when the test fails; the row in leafValues at a leaf
-	thr        []float64 // threshold
+	far        []uint8   // offset to the child taken when the test fails; 0 at a leaf
+	thr        []float64 // threshold; at a leaf its row in leafValues
 	roots      []uint32  // first node of each tree
 	leafValues []float64 // leaf vectors, NumOutputs values each
 )
@@ -173,5 +191,5 @@ func decodeUint32(b []byte, n int) ([]uint32, []byte) {
 
 // blob holds feat, far, thr, roots, leafValues in order, little-endian, base64-encoded.
 var blob = [...]string{
-	"EAH/EgP/FAX/Fgf/GAn/Ggv/HA3/Hg//////////////IAIAHAIBGAICFAIDEAIEDAIFCAIGBAIHCAkKCwwNDg8QAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAAAAAQAAAAAAAMAAAAAAAAAEQAAAAAAAAAAAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAAAAQAAAAAAEMAAAAAAAAASQAAAAAAAAAAAAQAAAAAAFMAAAAAAAAAWQAAAAAAAAAAAAQAAAAAAGMAAAAAAAAAaQAAAAAAAAAAAAQAAAAAAHMAAAAAAAAAeQAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAAALA/AAAAAAAA7j8AAAAAAADIPwAAAAAAAOo/AAAAAAAA1D8AAAAAAADmPwAAAAAAANw/AAAAAAAA4j8AAAAAAADiPwAAAAAAANw/AAAAAAAA5j8AAAAAAADUPwAAAAAAAOo/AAAAAAAAyD8AAAAAAADuPwAAAAAAALA/AAAAAAAA4D8AAAAAAADgPwAAAAAAAOw/AAAAAAAAwD8AAAAAAADoPwAAAAAAANA/AAAAAAAA5D8AAAAAAADYPwAAAAAAAOA/AAAAAAAA4D8AAAAAAADYPwAAAAAAAOQ/AAAAAAAA0D8AAAAAAADoPwAAAAAAAMA/AAAAAAAA7D8AAAAAAAAAAAAAAAAAAPA/",
+	"EAEgEgMgFAUgFgcgGAkgGgsgHA0gHg8gICAgICAgICAgIAIAHAIAGAIAFAIAEAIADAIACAIABAIAAAAAAAAAAAAAAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAPA/AQAAAAAAAMAAAAAAAAAEQAAAAAAAAABAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAhAAQAAAAAAEMAAAAAAAAASQAAAAAAAABBAAQAAAAAAFMAAAAAAAAAWQAAAAAAAABRAAQAAAAAAGMAAAAAAAAAaQAAAAAAAABhAAQAAAAAAHMAAAAAAAAAeQAAAAAAAABxAAAAAAAAAIEAAAAAAAAAiQAAAAAAAACRAAAAAAAAAJkAAAAAAAAAoQAAAAAAAACpAAAAAAAAALEAAAAAAAAAuQAAAAAAAADBAAAAAAAAAAAAAALA/AAAAAAAA7j8AAAAAAADIPwAAAAAAAOo/AAAAAAAA1D8AAAAAAADmPwAAAAAAANw/AAAAAAAA4j8AAAAAAADiPwAAAAAAANw/AAAAAAAA5j8AAAAAAADUPwAAAAAAAOo/AAAAAAAAyD8AAAAAAADuPwAAAAAAALA/AAAAAAAA4D8AAAAAAADgPwAAAAAAAOw/AAAAAAAAwD8AAAAAAADoPwAAAAAAANA/AAAAAAAA5D8AAAAAAADYPwAAAAAAAOA/AAAAAAAA4D8AAAAAAADYPwAAAAAAAOQ/AAAAAAAA0D8AAAAAAADoPwAAAAAAAMA/AAAAAAAA7D8AAAAAAAAAAAAAAAAAAPA/",
 }

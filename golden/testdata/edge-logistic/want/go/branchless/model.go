@@ -41,10 +41,11 @@ var ClassNames = [...]string{"healthy", "bearing_wear"}
 // Predict scores one row: x holds one value per feature (see FeatureNames),
 // NaN where a value is missing.
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
-	var xx [2 * NumFeatures]float64
+	var xx [xxLen]float64
 	for j, v := range x {
 		xx[j], xx[NumFeatures+j] = v, -v
 	}
+	xx[leafMark] = math.NaN()
 	s := -0.4054651081081644
 	for t, d := range treeDepth {
 		s += hLeaf[int(leafOff[t])+heapLeaf(&xx, int(treeOff[t]), int(d))]
@@ -65,9 +66,14 @@ func PredictClass(x *[NumFeatures]float64) int {
 // A tree whose depth is deepTree is kept in table form (see leaf).
 const deepTree = 255
 
+const (
+	xxLen    = 2*NumFeatures + 1 // x, -x, then a NaN tested at every leaf
+	leafMark = xxLen - 1         // feat at a leaf
+)
+
 // heapLeaf walks the heap tree at off of the given depth and returns its leaf slot.
 // Each step is computed from the test, never branched on (NaN fails every test).
-func heapLeaf(xx *[2 * NumFeatures]float64, off, depth int) int {
+func heapLeaf(xx *[xxLen]float64, off, depth int) int {
 	n := 1<<depth - 1
 	feat, thr := hFeat[off:off+n], hThr[off:off+n]
 	k := 0

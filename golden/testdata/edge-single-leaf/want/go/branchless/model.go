@@ -32,10 +32,14 @@ var FeatureNames = [NumFeatures]string{"x"}
 // Predict scores one row: x holds one value per feature (see FeatureNames),
 // NaN where a value is missing.
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
-	xx := x
+	var xx [xxLen]float64
+	for j, v := range x {
+		xx[j] = v
+	}
+	xx[leafMark] = math.NaN()
 	s := 0.0
 	for t, d := range treeDepth {
-		s += hLeaf[int(leafOff[t])+heapLeaf(xx, int(treeOff[t]), int(d))]
+		s += hLeaf[int(leafOff[t])+heapLeaf(&xx, int(treeOff[t]), int(d))]
 	}
 	s = s/numTrees + 0.0
 	return [NumOutputs]float64{s}
@@ -45,9 +49,14 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 // A tree whose depth is deepTree is kept in table form (see leaf).
 const deepTree = 255
 
+const (
+	xxLen    = NumFeatures + 1 // x, then a NaN tested at every leaf
+	leafMark = xxLen - 1       // feat at a leaf
+)
+
 // heapLeaf walks the heap tree at off of the given depth and returns its leaf slot.
 // Each step is computed from the test, never branched on (NaN fails every test).
-func heapLeaf(xx *[NumFeatures]float64, off, depth int) int {
+func heapLeaf(xx *[xxLen]float64, off, depth int) int {
 	n := 1<<depth - 1
 	feat, thr := hFeat[off:off+n], hThr[off:off+n]
 	k := 0

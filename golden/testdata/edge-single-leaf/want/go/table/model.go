@@ -32,39 +32,60 @@ var FeatureNames = [NumFeatures]string{"x"}
 // Predict scores one row: x holds one value per feature (see FeatureNames),
 // NaN where a value is missing.
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
-	xx := x
-	s := 0.0
-	for _, r := range roots {
-		s += thr[leaf(xx, int(r))]
+	var xx [xxLen]float64
+	for j, v := range x {
+		xx[j] = v
 	}
+	xx[leafMark] = math.NaN()
+	s := 0.0
+	r := roots
+	for ; len(r) >= 4; r = r[4:] {
+		a, b, c, d := leaf4(&xx, int(r[0]), int(r[1]), int(r[2]), int(r[3]))
+		s += thr[a]
+		s += thr[b]
+		s += thr[c]
+		s += thr[d]
+	}
+	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
+	s += thr[a]
 	s = s/numTrees + 0.0
 	return [NumOutputs]float64{s}
 }
 
-// The forest as one table (see the descent in leaf): nodes in depth-first order per
-// tree, decoded once by init from blob.
-const leafMark = 255
+// The forest as one table (see step): nodes in depth-first order per tree, decoded
+// once by init from blob.
+const (
+	xxLen    = NumFeatures + 1 // x, then a NaN tested at every leaf
+	leafMark = xxLen - 1       // feat at a leaf
+)
 
-// leaf walks one tree from node i to its leaf. A failed test (NaN fails every test)
-// goes to i+far[i], a passed one to i+1; the step is computed, not branched on.
-func leaf(xx *[NumFeatures]float64, i int) int {
-	feat, far, thr := feat, far, thr
-	for {
-		f := feat[i]
-		if f == leafMark {
-			return i
-		}
-		fail := 1
-		if xx[f] <= thr[i] {
-			fail = 0
-		}
-		i += 1 + (int(far[i])-1)&-fail
+// step moves from node i to the next node of the walk: i+1 when xx[feat[i]] <= thr[i],
+// else (also when the value is NaN) i+far[i]. A leaf has far 0 and tests the NaN, so
+// the walk stays on it.
+func step(xx *[xxLen]float64, feat []uint8, far []uint8, thr []float64, i int) int {
+	fail := 1
+	if xx[feat[i]] <= thr[i] {
+		fail = 0
 	}
+	return i + 1 + (int(far[i])-1)&-fail
+}
+
+// leaf4 walks four trees at once, from nodes a, b, c and d, until all four stand on
+// their leaves: the walks do not wait on each other.
+func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
+	feat, far, thr := feat, far, thr
+	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark) != 0 {
+		a = step(xx, feat, far, thr, a)
+		b = step(xx, feat, far, thr, b)
+		c = step(xx, feat, far, thr, c)
+		d = step(xx, feat, far, thr, d)
+	}
+	return a, b, c, d
 }
 
 var (
 	feat  []uint8   // index into xx tested at each node; leafMark at a leaf
-	far   []uint8   // offset to the child taken when the test fails
+	far   []uint8   // offset to the child taken when the test fails; 0 at a leaf
 	thr   []float64 // threshold; the value at a leaf
 	roots []uint32  // first node of each tree
 )
@@ -102,5 +123,5 @@ func decodeUint32(b []byte, n int) ([]uint32, []byte) {
 
 // blob holds feat, far, thr, roots in order, little-endian, base64-encoded.
 var blob = [...]string{
-	"/wAAAAAAAAAEQAAAAAA=",
+	"AQAAAAAAAAAEQAAAAAA=",
 }
