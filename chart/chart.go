@@ -13,6 +13,7 @@ import (
 	"math"
 	"slices"
 	"strconv"
+	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
@@ -161,6 +162,7 @@ func (c *Curve) SVG() ([]byte, error) {
 	p.X.Min, p.X.Max = 0, float64(c.Trees[last])
 	p.Y.Min = 0
 	p.Y.Max = niceTop(top)
+	p.Y.Tick.Marker = sameDecimals{plot.DefaultTicks{}}
 	return render(p, width, height)
 }
 
@@ -213,6 +215,30 @@ func (im *Importance) SVG() ([]byte, error) {
 	p.X.Max = niceTop(hi * 1.15) // room for the value labels
 	h := max(2.2*vg.Inch, vg.Inch+vg.Points(26)*vg.Length(n))
 	return render(p, width, h)
+}
+
+// sameDecimals labels every major tick with as many decimals as the most
+// precise one needs, so an axis reads 0.00, 0.05, 0.10 rather than 0,
+// 0.05, 0.1.
+type sameDecimals struct{ plot.Ticker }
+
+func (s sameDecimals) Ticks(lo, hi float64) []plot.Tick {
+	ticks := s.Ticker.Ticks(lo, hi)
+	digits := 0
+	for _, t := range ticks {
+		if t.Label == "" {
+			continue
+		}
+		if i := strings.IndexByte(t.Label, '.'); i >= 0 && !strings.ContainsAny(t.Label, "eE") {
+			digits = max(digits, len(t.Label)-i-1)
+		}
+	}
+	for i := range ticks {
+		if ticks[i].Label != "" && !strings.ContainsAny(ticks[i].Label, "eE") {
+			ticks[i].Label = strconv.FormatFloat(ticks[i].Value, 'f', digits, 64)
+		}
+	}
+	return ticks
 }
 
 // barOrder is the order of the bars from the bottom up: ascending

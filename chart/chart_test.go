@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/stretchr/testify/require"
+	"gonum.org/v1/plot"
 
 	"sawmill/forest"
 	"sawmill/forest/train"
@@ -142,5 +143,18 @@ func TestNiceTop(t *testing.T) {
 		if c.in > 0 {
 			require.Greater(t, got, c.in)
 		}
+	}
+}
+
+func TestSameDecimals(t *testing.T) {
+	var labels []string
+	for _, tk := range (sameDecimals{plot.DefaultTicks{}}).Ticks(0, 0.15) {
+		if tk.Label != "" {
+			labels = append(labels, tk.Label)
+		}
+	}
+	require.NotEmpty(t, labels)
+	for _, l := range labels {
+		require.Len(t, l, len(labels[0]), "labels %v", labels)
 	}
 }

@@ -21,6 +21,7 @@ var commands = []func() *cobra.Command{
 	newInspectCmd,
 	newCompileCmd,
 	newVerifyCmd,
+	newDemoCmd,
 }
 
 // Exit codes.
