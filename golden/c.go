@@ -149,6 +149,11 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 	if err := cTools(); err != nil {
 		return nil, err
 	}
+	if variant == "float" {
+		if err := cemit.FitsFloat(p); err != nil {
+			return nil, fmt.Errorf("%w: float C cannot represent this model: %v", ErrSkip, err)
+		}
+	}
 	matrix, cxx := cQuickMatrix, false
 	switch {
 	case r.Full && p.NumNodes() <= cFullMatrixNodes:

@@ -1,6 +1,7 @@
 package cemit
 
 import (
+	"fmt"
 	"math"
 
 	"sawmill/compile"
@@ -81,4 +82,29 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 		e = e/2 + (k+12)*u
 	}
 	return 2 * e
+}
+
+// FitsFloat reports whether float C can score p without overflow: every
+// leaf and base score, and the largest sum the accumulator can reach (the
+// base plus each tree's largest |leaf|), within float range. Emit rejects
+// only leaves and base scores out of range; a sum past the range would give
+// an infinity where double C gives a number.
+func FitsFloat(p *compile.Program) error {
+	total := 0.0
+	for ti := range p.Trees {
+		big := 0.0
+		for i := range p.Trees[ti].Nodes {
+			for _, v := range p.Trees[ti].Nodes[i].Value {
+				big = math.Max(big, math.Abs(v))
+			}
+		}
+		total += big
+	}
+	for _, v := range p.BaseScore {
+		total = math.Max(total, total+math.Abs(v))
+	}
+	if total > math.MaxFloat32 {
+		return fmt.Errorf("the outputs can reach %g, beyond float range (%g)\nhint: emit double C", total, math.MaxFloat32)
+	}
+	return nil
 }

@@ -119,14 +119,17 @@ type gen struct {
 	// float in float mode), by tree and node.
 	leaves   [][][]float64
 	base     []float64
-	tables   []table // static tables of NAME.c, for the size report
+	tables   []Table // static tables of NAME.c, for the size report
 	comments bool
-	featMac  []string // NAME_F_... macro per feature
-	classMac []string // NAME_C_... macro per class
+	// tableMode forces the table layout's leaf mode in tests: 1 leaves
+	// outside the words, 2 leaf rows in the words; 0 chooses the smaller.
+	tableMode int
+	featMac   []string // NAME_F_... macro per feature
+	classMac  []string // NAME_C_... macro per class
 }
 
-// table is one static array of the generated code.
-type table struct {
+// Table is one static array of the generated code.
+type Table struct {
 	Name      string // the C identifier
 	What      string // what it holds
 	Len       int    // elements
@@ -134,7 +137,7 @@ type table struct {
 }
 
 // Bytes is the array's size.
-func (t table) Bytes() int { return t.Len * t.ElemBytes }
+func (t Table) Bytes() int { return t.Len * t.ElemBytes }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
 	switch p.Compare {

@@ -31,7 +31,7 @@ func (g *gen) nested(w *printer) {
 		}
 		w.line("};")
 		w.line("")
-		g.tables = append(g.tables, table{Name: g.name + "_leaf", What: "distinct leaf vectors", Len: len(rows.vecs) * k, ElemBytes: g.elemBytes()})
+		g.tables = append(g.tables, Table{Name: g.name + "_leaf", What: "distinct leaf vectors", Len: len(rows.vecs) * k, ElemBytes: g.elemBytes()})
 		w.line("static void %s_add(%s *acc, const %s *v)", g.name, g.ft, g.ft)
 		w.line("{")
 		w.line("\tint j;")

@@ -31,23 +31,29 @@ import (
 // between); the less-than bit remains only for a threshold whose next value
 // below would be -infinity.
 type tableLayout struct {
-	wordBits  int // 16, 32 or 64
-	fBits     int
-	tBits     int
-	hasML     bool
-	hasLT     bool
-	aBits     int
-	perFeat   bool      // threshold index is local to the feature
-	thr       []float64 // distinct thresholds, by feature then value
-	thrBase   []int     // per feature, first index in thr (when perFeat)
-	thrFloat  bool      // every threshold is a float value
-	words     []uint64
-	treeStart []int // len T+1, in words
-	treeNodes []int // words per tree, for comments
-	leafRows  *leafRows
-	leafOf    []int // per leaf in preorder, its row of leafRows
-	direct    bool  // leaf vectors stored per leaf, not by row
-	leafFloat bool  // every leaf value is a float value
+	wordBits int // 16, 32 or 64
+	fBits    int
+	tBits    int
+	hasML    bool
+	hasLT    bool
+	// p1 holds the splits in the left subtree, or with inWord at a split
+	// whose left child is a leaf, that leaf's row; p2 (only with inWord)
+	// the row of a right leaf child.
+	p1Bits, p2Bits int
+	inWord         bool      // leaf rows in the split words, no per-leaf table
+	soleRow        []int     // per tree, the row of its leaf if it is one leaf, else -1
+	hasSole        bool      // some tree is a single leaf
+	perFeat        bool      // threshold index is local to the feature
+	thr            []float64 // distinct thresholds, by feature then value
+	thrBase        []int     // per feature, first index in thr (when perFeat)
+	thrFloat       bool      // every threshold is a float value
+	words          []uint64
+	treeStart      []int // len T+1, in words
+	treeNodes      []int // words per tree, for comments
+	leafRows       *leafRows
+	leafOf         []int // per leaf in preorder, its row of leafRows
+	direct         bool  // leaf vectors stored per leaf, not by row
+	leafFloat      bool  // every leaf value is a float value
 }
 
 func (g *gen) buildTable() (*tableLayout, error) {
@@ -59,6 +65,8 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		lt, ml    bool
 		ll, rl    bool
 		leftCount int
+		// rows of leafRows of a leaf left or right child
+		leftRow, rightRow int
 	}
 	var splits []split
 	// Per feature, the distinct normalised thresholds.
@@ -91,10 +99,23 @@ func (g *gen) buildTable() (*tableLayout, error) {
 				th = 0 // x <= -0 and x <= 0 agree everywhere
 			}
 			thrSet[n.Feature][math.Float64bits(th)] = true
-			splits = append(splits, split{feature: n.Feature, thr: th, lt: lt, ml: n.MissingLeft,
-				ll: t.Nodes[n.Left].IsLeaf(), rl: t.Nodes[n.Right].IsLeaf(), leftCount: below[n.Left]})
+			sp := split{feature: n.Feature, thr: th, lt: lt, ml: n.MissingLeft,
+				ll: t.Nodes[n.Left].IsLeaf(), rl: t.Nodes[n.Right].IsLeaf(), leftCount: below[n.Left]}
+			if sp.ll {
+				sp.leftRow = tl.leafRows.row(g.leaves[ti][n.Left])
+			}
+			if sp.rl {
+				sp.rightRow = tl.leafRows.row(g.leaves[ti][n.Right])
+			}
+			splits = append(splits, sp)
 			stack = append(stack, n.Right, n.Left)
 		}
+		sole := -1
+		if t.Nodes[0].IsLeaf() {
+			sole = tl.leafRows.row(g.leaves[ti][0])
+			tl.hasSole = true
+		}
+		tl.soleRow = append(tl.soleRow, sole)
 		tl.treeStart = append(tl.treeStart, len(splits))
 		tl.treeNodes = append(tl.treeNodes, len(t.Nodes))
 	}
@@ -126,20 +147,69 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		tl.hasLT = tl.hasLT || s.lt
 		maxLeft = max(maxLeft, s.leftCount)
 	}
-	tl.aBits = bitsFor(maxLeft)
+	tl.leafFloat = true
+	for _, v := range tl.leafRows.vecs {
+		for _, x := range v {
+			if float64(float32(x)) != x {
+				tl.leafFloat = false
+			}
+		}
+	}
+	k := p.NumOutputs
+	vb := tl.leafElemBytes(g)
+	nLeaves, nRows := len(tl.leafOf), len(tl.leafRows.vecs)
+	aBits, rBits := bitsFor(maxLeft), bitsFor(nRows-1)
 	flags := b2i(tl.hasML) + b2i(tl.hasLT) + 2
-	local := tl.fBits + bitsFor(maxLocal-1) + flags + tl.aBits
-	global := tl.fBits + bitsFor(len(tl.thr)-1) + flags + tl.aBits
-	tl.perFeat = wordBits(global) > wordBits(local)
+	// The word for each choice of threshold addressing and leaf mode; the
+	// cheapest wins (ties: leaves outside the word, the plainer walk).
+	type choice struct {
+		perFeat, inWord bool
+		bits, bytes     int
+	}
+	var best *choice
+	for _, inWord := range []bool{false, true} {
+		for _, perFeat := range []bool{false, true} {
+			tb := bitsFor(len(tl.thr) - 1)
+			if perFeat {
+				tb = bitsFor(maxLocal - 1)
+			}
+			c := choice{perFeat: perFeat, inWord: inWord}
+			if inWord {
+				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
+				c.bytes = nRows * k * vb
+			} else {
+				c.bits = tl.fBits + tb + flags + aBits
+				c.bytes = min(nLeaves*k*vb, nLeaves*intBytes(nRows-1)+nRows*k*vb)
+			}
+			if perFeat {
+				c.bytes += len(p.Features) * intBytes(len(tl.thr))
+			}
+			wb := wordBits(c.bits)
+			if wb == 0 {
+				continue
+			}
+			c.bytes += len(splits) * wb / 8
+			if best == nil || c.bytes < best.bytes {
+				best = &c
+			}
+		}
+	}
+	if best == nil {
+		return nil, fmt.Errorf("table layout: a split needs more than 64 bits (%d features, %d distinct thresholds, left subtrees of %d splits)\nhint: use the nested layout",
+			len(p.Features), len(tl.thr), maxLeft)
+	}
+	if g.tableMode != 0 {
+		best.inWord = g.tableMode == 2
+	}
+	tl.perFeat, tl.inWord = best.perFeat, best.inWord
+	tl.wordBits = wordBits(best.bits)
 	tl.tBits = bitsFor(len(tl.thr) - 1)
 	if tl.perFeat {
 		tl.tBits = bitsFor(maxLocal - 1)
 	}
-	total := min(global, local)
-	tl.wordBits = wordBits(total)
-	if tl.wordBits == 0 {
-		return nil, fmt.Errorf("table layout: a split needs %d bits, more than 64 (%d features, %d distinct thresholds, left subtrees of %d splits)\nhint: use the nested layout",
-			total, len(p.Features), len(tl.thr), maxLeft)
+	tl.p1Bits = aBits
+	if tl.inWord {
+		tl.p1Bits, tl.p2Bits = max(aBits, rBits), rBits
 	}
 	for _, s := range splits {
 		ti := index[s.feature][math.Float64bits(s.thr)]
@@ -159,21 +229,17 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		if s.rl {
 			w |= tl.rlBit()
 		}
-		w |= uint64(s.leftCount) << tl.aShift()
+		p1 := s.leftCount
+		if tl.inWord && s.ll {
+			p1 = s.leftRow
+		}
+		w |= uint64(p1) << tl.p1Shift()
+		if tl.inWord && s.rl {
+			w |= uint64(s.rightRow) << tl.p2Shift()
+		}
 		tl.words = append(tl.words, w)
 	}
-	tl.leafFloat = true
-	for _, v := range tl.leafRows.vecs {
-		for _, x := range v {
-			if float64(float32(x)) != x {
-				tl.leafFloat = false
-			}
-		}
-	}
-	k := p.NumOutputs
-	vb := tl.leafElemBytes(g)
-	indirect := len(tl.leafOf)*intBytes(len(tl.leafRows.vecs)-1) + len(tl.leafRows.vecs)*k*vb
-	tl.direct = len(tl.leafOf)*k*vb <= indirect
+	tl.direct = !tl.inWord && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
 	return tl, nil
 }
 
@@ -204,9 +270,10 @@ func (tl *tableLayout) llBit() uint64 {
 	return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT))
 }
 func (tl *tableLayout) rlBit() uint64 { return tl.llBit() << 1 }
-func (tl *tableLayout) aShift() int {
+func (tl *tableLayout) p1Shift() int {
 	return tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + 2
 }
+func (tl *tableLayout) p2Shift() int { return tl.p1Shift() + tl.p1Bits }
 
 func (tl *tableLayout) thrElemBytes(g *gen) int {
 	if g.o.Float || tl.thrFloat {
@@ -292,7 +359,13 @@ func (g *gen) table(w *printer) error {
 	// The split words, one line per tree (or several when long).
 	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), threshold index (%s)%s%s,", nbits(tl.fBits), nbits(tl.tBits),
 		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT])
-	w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s). */", nbits(tl.aBits))
+	if tl.inWord {
+		w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), then (%s) the left leaf's row of %s_leaf", nbits(tl.p1Bits), g.name)
+		w.line(" * if the left child is a leaf, else the splits in the left subtree, then (%s) the right", nbits(tl.p2Bits))
+		w.line(" * leaf's row if the right child is a leaf. */")
+	} else {
+		w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s). */", nbits(tl.p1Bits))
+	}
 	nWords := max(len(tl.words), 1) // C has no empty arrays
 	w.line("static const %s %s_node[%d] = {", wt, g.name, nWords)
 	for ti := 0; ti < T; ti++ {
@@ -306,7 +379,7 @@ func (g *gen) table(w *printer) error {
 		w.line("\t0")
 	}
 	w.line("};")
-	g.tables = append(g.tables, table{g.name + "_node", "split words", nWords, tl.wordBits / 8})
+	g.tables = append(g.tables, Table{g.name + "_node", "split words", nWords, tl.wordBits / 8})
 	w.line("")
 
 	sb := intBytes(len(tl.words))
@@ -314,7 +387,7 @@ func (g *gen) table(w *printer) error {
 	w.line("static const %s %s_start[%d] = {", uintType(sb), g.name, T+1)
 	g.numbers(w, T+1, func(i int) string { return fmt.Sprint(tl.treeStart[i]) })
 	w.line("};")
-	g.tables = append(g.tables, table{g.name + "_start", "first word per tree", T + 1, sb})
+	g.tables = append(g.tables, Table{g.name + "_start", "first word per tree", T + 1, sb})
 	w.line("")
 
 	tt := g.ft
@@ -333,7 +406,7 @@ func (g *gen) table(w *printer) error {
 	}
 	g.numbers(w, len(tl.thr), func(i int) string { return lit(tl.thr[i]) })
 	w.line("};")
-	g.tables = append(g.tables, table{g.name + "_thr", "distinct thresholds", nThr, tl.thrElemBytes(g)})
+	g.tables = append(g.tables, Table{g.name + "_thr", "distinct thresholds", nThr, tl.thrElemBytes(g)})
 	w.line("")
 	bb := intBytes(len(tl.thr))
 	if tl.perFeat {
@@ -341,7 +414,7 @@ func (g *gen) table(w *printer) error {
 		w.line("static const %s %s_thr_base[%d] = {", uintType(bb), g.name, len(tl.thrBase))
 		g.numbers(w, len(tl.thrBase), func(i int) string { return fmt.Sprint(tl.thrBase[i]) })
 		w.line("};")
-		g.tables = append(g.tables, table{g.name + "_thr_base", "first threshold per feature", len(tl.thrBase), bb})
+		g.tables = append(g.tables, Table{g.name + "_thr_base", "first threshold per feature", len(tl.thrBase), bb})
 		w.line("")
 	}
 
@@ -353,28 +426,41 @@ func (g *gen) table(w *printer) error {
 	if lt == "float" {
 		llit = floatLit
 	}
-	if tl.direct {
-		w.line("/* Leaf vectors, per leaf in preorder%s. */", map[bool]string{true: " (all exact as float)"}[lt != g.ft])
+	exactNote := map[bool]string{true: " (all exact as float)"}[lt != g.ft]
+	switch {
+	case tl.direct:
+		w.line("/* Leaf vectors, per leaf in preorder%s. */", exactNote)
 		w.line("static const %s %s_leaf[%d] = {", lt, g.name, len(tl.leafOf)*k)
 		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return llit(tl.leafRows.vecs[tl.leafOf[i/k]][i%k]) })
 		w.line("};")
-		g.tables = append(g.tables, table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
-	} else {
-		rb := intBytes(len(tl.leafRows.vecs) - 1)
-		w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
-		w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
-		g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
-		w.line("};")
-		g.tables = append(g.tables, table{g.name + "_leaf_row", "leaf row per leaf", len(tl.leafOf), rb})
-		w.line("")
+		g.tables = append(g.tables, Table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
+	default:
+		if !tl.inWord {
+			rb := intBytes(len(tl.leafRows.vecs) - 1)
+			w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
+			w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
+			g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
+			w.line("};")
+			g.tables = append(g.tables, Table{g.name + "_leaf_row", "leaf row per leaf", len(tl.leafOf), rb})
+			w.line("")
+		}
 		n := len(tl.leafRows.vecs)
-		w.line("/* Distinct leaf vectors%s. */", map[bool]string{true: " (all exact as float)"}[lt != g.ft])
+		w.line("/* Distinct leaf vectors%s. */", exactNote)
 		w.line("static const %s %s_leaf[%d] = {", lt, g.name, n*k)
 		g.numbers(w, n*k, func(i int) string { return llit(tl.leafRows.vecs[i/k][i%k]) })
 		w.line("};")
-		g.tables = append(g.tables, table{g.name + "_leaf", "distinct leaf vectors", n * k, tl.leafElemBytes(g)})
+		g.tables = append(g.tables, Table{g.name + "_leaf", "distinct leaf vectors", n * k, tl.leafElemBytes(g)})
 	}
 	w.line("")
+	if tl.inWord && tl.hasSole {
+		rb := intBytes(len(tl.leafRows.vecs) - 1)
+		w.line("/* Per tree that is a single leaf, the row of %s_leaf of its leaf (others 0). */", g.name)
+		w.line("static const %s %s_sole[%d] = {", uintType(rb), g.name, T)
+		g.numbers(w, T, func(i int) string { return fmt.Sprint(max(tl.soleRow[i], 0)) })
+		w.line("};")
+		g.tables = append(g.tables, Table{g.name + "_sole", "leaf row of single-leaf trees", T, rb})
+		w.line("")
+	}
 
 	g.predictStart(w, "uint32_t t;")
 	field := func(shift, width int) string {
@@ -387,7 +473,17 @@ func (g *gen) table(w *printer) error {
 	w.line("for (t = 0; t < %du; t++) {", T)
 	w.in()
 	w.line("uint32_t i = %s_start[t];", g.name)
-	w.line("uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */")
+	leaf := "l"
+	if tl.inWord {
+		leaf = "row"
+		if tl.hasSole {
+			w.line("uint32_t row = %s_sole[t]; /* the leaf of a tree that is one leaf */", g.name)
+		} else {
+			w.line("uint32_t row = 0u;")
+		}
+	} else {
+		w.line("uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */")
+	}
 	w.line("if (i < %s_start[t + 1]) {", g.name)
 	w.in()
 	w.line("for (;;) {")
@@ -416,35 +512,45 @@ func (g *gen) table(w *printer) error {
 		cond = fmt.Sprintf("%s || (%s && v != v)", cond, flag(tl.mlBit()))
 	}
 	w.line("if (%s) {", cond)
-	w.line("\tif (%s) {", flag(tl.llBit()))
-	w.line("\t\tbreak;")
-	w.line("\t}")
-	w.line("\ti++;")
+	w.line("	if (%s) {", flag(tl.llBit()))
+	if tl.inWord {
+		w.line("		row = %s;", field(tl.p1Shift(), tl.p1Bits))
+	}
+	w.line("		break;")
+	w.line("	}")
+	w.line("	i++;")
 	w.line("} else {")
-	w.line("\tconst uint32_t a = %s + 1u;", field(tl.aShift(), tl.aBits))
-	w.line("\tl += a;")
-	w.line("\tif (%s) {", flag(tl.rlBit()))
-	w.line("\t\tbreak;")
-	w.line("\t}")
-	w.line("\ti += a;")
+	if tl.inWord {
+		w.line("	if (%s) {", flag(tl.rlBit()))
+		w.line("		row = %s;", field(tl.p2Shift(), tl.p2Bits))
+		w.line("		break;")
+		w.line("	}")
+		w.line("	i += (%s) ? 1u : %s + 1u;", flag(tl.llBit()), field(tl.p1Shift(), tl.p1Bits))
+	} else {
+		w.line("	const uint32_t a = %s + 1u;", field(tl.p1Shift(), tl.p1Bits))
+		w.line("	l += a;")
+		w.line("	if (%s) {", flag(tl.rlBit()))
+		w.line("		break;")
+		w.line("	}")
+		w.line("	i += a;")
+	}
 	w.line("}")
 	w.out()
 	w.line("}")
 	w.out()
 	w.line("}")
-	row := "l"
-	if !tl.direct {
-		row = fmt.Sprintf("%s_leaf_row[l]", g.name)
+	if !tl.direct && !tl.inWord {
+		leaf = fmt.Sprintf("%s_leaf_row[l]", g.name)
 	}
 	conv := ""
 	if lt != g.ft {
 		conv = "(double)"
 	}
 	if k == 1 {
-		w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, row)
+		w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, leaf)
 	} else {
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tacc[j] += %s%s_leaf[%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, row, g.upper)
+		w.line("	acc[j] += %s%s_leaf[%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, leaf, g.upper)
 		w.line("}")
 	}
 	w.out()

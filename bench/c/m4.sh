@@ -1,0 +1,21 @@
+#!/usr/bin/env bash
+# Sizes of a 100-tree, two-class, depth-8 random forest grown by sawmill on
+# the invented table of bench/train/synth (ROWS rows x 20 features, seeded;
+# it stands for no real measurement): each layout's static tables in double
+# and float C, and the object compiled by arm-none-eabi-gcc -std=c99 -Os
+# -mcpu=cortex-m4 -mthumb (.text + .rodata), against 256 KiB of flash.
+#
+# Usage: bench/c/m4.sh [ROWS] [TREES] [DEPTH]      (defaults 20000 100 8)
+set -euo pipefail
+cd "$(dirname "$0")/../.."
+rows=${1:-20000}
+trees=${2:-100}
+depth=${3:-8}
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+go build -o "$tmp/train-bench" ./bench/train
+go build -o "$tmp/c-bench" ./bench/c
+go build -o "$tmp/sawmill" ./cmd/sawmill
+"$tmp/train-bench" -gen "$tmp/data.csv" -rows "$rows" -seed 1
+"$tmp/sawmill" train "$tmp/data.csv" --label label --trees "$trees" --max-depth "$depth" --seed 1 -o "$tmp/model.json" >/dev/null
+"$tmp/c-bench" -model "$tmp/model.json" -sizes
