@@ -2,6 +2,7 @@ package golden
 
 import (
 	"bytes"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -270,4 +271,44 @@ func TestShrink(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(dir, "rows.csv")); err != nil {
 		t.Fatal(err)
 	}
+}
+
+// TestWriteRandomCases writes the differential test's models as case
+// folders and loads them back as the harness would. By default they go to a
+// temporary folder; SAWMILL_GEN_OUT=dir keeps them there, so a seed can be
+// looked at or run by hand (seeds from SAWMILL_DIFF_SEED, count from
+// SAWMILL_DIFF_MODELS, as in TestDifferential).
+func TestWriteRandomCases(t *testing.T) {
+	out := os.Getenv("SAWMILL_GEN_OUT")
+	n := envInt(t, "SAWMILL_DIFF_MODELS", 4)
+	if out == "" {
+		out = t.TempDir()
+		n = min(n, 4)
+	}
+	first := envInt(t, "SAWMILL_DIFF_SEED", 1)
+	for seed := first; seed < first+n; seed++ {
+		f := RandomForest(seed, diffGenOptions)
+		rows := RandomRows(seed, f, int(envInt(t, "SAWMILL_DIFF_ROWS", 48)))
+		name := fmt.Sprintf("diff-seed%d", seed)
+		dir := filepath.Join(out, name)
+		if err := WriteCase(dir, f, rows); err != nil {
+			t.Fatal(err)
+		}
+		c, err := LoadCase(dir, name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(encode(t, c.Model), encode(t, f)) {
+			t.Fatalf("%s: model reads back differently", dir)
+		}
+		if err := checkRowsRoundTrip(c.Model, rows); err != nil {
+			t.Fatalf("%s: %v", dir, err)
+		}
+		want, _ := (&Case{Model: f, Rows: rows}).Reference()
+		got, _ := c.Reference()
+		if m := Compare(want, got, nil, nil, f.NumOutputs(), true, 0); !m.OK() {
+			t.Fatalf("%s: the written case scores differently: %s", dir, m)
+		}
+	}
+	t.Logf("wrote seeds %d to %d under %s", first, first+n-1, out)
 }
