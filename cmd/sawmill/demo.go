@@ -432,8 +432,8 @@ func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Rep
 	p("```sh\nsqlite3 pumps.db < sql/%s.sqlite.sql\n```\n\n", demoCName)
 
 	p("## Verification\n\n")
-	leafRows := "a row for every leaf"
-	if rep.Capped {
+	leafRows := fmt.Sprintf("%d rows that reach every leaf", rep.LeafRows)
+	if rep.Coverage.LeavesHit < rep.Coverage.Leaves {
 		leafRows = fmt.Sprintf("%d rows reaching leaves", rep.LeafRows)
 	}
 	p("`sawmill verify` built each target with its real toolchain or engine and\nscored %d rows (the %d readings, %s and %d rows at thresholds),\ncomparing every output with the model. Coverage: %d of %d leaves, %d of %d\nbranch directions.\n\n",

@@ -212,7 +212,11 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 	}
 	tw.Flush()
 	for _, line := range strings.SplitAfter(table.String(), "\n") {
-		fmt.Fprint(w, strings.TrimRight(line, " "))
+		nl := strings.HasSuffix(line, "\n")
+		fmt.Fprint(w, strings.TrimRight(line, " \n"))
+		if nl {
+			fmt.Fprintln(w)
+		}
 	}
 
 	for _, ch := range rep.Checks {

@@ -48,6 +48,7 @@ func TestVerifyEveryTargetAgrees(t *testing.T) {
 			require.Equal(t, 0, code, "stdout:\n%s\nstderr:\n%s", out, errs)
 			require.Contains(t, out, "coverage  leaves 3 of 3 (100.0%)")
 			require.Regexp(t, `(?m)^`+name+`\S*\s+\S+\s+agree\s`, out)
+			require.NotRegexp(t, `(?m) $`, out, "no trailing blanks")
 		})
 	}
 }
