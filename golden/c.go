@@ -151,7 +151,7 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 	}
 	if variant == "float" {
 		if err := cemit.FitsFloat(p); err != nil {
-			return nil, fmt.Errorf("%w: float C cannot represent this model: %v", ErrSkip, err)
+			return nil, fmt.Errorf("%w: float C: %v", ErrDeclined, err)
 		}
 	}
 	matrix, cxx := cQuickMatrix, false

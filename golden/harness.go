@@ -295,3 +295,10 @@ func (m Mismatch) String() string {
 // ErrSkip is returned by a runner whose toolchain or engine is not present
 // on this machine; the harness reports it plainly.
 var ErrSkip = errors.New("not available here")
+
+// ErrDeclined is returned (wrapped) by a runner whose target cannot
+// represent a model at all, such as float C for leaves beyond float's range;
+// the emitter refuses such a model with a clear error of its own, tested
+// there. It wraps ErrSkip, but unlike an absent engine it is no failure
+// under SAWMILL_REQUIRE_ENGINES.
+var ErrDeclined = fmt.Errorf("%w: the target cannot represent this model", ErrSkip)
