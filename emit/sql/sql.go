@@ -80,6 +80,17 @@ var ErrNames = errors.New("name not usable in SQL")
 // inside what was measured (see the package doc).
 var DefaultMaxNest = map[Dialect]int{SQLite: 100, Postgres: 200, DuckDB: 200, ANSI: 100}
 
+// unfactorAbove is the number of distinct thresholds above which SQLite
+// text spells each comparison x <= coalesce(t, x). SQLite moves every
+// constant operand of a comparison into the statement's prologue after a
+// linear search of the constants moved so far, so prepare time grows with
+// the square of the distinct thresholds (measured on SQLite 3.54.1: 1.8 s at
+// 16,000, 9.2 s at 32,000); coalesce(t, x) is not constant, and its first
+// argument is coded in place without that search (0.17 s and 0.49 s), at
+// the price of one more step per comparison at run time. The value is t
+// exactly, so the comparison is unchanged, NULL included.
+const unfactorAbove = 5000
+
 // FileName is the name of the one file Emit returns.
 const FileName = "score.sql"
 
@@ -110,6 +121,8 @@ type gen struct {
 	nest     int // CASE nesting budget
 	chunk    int // trees per accumulation stage
 	comments bool
+	// unfactor writes SQLite thresholds as coalesce(t, x); see unfactorAbove.
+	unfactor bool
 	out      bytes.Buffer
 
 	used   []int    // used feature indices
@@ -180,6 +193,17 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return nil, fmt.Errorf("sql: base score %v is not a finite number, which SQL cannot spell", v)
 		}
+	}
+	if g.d == SQLite {
+		seen := map[float64]bool{}
+		for ti := range p.Trees {
+			for _, n := range p.Trees[ti].Nodes {
+				if !n.IsLeaf() {
+					seen[n.Threshold] = true
+				}
+			}
+		}
+		g.unfactor = len(seen) > unfactorAbove
 	}
 	g.used = p.UsedFeatures()
 	g.depth = make([][]int32, len(p.Trees))

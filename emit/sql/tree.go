@@ -25,6 +25,9 @@ func newline(b *strings.Builder, indent int) {
 func (g *gen) cond(n *compile.Node) (test string, first, second int32) {
 	x := featCol(n.Feature)
 	t := g.d.num(n.Threshold)
+	if g.unfactor {
+		t = "coalesce(" + t + ", " + x + ")"
+	}
 	switch {
 	case !n.MissingLeft && n.Op == compile.LE:
 		return x + " <= " + t, n.Left, n.Right

@@ -93,7 +93,8 @@ sawmill_2 AS (
         END
       END
     ELSE -1 -- leaf 1
-    END AS n0
+    END AS n0,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_1
 ),
 sawmill_3 AS (
@@ -170,7 +171,8 @@ sawmill_3 AS (
         END
       END
     END)
-    / CAST(1E+00 AS DOUBLE PRECISION) + CAST(0E+00 AS DOUBLE PRECISION) AS z1
+    / CAST(1E+00 AS DOUBLE PRECISION) + CAST(0E+00 AS DOUBLE PRECISION) AS z1,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_2
 )
 SELECT

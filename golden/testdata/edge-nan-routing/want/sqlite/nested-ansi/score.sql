@@ -26,7 +26,8 @@ sawmill_2 AS (
     -- tree 1
     + CASE WHEN x1 <= CAST(5E-324 AS DOUBLE PRECISION) THEN CAST('-0E+00' AS DOUBLE PRECISION) -- node 0, leaf 1
       ELSE CAST(1E-300 AS DOUBLE PRECISION) -- leaf 2
-      END AS z0
+      END AS z0,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_1
 )
 SELECT

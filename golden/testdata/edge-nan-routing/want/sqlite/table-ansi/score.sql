@@ -27,7 +27,8 @@ sawmill_2 AS (
     -- tree 1
     CASE WHEN x1 <= CAST(5E-324 AS DOUBLE PRECISION) THEN -1 -- node 0, leaf 1
     ELSE -2 -- leaf 2
-    END AS n1
+    END AS n1,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_1
 ),
 sawmill_3 AS (
@@ -41,7 +42,8 @@ sawmill_3 AS (
       CASE WHEN n0 >= -2 THEN CAST('-0E+00' AS DOUBLE PRECISION) ELSE CAST(-2.25E+00 AS DOUBLE PRECISION) END
     END
     -- tree 1
-    + CASE WHEN n1 >= -1 THEN CAST('-0E+00' AS DOUBLE PRECISION) ELSE CAST(1E-300 AS DOUBLE PRECISION) END AS z0
+    + CASE WHEN n1 >= -1 THEN CAST('-0E+00' AS DOUBLE PRECISION) ELSE CAST(1E-300 AS DOUBLE PRECISION) END AS z0,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_2
 )
 SELECT

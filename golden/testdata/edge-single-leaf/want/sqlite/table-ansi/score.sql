@@ -14,7 +14,8 @@ sawmill_2 AS (
   SELECT
     k0,
     -- tree 0
-    -1 AS n0
+    -1 AS n0,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_1
 ),
 sawmill_3 AS (
@@ -23,7 +24,8 @@ sawmill_3 AS (
     (CAST(0E+00 AS DOUBLE PRECISION)
     -- tree 0
     + CAST(2.5E+00 AS DOUBLE PRECISION))
-    / CAST(1E+00 AS DOUBLE PRECISION) + CAST(0E+00 AS DOUBLE PRECISION) AS z0
+    / CAST(1E+00 AS DOUBLE PRECISION) + CAST(0E+00 AS DOUBLE PRECISION) AS z0,
+    ROW_NUMBER() OVER () AS sawmill_fence
   FROM sawmill_2
 )
 SELECT
