@@ -98,20 +98,6 @@ func (g *gen) heapData() *heapData {
 	return g.heap
 }
 
-// useBranchless reports whether Auto picks the branchless layout: every
-// tree shallow enough, and padding at most doubling the forest.
-func useBranchless(p *compile.Program) bool {
-	padded := 0
-	for ti := range p.Trees {
-		d := p.Trees[ti].Depth()
-		if d > MaxBranchlessDepth {
-			return false
-		}
-		padded += 1<<(d+1) - 1
-	}
-	return padded <= 2*p.NumNodes()
-}
-
 // branchless declares the heap arrays, the descents and their decoding.
 func (g *gen) branchless() []jen.Code {
 	h := g.heapData()

@@ -59,16 +59,20 @@ const (
 	TestFile   = "model_test.go"
 )
 
-// Thresholds of ChooseLayout, from the measurements in the project's notes
-// on physical limits (Go section) and this package's benchmarks.
+// Thresholds of ChooseLayout, from BenchmarkLayouts (forests grown on the
+// invented benchmark table, timed against the interpreter in one process):
+// the table's four-tree lockstep walk was 4.4 to 9.6 times the interpreter
+// from 10k to 200k nodes, nested code 2 to 3 times and the heaps 3.2 to 6.4
+// times, while for two trees (8k nodes) nested led, 2.5 against 2.1 times.
+// Nested code also costs the Go compiler about 3.5 GB per million nodes in
+// one package (the project's notes on physical limits), the table's blob
+// about 0.1 GB.
 const (
-	// MaxNestedNodes is the largest forest emitted nested by Auto: the Go
-	// compiler needs about 3.5 GB per 1M nodes of nested code in one
-	// package, and builds 200k nodes in about 8 s and 600 MB.
-	MaxNestedNodes = 200_000
-	// MaxNestedTreeNodes is the largest single tree emitted nested by Auto:
-	// one function of more nodes builds slowly.
-	MaxNestedTreeNodes = 50_000
+	// MaxNestedNodes is the largest forest Auto emits nested.
+	MaxNestedNodes = 5_000
+	// MaxNestedTrees is the most trees Auto emits nested: from four on the
+	// lockstep walk pays.
+	MaxNestedTrees = 3
 	// MaxBranchlessDepth is the deepest tree the branchless layout pads to
 	// a full heap; a tree of depth d takes 2^(d+1)-1 slots.
 	MaxBranchlessDepth = 10
@@ -115,24 +119,16 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	return files, nil
 }
 
-// ChooseLayout is the layout Auto picks for p: branchless for forests of
-// shallow trees, nested up to MaxNestedNodes (and no tree above
-// MaxNestedTreeNodes), else the table, which builds in seconds at any size
-// and any depth.
+// ChooseLayout is the layout Auto picks for p: nested, the readable form,
+// for small forests of a few trees (up to MaxNestedTrees trees and
+// MaxNestedNodes nodes), where it is also the fastest; else the table,
+// which was the fastest layout on every larger forest measured, and builds
+// in seconds at any size and any depth.
 func ChooseLayout(p *compile.Program) string {
-	n := p.NumNodes()
-	biggest := 0
-	for i := range p.Trees {
-		biggest = max(biggest, len(p.Trees[i].Nodes))
-	}
-	switch {
-	case useBranchless(p):
-		return emit.Branchless
-	case n <= MaxNestedNodes && biggest <= MaxNestedTreeNodes:
+	if len(p.Trees) <= MaxNestedTrees && p.NumNodes() <= MaxNestedNodes {
 		return emit.Nested
-	default:
-		return emit.Table
 	}
+	return emit.Table
 }
 
 // CheckPackageName reports whether name can name the emitted package.

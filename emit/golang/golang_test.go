@@ -149,14 +149,21 @@ func chainProgram(depth int) *compile.Program {
 }
 
 func TestChooseLayout(t *testing.T) {
-	if l := ChooseLayout(program(t, small)); l != emit.Branchless {
-		t.Errorf("small shallow forest: %s, want branchless", l)
+	if l := ChooseLayout(program(t, small)); l != emit.Nested {
+		t.Errorf("one small tree: %s, want nested", l)
 	}
 	if l := ChooseLayout(chainProgram(100)); l != emit.Nested {
 		t.Errorf("100-deep chain: %s, want nested", l)
 	}
 	if l := ChooseLayout(chainProgram(100_000)); l != emit.Table {
 		t.Errorf("100,000-deep chain: %s, want table", l)
+	}
+	p := chainProgram(10)
+	for range 4 {
+		p.Trees = append(p.Trees, p.Trees[0])
+	}
+	if l := ChooseLayout(p); l != emit.Table {
+		t.Errorf("five trees: %s, want table", l)
 	}
 }
 
