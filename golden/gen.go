@@ -68,6 +68,7 @@ var hostileNames = []string{
 	"0", "1", "9lives", "1e5", "-1", "+", "0x10", "NaN", "inf", "-inf",
 	"é", "e\u0301", "Ω", "ñandú", "温度", "🌡", "\u200b", "\u00a0x", "x\u00a0y", "\u202eabc",
 	"", "a,b", "a;b", "a\"\"b", "a'b", "id", " a", "a ", "\ta", "a\t", " ",
+	"a\x00b", "\x00", "a\u2028b", "\f", "\v", "\x7f", "?", "??", "@x", ":x", "$x", "[x]", "x]", "{x}",
 	// 64 bytes each, equal in their first 63: PostgreSQL keeps 63 bytes of
 	// an identifier (NAMEDATALEN 64, from memory).
 	strings.Repeat("n", 63) + "1", strings.Repeat("n", 63) + "2",
