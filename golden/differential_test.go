@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -201,6 +202,7 @@ func TestDifferential(t *testing.T) {
 				if err := checkEval(f, rows); err != nil {
 					t.Errorf("seed %d: %v", seed, err)
 				}
+				failures := 0
 				for _, tg := range targets {
 					tg := tg.lighter(seed)
 					o := runTarget(context.Background(), tg, f, rows, t.TempDir())
@@ -223,14 +225,18 @@ func TestDifferential(t *testing.T) {
 						continue
 					}
 					dir := filepath.Join(keep, fmt.Sprintf("diff-seed%d", seed))
+					if failures > 0 { // another target failed this seed first
+						dir += "-" + strings.NewReplacer("/", "-").Replace(tg.String())
+					}
+					failures++
 					small, srows := shrinkFor(tg, f, rows, o)
 					if err := WriteCase(dir, small, srows); err != nil {
 						t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", seed, tg, o, err)
 						continue
 					}
 					again := runTarget(context.Background(), tg, small, srows, t.TempDir())
-					t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s",
-						seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again)
+					t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s\nagain: SAWMILL_DIFF_SEED=%d SAWMILL_DIFF_MODELS=1 go test ./golden -run Differential",
+						seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again, seed)
 				}
 			})
 		}
@@ -309,4 +315,73 @@ func checkRowsRoundTrip(f *forest.Forest, rows *forest.Rows) error {
 		}
 	}
 	return nil
+}
+
+// buggyRunner scores with compile.Eval but sends a value equal to a
+// threshold the wrong way (x < t for x <= t): a planted bug of the kind
+// random models should find.
+type buggyRunner struct{}
+
+func (buggyRunner) Name() string                                       { return "buggy" }
+func (buggyRunner) Layouts() []string                                  { return []string{"nested"} }
+func (buggyRunner) Variants() []string                                 { return []string{""} }
+func (buggyRunner) CompileOptions(string) compile.Options              { return compile.Options{} }
+func (buggyRunner) Tolerance(string, *compile.Program) (bool, float64) { return true, 0 }
+
+func (buggyRunner) Score(_ context.Context, p *compile.Program, _, _ string, rows *forest.Rows, _ string) (*Result, error) {
+	q := *p
+	q.Trees = make([]compile.Tree, len(p.Trees))
+	for i, t := range p.Trees {
+		q.Trees[i] = compile.Tree{Source: t.Source, Nodes: append([]compile.Node(nil), t.Nodes...)}
+		for j := range q.Trees[i].Nodes {
+			if n := &q.Trees[i].Nodes[j]; !n.IsLeaf() && n.Op == compile.LE {
+				n.Op = compile.LT
+			}
+		}
+	}
+	res := &Result{Outputs: make([]float64, rows.Len()*p.NumOutputs)}
+	for r := 0; r < rows.Len(); r++ {
+		out := res.Outputs[r*p.NumOutputs : (r+1)*p.NumOutputs]
+		compile.Eval(&q, rows.Row(r), out)
+		if p.IsClassifier() {
+			f := forest.Forest{Task: p.Task}
+			res.Classes = append(res.Classes, f.ClassOf(out))
+		}
+	}
+	return res, nil
+}
+
+// TestDifferentialFindsPlantedBug: the differential machinery finds a
+// planted bug in a few seeds, shrinks it to one tree and one row, and keeps
+// a case folder that loads and still fails.
+func TestDifferentialFindsPlantedBug(t *testing.T) {
+	tg := target{r: buggyRunner{}, layout: "nested"}
+	for seed := uint64(1); seed <= 50; seed++ {
+		f := RandomForest(seed, diffGenOptions)
+		rows := RandomRows(seed, f, 48)
+		o := runTarget(context.Background(), tg, f, rows, "")
+		if !o.failed() {
+			continue
+		}
+		small, srows := shrinkFor(tg, f, rows, o)
+		dir := filepath.Join(t.TempDir(), fmt.Sprintf("diff-seed%d", seed))
+		if err := WriteCase(dir, small, srows); err != nil {
+			t.Fatal(err)
+		}
+		c, err := LoadCase(dir, "diff-seed")
+		if err != nil {
+			t.Fatal(err)
+		}
+		again := runTarget(context.Background(), tg, c.Model, c.Rows, "")
+		if again.mismatch == nil {
+			t.Fatalf("seed %d: the kept case passes: %s", seed, again)
+		}
+		if len(c.Model.Trees) != 1 || c.Rows.Len() != 1 || nodeCount(c.Model) > 3 {
+			t.Errorf("seed %d: shrunk to %d trees, %d nodes, %d rows; want 1 tree of at most 3 nodes and 1 row",
+				seed, len(c.Model.Trees), nodeCount(c.Model), c.Rows.Len())
+		}
+		t.Logf("seed %d: %s; shrunk to %d nodes, %d rows", seed, o, nodeCount(c.Model), c.Rows.Len())
+		return
+	}
+	t.Fatal("50 random models did not find a planted <= versus < bug")
 }

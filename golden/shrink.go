@@ -9,8 +9,8 @@ import (
 )
 
 // Shrink makes a failing case smaller while fails still reports it failing:
-// it drops rows, trees, classes and unused features, cuts subtrees down to
-// leaves, plainens names, and simplifies the header (base score, transform,
+// it drops rows, trees, classes and unused features, replaces splits by a
+// child's subtree or by a leaf, plainens names, and simplifies the header (base score, transform,
 // precision) and leaf values, greedily, until no step helps or fails has been
 // called budget times. Every candidate passed to fails is a valid forest with
 // at least one row. f and rows are not modified.
@@ -19,7 +19,7 @@ func Shrink(f *forest.Forest, rows *forest.Rows, fails func(*forest.Forest, *for
 	for progress := true; progress && s.budget > 0; {
 		progress = false
 		for _, step := range []func() bool{
-			s.compact, s.dropRows, s.dropTrees, s.cutSubtrees, s.dropClasses,
+			s.compact, s.dropRows, s.dropTrees, s.hoistSubtrees, s.cutSubtrees, s.dropClasses,
 			s.dropFeatures, s.plainNames, s.simplifyHeader, s.simplifyValues,
 		} {
 			if step() {
@@ -101,6 +101,35 @@ func (s *shrinker) compact() bool {
 		g.Trees[ti] = c
 	}
 	return !same && s.try(g, s.rows)
+}
+
+// hoistSubtrees replaces splits by one of their children's subtrees,
+// nearest the root first.
+func (s *shrinker) hoistSubtrees() bool {
+	changed := false
+	k := s.f.NumOutputs()
+	for ti := 0; ti < len(s.f.Trees); ti++ {
+		for i := 0; i < s.f.Trees[ti].NumNodes(); i++ {
+			t := &s.f.Trees[ti]
+			if t.IsLeaf(i) || !reachable(t)[i] {
+				continue
+			}
+			for _, c := range []int{t.Left[i], t.Right[i]} {
+				g := cloneForest(s.f)
+				gt := &g.Trees[ti]
+				gt.Feature[i], gt.Threshold[i], gt.MissingLeft[i] = gt.Feature[c], gt.Threshold[c], gt.MissingLeft[c]
+				gt.Left[i], gt.Right[i] = gt.Left[c], gt.Right[c]
+				copy(gt.Value[i*k:(i+1)*k], gt.Value[c*k:(c+1)*k])
+				*gt = compactTree(gt, k)
+				if s.try(g, s.rows) {
+					changed = true
+					i = -1 // the tree was renumbered: start it again
+					break
+				}
+			}
+		}
+	}
+	return changed
 }
 
 // cutSubtrees turns splits into leaves, nearest the root first, taking the
