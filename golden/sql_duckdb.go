@@ -5,8 +5,9 @@ package golden
 import (
 	"context"
 	dbsql "database/sql"
+	"database/sql/driver"
 
-	_ "github.com/duckdb/duckdb-go/v2" // database/sql driver "duckdb"; cgo, bundles the library
+	"github.com/duckdb/duckdb-go/v2" // database/sql driver "duckdb"; cgo, bundles the library
 )
 
 func openDuckDB(ctx context.Context) (*sqlDB, error) {
@@ -21,5 +22,32 @@ func openDuckDB(ctx context.Context) (*sqlDB, error) {
 		return nil, err
 	}
 	return &sqlDB{conn: conn, param: func(int) string { return "?" }, colType: "DOUBLE",
-		close: func() { conn.Close(); db.Close() }}, nil
+		close:      func() { conn.Close(); db.Close() },
+		appendRows: duckAppend(conn)}, nil
+}
+
+// duckAppend loads rows through DuckDB's appender: INSERT with bound
+// parameters manages about 1,500 rows/s of 31 columns, the appender well
+// over 100,000.
+func duckAppend(conn *dbsql.Conn) func(context.Context, string, string, func(func(...any) error) error) error {
+	return func(ctx context.Context, schema, table string, rows func(func(...any) error) error) error {
+		return conn.Raw(func(dc any) error {
+			a, err := duckdb.NewAppenderFromConn(dc.(driver.Conn), schema, table)
+			if err != nil {
+				return err
+			}
+			vals := []driver.Value{}
+			err = rows(func(v ...any) error {
+				vals = vals[:0]
+				for _, x := range v {
+					vals = append(vals, x)
+				}
+				return a.AppendRow(vals...)
+			})
+			if cerr := a.Close(); err == nil {
+				err = cerr
+			}
+			return err
+		})
+	}
 }

@@ -400,3 +400,34 @@ func TestSQLNameErrors(t *testing.T) {
 		t.Errorf("unknown dialect: error %v", err)
 	}
 }
+
+// TestSQLBigForest (SAWMILL_SQL_BIG=1; minutes, not part of the default
+// run) scores a 500-tree forest of 2,047-node trees with distinct
+// thresholds, plus a 300-deep tree, in every engine through the auto
+// layout, and prints prepare and run times.
+func TestSQLBigForest(t *testing.T) {
+	if os.Getenv("SAWMILL_SQL_BIG") == "" {
+		t.Skip("set SAWMILL_SQL_BIG=1 to score the 500-tree, 1M-node forest in every engine (minutes)")
+	}
+	nf := 12
+	var features []string
+	for i := 0; i < nf; i++ {
+		features = append(features, fmt.Sprintf("sensor_%d", i))
+	}
+	var trees []forest.Tree
+	for i := 0; i < 500; i++ {
+		tr := balancedTree(10, nf, 1, uint64(i+1000))
+		for j := range tr.Threshold { // distinct thresholds, as a trained forest on varied data has
+			if tr.Left[j] != -1 {
+				tr.Threshold[j] += float64(i*2048+j) * 1e-7
+			}
+		}
+		trees = append(trees, tr)
+	}
+	trees = append(trees, chainTree(300, 0))
+	f := &forest.Forest{Task: forest.Regression, Features: features, InputPrecision: forest.Float64,
+		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
+	rows := RandomRows(11, f, 200)
+	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
+	sqlCheckVariants(t, f, rows, sqlemit.Options{}, []string{""})
+}

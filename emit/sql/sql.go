@@ -233,11 +233,13 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	return g, nil
 }
 
-// auto picks the layout: nested while every tree fits the nesting budget
-// and the model has at most two outputs; table otherwise (deep trees, or
-// multi-class models, where nested would repeat each tree once per class).
+// auto picks the layout: table for DuckDB (measured 2.8 times faster than
+// nested on a 100-tree forest: its vectorised CASE pays for every nested
+// branch), for trees deeper than the nesting budget, and for models of
+// more than two outputs (where nested repeats each tree once per output);
+// nested otherwise.
 func (g *gen) auto(maxDepth int) string {
-	if maxDepth > g.nest || g.p.NumOutputs > 2 {
+	if g.d == DuckDB || maxDepth > g.nest || g.p.NumOutputs > 2 {
 		return emit.Table
 	}
 	return emit.Nested

@@ -219,6 +219,10 @@ func (g *gen) writeLookup(b *strings.Builder, ti, j int) {
 	}
 	n := nodeCol(ti)
 	val := func(k int) string { return g.d.num(t.Nodes[leaves[k]].Value[j]) }
+	if len(leaves) > 2 && (g.d == Postgres || g.d == DuckDB) {
+		g.writeArrayLookup(b, n, len(leaves), func(k int) float64 { return t.Nodes[leaves[k]].Value[j] })
+		return
+	}
 	var rec func(lo, hi, levels, indent int)
 	rec = func(lo, hi, levels, indent int) { // recursion depth <= log2(len(leaves))
 		switch {
@@ -251,4 +255,31 @@ func (g *gen) writeLookup(b *strings.Builder, ti, j int) {
 		}
 	}
 	rec(0, len(leaves), g.nest, 2)
+}
+
+// writeArrayLookup indexes a constant array by the leaf number, in O(1)
+// per row where a binary search costs log2(leaves) comparisons: leaf k has
+// state -(k+1), and arrays count from 1. PostgreSQL reads the array from
+// text, '{1.5e+00,...}'::float8[], each element through float8in (exact, -0
+// kept); DuckDB's list literal [1.5e+00, ...] holds DOUBLE literals.
+func (g *gen) writeArrayLookup(b *strings.Builder, n string, count int, v func(int) float64) {
+	if g.d == Postgres {
+		b.WriteString("('{")
+		for k := 0; k < count; k++ {
+			if k > 0 {
+				b.WriteByte(',')
+			}
+			b.WriteString(strconv.FormatFloat(v(k), 'e', -1, 64))
+		}
+		b.WriteString("}'::float8[])[-" + n + "]")
+		return
+	}
+	b.WriteString("[")
+	for k := 0; k < count; k++ {
+		if k > 0 {
+			b.WriteString(", ")
+		}
+		b.WriteString(g.d.num(v(k)))
+	}
+	b.WriteString("][-" + n + "]")
 }
