@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -53,7 +54,7 @@ func deepRows(n int) *forest.Rows {
 
 // TestDeepTree: a tree 100,000 deep goes through encode, read, compile and
 // the Program's evaluation without recursion, bit-exact with the
-// interpreter. With SAWMILL_DEEP_TARGETS=1 every target, variant and layout
+// interpreter. With SAWMILL_LIMIT_TARGETS=1 every target, variant and layout
 // (auto included) builds and scores it too; each that cannot take it is
 // reported by name.
 func TestDeepTree(t *testing.T) {
@@ -79,8 +80,15 @@ func TestDeepTree(t *testing.T) {
 	if err := checkEval(g, rows); err != nil {
 		t.Fatal(err)
 	}
-	if os.Getenv("SAWMILL_DEEP_TARGETS") == "" {
-		t.Log("set SAWMILL_DEEP_TARGETS=1 to build and score the deep tree with every target (minutes)")
+	limitTargets(t, "a tree 100,000 deep", g, rows)
+}
+
+// limitTargets runs a model at one of the limits through every target,
+// variant and layout, auto included, when SAWMILL_LIMIT_TARGETS is set,
+// and logs each that cannot take it.
+func limitTargets(t *testing.T, what string, f *forest.Forest, rows *forest.Rows) {
+	if os.Getenv("SAWMILL_LIMIT_TARGETS") == "" {
+		t.Logf("set SAWMILL_LIMIT_TARGETS=1 to build and score %s with every target (minutes)", what)
 		return
 	}
 	var cannot []string
@@ -88,23 +96,23 @@ func TestDeepTree(t *testing.T) {
 		if !slices.Contains(tg.r.Layouts(), emit.Auto) && tg.layout == tg.r.Layouts()[0] {
 			auto := tg
 			auto.layout = emit.Auto
-			if o := deepOne(t, auto, g, rows); o != "" {
+			if o := limitOne(t, what, auto, f, rows); o != "" {
 				cannot = append(cannot, o)
 			}
 		}
-		if o := deepOne(t, tg, g, rows); o != "" {
+		if o := limitOne(t, what, tg, f, rows); o != "" {
 			cannot = append(cannot, o)
 		}
 	}
 	for _, c := range cannot {
-		t.Log("cannot take a tree 100,000 deep: " + c)
+		t.Logf("cannot take %s: %s", what, c)
 	}
 }
 
-// deepOne scores the deep model with one target and returns "" on success,
-// else the target and what went wrong. A failure of auto fails the test: it
-// must pick a layout the toolchain can build.
-func deepOne(t *testing.T, tg target, f *forest.Forest, rows *forest.Rows) string {
+// limitOne scores a model with one target and returns "" on success, else
+// the target and what went wrong. A failure of auto fails the test: it must
+// pick a layout the toolchain can build.
+func limitOne(t *testing.T, what string, tg target, f *forest.Forest, rows *forest.Rows) string {
 	start := time.Now()
 	o := runTarget(context.Background(), tg, f, rows, t.TempDir())
 	took := time.Since(start).Round(time.Millisecond)
@@ -121,7 +129,56 @@ func deepOne(t *testing.T, tg target, f *forest.Forest, rows *forest.Rows) strin
 		msg = msg[:400] + "…"
 	}
 	if tg.layout == emit.Auto {
-		t.Errorf("%s: layout auto cannot take a tree %d deep (%v): %s", tg, deepDepth, took, msg)
+		t.Errorf("%s: layout auto cannot take %s (%v): %s", tg, what, took, msg)
 	}
 	return fmt.Sprintf("%s (%v): %s", tg, took, msg)
+}
+
+// TestWideModel: a classifier of 10,000 classes compiles and evaluates
+// exactly, and (SAWMILL_LIMIT_TARGETS) runs through every target.
+func TestWideModel(t *testing.T) {
+	const k = 10_000
+	f := &forest.Forest{Task: forest.Classification, Features: []string{"x", "y"}, InputPrecision: forest.Float64,
+		Combine: forest.Average, Transform: forest.Softmax, BaseScore: make([]float64, k)}
+	for j := 0; j < k; j++ {
+		f.Classes = append(f.Classes, fmt.Sprintf("class %d", j))
+	}
+	for ti := 0; ti < 3; ti++ {
+		v := make([]float64, 7*k)
+		for i := range v {
+			v[i] = float64((i*7+ti)%13) / 8
+		}
+		f.Trees = append(f.Trees, forest.Tree{Feature: []int{0, 1, -1, -1, 1, -1, -1}, Threshold: []float64{0.5, float64(ti), 0, 0, -1, 0, 0},
+			Left: []int{1, 2, -1, -1, 5, -1, -1}, Right: []int{4, 3, -1, -1, 6, -1, -1}, MissingLeft: []bool{ti == 1, true, false, false, false, false, false}, Value: v})
+	}
+	if err := f.Validate("wide"); err != nil {
+		t.Fatal(err)
+	}
+	rows := RandomRows(5, f, 12)
+	if err := checkEval(f, rows); err != nil {
+		t.Fatal(err)
+	}
+	limitTargets(t, "10,000 outputs", f, rows)
+}
+
+// TestLongName: a feature name and a class label of 1 MB compile and
+// evaluate exactly, and (SAWMILL_LIMIT_TARGETS) run through every target.
+func TestLongName(t *testing.T) {
+	long := strings.Repeat("x", 1<<20)
+	f := RandomForest(11, GenOptions{PlainNames: true, MaxFeatures: 3, MaxTrees: 3, NoHuge: true})
+	f.Features[0] = long
+	if f.IsClassifier() {
+		f.Classes[0] = long
+	}
+	if err := f.Validate("long"); err != nil {
+		t.Fatal(err)
+	}
+	rows := RandomRows(11, f, 12)
+	if err := checkEval(f, rows); err != nil {
+		t.Fatal(err)
+	}
+	if err := checkRowsRoundTrip(f, rows); err != nil {
+		t.Fatal(err)
+	}
+	limitTargets(t, "a name of 1 MB", f, rows)
 }
