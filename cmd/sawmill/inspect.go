@@ -17,7 +17,7 @@ import (
 )
 
 func newInspectCmd() *cobra.Command {
-	var asJSON bool
+	var asJSON, cSizes bool
 	c := &cobra.Command{
 		Use:   "inspect MODEL.json [--json]",
 		Short: "Show what is in a model: trees, nodes, depth, features, sizes",
@@ -28,13 +28,25 @@ input precision, the provenance, and the file size.
 
 Only nodes reachable from a tree's root are counted.`,
 		Example: `  sawmill inspect pump-health.json
-  sawmill inspect pump-health.json --json`,
+  sawmill inspect pump-health.json --json
+  sawmill inspect pump-health.json --c-sizes`,
 		Args: exactArgs(1, "one model file"),
 		RunE: func(c *cobra.Command, args []string) error {
-			return runInspect(c.OutOrStdout(), args[0], asJSON)
+			if err := runInspect(c.OutOrStdout(), args[0], asJSON); err != nil {
+				return err
+			}
+			if !cSizes {
+				return nil
+			}
+			f, err := forest.ReadFile(args[0])
+			if err != nil {
+				return err
+			}
+			return printCSizes(c.Context(), c.OutOrStdout(), f)
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
+	c.Flags().BoolVar(&cSizes, "c-sizes", false, "also print the C tables' bytes per layout and, with arm-none-eabi-gcc, Cortex-M4 flash")
 	return c
 }
 

@@ -2,7 +2,9 @@ package main
 
 import (
 	"encoding/json"
+	"os/exec"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
@@ -64,4 +66,21 @@ func TestInspectJSON(t *testing.T) {
 	require.Equal(t, 0, code, errs)
 	assert.Contains(t, text, "  oob_curve ")
 	assert.Contains(t, text, "  importance  top: ")
+}
+
+// --c-sizes prints each C layout's table bytes, double and float, and the
+// Cortex-M4 flash when arm-none-eabi-gcc is installed (.ci/setup installs it).
+func TestInspectCSizes(t *testing.T) {
+	code, out, errOut := sawmill(t, "inspect", "../../forest/testdata/pump.json", "--c-sizes")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	for _, want := range []string{"double  nested", "double   table", "float   table", "bytes/node"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("missing %q in:\n%s", want, out)
+		}
+	}
+	if _, err := exec.LookPath("arm-none-eabi-gcc"); err == nil && strings.Contains(out, "not on PATH") {
+		t.Errorf("arm-none-eabi-gcc is installed but no flash sizes were printed:\n%s", out)
+	}
 }

@@ -1,0 +1,53 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"text/tabwriter"
+
+	"sawmill/compile"
+	cemit "sawmill/emit/c"
+	"sawmill/forest"
+)
+
+// printCSizes reports, for C in double and in float, each layout's static
+// tables in bytes and, when arm-none-eabi-gcc is on PATH, the flash the
+// object takes on a Cortex-M4 (.text + .rodata, compiled -Os -mthumb).
+func printCSizes(ctx context.Context, w io.Writer, f *forest.Forest) error {
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tCortex-M4 .text\t.rodata\tflash\t")
+	noARM := false
+	for _, float := range []bool{false, true} {
+		p, _, err := compile.Compile(f, compile.Options{SingleInputs: float})
+		if err != nil {
+			return err
+		}
+		o := cemit.Options{Float: float}
+		sizes, err := cemit.MeasureARM(ctx, p, o)
+		if errors.Is(err, cemit.ErrNoARM) {
+			noARM = true
+			sizes, err = cemit.Sizes(p, o)
+		}
+		if err != nil {
+			return err
+		}
+		kind := "double"
+		if float {
+			kind = "float"
+		}
+		for _, s := range sizes {
+			arm := "\t\t"
+			if s.ARM != nil {
+				arm = fmt.Sprintf("%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash())
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%d\t%.2f\t%s\t\n", kind, s.Layout, s.TableBytes, s.BytesPerNode(), arm)
+		}
+	}
+	tw.Flush()
+	if noARM {
+		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", cemit.ARMCompiler)
+	}
+	return nil
+}
