@@ -27,6 +27,10 @@ import (
 //	SAWMILL_DIFF_ROWS=R     rows per model (default 48)
 //	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default testdata)
 //	SAWMILL_DIFF_SHRINK=D   time spent shrinking one failure (default 3m)
+//
+// Models run in parallel (go test -parallel, GOMAXPROCS by default). A seed
+// names a model for one revision of gen.go only; a failure is therefore kept
+// as files (golden/testdata/diff-seed<N>), which stay a golden case.
 const diffDefaultModels = 16
 
 // scoreTimeout bounds one build and run, so that a hang is a failure.
