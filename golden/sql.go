@@ -84,6 +84,11 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 		for j, n := range sqlemit.OutputNames(p) {
 			o.Outputs = append(o.Outputs, "o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""))
 		}
+		// What renaming cannot mend (a class label with a NUL byte, which
+		// the class column must spell) is beyond SQL.
+		if _, err := sqlemit.Emit(p, o); errors.Is(err, sqlemit.ErrNames) {
+			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
+		}
 	} else if err != nil {
 		return o, err
 	}
@@ -309,9 +314,37 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options
 
 // Score implements Runner.
 func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
+	if err := r.declines(p, layout, variant); err != nil {
+		return nil, err
+	}
 	return r.score(ctx, p, rows, dir, func(schema string) (sqlemit.Options, error) {
 		return r.options(p, layout, variant, schema)
 	})
+}
+
+// Stage counts past which a run would take many minutes (trees thousands
+// deep walked in that many sub-queries; measured): ANSI text cannot ask
+// for materialization, and PostgreSQL planned 1,000 fenced stages for over
+// ten minutes in 5 GB; SQLite's time grows with about the 2.5th power of
+// the stages (2.7 s at 53, 15 s at 103).
+const (
+	maxANSIStages   = 100
+	maxSQLiteStages = 300
+)
+
+// declines returns ErrDeclined for statements beyond those counts.
+func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
+	n, err := sqlemit.Stages(p, sqlemit.Options{Dialect: r.dialect(variant), Layout: layout})
+	if err != nil {
+		return nil // Score reports it
+	}
+	switch {
+	case variant == "ansi" && n > maxANSIStages:
+		return fmt.Errorf("%w: ANSI text of %d sub-queries (more than %d) on %s", ErrDeclined, n, maxANSIStages, r.engine)
+	case r.engine == "sqlite" && n > maxSQLiteStages:
+		return fmt.Errorf("%w: %d sub-queries (more than %d) in SQLite", ErrDeclined, n, maxSQLiteStages)
+	}
+	return nil
 }
 
 // score runs p with the options opts gives for the session's schema ("" but

@@ -277,36 +277,43 @@ func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlem
 	}
 }
 
-// TestSQLDeepTree: a 300-deep tree exceeds every dialect's default CASE
+// TestSQLDeepTree: a 600-deep tree exceeds every dialect's default CASE
 // nesting, so auto picks the table layout and walks it in stages; the
-// nested layout refuses it with a hint, and runs when allowed to nest
-// deeper (SQLite 3.54 accepts about 498 levels of CASE, DuckDB 992,
-// PostgreSQL 1,999; measured).
+// nested layout refuses it with a hint. A 300-deep tree runs nested when
+// allowed to nest 400 deep (SQLite 3.54 accepts about 498 levels of CASE,
+// DuckDB 992, PostgreSQL 1,999; measured).
 func TestSQLDeepTree(t *testing.T) {
-	f := &forest.Forest{Task: forest.Regression, Features: []string{"depth"}, InputPrecision: forest.Float64,
-		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.25},
-		Trees: []forest.Tree{chainTree(300, 0), chainTree(7, 0)}}
-	rows := RandomRows(3, f, 40)
-	for i := 0; i < 310; i += 3 { // every leaf, and the thresholds themselves
-		rows.Values = append(rows.Values, float64(i)-0.5, float64(i))
-		rows.Line = append(rows.Line, 0, 0)
+	deep := func(d int) (*forest.Forest, *forest.Rows) {
+		f := &forest.Forest{Task: forest.Regression, Features: []string{"depth"}, InputPrecision: forest.Float64,
+			Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.25},
+			Trees: []forest.Tree{chainTree(d, 0), chainTree(7, 0)}}
+		rows := RandomRows(3, f, 40)
+		for i := 0; i < d+10; i += 3 { // every third leaf, and the thresholds themselves
+			rows.Values = append(rows.Values, float64(i)-0.5, float64(i))
+			rows.Line = append(rows.Line, 0, 0)
+		}
+		return f, rows
 	}
+	f, rows := deep(600)
 	p := sqlProgram(t, f)
-	if l, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: sqlemit.SQLite}); l != emit.Table {
-		t.Fatalf("auto picked %s for a 300-deep tree", l)
+	for _, d := range sqlemit.Dialects {
+		if l, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: d}); l != emit.Table {
+			t.Fatalf("%s: auto picked %s for a 600-deep tree", d, l)
+		}
 	}
 	_, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: emit.Nested})
-	if err == nil || !strings.Contains(err.Error(), "300 splits deep") || !strings.Contains(err.Error(), "hint:") {
-		t.Fatalf("nested layout of a 300-deep tree: error %v", err)
+	if err == nil || !strings.Contains(err.Error(), "600 splits deep") || !strings.Contains(err.Error(), "hint:") {
+		t.Fatalf("nested layout of a 600-deep tree: error %v", err)
 	}
 	t.Run("auto", func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{}) })
-	t.Run("nested400", func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{Layout: emit.Nested, MaxNest: 400}) })
-	// 120 descent stages: in ANSI text, which cannot ask for MATERIALIZED,
+	// 150 descent stages: in ANSI text, which cannot ask for MATERIALIZED,
 	// SQLite counts the fenced sub-queries into its expression depth limit
 	// (1000) and refuses, so only the engines' own dialects run this.
 	t.Run("table-nest5", func(t *testing.T) {
 		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Table, MaxNest: 5}, []string{""})
 	})
+	f, rows = deep(300)
+	t.Run("nested400", func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{Layout: emit.Nested, MaxNest: 400}) })
 }
 
 // TestSQLStages splits the sum over many sub-queries (two trees each) and

@@ -78,7 +78,7 @@ var ErrNames = errors.New("name not usable in SQL")
 
 // DefaultMaxNest is the CASE nesting each dialect gets by default, well
 // inside what was measured (see the package doc).
-var DefaultMaxNest = map[Dialect]int{SQLite: 100, Postgres: 200, DuckDB: 200, ANSI: 100}
+var DefaultMaxNest = map[Dialect]int{SQLite: 400, Postgres: 500, DuckDB: 400, ANSI: 100}
 
 // unfactorAbove is the number of distinct thresholds above which SQLite
 // text spells each comparison x <= coalesce(t, x). SQLite moves every
@@ -133,8 +133,9 @@ type gen struct {
 	last   string   // name of the last CTE
 	stage  int
 	// per tree: preorder depth of every node, and leaf ordinals
-	depth [][]int32
-	ord   [][]int32
+	depth  [][]int32
+	ord    [][]int32
+	cutsOf [][]int32 // per tree, the table layout's stage depths (treeCuts)
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
@@ -208,6 +209,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	g.used = p.UsedFeatures()
 	g.depth = make([][]int32, len(p.Trees))
 	g.ord = make([][]int32, len(p.Trees))
+	g.cutsOf = make([][]int32, len(p.Trees))
 	maxDepth := 0
 	for ti := range p.Trees {
 		g.depth[ti], g.ord[ti] = treeInfo(&p.Trees[ti])
@@ -371,4 +373,15 @@ func treeInfo(t *compile.Tree) (depth, ord []int32) {
 		depth[n.Right] = depth[i] + 1
 	}
 	return depth, ord
+}
+
+// Stages returns the number of sub-queries (common table expressions) the
+// statement for p under o has.
+func Stages(p *compile.Program, o Options) (int, error) {
+	g, err := newGen(p, o)
+	if err != nil {
+		return 0, err
+	}
+	g.statement()
+	return g.stage, nil
 }

@@ -205,7 +205,7 @@ func (g *gen) tableStages(a, b int) {
 				if g.comments {
 					fmt.Fprintf(&e, "-- tree %d\n    ", g.p.Trees[ti].Source)
 				}
-				g.writeTree(&e, ti, 0, g.cut(1), g.stateCode(ti), 2)
+				g.writeTree(&e, ti, 0, g.cut(ti, 1), g.stateCode(ti), 2)
 			case s < g.descentStages(ti):
 				g.writeDispatch(&e, ti, s)
 			default:

@@ -118,27 +118,58 @@ func (g *gen) writeTree(b *strings.Builder, ti int, root, cut int32, code func(i
 // computes, per tree, an integer state: -(k+1) once the row has reached the
 // tree's k-th leaf (in preorder), or the index of the node it has reached
 // when the tree is deeper than one stage may nest. Stage 0 walks from the
-// root down to depth cut(1) = MaxNest; every later stage s walks from the
-// splits at depth cut(s), picked by a binary search on the state, down
-// D = MaxNest/2 more levels, so no CASE nests deeper than MaxNest.
+// root down to depth MaxNest; every later stage s walks from the splits at
+// depth cut(s), picked by a binary search on the state (ceil(log2 F) levels
+// for F such splits, plus one), down as many more levels as MaxNest leaves,
+// so no CASE nests deeper than MaxNest. A chain (F = 1) thus advances
+// MaxNest-1 levels a stage.
 
-func (g *gen) cut(s int) int32 {
-	if s == 0 {
-		return 0
+// treeCuts returns the depths at which tree ti's descent stages start
+// (cuts[0] = 0), one per stage, plus the depth past the last one.
+func (g *gen) treeCuts(ti int) []int32 {
+	if c := g.cutsOf[ti]; c != nil {
+		return c
 	}
-	d := max(1, g.nest/2)
-	return int32(g.nest + (s-1)*d)
+	t := &g.p.Trees[ti]
+	var perDepth []int // splits at each depth
+	for i := range t.Nodes {
+		if !t.Nodes[i].IsLeaf() {
+			d := int(g.depth[ti][i])
+			for len(perDepth) <= d {
+				perDepth = append(perDepth, 0)
+			}
+			perDepth[d]++
+		}
+	}
+	cuts := []int32{0, int32(g.nest)}
+	for int(cuts[len(cuts)-1]) < len(perDepth) {
+		c := cuts[len(cuts)-1]
+		cuts = append(cuts, c+int32(g.stageDepth(perDepth[c])))
+	}
+	g.cutsOf[ti] = cuts
+	return cuts
 }
+
+// stageDepth is how many levels a stage starting from f splits walks:
+// what MaxNest leaves after the binary search and its final equality.
+func (g *gen) stageDepth(f int) int {
+	return max(1, g.nest-1-bits(f-1))
+}
+
+// bits is the number of binary digits of n (0 for 0): a binary search over
+// n+1 entries takes that many levels.
+func bits(n int) int {
+	b := 0
+	for ; n > 0; n >>= 1 {
+		b++
+	}
+	return b
+}
+
+func (g *gen) cut(ti, s int) int32 { return g.treeCuts(ti)[s] }
 
 // descentStages is how many descent stages tree ti needs.
-func (g *gen) descentStages(ti int) int {
-	deepest := g.p.Trees[ti].Depth() - 1 // depth of the deepest split
-	s := 1
-	for deepest >= 0 && g.cut(s) <= int32(deepest) {
-		s++
-	}
-	return s
-}
+func (g *gen) descentStages(ti int) int { return len(g.treeCuts(ti)) - 1 }
 
 // stateCode writes a node's state: a leaf's -(ordinal+1), a split's index.
 func (g *gen) stateCode(ti int) func(int32) string {
@@ -157,7 +188,7 @@ func (g *gen) stateCode(ti int) func(int32) string {
 // (a leaf reached earlier) stays as it is.
 func (g *gen) writeDispatch(b *strings.Builder, ti, s int) {
 	t := &g.p.Trees[ti]
-	at := g.cut(s)
+	at := g.cut(ti, s)
 	var front []int32
 	for i := range t.Nodes {
 		if !t.Nodes[i].IsLeaf() && g.depth[ti][i] == at {
@@ -167,9 +198,9 @@ func (g *gen) writeDispatch(b *strings.Builder, ti, s int) {
 	if len(front) == 0 {
 		panic(fmt.Sprintf("BUG: sql: tree %d has no splits at depth %d in stage %d", ti, at, s))
 	}
-	levels := g.nest - max(1, g.nest/2) - 1 // binary-search levels left
+	next := g.cut(ti, s+1)
+	levels := max(0, g.nest-1-int(next-at)) // binary-search levels left
 	n := nodeCol(ti)
-	next := g.cut(s + 1)
 	code := g.stateCode(ti)
 	var rec func(lo, hi, levels, indent int)
 	rec = func(lo, hi, levels, indent int) { // recursion depth <= log2(len(front))
