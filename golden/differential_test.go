@@ -9,7 +9,6 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
-	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -206,7 +205,7 @@ func TestDifferential(t *testing.T) {
 				if err := checkEval(f, rows); err != nil {
 					t.Errorf("seed %d: %v", seed, err)
 				}
-				failures := 0
+				kept := ""
 				for _, tg := range targets {
 					tg := tg.lighter(seed)
 					o := runTarget(context.Background(), tg, f, rows, t.TempDir())
@@ -229,10 +228,11 @@ func TestDifferential(t *testing.T) {
 						continue
 					}
 					dir := filepath.Join(keep, fmt.Sprintf("diff-seed%d", seed))
-					if failures > 0 { // another target failed this seed first
-						dir += "-" + strings.NewReplacer("/", "-").Replace(tg.String())
+					if kept != "" { // one case per seed: the first failure's
+						t.Errorf("seed %d: %s: %s (see %s)", seed, tg, o, kept)
+						continue
 					}
-					failures++
+					kept = dir
 					small, srows := shrinkFor(tg, f, rows, o)
 					if err := WriteCase(dir, small, srows); err != nil {
 						t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", seed, tg, o, err)
