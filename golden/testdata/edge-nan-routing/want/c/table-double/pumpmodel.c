@@ -11,12 +11,14 @@ const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 };
 
 /* Splits, per tree in preorder, low bits first: feature (1 bit), threshold index (2 bits), missing goes left (1 bit),
- * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (1 bit). */
+ * left is a leaf (1 bit), right is a leaf (1 bit), then (2 bits) the left leaf's row of pumpmodel_leaf
+ * if the left child is a leaf, else the splits in the left subtree, then (2 bits) the right
+ * leaf's row if the right child is a leaf. */
 static const uint16_t pumpmodel_node[3] = {
 	/* tree 0 */
-	0x68u, 0x33u,
+	0x268u, 0x133u,
 	/* tree 1 */
-	0x35u,
+	0x375u,
 };
 
 /* First word of each tree; tree t has words start[t] to start[t+1]-1. */
@@ -27,11 +29,6 @@ static const uint8_t pumpmodel_start[3] = {
 /* Distinct thresholds, by feature, ascending. */
 static const double pumpmodel_thr[3] = {
 	0.5, 0.0, 5e-324,
-};
-
-/* Per leaf in preorder, its row of pumpmodel_leaf. */
-static const uint8_t pumpmodel_leaf_row[5] = {
-	0, 1, 2, 1, 3,
 };
 
 /* Distinct leaf vectors. */
@@ -47,7 +44,7 @@ void pumpmodel_predict(const double *x, double *out)
 	acc[0] = -0.0;
 	for (t = 0; t < 2u; t++) {
 		uint32_t i = pumpmodel_start[t];
-		uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */
+		uint32_t row = 0u;
 		if (i < pumpmodel_start[t + 1]) {
 			for (;;) {
 				const uint16_t w = pumpmodel_node[i];
@@ -56,20 +53,20 @@ void pumpmodel_predict(const double *x, double *out)
 				const double th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x3u)];
 				if (v <= th || ((w & 0x8u) != 0 && v != v)) {
 					if ((w & 0x10u) != 0) {
+						row = ((uint32_t)(w >> 6) & 0x3u);
 						break;
 					}
 					i++;
 				} else {
-					const uint32_t a = ((uint32_t)(w >> 6) & 0x1u) + 1u;
-					l += a;
 					if ((w & 0x20u) != 0) {
+						row = ((uint32_t)(w >> 8) & 0x3u);
 						break;
 					}
-					i += a;
+					i += ((w & 0x10u) != 0) ? 1u : ((uint32_t)(w >> 6) & 0x3u) + 1u;
 				}
 			}
 		}
-		acc[0] += pumpmodel_leaf[pumpmodel_leaf_row[l]];
+		acc[0] += pumpmodel_leaf[row];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];

@@ -20,9 +20,8 @@
  *   pumpmodel_node: split words, 3 x 2 = 6 bytes
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
- *   pumpmodel_leaf_row: leaf row per leaf, 5 x 1 = 5 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
- *   total 70 bytes (8.75 bytes per node; code not counted)
+ *   total 65 bytes (8.12 bytes per node; code not counted)
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

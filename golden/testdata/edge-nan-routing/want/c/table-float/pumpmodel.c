@@ -11,12 +11,14 @@ const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 };
 
 /* Splits, per tree in preorder, low bits first: feature (1 bit), threshold index (1 bit), missing goes left (1 bit),
- * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (1 bit). */
+ * left is a leaf (1 bit), right is a leaf (1 bit), then (2 bits) the left leaf's row of pumpmodel_leaf
+ * if the left child is a leaf, else the splits in the left subtree, then (2 bits) the right
+ * leaf's row if the right child is a leaf. */
 static const uint16_t pumpmodel_node[3] = {
 	/* tree 0 */
-	0x34u, 0x1bu,
+	0x134u, 0x9bu,
 	/* tree 1 */
-	0x1bu,
+	0x1bbu,
 };
 
 /* First word of each tree; tree t has words start[t] to start[t+1]-1. */
@@ -29,9 +31,9 @@ static const float pumpmodel_thr[2] = {
 	0.5f, 0.0f,
 };
 
-/* Leaf vectors, per leaf in preorder. */
-static const float pumpmodel_leaf[5] = {
-	1.5f, -0.0f, -2.25f, -0.0f, 0.0f,
+/* Distinct leaf vectors. */
+static const float pumpmodel_leaf[4] = {
+	1.5f, -0.0f, -2.25f, 0.0f,
 };
 
 void pumpmodel_predict(const float *x, float *out)
@@ -42,7 +44,7 @@ void pumpmodel_predict(const float *x, float *out)
 	acc[0] = -0.0f;
 	for (t = 0; t < 2u; t++) {
 		uint32_t i = pumpmodel_start[t];
-		uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */
+		uint32_t row = 0u;
 		if (i < pumpmodel_start[t + 1]) {
 			for (;;) {
 				const uint16_t w = pumpmodel_node[i];
@@ -51,20 +53,20 @@ void pumpmodel_predict(const float *x, float *out)
 				const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
 				if (v <= th || ((w & 0x4u) != 0 && v != v)) {
 					if ((w & 0x8u) != 0) {
+						row = ((uint32_t)(w >> 5) & 0x3u);
 						break;
 					}
 					i++;
 				} else {
-					const uint32_t a = ((uint32_t)(w >> 5) & 0x1u) + 1u;
-					l += a;
 					if ((w & 0x10u) != 0) {
+						row = ((uint32_t)(w >> 7) & 0x3u);
 						break;
 					}
-					i += a;
+					i += ((w & 0x8u) != 0) ? 1u : ((uint32_t)(w >> 5) & 0x3u) + 1u;
 				}
 			}
 		}
-		acc[0] += pumpmodel_leaf[l];
+		acc[0] += pumpmodel_leaf[row];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];

@@ -20,8 +20,8 @@
  *   pumpmodel_node: split words, 3 x 2 = 6 bytes
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 2 x 4 = 8 bytes
- *   pumpmodel_leaf: leaf vectors, 5 x 4 = 20 bytes
- *   total 37 bytes (4.62 bytes per node; code not counted)
+ *   pumpmodel_leaf: distinct leaf vectors, 4 x 4 = 16 bytes
+ *   total 33 bytes (4.12 bytes per node; code not counted)
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces
