@@ -2,9 +2,14 @@ package golden
 
 import (
 	"context"
+	"fmt"
 	"math"
+	"math/bits"
+	"math/rand/v2"
+	"os"
 	"slices"
 	"testing"
+	"time"
 
 	"github.com/stretchr/testify/require"
 
@@ -327,4 +332,67 @@ func TestCParseHexFloat(t *testing.T) {
 	}
 	_, err := parseHexFloat("0x1.zp+1")
 	require.Error(t, err)
+}
+
+// A forest of about a million nodes (2,000 complete trees of depth 8, 20
+// features, random thresholds and leaves) must build with the auto layout in under 60 s
+// with gcc -O2, and score exactly. Slow: set SAWMILL_C_BIG=1 to run it.
+func TestCMillionNodes(t *testing.T) {
+	if os.Getenv("SAWMILL_C_BIG") == "" {
+		t.Skip("slow: set SAWMILL_C_BIG=1 to build a 1M-node forest")
+	}
+	if err := cTools(); err != nil {
+		t.Skipf("C compilers: %v", err)
+	}
+	const trees, depth, nf = 2000, 8, 20
+	rng := rand.New(rand.NewPCG(7, 8))
+	f := &forest.Forest{Task: forest.Classification, Classes: []string{"healthy", "cavitation"}, Combine: forest.Average}
+	for j := 0; j < nf; j++ {
+		f.Features = append(f.Features, fmt.Sprintf("f%d", j))
+	}
+	for ti := 0; ti < trees; ti++ {
+		var tr forest.Tree
+		n := 1<<(depth+1) - 1
+		for i := 0; i < n; i++ {
+			if i < n/2 {
+				d := bits.Len(uint(i+1)) - 1 // the node's depth: one feature per level, so no split is dead
+				tr.Feature = append(tr.Feature, (d+ti)%nf)
+				tr.Threshold = append(tr.Threshold, rng.Float64())
+				tr.Left, tr.Right = append(tr.Left, 2*i+1), append(tr.Right, 2*i+2)
+				tr.MissingLeft = append(tr.MissingLeft, rng.IntN(2) == 0)
+				tr.Value = append(tr.Value, 0, 0)
+				continue
+			}
+			p := rng.Float64()
+			tr.Feature, tr.Threshold = append(tr.Feature, -1), append(tr.Threshold, 0)
+			tr.Left, tr.Right = append(tr.Left, -1), append(tr.Right, -1)
+			tr.MissingLeft = append(tr.MissingLeft, false)
+			tr.Value = append(tr.Value, 1-p, p)
+		}
+		f.Trees = append(f.Trees, tr)
+	}
+	mustValidate(t, f)
+	rows := &forest.Rows{Features: f.Features}
+	for r := 0; r < 2000; r++ {
+		for j := 0; j < nf; j++ {
+			v := rng.Float64()
+			if rng.IntN(50) == 0 {
+				v = math.NaN()
+			}
+			rows.Values = append(rows.Values, v)
+		}
+		rows.Line = append(rows.Line, r+2)
+	}
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	require.GreaterOrEqual(t, p.NumNodes(), 1_000_000)
+	layout, why, err := cemit.Resolve(p, cemit.Options{})
+	require.NoError(t, err)
+	res, err := cRunner{}.score(context.Background(), p, cemit.Options{Name: cName, Layout: emit.Auto}, rows, t.TempDir(), cMatrix[:1], false)
+	require.NoError(t, err)
+	t.Logf("%d nodes: auto chose %s (%s); gcc -O2 build %v, %d rows in %v", p.NumNodes(), layout, why, res.Build.Round(time.Millisecond), rows.Len(), res.Run.Round(time.Millisecond))
+	require.Less(t, res.Build, 60*time.Second)
+	want, wantCls := cReference(f, rows, false)
+	m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, true, 0)
+	require.True(t, m.OK(), "%s", m)
 }

@@ -8,7 +8,9 @@
 //	go run ./bench/c -model MODEL.json -rows ROWS.csv [-rounds 3] [-reps 7]
 //	                 [-sklearn SECONDS]
 //
-// One thread everywhere; each side runs in its own process, the sides take
+// One thread everywhere, except the C sides named -2threads (two threads
+// over halves of the rows, to set beside scikit-learn's n_jobs=2; their
+// ns/row and ns/node are per thread); each side runs in its own process, the sides take
 // turns, and each figure is the median over rounds of each round's median
 // pass. Treat differences under about 1.3x as noise on a busy machine.
 package main
@@ -30,7 +32,6 @@ import (
 	"time"
 
 	"sawmill/compile"
-	"sawmill/emit"
 	cemit "sawmill/emit/c"
 	"sawmill/emit/golang"
 	"sawmill/forest"
@@ -43,6 +44,8 @@ func main() {
 	reps := flag.Int("reps", 7, "passes over the rows per side per round")
 	sk := flag.Float64("sklearn", 0, "scikit-learn's predict_proba seconds for the same rows, to print the ratio")
 	noGo := flag.Bool("no-go", false, "skip emitted Go")
+	cLayouts := flag.String("c", "nested,table,table-float,table-2threads", "C sides: comma-separated layouts, -float for float C, -2threads for two threads")
+	goLayouts := flag.String("go", "nested,table,branchless", "emitted Go layouts")
 	sizes := flag.Bool("sizes", false, "print the table sizes of each layout and the Cortex-M4 object sizes, then stop")
 	flag.Parse()
 	if *sizes {
@@ -52,7 +55,7 @@ func main() {
 		}
 		return
 	}
-	if err := run(*model, *rowsPath, *rounds, *reps, *sk, *noGo); err != nil {
+	if err := run(*model, *rowsPath, *rounds, *reps, *sk, *noGo, split(*cLayouts), split(*goLayouts)); err != nil {
 		fmt.Fprintln(os.Stderr, "c-bench:", err)
 		os.Exit(1)
 	}
@@ -65,11 +68,19 @@ type side struct {
 	cmd     []string // run with the rows file appended
 	times   []float64
 	float   bool
+	threads int
 	sum     string // checksum printed
 	exactOf float64
 }
 
-func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo bool) error {
+func split(s string) []string {
+	if s == "" {
+		return nil
+	}
+	return strings.Split(s, ",")
+}
+
+func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo bool, cLayouts, goLayouts []string) error {
 	f, err := forest.ReadFile(modelPath)
 	if err != nil {
 		return err
@@ -114,20 +125,23 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 	fmt.Printf("interpreter checksum %.17g\n", ref)
 
 	var sides []*side
-	for _, l := range []string{emit.Nested, emit.Table} {
-		s, err := buildC(dir, p, l, false, n, reps)
+	for _, l := range cLayouts {
+		prog, fl, threads := p, false, 1
+		if strings.HasSuffix(l, "-2threads") {
+			threads, l = 2, strings.TrimSuffix(l, "-2threads")
+		}
+		if strings.HasSuffix(l, "-float") {
+			prog, fl, l = ps, true, strings.TrimSuffix(l, "-float")
+		}
+		s, err := buildC(dir, prog, l, fl, threads, n, reps)
 		if err != nil {
 			return err
 		}
 		sides = append(sides, s)
 	}
-	s, err := buildC(dir, ps, emit.Table, true, n, reps)
-	if err != nil {
-		return err
-	}
-	sides = append(sides, s)
+	nC := len(sides)
 	if !noGo {
-		for _, l := range []string{emit.Nested, emit.Table, emit.Branchless} {
+		for _, l := range goLayouts {
 			s, err := buildGo(dir, p, l, n, reps)
 			if err != nil {
 				fmt.Printf("go/%s: not built: %v\n", l, firstLine(err.Error()))
@@ -164,12 +178,9 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 	sides = append(sides, interp)
 	refs := strconv.FormatFloat(ref, 'g', 17, 64)
 	fmt.Printf("\n%-44s %9s %10s %11s %9s %9s  %s\n", "side", "build s", "s/pass", "rows/s", "ns/row", "ns/node", "checksum")
-	var cNested float64
+	base := sides[0]
 	for _, s := range sides {
 		t := median(s.times)
-		if s.name == "c/nested (double, gcc -O2)" {
-			cNested = t
-		}
 		check := "= interpreter"
 		if s.sum != "" && s.sum != refs {
 			v, _ := strconv.ParseFloat(s.sum, 64)
@@ -182,17 +193,16 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 		if s.build > 0 {
 			build = fmt.Sprintf("%.2f", s.build.Seconds())
 		}
-		fmt.Printf("%-44s %9s %10.4f %11.0f %9.0f %9.2f  %s\n", s.name, build, t, float64(n)/t, t/float64(n)*1e9, t/float64(n)/perRow*1e9, check)
+		cpu := t * float64(max(s.threads, 1)) // ns per row and node are per thread
+		fmt.Printf("%-44s %9s %10.4f %11.0f %9.0f %9.2f  %s\n", s.name, build, t, float64(n)/t, cpu/float64(n)*1e9, cpu/float64(n)/perRow*1e9, check)
 	}
 	fmt.Println()
-	for _, s := range sides {
-		if s.name != "c/nested (double, gcc -O2)" {
-			fmt.Printf("ratio %-44s / c/nested: %.2f\n", s.name, median(s.times)/cNested)
-		}
+	for _, s := range sides[1:] {
+		fmt.Printf("time of %-44s / %s: %.2f\n", s.name, base.name, median(s.times)/median(base.times))
 	}
 	if sklearnSecs > 0 {
-		for _, s := range sides[:3] {
-			fmt.Printf("scikit-learn predict_proba (2 threads) %.4f s / %s (1 thread) %.4f s: %.1fx\n", sklearnSecs, s.name, median(s.times), sklearnSecs/median(s.times))
+		for _, s := range sides[:nC] {
+			fmt.Printf("scikit-learn predict_proba (2 threads) %.4f s / %s %.4f s: %.1fx\n", sklearnSecs, s.name, median(s.times), sklearnSecs/median(s.times))
 		}
 	}
 	return nil
@@ -303,7 +313,8 @@ func firstLine(s string) string {
 
 // cBench is the C driver: it loads the rows (float64, little-endian),
 // narrows them to the API's type beforehand, and times reps passes.
-const cBench = `#include <stdio.h>
+const cBench = `#include <pthread.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <time.h>
 #include "model.h"
@@ -321,15 +332,35 @@ static int cmp(const void *a, const void *b)
 	return (x > y) - (x < y);
 }
 
+struct part {
+	const FT *rows;
+	long from, to;
+	double sum;
+};
+
+static void *score(void *arg)
+{
+	struct part *p = arg;
+	FT out[MODEL_NUM_OUTPUTS];
+	long r;
+	p->sum = 0;
+	for (r = p->from; r < p->to; r++) {
+		model_predict(p->rows + r * MODEL_NUM_FEATURES, out);
+		p->sum += (double)out[MODEL_NUM_OUTPUTS - 1];
+	}
+	return NULL;
+}
+
 int main(int argc, char **argv)
 {
 	FILE *in = fopen(argv[1], "rb");
 	long n = NROWS, r;
-	int rep;
+	int rep, k;
 	double *raw = malloc(sizeof(double) * (size_t)n * MODEL_NUM_FEATURES);
 	FT *rows = malloc(sizeof(FT) * (size_t)n * MODEL_NUM_FEATURES);
 	double times[REPS], sum = 0;
-	FT out[MODEL_NUM_OUTPUTS];
+	struct part parts[THREADS];
+	pthread_t th[THREADS];
 	if (in == NULL || fread(raw, sizeof(double), (size_t)n * MODEL_NUM_FEATURES, in) != (size_t)n * MODEL_NUM_FEATURES) {
 		fprintf(stderr, "cannot read rows\n");
 		return 2;
@@ -339,10 +370,22 @@ int main(int argc, char **argv)
 	}
 	for (rep = 0; rep < REPS; rep++) {
 		double t0 = now();
+		for (k = 0; k < THREADS; k++) {
+			parts[k].rows = rows;
+			parts[k].from = n * k / THREADS;
+			parts[k].to = n * (k + 1) / THREADS;
+			if (THREADS == 1) {
+				score(&parts[k]);
+			} else {
+				pthread_create(&th[k], NULL, score, &parts[k]);
+			}
+		}
 		sum = 0;
-		for (r = 0; r < n; r++) {
-			model_predict(rows + r * MODEL_NUM_FEATURES, out);
-			sum += (double)out[MODEL_NUM_OUTPUTS - 1];
+		for (k = 0; k < THREADS; k++) {
+			if (THREADS > 1) {
+				pthread_join(th[k], NULL);
+			}
+			sum += parts[k].sum;
 		}
 		times[rep] = now() - t0;
 	}
@@ -352,12 +395,12 @@ int main(int argc, char **argv)
 }
 `
 
-func buildC(dir string, p *compile.Program, layout string, float bool, n, reps int) (*side, error) {
+func buildC(dir string, p *compile.Program, layout string, float bool, threads, n, reps int) (*side, error) {
 	ft := "double"
 	if float {
 		ft = "float"
 	}
-	sub := filepath.Join(dir, "c-"+layout+"-"+ft)
+	sub := filepath.Join(dir, fmt.Sprintf("c-%s-%s-%d", layout, ft, threads))
 	if err := os.Mkdir(sub, 0o755); err != nil {
 		return nil, err
 	}
@@ -381,12 +424,16 @@ func buildC(dir string, p *compile.Program, layout string, float bool, n, reps i
 	}
 	build := time.Since(t0)
 	cmd = exec.Command("gcc", "-std=gnu99", "-O2", "-DFT="+ft, fmt.Sprintf("-DNROWS=%d", n), fmt.Sprintf("-DREPS=%d", reps),
-		"-o", "bench", "bench.c", "model.o", "-lm")
+		fmt.Sprintf("-DTHREADS=%d", threads), "-pthread", "-o", "bench", "bench.c", "model.o", "-lm")
 	cmd.Dir = sub
 	if out, err := cmd.CombinedOutput(); err != nil {
 		return nil, fmt.Errorf("gcc bench.c: %v\n%s", err, out)
 	}
-	return &side{name: fmt.Sprintf("c/%s (%s, gcc -O2)", layout, ft), build: build, cmd: []string{filepath.Join(sub, "bench")}, float: float}, nil
+	name := fmt.Sprintf("c/%s (%s, gcc -O2)", layout, ft)
+	if threads > 1 {
+		name = fmt.Sprintf("c/%s (%s, gcc -O2, %d threads)", layout, ft, threads)
+	}
+	return &side{name: name, threads: threads, build: build, cmd: []string{filepath.Join(sub, "bench")}, float: float}, nil
 }
 
 const goBench = `package main

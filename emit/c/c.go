@@ -23,7 +23,8 @@
 //     (their preorder position is counted on the way down) and index a table
 //     of the distinct leaf vectors; thresholds come from per-feature tables
 //     of the distinct values;
-//   - auto: nested up to AutoNestedNodes nodes, else table.
+//   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
+//     tree, else table.
 package cemit
 
 import (
@@ -58,6 +59,11 @@ type Options struct {
 // table layout builds in well under a second per 100,000 nodes.
 const AutoNestedNodes = 50000
 
+// AutoNestedTreeNodes is the largest single tree auto emits nested: gcc's
+// optimiser is superlinear in the size of one function, and a tree is one
+// function (a 200,000-node tree took gcc -O2 minutes).
+const AutoNestedTreeNodes = 20000
+
 // MaxNesting is the deepest tree emitted as nested if/else; deeper trees get
 // the flat goto form. C99 (5.2.4.1) guarantees 127 nested blocks, clang's
 // default bracket depth is 256.
@@ -73,7 +79,13 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
 	case "", emit.Auto:
-		n := p.NumNodes()
+		n, biggest := p.NumNodes(), 0
+		for i := range p.Trees {
+			biggest = max(biggest, len(p.Trees[i].Nodes))
+		}
+		if biggest > AutoNestedTreeNodes {
+			return emit.Table, fmt.Sprintf("a tree of %d nodes, more than %d: one function that size builds slowly", biggest, AutoNestedTreeNodes), nil
+		}
 		if n <= AutoNestedNodes {
 			return emit.Nested, fmt.Sprintf("%d nodes, at most %d: nested code is fastest and builds quickly", n, AutoNestedNodes), nil
 		}

@@ -203,6 +203,19 @@ func TestResolveAuto(t *testing.T) {
 	l, why, err := Resolve(p, Options{})
 	require.NoError(t, err)
 	require.Equal(t, emit.Nested, l, why)
+	one := *p
+	one.Trees = []compile.Tree{{Nodes: make([]compile.Node, 0, 2*AutoNestedTreeNodes)}}
+	for len(one.Trees[0].Nodes) <= AutoNestedTreeNodes { // a chain, each split's left child a leaf
+		i := int32(len(one.Trees[0].Nodes))
+		one.Trees[0].Nodes = append(one.Trees[0].Nodes,
+			compile.Node{Feature: 0, Threshold: float64(i), Left: i + 1, Right: i + 2},
+			compile.Node{Feature: -1, Left: -1, Right: -1, Value: []float64{1, 0, 0, 0}})
+	}
+	one.Trees[0].Nodes = append(one.Trees[0].Nodes, compile.Node{Feature: -1, Left: -1, Right: -1, Value: []float64{0, 1, 0, 0}})
+	require.NoError(t, compile.Check(&one))
+	l, why, err = Resolve(&one, Options{})
+	require.NoError(t, err)
+	require.Equal(t, emit.Table, l, why)
 	// Copy the trees until the forest passes the nested limit.
 	for p.NumNodes() <= AutoNestedNodes {
 		p.Trees = append(p.Trees, p.Trees...)
@@ -275,6 +288,7 @@ func TestTableWalkMatchesEval(t *testing.T) {
 		tl, err := g.buildTable()
 		require.NoError(t, err)
 		require.Equal(t, mode == 2, tl.inWord)
+		require.True(t, tl.round32, "a float32 model's thresholds are stored as floats")
 		k := p.NumOutputs
 		want, got := make([]float64, k), make([]float64, k)
 		mask := func(n int) uint64 { return 1<<n - 1 }
@@ -292,6 +306,9 @@ func TestTableWalkMatchesEval(t *testing.T) {
 						ix += tl.thrBase[fe]
 					}
 					v, th := x[fe], tl.thr[ix]
+					if tl.round32 {
+						v = float64(float32(v))
+					}
 					p1 := int(w >> tl.p1Shift() & mask(tl.p1Bits))
 					left := v <= th && (!tl.hasLT || w&tl.ltBit() == 0 || v < th) || tl.hasML && w&tl.mlBit() != 0 && math.IsNaN(v)
 					if left {

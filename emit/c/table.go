@@ -47,13 +47,17 @@ type tableLayout struct {
 	thr            []float64 // distinct thresholds, by feature then value
 	thrBase        []int     // per feature, first index in thr (when perFeat)
 	thrFloat       bool      // every threshold is a float value
-	words          []uint64
-	treeStart      []int // len T+1, in words
-	treeNodes      []int // words per tree, for comments
-	leafRows       *leafRows
-	leafOf         []int // per leaf in preorder, its row of leafRows
-	direct         bool  // leaf vectors stored per leaf, not by row
-	leafFloat      bool  // every leaf value is a float value
+	// round32: in double mode, every split is x op m with m the midpoint
+	// the float32 pass makes of a float threshold t32, so the walk tests
+	// (float)x <= t32 and stores t32 (see roundsToFloat).
+	round32   bool
+	words     []uint64
+	treeStart []int // len T+1, in words
+	treeNodes []int // words per tree, for comments
+	leafRows  *leafRows
+	leafOf    []int // per leaf in preorder, its row of leafRows
+	direct    bool  // leaf vectors stored per leaf, not by row
+	leafFloat bool  // every leaf value is a float value
 }
 
 func (g *gen) buildTable() (*tableLayout, error) {
@@ -74,6 +78,7 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	for i := range thrSet {
 		thrSet[i] = map[uint64]bool{}
 	}
+	tl.round32 = !g.o.Float && roundsToFloat(p)
 	tl.treeStart = append(tl.treeStart, 0)
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
@@ -95,6 +100,9 @@ func (g *gen) buildTable() (*tableLayout, error) {
 				continue
 			}
 			th, lt := g.normalise(n.Op, n.Threshold)
+			if tl.round32 {
+				th, lt = float64(compile.Floor32(n.Threshold)), false
+			}
 			if th == 0 {
 				th = 0 // x <= -0 and x <= 0 agree everywhere
 			}
@@ -243,6 +251,34 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	return tl, nil
 }
 
+// roundsToFloat reports whether every split of p is one the float32 pass
+// writes for a float32 model, x op m with (op, m) = compile.Midpoint32(t32)
+// for a finite float t32, so that x op m exactly when round32(x) <= t32 for
+// every x (compile/float32.go proves it). C's conversion of a double to float
+// rounds to nearest even and overflows to an infinity (IEC 60559, C99 Annex
+// F.3), as round32 does, so the table may store t32 in 4 bytes and test
+// (float)x <= t32.
+func roundsToFloat(p *compile.Program) bool {
+	any := false
+	for ti := range p.Trees {
+		for i := range p.Trees[ti].Nodes {
+			n := &p.Trees[ti].Nodes[i]
+			if n.IsLeaf() {
+				continue
+			}
+			t32 := compile.Floor32(n.Threshold)
+			if math.IsInf(float64(t32), 0) {
+				return false
+			}
+			if op, m := compile.Midpoint32(n.Threshold); op != n.Op || m != n.Threshold || float64(t32) == n.Threshold {
+				return false
+			}
+			any = true
+		}
+	}
+	return any
+}
+
 // normalise returns the threshold to store and whether the less-than bit is
 // needed: x < t is x <= (the next value below t) for every x of the target
 // type that is not NaN.
@@ -276,7 +312,7 @@ func (tl *tableLayout) p1Shift() int {
 func (tl *tableLayout) p2Shift() int { return tl.p1Shift() + tl.p1Bits }
 
 func (tl *tableLayout) thrElemBytes(g *gen) int {
-	if g.o.Float || tl.thrFloat {
+	if g.o.Float || tl.thrFloat || tl.round32 {
 		return 4
 	}
 	return 8
@@ -391,11 +427,17 @@ func (g *gen) table(w *printer) error {
 	w.line("")
 
 	tt := g.ft
-	if !g.o.Float && tl.thrFloat {
+	if !g.o.Float && (tl.thrFloat || tl.round32) {
 		tt = "float"
 	}
 	nThr := max(len(tl.thr), 1)
-	w.line("/* Distinct thresholds, by feature, ascending%s. */", map[bool]string{true: " (all exact as float)"}[tt != g.ft])
+	switch {
+	case tl.round32:
+		w.line("/* Distinct thresholds, by feature, ascending: each split is x <= t after rounding x to")
+		w.line(" * float, as the model's float32 comparisons do. */")
+	default:
+		w.line("/* Distinct thresholds, by feature, ascending%s. */", map[bool]string{true: " (all exact as float)"}[tt != g.ft])
+	}
 	w.line("static const %s %s_thr[%d] = {", tt, g.name, nThr)
 	if len(tl.thr) == 0 {
 		w.line("\t0")
@@ -462,99 +504,145 @@ func (g *gen) table(w *printer) error {
 		w.line("")
 	}
 
-	g.predictStart(w, "uint32_t t;")
 	field := func(shift, width int) string {
 		if width == 0 {
 			return "0u"
 		}
 		return fmt.Sprintf("((uint32_t)(w >> %d) & %s)", shift, hexLit(1<<width-1))
 	}
-	flag := func(bit uint64) string { return fmt.Sprintf("(w & %s) != 0", hexLit(bit)) }
-	w.line("for (t = 0; t < %du; t++) {", T)
-	w.in()
-	w.line("uint32_t i = %s_start[t];", g.name)
-	leaf := "l"
-	if tl.inWord {
-		leaf = "row"
-		if tl.hasSole {
-			w.line("uint32_t row = %s_sole[t]; /* the leaf of a tree that is one leaf */", g.name)
-		} else {
-			w.line("uint32_t row = 0u;")
-		}
-	} else {
-		w.line("uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */")
+	bit := func(b uint64) string {
+		return fmt.Sprintf("((uint32_t)(w >> %d) & 1u)", bits.TrailingZeros64(b))
 	}
-	w.line("if (i < %s_start[t + 1]) {", g.name)
-	w.in()
-	w.line("for (;;) {")
-	w.in()
-	w.line("const %s w = %s_node[i];", wt, g.name)
-	if tl.fBits == 0 {
-		w.line("const uint32_t f = 0u;")
-	} else {
-		w.line("const uint32_t f = (uint32_t)(w & %s);", hexLit(1<<tl.fBits-1))
+	vt := g.ft
+	if tl.round32 {
+		vt = "float"
 	}
-	w.line("const %s v = x[f];", g.ft)
 	idx := field(tl.tShift(), tl.tBits)
 	if tl.perFeat {
 		idx = fmt.Sprintf("%s_thr_base[f] + %s", g.name, idx)
 	}
 	th := fmt.Sprintf("%s_thr[%s]", g.name, idx)
-	if tt != g.ft {
+	if tt != vt {
 		th = "(double)" + th
 	}
-	w.line("const %s th = %s;", g.ft, th)
-	cond := "v <= th"
+	left := "(uint32_t)(v <= th)"
 	if tl.hasLT {
-		cond = fmt.Sprintf("(v <= th && (%s || v < th))", strings.Replace(flag(tl.ltBit()), "!=", "==", 1))
+		left = fmt.Sprintf("(%s & ((%s ^ 1u) | (uint32_t)(v < th)))", left, bit(tl.ltBit()))
 	}
 	if tl.hasML {
-		cond = fmt.Sprintf("%s || (%s && v != v)", cond, flag(tl.mlBit()))
+		left = fmt.Sprintf("(%s | (%s & (uint32_t)(v != v)))", left, bit(tl.mlBit()))
 	}
-	w.line("if (%s) {", cond)
-	w.line("	if (%s) {", flag(tl.llBit()))
-	if tl.inWord {
-		w.line("		row = %s;", field(tl.p1Shift(), tl.p1Bits))
+	// A walk is three variables per tree: the word it stands on (i), whether
+	// it has reached its leaf (done), and what names the leaf (at: its
+	// number in preorder over all trees, or with leaf rows in the words the
+	// row of the leaf table).
+	begin := func(l, t string) {
+		w.line("first = %s_start[%s];", g.name, t)
+		w.line("end = %s_start[%s + 1u];", g.name, t)
+		w.line("done%s = (uint32_t)(first == end); /* a tree that is one leaf has no word */", l)
+		w.line("i%s = first < end ? first : 0u;", l)
+		switch {
+		case !tl.inWord:
+			w.line("at%s = first + %s; /* leaves before the tree: one more than splits, per tree */", l, t)
+		case tl.hasSole:
+			w.line("at%s = %s_sole[%s];", l, g.name, t)
+		default:
+			w.line("at%s = 0u;", l)
+		}
 	}
-	w.line("		break;")
-	w.line("	}")
-	w.line("	i++;")
-	w.line("} else {")
-	if tl.inWord {
-		w.line("	if (%s) {", flag(tl.rlBit()))
-		w.line("		row = %s;", field(tl.p2Shift(), tl.p2Bits))
-		w.line("		break;")
-		w.line("	}")
-		w.line("	i += (%s) ? 1u : %s + 1u;", flag(tl.llBit()), field(tl.p1Shift(), tl.p1Bits))
-	} else {
-		w.line("	const uint32_t a = %s + 1u;", field(tl.p1Shift(), tl.p1Bits))
-		w.line("	l += a;")
-		w.line("	if (%s) {", flag(tl.rlBit()))
-		w.line("		break;")
-		w.line("	}")
-		w.line("	i += a;")
+	// One step down, computed rather than branched on; a finished walk
+	// stays put.
+	step := func(l string) {
+		w.line("{")
+		w.in()
+		w.line("const %s w = %s_node[i%s];", wt, g.name, l)
+		if tl.fBits == 0 {
+			w.line("const uint32_t f = 0u;")
+		} else {
+			w.line("const uint32_t f = (uint32_t)(w & %s);", hexLit(1<<tl.fBits-1))
+		}
+		if tl.round32 {
+			w.line("const float v = (float)x[f]; /* rounded to nearest, as the model's float32 inputs */")
+		} else {
+			w.line("const %s v = x[f];", g.ft)
+		}
+		w.line("const %s th = %s;", vt, th)
+		w.line("const uint32_t r = %s ^ 1u; /* 1: right */", left)
+		w.line("const uint32_t p1 = %s;", field(tl.p1Shift(), tl.p1Bits))
+		w.line("const uint32_t leaf = (uint32_t)(w >> (%d + r)) & 1u; /* the child is a leaf */", bits.TrailingZeros64(tl.llBit()))
+		w.line("const uint32_t go = (done%s | leaf) ^ 1u; /* moves to another word */", l)
+		if tl.inWord {
+			w.line("const uint32_t row = r ? %s : p1;", field(tl.p2Shift(), tl.p2Bits))
+			w.line("at%s = (leaf & (done%s ^ 1u)) != 0u ? row : at%s;", l, l, l)
+			w.line("i%s += go * (1u + (r & (%s ^ 1u)) * p1);", l, bit(tl.llBit()))
+		} else {
+			w.line("at%s += (done%s ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */", l, l)
+			w.line("i%s += go * (1u + r * p1);", l)
+		}
+		w.line("done%s |= leaf;", l)
+		w.out()
+		w.line("}")
 	}
-	w.line("}")
-	w.out()
-	w.line("}")
-	w.out()
-	w.line("}")
-	if !tl.direct && !tl.inWord {
-		leaf = fmt.Sprintf("%s_leaf_row[l]", g.name)
+	row := func(l string) string {
+		if !tl.direct && !tl.inWord {
+			return fmt.Sprintf("%s_leaf_row[at%s]", g.name, l)
+		}
+		return "at" + l
 	}
 	conv := ""
 	if lt != g.ft {
 		conv = "(double)"
 	}
-	if k == 1 {
-		w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, leaf)
-	} else {
+	add := func(l string) {
+		if k == 1 {
+			w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, row(l))
+			return
+		}
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("	acc[j] += %s%s_leaf[%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, leaf, g.upper)
+		w.line("\tacc[j] += %s%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, row(l), g.upper)
 		w.line("}")
 	}
-	w.out()
-	w.line("}")
+	lanes := []string{"0", "1", "2", "3"}
+	T4 := T - T%4
+	if T4 > 0 {
+		g.predictStart(w, "uint32_t t, first, end;", "uint32_t i0, i1, i2, i3, done0, done1, done2, done3, at0, at1, at2, at3;")
+	} else {
+		g.predictStart(w, "uint32_t t, first, end;", "uint32_t i0, done0, at0;")
+	}
+	if T4 > 0 {
+		w.line("/* Four trees walk at once, so that their loads overlap; their leaves are")
+		w.line(" * added in tree order. */")
+		w.line("for (t = 0; t < %du; t += 4u) {", T4)
+		w.in()
+		for j, l := range lanes {
+			begin(l, fmt.Sprintf("(t + %du)", j))
+		}
+		w.line("while ((done0 & done1 & done2 & done3) == 0u) {")
+		w.in()
+		for _, l := range lanes {
+			step(l)
+		}
+		w.out()
+		w.line("}")
+		for _, l := range lanes {
+			add(l)
+		}
+		w.out()
+		w.line("}")
+	}
+	if T4 < T {
+		w.line("for (t = %du; t < %du; t++) {", T4, T)
+		w.in()
+		begin("0", "t")
+		w.line("while (done0 == 0u) {")
+		w.in()
+		step("0")
+		w.out()
+		w.line("}")
+		add("0")
+		w.out()
+		w.line("}")
+	}
 	return nil
 }
 

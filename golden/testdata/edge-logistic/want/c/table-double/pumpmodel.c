@@ -47,33 +47,31 @@ void pumpmodel_predict(const double *x, double *out)
 {
 	double acc[PUMPMODEL_NUM_OUTPUTS];
 	int j;
-	uint32_t t;
+	uint32_t t, first, end;
+	uint32_t i0, done0, at0;
 	acc[0] = -0.4054651081081644;
-	for (t = 0; t < 3u; t++) {
-		uint32_t i = pumpmodel_start[t];
-		uint32_t l = i + t; /* leaves before this tree: one more than splits, per tree */
-		if (i < pumpmodel_start[t + 1]) {
-			for (;;) {
-				const uint16_t w = pumpmodel_node[i];
+	for (t = 0u; t < 3u; t++) {
+		first = pumpmodel_start[t];
+		end = pumpmodel_start[t + 1u];
+		done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+		i0 = first < end ? first : 0u;
+		at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+		while (done0 == 0u) {
+			{
+				const uint16_t w = pumpmodel_node[i0];
 				const uint32_t f = (uint32_t)(w & 0x1u);
 				const double v = x[f];
 				const double th = (double)pumpmodel_thr[((uint32_t)(w >> 1) & 0x3u)];
-				if (v <= th || ((w & 0x8u) != 0 && v != v)) {
-					if ((w & 0x10u) != 0) {
-						break;
-					}
-					i++;
-				} else {
-					const uint32_t a = ((uint32_t)(w >> 6) & 0x1u) + 1u;
-					l += a;
-					if ((w & 0x20u) != 0) {
-						break;
-					}
-					i += a;
-				}
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 3) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = ((uint32_t)(w >> 6) & 0x1u);
+				const uint32_t leaf = (uint32_t)(w >> (4 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+				at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+				i0 += go * (1u + r * p1);
+				done0 |= leaf;
 			}
 		}
-		acc[0] += pumpmodel_leaf[l];
+		acc[0] += pumpmodel_leaf[at0];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		if (acc[j] >= 0.0) {

@@ -40,33 +40,32 @@ void pumpmodel_predict(const double *x, double *out)
 {
 	double acc[PUMPMODEL_NUM_OUTPUTS];
 	int j;
-	uint32_t t;
+	uint32_t t, first, end;
+	uint32_t i0, done0, at0;
 	acc[0] = -0.0;
-	for (t = 0; t < 2u; t++) {
-		uint32_t i = pumpmodel_start[t];
-		uint32_t row = 0u;
-		if (i < pumpmodel_start[t + 1]) {
-			for (;;) {
-				const uint16_t w = pumpmodel_node[i];
+	for (t = 0u; t < 2u; t++) {
+		first = pumpmodel_start[t];
+		end = pumpmodel_start[t + 1u];
+		done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+		i0 = first < end ? first : 0u;
+		at0 = 0u;
+		while (done0 == 0u) {
+			{
+				const uint16_t w = pumpmodel_node[i0];
 				const uint32_t f = (uint32_t)(w & 0x1u);
 				const double v = x[f];
 				const double th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x3u)];
-				if (v <= th || ((w & 0x8u) != 0 && v != v)) {
-					if ((w & 0x10u) != 0) {
-						row = ((uint32_t)(w >> 6) & 0x3u);
-						break;
-					}
-					i++;
-				} else {
-					if ((w & 0x20u) != 0) {
-						row = ((uint32_t)(w >> 8) & 0x3u);
-						break;
-					}
-					i += ((w & 0x10u) != 0) ? 1u : ((uint32_t)(w >> 6) & 0x3u) + 1u;
-				}
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 3) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = ((uint32_t)(w >> 6) & 0x3u);
+				const uint32_t leaf = (uint32_t)(w >> (4 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+				const uint32_t row = r ? ((uint32_t)(w >> 8) & 0x3u) : p1;
+				at0 = (leaf & (done0 ^ 1u)) != 0u ? row : at0;
+				i0 += go * (1u + (r & (((uint32_t)(w >> 4) & 1u) ^ 1u)) * p1);
+				done0 |= leaf;
 			}
 		}
-		acc[0] += pumpmodel_leaf[row];
+		acc[0] += pumpmodel_leaf[at0];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];
