@@ -6,7 +6,12 @@
 // regression) and, for a classifier, the predicted label as text in column
 // "class" (argmax, ties to the lowest index; class 1 when a single logistic
 // output is above 0.5). NULL is a missing value and goes where the split's
-// missing_left says.
+// missing_left says. Up to 8 classes the label is one CASE comparing every
+// pair; more are reduced in stages, each replacing every 8 consecutive
+// outputs by their largest value and its first position, so the statement
+// grows in proportion to the classes, not their square (the softmax maximum
+// likewise, and its denominator is a column summed at most 256 terms a
+// stage, in the interpreter's order).
 //
 // # Dialects
 //

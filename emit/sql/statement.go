@@ -250,26 +250,92 @@ func (g *gen) transformStages() {
 		g.cte(items, true)
 	case forest.Softmax:
 		// m = the largest z; e_j = exp(z_j - m); out_j = e_j / (e_0 + ... + e_k-1).
-		items := g.carry(false)
-		var zs []string
-		for j := 0; j < k; j++ {
-			zs = append(zs, outCol(j))
-		}
-		items = append(items, zs...)
-		items = append(items, firstMax(zs, func(i int) string { return zs[i] })+" AS m")
-		g.cte(items, true)
+		zs := outCols(k)
+		m, _ := g.largest(zs, false)
+		items := append(g.carry(false), zs...)
+		g.cte(append(items, m+" AS m"), true)
 		items = g.carry(false)
 		for j := 0; j < k; j++ {
 			items = append(items, g.exp(outCol(j)+" - m")+" AS "+outCol(j))
 		}
 		g.cte(items, true)
+		// The sum in the interpreter's order, at most sumTerms additions
+		// a stage: SQLite refuses an expression tree deeper than 1000.
+		sum := ""
+		for a := 0; a < k; a += sumTerms {
+			b := min(a+sumTerms, k)
+			terms := zs[a:b]
+			if sum != "" {
+				terms = append([]string{sum}, terms...)
+			}
+			items := append(g.carry(false), zs...)
+			items = append(items, strings.Join(terms, " + ")+" AS "+sumCol)
+			g.cte(items, true)
+			sum = sumCol
+		}
 		items = g.carry(false)
-		sum := strings.Join(zs, " + ")
 		for j := 0; j < k; j++ {
-			items = append(items, fmt.Sprintf("%s / (%s) AS %s", outCol(j), sum, outCol(j)))
+			items = append(items, fmt.Sprintf("%s / %s AS %s", outCol(j), sum, outCol(j)))
 		}
 		g.cte(items, true)
 	}
+}
+
+// sumTerms is the most terms one stage adds up.
+const sumTerms = 256
+
+// sumCol is the softmax denominator's column.
+const sumCol = "s"
+
+// groupSize is the most columns one CASE of firstMax compares: k columns
+// take k(k-1)/2 comparisons, so wider sets are reduced in stages of groups.
+const groupSize = 8
+
+func outCols(k int) []string {
+	zs := make([]string, k)
+	for j := range zs {
+		zs[j] = outCol(j)
+	}
+	return zs
+}
+
+// largest returns an expression for the largest of cols and, when index
+// is set, one for its position (the first, as forest.Argmax chooses, ties
+// to the lowest index). Up to groupSize columns it is one firstMax CASE
+// over the last stage; more are reduced by stages that each replace every
+// groupSize consecutive columns by their largest value and its first
+// position, carrying the outputs along. The first largest of a group of
+// first largests is the first largest of their union, since the groups
+// keep the columns' order.
+func (g *gen) largest(cols []string, index bool) (val, pos string) {
+	vals := cols
+	var idx []string
+	for j := range cols {
+		idx = append(idx, strconv.Itoa(j))
+	}
+	for level := 0; len(vals) > groupSize; level++ {
+		items := append(g.carry(false), outCols(g.p.NumOutputs)...)
+		var nv, ni []string
+		for a := 0; a < len(vals); a += groupSize {
+			b := min(a+groupSize, len(vals))
+			v := fmt.Sprintf("v%d_%d", level, a/groupSize)
+			w := fmt.Sprintf("w%d_%d", level, a/groupSize)
+			group := vals[a:b]
+			items = append(items, firstMax(group, func(i int) string { return group[i] })+" AS "+v)
+			if index {
+				gi := idx[a:b]
+				items = append(items, firstMax(group, func(i int) string { return gi[i] })+" AS "+w)
+			}
+			nv, ni = append(nv, v), append(ni, w)
+		}
+		g.cte(items, true)
+		vals, idx = nv, ni
+	}
+	val = firstMax(vals, func(i int) string { return vals[i] })
+	if index {
+		pos = firstMax(vals, func(i int) string { return idx[i] })
+	}
+	return val, pos
 }
 
 // exp is EXP(a). PostgreSQL raises "value out of range: underflow" where
@@ -312,6 +378,15 @@ func firstMax(cols []string, val func(i int) string) string {
 // final writes the WITH list and the SELECT naming the result columns.
 func (g *gen) final() {
 	w := &g.out
+	// The label first: with many classes it adds stages of its own.
+	label := ""
+	if g.p.IsClassifier() {
+		if g.p.NumOutputs == 1 {
+			label = fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), str(g.p.Classes[1]), str(g.p.Classes[0]))
+		} else {
+			label = g.classOf()
+		}
+	}
 	if g.o.View != "" {
 		v := ident(g.o.View)
 		if g.o.Schema != "" {
@@ -332,19 +407,11 @@ func (g *gen) final() {
 		items = append(items, keepCol(i)+" AS "+ident(k))
 	}
 	names := g.outs
-	var zs []string
 	for j, n := range names {
 		items = append(items, outCol(j)+" AS "+ident(n))
-		zs = append(zs, outCol(j))
 	}
-	if g.p.IsClassifier() {
-		var c string
-		if g.p.NumOutputs == 1 {
-			c = fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), str(g.p.Classes[1]), str(g.p.Classes[0]))
-		} else {
-			c = firstMax(zs, func(i int) string { return str(g.p.Classes[i]) })
-		}
-		items = append(items, c+" AS "+ident("class"))
+	if label != "" {
+		items = append(items, label+" AS "+ident("class"))
 	}
 	w.WriteString("SELECT\n")
 	for i, it := range items {
@@ -355,4 +422,22 @@ func (g *gen) final() {
 		w.WriteString("\n")
 	}
 	w.WriteString("FROM " + g.last + ";\n")
+}
+
+// classOf is the label of the largest output, ties to the lowest class.
+func (g *gen) classOf() string {
+	zs := outCols(g.p.NumOutputs)
+	if len(zs) <= groupSize {
+		return firstMax(zs, func(i int) string { return str(g.p.Classes[i]) })
+	}
+	_, pos := g.largest(zs, true)
+	items := append(g.carry(false), zs...)
+	g.cte(append(items, pos+" AS c"), true)
+	var b strings.Builder
+	b.WriteString("CASE c")
+	for i, c := range g.p.Classes {
+		fmt.Fprintf(&b, " WHEN %d THEN %s", i, str(c))
+	}
+	b.WriteString(" END")
+	return b.String()
 }
