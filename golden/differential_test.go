@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -31,6 +32,9 @@ import (
 // names a model for one revision of gen.go only; a failure is therefore kept
 // as files (golden/testdata/diff-seed<N>), which stay a golden case.
 const diffDefaultModels = 16
+
+// diffDefaultBatch is how many models share one build.
+const diffDefaultBatch = 64
 
 // scoreTimeout bounds one build and run, so that a hang is a failure.
 const scoreTimeout = 3 * time.Minute
@@ -69,12 +73,16 @@ func (tg target) String() string {
 // vet and emitted-test checks cost more than its build, so they run for
 // every fourth seed only.
 func (tg target) lighter(seed uint64) target {
-	if g, ok := tg.r.(goRunner); ok && seed%4 != 0 {
+	if g, ok := tg.r.(goRunner); ok && lightSeed(seed) {
 		g.NoChecks = true
 		tg.r = g
 	}
 	return tg
 }
+
+// lightSeed reports whether a seed's model skips the costlier checks: all
+// but every fourth (Job.Light in a batch).
+func lightSeed(seed uint64) bool { return seed%4 != 0 }
 
 func allTargets() []target {
 	var ts []target
@@ -94,6 +102,7 @@ type outcome struct {
 	err      error // compile, emit, build or run failed
 	mismatch *Mismatch
 	took     time.Duration
+	batched  bool // scored in a batch; took is the batch's time per job
 }
 
 func (o outcome) failed() bool { return o.err != nil || o.mismatch != nil }
@@ -121,20 +130,27 @@ func runTarget(ctx context.Context, tg target, f *forest.Forest, rows *forest.Ro
 		return outcome{err: fmt.Errorf("compile: %v", err)}
 	}
 	res, err := tg.r.Score(ctx, p, tg.layout, tg.variant, rows, dir)
+	if err != nil && !errors.Is(err, ErrSkip) && ctx.Err() != nil {
+		err = fmt.Errorf("no result within %v: %v", scoreTimeout, err)
+	}
+	return judge(tg, f, rows, p, res, err, time.Since(start))
+}
+
+// judge turns what Score gave for p, compiled from f, into an outcome: the
+// outputs held against the interpreter on rows with the target's
+// ReferenceFor, Tolerance and Compare.
+func judge(tg target, f *forest.Forest, rows *forest.Rows, p *compile.Program, res *Result, err error, took time.Duration) outcome {
 	if errors.Is(err, ErrSkip) {
 		return outcome{skipped: err}
 	}
 	if err != nil {
-		if ctx.Err() != nil {
-			err = fmt.Errorf("no result within %v: %v", scoreTimeout, err)
-		}
-		return outcome{err: err, took: time.Since(start)}
+		return outcome{err: err, took: took}
 	}
 	c := &Case{Model: f, Rows: rows}
 	want, wantCls := c.ReferenceFor(tg.r, tg.variant)
 	exact, bound := tg.r.Tolerance(tg.variant, p)
 	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), exact, bound)
-	o := outcome{took: time.Since(start)}
+	o := outcome{took: took}
 	if !m.OK() {
 		o.mismatch = &m
 	}
@@ -172,6 +188,36 @@ func checkEval(f *forest.Forest, rows *forest.Rows) error {
 	return nil
 }
 
+// diffModel is one random model of a batch.
+type diffModel struct {
+	seed uint64
+	f    *forest.Forest
+	rows *forest.Rows
+}
+
+// diffStats are the counts TestDifferential reports, over all batches.
+type diffStats struct {
+	mu       sync.Mutex
+	runs     map[string]int   // per target: models that ran
+	declined map[string]int   // per target: models it cannot represent
+	skips    map[string]error // per target: why its engine is absent
+	total    time.Duration
+}
+
+func (st *diffStats) add(tg target, o outcome) {
+	st.mu.Lock()
+	defer st.mu.Unlock()
+	st.total += o.took
+	switch {
+	case errors.Is(o.skipped, ErrDeclined):
+		st.declined[tg.String()]++
+	case o.skipped != nil:
+		st.skips[tg.String()] = o.skipped
+	default:
+		st.runs[tg.String()]++
+	}
+}
+
 // TestDifferential draws random models, runs each through every registered
 // target, and holds every output against the interpreter. A failing model is
 // shrunk and written as a golden case folder, named in the failure.
@@ -179,6 +225,7 @@ func TestDifferential(t *testing.T) {
 	n := envInt(t, "SAWMILL_DIFF_MODELS", diffDefaultModels)
 	first := envInt(t, "SAWMILL_DIFF_SEED", 1)
 	nrows := int(envInt(t, "SAWMILL_DIFF_ROWS", 48))
+	batch := max(1, envInt(t, "SAWMILL_DIFF_BATCH", diffDefaultBatch))
 	keep := os.Getenv("SAWMILL_DIFF_KEEP")
 	if keep == "" {
 		keep = "testdata"
@@ -187,79 +234,200 @@ func TestDifferential(t *testing.T) {
 	if len(targets) == 0 {
 		t.Log("no target runners are registered in Runners(): only compile.Eval is held against the interpreter")
 	}
-	var mu sync.Mutex
-	runs := map[string]int{}     // per target: models that ran
-	declined := map[string]int{} // per target: models it cannot represent
-	skips := map[string]error{}  // per target: why its engine is absent
-	var total time.Duration
+	st := &diffStats{runs: map[string]int{}, declined: map[string]int{}, skips: map[string]error{}}
 	start := time.Now()
 	t.Run("models", func(t *testing.T) {
-		for seed := first; seed < first+n; seed++ {
-			t.Run(fmt.Sprintf("seed%d", seed), func(t *testing.T) {
+		for lo := first; lo < first+n; lo += batch {
+			hi := min(lo+batch, first+n)
+			name := fmt.Sprintf("seeds%d-%d", lo, hi-1)
+			if hi-lo == 1 {
+				name = fmt.Sprintf("seed%d", lo)
+			}
+			t.Run(name, func(t *testing.T) {
 				t.Parallel()
-				f := RandomForest(seed, diffGenOptions)
-				rows := RandomRows(seed, f, nrows)
-				if err := checkRowsRoundTrip(f, rows); err != nil {
-					t.Fatalf("seed %d: %v", seed, err)
-				}
-				if err := checkEval(f, rows); err != nil {
-					t.Errorf("seed %d: %v", seed, err)
-				}
-				kept := ""
-				for _, tg := range targets {
-					tg := tg.lighter(seed)
-					o := runTarget(context.Background(), tg, f, rows, t.TempDir())
-					t.Logf("%s: %s (%v)", tg, o, o.took.Round(time.Millisecond))
-					mu.Lock()
-					total += o.took
-					switch {
-					case errors.Is(o.skipped, ErrDeclined):
-						declined[tg.String()]++
-					case o.skipped != nil:
-						skips[tg.String()] = o.skipped
-					default:
-						runs[tg.String()]++
-					}
-					mu.Unlock()
-					if o.skipped != nil {
-						continue // an absent engine fails below, under SAWMILL_REQUIRE_ENGINES
-					}
-					if !o.failed() {
-						continue
-					}
-					dir := filepath.Join(keep, fmt.Sprintf("diff-seed%d", seed))
-					if kept != "" { // one case per seed: the first failure's
-						t.Errorf("seed %d: %s: %s (see %s)", seed, tg, o, kept)
-						continue
-					}
-					kept = dir
-					small, srows := shrinkFor(tg, f, rows, o)
-					if err := WriteCase(dir, small, srows); err != nil {
-						t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", seed, tg, o, err)
-						continue
-					}
-					again := runTarget(context.Background(), tg, small, srows, t.TempDir())
-					t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s\nagain: SAWMILL_DIFF_SEED=%d SAWMILL_DIFF_MODELS=1 go test ./golden -run Differential",
-						seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again, seed)
-				}
+				diffBatch(t, lo, hi, nrows, batch > 1, targets, keep, st)
 			})
 		}
 	})
 	wall := time.Since(start)
 	for _, tg := range targets {
 		name := tg.String()
-		if err, ok := skips[name]; ok {
+		if err, ok := st.skips[name]; ok {
 			if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
 				t.Errorf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", tg, err)
 			} else {
 				t.Logf("%s: skipped: %v", tg, err)
 			}
 		}
-		t.Logf("%s: %d models, %d declined as beyond the target", tg, runs[name], declined[name])
+		t.Logf("%s: %d models, %d declined as beyond the target", tg, st.runs[name], st.declined[name])
 	}
-	t.Logf("seeds %d to %d: %d models, %d rows each, %d targets; wall %v (%v per model), target time %v",
-		first, first+n-1, n, nrows, len(targets), wall.Round(time.Millisecond),
-		(wall / time.Duration(max(n, 1))).Round(time.Millisecond), total.Round(time.Millisecond))
+	t.Logf("seeds %d to %d: %d models, %d rows each, %d targets, batches of %d; wall %v (%v per model), target time %v",
+		first, first+n-1, n, nrows, len(targets), batch, wall.Round(time.Millisecond),
+		(wall / time.Duration(max(n, 1))).Round(time.Millisecond), st.total.Round(time.Millisecond))
+}
+
+// diffBatch runs seeds lo to hi-1 through every target: with one build per
+// runner for runners that are BatchScorers (when batched is set), else one
+// Score per model and target. Then each seed, as a subtest, logs its
+// outcomes and shrinks and keeps its first failure.
+func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []target, keep string, st *diffStats) {
+	var models []diffModel
+	for seed := lo; seed < hi; seed++ {
+		f := RandomForest(seed, diffGenOptions)
+		rows := RandomRows(seed, f, nrows)
+		if err := checkRowsRoundTrip(f, rows); err != nil {
+			t.Errorf("seed %d: %v", seed, err)
+			continue
+		}
+		if err := checkEval(f, rows); err != nil {
+			t.Errorf("seed %d: %v", seed, err)
+		}
+		models = append(models, diffModel{seed, f, rows})
+	}
+	outs := make([][]outcome, len(models)) // per model, per target
+	for i := range outs {
+		outs[i] = make([]outcome, len(targets))
+	}
+	single := func(m, k int) {
+		outs[m][k] = runTarget(context.Background(), targets[k].lighter(models[m].seed), models[m].f, models[m].rows, t.TempDir())
+	}
+	for _, group := range byRunner(targets) {
+		bs, ok := targets[group[0]].r.(BatchScorer)
+		if !batched || !ok {
+			for m := range models {
+				for _, k := range group {
+					single(m, k)
+				}
+			}
+			continue
+		}
+		if err := scoreBatch(bs, targets, group, models, outs, t.TempDir()); err != nil {
+			t.Logf("%s: the batch of seeds %d to %d failed; scoring each model alone: %v", bs.Name(), lo, hi-1, firstLines(err, 20))
+			for m := range models {
+				for _, k := range group {
+					single(m, k)
+				}
+			}
+		}
+	}
+	for m, dm := range models {
+		t.Run(fmt.Sprintf("seed%d", dm.seed), func(t *testing.T) {
+			kept := ""
+			for k, tg := range targets {
+				tg := tg.lighter(dm.seed)
+				o := outs[m][k]
+				t.Logf("%s: %s (%v)", tg, o, o.took.Round(time.Millisecond))
+				st.add(tg, o)
+				if o.skipped != nil || !o.failed() {
+					continue // an absent engine fails in TestDifferential, under SAWMILL_REQUIRE_ENGINES
+				}
+				if o.batched {
+					// The model alone must fail too, so that what is shrunk
+					// and kept is a failure of the target, not of the batch.
+					alone := runTarget(context.Background(), tg, dm.f, dm.rows, t.TempDir())
+					if !alone.failed() {
+						t.Errorf("seed %d: %s: failed in a batch (%s) but passes alone: %s", dm.seed, tg, o, alone)
+						continue
+					}
+					o = alone
+				}
+				dir := filepath.Join(keep, fmt.Sprintf("diff-seed%d", dm.seed))
+				if kept != "" { // one case per seed: the first failure's
+					t.Errorf("seed %d: %s: %s (see %s)", dm.seed, tg, o, kept)
+					continue
+				}
+				kept = dir
+				small, srows := shrinkFor(tg, dm.f, dm.rows, o)
+				if err := WriteCase(dir, small, srows); err != nil {
+					t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", dm.seed, tg, o, err)
+					continue
+				}
+				again := runTarget(context.Background(), tg, small, srows, t.TempDir())
+				t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s\nagain: SAWMILL_DIFF_SEED=%d SAWMILL_DIFF_MODELS=1 go test ./golden -run Differential",
+					dm.seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again, dm.seed)
+			}
+		})
+	}
+}
+
+// byRunner groups target indices by runner, in order.
+func byRunner(targets []target) [][]int {
+	var groups [][]int
+	at := map[string]int{}
+	for k, tg := range targets {
+		g, ok := at[tg.r.Name()]
+		if !ok {
+			g = len(groups)
+			at[tg.r.Name()] = g
+			groups = append(groups, nil)
+		}
+		groups[g] = append(groups[g], k)
+	}
+	return groups
+}
+
+// scoreBatch scores every model for the targets in group, all one runner's,
+// with one ScoreBatch, and fills outs. An error means the batch as a whole
+// failed and outs for the group are not set.
+func scoreBatch(bs BatchScorer, targets []target, group []int, models []diffModel, outs [][]outcome, dir string) error {
+	type slot struct{ m, k int }
+	var jobs []Job
+	var slots []slot
+	var progs []*compile.Program
+	for m, dm := range models {
+		for _, k := range group {
+			tg := targets[k]
+			p, _, err := compile.Compile(dm.f, tg.r.CompileOptions(tg.variant))
+			if err != nil {
+				outs[m][k] = outcome{err: fmt.Errorf("compile: %v", err)}
+				continue
+			}
+			jobs = append(jobs, Job{Program: p, Layout: tg.layout, Variant: tg.variant, Rows: dm.rows, Light: lightSeed(dm.seed)})
+			slots = append(slots, slot{m, k})
+			progs = append(progs, p)
+		}
+	}
+	if len(jobs) == 0 {
+		return nil
+	}
+	// A batch is many builds' worth of work in one: its time limit grows
+	// with it.
+	limit := scoreTimeout * time.Duration(1+len(jobs)/32)
+	ctx, cancel := context.WithTimeout(context.Background(), limit)
+	defer cancel()
+	start := time.Now()
+	res, err := bs.ScoreBatch(ctx, jobs, dir)
+	took := time.Since(start) / time.Duration(len(jobs))
+	if errors.Is(err, ErrSkip) {
+		for _, s := range slots {
+			outs[s.m][s.k] = outcome{skipped: err}
+		}
+		return nil
+	}
+	if err != nil {
+		if ctx.Err() != nil {
+			err = fmt.Errorf("no result within %v: %v", limit, err)
+		}
+		return err
+	}
+	if len(res) != len(jobs) {
+		return fmt.Errorf("BUG: %s: %d results for %d jobs", bs.Name(), len(res), len(jobs))
+	}
+	for i, s := range slots {
+		o := judge(targets[s.k], models[s.m].f, models[s.m].rows, progs[i], res[i].Result, res[i].Err, took)
+		o.batched = true
+		outs[s.m][s.k] = o
+	}
+	return nil
+}
+
+// firstLines is err's message cut to n lines.
+func firstLines(err error, n int) string {
+	lines := strings.SplitN(err.Error(), "\n", n+1)
+	if len(lines) > n {
+		lines = append(lines[:n], "...")
+	}
+	return strings.Join(lines, "\n")
 }
 
 // shrinkFor shrinks a failing model for one target, keeping the kind of
