@@ -67,6 +67,14 @@
 // expression depth limit (1000: a left-deep sum of more than about 990 trees
 // fails) and DuckDB's (1000) away.
 //
+// A model that averages two outputs whose every leaf is (1, 0) or (0, 1)
+// (votes, and the pure leaves of fully grown classification trees) walks
+// each tree for output 1 only: the sums are counts, exact in a double, and
+// a last stage gives output 0 as (trees - count) / trees + base, the
+// interpreter's value bit for bit. It halves the work of a binary
+// classifier (SQLite 3.40 CPU time on 100,000 rows of a 100-tree Breast
+// Cancer forest, 5.5 s before, 3.3 s after).
+//
 // # Layouts
 //
 //   - nested: each tree is one nested CASE per output, its leaves the

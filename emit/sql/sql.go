@@ -123,7 +123,10 @@ type gen struct {
 	comments bool
 	// unfactor writes SQLite thresholds as coalesce(t, x); see unfactorAbove.
 	unfactor bool
-	out      bytes.Buffer
+	// votes: an Average of two outputs whose every leaf is (1, 0) or
+	// (0, 1); the trees sum output 1 only, and output 0 is the rest.
+	votes bool
+	out   bytes.Buffer
 
 	used   []int    // used feature indices
 	cols   []string // table column per feature
@@ -206,6 +209,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		}
 		g.unfactor = len(seen) > unfactorAbove
 	}
+	g.votes = binaryVotes(p)
 	g.used = p.UsedFeatures()
 	g.depth = make([][]int32, len(p.Trees))
 	g.ord = make([][]int32, len(p.Trees))
@@ -384,4 +388,28 @@ func Stages(p *compile.Program, o Options) (int, error) {
 	}
 	g.statement()
 	return g.stage, nil
+}
+
+// binaryVotes reports whether p averages two outputs whose leaves are all
+// one-hot, (1, 0) or (0, 1): the forests of class votes and of pure leaves
+// that fully grown classification trees have. Then the interpreter's sums
+// are counts, exact in a double, and output 0's count is the number of
+// trees less output 1's, so each tree need be walked for one output only.
+func binaryVotes(p *compile.Program) bool {
+	if p.Combine != forest.Average || p.NumOutputs != 2 {
+		return false
+	}
+	one, zero := math.Float64bits(1), math.Float64bits(0)
+	for ti := range p.Trees {
+		for _, n := range p.Trees[ti].Nodes {
+			if !n.IsLeaf() {
+				continue
+			}
+			a, b := math.Float64bits(n.Value[0]), math.Float64bits(n.Value[1])
+			if !(a == one && b == zero || a == zero && b == one) {
+				return false
+			}
+		}
+	}
+	return true
 }

@@ -60,3 +60,35 @@ func TestManyClassesDepth(t *testing.T) {
 			"line %d", i+1)
 	}
 }
+
+// TestBinaryVotes: only an average of two outputs with one-hot leaves sums
+// one output and takes the other as the rest.
+func TestBinaryVotes(t *testing.T) {
+	stump := func(combine forest.Combine, v []float64) *compile.Program {
+		f := &forest.Forest{Task: forest.Classification, InputPrecision: forest.Float64,
+			Combine: combine, Transform: forest.NoTransform, Features: []string{"x"},
+			Classes: []string{"a", "b"}, BaseScore: make([]float64, 2)}
+		f.Trees = []forest.Tree{{Feature: []int{0, -1, -1}, Threshold: []float64{0.5, 0, 0},
+			Left: []int{1, -1, -1}, Right: []int{2, -1, -1}, MissingLeft: make([]bool, 3), Value: v}}
+		require.NoError(t, f.Validate("stump"))
+		p, _, err := compile.Compile(f, compile.Options{})
+		require.NoError(t, err)
+		return p
+	}
+	for _, c := range []struct {
+		combine forest.Combine
+		v       []float64
+		want    bool
+	}{
+		{forest.Average, []float64{0, 0, 1, 0, 0, 1}, true},
+		{forest.Vote, []float64{0, 0, 0.2, 0.8, 0.5, 0.5}, true}, // vote leaves become one-hot
+		{forest.Average, []float64{0, 0, 0.2, 0.8, 0, 1}, false},
+		{forest.Sum, []float64{0, 0, 1, 0, 0, 1}, false}, // sums start from the base score
+	} {
+		p := stump(c.combine, c.v)
+		require.Equal(t, c.want, binaryVotes(p), "%s %v", c.combine, c.v)
+		files, err := Emit(p, Options{Dialect: SQLite})
+		require.NoError(t, err)
+		require.Equal(t, c.want, strings.Contains(string(files[0].Data), " - z1) / "), "%s %v", c.combine, c.v)
+	}
+}

@@ -24,8 +24,37 @@ func (g *gen) statement() {
 			g.tableStages(a, b)
 		}
 	}
+	if g.votes {
+		g.votesStage()
+	}
 	g.transformStages()
 	g.final()
+}
+
+// summed lists the outputs the tree stages add up: all of them, or output
+// 1 alone for binary votes.
+func (g *gen) summed() []int {
+	if g.votes {
+		return []int{1}
+	}
+	js := make([]int, g.p.NumOutputs)
+	for j := range js {
+		js[j] = j
+	}
+	return js
+}
+
+// votesStage turns the count of votes for output 1 into both averages, as
+// the interpreter divides its sums: output 0's sum is the trees less the
+// count, exactly, since every partial sum is a whole number below 2^53.
+func (g *gen) votesStage() {
+	num := g.d.num
+	n := num(float64(len(g.p.Trees)))
+	items := g.carry(false)
+	items = append(items,
+		fmt.Sprintf("(%s - z1) / %s + %s AS z0", n, n, num(g.p.BaseScore[0])),
+		fmt.Sprintf("z1 / %s + %s AS z1", n, num(g.p.BaseScore[1])))
+	g.cte(items, true)
 }
 
 func (g *gen) header() {
@@ -156,7 +185,7 @@ func (g *gen) sumStart(a, j int) string {
 // tree, divide by the number of trees and add the base score, as the
 // interpreter does.
 func (g *gen) sumEnd(b, j int, sum string) string {
-	if b == len(g.p.Trees) && g.p.Combine == forest.Average {
+	if b == len(g.p.Trees) && g.p.Combine == forest.Average && !g.votes {
 		return "(" + sum + ")\n    / " + g.d.num(float64(len(g.p.Trees))) + " + " + g.d.num(g.p.BaseScore[j])
 	}
 	return sum
@@ -166,7 +195,7 @@ func (g *gen) sumEnd(b, j int, sum string) string {
 // CASE per output whose leaves are the values.
 func (g *gen) nestedStage(a, b int) {
 	items := g.carry(b < len(g.p.Trees))
-	for j := 0; j < g.p.NumOutputs; j++ {
+	for _, j := range g.summed() {
 		var s strings.Builder
 		s.WriteString(g.sumStart(a, j))
 		for ti := a; ti < b; ti++ {
@@ -194,7 +223,7 @@ func (g *gen) tableStages(a, b int) {
 	for s := 0; s < stages; s++ {
 		items := g.carry(true)
 		if a > 0 {
-			for j := 0; j < g.p.NumOutputs; j++ {
+			for _, j := range g.summed() {
 				items = append(items, outCol(j))
 			}
 		}
@@ -218,7 +247,7 @@ func (g *gen) tableStages(a, b int) {
 		g.cte(items, true)
 	}
 	items := g.carry(more)
-	for j := 0; j < g.p.NumOutputs; j++ {
+	for _, j := range g.summed() {
 		var s strings.Builder
 		s.WriteString(g.sumStart(a, j))
 		for ti := a; ti < b; ti++ {
