@@ -65,7 +65,8 @@ type Job struct {
 	Program         *compile.Program
 	Layout, Variant string
 	Rows            *forest.Rows
-	// Light skips the runner's costlier source checks (Go: gofmt and vet).
+	// Light skips the runner's costlier source checks (Go: gofmt and vet;
+	// C: each emitted file compiled alone as well as in the batch's).
 	Light bool
 }
 
