@@ -284,32 +284,7 @@ func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []t
 		}
 		models = append(models, diffModel{seed, f, rows})
 	}
-	outs := make([][]outcome, len(models)) // per model, per target
-	for i := range outs {
-		outs[i] = make([]outcome, len(targets))
-	}
-	single := func(m, k int) {
-		outs[m][k] = runTarget(context.Background(), targets[k].lighter(models[m].seed), models[m].f, models[m].rows, t.TempDir())
-	}
-	for _, group := range byRunner(targets) {
-		bs, ok := targets[group[0]].r.(BatchScorer)
-		if !batched || !ok {
-			for m := range models {
-				for _, k := range group {
-					single(m, k)
-				}
-			}
-			continue
-		}
-		if err := scoreBatch(bs, targets, group, models, outs, t.TempDir()); err != nil {
-			t.Logf("%s: the batch of seeds %d to %d failed; scoring each model alone: %v", bs.Name(), lo, hi-1, firstLines(err, 20))
-			for m := range models {
-				for _, k := range group {
-					single(m, k)
-				}
-			}
-		}
-	}
+	outs := diffOutcomes(t, models, targets, batched)
 	for m, dm := range models {
 		t.Run(fmt.Sprintf("seed%d", dm.seed), func(t *testing.T) {
 			kept := ""
@@ -348,6 +323,41 @@ func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []t
 			}
 		})
 	}
+}
+
+// diffOutcomes runs every model through every target: with one
+// ScoreBatch per runner for runners that are BatchScorers (when batched is
+// set), else one Score per model and target. A batch that fails as a whole
+// is scored again one model at a time, which names the model that broke it.
+func diffOutcomes(t *testing.T, models []diffModel, targets []target, batched bool) [][]outcome {
+	outs := make([][]outcome, len(models)) // per model, per target
+	for i := range outs {
+		outs[i] = make([]outcome, len(targets))
+	}
+	single := func(m, k int) {
+		outs[m][k] = runTarget(context.Background(), targets[k].lighter(models[m].seed), models[m].f, models[m].rows, t.TempDir())
+	}
+	for _, group := range byRunner(targets) {
+		bs, ok := targets[group[0]].r.(BatchScorer)
+		if !batched || !ok || len(models) == 0 {
+			for m := range models {
+				for _, k := range group {
+					single(m, k)
+				}
+			}
+			continue
+		}
+		if err := scoreBatch(bs, targets, group, models, outs, t.TempDir()); err != nil {
+			t.Logf("%s: the batch of seeds %d to %d failed; scoring each model alone: %v",
+				bs.Name(), models[0].seed, models[len(models)-1].seed, firstLines(err, 20))
+			for m := range models {
+				for _, k := range group {
+					single(m, k)
+				}
+			}
+		}
+	}
+	return outs
 }
 
 // byRunner groups target indices by runner, in order.
@@ -556,4 +566,83 @@ func TestDifferentialFindsPlantedBug(t *testing.T) {
 		return
 	}
 	t.Fatal("50 random models did not find a planted <= versus < bug")
+}
+
+// brittleRunner scores with compile.Eval, exactly, except that a program of
+// three trees "does not build": Score fails for it, and ScoreBatch fails as
+// a whole for any batch holding one, as a build does.
+type brittleRunner struct{}
+
+func (brittleRunner) Name() string                                       { return "brittle" }
+func (brittleRunner) Layouts() []string                                  { return []string{"nested"} }
+func (brittleRunner) Variants() []string                                 { return []string{""} }
+func (brittleRunner) CompileOptions(string) compile.Options              { return compile.Options{} }
+func (brittleRunner) Tolerance(string, *compile.Program) (bool, float64) { return true, 0 }
+
+func (brittleRunner) Score(_ context.Context, p *compile.Program, _, _ string, rows *forest.Rows, _ string) (*Result, error) {
+	if len(p.Trees) == 3 {
+		return nil, errors.New("three trees do not build")
+	}
+	res := &Result{Outputs: make([]float64, rows.Len()*p.NumOutputs)}
+	for r := 0; r < rows.Len(); r++ {
+		out := res.Outputs[r*p.NumOutputs : (r+1)*p.NumOutputs]
+		compile.Eval(p, rows.Row(r), out)
+		if p.IsClassifier() {
+			f := forest.Forest{Task: p.Task}
+			res.Classes = append(res.Classes, f.ClassOf(out))
+		}
+	}
+	return res, nil
+}
+
+func (r brittleRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]BatchResult, error) {
+	res := make([]BatchResult, len(jobs))
+	for i, j := range jobs {
+		if len(j.Program.Trees) == 3 {
+			return nil, fmt.Errorf("the batch does not build (job %d)", i)
+		}
+		res[i].Result, res[i].Err = r.Score(ctx, j.Program, j.Layout, j.Variant, j.Rows, dir)
+	}
+	return res, nil
+}
+
+// TestDifferentialBatchFallback: a batch that fails to build is scored
+// again model by model, so only the model that broke it fails, and not as
+// a batch; a batch without such a model is scored as one.
+func TestDifferentialBatchFallback(t *testing.T) {
+	targets := []target{{r: brittleRunner{}, layout: "nested"}}
+	var models []diffModel
+	for seed := uint64(1); seed <= 16; seed++ {
+		f := RandomForest(seed, diffGenOptions)
+		models = append(models, diffModel{seed, f, RandomRows(seed, f, 16)})
+	}
+	var broken, clean []diffModel
+	for _, m := range models {
+		p, _, err := compile.Compile(m.f, compile.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(p.Trees) == 3 {
+			broken = append(broken, m)
+		} else {
+			clean = append(clean, m)
+		}
+	}
+	if len(broken) == 0 || len(clean) == 0 {
+		t.Fatalf("seeds 1 to 16: %d models of three trees, %d others; want some of each", len(broken), len(clean))
+	}
+	outs := diffOutcomes(t, models, targets, true)
+	for m, dm := range models {
+		o := outs[m][0]
+		p, _, _ := compile.Compile(dm.f, compile.Options{})
+		if want := len(p.Trees) == 3; o.failed() != want || o.batched {
+			t.Errorf("seed %d (%d trees): %s, batched %v; want failed %v, not batched", dm.seed, len(p.Trees), o, o.batched, want)
+		}
+	}
+	outs = diffOutcomes(t, clean, targets, true)
+	for m, dm := range clean {
+		if o := outs[m][0]; o.failed() || !o.batched {
+			t.Errorf("seed %d: %s, batched %v; want ok in the batch", dm.seed, o, o.batched)
+		}
+	}
 }
