@@ -22,15 +22,26 @@ import (
 // Understanding Bugs in C Compilers" (PLDI 2011): random models that nobody
 // chose, scored by every target and held against the interpreter.
 //
-//	SAWMILL_DIFF_MODELS=N   models to run (default diffDefaultModels)
+//	SAWMILL_DIFF_MODELS=N   models to run (default diffDefaultModels); .ci/run
+//	                        sets a few hundred, a long run takes thousands
 //	SAWMILL_DIFF_SEED=S     first seed (default 1); seeds S to S+N-1 run
 //	SAWMILL_DIFF_ROWS=R     rows per model (default 48)
+//	SAWMILL_DIFF_BATCH=B    models sharing one build (default diffDefaultBatch);
+//	                        1 builds and scores every model alone
 //	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default testdata)
 //	SAWMILL_DIFF_SHRINK=D   time spent shrinking one failure (default 3m)
 //
-// Models run in parallel (go test -parallel, GOMAXPROCS by default). A seed
-// names a model for one revision of gen.go only; a failure is therefore kept
-// as files (golden/testdata/diff-seed<N>), which stay a golden case.
+// A build costs far more than scoring a small model, so runners that are
+// BatchScorers (Go, C) get a batch's models at once: one go test binary of
+// one package per model and layout, one C binary per configuration of
+// cQuickMatrix. The SQL engines score one model at a time. A
+// batch that fails as a whole is scored again model by model, which names
+// the model that broke it; a model that fails in a batch must fail alone
+// too, and is then shrunk alone. Batches run in parallel (go test
+// -parallel, GOMAXPROCS by default). The last log line gives the wall time
+// per model, by which CI's model count is sized. A seed names a model for
+// one revision of gen.go only; a failure is therefore kept as files
+// (golden/testdata/diff-seed<N>), which stay a golden case.
 const diffDefaultModels = 16
 
 // diffDefaultBatch is how many models share one build.
