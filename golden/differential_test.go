@@ -338,8 +338,9 @@ func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []t
 
 // diffOutcomes runs every model through every target: with one
 // ScoreBatch per runner for runners that are BatchScorers (when batched is
-// set), else one Score per model and target. A batch that fails as a whole
-// is scored again one model at a time, which names the model that broke it.
+// set), else one Score per model and target; the runners run at once. A
+// batch that fails as a whole is scored again one model at a time, which
+// names the model that broke it.
 func diffOutcomes(t *testing.T, models []diffModel, targets []target, batched bool) [][]outcome {
 	outs := make([][]outcome, len(models)) // per model, per target
 	for i := range outs {
@@ -348,26 +349,32 @@ func diffOutcomes(t *testing.T, models []diffModel, targets []target, batched bo
 	single := func(m, k int) {
 		outs[m][k] = runTarget(context.Background(), targets[k].lighter(models[m].seed), models[m].f, models[m].rows, t.TempDir())
 	}
+	var wg sync.WaitGroup
 	for _, group := range byRunner(targets) {
-		bs, ok := targets[group[0]].r.(BatchScorer)
-		if !batched || !ok || len(models) == 0 {
-			for m := range models {
-				for _, k := range group {
-					single(m, k)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			bs, ok := targets[group[0]].r.(BatchScorer)
+			if !batched || !ok || len(models) == 0 {
+				for m := range models {
+					for _, k := range group {
+						single(m, k)
+					}
+				}
+				return
+			}
+			if err := scoreBatch(bs, targets, group, models, outs, t.TempDir()); err != nil {
+				t.Logf("%s: the batch of seeds %d to %d failed; scoring each model alone: %v",
+					bs.Name(), models[0].seed, models[len(models)-1].seed, firstLines(err, 20))
+				for m := range models {
+					for _, k := range group {
+						single(m, k)
+					}
 				}
 			}
-			continue
-		}
-		if err := scoreBatch(bs, targets, group, models, outs, t.TempDir()); err != nil {
-			t.Logf("%s: the batch of seeds %d to %d failed; scoring each model alone: %v",
-				bs.Name(), models[0].seed, models[len(models)-1].seed, firstLines(err, 20))
-			for m := range models {
-				for _, k := range group {
-					single(m, k)
-				}
-			}
-		}
+		}()
 	}
+	wg.Wait()
 	return outs
 }
 
