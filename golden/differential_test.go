@@ -250,11 +250,7 @@ func TestDifferential(t *testing.T) {
 	t.Run("models", func(t *testing.T) {
 		for lo := first; lo < first+n; lo += batch {
 			hi := min(lo+batch, first+n)
-			name := fmt.Sprintf("seeds%d-%d", lo, hi-1)
-			if hi-lo == 1 {
-				name = fmt.Sprintf("seed%d", lo)
-			}
-			t.Run(name, func(t *testing.T) {
+			t.Run(fmt.Sprintf("seeds%d-%d", lo, hi-1), func(t *testing.T) {
 				t.Parallel()
 				diffBatch(t, lo, hi, nrows, batch > 1, targets, keep, st)
 			})
