@@ -76,7 +76,16 @@ const sqlTable = `rows "in" 'test'`
 func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (sqlemit.Options, error) {
 	o := sqlemit.Options{Dialect: r.dialect(variant), Table: sqlTable, Schema: schema, Layout: layout}
 	o.Keep = []string{rowColumn(p)}
-	if _, err := sqlemit.Emit(p, o); errors.Is(err, sqlemit.ErrNames) {
+	// The engine's own rules for names hold whatever dialect the text is
+	// written in (ANSI text run on PostgreSQL still has its identifiers
+	// cut to 63 bytes), so names are checked under both.
+	check := o
+	check.Dialect = r.dialect("")
+	_, err := sqlemit.Emit(p, o)
+	if err == nil && check.Dialect != o.Dialect {
+		_, err = sqlemit.Emit(p, check)
+	}
+	if errors.Is(err, sqlemit.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
 		for i, f := range p.Features {
 			o.Columns[i] = "c" + strconv.Itoa(i) + " " + strings.ReplaceAll(f.Name, "\x00", "")

@@ -2,6 +2,7 @@ package sql
 
 import (
 	"fmt"
+	"math"
 	"strconv"
 	"strings"
 
@@ -24,8 +25,11 @@ func (g *gen) statement() {
 			g.tableStages(a, b)
 		}
 	}
-	if g.votes {
+	switch {
+	case g.votes:
 		g.votesStage()
+	case g.meanStage():
+		g.divideStage()
 	}
 	g.transformStages()
 	g.final()
@@ -42,6 +46,33 @@ func (g *gen) summed() []int {
 		js[j] = j
 	}
 	return js
+}
+
+// meanStage reports whether an Average divides in a stage of its own:
+// PostgreSQL raises "value out of range: underflow" where a quotient
+// rounds to zero from a non-zero dividend (a sum of subnormal leaves), as
+// ISO/IEC 9075 lets an engine do for a result it cannot represent, so
+// postgres and ansi text spell that case as the zero IEEE 754 division
+// gives.
+func (g *gen) meanStage() bool {
+	return g.p.Combine == forest.Average && len(g.p.Trees) > 1 && (g.d == Postgres || g.d == ANSI)
+}
+
+// divideStage divides the sums by the number of trees n and adds the base
+// score. s/n rounds to zero exactly when |s| <= floor(n/2) * 2^-1074 (s
+// is a whole multiple of 2^-1074, and a tie rounds to the even zero); there
+// s*0 is that zero, with s's sign.
+func (g *gen) divideStage() {
+	num := g.d.num
+	n := len(g.p.Trees)
+	tiny := math.Float64frombits(uint64(n / 2)) // floor(n/2) * 2^-1074
+	items := g.carry(false)
+	for j := 0; j < g.p.NumOutputs; j++ {
+		z := outCol(j)
+		items = append(items, fmt.Sprintf("CASE WHEN ABS(%s) <= %s THEN %s * %s ELSE %s / %s END + %s AS %s",
+			z, num(tiny), z, num(0), z, num(float64(n)), num(g.p.BaseScore[j]), z))
+	}
+	g.cte(items, true)
 }
 
 // votesStage turns the count of votes for output 1 into both averages, as
@@ -185,7 +216,7 @@ func (g *gen) sumStart(a, j int) string {
 // tree, divide by the number of trees and add the base score, as the
 // interpreter does.
 func (g *gen) sumEnd(b, j int, sum string) string {
-	if b == len(g.p.Trees) && g.p.Combine == forest.Average && !g.votes {
+	if b == len(g.p.Trees) && g.p.Combine == forest.Average && !g.votes && !g.meanStage() {
 		return "(" + sum + ")\n    / " + g.d.num(float64(len(g.p.Trees))) + " + " + g.d.num(g.p.BaseScore[j])
 	}
 	return sum
