@@ -18,6 +18,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"os"
+	"os/exec"
 	"strings"
 	"time"
 
@@ -36,12 +37,16 @@ func main() {
 	engines := flag.String("engines", "sqlite,duckdb,postgres", "engines to run")
 	layouts := flag.String("layouts", "nested,table", "SQL layouts to run")
 	withGo := flag.Bool("go", true, "also build and run the generated Go")
+	flag.StringVar(&cli, "sqlite3", "sqlite3", "the native sqlite3 shell to time beside the embedded driver (skipped when not on PATH; \"\" never)")
 	flag.Parse()
 	if err := run(*data, *trees, *nrows, strings.Split(*engines, ","), strings.Split(*layouts, ","), *withGo); err != nil {
 		fmt.Fprintln(os.Stderr, "sql-bench:", err)
 		os.Exit(1)
 	}
 }
+
+// cli is the sqlite3 shell to time, "" for none.
+var cli string
 
 func run(path string, trees, n int, engines, layouts []string, withGo bool) error {
 	d, err := train.ReadCSVFile(path, train.ReadOptions{Label: "label"})
@@ -112,6 +117,21 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 			}
 			fmt.Printf("%-22s %12.0f %10s %10s %12d%s)\n", e+" "+l, float64(n)/res.Run.Seconds(), res.Build.Round(time.Millisecond), res.Run.Round(time.Millisecond), len(files[0].Data), extra)
 		}
+	}
+	if cli == "" {
+		return nil
+	}
+	shell, err := exec.LookPath(cli)
+	if err != nil {
+		fmt.Printf("%-22s skipped: %v (Debian's sqlite3 package has it)\n", "sqlite3 shell", err)
+		return nil
+	}
+	for _, l := range layouts {
+		line, err := cliSide(context.Background(), shell, p, l, rows, want, wantCls)
+		if err != nil {
+			return err
+		}
+		fmt.Println(line)
 	}
 	return nil
 }
