@@ -244,11 +244,12 @@ static int score_` + name + `(FILE *in)
 	int j;
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
+	` + ft + ` *xs, *ys, *yb;
 	if (fscanf(in, "%lu %lu", &rows, &cols) != 2 || cols != ` + up + `_NUM_FEATURES) {
 		fprintf(stderr, "bad header\n");
 		return 2;
 	}
-	for (r = 0; r < rows; r++) {
+` + cBatchAlloc(ft, up) + `	for (r = 0; r < rows; r++) {
 		for (i = 0; i < cols; i++) {
 			unsigned long long bits;
 			double d;
@@ -264,8 +265,8 @@ static int score_` + name + `(FILE *in)
 			printf("%a ", (double)y[j]);
 		}
 		printf("%d\n", ` + class + `);
-	}
-	return 0;
+` + cBatchStore(up) + `	}
+` + cBatchCheck(name, up) + `	return 0;
 }
 `)
 	}

@@ -325,6 +325,7 @@ func cDriver(name, ft string, classifier bool) string {
 		class = name + "_predict_class(x)"
 	}
 	return `#include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "` + name + `.h"
@@ -336,6 +337,7 @@ int main(int argc, char **argv)
 	int j;
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
+	` + ft + ` *xs, *ys, *yb;
 	if (argc != 2 || (in = fopen(argv[1], "r")) == NULL) {
 		fprintf(stderr, "usage: score ROWS\n");
 		return 2;
@@ -344,7 +346,7 @@ int main(int argc, char **argv)
 		fprintf(stderr, "bad header\n");
 		return 2;
 	}
-	for (r = 0; r < rows; r++) {
+` + cBatchAlloc(ft, up) + `	for (r = 0; r < rows; r++) {
 		for (i = 0; i < cols; i++) {
 			unsigned long long bits;
 			double d;
@@ -360,10 +362,45 @@ int main(int argc, char **argv)
 			printf("%a ", (double)y[j]);
 		}
 		printf("%d\n", ` + class + `);
-	}
+` + cBatchStore(up) + `	}
 	fclose(in);
-	return 0;
+` + cBatchCheck(name, up) + `	return 0;
 }
+`
+}
+
+// cBatchAlloc, cBatchStore and cBatchCheck make a driver hold NAME_predict_batch
+// against NAME_predict: it keeps every row and its outputs, scores all rows
+// in one batch at the end, and fails (exit status 3) unless every output
+// has the same bits.
+func cBatchAlloc(ft, up string) string {
+	return `	xs = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_FEATURES);
+	ys = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
+	yb = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
+	if (xs == NULL || ys == NULL || yb == NULL) {
+		fprintf(stderr, "out of memory\n");
+		return 2;
+	}
+`
+}
+
+func cBatchStore(up string) string {
+	return `		memcpy(xs + r * ` + up + `_NUM_FEATURES, x, sizeof x);
+		memcpy(ys + r * ` + up + `_NUM_OUTPUTS, y, sizeof y);
+`
+}
+
+func cBatchCheck(name, up string) string {
+	return `	` + name + `_predict_batch(xs, (size_t)rows, yb);
+	for (r = 0; r < rows; r++) {
+		if (memcmp(ys + r * ` + up + `_NUM_OUTPUTS, yb + r * ` + up + `_NUM_OUTPUTS, sizeof y) != 0) {
+			fprintf(stderr, "row %lu: ` + name + `_predict_batch differs from ` + name + `_predict\n", r);
+			return 3;
+		}
+	}
+	free(xs);
+	free(ys);
+	free(yb);
 `
 }
 

@@ -44,7 +44,7 @@ func main() {
 	reps := flag.Int("reps", 7, "passes over the rows per side per round")
 	sk := flag.Float64("sklearn", 0, "scikit-learn's predict_proba seconds for the same rows, to print the ratio")
 	noGo := flag.Bool("no-go", false, "skip emitted Go")
-	cLayouts := flag.String("c", "nested,table,table-float,table-2threads", "C sides: comma-separated layouts, -float for float C, -2threads for two threads")
+	cLayouts := flag.String("c", "nested,table,table-batch,table-float,table-2threads", "C sides: comma-separated layouts, -float for float C, -batch to score through model_predict_batch, -2threads for two threads")
 	goLayouts := flag.String("go", "nested,table,branchless", "emitted Go layouts")
 	sizes := flag.Bool("sizes", false, "print the table sizes of each layout and the Cortex-M4 object sizes, then stop")
 	flag.Parse()
@@ -126,14 +126,17 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 
 	var sides []*side
 	for _, l := range cLayouts {
-		prog, fl, threads := p, false, 1
+		prog, fl, threads, batch := p, false, 1, false
 		if strings.HasSuffix(l, "-2threads") {
 			threads, l = 2, strings.TrimSuffix(l, "-2threads")
 		}
 		if strings.HasSuffix(l, "-float") {
 			prog, fl, l = ps, true, strings.TrimSuffix(l, "-float")
 		}
-		s, err := buildC(dir, prog, l, fl, threads, n, reps)
+		if strings.HasSuffix(l, "-batch") {
+			batch, l = true, strings.TrimSuffix(l, "-batch")
+		}
+		s, err := buildC(dir, prog, l, fl, threads, batch, n, reps)
 		if err != nil {
 			return err
 		}
@@ -333,6 +336,7 @@ static int cmp(const void *a, const void *b)
 }
 
 struct part {
+	const struct part *base; /* parts[0], to tell the thread's own output buffer */
 	const FT *rows;
 	double *last; /* the last output of each row */
 	long from, to;
@@ -341,12 +345,22 @@ struct part {
 static void *score(void *arg)
 {
 	struct part *p = arg;
-	FT out[MODEL_NUM_OUTPUTS];
 	long r;
+#if BATCH
+	/* model_predict_batch: tree by tree over the thread's rows */
+	static FT outs[THREADS][(NROWS / THREADS + 1) * MODEL_NUM_OUTPUTS];
+	FT *o = outs[p - p->base];
+	model_predict_batch(p->rows + p->from * MODEL_NUM_FEATURES, (size_t)(p->to - p->from), o);
+	for (r = p->from; r < p->to; r++) {
+		p->last[r] = (double)o[(r - p->from) * MODEL_NUM_OUTPUTS + MODEL_NUM_OUTPUTS - 1];
+	}
+#else
+	FT out[MODEL_NUM_OUTPUTS];
 	for (r = p->from; r < p->to; r++) {
 		model_predict(p->rows + r * MODEL_NUM_FEATURES, out);
 		p->last[r] = (double)out[MODEL_NUM_OUTPUTS - 1];
 	}
+#endif
 	return NULL;
 }
 
@@ -371,6 +385,7 @@ int main(int argc, char **argv)
 	for (rep = 0; rep < REPS; rep++) {
 		double t0 = now();
 		for (k = 0; k < THREADS; k++) {
+			parts[k].base = parts;
 			parts[k].rows = rows;
 			parts[k].last = last;
 			parts[k].from = n * k / THREADS;
@@ -398,12 +413,12 @@ int main(int argc, char **argv)
 }
 `
 
-func buildC(dir string, p *compile.Program, layout string, float bool, threads, n, reps int) (*side, error) {
+func buildC(dir string, p *compile.Program, layout string, float bool, threads int, batch bool, n, reps int) (*side, error) {
 	ft := "double"
 	if float {
 		ft = "float"
 	}
-	sub := filepath.Join(dir, fmt.Sprintf("c-%s-%s-%d", layout, ft, threads))
+	sub := filepath.Join(dir, fmt.Sprintf("c-%s-%s-%d-%v", layout, ft, threads, batch))
 	if err := os.Mkdir(sub, 0o755); err != nil {
 		return nil, err
 	}
@@ -427,15 +442,19 @@ func buildC(dir string, p *compile.Program, layout string, float bool, threads, 
 	}
 	build := time.Since(t0)
 	cmd = exec.Command("gcc", "-std=gnu99", "-O2", "-DFT="+ft, fmt.Sprintf("-DNROWS=%d", n), fmt.Sprintf("-DREPS=%d", reps),
-		fmt.Sprintf("-DTHREADS=%d", threads), "-pthread", "-o", "bench", "bench.c", "model.o", "-lm")
+		fmt.Sprintf("-DTHREADS=%d", threads), fmt.Sprintf("-DBATCH=%d", map[bool]int{true: 1}[batch]), "-pthread", "-o", "bench", "bench.c", "model.o", "-lm")
 	cmd.Dir = sub
 	if out, err := cmd.CombinedOutput(); err != nil {
 		return nil, fmt.Errorf("gcc bench.c: %v\n%s", err, out)
 	}
-	name := fmt.Sprintf("c/%s (%s, gcc -O2)", layout, ft)
-	if threads > 1 {
-		name = fmt.Sprintf("c/%s (%s, gcc -O2, %d threads)", layout, ft, threads)
+	how := "gcc -O2"
+	if batch {
+		how += ", predict_batch"
 	}
+	if threads > 1 {
+		how += fmt.Sprintf(", %d threads", threads)
+	}
+	name := fmt.Sprintf("c/%s (%s, %s)", layout, ft, how)
 	return &side{name: name, threads: threads, build: build, cmd: []string{filepath.Join(sub, "bench")}, float: float}, nil
 }
 

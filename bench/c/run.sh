@@ -9,7 +9,7 @@
 # same rows on one thread, checking every checksum against the interpreter.
 #
 # Usage: bench/c/run.sh [TREES] [ROWS] [ROUNDS]      (defaults 100 20000 3)
-#   C_SIDES=table,table-float,table-2threads,nested   C layouts to time
+#   C_SIDES=table,table-batch,table-float,table-2threads,nested   C layouts to time
 #   GO_SIDES=nested,table,branchless                  emitted Go layouts
 # (nested C of a 400k-node forest takes gcc -O2 minutes to build.)
 set -euo pipefail
@@ -27,4 +27,4 @@ go build -o "$tmp/c-bench" ./bench/c
 "$py" bench/c/sklearn_predict.py "$tmp/data.csv" "$tmp/model.json" "$trees" 2 1 7 | tee "$tmp/sk"
 secs=$(awk '$1 == "sklearn_predict_seconds" { print $2 }' "$tmp/sk")
 "$tmp/c-bench" -model "$tmp/model.json" -rows "$tmp/data.csv" -rounds "$rounds" -sklearn "$secs" \
-	-c "${C_SIDES:-table,table-float,table-2threads,nested}" -go "${GO_SIDES:-nested,table,branchless}"
+	-c "${C_SIDES:-table,table-batch,table-float,table-2threads,nested}" -go "${GO_SIDES:-nested,table,branchless}"

@@ -36,7 +36,8 @@ import (
 //	average: |z~ - z| <= gamma(T+3)·(M/T + b)   (the division and the base
 //	                                            addition round once more)
 //
-// The logistic's slope is at most 1/4, so its output moves by at most a
+// plus (2T+4)·2^-150 for roundings below float's normal range. The
+// logistic's slope is at most 1/4, so its output moves by at most a
 // quarter of that, plus 8u for expf (2 ulp) and two roundings; a softmax
 // output moves by at most 2·p(1-p)·max|dz| <= half of it, plus (K+12)u for
 // the K expfs, the sum and the division. The result is doubled, for the
@@ -75,6 +76,11 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 	} else {
 		e = gamma(T+3) * (m/T + b)
 	}
+	// Below float's normal range a rounding errs by up to half its
+	// smallest subnormal, 2^-150, whatever the value (Higham's model with
+	// underflow, fl(x) = x(1+d) + e, section 2.1): once per leaf and base
+	// score, per addition and for the division.
+	e += (2*T + 4) * 0x1p-150
 	switch p.Transform {
 	case forest.Logistic:
 		e = e/4 + 8*u

@@ -3,6 +3,14 @@
 // recursion and nothing beyond the C standard library (math.h only when a
 // transform needs exp); every table is static const.
 //
+// Besides NAME_predict (one row) and NAME_predict_class, NAME_predict_batch
+// scores n rows laid out one after another. In the table layout it walks
+// tree by tree over all rows, four rows at once, so that a tree's words stay
+// in cache while the rows pass, where NAME_predict walks every tree for one
+// row; each row's leaves are still added in tree order, so the outputs are
+// NAME_predict's bit for bit (the golden drivers check it on every case).
+// In the nested layout it is a loop over NAME_predict.
+//
 // Two arithmetic modes exist. Double (the default) takes and returns double
 // and is bit-exact with the forest interpreter: the same comparisons, the same
 // additions in the same order, the average divided by the number of trees
@@ -112,6 +120,7 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		panic("BUG: cemit: layout " + g.layout)
 	}
 	g.finish(&body)
+	g.writeBatch(&body)
 	return []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
 		{Name: g.name + ".c", Data: g.source(body.bytes())},
@@ -136,6 +145,9 @@ type gen struct {
 	// tableMode forces the table layout's leaf mode in tests: 1 leaves
 	// outside the words, 2 leaf rows in the words; 0 chooses the smaller.
 	tableMode int
+	// batch, set by the table layout, writes NAME_predict_batch; nil
+	// writes it as a loop over NAME_predict.
+	batch     func(w *printer)
 	featMac   []string // NAME_F_... macro per feature
 	classMac  []string // NAME_C_... macro per class
 }
@@ -514,6 +526,8 @@ func (g *gen) header() []byte {
 	w.line("#ifndef %s_H", u)
 	w.line("#define %s_H", u)
 	w.line("")
+	w.line("#include <stddef.h>")
+	w.line("")
 	w.line("#ifdef __cplusplus")
 	w.line(`extern "C" {`)
 	w.line("#endif")
@@ -538,6 +552,15 @@ func (g *gen) header() []byte {
 	w.line("")
 	w.line("/* Scores x (%s_NUM_FEATURES values) into out (%s_NUM_OUTPUTS values). */", u, u)
 	w.line("void %s_predict(const %s *x, %s *out);", g.name, ft, ft)
+	w.line("")
+	w.line("/* Scores n rows, x row after row (n * %s_NUM_FEATURES values), into out", u)
+	w.line(" * (n * %s_NUM_OUTPUTS values): each row exactly as %s_predict scores it.", u, g.name)
+	if g.layout == emit.Table {
+		w.line(" * Tree by tree over all rows, so each tree's words stay in cache. */")
+	} else {
+		w.line(" * Row by row. */")
+	}
+	w.line("void %s_predict_batch(const %s *x, size_t n, %s *out);", g.name, ft, ft)
 	if p.IsClassifier() {
 		w.line("")
 		if p.NumOutputs == 1 {
@@ -659,6 +682,57 @@ func (g *gen) finish(w *printer) {
 	p := g.p
 	k := p.NumOutputs
 	ft := g.ft
+	g.finishBody(w)
+	w.out()
+	w.line("}")
+	if !p.IsClassifier() {
+		return
+	}
+	w.line("")
+	w.line("int %s_predict_class(const %s *x)", g.name, ft)
+	w.line("{")
+	w.in()
+	w.line("%s out[%s_NUM_OUTPUTS];", ft, g.upper)
+	if k == 1 {
+		w.line("%s_predict(x, out);", g.name)
+		w.line("return out[0] > %s ? 1 : 0;", g.lit(0.5))
+	} else {
+		w.line("int j, best = 0;")
+		w.line("%s_predict(x, out);", g.name)
+		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tif (out[j] > out[best]) {")
+		w.line("\t\tbest = j;")
+		w.line("\t}")
+		w.line("}")
+		w.line("return best;")
+	}
+	w.out()
+	w.line("}")
+}
+
+// writeBatch writes NAME_predict_batch: the table layout's own (g.batch),
+// else a loop over NAME_predict.
+func (g *gen) writeBatch(w *printer) {
+	w.line("")
+	if g.batch != nil {
+		g.batch(w)
+		return
+	}
+	w.line("void %s_predict_batch(const %s *x, size_t n, %s *out)", g.name, g.ft, g.ft)
+	w.line("{")
+	w.line("\tsize_t r;")
+	w.line("\tfor (r = 0; r < n; r++) {")
+	w.line("\t\t%s_predict(x + r * %s_NUM_FEATURES, out + r * %s_NUM_OUTPUTS);", g.name, g.upper, g.upper)
+	w.line("\t}")
+	w.line("}")
+}
+
+// finishBody writes, from the sums in acc, the average, the transform and
+// the copy to out.
+func (g *gen) finishBody(w *printer) {
+	p := g.p
+	k := p.NumOutputs
+	ft := g.ft
 	if p.Combine == forest.Average {
 		n := g.lit(float64(len(p.Trees)))
 		for j := 0; j < k; j++ {
@@ -704,31 +778,6 @@ func (g *gen) finish(w *printer) {
 		w.line("\tout[j] = acc[j];")
 		w.line("}")
 	}
-	w.out()
-	w.line("}")
-	if !p.IsClassifier() {
-		return
-	}
-	w.line("")
-	w.line("int %s_predict_class(const %s *x)", g.name, ft)
-	w.line("{")
-	w.in()
-	w.line("%s out[%s_NUM_OUTPUTS];", ft, g.upper)
-	if k == 1 {
-		w.line("%s_predict(x, out);", g.name)
-		w.line("return out[0] > %s ? 1 : 0;", g.lit(0.5))
-	} else {
-		w.line("int j, best = 0;")
-		w.line("%s_predict(x, out);", g.name)
-		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tif (out[j] > out[best]) {")
-		w.line("\t\tbest = j;")
-		w.line("\t}")
-		w.line("}")
-		w.line("return best;")
-	}
-	w.out()
-	w.line("}")
 }
 
 // predictStart opens predict and sets the accumulator acc to its start:

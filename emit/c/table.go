@@ -8,6 +8,7 @@ import (
 	"strings"
 
 	"sawmill/compile"
+	"sawmill/forest"
 )
 
 // The table layout. Each tree's splits are packed words in preorder, one
@@ -550,6 +551,21 @@ func (g *gen) table(w *printer) error {
 			w.line("at%s = 0u;", l)
 		}
 	}
+	// In predict every lane reads x and adds to acc; in predict_batch lane
+	// l walks row r + l, reading xl and adding to ol.
+	batch := false
+	xOf := func(l string) string {
+		if batch {
+			return "x" + l
+		}
+		return "x"
+	}
+	accOf := func(l string) string {
+		if batch {
+			return "o" + l
+		}
+		return "acc"
+	}
 	// One step down, computed rather than branched on; a finished walk
 	// stays put.
 	step := func(l string) {
@@ -562,9 +578,9 @@ func (g *gen) table(w *printer) error {
 			w.line("const uint32_t f = (uint32_t)(w & %s);", hexLit(1<<tl.fBits-1))
 		}
 		if tl.round32 {
-			w.line("const float v = (float)x[f]; /* rounded to nearest, as the model's float32 inputs */")
+			w.line("const float v = (float)%s[f]; /* rounded to nearest, as the model's float32 inputs */", xOf(l))
 		} else {
-			w.line("const %s v = x[f];", g.ft)
+			w.line("const %s v = %s[f];", g.ft, xOf(l))
 		}
 		w.line("const %s th = %s;", vt, th)
 		w.line("const uint32_t r = %s ^ 1u; /* 1: right */", left)
@@ -595,11 +611,11 @@ func (g *gen) table(w *printer) error {
 	}
 	add := func(l string) {
 		if k == 1 {
-			w.line("acc[0] += %s%s_leaf[%s];", conv, g.name, row(l))
+			w.line("%s[0] += %s%s_leaf[%s];", accOf(l), conv, g.name, row(l))
 			return
 		}
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tacc[j] += %s%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS + (uint32_t)j];", conv, g.name, row(l), g.upper)
+		w.line("\t%s[j] += %s%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS + (uint32_t)j];", accOf(l), conv, g.name, row(l), g.upper)
 		w.line("}")
 	}
 	lanes := []string{"0", "1", "2", "3"}
@@ -642,6 +658,86 @@ func (g *gen) table(w *printer) error {
 		add("0")
 		w.out()
 		w.line("}")
+	}
+	g.batch = func(w *printer) {
+		batch = true
+		ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
+		w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
+		w.line("{")
+		w.in()
+		w.line("size_t ri;")
+		w.line("int j;")
+		w.line("uint32_t t, first, end;")
+		w.line("uint32_t i0, i1, i2, i3, done0, done1, done2, done3, at0, at1, at2, at3;")
+		w.line("for (ri = 0; ri < n; ri++) {")
+		w.in()
+		for j := 0; j < k; j++ {
+			start := g.lit(0)
+			if p.Combine == forest.Sum {
+				start = g.lit(g.base[j])
+			}
+			w.line("outs[ri * %s + %du] = %s;", no, j, start)
+		}
+		w.out()
+		w.line("}")
+		w.line("/* Tree by tree, four rows walking at once; each row's leaves are added")
+		w.line(" * in tree order, as in %s_predict. */", g.name)
+		w.line("for (t = 0; t < %du; t++) {", T)
+		w.in()
+		w.line("for (ri = 0; ri + 4u <= n; ri += 4u) {")
+		w.in()
+		for j, l := range lanes {
+			w.line("const %s *const x%s = x + (ri + %du) * %s;", ft, l, j, nf)
+			w.line("%s *const o%s = outs + (ri + %du) * %s;", ft, l, j, no)
+		}
+		for _, l := range lanes {
+			begin(l, "t")
+		}
+		w.line("while ((done0 & done1 & done2 & done3) == 0u) {")
+		w.in()
+		for _, l := range lanes {
+			step(l)
+		}
+		w.out()
+		w.line("}")
+		for _, l := range lanes {
+			add(l)
+		}
+		w.out()
+		w.line("}")
+		w.line("for (; ri < n; ri++) {")
+		w.in()
+		w.line("const %s *const x0 = x + ri * %s;", ft, nf)
+		w.line("%s *const o0 = outs + ri * %s;", ft, no)
+		begin("0", "t")
+		w.line("while (done0 == 0u) {")
+		w.in()
+		step("0")
+		w.out()
+		w.line("}")
+		add("0")
+		w.out()
+		w.line("}")
+		w.out()
+		w.line("}")
+		w.line("for (ri = 0; ri < n; ri++) {")
+		w.in()
+		w.line("%s acc[%s];", ft, no)
+		w.line("%s *const o = outs + ri * %s;", ft, no)
+		w.line("for (j = 0; j < %s; j++) {", no)
+		w.line("\tacc[j] = o[j];")
+		w.line("}")
+		w.line("{")
+		w.in()
+		w.line("%s *const out = o;", ft) // finishBody writes out[j] from acc[j]
+		g.finishBody(w)
+		w.out()
+		w.line("}")
+		w.out()
+		w.line("}")
+		w.out()
+		w.line("}")
+		batch = false
 	}
 	return nil
 }

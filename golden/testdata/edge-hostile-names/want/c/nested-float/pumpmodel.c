@@ -150,3 +150,11 @@ int pumpmodel_predict_class(const float *x)
 	}
 	return best;
 }
+
+void pumpmodel_predict_batch(const float *x, size_t n, float *out)
+{
+	size_t r;
+	for (r = 0; r < n; r++) {
+		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
+	}
+}

@@ -109,3 +109,157 @@ int pumpmodel_predict_class(const double *x)
 	}
 	return best;
 }
+
+void pumpmodel_predict_batch(const double *x, size_t n, double *outs)
+{
+	size_t ri;
+	int j;
+	uint32_t t, first, end;
+	uint32_t i0, i1, i2, i3, done0, done1, done2, done3, at0, at1, at2, at3;
+	for (ri = 0; ri < n; ri++) {
+		outs[ri * PUMPMODEL_NUM_OUTPUTS + 0u] = 0.0;
+		outs[ri * PUMPMODEL_NUM_OUTPUTS + 1u] = 0.0;
+	}
+	/* Tree by tree, four rows walking at once; each row's leaves are added
+	 * in tree order, as in pumpmodel_predict. */
+	for (t = 0; t < 1u; t++) {
+		for (ri = 0; ri + 4u <= n; ri += 4u) {
+			const double *const x0 = x + (ri + 0u) * PUMPMODEL_NUM_FEATURES;
+			double *const o0 = outs + (ri + 0u) * PUMPMODEL_NUM_OUTPUTS;
+			const double *const x1 = x + (ri + 1u) * PUMPMODEL_NUM_FEATURES;
+			double *const o1 = outs + (ri + 1u) * PUMPMODEL_NUM_OUTPUTS;
+			const double *const x2 = x + (ri + 2u) * PUMPMODEL_NUM_FEATURES;
+			double *const o2 = outs + (ri + 2u) * PUMPMODEL_NUM_OUTPUTS;
+			const double *const x3 = x + (ri + 3u) * PUMPMODEL_NUM_FEATURES;
+			double *const o3 = outs + (ri + 3u) * PUMPMODEL_NUM_OUTPUTS;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i0 = first < end ? first : 0u;
+			at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done1 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i1 = first < end ? first : 0u;
+			at1 = first + t; /* leaves before the tree: one more than splits, per tree */
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done2 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i2 = first < end ? first : 0u;
+			at2 = first + t; /* leaves before the tree: one more than splits, per tree */
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done3 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i3 = first < end ? first : 0u;
+			at3 = first + t; /* leaves before the tree: one more than splits, per tree */
+			while ((done0 & done1 & done2 & done3) == 0u) {
+				{
+					const uint16_t w = pumpmodel_node[i0];
+					const uint32_t f = (uint32_t)(w & 0xfu);
+					const double v = x0[f];
+					const double th = (double)pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = 0u;
+					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+					at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+					i0 += go * (1u + r * p1);
+					done0 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i1];
+					const uint32_t f = (uint32_t)(w & 0xfu);
+					const double v = x1[f];
+					const double th = (double)pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = 0u;
+					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done1 | leaf) ^ 1u; /* moves to another word */
+					at1 += (done1 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+					i1 += go * (1u + r * p1);
+					done1 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i2];
+					const uint32_t f = (uint32_t)(w & 0xfu);
+					const double v = x2[f];
+					const double th = (double)pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = 0u;
+					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done2 | leaf) ^ 1u; /* moves to another word */
+					at2 += (done2 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+					i2 += go * (1u + r * p1);
+					done2 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i3];
+					const uint32_t f = (uint32_t)(w & 0xfu);
+					const double v = x3[f];
+					const double th = (double)pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = 0u;
+					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done3 | leaf) ^ 1u; /* moves to another word */
+					at3 += (done3 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+					i3 += go * (1u + r * p1);
+					done3 |= leaf;
+				}
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				o0[j] += (double)pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				o1[j] += (double)pumpmodel_leaf[(uint32_t)at1 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				o2[j] += (double)pumpmodel_leaf[(uint32_t)at2 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				o3[j] += (double)pumpmodel_leaf[(uint32_t)at3 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			}
+		}
+		for (; ri < n; ri++) {
+			const double *const x0 = x + ri * PUMPMODEL_NUM_FEATURES;
+			double *const o0 = outs + ri * PUMPMODEL_NUM_OUTPUTS;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i0 = first < end ? first : 0u;
+			at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+			while (done0 == 0u) {
+				{
+					const uint16_t w = pumpmodel_node[i0];
+					const uint32_t f = (uint32_t)(w & 0xfu);
+					const double v = x0[f];
+					const double th = (double)pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = 0u;
+					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+					at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+					i0 += go * (1u + r * p1);
+					done0 |= leaf;
+				}
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				o0[j] += (double)pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			}
+		}
+	}
+	for (ri = 0; ri < n; ri++) {
+		double acc[PUMPMODEL_NUM_OUTPUTS];
+		double *const o = outs + ri * PUMPMODEL_NUM_OUTPUTS;
+		for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+			acc[j] = o[j];
+		}
+		{
+			double *const out = o;
+			acc[0] = acc[0] / 1.0 + 0.0;
+			acc[1] = acc[1] / 1.0 + 0.0;
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				out[j] = acc[j];
+			}
+		}
+	}
+}

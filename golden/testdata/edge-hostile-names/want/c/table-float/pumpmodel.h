@@ -53,6 +53,8 @@
 #ifndef PUMPMODEL_H
 #define PUMPMODEL_H
 
+#include <stddef.h>
+
 #ifdef __cplusplus
 extern "C" {
 #endif
@@ -85,6 +87,11 @@ extern "C" {
 
 /* Scores x (PUMPMODEL_NUM_FEATURES values) into out (PUMPMODEL_NUM_OUTPUTS values). */
 void pumpmodel_predict(const float *x, float *out);
+
+/* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
+ * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
+ * Tree by tree over all rows, so each tree's words stay in cache. */
+void pumpmodel_predict_batch(const float *x, size_t n, float *out);
 
 /* The predicted class of x: the index of the largest output, ties to the lowest. */
 int pumpmodel_predict_class(const float *x);

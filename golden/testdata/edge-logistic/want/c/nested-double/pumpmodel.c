@@ -73,3 +73,11 @@ int pumpmodel_predict_class(const double *x)
 	pumpmodel_predict(x, out);
 	return out[0] > 0.5 ? 1 : 0;
 }
+
+void pumpmodel_predict_batch(const double *x, size_t n, double *out)
+{
+	size_t r;
+	for (r = 0; r < n; r++) {
+		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
+	}
+}

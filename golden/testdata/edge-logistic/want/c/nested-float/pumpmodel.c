@@ -73,3 +73,11 @@ int pumpmodel_predict_class(const float *x)
 	pumpmodel_predict(x, out);
 	return out[0] > 0.5f ? 1 : 0;
 }
+
+void pumpmodel_predict_batch(const float *x, size_t n, float *out)
+{
+	size_t r;
+	for (r = 0; r < n; r++) {
+		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
+	}
+}

@@ -38,6 +38,8 @@
 #ifndef PUMPMODEL_H
 #define PUMPMODEL_H
 
+#include <stddef.h>
+
 #ifdef __cplusplus
 extern "C" {
 #endif
@@ -56,6 +58,11 @@ extern "C" {
 
 /* Scores x (PUMPMODEL_NUM_FEATURES values) into out (PUMPMODEL_NUM_OUTPUTS values). */
 void pumpmodel_predict(const float *x, float *out);
+
+/* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
+ * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
+ * Tree by tree over all rows, so each tree's words stay in cache. */
+void pumpmodel_predict_batch(const float *x, size_t n, float *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */
 int pumpmodel_predict_class(const float *x);

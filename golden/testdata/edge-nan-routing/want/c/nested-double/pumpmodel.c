@@ -43,3 +43,11 @@ void pumpmodel_predict(const double *x, double *out)
 		out[j] = acc[j];
 	}
 }
+
+void pumpmodel_predict_batch(const double *x, size_t n, double *out)
+{
+	size_t r;
+	for (r = 0; r < n; r++) {
+		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
+	}
+}

@@ -43,3 +43,11 @@ void pumpmodel_predict(const float *x, float *out)
 		out[j] = acc[j];
 	}
 }
+
+void pumpmodel_predict_batch(const float *x, size_t n, float *out)
+{
+	size_t r;
+	for (r = 0; r < n; r++) {
+		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
+	}
+}

@@ -35,6 +35,8 @@
 #ifndef PUMPMODEL_H
 #define PUMPMODEL_H
 
+#include <stddef.h>
+
 #ifdef __cplusplus
 extern "C" {
 #endif
@@ -48,6 +50,11 @@ extern "C" {
 
 /* Scores x (PUMPMODEL_NUM_FEATURES values) into out (PUMPMODEL_NUM_OUTPUTS values). */
 void pumpmodel_predict(const double *x, double *out);
+
+/* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
+ * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
+ * Tree by tree over all rows, so each tree's words stay in cache. */
+void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* The model's feature names, in input order (UTF-8). */
 extern const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES];

@@ -71,3 +71,149 @@ void pumpmodel_predict(const float *x, float *out)
 		out[j] = acc[j];
 	}
 }
+
+void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
+{
+	size_t ri;
+	int j;
+	uint32_t t, first, end;
+	uint32_t i0, i1, i2, i3, done0, done1, done2, done3, at0, at1, at2, at3;
+	for (ri = 0; ri < n; ri++) {
+		outs[ri * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.0f;
+	}
+	/* Tree by tree, four rows walking at once; each row's leaves are added
+	 * in tree order, as in pumpmodel_predict. */
+	for (t = 0; t < 2u; t++) {
+		for (ri = 0; ri + 4u <= n; ri += 4u) {
+			const float *const x0 = x + (ri + 0u) * PUMPMODEL_NUM_FEATURES;
+			float *const o0 = outs + (ri + 0u) * PUMPMODEL_NUM_OUTPUTS;
+			const float *const x1 = x + (ri + 1u) * PUMPMODEL_NUM_FEATURES;
+			float *const o1 = outs + (ri + 1u) * PUMPMODEL_NUM_OUTPUTS;
+			const float *const x2 = x + (ri + 2u) * PUMPMODEL_NUM_FEATURES;
+			float *const o2 = outs + (ri + 2u) * PUMPMODEL_NUM_OUTPUTS;
+			const float *const x3 = x + (ri + 3u) * PUMPMODEL_NUM_FEATURES;
+			float *const o3 = outs + (ri + 3u) * PUMPMODEL_NUM_OUTPUTS;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i0 = first < end ? first : 0u;
+			at0 = 0u;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done1 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i1 = first < end ? first : 0u;
+			at1 = 0u;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done2 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i2 = first < end ? first : 0u;
+			at2 = 0u;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done3 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i3 = first < end ? first : 0u;
+			at3 = 0u;
+			while ((done0 & done1 & done2 & done3) == 0u) {
+				{
+					const uint16_t w = pumpmodel_node[i0];
+					const uint32_t f = (uint32_t)(w & 0x1u);
+					const float v = x0[f];
+					const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
+					const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+					const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
+					at0 = (leaf & (done0 ^ 1u)) != 0u ? row : at0;
+					i0 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
+					done0 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i1];
+					const uint32_t f = (uint32_t)(w & 0x1u);
+					const float v = x1[f];
+					const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
+					const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done1 | leaf) ^ 1u; /* moves to another word */
+					const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
+					at1 = (leaf & (done1 ^ 1u)) != 0u ? row : at1;
+					i1 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
+					done1 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i2];
+					const uint32_t f = (uint32_t)(w & 0x1u);
+					const float v = x2[f];
+					const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
+					const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done2 | leaf) ^ 1u; /* moves to another word */
+					const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
+					at2 = (leaf & (done2 ^ 1u)) != 0u ? row : at2;
+					i2 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
+					done2 |= leaf;
+				}
+				{
+					const uint16_t w = pumpmodel_node[i3];
+					const uint32_t f = (uint32_t)(w & 0x1u);
+					const float v = x3[f];
+					const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
+					const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done3 | leaf) ^ 1u; /* moves to another word */
+					const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
+					at3 = (leaf & (done3 ^ 1u)) != 0u ? row : at3;
+					i3 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
+					done3 |= leaf;
+				}
+			}
+			o0[0] += pumpmodel_leaf[at0];
+			o1[0] += pumpmodel_leaf[at1];
+			o2[0] += pumpmodel_leaf[at2];
+			o3[0] += pumpmodel_leaf[at3];
+		}
+		for (; ri < n; ri++) {
+			const float *const x0 = x + ri * PUMPMODEL_NUM_FEATURES;
+			float *const o0 = outs + ri * PUMPMODEL_NUM_OUTPUTS;
+			first = pumpmodel_start[t];
+			end = pumpmodel_start[t + 1u];
+			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+			i0 = first < end ? first : 0u;
+			at0 = 0u;
+			while (done0 == 0u) {
+				{
+					const uint16_t w = pumpmodel_node[i0];
+					const uint32_t f = (uint32_t)(w & 0x1u);
+					const float v = x0[f];
+					const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
+					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+					const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
+					const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
+					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+					const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
+					at0 = (leaf & (done0 ^ 1u)) != 0u ? row : at0;
+					i0 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
+					done0 |= leaf;
+				}
+			}
+			o0[0] += pumpmodel_leaf[at0];
+		}
+	}
+	for (ri = 0; ri < n; ri++) {
+		float acc[PUMPMODEL_NUM_OUTPUTS];
+		float *const o = outs + ri * PUMPMODEL_NUM_OUTPUTS;
+		for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+			acc[j] = o[j];
+		}
+		{
+			float *const out = o;
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				out[j] = acc[j];
+			}
+		}
+	}
+}
