@@ -147,9 +147,9 @@ type gen struct {
 	tableMode int
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.
-	batch     func(w *printer)
-	featMac   []string // NAME_F_... macro per feature
-	classMac  []string // NAME_C_... macro per class
+	batch    func(w *printer)
+	featMac  []string // NAME_F_... macro per feature
+	classMac []string // NAME_C_... macro per class
 }
 
 // Table is one static array of the generated code.
