@@ -127,14 +127,17 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 	var sides []*side
 	for _, l := range cLayouts {
 		prog, fl, threads, batch := p, false, 1, false
-		if strings.HasSuffix(l, "-2threads") {
-			threads, l = 2, strings.TrimSuffix(l, "-2threads")
-		}
-		if strings.HasSuffix(l, "-float") {
-			prog, fl, l = ps, true, strings.TrimSuffix(l, "-float")
-		}
-		if strings.HasSuffix(l, "-batch") {
-			batch, l = true, strings.TrimSuffix(l, "-batch")
+		for more := true; more; { // the suffixes in any order
+			switch {
+			case strings.HasSuffix(l, "-2threads"):
+				threads, l = 2, strings.TrimSuffix(l, "-2threads")
+			case strings.HasSuffix(l, "-float"):
+				prog, fl, l = ps, true, strings.TrimSuffix(l, "-float")
+			case strings.HasSuffix(l, "-batch"):
+				batch, l = true, strings.TrimSuffix(l, "-batch")
+			default:
+				more = false
+			}
 		}
 		s, err := buildC(dir, prog, l, fl, threads, batch, n, reps)
 		if err != nil {

@@ -90,10 +90,10 @@
 //     depth of the tree. In PostgreSQL and DuckDB the lookup indexes a
 //     constant array ('{...}'::float8[] and [...]) by the leaf number
 //     instead of searching.
-//   - auto: table for trees deeper than MaxNest and for models of more
-//     than two outputs, and in DuckDB for two outputs that are not binary
-//     votes (table 2.8 times faster than nested there, measured on a
-//     100-tree forest); nested otherwise.
+//   - auto: table for DuckDB (2.8 times faster than nested on a 100-tree
+//     forest, measured; about even for binary votes, and faster to prepare),
+//     for trees deeper than MaxNest and for models of more than two outputs;
+//     nested otherwise.
 //
 // A fully flat form (one CASE per tree with a WHEN per leaf holding the whole
 // root-to-leaf conjunction) is not offered: measured on SQLite it is 17 to

@@ -239,15 +239,16 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	return g, nil
 }
 
-// auto picks the layout: table for trees deeper than the nesting budget
-// and for models of more than two outputs (where nested repeats each tree
-// once per output); for DuckDB also for two outputs unless they are binary
-// votes (with two walks per tree, table measured 2.8 times faster than
-// nested on a 100-tree forest; with one, nested 33,900 rows/s against
-// 23,100 on the 100-tree Breast Cancer forest of bench/sql); nested
+// auto picks the layout: table for DuckDB (measured 2.8 times faster than
+// nested on a 100-tree forest of two walked outputs: its vectorised CASE
+// pays for every nested branch; for binary votes, one walk a tree, the two
+// ran about even on the Breast Cancer forest of bench/sql, 74,600 rows/s
+// for table against 72,000, and table prepared in 193 ms against 693), for
+// trees deeper than the nesting budget, and for models of more than two
+// outputs (where nested repeats each tree once per output); nested
 // otherwise.
 func (g *gen) auto(maxDepth int) string {
-	if g.d == DuckDB && g.p.NumOutputs == 2 && !g.votes || maxDepth > g.nest || g.p.NumOutputs > 2 {
+	if g.d == DuckDB || maxDepth > g.nest || g.p.NumOutputs > 2 {
 		return emit.Table
 	}
 	return emit.Nested
