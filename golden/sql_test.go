@@ -408,8 +408,8 @@ func TestSQLNameErrors(t *testing.T) {
 	}
 }
 
-// TestSQLBigForest (SAWMILL_SQL_BIG=1; minutes, not part of the default
-// run) scores a 500-tree forest of 2,047-node trees with distinct
+// TestSQLBigForest (SAWMILL_SQL_BIG=1, which CI sets; about a minute,
+// not part of the default run) scores a 500-tree forest of 2,047-node trees with distinct
 // thresholds, plus a 300-deep tree, in every engine through the auto
 // layout, and prints prepare and run times.
 func TestSQLBigForest(t *testing.T) {
