@@ -5,9 +5,9 @@
 //
 // Besides NAME_predict (one row) and NAME_predict_class, NAME_predict_batch
 // scores n rows laid out one after another. In the table layout it walks
-// tree by tree over all rows, four rows at once, so that a tree's words stay
-// in cache while the rows pass, where NAME_predict walks every tree for one
-// row; each row's leaves are still added in tree order, so the outputs are
+// tree by tree over all rows, four rows at once, a lane taking the next row
+// as soon as its walk ends, so that a tree's words stay in cache while the
+// rows pass, where NAME_predict walks every tree for one row; each row's leaves are still added in tree order, so the outputs are
 // NAME_predict's bit for bit (the golden drivers check it on every case).
 // In the nested layout it is a loop over NAME_predict.
 //

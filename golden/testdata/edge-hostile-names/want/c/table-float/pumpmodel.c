@@ -116,134 +116,203 @@ void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
 	int j;
 	uint32_t t, first, end;
 	uint32_t i0, i1, i2, i3, done0, done1, done2, done3, at0, at1, at2, at3;
+	uint32_t live0, live1, live2, live3;
+	size_t next;
+	const float *x0 = x, *x1 = x, *x2 = x, *x3 = x;
+	float *o0 = outs, *o1 = outs, *o2 = outs, *o3 = outs;
 	for (ri = 0; ri < n; ri++) {
 		outs[ri * PUMPMODEL_NUM_OUTPUTS + 0u] = 0.0f;
 		outs[ri * PUMPMODEL_NUM_OUTPUTS + 1u] = 0.0f;
 	}
-	/* Tree by tree, four rows walking at once; each row's leaves are added
-	 * in tree order, as in pumpmodel_predict. */
+	/* Tree by tree, four rows walking at once, each lane taking the next row
+	 * as soon as its walk ends; each row's leaves are added in tree order, as
+	 * in pumpmodel_predict. */
 	for (t = 0; t < 1u; t++) {
-		for (ri = 0; ri + 4u <= n; ri += 4u) {
-			const float *const x0 = x + (ri + 0u) * PUMPMODEL_NUM_FEATURES;
-			float *const o0 = outs + (ri + 0u) * PUMPMODEL_NUM_OUTPUTS;
-			const float *const x1 = x + (ri + 1u) * PUMPMODEL_NUM_FEATURES;
-			float *const o1 = outs + (ri + 1u) * PUMPMODEL_NUM_OUTPUTS;
-			const float *const x2 = x + (ri + 2u) * PUMPMODEL_NUM_FEATURES;
-			float *const o2 = outs + (ri + 2u) * PUMPMODEL_NUM_OUTPUTS;
-			const float *const x3 = x + (ri + 3u) * PUMPMODEL_NUM_FEATURES;
-			float *const o3 = outs + (ri + 3u) * PUMPMODEL_NUM_OUTPUTS;
+		next = 0;
+		if (next < n) {
+			x0 = x + next * PUMPMODEL_NUM_FEATURES;
+			o0 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+			next++;
+			live0 = 1u;
 			first = pumpmodel_start[t];
 			end = pumpmodel_start[t + 1u];
 			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
 			i0 = first < end ? first : 0u;
 			at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+		} else { /* no row: the lane stands still on a word that exists */
+			live0 = 0u;
+			done0 = 1u;
+			i0 = 0u;
+			at0 = 0u;
+		}
+		if (next < n) {
+			x1 = x + next * PUMPMODEL_NUM_FEATURES;
+			o1 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+			next++;
+			live1 = 1u;
 			first = pumpmodel_start[t];
 			end = pumpmodel_start[t + 1u];
 			done1 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
 			i1 = first < end ? first : 0u;
 			at1 = first + t; /* leaves before the tree: one more than splits, per tree */
+		} else { /* no row: the lane stands still on a word that exists */
+			live1 = 0u;
+			done1 = 1u;
+			i1 = 0u;
+			at1 = 0u;
+		}
+		if (next < n) {
+			x2 = x + next * PUMPMODEL_NUM_FEATURES;
+			o2 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+			next++;
+			live2 = 1u;
 			first = pumpmodel_start[t];
 			end = pumpmodel_start[t + 1u];
 			done2 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
 			i2 = first < end ? first : 0u;
 			at2 = first + t; /* leaves before the tree: one more than splits, per tree */
+		} else { /* no row: the lane stands still on a word that exists */
+			live2 = 0u;
+			done2 = 1u;
+			i2 = 0u;
+			at2 = 0u;
+		}
+		if (next < n) {
+			x3 = x + next * PUMPMODEL_NUM_FEATURES;
+			o3 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+			next++;
+			live3 = 1u;
 			first = pumpmodel_start[t];
 			end = pumpmodel_start[t + 1u];
 			done3 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
 			i3 = first < end ? first : 0u;
 			at3 = first + t; /* leaves before the tree: one more than splits, per tree */
-			while ((done0 & done1 & done2 & done3) == 0u) {
-				{
-					const uint16_t w = pumpmodel_node[i0];
-					const uint32_t f = (uint32_t)(w & 0xfu);
-					const float v = x0[f];
-					const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-					const uint32_t p1 = 0u;
-					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
-					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
-					at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-					i0 += go * (1u + r * p1);
-					done0 |= leaf;
-				}
-				{
-					const uint16_t w = pumpmodel_node[i1];
-					const uint32_t f = (uint32_t)(w & 0xfu);
-					const float v = x1[f];
-					const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-					const uint32_t p1 = 0u;
-					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
-					const uint32_t go = (done1 | leaf) ^ 1u; /* moves to another word */
-					at1 += (done1 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-					i1 += go * (1u + r * p1);
-					done1 |= leaf;
-				}
-				{
-					const uint16_t w = pumpmodel_node[i2];
-					const uint32_t f = (uint32_t)(w & 0xfu);
-					const float v = x2[f];
-					const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-					const uint32_t p1 = 0u;
-					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
-					const uint32_t go = (done2 | leaf) ^ 1u; /* moves to another word */
-					at2 += (done2 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-					i2 += go * (1u + r * p1);
-					done2 |= leaf;
-				}
-				{
-					const uint16_t w = pumpmodel_node[i3];
-					const uint32_t f = (uint32_t)(w & 0xfu);
-					const float v = x3[f];
-					const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-					const uint32_t p1 = 0u;
-					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
-					const uint32_t go = (done3 | leaf) ^ 1u; /* moves to another word */
-					at3 += (done3 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-					i3 += go * (1u + r * p1);
-					done3 |= leaf;
-				}
-			}
-			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-				o0[j] += pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
-			}
-			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-				o1[j] += pumpmodel_leaf[(uint32_t)at1 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
-			}
-			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-				o2[j] += pumpmodel_leaf[(uint32_t)at2 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
-			}
-			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-				o3[j] += pumpmodel_leaf[(uint32_t)at3 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
-			}
+		} else { /* no row: the lane stands still on a word that exists */
+			live3 = 0u;
+			done3 = 1u;
+			i3 = 0u;
+			at3 = 0u;
 		}
-		for (; ri < n; ri++) {
-			const float *const x0 = x + ri * PUMPMODEL_NUM_FEATURES;
-			float *const o0 = outs + ri * PUMPMODEL_NUM_OUTPUTS;
-			first = pumpmodel_start[t];
-			end = pumpmodel_start[t + 1u];
-			done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
-			i0 = first < end ? first : 0u;
-			at0 = first + t; /* leaves before the tree: one more than splits, per tree */
-			while (done0 == 0u) {
-				{
-					const uint16_t w = pumpmodel_node[i0];
-					const uint32_t f = (uint32_t)(w & 0xfu);
-					const float v = x0[f];
-					const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-					const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-					const uint32_t p1 = 0u;
-					const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
-					const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
-					at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-					i0 += go * (1u + r * p1);
-					done0 |= leaf;
+		while ((live0 | live1 | live2 | live3) != 0u) {
+			{
+				const uint16_t w = pumpmodel_node[i0];
+				const uint32_t f = (uint32_t)(w & 0xfu);
+				const float v = x0[f];
+				const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = 0u;
+				const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
+				at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+				i0 += go * (1u + r * p1);
+				done0 |= leaf;
+			}
+			{
+				const uint16_t w = pumpmodel_node[i1];
+				const uint32_t f = (uint32_t)(w & 0xfu);
+				const float v = x1[f];
+				const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = 0u;
+				const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done1 | leaf) ^ 1u; /* moves to another word */
+				at1 += (done1 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+				i1 += go * (1u + r * p1);
+				done1 |= leaf;
+			}
+			{
+				const uint16_t w = pumpmodel_node[i2];
+				const uint32_t f = (uint32_t)(w & 0xfu);
+				const float v = x2[f];
+				const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = 0u;
+				const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done2 | leaf) ^ 1u; /* moves to another word */
+				at2 += (done2 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+				i2 += go * (1u + r * p1);
+				done2 |= leaf;
+			}
+			{
+				const uint16_t w = pumpmodel_node[i3];
+				const uint32_t f = (uint32_t)(w & 0xfu);
+				const float v = x3[f];
+				const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = 0u;
+				const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+				const uint32_t go = (done3 | leaf) ^ 1u; /* moves to another word */
+				at3 += (done3 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
+				i3 += go * (1u + r * p1);
+				done3 |= leaf;
+			}
+			if ((done0 & live0) != 0u) {
+				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+					o0[j] += pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+				}
+				if (next < n) {
+					x0 = x + next * PUMPMODEL_NUM_FEATURES;
+					o0 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+					next++;
+					first = pumpmodel_start[t];
+					end = pumpmodel_start[t + 1u];
+					done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+					i0 = first < end ? first : 0u;
+					at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+				} else {
+					live0 = 0u;
 				}
 			}
-			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-				o0[j] += pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+			if ((done1 & live1) != 0u) {
+				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+					o1[j] += pumpmodel_leaf[(uint32_t)at1 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+				}
+				if (next < n) {
+					x1 = x + next * PUMPMODEL_NUM_FEATURES;
+					o1 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+					next++;
+					first = pumpmodel_start[t];
+					end = pumpmodel_start[t + 1u];
+					done1 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+					i1 = first < end ? first : 0u;
+					at1 = first + t; /* leaves before the tree: one more than splits, per tree */
+				} else {
+					live1 = 0u;
+				}
+			}
+			if ((done2 & live2) != 0u) {
+				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+					o2[j] += pumpmodel_leaf[(uint32_t)at2 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+				}
+				if (next < n) {
+					x2 = x + next * PUMPMODEL_NUM_FEATURES;
+					o2 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+					next++;
+					first = pumpmodel_start[t];
+					end = pumpmodel_start[t + 1u];
+					done2 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+					i2 = first < end ? first : 0u;
+					at2 = first + t; /* leaves before the tree: one more than splits, per tree */
+				} else {
+					live2 = 0u;
+				}
+			}
+			if ((done3 & live3) != 0u) {
+				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+					o3[j] += pumpmodel_leaf[(uint32_t)at3 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+				}
+				if (next < n) {
+					x3 = x + next * PUMPMODEL_NUM_FEATURES;
+					o3 = outs + next * PUMPMODEL_NUM_OUTPUTS;
+					next++;
+					first = pumpmodel_start[t];
+					end = pumpmodel_start[t + 1u];
+					done3 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
+					i3 = first < end ? first : 0u;
+					at3 = first + t; /* leaves before the tree: one more than splits, per tree */
+				} else {
+					live3 = 0u;
+				}
 			}
 		}
 	}
