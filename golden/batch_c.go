@@ -232,43 +232,7 @@ func cBatchDriver(jobs []Job, built []int, names, fts []string) string {
 		fmt.Fprintf(&b, "#include \"%s.h\"\n", name)
 	}
 	for k, i := range built {
-		name, ft, up := names[k], fts[k], strings.ToUpper(names[k])
-		class := "-1"
-		if jobs[i].Program.IsClassifier() {
-			class = name + "_predict_class(x)"
-		}
-		b.WriteString(`
-static int score_` + name + `(FILE *in)
-{
-	unsigned long rows, cols, r, i;
-	int j;
-	` + ft + ` x[` + up + `_NUM_FEATURES];
-	` + ft + ` y[` + up + `_NUM_OUTPUTS];
-	` + ft + ` *xs, *ys, *yb;
-	if (fscanf(in, "%lu %lu", &rows, &cols) != 2 || cols != ` + up + `_NUM_FEATURES) {
-		fprintf(stderr, "bad header\n");
-		return 2;
-	}
-` + cBatchAlloc(ft, up) + `	for (r = 0; r < rows; r++) {
-		for (i = 0; i < cols; i++) {
-			unsigned long long bits;
-			double d;
-			if (fscanf(in, "%llx", &bits) != 1) {
-				fprintf(stderr, "row %lu: bad value\n", r);
-				return 2;
-			}
-			memcpy(&d, &bits, sizeof d);
-			x[i] = (` + ft + `)d;
-		}
-		` + name + `_predict(x, y);
-		for (j = 0; j < ` + up + `_NUM_OUTPUTS; j++) {
-			printf("%a ", (double)y[j]);
-		}
-		printf("%d\n", ` + class + `);
-` + cBatchStore(up) + `	}
-` + cBatchCheck(name, up) + `	return 0;
-}
-`)
+		b.WriteString(cScoreFunc(names[k], fts[k], jobs[i].Program.IsClassifier()))
 	}
 	b.WriteString(`
 int main(int argc, char **argv)

@@ -319,34 +319,58 @@ func cRows(rows *forest.Rows) []byte {
 // narrows each value to the API's type (a no-op for double), and prints per
 // row the outputs with %a and the predicted class (-1 for a regressor).
 func cDriver(name, ft string, classifier bool) string {
-	up := strings.ToUpper(name)
-	class := "-1"
-	if classifier {
-		class = name + "_predict_class(x)"
-	}
 	return `#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "` + name + `.h"
-
+` + cScoreFunc(name, ft, classifier) + `
 int main(int argc, char **argv)
 {
 	FILE *in;
+	int rc;
+	if (argc != 2 || (in = fopen(argv[1], "r")) == NULL) {
+		fprintf(stderr, "usage: score ROWS\n");
+		return 2;
+	}
+	rc = score_` + name + `(in);
+	fclose(in);
+	return rc;
+}
+`
+}
+
+// cScoreFunc is a driver's static score_NAME(FILE *in): it reads the rows
+// (as cRows writes them), narrows each value to the API's type, prints per
+// row the outputs with %a and the predicted class (-1 for a regressor),
+// then scores all rows again with NAME_predict_batch and fails (status 3)
+// unless every output has the same bits as NAME_predict's.
+func cScoreFunc(name, ft string, classifier bool) string {
+	up := strings.ToUpper(name)
+	class := "-1"
+	if classifier {
+		class = name + "_predict_class(x)"
+	}
+	return `
+static int score_` + name + `(FILE *in)
+{
 	unsigned long rows, cols, r, i;
 	int j;
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
 	` + ft + ` *xs, *ys, *yb;
-	if (argc != 2 || (in = fopen(argv[1], "r")) == NULL) {
-		fprintf(stderr, "usage: score ROWS\n");
-		return 2;
-	}
 	if (fscanf(in, "%lu %lu", &rows, &cols) != 2 || cols != ` + up + `_NUM_FEATURES) {
 		fprintf(stderr, "bad header\n");
 		return 2;
 	}
-` + cBatchAlloc(ft, up) + `	for (r = 0; r < rows; r++) {
+	xs = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_FEATURES);
+	ys = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
+	yb = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
+	if (xs == NULL || ys == NULL || yb == NULL) {
+		fprintf(stderr, "out of memory\n");
+		return 2;
+	}
+	for (r = 0; r < rows; r++) {
 		for (i = 0; i < cols; i++) {
 			unsigned long long bits;
 			double d;
@@ -362,36 +386,10 @@ int main(int argc, char **argv)
 			printf("%a ", (double)y[j]);
 		}
 		printf("%d\n", ` + class + `);
-` + cBatchStore(up) + `	}
-	fclose(in);
-` + cBatchCheck(name, up) + `	return 0;
-}
-`
-}
-
-// cBatchAlloc, cBatchStore and cBatchCheck make a driver hold NAME_predict_batch
-// against NAME_predict: it keeps every row and its outputs, scores all rows
-// in one batch at the end, and fails (exit status 3) unless every output
-// has the same bits.
-func cBatchAlloc(ft, up string) string {
-	return `	xs = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_FEATURES);
-	ys = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
-	yb = malloc(sizeof(` + ft + `) * (rows + 1u) * ` + up + `_NUM_OUTPUTS);
-	if (xs == NULL || ys == NULL || yb == NULL) {
-		fprintf(stderr, "out of memory\n");
-		return 2;
-	}
-`
-}
-
-func cBatchStore(up string) string {
-	return `		memcpy(xs + r * ` + up + `_NUM_FEATURES, x, sizeof x);
+		memcpy(xs + r * ` + up + `_NUM_FEATURES, x, sizeof x);
 		memcpy(ys + r * ` + up + `_NUM_OUTPUTS, y, sizeof y);
-`
-}
-
-func cBatchCheck(name, up string) string {
-	return `	` + name + `_predict_batch(xs, (size_t)rows, yb);
+	}
+	` + name + `_predict_batch(xs, (size_t)rows, yb);
 	for (r = 0; r < rows; r++) {
 		if (memcmp(ys + r * ` + up + `_NUM_OUTPUTS, yb + r * ` + up + `_NUM_OUTPUTS, sizeof y) != 0) {
 			fprintf(stderr, "row %lu: ` + name + `_predict_batch differs from ` + name + `_predict\n", r);
@@ -401,6 +399,8 @@ func cBatchCheck(name, up string) string {
 	free(xs);
 	free(ys);
 	free(yb);
+	return 0;
+}
 `
 }
 

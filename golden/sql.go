@@ -81,9 +81,9 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 	// cut to 63 bytes), so names are checked under both.
 	check := o
 	check.Dialect = r.dialect("")
-	_, err := sqlemit.Emit(p, o)
+	_, err := sqlemit.Layout(p, o) // Emit's checks, without writing the statement
 	if err == nil && check.Dialect != o.Dialect {
-		_, err = sqlemit.Emit(p, check)
+		_, err = sqlemit.Layout(p, check)
 	}
 	if errors.Is(err, sqlemit.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
@@ -95,7 +95,7 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
-		if _, err := sqlemit.Emit(p, o); errors.Is(err, sqlemit.ErrNames) {
+		if _, err := sqlemit.Layout(p, o); errors.Is(err, sqlemit.ErrNames) {
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
 		}
 	} else if err != nil {

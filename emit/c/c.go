@@ -7,8 +7,9 @@
 // scores n rows laid out one after another. In the table layout it walks
 // tree by tree over all rows, four rows at once, a lane taking the next row
 // as soon as its walk ends, so that a tree's words stay in cache while the
-// rows pass, where NAME_predict walks every tree for one row; each row's leaves are still added in tree order, so the outputs are
-// NAME_predict's bit for bit (the golden drivers check it on every case).
+// rows pass, where NAME_predict walks every tree for one row; each row's
+// leaves are still added in tree order, so the outputs are NAME_predict's
+// bit for bit (the golden drivers check it on every case).
 // In the nested layout it is a loop over NAME_predict.
 //
 // Two arithmetic modes exist. Double (the default) takes and returns double
@@ -793,10 +794,15 @@ func (g *gen) predictStart(w *printer, locals ...string) {
 		w.line("%s", l)
 	}
 	for j := 0; j < p.NumOutputs; j++ {
-		start := g.lit(0)
-		if p.Combine == forest.Sum {
-			start = g.lit(g.base[j])
-		}
-		w.line("acc[%d] = %s;", j, start)
+		w.line("acc[%d] = %s;", j, g.accStart(j))
 	}
+}
+
+// accStart is output j's sum before the first tree: the base score for a
+// sum, zero for an average (which adds the base after dividing).
+func (g *gen) accStart(j int) string {
+	if g.p.Combine == forest.Sum {
+		return g.lit(g.base[j])
+	}
+	return g.lit(0)
 }

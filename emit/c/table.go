@@ -8,7 +8,6 @@ import (
 	"strings"
 
 	"sawmill/compile"
-	"sawmill/forest"
 )
 
 // The table layout. Each tree's splits are packed words in preorder, one
@@ -676,11 +675,7 @@ func (g *gen) table(w *printer) error {
 		w.line("for (ri = 0; ri < n; ri++) {")
 		w.in()
 		for j := 0; j < k; j++ {
-			start := g.lit(0)
-			if p.Combine == forest.Sum {
-				start = g.lit(g.base[j])
-			}
-			w.line("outs[ri * %s + %du] = %s;", no, j, start)
+			w.line("outs[ri * %s + %du] = %s;", no, j, g.accStart(j))
 		}
 		w.out()
 		w.line("}")
