@@ -114,7 +114,7 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if fl.out == "" {
 		return usageError{fmt.Errorf("compile: -o DIR is required")}
 	}
-	f, err := forest.ReadFile(modelPath)
+	f, err := readModel(modelPath)
 	if err != nil {
 		return err
 	}

@@ -38,7 +38,7 @@ Only nodes reachable from a tree's root are counted.`,
 			if !cSizes {
 				return nil
 			}
-			f, err := forest.ReadFile(args[0])
+			f, err := readModel(args[0])
 			if err != nil {
 				return err
 			}

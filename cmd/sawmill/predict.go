@@ -10,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"sawmill/forest"
+	"sawmill/source"
 )
 
 func newPredictCmd() *cobra.Command {
@@ -69,13 +70,24 @@ func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []st
 	return nil
 }
 
-// readModel reads a model file, with errors that start with its name.
+// readModel reads a model file of any format the source registry knows,
+// with errors that start with its name.
 func readModel(path string) (*forest.Forest, error) {
-	f, err := forest.ReadFile(path)
+	r, err := readSource(path, "", source.Options{})
+	if err != nil {
+		return nil, err
+	}
+	return r.Forest, nil
+}
+
+// readSource reads a model file as the format from ("" detects it), with
+// what the importer had to say about it.
+func readSource(path, from string, o source.Options) (*source.Result, error) {
+	r, err := source.Load(path, from, o)
 	if err != nil {
 		return nil, located(path, err)
 	}
-	return f, nil
+	return r, nil
 }
 
 // writePredictions writes the header and one line per row.
