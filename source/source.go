@@ -66,6 +66,7 @@ type Format struct {
 func Formats() []Format {
 	return []Format{
 		sawmillFormat,
+		lightgbmFormat,
 	}
 }
 
