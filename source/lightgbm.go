@@ -135,7 +135,7 @@ func lgbParse(data []byte, name string) (*lgbModel, error) {
 			if err != nil || id != len(m.trees) {
 				return nil, fmt.Errorf("%s:%d: %q: expected Tree=%d (trees are numbered from 0 in order)", name, lineNo, clip(ln), len(m.trees))
 			}
-			m.trees = append(m.trees, lgbBlock{keys: map[string]lgbLine{}, line: lineNo})
+			m.trees = append(m.trees, lgbBlock{keys: map[string]lgbLine{}, flags: map[string]int{}, line: lineNo})
 			cur = &m.trees[len(m.trees)-1]
 			continue
 		}

@@ -250,3 +250,137 @@ func TestLightGBMZeroThreshold(t *testing.T) {
 	}
 	require.Equal(t, 9, moved) // 0, -0, ±1e-37, ±5e-324, -B and the doubles next to B and -B inside the band
 }
+
+// lgbSmall is a two-split model to mutate: a numeric split and a categorical
+// one (bitset 0: categories 0 and 3).
+const lgbSmall = `tree
+version=v4
+num_class=1
+num_tree_per_iteration=1
+label_index=0
+max_feature_idx=1
+objective=binary sigmoid:1
+feature_names=a b
+feature_infos=[0:1] 0:3
+tree_sizes=1
+
+Tree=0
+num_leaves=3
+num_cat=1
+split_feature=0 1
+split_gain=1 1
+threshold=0.5 0
+decision_type=10 1
+left_child=1 -1
+right_child=-3 -2
+leaf_value=0.25 -0.5 1
+leaf_weight=1 1 1
+leaf_count=1 1 1
+internal_value=0 0
+internal_weight=0 0
+internal_count=3 2
+cat_boundaries=0 1
+cat_threshold=9
+is_linear=0
+shrinkage=1
+
+
+end of trees
+
+pandas_categorical:null
+`
+
+func TestLightGBMSmall(t *testing.T) {
+	r, err := Decode([]byte(lgbSmall), "model.txt", "", Options{})
+	require.NoError(t, err)
+	f := r.Forest
+	out := make([]float64, 1)
+	for _, c := range []struct{ a, b, want float64 }{
+		{0.5, 0, 0.25}, {0.5, 3.9, 0.25}, {0.5, -0.5, 0.25}, {0.5, 1, -0.5}, {0.5, -1, -0.5},
+		{0.5, math.NaN(), -0.5}, {0.5, 1 << 32, -0.5}, {0.5000000000000001, 0, 1}, {math.NaN(), 0, 0.25}, {math.NaN(), 1, -0.5}, // NaN: default left (decision_type 10)
+	} {
+		f.PredictRaw([]float64{c.a, c.b}, out)
+		require.Equal(t, c.want, out[0], "a=%v b=%v", c.a, c.b)
+	}
+}
+
+// TestLightGBMHostile: broken and hostile files get an error naming the
+// file (and the tree and node where there is one); nothing panics.
+func TestLightGBMHostile(t *testing.T) {
+	sub := func(old, new string) string {
+		require.Contains(t, lgbSmall, old)
+		return strings.Replace(lgbSmall, old, new, 1)
+	}
+	for _, c := range []struct{ in, want string }{
+		{lgbSmall[:len(lgbSmall)/2], `model.txt: the file ends before "end of trees" (after 1 trees)`},
+		{sub("num_leaves=3", "num_leaves=1000000000000"), `model.txt:13: tree 0: num_leaves: "1000000000000" is not an integer in [1, 2147483647]`},
+		{sub("num_leaves=3", "num_leaves=2000000000"), "model.txt:21: tree 0: leaf_value: num_leaves=2000000000 but the line has 11 bytes"},
+		{sub("num_leaves=3", "num_leaves=4"), "model.txt:21: tree 0: leaf_value: 3 values, expected 4"},
+		{sub("threshold=0.5 0", "threshold=nan 0"), `model.txt:17: tree 0: threshold: value 0: "nan" is not a finite number`},
+		{sub("left_child=1 -1", "left_child=7 -1"), `model.txt:19: tree 0: left_child: value 0: "7" is not an integer in [-3, 1]`},
+		{sub("left_child=1 -1", "left_child=0 -1"), "model.txt: tree 0, node 0: node 0 is reached twice (a cycle or a shared child)"},
+		{sub("left_child=1 -1", "left_child=1 -3"), "model.txt: tree 0, node 1: leaf 2 is reached twice (a cycle or a shared child)"},
+		{sub("decision_type=10 1", "decision_type=10 17"), "model.txt: tree 0, node 1: decision_type 17 has bits this reader does not know"},
+		{sub("decision_type=10 1", "decision_type=14 1"), "model.txt: tree 0, node 0: decision_type 14 has bits this reader does not know"},
+		{sub("threshold=0.5 0", "threshold=0.5 1"), "model.txt: tree 0, node 1: categorical split with threshold 1: not a bitset index below num_cat=1"},
+		{sub("cat_boundaries=0 1", "cat_boundaries=0 5"), "model.txt:27: tree 0: cat_boundaries: must run from 0 to the 1 words of cat_threshold"},
+		{sub("split_feature=0 1", "split_feature=0 2"), `model.txt:15: tree 0: split_feature: value 1: "2" is not an integer in [0, 1]`},
+		{sub("Tree=0", "Tree=3"), `model.txt:12: "Tree=3": expected Tree=0 (trees are numbered from 0 in order)`},
+		{sub("is_linear=0", "is_linear=1"), "model.txt:29: tree 0: a linear tree (is_linear=1): its leaves hold linear models, which the forest format cannot say\nhint: train with linear_tree=false"},
+		{sub("objective=binary sigmoid:1", "objective=binary sigmoid:-1"), `model.txt:7: header: objective: sigmoid "-1" is not a positive number`},
+		{sub("objective=binary sigmoid:1", "objective=softplus"), "model.txt:7: header: objective: objective \"softplus\" is not one this reader knows"},
+		{sub("version=v4", "version=v9"), `model.txt:2: header: version: "v9" is not a version this reader knows`},
+		{sub("split_gain=1 1\n", "split_gain=1 1\nthreshold=1 1\n"), `model.txt:18: key "threshold" given twice in the same block`},
+		{sub("feature_names=a b", "feature_names=a b c"), "model.txt:8: header: feature_names: more than the 2 values expected"},
+		{sub("Tree=0", "Tree=0\nTree=1"), "model.txt:12: tree 0: \"num_leaves\" is missing"},
+	} {
+		_, err := Decode([]byte(c.in), "model.txt", "lightgbm", Options{})
+		require.Error(t, err, c.want)
+		require.True(t, strings.HasPrefix(err.Error(), c.want), "got  %s\nwant %s", err, c.want)
+	}
+}
+
+func TestDetectLightGBM(t *testing.T) {
+	require.True(t, detectLightGBM([]byte(lgbSmall)))
+	require.True(t, detectLightGBM([]byte(strings.ReplaceAll(lgbSmall, "\n", "\r\n"))))
+	for _, in := range []string{"", "tree", "tree\n", "tree\nnum_class=1\n", "trees\nversion=v4", `{"sawmill_forest": 1}`} {
+		require.False(t, detectLightGBM([]byte(in)), "%q", in)
+	}
+	f, err := Detect([]byte(lgbSmall), "model.txt")
+	require.NoError(t, err)
+	require.Equal(t, "lightgbm", f.Name)
+}
+
+// FuzzLightGBM: any input either reads into a valid forest that scores
+// without panicking, or gives an error that starts with the file's name.
+func FuzzLightGBM(f *testing.F) {
+	f.Add([]byte(lgbSmall))
+	for _, name := range []string{"binary-categorical", "multiclassova", "regression-zero-missing"} {
+		data, err := os.ReadFile(filepath.Join("testdata", "lightgbm", name, "model.txt"))
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(data)
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		r, err := Decode(data, "model.txt", "lightgbm", Options{})
+		if err != nil {
+			if !strings.HasPrefix(err.Error(), "model.txt") {
+				t.Fatalf("error without the file name: %v", err)
+			}
+			return
+		}
+		fo := r.Forest
+		if err := fo.Validate("model.txt"); err != nil {
+			t.Fatalf("invalid forest returned: %v", err)
+		}
+		x := make([]float64, len(fo.Features))
+		out := make([]float64, fo.NumOutputs())
+		for _, v := range []float64{0, math.NaN(), -0.5, 1e-36, 3} {
+			for i := range x {
+				x[i] = v
+			}
+			fo.Predict(x, out)
+		}
+	})
+}
