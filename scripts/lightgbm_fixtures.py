@@ -149,8 +149,8 @@ def num(v):
     return repr(v)
 
 
-def write(name, booster, X_test, meta, iterations=0):
-    d = os.path.join(OUT, name)
+def write(out, name, booster, X_test, meta, iterations=0):
+    d = os.path.join(out, name)
     os.makedirs(d, exist_ok=True)
     booster.save_model(os.path.join(d, "model.txt"), num_iteration=-1)
     rows = np.vstack([X_test, probe_rows(booster, X_test)])
@@ -172,7 +172,7 @@ def write(name, booster, X_test, meta, iterations=0):
         fh.write("\n")
 
 
-def train(data, params, rounds, categorical=False, ranking=False, labels=None, valid=False):
+def train(data, params, rounds, categorical=False, ranking=False, labels=None, valid=False, seed=7):
     X, y, cat = dataset(data, categorical)
     if labels is not None:
         y = labels(y)
@@ -181,7 +181,7 @@ def train(data, params, rounds, categorical=False, ranking=False, labels=None, v
     kw = {}
     if cat is not None:
         kw["categorical_feature"] = [cat]
-    p = dict(COMMON, **params)
+    p = dict(COMMON, seed=seed, **params)
     if ranking:
         kw["group"] = [20] * (cut // 20) + ([cut % 20] if cut % 20 else [])
     ds = lgb.Dataset(X[:cut], y[:cut], params={"verbose": -1, "linear_tree": p.get("linear_tree", False)}, **kw)
@@ -231,15 +231,14 @@ MODELS = [
 ]
 
 
-def main():
-    if lgb.__version__ != "4.7.0":
-        print(f"warning: fixtures were made with lightgbm 4.7.0, this is {lgb.__version__}", file=sys.stderr)
-    if os.path.isdir(OUT):
-        shutil.rmtree(OUT)
+def build(out, seed=7, quiet=False):
+    """Train every model of MODELS and write its folder under out."""
+    if os.path.isdir(out):
+        shutil.rmtree(out)
     for name, data, params, rounds, opt in MODELS:
         opt = dict(opt)
         error = opt.pop("error", None)
-        b, X_test, meta = train(data, params, rounds, **opt)
+        b, X_test, meta = train(data, params, rounds, seed=seed, **opt)
         iterations = 0
         if opt.get("valid"):
             # The file holds every round trained; LightGBM's own default is
@@ -250,8 +249,15 @@ def main():
             meta["trained_iterations"] = b.current_iteration()
         if error:
             meta["error"] = error
-        write(name, b, X_test, meta, iterations)
-        print(name, b.num_trees(), "trees")
+        write(out, name, b, X_test, meta, iterations)
+        if not quiet:
+            print(name, b.num_trees(), "trees")
+
+
+def main():
+    if lgb.__version__ != "4.7.0":
+        print(f"warning: fixtures were made with lightgbm 4.7.0, this is {lgb.__version__}", file=sys.stderr)
+    build(OUT)
 
 
 if __name__ == "__main__":

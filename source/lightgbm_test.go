@@ -29,11 +29,11 @@ type lgbFixture struct {
 	}
 }
 
-func lgbFixtures(t *testing.T) []lgbFixture {
+func lgbFixtures(t *testing.T, root string) []lgbFixture {
 	t.Helper()
-	dirs, err := filepath.Glob(filepath.Join("testdata", "lightgbm", "*", "model.txt"))
+	dirs, err := filepath.Glob(filepath.Join(root, "*", "model.txt"))
 	require.NoError(t, err)
-	require.NotEmpty(t, dirs, "no fixtures: run scripts/lightgbm_fixtures.py")
+	require.NotEmpty(t, dirs, "no models under %s: run scripts/lightgbm_fixtures.py", root)
 	var out []lgbFixture
 	for _, m := range dirs {
 		d := filepath.Dir(m)
@@ -86,83 +86,106 @@ func ulps(a, b float64) float64 {
 // the zero band and NaN), and transformed outputs within lgbTransformULPs.
 func TestLightGBMFixtures(t *testing.T) {
 	worst := map[string]float64{}
-	for _, fx := range lgbFixtures(t) {
-		t.Run(fx.name, func(t *testing.T) {
-			require.True(t, detectLightGBM(fx.model))
-			r, err := Decode(fx.model, "model.txt", "", Options{Iterations: fx.meta.Iterations})
-			if fx.meta.Error != "" {
-				require.Error(t, err)
-				require.Contains(t, err.Error(), fx.meta.Error)
-				require.True(t, strings.HasPrefix(err.Error(), "model.txt:"), err.Error())
-				return
-			}
-			require.NoError(t, err)
-			require.Equal(t, "lightgbm", r.Format)
-			f := r.Forest
-			_, rows := readFloatCSV(t, filepath.Join(fx.dir, "rows.csv"))
-			head, want := readFloatCSV(t, filepath.Join(fx.dir, "expected.csv"))
-			k := f.NumOutputs()
-			require.Len(t, head, 2*k, "expected.csv has raw and transformed outputs")
-			warned := false
-			for _, n := range r.Notes {
-				warned = warned || strings.HasPrefix(n, "warning:")
-			}
-			obj, _ := fx.meta.Params["objective"].(string)
-			wantWarn := obj == "cross_entropy_lambda" || fx.meta.Params["reg_sqrt"] == true
-			require.Equal(t, wantWarn, warned, "notes: %q", r.Notes)
-
-			// Through compile: a program must score every row like the
-			// interpreter, or compile must refuse with an error that names
-			// what it lacks.
-			p, _, cerr := compile.Compile(f, compile.Options{})
-			switch v2 := f.V2Constructs(); {
-			case len(v2) == 0:
-				require.NoError(t, cerr) // a version 1 model compiles, and is held below
-			case cerr != nil && strings.Contains(cerr.Error(), "not supported"):
-				p = nil // a clear refusal of what the compiler lacks
-			default:
-				// The compiler of this branch predates format 2 and neither
-				// refuses nor implements it yet (compile.Unsupported is being
-				// added on the format 2 branch); until then the program is
-				// not held against the interpreter for these models.
-				t.Logf("compile and format 2 constructs %v: %v", v2, cerr)
-				p = nil
-			}
-			got := make([]float64, k)
-
-			raw := make([]float64, k)
-			out := make([]float64, k)
-			for i, x := range rows {
-				require.Len(t, x, len(f.Features))
-				f.PredictRaw(x, raw)
-				f.Predict(x, out)
-				if p != nil {
-					compile.Eval(p, x, got)
-					for j := range k {
-						require.Equal(t, math.Float64bits(out[j]), math.Float64bits(got[j]), "row %d, output %d: compiled %v, interpreter %v", i, j, got[j], out[j])
-					}
-				}
-				for j := range k {
-					w := want[i][j]
-					if f.Combine == forest.Average {
-						// LightGBM's raw_score=True gives the sum of an rf
-						// model's trees; predict() divides it by the rounds
-						// (measured with 4.7.0), as the format's average does.
-						w /= float64(len(f.Trees) / k)
-					}
-					require.Equal(t, math.Float64bits(w), math.Float64bits(raw[j]),
-						"row %d (line %d), output %d: raw %v, LightGBM %v", i, i+2, j, raw[j], w)
-					if wantWarn {
-						continue
-					}
-					u := ulps(out[j], want[i][k+j])
-					worst[fx.name] = max(worst[fx.name], u)
-					require.LessOrEqual(t, u, float64(lgbTransformULPs), "row %d, output %d: %v, LightGBM %v", i, j, out[j], want[i][k+j])
-				}
-			}
-		})
+	for _, fx := range lgbFixtures(t, filepath.Join("testdata", "lightgbm")) {
+		t.Run(fx.name, func(t *testing.T) { worst[fx.name] = lgbCheck(t, fx) })
 	}
 	t.Logf("largest distance of a transformed output from LightGBM's, in ulps: %v", worst)
+}
+
+// TestLightGBMLive checks the models that scripts/lightgbm_live_check.py
+// trains afresh with the installed lightgbm and writes under
+// $SAWMILL_LIGHTGBM_LIVE, exactly as TestLightGBMFixtures checks the
+// committed ones. The script sets the variable and runs this test.
+func TestLightGBMLive(t *testing.T) {
+	root := os.Getenv("SAWMILL_LIGHTGBM_LIVE")
+	if root == "" {
+		t.Skip("SAWMILL_LIGHTGBM_LIVE is not set: run scripts/lightgbm_live_check.py")
+	}
+	for _, fx := range lgbFixtures(t, root) {
+		t.Run(fx.name, func(t *testing.T) { lgbCheck(t, fx) })
+	}
+}
+
+// lgbCheck reads one model folder and holds the reader against LightGBM's
+// outputs in it: raw scores bit for bit on every row (held-out rows, rows at
+// and around every threshold in float64 and float32, category edges, zeros,
+// the zero band and NaN), transformed outputs within lgbTransformULPs. It
+// returns the largest distance of a transformed output, in ulps.
+func lgbCheck(t *testing.T, fx lgbFixture) float64 {
+	worst := 0.0
+	require.True(t, detectLightGBM(fx.model))
+	r, err := Decode(fx.model, "model.txt", "", Options{Iterations: fx.meta.Iterations})
+	if fx.meta.Error != "" {
+		require.Error(t, err)
+		require.Contains(t, err.Error(), fx.meta.Error)
+		require.True(t, strings.HasPrefix(err.Error(), "model.txt:"), err.Error())
+		return 0
+	}
+	require.NoError(t, err)
+	require.Equal(t, "lightgbm", r.Format)
+	f := r.Forest
+	_, rows := readFloatCSV(t, filepath.Join(fx.dir, "rows.csv"))
+	head, want := readFloatCSV(t, filepath.Join(fx.dir, "expected.csv"))
+	k := f.NumOutputs()
+	require.Len(t, head, 2*k, "expected.csv has raw and transformed outputs")
+	warned := false
+	for _, n := range r.Notes {
+		warned = warned || strings.HasPrefix(n, "warning:")
+	}
+	obj, _ := fx.meta.Params["objective"].(string)
+	wantWarn := obj == "cross_entropy_lambda" || fx.meta.Params["reg_sqrt"] == true
+	require.Equal(t, wantWarn, warned, "notes: %q", r.Notes)
+
+	// Through compile: a program must score every row like the
+	// interpreter, or compile must refuse with an error that names
+	// what it lacks.
+	p, _, cerr := compile.Compile(f, compile.Options{})
+	switch v2 := f.V2Constructs(); {
+	case len(v2) == 0:
+		require.NoError(t, cerr) // a version 1 model compiles, and is held below
+	case cerr != nil && strings.Contains(cerr.Error(), "not supported"):
+		p = nil // a clear refusal of what the compiler lacks
+	default:
+		// The compiler of this branch predates format 2 and neither
+		// refuses nor implements it yet (compile.Unsupported is being
+		// added on the format 2 branch); until then the program is
+		// not held against the interpreter for these models.
+		t.Logf("compile and format 2 constructs %v: %v", v2, cerr)
+		p = nil
+	}
+	got := make([]float64, k)
+
+	raw := make([]float64, k)
+	out := make([]float64, k)
+	for i, x := range rows {
+		require.Len(t, x, len(f.Features))
+		f.PredictRaw(x, raw)
+		f.Predict(x, out)
+		if p != nil {
+			compile.Eval(p, x, got)
+			for j := range k {
+				require.Equal(t, math.Float64bits(out[j]), math.Float64bits(got[j]), "row %d, output %d: compiled %v, interpreter %v", i, j, got[j], out[j])
+			}
+		}
+		for j := range k {
+			w := want[i][j]
+			if f.Combine == forest.Average {
+				// LightGBM's raw_score=True gives the sum of an rf
+				// model's trees; predict() divides it by the rounds
+				// (measured with 4.7.0), as the format's average does.
+				w /= float64(len(f.Trees) / k)
+			}
+			require.Equal(t, math.Float64bits(w), math.Float64bits(raw[j]),
+				"row %d (line %d), output %d: raw %v, LightGBM %v", i, i+2, j, raw[j], w)
+			if wantWarn {
+				continue
+			}
+			u := ulps(out[j], want[i][k+j])
+			worst = max(worst, u)
+			require.LessOrEqual(t, u, float64(lgbTransformULPs), "row %d, output %d: %v, LightGBM %v", i, j, out[j], want[i][k+j])
+		}
+	}
+	return worst
 }
 
 // lgbTransformULPs bounds the transformed outputs' distance from LightGBM's:
