@@ -334,6 +334,11 @@ func zeroThreshold(t float64) float64 {
 // lgbStats counts the rewrites made, for Result.Notes.
 type lgbStats struct {
 	zeroBand, noneNaN, zeroMissing, categorical int
+	// catBudget is how many more categories the set splits may list: the
+	// file's size in bytes, so that 32 categories drawn from one word of
+	// cat_threshold cannot make memory outgrow the file (LightGBM itself
+	// lists at most max_cat_threshold, 32 by default, per split).
+	catBudget int
 }
 
 func readLightGBM(data []byte, name string, o Options) (*Result, error) {
@@ -425,7 +430,7 @@ func readLightGBM(data []byte, name string, o Options) (*Result, error) {
 	if maxNodes <= 0 {
 		maxNodes = forest.DefaultMaxNodes
 	}
-	var st lgbStats
+	st := lgbStats{catBudget: len(data)}
 	var total int64
 	f.Trees = make([]forest.Tree, 0, len(trees))
 	for ti := range trees {
@@ -568,7 +573,7 @@ func lgbTree(r *lgbReader, ti, nf int, st *lgbStats) (forest.Tree, error) {
 	}
 	var cats [][]int32
 	if ncat > 0 {
-		if cats, err = lgbBitsets(r, int(ncat)); err != nil {
+		if cats, err = lgbBitsets(r, int(ncat), &st.catBudget); err != nil {
 			return forest.Tree{}, err
 		}
 		t.Categories = make([][]int32, n)
@@ -668,7 +673,7 @@ func lgbCheckShape(t *forest.Tree, name string, ti, S int) error {
 // lgbBitsets reads cat_boundaries and cat_threshold into the sorted
 // category list of each of the ncat categorical splits: bit b of word w of
 // a split's words is category 32w+b, which goes left.
-func lgbBitsets(r *lgbReader, ncat int) ([][]int32, error) {
+func lgbBitsets(r *lgbReader, ncat int, budget *int) ([][]int32, error) {
 	bounds, err := r.ints("cat_boundaries", ncat+1, 0, math.MaxInt32)
 	if err != nil {
 		return nil, err
@@ -699,6 +704,9 @@ func lgbBitsets(r *lgbReader, ncat int) ([][]int32, error) {
 		}
 		list := make([]int32, 0, 4)
 		for w := lo; w < hi; w++ {
+			if *budget -= bits.OnesCount32(words[w]); *budget < 0 {
+				return nil, r.errf(r.b.keys["cat_threshold"], "cat_threshold", "the bitsets list more categories than the file has bytes")
+			}
 			for x := words[w]; x != 0; x &= x - 1 {
 				list = append(list, int32(32*(w-lo)+bits.TrailingZeros32(x)))
 			}
