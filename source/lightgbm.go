@@ -449,23 +449,11 @@ func readLightGBM(data []byte, name string, o Options) (*Result, error) {
 		f.Trees = append(f.Trees, t)
 	}
 
-	if o.Features != nil {
-		if len(o.Features) != len(f.Features) {
-			return nil, fmt.Errorf("%s: --features names %d features, the model has %d", name, len(o.Features), len(f.Features))
-		}
-		f.Features = o.Features
-		notes = append(notes, "features named from the command line")
+	renamed, err := o.rename(f, name)
+	if err != nil {
+		return nil, err
 	}
-	if o.Classes != nil {
-		if f.Task != forest.Classification {
-			return nil, fmt.Errorf("%s: --classes given for a %s model (objective %s), which has no classes", name, f.Task, strings.Fields(string(objLine.val))[0])
-		}
-		if len(o.Classes) != len(f.Classes) {
-			return nil, fmt.Errorf("%s: --classes names %d classes, the model has %d", name, len(o.Classes), len(f.Classes))
-		}
-		f.Classes = o.Classes
-		notes = append(notes, "classes named from the command line")
-	}
+	notes = append(notes, renamed...)
 	if o.Missing != nil {
 		f.HasMissingValue, f.MissingValue = true, *o.Missing
 		notes = append(notes, fmt.Sprintf("%s also counts as missing (goes where LightGBM sends NaN)", strconv.FormatFloat(*o.Missing, 'g', -1, 64)))
