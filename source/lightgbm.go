@@ -118,7 +118,10 @@ func lgbParse(data []byte, name string) (*lgbModel, error) {
 		ln = bytes.TrimSuffix(ln, []byte("\r"))
 		switch {
 		case lineNo == 1:
-			continue // "tree", checked by Detect
+			if string(ln) != "tree" {
+				return nil, fmt.Errorf("%s:1: %q: a LightGBM text model starts with a line \"tree\"\nhint: save the model with Booster.save_model", name, clip(ln))
+			}
+			continue
 		case len(ln) == 0:
 			continue
 		case string(ln) == "end of trees":

@@ -355,6 +355,7 @@ func TestLightGBMHostile(t *testing.T) {
 		{sub("version=v4", "version=v9"), `model.txt:2: header: version: "v9" is not a version this reader knows`},
 		{sub("split_gain=1 1\n", "split_gain=1 1\nthreshold=1 1\n"), `model.txt:18: key "threshold" given twice in the same block`},
 		{sub("feature_names=a b", "feature_names=a b c"), "model.txt:8: header: feature_names: more than the 2 values expected"},
+		{"\nversion=v4\n", `model.txt:1: "": a LightGBM text model starts with a line "tree"`},
 		{sub("Tree=0", "Tree=0\nTree=1"), "model.txt:12: tree 0: \"num_leaves\" is missing"},
 		{sub("cat_boundaries=0 1\ncat_threshold=9", "cat_boundaries=0 4000\ncat_threshold="+strings.Repeat("4294967295 ", 4000)), "model.txt:28: tree 0: cat_threshold: the bitsets list more categories than the file has bytes"},
 	} {
