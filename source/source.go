@@ -66,6 +66,7 @@ type Format struct {
 func Formats() []Format {
 	return []Format{
 		sawmillFormat,
+		lightgbmFormat,
 	}
 }
 
@@ -151,26 +152,37 @@ var sawmillFormat = Format{
 		if err != nil {
 			return nil, err
 		}
-		var notes []string
-		if o.Features != nil {
-			if len(o.Features) != len(f.Features) {
-				return nil, fmt.Errorf("%s: --features names %d features, the model has %d", name, len(o.Features), len(f.Features))
-			}
-			f.Features = o.Features
-			notes = append(notes, "features renamed from the command line")
-		}
-		if o.Classes != nil {
-			if len(o.Classes) != len(f.Classes) {
-				return nil, fmt.Errorf("%s: --classes names %d classes, the model has %d", name, len(o.Classes), len(f.Classes))
-			}
-			f.Classes = o.Classes
-			notes = append(notes, "classes renamed from the command line")
+		notes, err := o.rename(f, name)
+		if err != nil {
+			return nil, err
 		}
 		if err := f.Validate(name); err != nil {
 			return nil, err
 		}
 		return &Result{Forest: f, Notes: notes}, nil
 	},
+}
+
+// rename applies the names given in o (Features, Classes) to f, which must
+// have as many features and classes, and returns notes saying so. Every
+// reader calls it once the model is built, before validating it.
+func (o Options) rename(f *forest.Forest, name string) ([]string, error) {
+	var notes []string
+	if o.Features != nil {
+		if len(o.Features) != len(f.Features) {
+			return nil, fmt.Errorf("%s: --features names %d features, the model has %d", name, len(o.Features), len(f.Features))
+		}
+		f.Features = o.Features
+		notes = append(notes, "features renamed from the command line")
+	}
+	if o.Classes != nil {
+		if len(o.Classes) != len(f.Classes) {
+			return nil, fmt.Errorf("%s: --classes names %d classes, the model has %d", name, len(o.Classes), len(f.Classes))
+		}
+		f.Classes = o.Classes
+		notes = append(notes, "classes renamed from the command line")
+	}
+	return notes, nil
 }
 
 // jsonObject reports whether data starts, after white space, with '{' and

@@ -1,0 +1,59 @@
+#!/usr/bin/env python3
+"""Train fresh LightGBM models with the installed lightgbm and check sawmill's
+reader against them.
+
+Run from the repository with the Python of python/requirements.txt:
+
+    python scripts/lightgbm_live_check.py [--seed N] [--keep DIR]
+
+It trains every model of scripts/lightgbm_fixtures.py (same datasets, objectives
+and probe rows, a different seed) into a temporary folder, then runs
+
+    SAWMILL_LIGHTGBM_LIVE=<folder> go test ./source -run '^TestLightGBMLive$' -v
+
+which holds sawmill's raw scores bit for bit, and its transformed outputs
+within the stated bound, against what this lightgbm predicted. It prints
+"N passed, N failed" and exits non-zero when any model fails, so a new
+LightGBM release that changes its file format or a formula is caught.
+"""
+
+import argparse
+import os
+import re
+import subprocess
+import sys
+import tempfile
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import lightgbm_fixtures  # noqa: E402
+
+ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--seed", type=int, default=11, help="training seed (the committed fixtures use 7)")
+    ap.add_argument("--keep", help="write the models here and keep them")
+    a = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        out = a.keep or os.path.join(tmp, "models")
+        lightgbm_fixtures.build(out, seed=a.seed, quiet=True)
+        env = dict(os.environ, SAWMILL_LIGHTGBM_LIVE=os.path.abspath(out))
+        p = subprocess.run(
+            ["go", "test", "./source", "-count=1", "-run", "^TestLightGBMLive$", "-v"],
+            cwd=ROOT, env=env, capture_output=True, text=True,
+        )
+    log = p.stdout + p.stderr
+    passed = len(re.findall(r"^\s+--- PASS: TestLightGBMLive/", log, re.M))
+    failed = len(re.findall(r"^\s+--- FAIL: TestLightGBMLive/", log, re.M))
+    models = len(lightgbm_fixtures.MODELS)
+    if p.returncode != 0 or passed + failed != models:
+        sys.stdout.write(log)
+        failed = max(failed, models - passed)
+    import lightgbm
+    print(f"lightgbm {lightgbm.__version__}: {passed} passed, {failed} failed")
+    sys.exit(1 if failed else 0)
+
+
+if __name__ == "__main__":
+    main()
