@@ -45,7 +45,7 @@ const head = `"sawmill_forest":1,"task":"regression","features":["a","b"],`
 // Every rejection the format page lists, each naming its place.
 func TestRejections(t *testing.T) {
 	cases := []struct{ doc, want string }{
-		{`{"sawmill_forest":2,"task":"regression","features":["a"],"trees":[]}`, "m.json: sawmill_forest version 2 is not supported"},
+		{`{"sawmill_forest":3,"task":"regression","features":["a"],"trees":[]}`, "m.json: sawmill_forest version 3 is not supported"},
 		{`{"task":"regression"}`, "missing \"sawmill_forest\""},
 		{`{"sawmill_forest":1,"task":"ranking","features":["a"],"trees":[{"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[1]]}]}`, `unknown task "ranking"`},
 		{`{` + head + `"combine":"max","trees":[{"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[1]]}]}`, `unknown combine "max"`},

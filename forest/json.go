@@ -10,7 +10,11 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
+	"slices"
 	"strconv"
+	"strings"
+	"unicode/utf8"
 )
 
 // DefaultMaxFileBytes caps the size of a model file a reader accepts unless
@@ -71,8 +75,8 @@ func ReadOptionsFrom(r io.Reader, name string, o ReadOptions) (*Forest, error) {
 	return Decode(data, name, o)
 }
 
-// fileDoc mirrors the document; RawMessage fields tell a missing key from a
-// zero value.
+// fileDoc mirrors the document; pointer and RawMessage fields tell a missing
+// key from a zero value.
 type fileDoc struct {
 	Version        json.RawMessage   `json:"sawmill_forest"`
 	Task           *string           `json:"task"`
@@ -84,6 +88,12 @@ type fileDoc struct {
 	BaseScore      []float64         `json:"base_score"`
 	Trees          []json.RawMessage `json:"trees"`
 	Provenance     json.RawMessage   `json:"provenance"`
+	// Version 2.
+	Accumulate     *string  `json:"accumulate"`
+	TransformScale *float64 `json:"transform_scale"`
+	Outputs        *int     `json:"outputs"`
+	CategoryMatch  *string  `json:"category_match"`
+	MissingValue   *float64 `json:"missing_value"`
 }
 
 type treeDoc struct {
@@ -93,6 +103,112 @@ type treeDoc struct {
 	Right       []int       `json:"right"`
 	MissingLeft []bool      `json:"missing_left"`
 	Value       [][]float64 `json:"value"`
+	// Version 2. Categories are read as numbers so that a fraction or a
+	// huge value gets a message of its own rather than a type error.
+	Output      *int        `json:"output"`
+	Categories  [][]float64 `json:"categories"`
+	ZeroMissing []bool      `json:"zero_missing"`
+}
+
+// v2Keys are the top-level and tree keys that need "sawmill_forest": 2.
+var v2Keys = []string{"accumulate", "transform_scale", "outputs", "category_match", "missing_value"}
+var v2TreeKeys = []string{"output", "categories", "zero_missing"}
+
+// decodeStrict decodes one JSON value into v, rejecting keys v does not
+// name and anything after the value. An unknown key is reported with the
+// nearest known one as a hint.
+func decodeStrict(data []byte, v any, known []string) string {
+	dec := json.NewDecoder(bytes.NewReader(data))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		if key, ok := unknownField(err); ok {
+			return unknownKeyMessage(key, known)
+		}
+		return describeJSONError(data, err)
+	}
+	off := dec.InputOffset()
+	if rest := bytes.TrimLeft(data[off:], " \t\r\n"); len(rest) > 0 {
+		line, col := lineCol(data, int64(len(data)-len(rest)))
+		return fmt.Sprintf("line %d, column %d: invalid JSON: data after the document", line, col)
+	}
+	return ""
+}
+
+// unknownField recognises encoding/json's error for a key that
+// DisallowUnknownFields refuses (`json: unknown field "name"`, the wording
+// of Go's encoding/json since Go 1.10) and returns the key.
+func unknownField(err error) (string, bool) {
+	const prefix = "json: unknown field "
+	msg := err.Error()
+	if !strings.HasPrefix(msg, prefix) {
+		return "", false
+	}
+	key, uerr := strconv.Unquote(msg[len(prefix):])
+	if uerr != nil {
+		return "", false
+	}
+	return key, true
+}
+
+// jsonKeys lists the JSON keys of a struct's fields, in field order.
+func jsonKeys(v any) []string {
+	t := reflect.TypeOf(v)
+	keys := make([]string, 0, t.NumField())
+	for i := 0; i < t.NumField(); i++ {
+		name, _, _ := strings.Cut(t.Field(i).Tag.Get("json"), ",")
+		keys = append(keys, name)
+	}
+	return keys
+}
+
+var (
+	fileKeys = jsonKeys(fileDoc{})
+	treeKeys = jsonKeys(treeDoc{})
+)
+
+// unknownKeyMessage says that key is not one of known, with the nearest
+// known key as a hint when one is close (an edit distance of at most a
+// third of the key's length, and at least 2).
+func unknownKeyMessage(key string, known []string) string {
+	msg := fmt.Sprintf("unknown key %s", quoteName(key))
+	best, bestD := "", -1
+	for _, k := range known {
+		if d := editDistance(key, k); bestD < 0 || d < bestD {
+			best, bestD = k, d
+		}
+	}
+	if bestD >= 0 && bestD <= max(2, utf8.RuneCountInString(key)/3) {
+		return msg + fmt.Sprintf("\nhint: did you mean %q?", best)
+	}
+	return msg + "\nhint: the keys are " + strings.Join(known, ", ")
+}
+
+// editDistance is the Levenshtein distance between a and b in runes (one
+// row of the dynamic programme; common practice). Keys longer than 64 runes
+// are cut, so a hostile key costs little.
+func editDistance(a, b string) int {
+	ra, rb := []rune(a), []rune(b)
+	if len(ra) > 64 {
+		ra = ra[:64]
+	}
+	row := make([]int, len(rb)+1)
+	for j := range row {
+		row[j] = j
+	}
+	for i := 1; i <= len(ra); i++ {
+		prev := row[0]
+		row[0] = i
+		for j := 1; j <= len(rb); j++ {
+			cur := row[j]
+			cost := 1
+			if ra[i-1] == rb[j-1] {
+				cost = 0
+			}
+			row[j] = min(row[j]+1, row[j-1]+1, prev+cost)
+			prev = cur
+		}
+	}
+	return row[len(rb)]
 }
 
 // Decode parses and validates a model document held in memory.
@@ -105,8 +221,16 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 		maxNodes = DefaultMaxNodes
 	}
 	var d fileDoc
-	if err := json.Unmarshal(data, &d); err != nil {
-		return nil, fmt.Errorf("%s: %s", name, describeJSONError(data, err))
+	if msg := decodeStrict(data, &d, fileKeys); msg != "" {
+		// A file of a newer version may have keys this reader does not
+		// know: say that its version is the problem.
+		var v struct {
+			Version json.RawMessage `json:"sawmill_forest"`
+		}
+		if json.Unmarshal(data, &v) == nil && v.Version != nil && !knownVersion(v.Version) {
+			return nil, unsupportedVersion(name, v.Version)
+		}
+		return nil, fmt.Errorf("%s: %s", name, msg)
 	}
 	var p Problems
 	f := &Forest{}
@@ -114,10 +238,10 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 	case d.Version == nil:
 		p.Add("%s: missing \"sawmill_forest\": not a sawmill forest file", name)
 		return nil, p.Err()
-	case string(d.Version) != strconv.Itoa(FormatVersion):
-		p.Add("%s: sawmill_forest version %s is not supported (this reader knows version %d)", name, d.Version, FormatVersion)
-		return nil, p.Err()
+	case !knownVersion(d.Version):
+		return nil, unsupportedVersion(name, d.Version)
 	}
+	v2 := string(d.Version) == "2"
 	if d.Task == nil {
 		p.Add("%s: missing \"task\"", name)
 	} else {
@@ -139,6 +263,9 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 	f.Transform = NoTransform
 	if d.Transform != nil {
 		f.Transform = Transform(*d.Transform)
+		if !v2 && (f.Transform == Exp || f.Transform == LogisticEach || f.Transform == Normalize) {
+			p.Add("%s: output_transform %q needs \"sawmill_forest\": 2\nhint: write \"sawmill_forest\": 2", name, f.Transform)
+		}
 	}
 	f.BaseScore = d.BaseScore
 	if d.Trees == nil {
@@ -150,36 +277,83 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 			f.Provenance = c.Bytes()
 		}
 	}
+	// Version 2 keys, each with its default when absent.
+	if !v2 {
+		present := []bool{d.Accumulate != nil, d.TransformScale != nil, d.Outputs != nil, d.CategoryMatch != nil, d.MissingValue != nil}
+		for i, ok := range present {
+			if ok {
+				p.Add("%s: %q needs \"sawmill_forest\": 2\nhint: write \"sawmill_forest\": 2", name, v2Keys[i])
+			}
+		}
+	}
+	f.Accumulate = Float64
+	if d.Accumulate != nil {
+		f.Accumulate = Precision(*d.Accumulate)
+	}
+	f.TransformScale = 1
+	if d.TransformScale != nil {
+		if *d.TransformScale == 0 {
+			p.Add("%s: transform_scale is 0: it must be a finite non-zero number", name)
+		}
+		f.TransformScale = *d.TransformScale
+	}
+	if d.Outputs != nil {
+		switch {
+		case f.Task != Regression:
+			p.Add("%s: \"outputs\" is for regression models only: a classifier has an output per class", name)
+		case *d.Outputs < 1:
+			p.Add("%s: outputs is %d: a model has at least one output", name, *d.Outputs)
+		default:
+			f.Outputs = *d.Outputs
+		}
+	} else if f.Task == Regression {
+		f.Outputs = 1
+	}
+	f.CategoryMatch = MatchFloor
+	if d.CategoryMatch != nil {
+		f.CategoryMatch = CategoryMatch(*d.CategoryMatch)
+	}
+	if d.MissingValue != nil {
+		f.HasMissingValue, f.MissingValue = true, *d.MissingValue
+	}
 	if p.Len() > 0 {
 		return nil, p.Err()
 	}
-	k := numOutputs(f.Task, len(f.Classes), f.Transform)
-	if k < 1 {
-		k = 1 // the header check below reports the real problem
-	}
+	k := f.NumOutputs()
 	f.Trees = make([]Tree, len(d.Trees))
 	var nodes, values int64
 	var wrongLen map[int]map[int]int // tree -> node -> length found
 	for ti, raw := range d.Trees {
 		var td treeDoc
-		if err := json.Unmarshal(raw, &td); err != nil {
-			p.Add("%s: tree %d: %s", name, ti, describeJSONError(raw, err))
+		if msg := decodeStrict(raw, &td, treeKeys); msg != "" {
+			p.Add("%s: tree %d: %s", name, ti, msg)
 			continue
 		}
 		d.Trees[ti] = nil // let the raw text go as soon as it is decoded
+		if !v2 {
+			for i, ok := range []bool{td.Output != nil, td.Categories != nil, td.ZeroMissing != nil} {
+				if ok {
+					p.Add("%s: tree %d: %q needs \"sawmill_forest\": 2\nhint: write \"sawmill_forest\": 2", name, ti, v2TreeKeys[i])
+				}
+			}
+		}
 		nodes += int64(len(td.Left))
 		if nodes > maxNodes {
 			p.Add("%s: tree %d: the model has more than %d nodes, the limit\nhint: raise the limit if the model is meant to be this large", name, ti, maxNodes)
 			return nil, p.Err()
 		}
-		values += int64(len(td.Left)) * int64(k)
+		w := k
+		if td.Output != nil {
+			w = 1
+		}
+		values += int64(len(td.Left)) * int64(w)
 		if values > valueBudget(len(data)) {
 			p.Add("%s: tree %d: %d node slots of %d outputs each would take %d MiB, far more than a file of %d bytes holds: most value vectors are missing or short\nhint: give every node a value vector of %d entries, as the format asks",
-				name, ti, len(td.Left), k, values*8>>20, len(data), k)
+				name, ti, len(td.Left), w, values*8>>20, len(data), w)
 			return nil, p.Err()
 		}
 		var wl map[int]int
-		f.Trees[ti], wl = treeFromDoc(&td, ti, k, name, &p)
+		f.Trees[ti], wl = treeFromDoc(&td, ti, w, name, &p)
 		if wl != nil {
 			if wrongLen == nil {
 				wrongLen = map[int]map[int]int{}
@@ -202,10 +376,21 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 	return f, nil
 }
 
-// treeFromDoc checks the array lengths and flattens the value vectors. Vectors
-// of the wrong length are kept as zeros here; validate reports them at
-// reachable leaves, the only place they are read.
-func treeFromDoc(td *treeDoc, ti, k int, name string, p *Problems) (Tree, map[int]int) {
+func knownVersion(v json.RawMessage) bool { return string(v) == "1" || string(v) == "2" }
+
+func unsupportedVersion(name string, v json.RawMessage) error {
+	var p Problems
+	p.Add("%s: sawmill_forest version %s is not supported (this reader knows versions 1 to %d)", name, v, FormatVersion)
+	return p.Err()
+}
+
+// treeFromDoc checks the array lengths and flattens the value vectors (w
+// entries each). Vectors of the wrong length are kept as zeros here;
+// validate reports them at reachable leaves, the only place they are read.
+// Set splits' thresholds become 0, categories and zero_missing at leaves are
+// dropped, and arrays that say nothing (every entry null or false) become
+// nil, so that the same model always reads to the same Forest.
+func treeFromDoc(td *treeDoc, ti, w int, name string, p *Problems) (Tree, map[int]int) {
 	n := len(td.Left)
 	if td.MissingLeft == nil {
 		td.MissingLeft = make([]bool, n)
@@ -220,6 +405,20 @@ func treeFromDoc(td *treeDoc, ti, k int, name string, p *Problems) (Tree, map[in
 		{"right", len(td.Right), td.Right == nil},
 		{"missing_left", len(td.MissingLeft), false},
 		{"value", len(td.Value), td.Value == nil},
+	}
+	if td.Categories != nil {
+		lens = append(lens, struct {
+			key string
+			n   int
+			nil bool
+		}{"categories", len(td.Categories), false})
+	}
+	if td.ZeroMissing != nil {
+		lens = append(lens, struct {
+			key string
+			n   int
+			nil bool
+		}{"zero_missing", len(td.ZeroMissing), false})
 	}
 	if td.Left == nil {
 		p.Add("%s: tree %d: missing \"left\"", name, ti)
@@ -248,12 +447,15 @@ func treeFromDoc(td *treeDoc, ti, k int, name string, p *Problems) (Tree, map[in
 		Left:        td.Left,
 		Right:       td.Right,
 		MissingLeft: td.MissingLeft,
-		Value:       make([]float64, n*k),
+		Value:       make([]float64, n*w),
+	}
+	if td.Output != nil {
+		t.HasOutput, t.Output = true, *td.Output
 	}
 	var wrong map[int]int
 	for i, v := range td.Value {
-		if len(v) == k {
-			copy(t.Value[i*k:], v)
+		if len(v) == w {
+			copy(t.Value[i*w:], v)
 		} else if t.Left[i] == -1 {
 			if wrong == nil {
 				wrong = map[int]int{}
@@ -262,6 +464,35 @@ func treeFromDoc(td *treeDoc, ti, k int, name string, p *Problems) (Tree, map[in
 		}
 	}
 	td.Value = nil
+	for i, z := range td.ZeroMissing {
+		if z && t.Left[i] != -1 {
+			t.ZeroMissing = td.ZeroMissing
+			break
+		}
+	}
+	for i := range t.ZeroMissing {
+		if t.Left[i] == -1 {
+			t.ZeroMissing[i] = false
+		}
+	}
+	for i, c := range td.Categories {
+		if c == nil || t.Left[i] == -1 {
+			continue
+		}
+		if t.Categories == nil {
+			t.Categories = make([][]int32, n)
+		}
+		cats := make([]int32, len(c))
+		for j, v := range c {
+			if !(v >= 0 && v < MaxCategory) || v != math.Trunc(v) {
+				p.Add("%s: tree %d, node %d: categories holds %v, not an integer in [0, 2^31)", name, ti, i, v)
+				return Tree{}, nil
+			}
+			cats[j] = int32(v)
+		}
+		t.Categories[i] = cats
+		t.Threshold[i] = 0
+	}
 	return t, wrong
 }
 
@@ -330,7 +561,10 @@ func WriteFileAtomic(path string, data []byte, perm os.FileMode) error {
 
 // Encode writes f as a model document: keys in the format page's order, each
 // tree array on one line, every number in Go's shortest round-trip form, so
-// that the same Forest always gives the same bytes.
+// that the same Forest always gives the same bytes. A model that uses nothing
+// of version 2 is written as version 1, byte for byte as before version 2
+// existed; otherwise as version 2, with each version 2 key written only when
+// it differs from its default.
 func (f *Forest) Encode(w io.Writer) error {
 	bw := bufio.NewWriter(w)
 	var err error
@@ -355,15 +589,38 @@ func (f *Forest) Encode(w io.Writer) error {
 	}
 	k := f.NumOutputs()
 	put("{\n")
-	put(fmt.Sprintf("  \"sawmill_forest\": %d,\n", FormatVersion))
+	put(fmt.Sprintf("  \"sawmill_forest\": %d,\n", f.Version()))
 	put("  \"task\": " + str(string(f.Task)) + ",\n")
 	put("  \"features\": " + strs(f.Features) + ",\n")
 	if f.Classes != nil {
 		put("  \"classes\": " + strs(f.Classes) + ",\n")
 	}
+	if f.Outputs > 1 {
+		put(fmt.Sprintf("  \"outputs\": %d,\n", f.Outputs))
+	}
 	put("  \"input_precision\": " + str(string(f.InputPrecision)) + ",\n")
+	if f.Accumulate == Float32 {
+		put("  \"accumulate\": " + str(string(f.Accumulate)) + ",\n")
+	}
 	put("  \"combine\": " + str(string(f.Combine)) + ",\n")
 	put("  \"output_transform\": " + str(string(f.Transform)) + ",\n")
+	if s := f.Scale(); s != 1 {
+		b, e := floats(nil, []float64{s})
+		if e != nil {
+			return fmt.Errorf("transform_scale: %w", e)
+		}
+		put("  \"transform_scale\": " + string(b[1:len(b)-1]) + ",\n")
+	}
+	if f.CategoryMatch != "" && f.CategoryMatch != MatchFloor {
+		put("  \"category_match\": " + str(string(f.CategoryMatch)) + ",\n")
+	}
+	if f.HasMissingValue {
+		b, e := floats(nil, []float64{f.MissingValue})
+		if e != nil {
+			return fmt.Errorf("missing_value: %w", e)
+		}
+		put("  \"missing_value\": " + string(b[1:len(b)-1]) + ",\n")
+	}
 	bs, e := floats(nil, f.BaseScore)
 	if e != nil {
 		return fmt.Errorf("base_score: %w", e)
@@ -376,10 +633,25 @@ func (f *Forest) Encode(w io.Writer) error {
 			put(",")
 		}
 		put("\n    {\n")
-		b := append([]byte(nil), "      \"feature\": "...)
+		var b []byte
+		if t.HasOutput {
+			b = append(b, "      \"output\": "...)
+			b = strconv.AppendInt(b, int64(t.Output), 10)
+			b = append(b, ",\n"...)
+		}
+		b = append(b, "      \"feature\": "...)
 		b = ints(b, t.Feature)
 		b = append(b, ",\n      \"threshold\": "...)
-		if b, e = floats(b, t.Threshold); e != nil {
+		th := t.Threshold
+		if t.Categories != nil { // set splits' thresholds are written as 0
+			th = slices.Clone(th)
+			for i := range th {
+				if t.IsSetSplit(i) {
+					th[i] = 0
+				}
+			}
+		}
+		if b, e = floats(b, th); e != nil {
 			return fmt.Errorf("tree %d: threshold: %w", ti, e)
 		}
 		b = append(b, ",\n      \"left\": "...)
@@ -393,14 +665,47 @@ func (f *Forest) Encode(w io.Writer) error {
 			}
 			b = strconv.AppendBool(b, m)
 		}
-		b = append(b, "],\n      \"value\": ["...)
+		b = append(b, ']')
+		if t.ZeroMissing != nil {
+			b = append(b, ",\n      \"zero_missing\": ["...)
+			for i, z := range t.ZeroMissing {
+				if i > 0 {
+					b = append(b, ',')
+				}
+				b = strconv.AppendBool(b, z && !t.IsLeaf(i))
+			}
+			b = append(b, ']')
+		}
+		if t.Categories != nil {
+			b = append(b, ",\n      \"categories\": ["...)
+			for i, c := range t.Categories {
+				if i > 0 {
+					b = append(b, ',')
+				}
+				if c == nil || t.IsLeaf(i) {
+					b = append(b, "null"...)
+					continue
+				}
+				b = append(b, '[')
+				for j, v := range c {
+					if j > 0 {
+						b = append(b, ',')
+					}
+					b = strconv.AppendInt(b, int64(v), 10)
+				}
+				b = append(b, ']')
+			}
+			b = append(b, ']')
+		}
+		b = append(b, ",\n      \"value\": ["...)
+		w := t.Width(k)
 		for i := 0; i < t.NumNodes(); i++ {
 			if i > 0 {
 				b = append(b, ',')
 			}
-			v := t.Value[i*k : (i+1)*k]
+			v := t.Value[i*w : (i+1)*w]
 			if !t.IsLeaf(i) {
-				v = make([]float64, k) // only leaves are read; keep splits tidy
+				v = make([]float64, w) // only leaves are read; keep splits tidy
 			}
 			if b, e = floats(b, v); e != nil {
 				return fmt.Errorf("tree %d, node %d: value: %w", ti, i, e)
