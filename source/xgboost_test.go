@@ -1,0 +1,161 @@
+package source
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sawmill/forest"
+)
+
+// The fixtures under testdata/xgboost were made by scripts/xgboost_fixtures.py
+// with XGBoost itself (1.7.4, Debian's python3-xgboost, in x17_*; 3.2.0 from
+// the Python package index in x3_*). Each holds the saved model, rows, and
+// the library's own margins and predictions.
+
+type xgbFixture struct {
+	dir    string
+	meta   struct{ Objective, Xgboost string }
+	rows   *forest.Rows
+	margin [][]float64
+	pred   [][]float64
+}
+
+func xgbFixtures(t *testing.T) []string {
+	dirs, err := filepath.Glob(filepath.Join("testdata", "xgboost", "x*"))
+	require.NoError(t, err)
+	var out []string
+	for _, d := range dirs {
+		if !strings.Contains(filepath.Base(d), "_refuse_") {
+			out = append(out, d)
+		}
+	}
+	require.NotEmpty(t, out, "no XGBoost fixtures: run scripts/xgboost_fixtures.py")
+	return out
+}
+
+// readFloats reads a CSV of numbers written by the fixture script (Python's
+// repr: exact), an empty cell being NaN.
+func readFloats(t *testing.T, path string) [][]float64 {
+	fh, err := os.Open(path)
+	require.NoError(t, err)
+	defer fh.Close()
+	recs, err := csv.NewReader(fh).ReadAll()
+	require.NoError(t, err)
+	var out [][]float64
+	for _, r := range recs[1:] {
+		row := make([]float64, len(r))
+		for i, s := range r {
+			v, msg := forest.ParseCell(s)
+			require.Empty(t, msg, "%s: %q", path, s)
+			row[i] = v
+		}
+		out = append(out, row)
+	}
+	return out
+}
+
+func loadFixture(t *testing.T, dir string, f *forest.Forest) *xgbFixture {
+	x := &xgbFixture{dir: dir}
+	data, err := os.ReadFile(filepath.Join(dir, "meta.json"))
+	require.NoError(t, err)
+	require.NoError(t, json.Unmarshal(data, &x.meta))
+	x.rows, err = forest.ReadRowsFile(filepath.Join(dir, "rows.csv"), f.Features, forest.RowOptions{})
+	require.NoError(t, err)
+	x.margin = readFloats(t, filepath.Join(dir, "margins.csv"))
+	x.pred = readFloats(t, filepath.Join(dir, "predictions.csv"))
+	require.Equal(t, x.rows.Len(), len(x.margin))
+	require.Equal(t, x.rows.Len(), len(x.pred))
+	return x
+}
+
+// TestXGBoostFixtures holds the importer against XGBoost's own predictions:
+// the interpreter's raw scores equal the library's margins bit for bit on
+// every row (NaN cells, threshold and category probes included), and its
+// outputs equal the library's predictions.
+func TestXGBoostFixtures(t *testing.T) {
+	for _, dir := range xgbFixtures(t) {
+		t.Run(filepath.Base(dir), func(t *testing.T) {
+			var forests []*forest.Forest
+			for _, file := range []string{"model.json", "model.ubj"} {
+				r, err := Load(filepath.Join(dir, file), "", Options{})
+				require.NoError(t, err)
+				want := "xgboost-json"
+				if file == "model.ubj" {
+					want = "xgboost-ubjson"
+				}
+				require.Equal(t, want, r.Format)
+				forests = append(forests, r.Forest)
+			}
+			f := forests[0]
+			// the two encodings of one model give the same forest, but for
+			// the format named in the provenance
+			g := *forests[1]
+			g.Provenance = f.Provenance
+			require.True(t, reflect.DeepEqual(f, &g), "model.json and model.ubj read differently")
+			x := loadFixture(t, dir, f)
+			k := f.NumOutputs()
+			raw := make([]float64, k)
+			out := make([]float64, k)
+			bad, badOut := 0, 0
+			for i := 0; i < x.rows.Len(); i++ {
+				row := x.rows.Row(i)
+				f.PredictRaw(row, raw)
+				require.Len(t, x.margin[i], k, "row %d", i)
+				for j := range raw {
+					if math.Float64bits(raw[j]) != math.Float64bits(x.margin[i][j]) && bad < 5 {
+						t.Errorf("row %d (line %d) output %d: margin %v, XGBoost %v", i, x.rows.Line[i], j, raw[j], x.margin[i][j])
+					}
+				}
+				if !equalBits(raw, x.margin[i]) {
+					bad++
+				}
+				f.Predict(row, out)
+				if !predictionMatches(t, f, x.meta.Objective, out, raw, x.pred[i]) {
+					if badOut < 5 {
+						t.Errorf("row %d (line %d): outputs %v, XGBoost predicts %v", i, x.rows.Line[i], out, x.pred[i])
+					}
+					badOut++
+				}
+			}
+			require.Zero(t, bad, "rows whose margins differ from XGBoost's")
+			require.Zero(t, badOut, "rows whose predictions differ from XGBoost's")
+		})
+	}
+}
+
+func equalBits(a, b []float64) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if math.Float64bits(a[i]) != math.Float64bits(b[i]) {
+			return false
+		}
+	}
+	return true
+}
+
+// predictionMatches compares sawmill's outputs with what XGBoost's predict()
+// returned: bit for bit, except where XGBoost's prediction is not the model's
+// output (multi:softmax predicts the class, binary:hinge the 0/1 step).
+func predictionMatches(t *testing.T, f *forest.Forest, objective string, out, raw, want []float64) bool {
+	switch objective {
+	case "multi:softmax":
+		return len(want) == 1 && float64(f.ClassOf(out)) == want[0]
+	case "binary:hinge":
+		step := 0.0
+		if raw[0] > 0 {
+			step = 1
+		}
+		return len(want) == 1 && step == want[0]
+	}
+	return equalBits(out, want)
+}
