@@ -148,10 +148,11 @@ def probes(model_json, Xtest, cat_features, rng):
             r[feat] = v
             rows.append(r)
     for feat in cat_features:
-        for v in (-1.0, -0.5, -0.0, 0.5, 2.5, 2.999999, 9.0, 9.5, 10.0, 37.0, 1e6, 2.0**24, 2.0**31, 1e30):
-            r = base.copy()
-            r[feat] = v
-            rows.append(r)
+        for b in Xtest[:4]:  # several rows, so that many categorical splits are reached
+            for v in (-1.0, -0.5, -0.0, 0.5, 2.5, 2.999999, 9.0, 9.5, 10.0, 37.0, 1e6, 2.0**24, 2.0**31, 1e30):
+                r = np.nan_to_num(b, nan=0.0)
+                r[feat] = v
+                rows.append(r)
     return np.array(rows) if rows else np.empty((0, Xtest.shape[1]))
 
 

@@ -159,3 +159,46 @@ func predictionMatches(t *testing.T, f *forest.Forest, objective string, out, ra
 	}
 	return equalBits(out, want)
 }
+
+// TestXGBoostCategoryProbes checks that the categorical fixtures do test the
+// category edges: rows reach set splits with negative, fractional, unseen
+// (never trained) and huge (2^24 and above) values, which XGBoost sends to
+// the side of the categories it does not list.
+func TestXGBoostCategoryProbes(t *testing.T) {
+	for _, d := range []string{"x17_categorical", "x3_categorical"} {
+		dir := filepath.Join("testdata", "xgboost", d)
+		r, err := Load(filepath.Join(dir, "model.json"), "", Options{})
+		require.NoError(t, err)
+		f := r.Forest
+		x := loadFixture(t, dir, f)
+		hits := map[string]int{}
+		for i := 0; i < x.rows.Len(); i++ {
+			row := x.rows.Row(i)
+			for ti := range f.Trees {
+				tr := &f.Trees[ti]
+				for n := 0; tr.Left[n] != -1; {
+					if tr.IsSetSplit(n) {
+						switch v := forest.Round32(row[tr.Feature[n]]); {
+						case v < 0:
+							hits["negative"]++
+						case v >= 1<<24:
+							hits["huge"]++
+						case v != math.Trunc(v):
+							hits["fractional"]++
+						case v > 9: // bmi_decile takes 0 to 9 in training
+							hits["unseen"]++
+						}
+					}
+					if f.GoesLeft(tr, n, row) {
+						n = tr.Left[n]
+					} else {
+						n = tr.Right[n]
+					}
+				}
+			}
+		}
+		for _, k := range []string{"negative", "huge", "fractional", "unseen"} {
+			require.NotZero(t, hits[k], "%s: no row reaches a categorical split with a %s value", d, k)
+		}
+	}
+}
