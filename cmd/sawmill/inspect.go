@@ -35,6 +35,11 @@ Only nodes reachable from a tree's root are counted.`,
 			if err := runInspect(c.OutOrStdout(), args[0], asJSON); err != nil {
 				return err
 			}
+			if !asJSON {
+				if err := printSource(c.OutOrStdout(), args[0]); err != nil {
+					return err
+				}
+			}
 			if !cSizes {
 				return nil
 			}
