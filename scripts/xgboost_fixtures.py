@@ -287,12 +287,28 @@ def refused(out):
         mt.save_model(os.path.join(folder, "model.json"))
 
 
+def seed(out):
+    """A tiny categorical model (2 rounds of depth 2), the fuzz target's seed:
+    small inputs let the fuzzer mutate and minimise quickly."""
+    rng = np.random.default_rng(SEED)
+    X, y, names = diabetes_cat(rng)
+    kw = dict(feature_names=names, feature_types=["q"] * (X.shape[1] - 1) + ["c"], enable_categorical=True)
+    bst = xgb.train({"max_depth": 2, "nthread": 1, "tree_method": "hist", "max_cat_to_onehot": 1, "seed": 7},
+                    xgb.DMatrix(X[:, -3:], label=y, **dict(kw, feature_names=names[-3:], feature_types=kw["feature_types"][-3:])), 2)
+    folder = os.path.join(out, "seed_%s" % PREFIX)
+    os.makedirs(folder, exist_ok=True)
+    bst.save_model(os.path.join(folder, "model.json"))
+    bst.save_model(os.path.join(folder, "model.ubj"))
+
+
 def main():
     out = sys.argv[1] if len(sys.argv) > 1 else ROOT
     os.makedirs(out, exist_ok=True)
     for name, data, params, extra in cases():
         build(name, data, params, extra, out)
     refused(out)
+    if len(sys.argv) <= 1:
+        seed(out)
 
 
 if __name__ == "__main__":
