@@ -49,7 +49,7 @@ var (
 			if err != nil {
 				return nil, fmt.Errorf("%s: %w", name, err)
 			}
-			return readXGBoost(&doc, name, "xgboost-json", o)
+			return readXGBoost(&doc, len(data), name, "xgboost-json", o)
 		},
 	}
 	xgboostUBJSONFormat = Format{
@@ -61,7 +61,7 @@ var (
 			if err != nil {
 				return nil, fmt.Errorf("%s: %w", name, err)
 			}
-			return readXGBoost(&doc, name, "xgboost-ubjson", o)
+			return readXGBoost(&doc, len(data), name, "xgboost-ubjson", o)
 		},
 	}
 )
@@ -152,8 +152,8 @@ func xgbErr(name, format string, a ...any) error {
 	return fmt.Errorf("%s: %s", name, fmt.Sprintf(format, a...))
 }
 
-func readXGBoost(doc *xval, name, format string, o Options) (*Result, error) {
-	m, err := decodeXGB(doc, name)
+func readXGBoost(doc *xval, fileSize int, name, format string, o Options) (*Result, error) {
+	m, err := decodeXGB(doc, name, fileSize)
 	if err != nil {
 		return nil, err
 	}
@@ -228,7 +228,7 @@ func parseBaseScore(s string) ([]float32, error) {
 	return out, nil
 }
 
-func decodeXGB(doc *xval, name string) (*xgbModel, error) {
+func decodeXGB(doc *xval, name string, fileSize int) (*xgbModel, error) {
 	m := &xgbModel{best: -1}
 	if v := doc.get("version"); v != nil && v.nums != nil {
 		parts := make([]string, len(v.nums))
@@ -259,8 +259,11 @@ func decodeXGB(doc *xval, name string) (*xgbModel, error) {
 	if err != nil {
 		return nil, err
 	}
-	if m.numFeature == 0 || m.numFeature > 1<<24 {
-		return nil, xgbErr(name, "learner_model_param.num_feature is %d", m.numFeature)
+	// A model names or numbers every feature: allow many more features than
+	// the file has bytes only up to 2^16, so that a damaged count cannot
+	// make sawmill allocate far beyond the file's size.
+	if m.numFeature == 0 || m.numFeature > max(1<<16, 8*fileSize) {
+		return nil, xgbErr(name, "learner_model_param.num_feature is %d, out of proportion to the file", m.numFeature)
 	}
 	m.numOutput = max(numClass, numTarget, 1)
 	if m.numOutput > 1<<16 {
@@ -354,7 +357,7 @@ func decodeXGB(doc *xval, name string) (*xgbModel, error) {
 				break
 			}
 		}
-		if step > 0 {
+		if step >= 1 && step == math.Trunc(step) && step <= float64(nt) {
 			m.perRound = int(step)
 		}
 	}
