@@ -54,10 +54,10 @@ PREFIX = "x%d" % VERSION[0] if VERSION[0] >= 2 else "x%d%d" % VERSION
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "source", "testdata", "xgboost")
 
 SEED = 20240611
-ROUNDS = 6
+ROUNDS = 4
 DEPTH = 3
-HELD_OUT = 30  # held-out rows per model
-PROBED_SPLITS = 12  # numeric splits probed per model (7 rows each)
+HELD_OUT = 24  # held-out rows per model
+PROBED_SPLITS = 10  # numeric splits probed per model (7 rows each)
 NAN_SHARE = 0.08  # share of cells set to NaN
 
 
@@ -186,7 +186,7 @@ def cases():
     yield "rank_pairwise", diabetes, {"objective": "rank:pairwise"}, {"label": "grade", "qid": True}
     yield "rank_ndcg", diabetes, {"objective": "rank:ndcg"}, {"label": "grade", "qid": True}
     yield "rank_map", diabetes, {"objective": "rank:map"}, {"label": "binary", "qid": True}
-    yield "categorical", diabetes_cat, {"objective": "reg:squarederror", "tree_method": "hist", "max_cat_to_onehot": 1}, {"cat": True}
+    yield "categorical", diabetes_cat, {"objective": "reg:squarederror", "tree_method": "hist", "max_cat_to_onehot": 1}, {"cat": True, "rounds": 8}
     yield "categorical_onehot", diabetes_cat, {"objective": "reg:squarederror", "tree_method": "hist", "max_cat_to_onehot": 16}, {"cat": True}
     if VERSION >= (2, 0):
         yield "reg_quantileerror", diabetes, {"objective": "reg:quantileerror", "quantile_alpha": [0.1, 0.5, 0.9]}, {}

@@ -3,6 +3,7 @@ package source
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -140,7 +141,7 @@ func TestXGBoostOptions(t *testing.T) {
 	r, err := Decode(data, "m", "", Options{})
 	require.NoError(t, err)
 	require.Equal(t, []string{"0", "1", "2"}, r.Forest.Classes)
-	require.Len(t, r.Forest.Trees, 18)
+	require.Len(t, r.Forest.Trees, 12)
 
 	names := make([]string, len(r.Forest.Features))
 	for i := range names {
@@ -154,21 +155,33 @@ func TestXGBoostOptions(t *testing.T) {
 	require.Len(t, r.Forest.Trees, 6, "2 rounds of 3 classes")
 	require.True(t, r.Forest.HasMissingValue)
 	require.Equal(t, -999.0, r.Forest.MissingValue)
-	require.Contains(t, strings.Join(r.Notes, "\n"), "kept the first 2 of 6 rounds (--iterations)")
+	require.Contains(t, strings.Join(r.Notes, "\n"), "kept the first 2 of 4 rounds (--iterations)")
 
-	_, err = Decode(data, "m", "", Options{Iterations: 7})
-	require.EqualError(t, err, "m: --iterations 7, but the model has 6 rounds")
+	_, err = Decode(data, "m", "", Options{Iterations: 5})
+	require.EqualError(t, err, "m: --iterations 5, but the model has 4 rounds")
 	_, err = Decode(data, "m", "", Options{Classes: []string{"a"}})
 	require.EqualError(t, err, "m: --classes names 1 classes, the model has 3")
 
 	// early stopping: the file's best_iteration is honoured
+	var meta struct {
+		BestIteration int `json:"best_iteration"`
+	}
+	require.NoError(t, json.Unmarshal(xgbFile(t, "x3_early_stop", "meta.json"), &meta))
+	all, err := Decode(xgbFile(t, "x3_early_stop", "model.json"), "m", "", Options{Iterations: 1})
+	require.NoError(t, err)
+	total := 0
+	for _, n := range all.Notes {
+		fmt.Sscanf(n, "kept the first 1 of %d rounds", &total)
+	}
+	b := meta.BestIteration
+	require.Less(t, b+1, total, "the fixture stopped early")
 	r, err = Decode(xgbFile(t, "x3_early_stop", "model.json"), "m", "", Options{})
 	require.NoError(t, err)
-	require.Len(t, r.Forest.Trees, 8)
-	require.Contains(t, strings.Join(r.Notes, "\n"), "kept the first 8 of 10 rounds: the file's best_iteration is 7")
-	r, err = Decode(xgbFile(t, "x3_early_stop", "model.json"), "m", "", Options{Iterations: 10})
+	require.Len(t, r.Forest.Trees, b+1)
+	require.Contains(t, strings.Join(r.Notes, "\n"), fmt.Sprintf("kept the first %d of %d rounds: the file's best_iteration is %d", b+1, total, b))
+	r, err = Decode(xgbFile(t, "x3_early_stop", "model.json"), "m", "", Options{Iterations: total})
 	require.NoError(t, err)
-	require.Len(t, r.Forest.Trees, 10)
+	require.Len(t, r.Forest.Trees, total)
 
 	// num_parallel_tree: a round is 3 trees
 	r, err = Decode(xgbFile(t, "x3_parallel_tree", "model.json"), "m", "", Options{Iterations: 1})

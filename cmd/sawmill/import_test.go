@@ -21,7 +21,7 @@ func TestImportXGBoost(t *testing.T) {
 	code, stdout, errs := sawmill(t, "import", xgbFixture, "-o", out, "--iterations", "2", "--missing", "-999")
 	require.Equal(t, 0, code, errs)
 	require.Contains(t, stdout, "(xgboost-ubjson): 6 trees, 13 features, 3 outputs")
-	require.Contains(t, stdout, "kept the first 2 of 6 rounds (--iterations)")
+	require.Contains(t, stdout, "kept the first 2 of 4 rounds (--iterations)")
 
 	got, err := forest.ReadFile(out)
 	require.NoError(t, err)
