@@ -17,7 +17,7 @@ import (
 // the lower bound, else 0; NaN when only a missing value reaches the leaf.
 // For float32 models the values are float32 numbers.
 func LeafRows(f *forest.Forest, limit int) [][]float64 {
-	p := Lower(f)
+	p := lower(f)
 	f32 := p.Compare == Round32
 	var rows [][]float64
 	for ti := range p.Trees {
@@ -213,17 +213,7 @@ func Cover(f *forest.Forest, rows [][]float64) Coverage {
 
 // step is one step of forest.LeafIndex: the child of split i that x takes.
 func step(f *forest.Forest, t *forest.Tree, x []float64, i int) int {
-	v := x[t.Feature[i]]
-	if f.InputPrecision == forest.Float32 {
-		v = forest.Round32(v)
-	}
-	switch {
-	case math.IsNaN(v):
-		if t.MissingLeft[i] {
-			return t.Left[i]
-		}
-		return t.Right[i]
-	case v <= t.Threshold[i]:
+	if f.GoesLeft(t, i, x) {
 		return t.Left[i]
 	}
 	return t.Right[i]

@@ -47,7 +47,7 @@ Only nodes reachable from a tree's root are counted.`,
 			if err != nil {
 				return err
 			}
-			return printCSizes(c.Context(), c.OutOrStdout(), f)
+			return printCSizes(c.Context(), c.OutOrStdout(), args[0], f)
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
@@ -61,6 +61,9 @@ type stats struct {
 	depthMin, depthMax int
 	depthMean          float64
 	splits             []int // per feature, the number of splits that test it
+	// version 2: set splits, splits where zeros count as missing, trees
+	// that add to one output
+	setSplits, zeroMissing, outputTrees int
 }
 
 // forestStats walks every tree with an explicit stack: trees can be far too
@@ -84,9 +87,18 @@ func forestStats(f *forest.Forest) stats {
 				continue
 			}
 			st.splits[t.Feature[it.node]]++
+			if t.IsSetSplit(it.node) {
+				st.setSplits++
+			}
+			if t.ZeroMissing != nil && t.ZeroMissing[it.node] {
+				st.zeroMissing++
+			}
 			stack = append(stack, item{t.Right[it.node], it.depth + 1}, item{t.Left[it.node], it.depth + 1})
 		}
 		sum += deepest
+		if t.HasOutput {
+			st.outputTrees++
+		}
 		st.depthMax = max(st.depthMax, deepest)
 		if st.depthMin < 0 || deepest < st.depthMin {
 			st.depthMin = deepest
@@ -127,6 +139,17 @@ type inspectDoc struct {
 	InputPrecision forest.Precision `json:"input_precision"`
 	BaseScore      []float64        `json:"base_score"`
 	Provenance     json.RawMessage  `json:"provenance,omitempty"`
+	// Format version 2: the version a writer gives the model, the version 2
+	// keys in use and what they say.
+	FormatVersion  int                  `json:"format_version"`
+	V2             []string             `json:"v2_keys,omitempty"`
+	Accumulate     forest.Precision     `json:"accumulate,omitempty"`
+	TransformScale float64              `json:"transform_scale,omitempty"`
+	CategoryMatch  forest.CategoryMatch `json:"category_match,omitempty"`
+	MissingValue   *float64             `json:"missing_value,omitempty"`
+	SetSplits      int                  `json:"set_splits,omitempty"`
+	ZeroMissing    int                  `json:"zero_missing_splits,omitempty"`
+	OutputTrees    int                  `json:"per_output_trees,omitempty"`
 }
 
 func runInspect(w io.Writer, path string, asJSON bool) error {
@@ -146,6 +169,14 @@ func runInspect(w io.Writer, path string, asJSON bool) error {
 		Outputs: f.NumOutputs(), Classes: f.Classes,
 		Combine: f.Combine, Transform: f.Transform, InputPrecision: f.InputPrecision,
 		BaseScore: f.BaseScore, Provenance: f.Provenance,
+	}
+	doc.FormatVersion, doc.V2 = f.Version(), f.V2Constructs()
+	if doc.FormatVersion > 1 {
+		doc.Accumulate, doc.TransformScale, doc.CategoryMatch = f.Accumulate, f.Scale(), f.CategoryMatch
+		if f.HasMissingValue {
+			doc.MissingValue = &f.MissingValue
+		}
+		doc.SetSplits, doc.ZeroMissing, doc.OutputTrees = st.setSplits, st.zeroMissing, st.outputTrees
 	}
 	for i, name := range f.Features {
 		doc.Features = append(doc.Features, inspectFeature{Name: name, Splits: st.splits[i]})
@@ -185,6 +216,27 @@ func printInspect(w io.Writer, d *inspectDoc) error {
 	row("precision", "%s", d.InputPrecision)
 	if nonZero(d.BaseScore) {
 		row("base score", "%s", floatList(d.BaseScore))
+	}
+	if d.FormatVersion > 1 {
+		row("format", "version 2: %s", strings.Join(d.V2, ", "))
+		row("accumulate", "%s", d.Accumulate)
+		if d.TransformScale != 1 {
+			row("scale", "%s", num(d.TransformScale))
+		}
+		if d.SetSplits > 0 {
+			row("set splits", "%d, category_match %s", d.SetSplits, d.CategoryMatch)
+		} else if d.CategoryMatch != forest.MatchFloor {
+			row("category match", "%s (no set splits)", d.CategoryMatch)
+		}
+		if d.ZeroMissing > 0 {
+			row("zero missing", "%s where |x| <= %s counts as missing", plural(d.ZeroMissing, "split"), num(forest.ZeroMissingBound))
+		}
+		if d.MissingValue != nil {
+			row("missing value", "%s counts as missing in every input", num(*d.MissingValue))
+		}
+		if d.OutputTrees > 0 {
+			row("output trees", "%d of %d trees add to one output each", d.OutputTrees, d.Trees)
+		}
 	}
 	row("features", "%d, %d used", len(d.Features), d.FeaturesUsed)
 	if err := tw.Flush(); err != nil {
