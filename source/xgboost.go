@@ -190,13 +190,19 @@ func intField(v *xval, name, what string, def int) (int, error) {
 	return n, nil
 }
 
-// ints converts an array member of a tree to ints in [lo, hi).
-func ints(v *xval, n int, at, key string, lo, hi int) ([]int, error) {
+// ints converts an array member of n entries to ints in [lo, hi). perNode
+// says the array has an entry per node of a tree (messages then name the
+// node); otherwise they name the entry.
+func ints(v *xval, n int, at, key string, lo, hi int, perNode bool) ([]int, error) {
 	if v == nil || v.k != xArr {
 		return nil, fmt.Errorf("%s: %q is missing or not an array", at, key)
 	}
 	if v.length() != n {
-		return nil, fmt.Errorf("%s: %q has %d entries, the tree has %d nodes", at, key, v.length(), n)
+		want := fmt.Sprintf("%d", n)
+		if perNode {
+			want = fmt.Sprintf("one per node, %d", n)
+		}
+		return nil, fmt.Errorf("%s: %q has %d entries, want %s", at, key, v.length(), want)
 	}
 	if v.nums == nil {
 		return nil, fmt.Errorf("%s: %q holds something other than numbers", at, key)
@@ -204,7 +210,10 @@ func ints(v *xval, n int, at, key string, lo, hi int) ([]int, error) {
 	out := make([]int, n)
 	for i, f := range v.nums {
 		if f != math.Trunc(f) || f < float64(lo) || f >= float64(hi) {
-			return nil, fmt.Errorf("%s, node %d: %s is %v, outside [%d, %d)", at, i, key, f, lo, hi)
+			if perNode {
+				return nil, fmt.Errorf("%s, node %d: %s is %v, outside [%d, %d)", at, i, key, f, lo, hi)
+			}
+			return nil, fmt.Errorf("%s: %s[%d] is %v, outside [%d, %d)", at, key, i, f, lo, hi)
 		}
 		out[i] = int(f)
 	}
@@ -343,7 +352,7 @@ func decodeXGB(doc *xval, name string, fileSize int) (*xgbModel, error) {
 	if ti.length() != nt {
 		return nil, xgbErr(name, "tree_info has %d entries for %d trees", ti.length(), nt)
 	}
-	if m.treeInfo, err = ints(ti, nt, name, "tree_info", 0, m.numOutput); err != nil {
+	if m.treeInfo, err = ints(ti, nt, name, "tree_info", 0, m.numOutput, false); err != nil {
 		return nil, err
 	}
 	m.perRound = max(npt, 1) * m.numOutput
@@ -398,13 +407,13 @@ func (m *xgbModel) tree(v *xval, ti int, name string) error {
 	}
 	t := &m.trees[ti]
 	var err error
-	if t.left, err = ints(v.get("left_children"), n, at, "left_children", -1, n); err != nil {
+	if t.left, err = ints(v.get("left_children"), n, at, "left_children", -1, n, true); err != nil {
 		return err
 	}
-	if t.right, err = ints(v.get("right_children"), n, at, "right_children", -1, n); err != nil {
+	if t.right, err = ints(v.get("right_children"), n, at, "right_children", -1, n, true); err != nil {
 		return err
 	}
-	if t.feature, err = ints(v.get("split_indices"), n, at, "split_indices", 0, 1<<31); err != nil {
+	if t.feature, err = ints(v.get("split_indices"), n, at, "split_indices", 0, 1<<31, true); err != nil {
 		return err
 	}
 	conds := v.get("split_conditions")
@@ -435,19 +444,19 @@ func (m *xgbModel) tree(v *xval, ti int, name string) error {
 	if st == nil || st.length() == 0 {
 		return nil // 1.x before categorical support: every split numeric
 	}
-	types, err := ints(st, n, at, "split_type", 0, 2)
+	types, err := ints(st, n, at, "split_type", 0, 2, true)
 	if err != nil {
 		return err
 	}
-	nodes, err := ints(v.get("categories_nodes"), v.get("categories_nodes").length(), at, "categories_nodes", 0, n)
+	nodes, err := ints(v.get("categories_nodes"), v.get("categories_nodes").length(), at, "categories_nodes", 0, n, false)
 	if err != nil {
 		return err
 	}
-	segs, err := ints(v.get("categories_segments"), len(nodes), at, "categories_segments", 0, math.MaxInt32)
+	segs, err := ints(v.get("categories_segments"), len(nodes), at, "categories_segments", 0, math.MaxInt32, false)
 	if err != nil {
 		return err
 	}
-	sizes, err := ints(v.get("categories_sizes"), len(nodes), at, "categories_sizes", 0, math.MaxInt32)
+	sizes, err := ints(v.get("categories_sizes"), len(nodes), at, "categories_sizes", 0, math.MaxInt32, false)
 	if err != nil {
 		return err
 	}
