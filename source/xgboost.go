@@ -16,7 +16,7 @@ import (
 // document {"learner": {...}, "version": [major, minor, patch]} with the
 // objective, the booster (gbtree, dart, or gblinear, which has no trees) and
 // its trees as parallel arrays. What follows was established by predicting
-// with the library (xgboost 1.7.4 and 3.2.0; see scripts/xgboost_fixtures.py
+// with the library (xgboost 1.7.4, 2.1.4 and 3.2.0; see scripts/xgboost_fixtures.py
 // and the fixtures under testdata/xgboost) rather than from its documentation:
 //
 //   - A numeric split sends x left when float32(x) < split_condition, in

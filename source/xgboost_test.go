@@ -16,7 +16,7 @@ import (
 )
 
 // The fixtures under testdata/xgboost were made by scripts/xgboost_fixtures.py
-// with XGBoost itself (1.7.4, Debian's python3-xgboost, in x17_*; 3.2.0 from
+// with XGBoost itself (1.7.4, Debian's python3-xgboost, in x17_*; 2.1.4 in x2_*; 3.2.0 from
 // the Python package index in x3_*). Each holds the saved model, rows, and
 // the library's own margins and predictions.
 
