@@ -40,31 +40,26 @@ import (
 
 // Formats read by this file.
 var (
-	xgboostJSONFormat = Format{
-		Name:     "xgboost-json",
-		Describe: "XGBoost's JSON model file (Booster.save_model(\"model.json\"), versions 1.x to 3.x)",
-		Detect:   detectXGBJSON,
-		Read: func(data []byte, name string, o Options) (*Result, error) {
-			doc, err := parseXGBJSON(data)
-			if err != nil {
-				return nil, fmt.Errorf("%s: %w", name, err)
-			}
-			return readXGBoost(&doc, len(data), name, "xgboost-json", o)
-		},
-	}
-	xgboostUBJSONFormat = Format{
-		Name:     "xgboost-ubjson",
-		Describe: "XGBoost's UBJSON model file (Booster.save_model(\"model.ubj\"), versions 1.6 to 3.x)",
-		Detect:   detectXGBUBJSON,
-		Read: func(data []byte, name string, o Options) (*Result, error) {
-			doc, err := parseUBJSON(data)
-			if err != nil {
-				return nil, fmt.Errorf("%s: %w", name, err)
-			}
-			return readXGBoost(&doc, len(data), name, "xgboost-ubjson", o)
-		},
-	}
+	xgboostJSONFormat = xgbFormat("xgboost-json",
+		"XGBoost's JSON model file (Booster.save_model(\"model.json\"), versions 1.x to 3.x)",
+		detectXGBJSON, parseXGBJSON)
+	xgboostUBJSONFormat = xgbFormat("xgboost-ubjson",
+		"XGBoost's UBJSON model file (Booster.save_model(\"model.ubj\"), versions 1.6 to 3.x)",
+		detectXGBUBJSON, parseUBJSON)
 )
+
+// xgbFormat is the Format of one encoding of XGBoost's model document.
+func xgbFormat(name, describe string, detect func([]byte) bool, parse func([]byte) (xval, error)) Format {
+	return Format{Name: name, Describe: describe, Detect: detect,
+		Read: func(data []byte, file string, o Options) (*Result, error) {
+			doc, err := parse(data)
+			if err != nil {
+				return nil, fmt.Errorf("%s: %w", file, err)
+			}
+			return readXGBoost(&doc, len(data), file, name, o)
+		},
+	}
+}
 
 // detectXGBJSON accepts a JSON object whose first key is "learner" or
 // "version", the two top-level keys of every XGBoost model document.
