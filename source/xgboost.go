@@ -532,6 +532,9 @@ func (m *xgbModel) forest(name, format string, o Options) (*Result, error) {
 		Accumulate:     forest.Float32,
 		Combine:        forest.Sum,
 		Transform:      obj.transform,
+		// XGBoost takes a category as the integer part of a value >= 0
+		// below 2^24 and treats every other value as unlisted: floor.
+		CategoryMatch: forest.MatchFloor,
 	}
 	if f.Transform == "" {
 		f.Transform = forest.NoTransform
