@@ -472,8 +472,11 @@ func (m *xgbModel) tree(v *xval, ti int, name string) error {
 		}
 		list := make([]int32, 0, hi-lo)
 		for _, c := range all.nums[lo:hi] {
-			if c != math.Trunc(c) || c < 0 || c >= forest.MaxCategory {
-				return fmt.Errorf("%s, node %d: category %v is not an integer in [0, 2^31)", at, node, c)
+			// XGBoost treats an input of 2^24 or more as no category at
+			// all, so a listed category must lie below it (and floor
+			// matching then agrees with XGBoost on every input).
+			if c != math.Trunc(c) || c < 0 || c >= 1<<24 {
+				return fmt.Errorf("%s, node %d: category %v is not an integer in [0, 2^24)", at, node, c)
 			}
 			if len(list) > 0 && int32(c) <= list[len(list)-1] {
 				return fmt.Errorf("%s, node %d: categories are not sorted and distinct (%v after %d)", at, node, c, list[len(list)-1])
