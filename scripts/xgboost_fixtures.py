@@ -176,6 +176,7 @@ def cases():
     yield "binary_hinge", cancer, {"objective": "binary:hinge"}, {}
     yield "binary_logistic_base", cancer, {"objective": "binary:logistic", "base_score": 0.3}, {}
     yield "dart", cancer, {"objective": "binary:logistic", "booster": "dart", "rate_drop": 0.3, "skip_drop": 0.0}, {}
+    yield "missing_sentinel", cancer, {"objective": "binary:logistic"}, {"missing": -999.0}
     yield "early_stop", cancer, {"objective": "binary:logistic", "eta": 0.6}, {"early_stopping": True}
     yield "parallel_tree", cancer, {"objective": "binary:logistic", "num_parallel_tree": 3, "subsample": 0.7, "colsample_bynode": 0.7}, {"rounds": 3}
     yield "multi_softprob", wine, {"objective": "multi:softprob", "num_class": 3}, {}
@@ -223,6 +224,11 @@ def build(name, data, params, extra, out):
         ft = ["q"] * (X.shape[1] - 1) + ["c"]
         cat_features = [X.shape[1] - 1]
     kw = dict(feature_names=names)
+    if "missing" in extra:  # missing cells marked by a sentinel, as XGBoost users do with missing=-999
+        X = np.where(np.isnan(X), extra["missing"], X)
+        Xtr = np.where(np.isnan(Xtr), extra["missing"], Xtr)
+        Xte = np.where(np.isnan(Xte), extra["missing"], Xte)
+        kw["missing"] = extra["missing"]
     if ft:
         kw.update(feature_types=ft, enable_categorical=True)
     dtrain = xgb.DMatrix(Xtr, label=ytr, **kw)
@@ -267,6 +273,7 @@ def build(name, data, params, extra, out):
         "objective": p["objective"],
         "booster": p.get("booster", "gbtree"),
         "best_iteration": best,
+        "missing": extra.get("missing"),
         "params": {k: v for k, v in sorted(p.items()) if k not in ("nthread",)},
     }
     with open(os.path.join(folder, "meta.json"), "w") as fh:

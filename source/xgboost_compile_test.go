@@ -18,7 +18,7 @@ import (
 func TestXGBoostCompiles(t *testing.T) {
 	for _, dir := range xgbFixtures(t) {
 		t.Run(filepath.Base(dir), func(t *testing.T) {
-			r, err := Load(filepath.Join(dir, "model.json"), "", Options{})
+			r, err := Load(filepath.Join(dir, "model.json"), "", Options{Missing: readMeta(t, dir).Missing})
 			require.NoError(t, err)
 			f := r.Forest
 			p, _, err := compile.Compile(f, compile.Options{})

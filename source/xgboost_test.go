@@ -20,9 +20,24 @@ import (
 // the Python package index in x3_*). Each holds the saved model, rows, and
 // the library's own margins and predictions.
 
+// xgbMeta is a fixture's meta.json: what the script trained and how it
+// predicted (Missing: the sentinel passed to XGBoost as missing=, if any).
+type xgbMeta struct {
+	Objective, Xgboost string
+	Missing            *float64
+}
+
+func readMeta(t *testing.T, dir string) xgbMeta {
+	var m xgbMeta
+	data, err := os.ReadFile(filepath.Join(dir, "meta.json"))
+	require.NoError(t, err)
+	require.NoError(t, json.Unmarshal(data, &m))
+	return m
+}
+
 type xgbFixture struct {
 	dir    string
-	meta   struct{ Objective, Xgboost string }
+	meta   xgbMeta
 	rows   *forest.Rows
 	margin [][]float64
 	pred   [][]float64
@@ -71,10 +86,8 @@ func readFloats(t *testing.T, path string) [][]float64 {
 }
 
 func loadFixture(t *testing.T, dir string, f *forest.Forest) *xgbFixture {
-	x := &xgbFixture{dir: dir}
-	data, err := os.ReadFile(filepath.Join(dir, "meta.json"))
-	require.NoError(t, err)
-	require.NoError(t, json.Unmarshal(data, &x.meta))
+	x := &xgbFixture{dir: dir, meta: readMeta(t, dir)}
+	var err error
 	x.rows, err = forest.ReadRowsFile(filepath.Join(dir, "rows.csv"), f.Features, forest.RowOptions{})
 	require.NoError(t, err)
 	x.margin = readFloats(t, filepath.Join(dir, "margins.csv"))
@@ -93,7 +106,7 @@ func TestXGBoostFixtures(t *testing.T) {
 		t.Run(filepath.Base(dir), func(t *testing.T) {
 			var forests []*forest.Forest
 			for _, file := range []string{"model.json", "model.ubj"} {
-				r, err := Load(filepath.Join(dir, file), "", Options{})
+				r, err := Load(filepath.Join(dir, file), "", Options{Missing: readMeta(t, dir).Missing})
 				require.NoError(t, err)
 				want := "xgboost-json"
 				if file == "model.ubj" {
