@@ -16,6 +16,7 @@ XGBoost release that changes its file format or a formula is caught.
 """
 
 import csv
+import json
 import math
 import os
 import re
@@ -42,10 +43,21 @@ def main():
             if not name.startswith("x") or not os.path.isfile(os.path.join(folder, "margins.csv")):
                 continue
             want = read_floats(os.path.join(folder, "margins.csv"))
+            with open(os.path.join(folder, "meta.json")) as fh:
+                missing = json.load(fh).get("missing")
             for model in ("model.json", "model.ubj"):
-                out = subprocess.run([exe, "predict", "--raw", os.path.join(folder, model), os.path.join(folder, "rows.csv")],
-                                     capture_output=True, text=True)
-                problem = out.stderr.strip() if out.returncode else compare(want, parse_floats(out.stdout))
+                path = os.path.join(folder, model)
+                problem = ""
+                if missing is not None:  # predicted with missing=V: say so through sawmill import
+                    imported = os.path.join(folder, model + ".sawmill.json")
+                    out = subprocess.run([exe, "import", path, "-o", imported, "--missing", repr(missing)],
+                                         capture_output=True, text=True)
+                    problem = out.stderr.strip() if out.returncode else ""
+                    path = imported
+                if not problem:
+                    out = subprocess.run([exe, "predict", "--raw", path, os.path.join(folder, "rows.csv")],
+                                         capture_output=True, text=True)
+                    problem = out.stderr.strip() if out.returncode else compare(want, parse_floats(out.stdout))
                 print("%s predict --raw %s/%s%s" % ("fail" if problem else "pass", name, model, ": " + problem if problem else ""))
                 if problem:
                     failed += 1
