@@ -30,7 +30,8 @@ Datasets, all shipped inside scikit-learn (no download):
 
 In each folder <prefix>_<name>/:
 
-- model.json, model.ubj   the booster as XGBoost saves it (JSON and UBJSON)
+- model.json, model.ubj   the booster as XGBoost saves it (JSON, and UBJSON
+                          for the cases in UBJ_CASES, to keep the files small)
 - rows.csv                the features: held-out rows (some cells NaN), then
                           probe rows putting one split's feature at, just
                           below and just above its threshold in float32 and
@@ -248,7 +249,8 @@ def build(name, data, params, extra, out):
     folder = os.path.join(out, "%s_%s" % (PREFIX, name))
     os.makedirs(folder, exist_ok=True)
     bst.save_model(os.path.join(folder, "model.json"))
-    bst.save_model(os.path.join(folder, "model.ubj"))
+    if name in UBJ_CASES:
+        bst.save_model(os.path.join(folder, "model.ubj"))
     with open(os.path.join(folder, "model.json")) as fh:
         # XGBoost writes a bare NaN at categorical splits (1.x); Python reads it
         mj = json.load(fh)
@@ -313,6 +315,11 @@ def seed(out):
     bst.save_model(os.path.join(folder, "model.json"))
     bst.save_model(os.path.join(folder, "model.ubj"))
 
+
+# The cases also saved as UBJSON: every construct the binary form must carry
+# (per-class trees, categories, dart weights, vector base scores, attributes).
+UBJ_CASES = {"binary_logistic", "multi_softprob", "categorical", "dart", "reg_quantileerror", "early_stop",
+             "count_poisson", "missing_sentinel"}
 
 # XGBoost 2.x: the cases where the stored base score and its link matter,
 # plus categorical splits, dart and several quantiles, to keep the committed

@@ -47,6 +47,8 @@ def main():
                 missing = json.load(fh).get("missing")
             for model in ("model.json", "model.ubj"):
                 path = os.path.join(folder, model)
+                if not os.path.exists(path):
+                    continue
                 problem = ""
                 if missing is not None:  # predicted with missing=V: say so through sawmill import
                     imported = os.path.join(folder, model + ".sawmill.json")
