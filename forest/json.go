@@ -288,12 +288,18 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 	var d fileDoc
 	if msg := decodeStrict(data, &d, fileKeys); msg != "" {
 		// A file of a newer version may have keys this reader does not
-		// know: say that its version is the problem.
+		// know: say that its version is the problem; and a JSON file of
+		// another kind is no forest at all.
 		var v struct {
 			Version json.RawMessage `json:"sawmill_forest"`
 		}
-		if json.Unmarshal(data, &v) == nil && v.Version != nil && !knownVersion(v.Version) {
-			return nil, unsupportedVersion(name, v.Version)
+		if json.Unmarshal(data, &v) == nil {
+			switch {
+			case v.Version == nil:
+				return nil, fmt.Errorf("%s: missing \"sawmill_forest\": not a sawmill forest file", name)
+			case !knownVersion(v.Version):
+				return nil, unsupportedVersion(name, v.Version)
+			}
 		}
 		return nil, fmt.Errorf("%s: %s", name, msg)
 	}

@@ -108,6 +108,8 @@ func TestUnknownKeys(t *testing.T) {
 	_, err = mustDecode(t, `{"sawmill_forest":1,"task":"regression","features":["a"],"trees":[`+stump2(``, "[1]", "[2]")+`]} {}`)
 	require.Error(t, err)
 	assert.Contains(t, err.Error(), "m.json: line 1, column")
+	_, err = mustDecode(t, `{"snapshot":true}`)
+	assert.EqualError(t, err, `m.json: missing "sawmill_forest": not a sawmill forest file`)
 	// Keys are found past strings holding quotes, brackets and commas, and
 	// compared after unescaping.
 	_, err = mustDecode(t, `{"sawmill_forest":1,"\u0074ask":"regression","features":["a\"}],{[\\"],"provenance":{"x":"}"},`+
