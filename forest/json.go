@@ -466,11 +466,12 @@ func treeFromDoc(td *treeDoc, ti, w int, name string, p *Problems) (Tree, map[in
 	if td.MissingLeft == nil {
 		td.MissingLeft = make([]bool, n)
 	}
-	lens := []struct {
+	type arrayLen struct {
 		key string
 		n   int
-		nil bool
-	}{
+		nil bool // the key is absent, and required
+	}
+	lens := []arrayLen{
 		{"feature", len(td.Feature), td.Feature == nil},
 		{"threshold", len(td.Threshold), td.Threshold == nil},
 		{"right", len(td.Right), td.Right == nil},
@@ -478,18 +479,10 @@ func treeFromDoc(td *treeDoc, ti, w int, name string, p *Problems) (Tree, map[in
 		{"value", len(td.Value), td.Value == nil},
 	}
 	if td.Categories != nil {
-		lens = append(lens, struct {
-			key string
-			n   int
-			nil bool
-		}{"categories", len(td.Categories), false})
+		lens = append(lens, arrayLen{"categories", len(td.Categories), false})
 	}
 	if td.ZeroMissing != nil {
-		lens = append(lens, struct {
-			key string
-			n   int
-			nil bool
-		}{"zero_missing", len(td.ZeroMissing), false})
+		lens = append(lens, arrayLen{"zero_missing", len(td.ZeroMissing), false})
 	}
 	if td.Left == nil {
 		p.Add("%s: tree %d: missing \"left\"", name, ti)
