@@ -24,7 +24,11 @@ func newInspectCmd() *cobra.Command {
 		Long: `Read and validate a model file and describe it: the number of trees,
 nodes and leaves, tree depths, which features the splits use and how often,
 the outputs and classes, how trees are combined, the output transform, the
-input precision, the provenance, and the file size.
+input precision, the provenance, and the file size. For a model of format
+version 2 it also names the version 2 keys in use and what they say: the
+accumulation precision, the transform scale, set splits and their category
+rule, splits where zeros count as missing, the missing-value sentinel, and
+the trees that add to one output.
 
 Only nodes reachable from a tree's root are counted.`,
 		Example: `  sawmill inspect pump-health.json
