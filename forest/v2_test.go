@@ -12,8 +12,8 @@ import (
 	"github.com/stretchr/testify/require"
 )
 
-// The rules of "Format version 2" in ../shared/forest-format.md (the
-// project's copy: docs/forest-format.md), one table per rule.
+// The rules of "Format version 2" in docs/forest-format.md, one table per
+// rule.
 
 const v2head = `"sawmill_forest":2,"task":"regression","features":["a","b"],`
 
@@ -108,6 +108,14 @@ func TestUnknownKeys(t *testing.T) {
 	_, err = mustDecode(t, `{"sawmill_forest":1,"task":"regression","features":["a"],"trees":[`+stump2(``, "[1]", "[2]")+`]} {}`)
 	require.Error(t, err)
 	assert.Contains(t, err.Error(), "m.json: line 1, column")
+	_, err = mustDecode(t, `{"snapshot":true}`)
+	assert.EqualError(t, err, `m.json: missing "sawmill_forest": not a sawmill forest file`)
+	// Keys are found past strings holding quotes, brackets and commas, and
+	// compared after unescaping.
+	_, err = mustDecode(t, `{"sawmill_forest":1,"\u0074ask":"regression","features":["a\"}],{[\\"],"provenance":{"x":"}"},`+
+		"\n"+` "trees":[`+stump2(``, "[1]", "[2]")+`], "comb\"ine" : "sum"}`)
+	require.Error(t, err)
+	assert.Equal(t, `m.json: unknown key "comb\"ine"`+"\nhint: did you mean \"combine\"?", err.Error())
 }
 
 // route builds a one-split model on feature 0 and reports whether x goes

@@ -66,6 +66,8 @@ type Format struct {
 func Formats() []Format {
 	return []Format{
 		sawmillFormat,
+		xgboostJSONFormat,
+		xgboostUBJSONFormat,
 		lightgbmFormat,
 	}
 }

@@ -24,7 +24,11 @@ func newInspectCmd() *cobra.Command {
 		Long: `Read and validate a model file and describe it: the number of trees,
 nodes and leaves, tree depths, which features the splits use and how often,
 the outputs and classes, how trees are combined, the output transform, the
-input precision, the provenance, and the file size.
+input precision, the provenance, and the file size. For a model of format
+version 2 it also names the version 2 keys in use and what they say: the
+accumulation precision, the transform scale, set splits and their category
+rule, splits where zeros count as missing, the missing-value sentinel, and
+the trees that add to one output.
 
 Only nodes reachable from a tree's root are counted.`,
 		Example: `  sawmill inspect pump-health.json
@@ -34,6 +38,11 @@ Only nodes reachable from a tree's root are counted.`,
 		RunE: func(c *cobra.Command, args []string) error {
 			if err := runInspect(c.OutOrStdout(), args[0], asJSON); err != nil {
 				return err
+			}
+			if !asJSON {
+				if err := printSource(c.OutOrStdout(), args[0]); err != nil {
+					return err
+				}
 			}
 			if !cSizes {
 				return nil

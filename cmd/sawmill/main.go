@@ -22,6 +22,7 @@ var commands = []func() *cobra.Command{
 	newCompileCmd,
 	newVerifyCmd,
 	newDemoCmd,
+	newImportCmd,
 }
 
 // Exit codes.
