@@ -55,19 +55,11 @@ func (sqlRunner) Variants() []string { return []string{"", "ansi"} }
 
 func (sqlRunner) CompileOptions(string) compile.Options { return compile.Options{} }
 
-// Tolerance: sums, divisions and comparisons are IEEE double operations in
-// the same order as the interpreter's, so a model without a transform must
-// match bit for bit. EXP is the engine's C library exp, which differs from
-// Go's math.Exp by one ulp on about 14% of arguments (measured in
-// TestSQLExp), so logistic and softmax outputs are held within
-// (k+4)·2^-52 for k outputs: each exp contributes at most one ulp
-// (2^-53 relative), the softmax sum adds at most k of them, and outputs are
-// at most 1.
+// Tolerance is sqlemit.Tolerance: bit for bit without a transform, within
+// (k+4)·2^-52 under logistic or softmax (the engine's EXP).
 func (sqlRunner) Tolerance(_ string, p *compile.Program) (bool, float64) {
-	if p.Transform == forest.NoTransform {
-		return true, 0
-	}
-	return false, float64(p.NumOutputs+4) * 0x1p-52
+	b := sqlemit.Tolerance(p)
+	return b == 0, b
 }
 
 func (r sqlRunner) dialect(variant string) sqlemit.Dialect {
@@ -606,6 +598,13 @@ func shorten(err error) error {
 	}
 	return err
 }
+
+// WithMaxNest returns the runner with every statement's CASE nesting held
+// to n (sql.Options.MaxNest).
+func (r sqlRunner) WithMaxNest(n int) Runner { r.maxNest = n; return r }
+
+// WithMaxNest: see sqlRunner.WithMaxNest.
+func (r sqliteRunner) WithMaxNest(n int) Runner { r.maxNest = n; return r }
 
 // SQLRunner returns the runner for engine "sqlite", "duckdb" or
 // "postgres" (for benchmarks and the command line).
