@@ -13,25 +13,7 @@ import (
 	"sawmill/compile"
 	"sawmill/emit"
 	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
 )
-
-// SelftestProbes is what `sawmill compile --selftest` hands sql.Selftest:
-// the rows verify generates (ProbeRows) with the interpreter's outputs.
-func selftestProbes(f *forest.Forest) []sqlemit.Probe {
-	leaves, thresholds, _ := ProbeRows(f, DefaultMaxRows)
-	var out []sqlemit.Probe
-	for _, x := range append(leaves, thresholds...) {
-		want := make([]float64, f.NumOutputs())
-		f.Predict(x, want)
-		pr := sqlemit.Probe{X: x, Want: want, Class: -1}
-		if f.IsClassifier() {
-			pr.Class = f.ClassOf(want)
-		}
-		out = append(out, pr)
-	}
-	return out
-}
 
 // splitScript cuts a script into statements at semicolons outside string
 // literals, delimited identifiers and comments.
@@ -135,7 +117,7 @@ func TestSQLSelftest(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		probes := selftestProbes(c.Model)
+		probes := SelftestProbes(c.Model)
 		for _, r := range sqlEngineRunners {
 			for _, variant := range allSQLVariants {
 				shell := isShell(variant)
