@@ -32,7 +32,8 @@ import (
 // Full set (c_test.go runs every golden case so) it uses cMatrix, gcc and
 // clang at -std=c99 and -std=c11 and -O0 and -O2 plus a gcc build with
 // -fsanitize=address,undefined and a C++ compile of the header, or, above
-// cFullMatrixNodes nodes, cBigMatrix.
+// cFullMatrixNodes nodes, cBigMatrix. On a machine with one C compiler the
+// builds are done with that one (cBuilds), and Result.Tool says which.
 type cRunner struct {
 	Full bool
 }

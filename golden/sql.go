@@ -459,7 +459,14 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 			text = "SELECT * FROM " + quoteIdent(o.Schema) + "." + quoteIdent(o.View)
 		}
 	}
-	return db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
+	res, err := db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
+	if err == nil && r.engine == "sqlite" {
+		var v string
+		if db.conn.QueryRowContext(ctx, "SELECT sqlite_version()").Scan(&v) == nil {
+			res.Tool = "SQLite " + v + " embedded in sawmill (modernc.org/sqlite)"
+		}
+	}
+	return res, err
 }
 
 // run prepares and runs the statement and reads the result: n rows and
