@@ -87,7 +87,7 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 	// compiled one by one and 14 s in unity files. That each .c compiles on
 	// its own, which a unity file could hide (an #include another model's
 	// file supplies), is checked for the jobs that are not Light.
-	matrix := cQuickMatrix
+	matrix := cBuilds(cQuickMatrix)
 	units := chunk(models, runtime.NumCPU())
 	for c, u := range units {
 		var b strings.Builder

@@ -10,6 +10,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
 	"sync"
@@ -31,7 +32,8 @@ import (
 // Full set (c_test.go runs every golden case so) it uses cMatrix, gcc and
 // clang at -std=c99 and -std=c11 and -O0 and -O2 plus a gcc build with
 // -fsanitize=address,undefined and a C++ compile of the header, or, above
-// cFullMatrixNodes nodes, cBigMatrix.
+// cFullMatrixNodes nodes, cBigMatrix. On a machine with one C compiler the
+// builds are done with that one (cBuilds), and Result.Tool says which.
 type cRunner struct {
 	Full bool
 }
@@ -126,24 +128,95 @@ func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, 
 
 var cToolsOnce struct {
 	sync.Once
-	err error
+	err     error
+	version map[string]string // compiler on PATH -> first line of its --version
 }
 
-// cTools checks that the compilers are installed; ErrSkip when they are not.
+// cTools checks that a C compiler is installed: any one of gcc, clang and
+// cc is enough (the builds of the matrices that need another are done with
+// it instead, see cBuilds), and g++, which checks the header as C++, is
+// used when present. With SAWMILL_REQUIRE_ENGINES set (CI), gcc, clang and
+// g++ must all be there, so the full matrix never shrinks unseen. ErrSkip
+// when there is no compiler.
 func cTools() error {
 	cToolsOnce.Do(func() {
+		cToolsOnce.version = map[string]string{}
 		var missing []string
-		for _, t := range []string{"gcc", "clang", "g++"} {
-			if _, err := exec.LookPath(t); err != nil {
+		for _, t := range []string{"gcc", "clang", "cc", "g++"} {
+			path, err := exec.LookPath(t)
+			if err != nil {
 				missing = append(missing, t)
+				continue
 			}
+			out, _ := exec.Command(path, "--version").Output()
+			v, _, _ := strings.Cut(string(out), "\n")
+			cToolsOnce.version[t] = strings.TrimSpace(v)
 		}
-		if len(missing) > 0 {
-			cToolsOnce.err = fmt.Errorf("%w: %s not on PATH", ErrSkip, strings.Join(missing, ", "))
+		_, gcc := cToolsOnce.version["gcc"]
+		_, clang := cToolsOnce.version["clang"]
+		_, cc := cToolsOnce.version["cc"]
+		_, cxx := cToolsOnce.version["g++"]
+		switch {
+		case os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" && !(gcc && clang && cxx):
+			cToolsOnce.err = fmt.Errorf("SAWMILL_REQUIRE_ENGINES is set and the full C matrix needs gcc, clang and g++; missing: %s", strings.Join(missing, ", "))
+		case !gcc && !clang && !cc:
+			cToolsOnce.err = fmt.Errorf("%w: no C compiler on PATH (tried gcc, clang, cc)", ErrSkip)
 		}
 	})
 	return cToolsOnce.err
 }
+
+// cBuilds is matrix with the compilers this machine has: builds whose
+// compiler is missing are done with the first of gcc, clang and cc present
+// (the sanitizer build, which needs gcc's or clang's runtime, only by
+// clang), duplicates dropped. cTools must have succeeded.
+func cBuilds(matrix []cBuild) []cBuild {
+	have := cToolsOnce.version
+	var out []cBuild
+	for _, b := range matrix {
+		if _, ok := have[b.cc]; !ok {
+			switch _, clang := have["clang"]; {
+			case b.sanitize && clang:
+				b.cc = "clang"
+			case b.sanitize:
+				continue
+			default:
+				b.cc = firstPresent(have, "gcc", "clang", "cc")
+			}
+		}
+		if !slices.Contains(out, b) {
+			out = append(out, b)
+		}
+	}
+	return out
+}
+
+func firstPresent(have map[string]string, names ...string) string {
+	for _, n := range names {
+		if _, ok := have[n]; ok {
+			return n
+		}
+	}
+	panic("BUG: cBuilds without a C compiler")
+}
+
+// cToolNote names the compilers of builds, with their versions, for
+// Result.Tool.
+func cToolNote(builds []cBuild, cxx bool) string {
+	var names []string
+	for _, b := range builds {
+		if n := b.cc + ": " + cToolsOnce.version[b.cc]; !slices.Contains(names, n) {
+			names = append(names, n)
+		}
+	}
+	if cxx {
+		names = append(names, "g++: "+cToolsOnce.version["g++"])
+	}
+	return strings.Join(names, "; ")
+}
+
+// cxxPresent reports whether g++ is there to check the header as C++.
+func cxxPresent() bool { _, ok := cToolsOnce.version["g++"]; return ok }
 
 func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
 	if err := cTools(); err != nil {
@@ -157,11 +230,11 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 	matrix, cxx := cQuickMatrix, false
 	switch {
 	case r.Full && p.NumNodes() <= cFullMatrixNodes:
-		matrix, cxx = cMatrix, true
+		matrix, cxx = cMatrix, cxxPresent()
 	case r.Full:
 		matrix = cBigMatrix
 	}
-	return r.score(ctx, p, r.options(layout, variant), rows, dir, matrix, cxx)
+	return r.score(ctx, p, r.options(layout, variant), rows, dir, cBuilds(matrix), cxx)
 }
 
 // score emits p, builds it in every configuration of matrix (and checks the
@@ -258,6 +331,7 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options,
 		}
 	}
 	res.Run = jobs[0].runFor
+	res.Tool = cToolNote(matrix, cxx)
 	if err := parseCOutput(jobs[0].out, p, rows.Len(), res); err != nil {
 		return nil, err
 	}

@@ -396,3 +396,28 @@ func TestCMillionNodes(t *testing.T) {
 	m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, true, 0)
 	require.True(t, m.OK(), "%s", m)
 }
+
+// TestCBuildsOneCompiler: with one C compiler on the machine, every build of
+// every matrix is done with it (the sanitizer build only by clang, else
+// dropped), so C is verified with any one of gcc, clang and cc.
+func TestCBuildsOneCompiler(t *testing.T) {
+	if err := cTools(); err != nil {
+		t.Skipf("C compilers: %v", err)
+	}
+	saved := cToolsOnce.version
+	defer func() { cToolsOnce.version = saved }()
+	for _, only := range []string{"gcc", "clang", "cc"} {
+		cToolsOnce.version = map[string]string{only: only + " 1.0"}
+		for _, m := range [][]cBuild{cQuickMatrix, cMatrix, cBigMatrix} {
+			got := cBuilds(m)
+			require.NotEmpty(t, got)
+			for _, b := range got {
+				require.Equal(t, only, b.cc, "%v", got)
+				require.False(t, b.sanitize && only != "clang" && only != "gcc", "sanitizer build with %s", only)
+			}
+		}
+		require.Equal(t, only+": "+only+" 1.0", cToolNote(cBuilds(cQuickMatrix), false))
+	}
+	cToolsOnce.version = map[string]string{"gcc": "g", "clang": "c"}
+	require.Equal(t, cMatrix, cBuilds(cMatrix), "both compilers: the full matrix unchanged")
+}

@@ -88,6 +88,9 @@ type Result struct {
 	Classes []int     // per row for classifiers, else nil
 	Build   time.Duration
 	Run     time.Duration
+	// Tool names the toolchain or engine that ran, with its version, when
+	// the runner can say (the C compilers used, the sqlite3 shell).
+	Tool string
 }
 
 // Runners lists every target's runner. A new target adds one line here.
@@ -95,9 +98,9 @@ func Runners() []Runner {
 	return []Runner{
 		// one line per target runner, e.g. goRunner{},
 		goRunner{},
-		sqliteRunner{sqlRunner{"sqlite"}},
-		sqlRunner{"duckdb"},
-		sqlRunner{"postgres"},
+		sqliteRunner{sqlRunner{engine: "sqlite"}},
+		sqlRunner{engine: "duckdb"},
+		sqlRunner{engine: "postgres"},
 		cRunner{},
 	}
 }

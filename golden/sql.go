@@ -1,6 +1,7 @@
 package golden
 
 import (
+	"cmp"
 	"context"
 	dbsql "database/sql"
 	"errors"
@@ -30,12 +31,21 @@ import (
 // Variants: "" is the engine's own dialect; "ansi" runs the portable ANSI
 // text on the same engine.
 type sqlRunner struct {
-	engine string // "sqlite", "duckdb" or "postgres"
+	engine  string // "sqlite", "duckdb" or "postgres"
+	maxNest int    // Options.MaxNest of every statement; 0: the dialect's default
 }
 
 // sqliteRunner is the SQLite runner; it also keeps snapshots of the emitted
 // text (the other engines' text differs only in literal spelling).
 type sqliteRunner struct{ sqlRunner }
+
+// Variants: the embedded engine ("" and "ansi" text) and the system sqlite3
+// shell ("shell", "ansi-shell"), whose stock parser is the one most SQLite
+// users have (see sqliteShell).
+func (sqliteRunner) Variants() []string { return []string{"", "ansi", "shell", "ansi-shell"} }
+
+// isShell reports whether a variant runs in the sqlite3 shell.
+func isShell(variant string) bool { return variant == "shell" || variant == "ansi-shell" }
 
 func (r sqlRunner) Name() string { return r.engine }
 
@@ -45,23 +55,15 @@ func (sqlRunner) Variants() []string { return []string{"", "ansi"} }
 
 func (sqlRunner) CompileOptions(string) compile.Options { return compile.Options{} }
 
-// Tolerance: sums, divisions and comparisons are IEEE double operations in
-// the same order as the interpreter's, so a model without a transform must
-// match bit for bit. EXP is the engine's C library exp, which differs from
-// Go's math.Exp by one ulp on about 14% of arguments (measured in
-// TestSQLExp), so logistic and softmax outputs are held within
-// (k+4)·2^-52 for k outputs: each exp contributes at most one ulp
-// (2^-53 relative), the softmax sum adds at most k of them, and outputs are
-// at most 1.
+// Tolerance is sqlemit.Tolerance: bit for bit without a transform, within
+// (k+4)·2^-52 under logistic or softmax (the engine's EXP).
 func (sqlRunner) Tolerance(_ string, p *compile.Program) (bool, float64) {
-	if p.Transform == forest.NoTransform {
-		return true, 0
-	}
-	return false, float64(p.NumOutputs+4) * 0x1p-52
+	b := sqlemit.Tolerance(p)
+	return b == 0, b
 }
 
 func (r sqlRunner) dialect(variant string) sqlemit.Dialect {
-	if variant == "ansi" {
+	if variant == "ansi" || variant == "ansi-shell" {
 		return sqlemit.ANSI
 	}
 	return map[string]sqlemit.Dialect{"sqlite": sqlemit.SQLite, "duckdb": sqlemit.DuckDB, "postgres": sqlemit.Postgres}[r.engine]
@@ -74,7 +76,7 @@ const sqlTable = `rows "in" 'test'`
 // number kept, and, when the model's names cannot be SQL identifiers in
 // this dialect, column names made from them.
 func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (sqlemit.Options, error) {
-	o := sqlemit.Options{Dialect: r.dialect(variant), Table: sqlTable, Schema: schema, Layout: layout}
+	o := sqlemit.Options{Dialect: r.dialect(variant), Table: sqlTable, Schema: schema, Layout: layout, MaxNest: r.maxNest}
 	o.Keep = []string{rowColumn(p)}
 	// The engine's own rules for names hold whatever dialect the text is
 	// written in (ANSI text run on PostgreSQL still has its identifiers
@@ -127,6 +129,9 @@ func rowColumn(p *compile.Program) string {
 }
 
 func (r sqliteRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
+	if err := r.declines(p, layout, variant); err != nil {
+		return nil, err
+	}
 	o, err := r.options(p, layout, variant, "")
 	if err != nil {
 		return nil, err
@@ -141,16 +146,27 @@ type sqlDB struct {
 	param   func(i int) string
 	colType string
 	close   func()
+	// nanTwins: the engine stores NaN, so load adds, after the rows, a
+	// copy of each row holding a missing value with NaN stored in place of
+	// NULL, and run holds its outputs to the row's (see load).
+	nanTwins bool
+	// twins are the rows copied so by the last load, in order.
+	twins []int
 	// appendRows, when set, loads rows faster than INSERT (DuckDB's
 	// appender): table and columns are plain names, row values float64 or
 	// nil.
 	appendRows func(ctx context.Context, schema, table string, rows func(add func(vals ...any) error) error) error
 }
 
-func (r sqlRunner) open(ctx context.Context) (*sqlDB, error) {
+// open starts a session. file is the SQLite database file ("" for one in
+// memory); the other engines ignore it.
+func (r sqlRunner) open(ctx context.Context, file string) (*sqlDB, error) {
 	switch r.engine {
 	case "sqlite":
-		db, err := dbsql.Open("sqlite", ":memory:")
+		if file == "" {
+			file = ":memory:"
+		}
+		db, err := dbsql.Open("sqlite", file)
 		if err != nil {
 			return nil, err
 		}
@@ -213,7 +229,7 @@ func openPostgres(ctx context.Context) (*sqlDB, error) {
 			return nil, fmt.Errorf("postgres: %s: %v", s, err)
 		}
 	}
-	return &sqlDB{conn: conn, schema: schema, param: func(i int) string { return "$" + strconv.Itoa(i+1) }, colType: "double precision",
+	return &sqlDB{conn: conn, schema: schema, param: func(i int) string { return "$" + strconv.Itoa(i+1) }, colType: "double precision", nanTwins: true,
 		close: func() {
 			conn.ExecContext(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
 			conn.Close()
@@ -223,13 +239,49 @@ func openPostgres(ctx context.Context) (*sqlDB, error) {
 
 func quoteIdent(s string) string { return `"` + strings.ReplaceAll(s, `"`, `""`) + `"` }
 
-// load creates the table and inserts every row, NULL for NaN.
+// load creates the table and inserts every row, NULL for NaN. Where the
+// engine stores NaN (nanTwins), each row holding a missing value is loaded a
+// second time after all the rows, numbered from rows.Len() on, with NaN
+// stored instead of NULL: the statement must score a stored NaN exactly as
+// NULL (emit/sql's featureInput), which run checks bit for bit.
 func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options, rows *forest.Rows) error {
 	ref := quoteIdent(o.Table)
 	if o.Schema != "" {
 		ref = quoteIdent(o.Schema) + "." + ref
 	}
 	used := p.UsedFeatures()
+	db.twins = nil
+	if db.nanTwins {
+		for r := 0; r < rows.Len(); r++ {
+			x := rows.Row(r)
+			for _, i := range used {
+				if math.IsNaN(x[i]) {
+					db.twins = append(db.twins, r)
+					break
+				}
+			}
+		}
+	}
+	total := rows.Len() + len(db.twins)
+	// fill sets vals to entry e's values: row e, or twin e-rows.Len().
+	fill := func(e int, vals []any) {
+		r, nan := e, false
+		if e >= rows.Len() {
+			r, nan = db.twins[e-rows.Len()], true
+		}
+		vals[0] = int64(e)
+		x := rows.Row(r)
+		for k, i := range used {
+			switch {
+			case !math.IsNaN(x[i]):
+				vals[k+1] = x[i]
+			case nan:
+				vals[k+1] = math.NaN()
+			default:
+				vals[k+1] = nil
+			}
+		}
+	}
 	cols := []string{quoteIdent(o.Keep[0])}
 	defs := []string{quoteIdent(o.Keep[0]) + " INTEGER"}
 	for _, i := range used {
@@ -246,18 +298,10 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options
 	if db.appendRows != nil {
 		return db.appendRows(ctx, o.Schema, o.Table, func(add func(vals ...any) error) error {
 			vals := make([]any, len(cols))
-			for r := 0; r < rows.Len(); r++ {
-				vals[0] = int64(r)
-				x := rows.Row(r)
-				for k, i := range used {
-					if math.IsNaN(x[i]) {
-						vals[k+1] = nil
-					} else {
-						vals[k+1] = x[i]
-					}
-				}
+			for e := 0; e < total; e++ {
+				fill(e, vals)
 				if err := add(vals...); err != nil {
-					return fmt.Errorf("append row %d: %v", r, err)
+					return fmt.Errorf("append row %d: %v", e, err)
 				}
 			}
 			return nil
@@ -271,8 +315,9 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options
 	per := max(1, min(500, 30000/len(cols))) // rows per INSERT, inside every engine's parameter limit
 	var stmt *dbsql.Stmt
 	stmtRows := 0
-	for a := 0; a < rows.Len(); a += per {
-		b := min(a+per, rows.Len())
+	vals := make([]any, len(cols))
+	for a := 0; a < total; a += per {
+		b := min(a+per, total)
 		if b-a != stmtRows {
 			var q strings.Builder
 			q.WriteString("INSERT INTO " + ref + " (" + strings.Join(cols, ", ") + ") VALUES ")
@@ -300,16 +345,9 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options
 			stmtRows = b - a
 		}
 		args := make([]any, 0, (b-a)*len(cols))
-		for r := a; r < b; r++ {
-			args = append(args, int64(r))
-			x := rows.Row(r)
-			for _, i := range used {
-				if math.IsNaN(x[i]) {
-					args = append(args, nil)
-				} else {
-					args = append(args, x[i])
-				}
-			}
+		for e := a; e < b; e++ {
+			fill(e, vals)
+			args = append(args, vals...)
 		}
 		if _, err := stmt.ExecContext(ctx, args...); err != nil {
 			return fmt.Errorf("insert rows %d to %d: %v", a, b-1, err)
@@ -326,7 +364,7 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 	if err := r.declines(p, layout, variant); err != nil {
 		return nil, err
 	}
-	return r.score(ctx, p, rows, dir, func(schema string) (sqlemit.Options, error) {
+	return r.score(ctx, p, rows, dir, isShell(variant), func(schema string) (sqlemit.Options, error) {
 		return r.options(p, layout, variant, schema)
 	})
 }
@@ -341,9 +379,15 @@ const (
 	maxSQLiteStages = 300
 )
 
-// declines returns ErrDeclined for statements beyond those counts.
+// declines returns ErrDeclined for statements beyond those counts, and for
+// the nested layout of a tree deeper than the CASE nesting allowed (auto
+// takes the table layout for it).
 func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
-	n, err := sqlemit.Stages(p, sqlemit.Options{Dialect: r.dialect(variant), Layout: layout})
+	d := r.dialect(variant)
+	if nest := cmp.Or(r.maxNest, sqlemit.DefaultMaxNest[d]); layout == emit.Nested && p.MaxDepth() > nest {
+		return fmt.Errorf("%w: nested layout of a tree %d splits deep, past the %d levels of CASE %s text may nest", ErrDeclined, p.MaxDepth(), nest, d)
+	}
+	n, err := sqlemit.Stages(p, sqlemit.Options{Dialect: d, Layout: layout, MaxNest: r.maxNest})
 	if err != nil {
 		return nil // Score reports it
 	}
@@ -358,12 +402,32 @@ func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
 
 // score runs p with the options opts gives for the session's schema ("" but
 // in PostgreSQL). Options.Keep[0] must be the row-number column.
-func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, opts func(schema string) (sqlemit.Options, error)) (*Result, error) {
-	db, err := r.open(ctx)
+//
+// With shell (SQLite only), the rows go into a database file and the
+// system sqlite3 shell runs the statement (shellRun).
+func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, shell bool, opts func(schema string) (sqlemit.Options, error)) (*Result, error) {
+	file := ""
+	if shell {
+		if _, _, err := SQLiteShell(); err != nil {
+			return nil, err
+		}
+		f, cleanup, err := shellFile()
+		if err != nil {
+			return nil, err
+		}
+		defer cleanup()
+		file = f
+	}
+	db, err := r.open(ctx, file)
 	if err != nil {
 		return nil, err
 	}
-	defer db.close()
+	closed := false
+	defer func() {
+		if !closed {
+			db.close()
+		}
+	}()
 	o, err := opts(db.schema)
 	if err != nil {
 		return nil, err
@@ -381,6 +445,11 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	if err := db.load(ctx, p, o, rows); err != nil {
 		return nil, fmt.Errorf("%s: %v", r.engine, err)
 	}
+	if shell {
+		db.close()
+		closed = true
+		return shellRun(ctx, p, o, text, file, rows.Len())
+	}
 	if o.View != "" { // create the view, then read it
 		if _, err := db.conn.ExecContext(ctx, text); err != nil {
 			return nil, fmt.Errorf("%s: create view: %v", r.engine, shorten(err))
@@ -390,36 +459,36 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 			text = "SELECT * FROM " + quoteIdent(o.Schema) + "." + quoteIdent(o.View)
 		}
 	}
-	return db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
+	res, err := db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
+	if err == nil && r.engine == "sqlite" {
+		var v string
+		if db.conn.QueryRowContext(ctx, "SELECT sqlite_version()").Scan(&v) == nil {
+			res.Tool = "SQLite " + v + " embedded in sawmill (modernc.org/sqlite)"
+		}
+	}
+	return res, err
 }
 
-// run prepares and runs the statement and reads the result. Build is the
-// prepare time, Run the execution and reading.
+// run prepares and runs the statement and reads the result: n rows and
+// then the NaN twins of the last load. Build is the prepare time, Run the
+// execution and reading.
 func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n, extraKeep int, engine string) (*Result, error) {
-	res := &Result{Outputs: make([]float64, n*p.NumOutputs)}
 	start := time.Now()
 	stmt, err := db.conn.PrepareContext(ctx, text)
 	if err != nil {
 		return nil, fmt.Errorf("%s: prepare: %v", engine, shorten(err))
 	}
 	defer stmt.Close()
-	res.Build = time.Since(start)
+	build := time.Since(start)
 	start = time.Now()
 	q, err := stmt.QueryContext(ctx)
 	if err != nil {
 		return nil, fmt.Errorf("%s: run: %v", engine, shorten(err))
 	}
 	defer q.Close()
-	k := p.NumOutputs
-	classOf := map[string]int{}
-	for i, c := range p.Classes {
-		classOf[c] = i
-	}
-	if p.IsClassifier() {
-		res.Classes = make([]int, n)
-	}
+	c := newCollector(p, n, db.twins, engine)
 	var id int64
-	vals := make([]dbsql.NullFloat64, k)
+	vals := make([]dbsql.NullFloat64, p.NumOutputs)
 	var label dbsql.NullString
 	dest := []any{&id}
 	for range extraKeep {
@@ -431,38 +500,100 @@ func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n, ex
 	if p.IsClassifier() {
 		dest = append(dest, &label)
 	}
-	seen := make([]bool, n)
 	for q.Next() {
 		if err := q.Scan(dest...); err != nil {
 			return nil, fmt.Errorf("%s: read result: %v", engine, err)
 		}
-		if id < 0 || id >= int64(n) || seen[id] {
-			return nil, fmt.Errorf("%s: result row number %d out of range or repeated", engine, id)
-		}
-		seen[id] = true
-		for j, v := range vals {
-			if !v.Valid {
-				return nil, fmt.Errorf("%s: row %d, output %d is NULL", engine, id, j)
-			}
-			res.Outputs[int(id)*k+j] = v.Float64
-		}
-		if p.IsClassifier() {
-			c, ok := classOf[label.String]
-			if !label.Valid || !ok {
-				return nil, fmt.Errorf("%s: row %d: class %q is not a class label", engine, id, label.String)
-			}
-			res.Classes[id] = c
+		if err := c.add(id, vals, label); err != nil {
+			return nil, err
 		}
 	}
 	if err := q.Err(); err != nil {
 		return nil, fmt.Errorf("%s: run: %v", engine, shorten(err))
 	}
-	for i, ok := range seen {
+	res, err := c.finish()
+	if err != nil {
+		return nil, err
+	}
+	res.Build, res.Run = build, time.Since(start)
+	return res, nil
+}
+
+// collector gathers a statement's result rows, numbered 0 to n-1 and then
+// the NaN twins, whatever order they come in.
+type collector struct {
+	p       *compile.Program
+	n       int
+	twins   []int
+	engine  string
+	outputs []float64
+	classes []int
+	seen    []bool
+	classOf map[string]int
+}
+
+func newCollector(p *compile.Program, n int, twins []int, engine string) *collector {
+	total := n + len(twins)
+	c := &collector{p: p, n: n, twins: twins, engine: engine, outputs: make([]float64, total*p.NumOutputs),
+		seen: make([]bool, total), classOf: map[string]int{}}
+	for i, l := range p.Classes {
+		c.classOf[l] = i
+	}
+	if p.IsClassifier() {
+		c.classes = make([]int, total)
+	}
+	return c
+}
+
+// add takes result row id: its outputs and, for a classifier, its label.
+func (c *collector) add(id int64, vals []dbsql.NullFloat64, label dbsql.NullString) error {
+	if id < 0 || id >= int64(len(c.seen)) || c.seen[id] {
+		return fmt.Errorf("%s: result row number %d out of range or repeated", c.engine, id)
+	}
+	c.seen[id] = true
+	k := c.p.NumOutputs
+	for j, v := range vals {
+		if !v.Valid {
+			return fmt.Errorf("%s: row %d, output %d is NULL", c.engine, id, j)
+		}
+		c.outputs[int(id)*k+j] = v.Float64
+	}
+	if c.p.IsClassifier() {
+		cl, ok := c.classOf[label.String]
+		if !label.Valid || !ok {
+			return fmt.Errorf("%s: row %d: class %q is not a class label", c.engine, id, label.String)
+		}
+		c.classes[id] = cl
+	}
+	return nil
+}
+
+// finish checks that every row came and that each NaN twin scored bit for
+// bit as its row with NULL, and returns the rows' result.
+func (c *collector) finish() (*Result, error) {
+	for i, ok := range c.seen {
 		if !ok {
-			return nil, fmt.Errorf("%s: no result for row %d", engine, i)
+			return nil, fmt.Errorf("%s: no result for row %d", c.engine, i)
 		}
 	}
-	res.Run = time.Since(start)
+	k := c.p.NumOutputs
+	for t, r := range c.twins {
+		e := c.n + t
+		for j := 0; j < k; j++ {
+			got, want := c.outputs[e*k+j], c.outputs[r*k+j]
+			if math.Float64bits(got) != math.Float64bits(want) {
+				return nil, fmt.Errorf("%s: row %d with NaN stored where it has NULL: output %d is %v, with NULL %v: a stored NaN must be missing", c.engine, r, j, got, want)
+			}
+		}
+		if c.classes != nil && c.classes[e] != c.classes[r] {
+			return nil, fmt.Errorf("%s: row %d with NaN stored where it has NULL: class %q, with NULL %q: a stored NaN must be missing",
+				c.engine, r, c.p.Classes[c.classes[e]], c.p.Classes[c.classes[r]])
+		}
+	}
+	res := &Result{Outputs: c.outputs[:c.n*k]}
+	if c.classes != nil {
+		res.Classes = c.classes[:c.n]
+	}
 	return res, nil
 }
 
@@ -475,14 +606,21 @@ func shorten(err error) error {
 	return err
 }
 
+// WithMaxNest returns the runner with every statement's CASE nesting held
+// to n (sql.Options.MaxNest).
+func (r sqlRunner) WithMaxNest(n int) Runner { r.maxNest = n; return r }
+
+// WithMaxNest: see sqlRunner.WithMaxNest.
+func (r sqliteRunner) WithMaxNest(n int) Runner { r.maxNest = n; return r }
+
 // SQLRunner returns the runner for engine "sqlite", "duckdb" or
 // "postgres" (for benchmarks and the command line).
 func SQLRunner(engine string) (Runner, error) {
 	switch engine {
 	case "sqlite":
-		return sqliteRunner{sqlRunner{engine}}, nil
+		return sqliteRunner{sqlRunner{engine: engine}}, nil
 	case "duckdb", "postgres":
-		return sqlRunner{engine}, nil
+		return sqlRunner{engine: engine}, nil
 	}
 	return nil, fmt.Errorf("unknown SQL engine %q\nhint: use sqlite, duckdb or postgres", engine)
 }

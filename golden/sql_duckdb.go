@@ -21,7 +21,7 @@ func openDuckDB(ctx context.Context) (*sqlDB, error) {
 		db.Close()
 		return nil, err
 	}
-	return &sqlDB{conn: conn, param: func(int) string { return "?" }, colType: "DOUBLE",
+	return &sqlDB{conn: conn, param: func(int) string { return "?" }, colType: "DOUBLE", nanTwins: true,
 		close:      func() { conn.Close(); db.Close() },
 		appendRows: duckAppend(conn)}, nil
 }

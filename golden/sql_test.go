@@ -27,12 +27,12 @@ import (
 // ASCII case, and PostgreSQL truncates identifiers to 63 bytes and reads
 // 1.5e0 as numeric, not as an approximate numeric.
 
-var sqlEngineRunners = []sqlRunner{{"sqlite"}, {"duckdb"}, {"postgres"}}
+var sqlEngineRunners = []sqlRunner{{engine: "sqlite"}, {engine: "duckdb"}, {engine: "postgres"}}
 
 // sqlSession opens the engine or skips the test plainly when it is absent.
 func sqlSession(t *testing.T, r sqlRunner) *sqlDB {
 	t.Helper()
-	db, err := r.open(context.Background())
+	db, err := r.open(context.Background(), "")
 	if errors.Is(err, ErrSkip) {
 		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
 			t.Fatalf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", r.engine, err)
@@ -235,8 +235,12 @@ func sqlProgram(t *testing.T, f *forest.Forest) *compile.Program {
 // interpreter.
 func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlemit.Options) {
 	t.Helper()
-	sqlCheckVariants(t, f, rows, o, []string{"", "ansi"})
+	sqlCheckVariants(t, f, rows, o, allSQLVariants)
 }
+
+// allSQLVariants are the engines' own and ANSI text, each also run in the
+// sqlite3 shell (by the sqlite runner alone).
+var allSQLVariants = []string{"", "ansi", "shell", "ansi-shell"}
 
 func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlemit.Options, variants []string) {
 	t.Helper()
@@ -245,12 +249,15 @@ func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlem
 	want, wantCls := c.Reference()
 	for _, r := range sqlEngineRunners {
 		for _, variant := range variants {
+			if isShell(variant) && r.engine != "sqlite" {
+				continue
+			}
 			name := r.engine
 			if variant != "" {
 				name += "-" + variant
 			}
 			t.Run(name, func(t *testing.T) {
-				res, err := r.score(context.Background(), p, rows, t.TempDir(), func(schema string) (sqlemit.Options, error) {
+				res, err := r.score(context.Background(), p, rows, t.TempDir(), isShell(variant), func(schema string) (sqlemit.Options, error) {
 					oo := o
 					oo.Dialect = r.dialect(variant)
 					oo.Table, oo.Schema = sqlTable, schema
@@ -310,10 +317,14 @@ func TestSQLDeepTree(t *testing.T) {
 	// SQLite counts the fenced sub-queries into its expression depth limit
 	// (1000) and refuses, so only the engines' own dialects run this.
 	t.Run("table-nest5", func(t *testing.T) {
-		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Table, MaxNest: 5}, []string{""})
+		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Table, MaxNest: 5}, []string{"", "shell"})
 	})
 	f, rows = deep(300)
-	t.Run("nested400", func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{Layout: emit.Nested, MaxNest: 400}) })
+	// Not in the stock sqlite3 shell, whose parser stops near 15
+	// (TestSQLiteShellLimits).
+	t.Run("nested400", func(t *testing.T) {
+		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Nested, MaxNest: 400}, []string{"", "ansi"})
+	})
 }
 
 // TestSQLStages splits the sum over many sub-queries (two trees each) and
@@ -436,5 +447,5 @@ func TestSQLBigForest(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
 	rows := RandomRows(11, f, 200)
 	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
-	sqlCheckVariants(t, f, rows, sqlemit.Options{}, []string{""})
+	sqlCheckVariants(t, f, rows, sqlemit.Options{}, []string{"", "shell"})
 }

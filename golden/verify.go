@@ -39,6 +39,9 @@ type VerifyOptions struct {
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
 	// to the runner (SAWMILL_POSTGRES_DSN).
 	PostgresDSN string
+	// MaxNest is the CASE nesting the SQL runners' statements may use
+	// (sql.Options.MaxNest); 0 leaves each dialect's default.
+	MaxNest int
 	// MaxRows caps the generated rows: 0 means DefaultMaxRows, < 0 no cap.
 	// Given rows are never capped.
 	MaxRows int
@@ -125,6 +128,9 @@ type Check struct {
 	First           *Row   `json:"first_mismatch,omitempty"`
 	Build           Millis `json:"build_ms"`
 	Run             Millis `json:"run_ms"`
+	// Tool names what built or ran the code, when the runner says (the C
+	// compilers, the sqlite3 shell), with its version.
+	Tool string `json:"tool,omitempty"`
 }
 
 // Name is "target", "target/variant" and the layout: "c/float table".
@@ -255,6 +261,9 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 	for _, r := range sel {
 		r, restore := usePostgres(r, o.PostgresDSN)
+		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
+			r = m.WithMaxNest(o.MaxNest)
+		}
 		variants, layouts := runnerVariants(r, o.Variants), selectNames(r.Layouts(), o.Layouts)
 		if isSQLEngine(r.Name()) {
 			variants = sqlVariants(r, o)
@@ -360,7 +369,7 @@ func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows
 		ch.Status, ch.Reason = Failed, err.Error()
 		return
 	}
-	ch.Build, ch.Run = Millis(res.Build), Millis(res.Run)
+	ch.Build, ch.Run, ch.Tool = Millis(res.Build), Millis(res.Run), res.Tool
 	exact, bound := r.Tolerance(ch.Variant, p)
 	ch.Exact, ch.Bound = exact, Num(bound)
 	k := f.NumOutputs()
@@ -607,7 +616,7 @@ func isSQLEngine(name string) bool { return slices.Contains(sqlEngines, name) }
 func sqlVariants(r Runner, o VerifyOptions) []string {
 	var out []string
 	for _, v := range runnerVariants(r, o.Variants) {
-		d := v
+		d := strings.TrimSuffix(strings.TrimSuffix(v, "shell"), "-") // "shell" runs the engine's own text, "ansi-shell" ANSI
 		if d == "" {
 			d = r.Name()
 		}

@@ -19,11 +19,6 @@ import (
 	"sawmill/golden"
 )
 
-// cliNest is the CASE nesting the sqlite3 command-line shell of Debian 12
-// (SQLite 3.40) parses: its fixed parser stack stops at 18 (the project's
-// notes on physical limits).
-const cliNest = 15
-
 var runTime = regexp.MustCompile(`Run Time: real ([0-9.]+) user ([0-9.]+) sys ([0-9.]+)`)
 
 // cliSide scores the rows with the native sqlite3 shell: the rows go into
@@ -76,7 +71,7 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if err := tx.Commit(); err != nil {
 		return "", err
 	}
-	files, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout, Keep: []string{"sawmill_row"}, MaxNest: cliNest})
+	files, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout, Keep: []string{"sawmill_row"}})
 	if err != nil {
 		return "", err
 	}
@@ -145,11 +140,11 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if m := golden.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
 		return "", fmt.Errorf("sqlite3 shell %s: %s", layout, m)
 	}
-	lay, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout, MaxNest: cliNest})
+	lay, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout})
 	n := float64(rows.Len())
 	return fmt.Sprintf("%-22s %12.0f %10s %10s %12d   (%s, CASE nested at most %d; %.0f rows/s of CPU time, user %.2fs)",
 		"sqlite3 shell "+layout, n/real, time.Duration(prep*float64(time.Second)).Round(time.Millisecond),
-		time.Duration(real*float64(time.Second)).Round(time.Millisecond), len(files[0].Data), lay, cliNest, n/user, user), nil
+		time.Duration(real*float64(time.Second)).Round(time.Millisecond), len(files[0].Data), lay, sqlemit.DefaultMaxNest[sqlemit.SQLite], n/user, user), nil
 }
 
 func quote(s string) string { return `"` + strings.ReplaceAll(s, `"`, `""`) + `"` }

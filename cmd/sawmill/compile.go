@@ -60,6 +60,10 @@ type compileFlags struct {
 	dumpAfter string
 	verbose   bool
 	force     bool
+	maxNest   int      // SQL: CASE nesting bound, 0 for the dialect's default
+	columns   []string // SQL: feature=column pairs
+	selftest  bool     // SQL: also write the self-test script
+	model     *forest.Forest
 }
 
 func newCompileCmd() *cobra.Command {
@@ -100,6 +104,9 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringVar(&fl.dumpAfter, "dump-after", "", "print the program's text form after this pass ('lower' for before any)")
 	f.BoolVarP(&fl.verbose, "verbose", "v", false, "print what each pass did")
 	f.BoolVar(&fl.force, "force", false, "overwrite files in DIR even if sawmill did not generate them")
+	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep (default: what the dialect's stock engine parses, e.g. 12 for sqlite)")
+	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
+	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
 	return c
 }
 
@@ -118,6 +125,7 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if err != nil {
 		return err
 	}
+	fl.model = f
 	o := t.options(fl)
 	o.Lossy = fl.lossy
 	if fl.dumpAfter != "" {

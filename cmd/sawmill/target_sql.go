@@ -1,12 +1,17 @@
 package main
 
 import (
+	"fmt"
+	"strings"
+
 	"sawmill/compile"
 	"sawmill/emit"
 	"sawmill/emit/sql"
+	"sawmill/golden"
 )
 
-// sqlTarget emits one statement through emit/sql.
+// sqlTarget emits one statement through emit/sql and, with --selftest, the
+// self-test script beside it.
 func sqlTarget() target {
 	return target{
 		name:    "sql",
@@ -16,8 +21,55 @@ func sqlTarget() target {
 			if err != nil {
 				return nil, err
 			}
-			layout := fl.layout
-			return sql.Emit(p, sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: layout})
+			if fl.maxNest < 0 || fl.maxNest == 1 {
+				return nil, fmt.Errorf("--max-nest %d: must be 2 or more (0: the dialect's default)", fl.maxNest)
+			}
+			cols, err := columnMap(p, fl.columns)
+			if err != nil {
+				return nil, err
+			}
+			o := sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
+			files, err := sql.Emit(p, o)
+			if err != nil || !fl.selftest {
+				return files, err
+			}
+			probes := golden.SelftestProbes(fl.model)
+			st, err := sql.Selftest(p, o, probes)
+			if err != nil {
+				return nil, fmt.Errorf("selftest: %v", err)
+			}
+			return append(files, st), nil
 		},
 	}
+}
+
+// columnMap turns --columns feature=column pairs into sql.Options.Columns:
+// the column of every feature, its own name where no pair names it.
+func columnMap(p *compile.Program, pairs []string) ([]string, error) {
+	if len(pairs) == 0 {
+		return nil, nil
+	}
+	cols := make([]string, len(p.Features))
+	index := map[string]int{}
+	for i, f := range p.Features {
+		cols[i] = f.Name
+		index[f.Name] = i
+	}
+	seen := map[string]bool{}
+	for _, pair := range pairs {
+		feat, col, ok := strings.Cut(pair, "=")
+		if !ok || col == "" {
+			return nil, fmt.Errorf("--columns %q: want feature=column", pair)
+		}
+		i, known := index[feat]
+		if !known {
+			return nil, fmt.Errorf("--columns %q: the model has no feature %q", pair, feat)
+		}
+		if seen[feat] {
+			return nil, fmt.Errorf("--columns: feature %q is mapped twice", feat)
+		}
+		seen[feat] = true
+		cols[i] = col
+	}
+	return cols, nil
 }

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -28,6 +29,7 @@ type verifyFlags struct {
 	probes   bool
 	require  bool
 	asJSON   bool
+	maxNest  int
 }
 
 // verifyTamper, when set (by tests only), edits each compiled program before
@@ -57,6 +59,15 @@ Each target, variant and layout gets a line: rows checked, rows that agree,
 the largest absolute difference, predicted labels that differ, build and
 scoring time. The first row that disagrees is shown in full.
 
+SQLite runs twice: in the SQLite embedded in sawmill (target sqlite), and
+in the system sqlite3 shell when one is on PATH (sqlite/shell), whose
+stock parser is what Python, Android and iOS users have: a statement only
+the embedded engine accepts fails there. PostgreSQL and DuckDB score every
+row holding a missing value a second time with NaN stored instead of NULL,
+which must give the same outputs bit for bit. C is built with whichever of
+gcc, clang and cc is present; the compilers and the shell that ran are
+listed under the table.
+
 Exit status: 0 when every check that ran agreed; 1 when a row disagreed or
 a target failed to emit, build or run. A target whose toolchain or engine
 is not on this machine is printed as "not run" with the reason and does not
@@ -79,10 +90,14 @@ fail the run, unless --require is given.`,
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
 	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
 	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
+	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
 	return c
 }
 
 func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
+	if fl.maxNest < 0 || fl.maxNest == 1 {
+		return usageError{fmt.Errorf("sawmill verify: --max-nest %d: must be 2 or more (0: each dialect's default)\nhint: see 'sawmill verify -h'", fl.maxNest)}
+	}
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
@@ -98,7 +113,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	}
 	o := golden.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
-		PostgresDSN: fl.postgres, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
+		PostgresDSN: fl.postgres, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
 	}
 	if fl.maxRows == 0 {
 		o.MaxRows = -1
@@ -219,6 +234,24 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 		}
 	}
 
+	var tools []string
+	for _, ch := range rep.Checks {
+		name := ch.Target
+		if ch.Variant != "" {
+			name += "/" + ch.Variant
+		}
+		if t := name + "\t" + ch.Tool; ch.Tool != "" && !slices.Contains(tools, t) {
+			tools = append(tools, t)
+		}
+	}
+	if len(tools) > 0 {
+		fmt.Fprintln(w, "\nran with:")
+		tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+		for _, t := range tools {
+			fmt.Fprintf(tw, "  %s\n", t)
+		}
+		tw.Flush()
+	}
 	for _, ch := range rep.Checks {
 		switch ch.Status {
 		case golden.Failed:

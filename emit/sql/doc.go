@@ -16,7 +16,8 @@
 // # Dialects
 //
 // sqlite (SQLite 3.35 or later; the golden runner uses 3.54.1, embedded in
-// modernc.org/sqlite v1.62.0, which has EXP), postgres (PostgreSQL 12 or
+// modernc.org/sqlite v1.62.0, which has EXP, and the system sqlite3 shell,
+// Debian's 3.40.1), postgres (PostgreSQL 12 or
 // later; tested on 15), duckdb (tested on 1.5.6 through duckdb-go v2.10506.0)
 // and ansi (ISO/IEC 9075:2016 with no engine extension: the golden runners
 // run the ANSI text on all three engines too).
@@ -99,12 +100,30 @@
 // root-to-leaf conjunction) is not offered: measured on SQLite it is 17 to
 // 100 times slower than nested and prepares more slowly still.
 //
-// MaxNest defaults (DefaultMaxNest): sqlite 400, postgres 500, duckdb 400,
-// ansi 100, inside the limits measured on this project's machine: SQLite
-// 3.54.1 accepts CASE nested about 498 deep (its expression depth limit of
-// 1000, two levels per CASE, less the sum chain of a stage; SQLite 3.40's
-// fixed parser stack stopped at 18, so set MaxNest 15 for such builds),
-// DuckDB 992 (max_expression_depth 1000), PostgreSQL 1,999 (parser memory).
+// MaxNest defaults (DefaultMaxNest): sqlite 12, ansi 10, postgres 500,
+// duckdb 400. sqlite and ansi text must run in stock SQLite (Debian's
+// sqlite3 3.40.1, Python's sqlite3 module, Android, iOS), whose fixed
+// 100-entry parser stack fails with "parser stack overflow" past 15 levels
+// of CASE in sqlite text and 14 in ansi text in the worst shape written
+// (measured, TestSQLiteShellLimits); SQLite 3.54.1 grows its stack and
+// accepts about 498 (its expression depth limit of 1000, two levels per
+// CASE), DuckDB 992 (max_expression_depth 1000), PostgreSQL 1,999 (parser
+// memory). Stock SQLite's other limits a statement can meet are checked
+// too: 2,000 columns a sub-query and 1,000,000,000 bytes are refused with
+// an error naming the limit.
+//
+// # Stored NaN
+//
+// PostgreSQL and DuckDB store the double NaN and rank it above every
+// number, so postgres, duckdb and ansi text turn a stored NaN into NULL in
+// the first stage (featureInput) and it goes wherever missing values go.
+//
+// # Self-test
+//
+// Selftest writes a script that loads probe rows with the model's outputs,
+// scores them through the statement (as a view) and returns the rows that
+// differ, for engines sawmill cannot run itself.
+//
 // A 100,000-deep chain takes 253 stages in DuckDB (57 s for 10 rows, most of
 // it binding) and 203 in PostgreSQL (5 s); ANSI text of that many fenced
 // stages is not practical (PostgreSQL planned 1,000 of them for over ten

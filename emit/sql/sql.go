@@ -54,8 +54,9 @@ type Options struct {
 	// Layout is Auto (""), Nested or Table; see the package doc.
 	Layout string
 	// MaxNest bounds how deep CASE expressions nest; 0 means the dialect's
-	// default (DefaultMaxNest). Lower it for engines with smaller parser
-	// stacks, e.g. 15 for the SQLite 3.40 command-line shell.
+	// default (DefaultMaxNest), which for sqlite and ansi is what stock
+	// SQLite 3.40 parses, with margin. Lower it for engines with smaller
+	// parser stacks, raise it for builds with bigger ones.
 	MaxNest int
 	// TreesPerStage is how many trees one sub-query adds to the running
 	// sums; 0 means 100.
@@ -78,7 +79,34 @@ var ErrNames = errors.New("name not usable in SQL")
 
 // DefaultMaxNest is the CASE nesting each dialect gets by default, well
 // inside what was measured (see the package doc).
-var DefaultMaxNest = map[Dialect]int{SQLite: 400, Postgres: 500, DuckDB: 400, ANSI: 100}
+//
+// SQLite and ANSI are held to the stock SQLite parser, which most SQLite
+// users have (Python's sqlite3 module, the sqlite3 shell, Android, iOS):
+// its LALR stack is a fixed YYSTACKDEPTH of 100 entries, and each CASE
+// nested in a THEN takes about six. Measured with Debian's sqlite3 3.40.1
+// (TestSQLiteShellLimits holds these figures): the worst shape this
+// package writes, a CREATE VIEW over a chain of splits whose deeper child is
+// always written first (THEN), parses at MaxNest 15 in sqlite text and 14
+// in ansi text (whose CAST literals take more stack) and fails one deeper
+// with "parser stack overflow"; nesting in ELSE only parses to 17 and 16;
+// a plain SELECT of the same chain, one level more. SQLite 3.54.1 (the
+// embedded driver's) grows its stack and accepts about 498. The defaults
+// keep three levels (about 18 stack entries) of margin in sqlite and four
+// in ansi, which must run wherever SQL runs.
+var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10}
+
+// Limits of stock SQLite other than the parser stack that a statement can
+// meet, measured with Debian's sqlite3 3.40.1 (".limit" prints them, and
+// each was hit at one past it): at most 2,000 columns in a result or table
+// (SQLITE_MAX_COLUMN), expressions at most 1,000 deep (SQLITE_MAX_EXPR_DEPTH:
+// a left-deep sum of 1,000 terms fails, 999 runs), at most 500 terms in a
+// compound SELECT (SQLITE_MAX_COMPOUND_SELECT; the statement has none, and
+// a multi-row VALUES of 5,000 rows is not one), and statements of at most
+// 1,000,000,000 bytes (SQLITE_MAX_SQL_LENGTH).
+const (
+	sqliteMaxColumns   = 2000
+	sqliteMaxSQLLength = 1_000_000_000
+)
 
 // unfactorAbove is the number of distinct thresholds above which SQLite
 // text spells each comparison x <= coalesce(t, x). SQLite moves every
@@ -101,7 +129,26 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		return nil, err
 	}
 	g.statement()
+	if err := g.checkSize(); err != nil {
+		return nil, err
+	}
 	return []emit.File{{Name: FileName, Data: g.out.Bytes()}}, nil
+}
+
+// checkSize refuses a SQLite statement beyond the stock build's column and
+// length limits (sqliteMaxColumns, sqliteMaxSQLLength), naming the limit,
+// rather than leave the user a statement that fails to prepare.
+func (g *gen) checkSize() error {
+	if g.d != SQLite {
+		return nil
+	}
+	if g.maxCols > sqliteMaxColumns {
+		return fmt.Errorf("sql: a sub-query of the statement has %d columns, and stock SQLite allows %d (SQLITE_MAX_COLUMN)\nhint: the model uses %d features and %d outputs; keep fewer columns, or use a build compiled with a larger SQLITE_MAX_COLUMN and another dialect's text", g.maxCols, sqliteMaxColumns, len(g.used), g.p.NumOutputs)
+	}
+	if n := g.out.Len(); n > sqliteMaxSQLLength {
+		return fmt.Errorf("sql: the statement is %d bytes, and stock SQLite reads at most %d (SQLITE_MAX_SQL_LENGTH)\nhint: score the trees in several statements, or use the table layout, which is shorter", n, sqliteMaxSQLLength)
+	}
+	return nil
 }
 
 // Layout returns the layout Emit uses for p under o (resolving Auto).
@@ -135,6 +182,8 @@ type gen struct {
 	ctes   []string // CTE texts so far
 	last   string   // name of the last CTE
 	stage  int
+	// maxCols is the most columns a stage selects.
+	maxCols int
 	// per tree: preorder depth of every node, and leaf ordinals
 	depth  [][]int32
 	ord    [][]int32
@@ -310,7 +359,7 @@ func (g *gen) checkNames() error {
 		}
 		f := g.d.foldName(n)
 		if prev, ok := seen[f]; ok {
-			return bad(fmt.Errorf("features %q and %q name the same column in %s\nhint: rename one of them in the model, or name the columns (Columns)", prev, n, g.d))
+			return bad(fmt.Errorf("features %q and %q name the same column in %s\nhint: rename one of them in the model, or map them to other columns (sawmill compile --columns feature=column,...; Options.Columns)", prev, n, g.d))
 		}
 		seen[f] = n
 	}

@@ -63,19 +63,7 @@ sawmill_2 AS MATERIALIZED (
                       ELSE
                         CASE WHEN x10 > 5e+00 THEN -- node 20
                           CASE WHEN x11 <= 5.5e+00 THEN -12 -- node 22, leaf 23
-                          ELSE
-                            CASE WHEN x12 > 6e+00 THEN -- node 24
-                              CASE WHEN x13 <= 6.5e+00 THEN -14 -- node 26, leaf 27
-                              ELSE
-                                CASE WHEN x14 > 7e+00 THEN -- node 28
-                                  CASE WHEN x15 <= 7.5e+00 THEN -16 -- node 30, leaf 31
-                                  ELSE -17 -- leaf 32
-                                  END
-                                ELSE -15 -- leaf 29
-                                END
-                              END
-                            ELSE -13 -- leaf 25
-                            END
+                          ELSE 24 -- to node 24
                           END
                         ELSE -11 -- leaf 21
                         END
@@ -97,6 +85,41 @@ sawmill_2 AS MATERIALIZED (
   FROM sawmill_1
 ),
 sawmill_3 AS MATERIALIZED (
+  SELECT
+    k0,
+    x0,
+    x1,
+    x2,
+    x3,
+    x4,
+    x5,
+    x6,
+    x7,
+    x8,
+    x9,
+    x10,
+    x11,
+    x12,
+    x13,
+    x14,
+    x15,
+    CASE WHEN n0 = 24 THEN
+      CASE WHEN x12 > 6e+00 THEN -- node 24
+        CASE WHEN x13 <= 6.5e+00 THEN -14 -- node 26, leaf 27
+        ELSE
+          CASE WHEN x14 > 7e+00 THEN -- node 28
+            CASE WHEN x15 <= 7.5e+00 THEN -16 -- node 30, leaf 31
+            ELSE -17 -- leaf 32
+            END
+          ELSE -15 -- leaf 29
+          END
+        END
+      ELSE -13 -- leaf 25
+      END
+    ELSE n0 END AS n0
+  FROM sawmill_2
+),
+sawmill_4 AS MATERIALIZED (
   SELECT
     k0,
     (0e+00
@@ -171,11 +194,11 @@ sawmill_3 AS MATERIALIZED (
       END
     END)
     / 1e+00 + 0e+00 AS z1
-  FROM sawmill_2
+  FROM sawmill_3
 )
 SELECT
   k0 AS "sawmill_row",
   z0 AS "ok */",
   z1 AS "no""pe' --",
   CASE WHEN z0 >= z1 THEN 'ok */' ELSE 'no"pe'' --' END AS "class"
-FROM sawmill_3;
+FROM sawmill_4;
