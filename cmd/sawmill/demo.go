@@ -359,7 +359,7 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, er
 				n++
 			}
 		}
-		said = append(said, fmt.Sprintf("%s: %d files in %s/", name, n, dir))
+		said = append(said, fmt.Sprintf("%s: %s in %s/", name, plural(n, "file"), dir))
 	}
 	return said, nil
 }

@@ -6,6 +6,7 @@ import (
 	"encoding/csv"
 	"io"
 	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -15,6 +16,7 @@ import (
 func newPredictCmd() *cobra.Command {
 	var out string
 	var keep []string
+	var force bool
 	c := &cobra.Command{
 		Use:   "predict MODEL.json ROWS.csv [-o OUT.csv] [--keep id,...]",
 		Short: "Score CSV rows with the reference interpreter",
@@ -35,18 +37,29 @@ exactly.`,
   sawmill predict pump-health.json readings.csv --keep pump_id,timestamp -o scores.csv`,
 		Args: exactArgs(2, "a model file and a CSV file of rows"),
 		RunE: func(c *cobra.Command, args []string) error {
-			return runPredict(c, args[0], args[1], out, keep)
+			return runPredict(c, args[0], args[1], out, keep, force)
 		},
 	}
 	c.Flags().StringVarP(&out, "output", "o", "", "write the CSV to this file instead of standard output")
 	c.Flags().StringSliceVar(&keep, "keep", nil, "columns to copy into the output, comma-separated (ids)")
+	c.Flags().BoolVar(&force, "force", false, "replace an existing -o file that is not an earlier output of predict")
 	return c
 }
 
-func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []string) error {
+func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []string, force bool) error {
 	f, err := readModel(modelPath)
 	if err != nil {
 		return err
+	}
+	if outPath != "" {
+		header := predictHeader(f, keep)
+		ours := func(path string) bool { // an earlier run's output: the same header
+			lines := headLines(path, 1)
+			return len(lines) == 1 && string(lines[0]) == csvLine(header)
+		}
+		if err := checkOutput(outPath, []string{modelPath, rowsPath}, force, "an earlier output of predict (its header differs)", ours); err != nil {
+			return err
+		}
 	}
 	rows, err := forest.ReadRowsFile(rowsPath, f.Features, forest.RowOptions{Keep: keep})
 	if err != nil {
@@ -81,15 +94,8 @@ func readModel(path string) (*forest.Forest, error) {
 // writePredictions writes the header and one line per row.
 func writePredictions(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []string) error {
 	cw := csv.NewWriter(w)
-	header := append([]string(nil), keep...)
+	header := predictHeader(f, keep)
 	logistic := f.IsClassifier() && f.NumOutputs() == 1
-	switch {
-	case f.IsClassifier():
-		header = append(header, f.Classes...)
-		header = append(header, "class")
-	default:
-		header = append(header, "prediction")
-	}
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -117,6 +123,26 @@ func writePredictions(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []s
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// predictHeader is predict's header line: the kept columns, then one column
+// per class and "class", or "prediction".
+func predictHeader(f *forest.Forest, keep []string) []string {
+	header := append([]string(nil), keep...)
+	if f.IsClassifier() {
+		header = append(header, f.Classes...)
+		return append(header, "class")
+	}
+	return append(header, "prediction")
+}
+
+// csvLine is rec as one CSV line, without the line end.
+func csvLine(rec []string) string {
+	var b bytes.Buffer
+	cw := csv.NewWriter(&b)
+	cw.Write(rec)
+	cw.Flush()
+	return strings.TrimRight(b.String(), "\r\n")
 }
 
 // num prints v in Go's shortest round-trip form.

@@ -17,7 +17,19 @@ func sqlTarget() target {
 				return nil, err
 			}
 			layout := fl.layout
-			return sql.Emit(p, sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: layout})
+			files, err := sql.Emit(p, sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: layout})
+			return sqlFileName(files, fl.name), err
 		},
 	}
+}
+
+// sqlFileName names the statement's file NAME.sql after --name; without it
+// the file keeps the emitter's name (score.sql).
+func sqlFileName(files []emit.File, name string) []emit.File {
+	for i := range files {
+		if name != "" && files[i].Name == sql.FileName {
+			files[i].Name = name + ".sql"
+		}
+	}
+	return files
 }

@@ -86,6 +86,9 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
+	if err := checkVerifyFlags(fl, golden.Runners()); err != nil {
+		return err
+	}
 	f, err := readModel(modelPath)
 	if err != nil {
 		return err
@@ -137,6 +140,9 @@ func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
 		case ch.Status == golden.NotRun && require:
 			bad = append(bad, fmt.Sprintf("%s could not run (--require): %s", ch.Name(), firstLine(ch.Reason)))
 		}
+	}
+	if ran := len(rep.Checks) - rep.Count(golden.NotRun); ran == 0 && len(bad) == 0 {
+		return fmt.Errorf("verify: no check ran, so nothing was verified\nhint: install a toolchain named under \"not run\", or choose other --target values")
 	}
 	if len(bad) == 0 {
 		return nil
