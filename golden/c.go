@@ -246,12 +246,15 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options,
 		return nil, fmt.Errorf("the header as C++: %v", cxxErr)
 	}
 	res := &Result{}
+	var tools []string
 	for _, j := range jobs {
 		if j.err != nil {
 			return nil, fmt.Errorf("%s: %v", j.b, j.err)
 		}
 		res.Build = max(res.Build, j.buildAt)
+		tools = append(tools, strings.Replace(j.b.String(), j.b.cc, ccVersion(j.b.cc), 1))
 	}
+	res.Toolchain = strings.Join(tools, "; ")
 	for _, j := range jobs[1:] {
 		if !bytes.Equal(j.out, jobs[0].out) {
 			return nil, fmt.Errorf("%s and %s print different outputs:\n%s", jobs[0].b, j.b, firstDiff(jobs[0].out, j.out))
@@ -262,6 +265,24 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options,
 		return nil, err
 	}
 	return res, nil
+}
+
+var ccVersions sync.Map // compiler name → "gcc 12.2.0"
+
+// ccVersion names a C compiler with its version, as -dumpversion prints
+// it (gcc and clang both take it), or the name alone when it says nothing.
+func ccVersion(cc string) string {
+	if v, ok := ccVersions.Load(cc); ok {
+		return v.(string)
+	}
+	name := cc
+	if out, err := exec.Command(cc, "-dumpfullversion", "-dumpversion").Output(); err == nil {
+		if v := strings.TrimSpace(string(out)); v != "" {
+			name = cc + " " + v
+		}
+	}
+	ccVersions.Store(cc, name)
+	return name
 }
 
 // cCommand runs name in dir; a failure returns its output.

@@ -88,6 +88,10 @@ type Result struct {
 	Classes []int     // per row for classifiers, else nil
 	Build   time.Duration
 	Run     time.Duration
+	// Toolchain names the compilers and versions that built the code, with
+	// their flags ("gcc 12.2.0 -std=c99 -O2; clang 14.0.6 -std=c11 -O0");
+	// "" when the runner does not say.
+	Toolchain string
 }
 
 // Runners lists every target's runner. A new target adds one line here.

@@ -125,6 +125,9 @@ type Check struct {
 	First           *Row   `json:"first_mismatch,omitempty"`
 	Build           Millis `json:"build_ms"`
 	Run             Millis `json:"run_ms"`
+	// Toolchain names the compilers and their versions that built the
+	// target (the C runner's builds), when the runner says.
+	Toolchain string `json:"toolchain,omitempty"`
 }
 
 // Name is "target", "target/variant" and the layout: "c/float table".
@@ -360,7 +363,7 @@ func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows
 		ch.Status, ch.Reason = Failed, err.Error()
 		return
 	}
-	ch.Build, ch.Run = Millis(res.Build), Millis(res.Run)
+	ch.Build, ch.Run, ch.Toolchain = Millis(res.Build), Millis(res.Run), res.Toolchain
 	exact, bound := r.Tolerance(ch.Variant, p)
 	ch.Exact, ch.Bound = exact, Num(bound)
 	k := f.NumOutputs()

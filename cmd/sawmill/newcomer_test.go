@@ -277,3 +277,33 @@ func TestErrorsDoNotMislead(t *testing.T) {
 	assert.Equal(t, 2, code)
 	assert.Contains(t, errs, "-o names the folder to write into, not a file")
 }
+
+// Small things: inspect prints shares readably and cuts no line; the
+// program's name is said once.
+func TestInspectAndMessagesTidy(t *testing.T) {
+	model := trainModel(t, t.TempDir())
+	code, out, errs := sawmill(t, "inspect", model)
+	require.Equal(t, 0, code, errs)
+	assert.NotContains(t, out, "…", "no line is cut")
+	assert.Regexp(t, `\n  oob_share +0\.\d{1,4}\n`, out, "four significant digits, not 0.3659200000000001")
+	assert.Contains(t, out, "seed=1", "the last setting is shown")
+	for _, line := range strings.Split(out, "\n") {
+		assert.LessOrEqual(t, len([]rune(line)), 100, "line %q", line)
+	}
+
+	code, _, errs = sawmill(t, "train", "testdata/pumps.csv", "--label", "state")
+	assert.Equal(t, 2, code)
+	assert.True(t, strings.HasPrefix(errs, "sawmill train: -o is required"), errs)
+}
+
+// verify names the C compilers and their versions that built the code, in
+// its text and in --json.
+func TestVerifyNamesCompiler(t *testing.T) {
+	code, out, errs := sawmill(t, "verify", "testdata/logistic.json", "--target", "c", "--layout", "nested", "--variant", "double")
+	skipIfNotRun(t, "c", out)
+	require.Equal(t, 0, code, errs)
+	assert.Regexp(t, `built with\n  c/double  gcc \d+\.\d+(\.\d+)? -std=c99 -O2; clang \d+\.\d+(\.\d+)? -std=c11 -O0\n`, out)
+	code, out, errs = sawmill(t, "verify", "testdata/logistic.json", "--target", "c", "--layout", "nested", "--variant", "double", "--json")
+	require.Equal(t, 0, code, errs)
+	assert.Regexp(t, `"toolchain": "gcc \d+[.\d]* -std=c99 -O2; clang \d+[.\d]* -std=c11 -O0"`, out)
+}

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -225,6 +226,7 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 		}
 	}
 
+	printToolchains(w, rep)
 	for _, ch := range rep.Checks {
 		switch ch.Status {
 		case golden.Failed:
@@ -249,6 +251,33 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 		fmt.Fprintf(w, ", %d did not", n)
 	}
 	fmt.Fprintln(w)
+}
+
+// printToolchains names the compilers (and versions) that built each
+// target, once per target and variant.
+func printToolchains(w io.Writer, rep *golden.Report) {
+	var lines [][2]string
+	for _, ch := range rep.Checks {
+		if ch.Toolchain == "" {
+			continue
+		}
+		name := ch.Target
+		if ch.Variant != "" {
+			name += "/" + ch.Variant
+		}
+		if !slices.ContainsFunc(lines, func(l [2]string) bool { return l == [2]string{name, ch.Toolchain} }) {
+			lines = append(lines, [2]string{name, ch.Toolchain})
+		}
+	}
+	if len(lines) == 0 {
+		return
+	}
+	fmt.Fprintln(w, "\nbuilt with")
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	for _, l := range lines {
+		fmt.Fprintf(tw, "  %s\t%s\n", l[0], l[1])
+	}
+	tw.Flush()
 }
 
 func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
