@@ -5,6 +5,7 @@ import (
 	"bytes"
 	"encoding/csv"
 	"io"
+	"os"
 	"strconv"
 	"strings"
 
@@ -61,22 +62,36 @@ func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []st
 			return err
 		}
 	}
-	rows, err := forest.ReadRowsFile(rowsPath, f.Features, forest.RowOptions{Keep: keep})
+	in, err := os.Open(rowsPath)
 	if err != nil {
 		return located(rowsPath, err)
 	}
+	defer in.Close()
+	rr, err := forest.NewRowReader(in, rowsPath, f.Features, forest.RowOptions{Keep: keep})
+	if err != nil {
+		return err
+	}
 	if outPath == "" {
-		bw := bufio.NewWriter(c.OutOrStdout())
-		if err := writePredictions(bw, f, rows, keep); err != nil {
+		bw := bufio.NewWriterSize(c.OutOrStdout(), 1<<16)
+		if err := streamPredictions(bw, f, rr, keep, 0); err != nil {
 			return err
 		}
 		return bw.Flush()
 	}
-	var buf bytes.Buffer
-	if err := writePredictions(&buf, f, rows, keep); err != nil {
+	af, err := createAtomic(outPath)
+	if err != nil {
+		return located(outPath, err)
+	}
+	bw := bufio.NewWriterSize(af, 1<<16)
+	err = streamPredictions(bw, f, rr, keep, 0)
+	if err == nil {
+		err = bw.Flush()
+	}
+	if err != nil {
+		af.abort()
 		return err
 	}
-	if err := forest.WriteFileAtomic(outPath, buf.Bytes(), 0o644); err != nil {
+	if err := af.commit(); err != nil {
 		return located(outPath, err)
 	}
 	return nil
@@ -94,13 +109,22 @@ func readModel(path string) (*forest.Forest, error) {
 // writePredictions writes the header and one line per row.
 func writePredictions(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []string) error {
 	cw := csv.NewWriter(w)
-	header := predictHeader(f, keep)
-	logistic := f.IsClassifier() && f.NumOutputs() == 1
-	if err := cw.Write(header); err != nil {
+	if err := cw.Write(predictHeader(f, keep)); err != nil {
 		return err
 	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	return writeRows(w, f, rows, keep)
+}
+
+// writeRows writes one line per row, without the header.
+func writeRows(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []string) error {
+	cw := csv.NewWriter(w)
+	logistic := f.IsClassifier() && f.NumOutputs() == 1
 	out := make([]float64, f.NumOutputs())
-	rec := make([]string, 0, len(header))
+	rec := make([]string, 0, len(keep)+f.NumOutputs()+1)
 	for i := range rows.Len() {
 		f.Predict(rows.Row(i), out)
 		rec = rec[:0]
