@@ -58,6 +58,7 @@ type compileFlags struct {
 	dumpAfter string
 	verbose   bool
 	force     bool
+	tables    string
 }
 
 func newCompileCmd() *cobra.Command {
@@ -94,6 +95,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
 	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")
 	f.StringVar(&fl.sample, "sample", "", "Go: rows (CSV) to check in the emitted test besides rows built from leaves")
+	f.StringVar(&fl.tables, "tables", "auto", "Go: the table layout's arrays as literal (one line per node), base64 (a blob, builds fast at any size) or auto (literal up to 50,000 nodes)")
 	f.StringSliceVar(&fl.lossy, "lossy", nil, "lossy passes to run (changes outputs; verify measures by how much)")
 	f.StringVar(&fl.dumpAfter, "dump-after", "", "print the program's text form after this pass ('lower' for before any)")
 	f.BoolVarP(&fl.verbose, "verbose", "v", false, "print what each pass did")

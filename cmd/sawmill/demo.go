@@ -18,6 +18,9 @@ import (
 	"sawmill/chart"
 	"sawmill/compile"
 	"sawmill/emit"
+	cemit "sawmill/emit/c"
+	"sawmill/emit/golang"
+	sqlemit "sawmill/emit/sql"
 	"sawmill/forest"
 	"sawmill/forest/train"
 	"sawmill/golden"
@@ -214,7 +217,7 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 
 	// 4. Compiling.
 	st.begin("compiling to every target")
-	compiled, err := demoCompile(f, put)
+	compiled, wrote, err := demoCompile(f, put)
 	if err != nil {
 		return err
 	}
@@ -238,7 +241,7 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 		}
 		fmt.Fprintln(out, line)
 	}
-	rep, err := demoVerify(f, rows, o)
+	rep, err := demoVerify(f, rows, o, wrote)
 	if err != nil {
 		return err
 	}
@@ -280,22 +283,35 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	return verifyVerdict(rep, demoScoreFile, false)
 }
 
-// demoVerify checks Go and C in every layout and variant, and each SQL
-// engine in its own dialect and the nested layout: the portable dialect and
-// the table layout on SQL cost minutes on a forest this size, and
-// sawmill verify --target sql runs them.
-func demoVerify(f *forest.Forest, rows *forest.Rows, o golden.VerifyOptions) (*golden.Report, error) {
-	o.Targets = []string{"go", "c"}
-	rep, err := golden.Verify(context.Background(), f, rows, o)
-	if err != nil {
-		return nil, fmt.Errorf("BUG: demo: verify: %v", err)
+// demoVerify checks exactly the files the demo left (wrote): Go and C in
+// the layout each was written in (C in double, as written), each SQL
+// engine's own file in its layout, and the portable (ANSI) file on every
+// engine, since it claims to run on each.
+func demoVerify(f *forest.Forest, rows *forest.Rows, o golden.VerifyOptions, wrote []demoWrote) (*golden.Report, error) {
+	var rep *golden.Report
+	for _, w := range wrote {
+		v := o
+		v.Layouts = []string{w.layout}
+		switch {
+		case w.target == "c":
+			v.Targets, v.Variants = []string{"c"}, []string{"double"}
+		case w.target == "sql" && w.dialect == golden.AnsiDialect:
+			v.Targets, v.Dialects = []string{"sql"}, []string{golden.AnsiDialect}
+		case w.target == "sql":
+			v.Targets, v.Dialects = []string{w.dialect}, []string{w.dialect}
+		default:
+			v.Targets = []string{w.target}
+		}
+		r, err := golden.Verify(context.Background(), f, rows, v)
+		if err != nil {
+			return nil, fmt.Errorf("BUG: demo: verify: %v", err)
+		}
+		if rep == nil {
+			rep = r
+		} else {
+			rep.Checks = append(rep.Checks, r.Checks...)
+		}
 	}
-	o.Targets, o.Dialects, o.Layouts = []string{"sql"}, []string{"sqlite", "duckdb", "postgres"}, []string{emit.Nested}
-	sql, err := golden.Verify(context.Background(), f, rows, o)
-	if err != nil {
-		return nil, fmt.Errorf("BUG: demo: verify: %v", err)
-	}
-	rep.Checks = append(rep.Checks, sql.Checks...)
 	return rep, nil
 }
 
@@ -323,10 +339,17 @@ func demoFolder(dir string, force bool) error {
 	return fmt.Errorf("%s: exists and was not made by sawmill demo; not writing into it\nhint: choose another -o folder, or pass --force", dir)
 }
 
+// demoWrote is one file (or pair) demoCompile left: the target, the SQL
+// dialect, and the layout auto chose, which the demo then verifies.
+type demoWrote struct {
+	target, dialect, layout string
+}
+
 // demoCompile emits the forest for every target the command line knows,
 // through the same table as sawmill compile, and reports what it wrote.
-func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, error) {
+func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []demoWrote, error) {
 	var said []string
+	var wrote []demoWrote
 	for _, name := range []string{"go", "c", "sql"} {
 		t, ok := findTarget(name)
 		if !ok {
@@ -354,26 +377,53 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, er
 		for _, fl := range variants {
 			p, _, err := compile.Compile(f, t.options(fl))
 			if err != nil {
-				return nil, fmt.Errorf("BUG: demo: compile for %s: %v", name, err)
+				return nil, nil, fmt.Errorf("BUG: demo: compile for %s: %v", name, err)
 			}
 			out, err := t.emit(p, fl)
 			if err != nil {
-				return nil, fmt.Errorf("BUG: demo: emit %s: %v", name, err)
+				return nil, nil, fmt.Errorf("BUG: demo: emit %s: %v", name, err)
 			}
+			layout, err := demoLayout(name, p, fl)
+			if err != nil {
+				return nil, nil, fmt.Errorf("BUG: demo: layout of %s: %v", name, err)
+			}
+			w := demoWrote{target: name, layout: layout}
+			if name == "sql" {
+				w.dialect = fl.dialect
+			}
+			wrote = append(wrote, w)
 			for _, file := range out {
 				fname := file.Name
 				if name == "sql" {
 					fname = demoCName + "." + fl.dialect + filepath.Ext(file.Name)
 				}
 				if err := put(dir+"/"+fname, file.Data); err != nil {
-					return nil, err
+					return nil, nil, err
 				}
 				n++
 			}
 		}
 		said = append(said, fmt.Sprintf("%s: %s in %s/", name, plural(n, "file"), dir))
 	}
-	return said, nil
+	return said, wrote, nil
+}
+
+// demoLayout is the layout the auto layout chose for a target's files.
+func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, error) {
+	switch target {
+	case "go":
+		return golang.ChooseLayout(p), nil
+	case "c":
+		l, _, err := cemit.Resolve(p, cemit.Options{Layout: fl.layout})
+		return l, err
+	case "sql":
+		d, err := sqlemit.ParseDialect(fl.dialect)
+		if err != nil {
+			return "", err
+		}
+		return sqlemit.Layout(p, sqlemit.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+	}
+	return "", fmt.Errorf("no layout for target %s", target)
 }
 
 // demoReadme says what the folder holds and how to use each piece.
@@ -451,7 +501,7 @@ func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Rep
 	}
 	p("`sawmill verify` built each target with its real toolchain or engine and\nscored %d rows (the %d readings, %s and %d rows at thresholds),\ncomparing every output with the model. Coverage: %d of %d leaves, %d of %d\nbranch directions.\n\n",
 		rep.Rows, rep.Given, leafRows, rep.ThresholdRows, rep.Coverage.LeavesHit, rep.Coverage.Leaves, rep.Coverage.BranchesHit, rep.Coverage.Branches)
-	p("The demo checks SQL in each engine's own dialect and the nested layout;\n`sawmill verify %s --target sql` checks the portable dialect and the\ntable layout too.\n\n", demoModelFile)
+	p("The demo checks exactly the files it left, each in the layout it was\nwritten in, the portable (`ansi`) SQL file on every engine;\n`sawmill verify %s` checks every layout and variant.\n\n", demoModelFile)
 	p("| target | layout | result |\n|---|---|---|\n")
 	for _, ch := range rep.Checks {
 		name := ch.Target

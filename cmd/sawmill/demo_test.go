@@ -130,7 +130,7 @@ func TestDemoEndToEnd(t *testing.T) {
 
 	var rep struct {
 		Checks []struct {
-			Target, Status, Reason string
+			Target, Variant, Layout, Status, Reason string
 		} `json:"checks"`
 	}
 	b, err := os.ReadFile(filepath.Join(dir, demoVerifyJSN))
@@ -148,6 +148,21 @@ func TestDemoEndToEnd(t *testing.T) {
 		}
 	}
 	require.True(t, ran["go"], "the Go target needs only the Go toolchain, which runs this test")
+
+	// Exactly the files left are verified, each in the layout it was
+	// written in: one Go package, the double C files, each engine's own
+	// SQL file and the portable one on every engine.
+	count := map[string]int{}
+	for _, c := range rep.Checks {
+		count[c.Target+"/"+c.Variant]++
+		if c.Target == "go" {
+			src, err := os.ReadFile(filepath.Join(dir, "go", demoGoPackage, "model.go"))
+			require.NoError(t, err)
+			require.Contains(t, string(src), "Layout "+c.Layout+":", "the Go check ran the layout the file has")
+		}
+	}
+	require.Equal(t, map[string]int{"go/": 1, "c/double": 1, "sqlite/": 1, "duckdb/": 1, "postgres/": 1,
+		"sqlite/ansi": 1, "duckdb/ansi": 1, "postgres/ansi": 1}, count)
 
 	// The scores the demo left are the interpreter's.
 	pred, err := os.ReadFile(filepath.Join(dir, demoPredFile))
