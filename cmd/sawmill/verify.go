@@ -358,21 +358,14 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 		fmt.Fprintln(w, "  (the target takes float32 inputs: want is the model on these values rounded to float32)")
 	}
 	tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
-	vec := func(v []golden.Num) string {
-		s := make([]string, len(v))
-		for i, x := range v {
-			s[i] = cell(float64(x))
-		}
-		return strings.Join(s, "\t")
-	}
 	cls := func(c string) string {
 		if c == "" {
 			return ""
 		}
 		return "\tclass " + c
 	}
-	fmt.Fprintf(tw, "  want\t%s%s\n", vec(r.Want), cls(r.WantClass))
-	fmt.Fprintf(tw, "  got\t%s%s\n", vec(r.Got), cls(r.GotClass))
+	fmt.Fprintf(tw, "  want\t%s%s\n", cells(r.Want), cls(r.WantClass))
+	fmt.Fprintf(tw, "  got\t%s%s\n", cells(r.Got), cls(r.GotClass))
 	tw.Flush()
 	if r.Output >= 0 {
 		d := math.Abs(float64(r.Got[r.Output]) - float64(r.Want[r.Output]))
@@ -380,6 +373,15 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 	} else {
 		fmt.Fprintf(w, "  the predicted class differs; %d of %d rows agree, %d labels differ\n", ch.Matches, ch.Rows, ch.LabelMismatches)
 	}
+}
+
+// cells prints outputs as cell does, tab-separated for a tabwriter.
+func cells(v []golden.Num) string {
+	s := make([]string, len(v))
+	for i, x := range v {
+		s[i] = cell(float64(x))
+	}
+	return strings.Join(s, "\t")
 }
 
 // cell prints a value as predict does, with missing shown as empty cells

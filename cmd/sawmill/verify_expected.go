@@ -187,15 +187,8 @@ func printExpected(w io.Writer, rep *golden.Report, dataPath string) {
 		}
 		tw.Flush()
 		tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
-		vec := func(v []golden.Num) string {
-			s := make([]string, len(v))
-			for i, x := range v {
-				s[i] = cell(float64(x))
-			}
-			return strings.Join(s, "\t")
-		}
-		fmt.Fprintf(tw, "  recorded\t%s\n", vec(r.Want))
-		fmt.Fprintf(tw, "  got\t%s\n", vec(r.Got))
+		fmt.Fprintf(tw, "  recorded\t%s\n", cells(r.Want))
+		fmt.Fprintf(tw, "  got\t%s\n", cells(r.Got))
 		tw.Flush()
 		fmt.Fprintf(w, "  output %d is off by more than %.3g\n", r.Output, float64(a.Tolerance))
 	}
