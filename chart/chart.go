@@ -11,6 +11,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"regexp"
 	"slices"
 	"strconv"
 	"strings"
@@ -20,6 +21,7 @@ import (
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgsvg"
 
 	"sawmill/forest"
 )
@@ -99,9 +101,8 @@ var (
 	height = 4 * vg.Inch
 )
 
-// sans is Liberation Sans, whose widths match Arial and Helvetica, so the
-// layout gonum computes holds in viewers that substitute those (see
-// fontFallback).
+// sans is Liberation Sans, which gonum/plot ships (codeberg.org/go-fonts/
+// liberation) and measures text with; see render for what viewers use.
 var sans = font.Font{Typeface: "Liberation", Variant: "Sans"}
 
 func newPlot(title, x, y string) *plot.Plot {
@@ -110,10 +111,10 @@ func newPlot(title, x, y string) *plot.Plot {
 		&p.X.Tick.Label.Font, &p.Y.Tick.Label.Font, &p.Legend.TextStyle.Font} {
 		size := f.Size
 		*f = sans
-		f.Size = size
+		f.Size = size * fontSlack
 	}
 	p.Title.Text = title
-	p.Title.TextStyle.Font.Size = vg.Points(13)
+	p.Title.TextStyle.Font.Size = textSize(13)
 	p.Title.Padding = vg.Points(8)
 	p.X.Label.Text = x
 	p.Y.Label.Text = y
@@ -128,7 +129,7 @@ func (c *Curve) SVG() ([]byte, error) {
 	if len(c.Trees) == 0 || len(c.Trees) != len(c.Error) {
 		return nil, fmt.Errorf("chart: out-of-bag curve has %d tree counts and %d errors", len(c.Trees), len(c.Error))
 	}
-	title, unit := "Out-of-bag error by number of trees", "out-of-bag error rate (share misclassified)"
+	title, unit := "Out-of-bag error by number of trees", "error rate (share misclassified)"
 	if c.Regression {
 		title, unit = "Out-of-bag mean squared error by number of trees", "out-of-bag mean squared error"
 	}
@@ -181,9 +182,9 @@ func (im *Importance) SVG() ([]byte, error) {
 		names[i] = im.Features[j]
 		lo, hi = min(lo, vals[i]), max(hi, vals[i])
 	}
-	unit := "increase in out-of-bag error rate when the feature is permuted"
+	unit := "increase in out-of-bag error rate, feature permuted"
 	if im.Regression {
-		unit = "increase in out-of-bag mean squared error when the feature is permuted"
+		unit = "increase in out-of-bag mean squared error, feature permuted"
 	}
 	p := newPlot("Permutation importance of each feature", unit, "")
 	bars, err := plotter.NewBarChart(vals, vg.Points(16))
@@ -203,14 +204,14 @@ func (im *Importance) SVG() ([]byte, error) {
 	}
 	for i := range labels.TextStyle {
 		labels.TextStyle[i].Font = sans
-		labels.TextStyle[i].Font.Size = vg.Points(9)
+		labels.TextStyle[i].Font.Size = textSize(9)
 		labels.TextStyle[i].YAlign = draw.YCenter
 		labels.TextStyle[i].Handler = p.X.Label.TextStyle.Handler
 	}
 	p.Add(grid, bars, labels)
 	p.NominalY(names...)
 	p.Y.Min, p.Y.Max = -0.6, float64(n)-0.4
-	p.Y.Tick.Label.Font.Size = vg.Points(10)
+	p.Y.Tick.Label.Font.Size = textSize(10)
 	p.X.Min = math.Min(0, lo*1.25)
 	p.X.Max = niceTop(hi * 1.15) // room for the value labels
 	h := max(2.2*vg.Inch, vg.Inch+vg.Points(26)*vg.Length(n))
@@ -275,23 +276,71 @@ func barLabels(vals plotter.Values, span float64) plotter.XYLabels {
 	return l
 }
 
+// margin is the blank border around every chart, so that no label touches
+// the edge of the picture.
+const margin = 14 * vg.Millimeter / 4 // 3.5 mm, about 10 points
+
+// render draws p into an SVG of w by h with a margin all round. The text
+// names Liberation Sans, which the layout was measured with, then fonts
+// of the same widths, then the generic sans-serif, so that it shows on a
+// machine with none of them installed (fontFamilies). Embedding the font
+// instead (gonum's vgsvg.EmbedFonts) would make each chart half a
+// megabyte.
 func render(p *plot.Plot, w, h vg.Length) ([]byte, error) {
-	wt, err := p.WriterTo(w, h, "svg")
-	if err != nil {
-		return nil, fmt.Errorf("chart: %v", err)
-	}
+	c := vgsvg.NewWith(vgsvg.UseWH(w, h))
+	p.Draw(draw.Crop(draw.New(c), margin, -margin, margin, -margin))
 	var b bytes.Buffer
-	if _, err := wt.WriteTo(&b); err != nil {
+	if _, err := c.WriteTo(&b); err != nil {
 		return nil, fmt.Errorf("chart: %v", err)
 	}
-	return fontFallback(b.Bytes()), nil
+	return marked(shrinkText(fontFamilies(b.Bytes()))), nil
 }
 
-// fontFallback names metric-compatible fonts after Liberation Sans, so a
-// viewer without it keeps the widths the layout was computed with.
-func fontFallback(svg []byte) []byte {
+// fontSlack is how much wider than the Liberation Sans the layout is
+// measured with the text may be drawn and still fit its place: DejaVu
+// Sans, the sans-serif of many Linux machines without Liberation, runs
+// 1.10 to 1.15 times as wide over the charts' labels (measured with
+// gonum's font cache and Debian's fonts-dejavu-core 2.37). Text is laid
+// out at fontSlack times its size and drawn at its size (shrinkText), so
+// that in any of the fonts render names, or in DejaVu Sans, no label
+// overruns its neighbour or the picture's edge.
+const fontSlack = 1.16
+
+// textSize is the size to lay text of pt points out at.
+func textSize(pt float64) vg.Length { return vg.Points(pt) * fontSlack }
+
+var fontSize = regexp.MustCompile(`font-size:([0-9.]+)px`)
+
+// shrinkText draws every text at its size, fontSlack below the size its
+// place was measured at.
+func shrinkText(svg []byte) []byte {
+	return fontSize.ReplaceAllFunc(svg, func(m []byte) []byte {
+		v, err := strconv.ParseFloat(string(fontSize.FindSubmatch(m)[1]), 64)
+		if err != nil {
+			return m
+		}
+		return []byte("font-size:" + strconv.FormatFloat(v/fontSlack, 'f', 2, 64) + "px")
+	})
+}
+
+// fontFamilies lists, after Liberation Sans, the fonts with its widths
+// (Arimo, Arial, Helvetica) and the generic family every SVG viewer has.
+func fontFamilies(svg []byte) []byte {
 	return bytes.ReplaceAll(svg, []byte("font-family:Liberation Sans;"),
 		[]byte("font-family:'Liberation Sans',Arimo,Arial,Helvetica,sans-serif;"))
+}
+
+// marked names sawmill as the chart's generator in the comment after the
+// XML declaration, so that sawmill train --plots knows a chart it drew
+// from a file of the user's, which it does not overwrite.
+func marked(svg []byte) []byte {
+	const mark = "<!-- Generated by sawmill (drawn with gonum.org/v1/plot); sawmill train redraws it when asked to. -->"
+	if i := bytes.Index(svg, []byte("<!--")); i >= 0 && bytes.Count(svg[:i], []byte("\n")) < 2 {
+		if j := bytes.Index(svg[i:], []byte("-->")); j >= 0 {
+			return append(append(append([]byte(nil), svg[:i]...), mark...), svg[i+j+3:]...)
+		}
+	}
+	return svg
 }
 
 // niceTop is a round axis maximum a little above v (1 for v <= 0).

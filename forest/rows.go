@@ -51,6 +51,33 @@ func ReadRowsFile(path string, features []string, o RowOptions) (*Rows, error) {
 // -inf are infinities, as strconv reads them. Any other non-number is an
 // error naming the line and column; all problems are reported up to a cap.
 func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows, error) {
+	rr, err := NewRowReader(r, name, features, o)
+	if err != nil {
+		return nil, err
+	}
+	rows, err := rr.Next(math.MaxInt)
+	if err == io.EOF {
+		return &Rows{Features: features}, nil
+	}
+	return rows, err
+}
+
+// RowReader reads a row file a chunk of rows at a time, for files of any
+// size: what ReadRows does, with memory bounded by the chunk.
+type RowReader struct {
+	cr       *csv.Reader
+	name     string
+	features []string
+	idx      []int // the column of each feature
+	keep     []int // the column of each kept column
+	width    int   // cells in the header
+	done     bool
+}
+
+// NewRowReader reads the header of a row file and matches its columns to
+// features and to o.Keep; a problem with the header is an error naming
+// every missing column.
+func NewRowReader(r io.Reader, name string, features []string, o RowOptions) (*RowReader, error) {
 	cr := csv.NewReader(r)
 	cr.ReuseRecord = true
 	header, err := cr.Read()
@@ -107,37 +134,49 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 	if p.Len() > 0 {
 		return nil, p.Err()
 	}
-	rows := &Rows{Features: features}
-	for {
-		rec, err := cr.Read()
+	return &RowReader{cr: cr, name: name, features: features, idx: idx, keep: keep, width: len(header)}, nil
+}
+
+// Next reads up to max rows (at least one). It returns io.EOF when no row
+// is left. A chunk with bad cells is an error naming each, up to a cap;
+// reading stops there.
+func (rr *RowReader) Next(max int) (*Rows, error) {
+	if rr.done {
+		return nil, io.EOF
+	}
+	var p Problems
+	rows := &Rows{Features: rr.features}
+	for rows.Len() < max {
+		rec, err := rr.cr.Read()
 		if err == io.EOF {
+			rr.done = true
 			break
 		}
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
-				p.Add("%s:%d: has %d cells, the header has %d", name, pe.StartLine, len(rec), len(header))
+				p.Add("%s:%d: has %d cells, the header has %d", rr.name, pe.StartLine, len(rec), rr.width)
 				if p.Full() {
 					break
 				}
 				continue
 			}
-			p.Add("%s: %s", name, csvError(err))
+			p.Add("%s: %s", rr.name, csvError(err))
 			break
 		}
 		// Only after a successful read: FieldPos panics on a record that
 		// failed with no fields (an unterminated quote).
-		line, _ := cr.FieldPos(0)
-		for i, c := range idx {
+		line, _ := rr.cr.FieldPos(0)
+		for i, c := range rr.idx {
 			v, msg := ParseCell(rec[c])
 			if msg != "" {
-				p.Add("%s:%d: column %q: %s", name, line, features[i], msg)
+				p.Add("%s:%d: column %q: %s", rr.name, line, rr.features[i], msg)
 			}
 			rows.Values = append(rows.Values, v)
 		}
-		if len(keep) > 0 {
-			ex := make([]string, len(keep))
-			for i, c := range keep {
+		if len(rr.keep) > 0 {
+			ex := make([]string, len(rr.keep))
+			for i, c := range rr.keep {
 				ex[i] = rec[c]
 			}
 			rows.Extra = append(rows.Extra, ex)
@@ -148,7 +187,11 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 		}
 	}
 	if err := p.Err(); err != nil {
+		rr.done = true
 		return nil, err
+	}
+	if rows.Len() == 0 && rr.done {
+		return nil, io.EOF
 	}
 	return rows, nil
 }

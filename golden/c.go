@@ -33,7 +33,7 @@ import (
 // clang at -std=c99 and -std=c11 and -O0 and -O2 plus a gcc build with
 // -fsanitize=address,undefined and a C++ compile of the header, or, above
 // cFullMatrixNodes nodes, cBigMatrix. On a machine with one C compiler the
-// builds are done with that one (cBuilds), and Result.Tool says which.
+// builds are done with that one (cBuilds), and Result.Toolchain says which.
 type cRunner struct {
 	Full bool
 }
@@ -200,21 +200,6 @@ func firstPresent(have map[string]string, names ...string) string {
 	panic("BUG: cBuilds without a C compiler")
 }
 
-// cToolNote names the compilers of builds, with their versions, for
-// Result.Tool.
-func cToolNote(builds []cBuild, cxx bool) string {
-	var names []string
-	for _, b := range builds {
-		if n := b.cc + ": " + cToolsOnce.version[b.cc]; !slices.Contains(names, n) {
-			names = append(names, n)
-		}
-	}
-	if cxx {
-		names = append(names, "g++: "+cToolsOnce.version["g++"])
-	}
-	return strings.Join(names, "; ")
-}
-
 // cxxPresent reports whether g++ is there to check the header as C++.
 func cxxPresent() bool { _, ok := cToolsOnce.version["g++"]; return ok }
 
@@ -319,23 +304,46 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options,
 		return nil, fmt.Errorf("the header as C++: %v", cxxErr)
 	}
 	res := &Result{}
+	var tools []string
 	for _, j := range jobs {
 		if j.err != nil {
 			return nil, fmt.Errorf("%s: %v", j.b, j.err)
 		}
 		res.Build = max(res.Build, j.buildAt)
+		tools = append(tools, strings.Replace(j.b.String(), j.b.cc, ccVersion(j.b.cc), 1))
 	}
+	res.Toolchain = strings.Join(tools, "; ")
 	for _, j := range jobs[1:] {
 		if !bytes.Equal(j.out, jobs[0].out) {
 			return nil, fmt.Errorf("%s and %s print different outputs:\n%s", jobs[0].b, j.b, firstDiff(jobs[0].out, j.out))
 		}
 	}
 	res.Run = jobs[0].runFor
-	res.Tool = cToolNote(matrix, cxx)
+	if cxx {
+		res.Toolchain += "; " + ccVersion("g++") + " (the header as C++)"
+	}
 	if err := parseCOutput(jobs[0].out, p, rows.Len(), res); err != nil {
 		return nil, err
 	}
 	return res, nil
+}
+
+var ccVersions sync.Map // compiler name → "gcc 12.2.0"
+
+// ccVersion names a C compiler with its version, as -dumpversion prints
+// it (gcc and clang both take it), or the name alone when it says nothing.
+func ccVersion(cc string) string {
+	if v, ok := ccVersions.Load(cc); ok {
+		return v.(string)
+	}
+	name := cc
+	if out, err := exec.Command(cc, "-dumpfullversion", "-dumpversion").Output(); err == nil {
+		if v := strings.TrimSpace(string(out)); v != "" {
+			name = cc + " " + v
+		}
+	}
+	ccVersions.Store(cc, name)
+	return name
 }
 
 // cCommand runs name in dir; a failure returns its output.

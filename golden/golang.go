@@ -196,6 +196,7 @@ func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ strin
 		return nil, err
 	}
 	res.Build = total - res.Run
+	res.Toolchain = strings.TrimSpace(goEnvOnce.version + " test " + vet)
 	return res, nil
 }
 
@@ -241,8 +242,9 @@ func parseGoOutput(out *bytes.Buffer, p *compile.Program, n int, res *Result) er
 
 var goEnvOnce struct {
 	sync.Once
-	env []string
-	err error
+	env     []string
+	version string // "go1.26.8", as go env GOVERSION says
+	err     error
 }
 
 // goEnv is the environment for the go command: the user's build cache
@@ -261,6 +263,9 @@ func goEnv() ([]string, error) {
 			env = append(env, "GOCACHE="+filepath.Join(os.TempDir(), "sawmill-gocache"))
 		}
 		goEnvOnce.env = env
+		if v, err := exec.Command("go", "env", "GOVERSION").Output(); err == nil {
+			goEnvOnce.version = strings.TrimSpace(string(v))
+		}
 	})
 	return goEnvOnce.env, goEnvOnce.err
 }

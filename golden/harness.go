@@ -88,9 +88,11 @@ type Result struct {
 	Classes []int     // per row for classifiers, else nil
 	Build   time.Duration
 	Run     time.Duration
-	// Tool names the toolchain or engine that ran, with its version, when
-	// the runner can say (the C compilers used, the sqlite3 shell).
-	Tool string
+	// Toolchain names the compilers, engines and versions that built or ran
+	// the code, with their flags where they matter ("gcc 12.2.0 -std=c99
+	// -O2; clang 14.0.6 -std=c11 -O0", "sqlite3 3.40.1 (/usr/bin/sqlite3)");
+	// "" when the runner does not say.
+	Toolchain string
 }
 
 // Runners lists every target's runner. A new target adds one line here.

@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"net/url"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -14,6 +15,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"github.com/jackc/pgx/v5/pgconn"
 	_ "github.com/jackc/pgx/v5/stdlib" // database/sql driver "pgx"
 	_ "modernc.org/sqlite"             // database/sql driver "sqlite", pure Go
 
@@ -195,6 +197,33 @@ func PostgresDSN() (dsn string, fromEnv bool) {
 	return "postgres://postgres@127.0.0.1:5432/test?sslmode=disable&connect_timeout=5", false
 }
 
+// redactDSN hides a password in a connection string for messages.
+func redactDSN(dsn string) string {
+	u, err := url.Parse(dsn)
+	if err != nil || u.User == nil {
+		return dsn
+	}
+	if _, ok := u.User.Password(); ok {
+		u.User = url.UserPassword(u.User.Username(), "xxxxx")
+	}
+	return u.String()
+}
+
+// pgHint says how to create the database when the server answered that it
+// does not exist (SQLSTATE 3D000, invalid_catalog_name, PostgreSQL's
+// "Appendix A. Error Codes").
+func pgHint(err error, dsn string) string {
+	var pe *pgconn.PgError
+	if !errors.As(err, &pe) || pe.Code != "3D000" {
+		return ""
+	}
+	db := "NAME"
+	if u, err := url.Parse(dsn); err == nil && strings.TrimPrefix(u.Path, "/") != "" {
+		db = strings.TrimPrefix(u.Path, "/")
+	}
+	return fmt.Sprintf("\nhint: create the database first, e.g. createdb %s (or psql -c 'CREATE DATABASE %s')", db, db)
+}
+
 var pgSchemas atomic.Int64
 
 func openPostgres(ctx context.Context) (*sqlDB, error) {
@@ -208,7 +237,7 @@ func openPostgres(ctx context.Context) (*sqlDB, error) {
 		if !fromEnv {
 			return nil, fmt.Errorf("%w: no PostgreSQL server answers at the default %s (%v); set SAWMILL_POSTGRES_DSN", ErrSkip, dsn, err)
 		}
-		return nil, fmt.Errorf("PostgreSQL at SAWMILL_POSTGRES_DSN: %v", err)
+		return nil, fmt.Errorf("PostgreSQL at %s: %v%s", redactDSN(dsn), err, pgHint(err, dsn))
 	}
 	pctx, cancel := context.WithTimeout(ctx, 10*time.Second)
 	defer cancel()
@@ -463,7 +492,7 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	if err == nil && r.engine == "sqlite" {
 		var v string
 		if db.conn.QueryRowContext(ctx, "SELECT sqlite_version()").Scan(&v) == nil {
-			res.Tool = "SQLite " + v + " embedded in sawmill (modernc.org/sqlite)"
+			res.Toolchain = "SQLite " + v + " embedded in sawmill (modernc.org/sqlite)"
 		}
 	}
 	return res, err

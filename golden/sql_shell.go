@@ -169,7 +169,7 @@ func shellRun(ctx context.Context, p *compile.Program, o sqlemit.Options, text, 
 		return nil, err
 	}
 	res.Run = took
-	res.Tool = fmt.Sprintf("sqlite3 %s (%s)", version, shell)
+	res.Toolchain = fmt.Sprintf("sqlite3 %s (%s)", version, shell)
 	return res, nil
 }
 

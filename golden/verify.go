@@ -53,6 +53,15 @@ type VerifyOptions struct {
 	TempDir string
 	// Done, when set, is called after each check.
 	Done func(c *Check)
+	// Expected, when set, holds outputs the library that trained the model
+	// recorded for the given rows, NumOutputs per row back to back, in row
+	// order. The interpreter (Report.Expected) and every check
+	// (Check.Expected) are held against them within ExpectedTolerance, plus
+	// the check's own bound where it is not bit-exact. ExpectedSource names
+	// them in reports.
+	Expected          []float64
+	ExpectedTolerance float64
+	ExpectedSource    string
 	// Tamper, when set, edits each program after compilation and before it
 	// is emitted, so tests can plant a fault in emitted code and see that
 	// Verify catches it. The reference stays the untouched model.
@@ -82,7 +91,9 @@ type Report struct {
 	ThresholdRows int      `json:"threshold_rows"`
 	Capped        bool     `json:"capped"` // generated rows were cut to MaxRows
 	Coverage      Coverage `json:"coverage"`
-	Checks        []*Check `json:"checks"`
+	// Expected is the interpreter against VerifyOptions.Expected.
+	Expected *Agreement `json:"expected,omitempty"`
+	Checks   []*Check   `json:"checks"`
 }
 
 // Coverage is compile.Cover's measure of the rows.
@@ -128,9 +139,11 @@ type Check struct {
 	First           *Row   `json:"first_mismatch,omitempty"`
 	Build           Millis `json:"build_ms"`
 	Run             Millis `json:"run_ms"`
-	// Tool names what built or ran the code, when the runner says (the C
-	// compilers, the sqlite3 shell), with its version.
-	Tool string `json:"tool,omitempty"`
+	// Toolchain names the compilers and their versions that built the
+	// target (the C runner's builds), when the runner says.
+	Toolchain string `json:"toolchain,omitempty"`
+	// Expected is the target against VerifyOptions.Expected.
+	Expected *Agreement `json:"expected,omitempty"`
 }
 
 // Name is "target", "target/variant" and the layout: "c/float table".
@@ -190,10 +203,14 @@ func (m Millis) MarshalJSON() ([]byte, error) {
 	return strconv.AppendFloat(nil, float64(time.Duration(m).Microseconds())/1000, 'f', -1, 64), nil
 }
 
-// OK reports whether every check that ran agreed.
+// OK reports whether every check that ran agreed, with the recorded
+// outputs too when there are any.
 func (r *Report) OK() bool {
+	if !r.Expected.OK() {
+		return false
+	}
 	for _, c := range r.Checks {
-		if c.Status == Differ || c.Status == Failed {
+		if c.Status == Differ || c.Status == Failed || !c.Expected.OK() {
 			return false
 		}
 	}
@@ -251,6 +268,13 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 		}
 		return refs[round32]
 	}
+	if o.Expected != nil {
+		k := f.NumOutputs()
+		if len(o.Expected) != rep.Given*k {
+			return nil, fmt.Errorf("%d expected outputs for %d given rows of %d outputs", len(o.Expected), rep.Given, k)
+		}
+		rep.Expected = agree(f, rows, o.ExpectedSource, o.Expected, refFor(false).outputs, k, o.ExpectedTolerance)
+	}
 
 	for _, name := range missing {
 		ch := &Check{Target: name, Status: NotRun, Reason: "no " + name + " runner in this build of sawmill"}
@@ -302,7 +326,10 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 					}
 					fi, ok := r.(interface{ Float32Inputs(variant string) bool })
 					ch.Float32Inputs = ok && fi.Float32Inputs(variant)
-					runCheck(ctx, ch, r, p, rows, f, refFor(ch.Float32Inputs), o.TempDir)
+					got := runCheck(ctx, ch, r, p, rows, f, refFor(ch.Float32Inputs), o.TempDir)
+					if o.Expected != nil && got != nil {
+						ch.Expected = agree(f, rows, o.ExpectedSource, o.Expected, got, f.NumOutputs(), o.ExpectedTolerance+float64(ch.Bound))
+					}
 				}
 				rep.Checks = append(rep.Checks, ch)
 				if o.Done != nil {
@@ -352,37 +379,39 @@ func newReference(f *forest.Forest, x [][]float64, round32 bool) *reference {
 	return ref
 }
 
-func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows *forest.Rows, f *forest.Forest, ref *reference, tmp string) {
+// runCheck scores rows with the runner, fills ch, and returns the outputs
+// it got (nil when it got none).
+func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows *forest.Rows, f *forest.Forest, ref *reference, tmp string) []float64 {
 	want, wantCls := ref.outputs, ref.classes
 	dir, err := os.MkdirTemp(tmp, "sawmill-verify-")
 	if err != nil {
 		ch.Status, ch.Reason = Failed, err.Error()
-		return
+		return nil
 	}
 	defer os.RemoveAll(dir)
 	res, err := r.Score(ctx, p, ch.Layout, ch.Variant, rows, dir)
 	switch {
 	case errors.Is(err, ErrSkip):
 		ch.Status, ch.Reason = NotRun, err.Error()
-		return
+		return nil
 	case err != nil:
 		ch.Status, ch.Reason = Failed, err.Error()
-		return
+		return nil
 	}
-	ch.Build, ch.Run, ch.Tool = Millis(res.Build), Millis(res.Run), res.Tool
+	ch.Build, ch.Run, ch.Toolchain = Millis(res.Build), Millis(res.Run), res.Toolchain
 	exact, bound := r.Tolerance(ch.Variant, p)
 	ch.Exact, ch.Bound = exact, Num(bound)
 	k := f.NumOutputs()
 	if len(res.Outputs) != len(want) {
 		ch.Status = Failed
 		ch.Reason = fmt.Sprintf("%d outputs for %d rows, want %d (%d per row)", len(res.Outputs), rows.Len(), len(want), k)
-		return
+		return nil
 	}
 	m := Compare(want, res.Outputs, wantCls, res.Classes, k, exact, bound)
 	ch.Matches, ch.LabelMismatches, ch.MaxAbsDiff = m.Exact, m.LabelMismatch, Num(m.MaxAbsDiff)
 	if m.OK() {
 		ch.Status = Agree
-		return
+		return res.Outputs
 	}
 	ch.Status = Differ
 	first := m.FirstRow
@@ -390,6 +419,7 @@ func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows
 		first = 0
 	}
 	ch.First = describeRow(f, rows, first, m.FirstOutput, want, res, wantCls)
+	return res.Outputs
 }
 
 func describeRow(f *forest.Forest, rows *forest.Rows, i, output int, want []float64, res *Result, wantCls []int) *Row {

@@ -17,5 +17,5 @@ go build -o "$tmp/train-bench" ./bench/train
 go build -o "$tmp/c-bench" ./bench/c
 go build -o "$tmp/sawmill" ./cmd/sawmill
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "$rows" -seed 1
-"$tmp/sawmill" train "$tmp/data.csv" --label label --trees "$trees" --max-depth "$depth" --seed 1 -o "$tmp/model.json" >/dev/null
+"$tmp/sawmill" train "$tmp/data.csv" --label label --task classification --trees "$trees" --max-depth "$depth" --seed 1 -o "$tmp/model.json" >/dev/null
 "$tmp/c-bench" -model "$tmp/model.json" -sizes

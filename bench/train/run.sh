@@ -47,7 +47,7 @@ echo "  sawmill (OOB error and importance)  $ours_imp s"
 echo "  scikit-learn (no OOB)               $theirs s"
 awk -v a="$ours" -v b="$theirs" -v c="$ours_imp" 'BEGIN { printf "  ratio sawmill / scikit-learn: %.2f (with importance %.2f)\n", a / b, c / b }'
 
-/usr/bin/time -f "%M %e" -o "$tmp/time" "$tmp/sawmill" train "$tmp/data.csv" --label label \
+/usr/bin/time -f "%M %e" -o "$tmp/time" "$tmp/sawmill" train "$tmp/data.csv" --label label --task classification \
 	--trees 100 --threads 2 -o "$tmp/model.json" >/dev/null
 read -r rss wall <"$tmp/time"
 awk -v k="$rss" -v w="$wall" 'BEGIN { printf "sawmill train (CLI, read CSV, train, importance, write): %.1f s wall, peak RSS %.0f MB\n", w, k / 1024 }'

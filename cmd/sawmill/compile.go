@@ -1,8 +1,6 @@
 package main
 
 import (
-	"bufio"
-	"bytes"
 	"fmt"
 	"io"
 	"os"
@@ -64,6 +62,7 @@ type compileFlags struct {
 	columns   []string // SQL: feature=column pairs
 	selftest  bool     // SQL: also write the self-test script
 	model     *forest.Forest
+	tables    string
 }
 
 func newCompileCmd() *cobra.Command {
@@ -93,13 +92,14 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringVarP(&fl.out, "output", "o", "", "output folder (required; created if missing)")
 	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table or branchless (target-dependent)")
 	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
-	f.StringVar(&fl.name, "name", "model", "C: base name of NAME.h, NAME.c and the NAME_ prefix; SQL: file name")
+	f.StringVar(&fl.name, "name", "", "C: base name of NAME.h, NAME.c and the NAME_ prefix (default model); SQL: the file NAME.sql (default score)")
 	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
 	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb or ansi")
 	f.StringVar(&fl.table, "table", "input", "SQL: the relation to read; its columns are named like the features")
 	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
 	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")
 	f.StringVar(&fl.sample, "sample", "", "Go: rows (CSV) to check in the emitted test besides rows built from leaves")
+	f.StringVar(&fl.tables, "tables", "auto", "Go: the table layout's arrays as literal (one line per node), base64 (a blob, builds fast at any size) or auto (literal up to 50,000 nodes)")
 	f.StringSliceVar(&fl.lossy, "lossy", nil, "lossy passes to run (changes outputs; verify measures by how much)")
 	f.StringVar(&fl.dumpAfter, "dump-after", "", "print the program's text form after this pass ('lower' for before any)")
 	f.BoolVarP(&fl.verbose, "verbose", "v", false, "print what each pass did")
@@ -112,18 +112,24 @@ sawmill did not generate is never overwritten (unless --force).`,
 
 func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if fl.target == "" {
-		return usageError{fmt.Errorf("compile: --target is required (%s)", targetNames())}
+		return usageError{fmt.Errorf("sawmill compile: --target is required: %s\nhint: see 'sawmill compile -h'", targetNames())}
 	}
 	t, ok := findTarget(fl.target)
 	if !ok {
-		return usageError{fmt.Errorf("compile: unknown target %q (want %s)", fl.target, targetNames())}
+		return usageError{fmt.Errorf("sawmill compile: --target %q is unknown: use %s", fl.target, targetNames())}
 	}
 	if fl.out == "" {
-		return usageError{fmt.Errorf("compile: -o DIR is required")}
+		return usageError{fmt.Errorf("sawmill compile: -o DIR is required\nhint: see 'sawmill compile -h'")}
+	}
+	if err := targetFlags(c, t.name); err != nil {
+		return err
+	}
+	if err := outputFolder(fl.out); err != nil {
+		return err
 	}
 	f, err := readModel(modelPath)
 	if err != nil {
-		return err
+		return located(modelPath, err)
 	}
 	fl.model = f
 	o := t.options(fl)
@@ -142,15 +148,15 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if err != nil {
 		return fmt.Errorf("%s: %v", modelPath, err)
 	}
-	if err := writeGenerated(fl.out, files, fl.force); err != nil {
+	if err := writeGenerated(fl.out, files, fl.force, modelPath, fl.sample); err != nil {
 		return err
 	}
 	size := 0
 	for _, file := range files {
 		size += len(file.Data)
 	}
-	fmt.Fprintf(c.OutOrStdout(), "%s: %d trees, %d nodes after passes (%d before), %s into %s: %d files, %d bytes\n",
-		modelPath, len(p.Trees), p.NumNodes(), stats[0].NodesBefore, fl.target, fl.out, len(files), size)
+	fmt.Fprintf(c.OutOrStdout(), "%s: %d trees, %d nodes after passes (%d before), %s into %s: %s, %d bytes\n",
+		modelPath, len(p.Trees), p.NumNodes(), stats[0].NodesBefore, fl.target, fl.out, plural(len(files), "file"), size)
 	return nil
 }
 
@@ -171,31 +177,17 @@ func printPassStats(w io.Writer, stats []compile.Stat) {
 	tw.Flush()
 }
 
-// generatedMarker is in the first lines of every file sawmill emits; a file
-// without it is the user's and is not overwritten.
-func isGenerated(path string) (exists, generated bool) {
-	fh, err := os.Open(path)
-	if err != nil {
-		return false, false
+// writeGenerated writes every file atomically into the folder dir, after
+// checking that none would replace one of inputs or a file sawmill did not
+// generate, so a refusal writes nothing.
+func writeGenerated(dir string, files []emit.File, force bool, inputs ...string) error {
+	if fi, err := os.Stat(dir); err == nil && !fi.IsDir() {
+		return fmt.Errorf("%s: is a file, and -o names the folder to write into\nhint: give a folder, e.g. -o %s", dir, folderHint(dir))
 	}
-	defer fh.Close()
-	sc := bufio.NewScanner(io.LimitReader(fh, 4096))
-	for i := 0; i < 8 && sc.Scan(); i++ {
-		l := bytes.ToLower(sc.Bytes())
-		if bytes.Contains(l, []byte("sawmill")) && bytes.Contains(l, []byte("generated")) {
-			return true, true
-		}
-	}
-	return true, false
-}
-
-// writeGenerated writes every file atomically, after checking that none
-// would replace a file sawmill did not generate, so a refusal writes nothing.
-func writeGenerated(dir string, files []emit.File, force bool) error {
 	for _, f := range files {
 		path := filepath.Join(dir, f.Name)
-		if exists, gen := isGenerated(path); exists && !gen && !force {
-			return fmt.Errorf("%s: exists and was not generated by sawmill; not overwriting it\nhint: choose another -o folder, or pass --force", path)
+		if err := checkOutput(path, inputs, force, "a file sawmill generated", generated); err != nil {
+			return err
 		}
 	}
 	for _, f := range files {

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -88,7 +89,11 @@ func TestDemoDataRules(t *testing.T) {
 // keep the test quick: every step runs, every file is left, the README
 // states the model's own out-of-bag error, and verify agreed.
 func TestDemoEndToEnd(t *testing.T) {
-	dir := filepath.Join(t.TempDir(), "pump-demo")
+	// The demo is made inside a module, as in a clone of sawmill: go test
+	// ./... there must not pick up the demo's packages.
+	outer := t.TempDir()
+	require.NoError(t, os.WriteFile(filepath.Join(outer, "go.mod"), []byte("module outer\n\ngo 1.21\n"), 0o644))
+	dir := filepath.Join(outer, "pump-demo")
 	code, out, errs := sawmill(t, "demo", "-o", dir, "--trees", "30", "--rows", "400")
 	require.Equal(t, 0, code, "stdout:\n%s\nstderr:\n%s", out, errs)
 	for i := 1; i <= 6; i++ {
@@ -99,6 +104,16 @@ func TestDemoEndToEnd(t *testing.T) {
 		"go/pumphealth/model.go", "c/pump_health.c", "c/pump_health.h", "sql/pump_health.sqlite.sql", "sql/pump_health.ansi.sql"} {
 		require.FileExists(t, filepath.Join(dir, name))
 	}
+
+	goList := func(in string) string {
+		cmd := exec.Command("go", "list", "./...")
+		cmd.Dir = in
+		cmd.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=-mod=mod", "GOPROXY=off")
+		b, _ := cmd.CombinedOutput()
+		return string(b)
+	}
+	require.NotContains(t, goList(outer), "pumphealth", "the enclosing module does not see the demo's package")
+	require.Contains(t, goList(dir), demoModule+"/go/"+demoGoPackage, "the demo's folder is a module of its own")
 
 	f, err := forest.ReadFile(filepath.Join(dir, demoModelFile))
 	require.NoError(t, err)
@@ -115,7 +130,7 @@ func TestDemoEndToEnd(t *testing.T) {
 
 	var rep struct {
 		Checks []struct {
-			Target, Status, Reason string
+			Target, Variant, Layout, Status, Reason string
 		} `json:"checks"`
 	}
 	b, err := os.ReadFile(filepath.Join(dir, demoVerifyJSN))
@@ -133,6 +148,21 @@ func TestDemoEndToEnd(t *testing.T) {
 		}
 	}
 	require.True(t, ran["go"], "the Go target needs only the Go toolchain, which runs this test")
+
+	// Exactly the files left are verified, each in the layout it was
+	// written in: one Go package, the double C files, each engine's own
+	// SQL file and the portable one on every engine.
+	count := map[string]int{}
+	for _, c := range rep.Checks {
+		count[c.Target+"/"+c.Variant]++
+		if c.Target == "go" {
+			src, err := os.ReadFile(filepath.Join(dir, "go", demoGoPackage, "model.go"))
+			require.NoError(t, err)
+			require.Contains(t, string(src), "Layout "+c.Layout+":", "the Go check ran the layout the file has")
+		}
+	}
+	require.Equal(t, map[string]int{"go/": 1, "c/double": 1, "sqlite/": 1, "duckdb/": 1, "postgres/": 1,
+		"sqlite/ansi": 1, "duckdb/ansi": 1, "postgres/ansi": 1}, count)
 
 	// The scores the demo left are the interpreter's.
 	pred, err := os.ReadFile(filepath.Join(dir, demoPredFile))

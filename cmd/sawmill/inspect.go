@@ -5,8 +5,10 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"slices"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 	"unicode/utf8"
@@ -270,7 +272,12 @@ func printInspect(w io.Writer, d *inspectDoc) error {
 		fmt.Fprintf(tw, "  %s\n", shorten(string(d.Provenance), 76))
 	}
 	for i, k := range keys {
-		fmt.Fprintf(tw, "  %s\t%s\n", k, provenanceValue(k, vals[i]))
+		for j, line := range strings.Split(provenanceValue(k, vals[i]), "\n") {
+			if j > 0 {
+				k = ""
+			}
+			fmt.Fprintf(tw, "  %s\t%s\n", k, line)
+		}
 	}
 	return tw.Flush()
 }
@@ -283,9 +290,9 @@ func provenanceValue(key string, v json.RawMessage) string {
 		if keys, vals, err := objectFields(v); err == nil {
 			parts := make([]string, len(keys))
 			for i, k := range keys {
-				parts[i] = k + "=" + strings.Trim(string(vals[i]), `"`)
+				parts[i] = k + "=" + strings.Trim(numberValue(vals[i]), `"`)
 			}
-			return shorten(strings.Join(parts, " "), 76)
+			return wrapWords(parts, 64)
 		}
 	case "oob_curve":
 		var c struct {
@@ -315,15 +322,52 @@ func provenanceValue(key string, v json.RawMessage) string {
 					}
 				}
 				slices.SortStableFunc(list, func(a, b kv) int { return cmpDesc(a.v, b.v) })
-				var parts []string
-				for _, e := range list[:min(5, len(list))] {
-					parts = append(parts, fmt.Sprintf("%s %.4g", e.k, e.v))
+				parts := []string{"top:"}
+				for i, e := range list[:min(5, len(list))] {
+					sep := ","
+					if i == min(5, len(list))-1 {
+						sep = ""
+					}
+					parts = append(parts, fmt.Sprintf("%s %.4g%s", e.k, e.v, sep))
 				}
-				return "top: " + strings.Join(parts, ", ")
+				return wrapWords(parts, 64)
 			}
 		}
 	}
-	return shorten(string(v), 76)
+	return shorten(numberValue(v), 76)
+}
+
+// numberValue prints a JSON number that is not a whole number with four
+// significant digits (0.3659, not 0.3659200000000001); anything else as
+// it is.
+func numberValue(v json.RawMessage) string {
+	x, err := strconv.ParseFloat(string(v), 64)
+	if err != nil || x == math.Trunc(x) {
+		return string(v)
+	}
+	return strconv.FormatFloat(x, 'g', 4, 64)
+}
+
+// wrapWords joins words with spaces into lines of at most width runes
+// (a longer word gets a line of its own): nothing is cut.
+func wrapWords(words []string, width int) string {
+	var b strings.Builder
+	n := 0
+	for _, w := range words {
+		l := utf8.RuneCountInString(w)
+		switch {
+		case n == 0:
+		case n+1+l > width:
+			b.WriteByte('\n')
+			n = 0
+		default:
+			b.WriteByte(' ')
+			n++
+		}
+		b.WriteString(w)
+		n += l
+	}
+	return b.String()
 }
 
 func cmpDesc(a, b float64) int {

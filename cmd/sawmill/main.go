@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 
 	"github.com/spf13/cobra"
 )
@@ -68,7 +69,11 @@ that what it emitted scores exactly like the model.`,
 		root.AddCommand(c)
 	}
 	if c, err := root.ExecuteC(); err != nil {
-		fmt.Fprintf(stderr, "sawmill: %v\n", err)
+		msg := err.Error()
+		if !strings.HasPrefix(msg, "sawmill ") { // "sawmill train: ..." names the program already
+			msg = "sawmill: " + msg
+		}
+		fmt.Fprintln(stderr, msg)
 		var ue usageError
 		if errors.As(err, &ue) || c == root { // an unknown command or a misuse of flags
 			return exitUsage

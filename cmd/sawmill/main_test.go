@@ -47,12 +47,12 @@ func TestUsageErrors(t *testing.T) {
 		args []string
 		want string
 	}{
-		{[]string{"train", "testdata/pumps.csv", "--label", "state", "-o", "x.json", "--bogus"}, "sawmill: sawmill train: unknown flag: --bogus\nhint: see 'sawmill train -h'\n"},
-		{[]string{"train", "testdata/pumps.csv", "-o", "x.json"}, "sawmill: sawmill train: --label is required"},
-		{[]string{"train", "testdata/pumps.csv", "--label", "state"}, "sawmill: sawmill train: -o is required"},
-		{[]string{"train", "--label", "state", "-o", "x.json"}, "sawmill: sawmill train: expected one training CSV file, got 0 argument(s)"},
+		{[]string{"train", "testdata/pumps.csv", "--label", "state", "-o", "x.json", "--bogus"}, "sawmill train: unknown flag: --bogus\nhint: see 'sawmill train -h'\n"},
+		{[]string{"train", "testdata/pumps.csv", "-o", "x.json"}, "sawmill train: --label is required"},
+		{[]string{"train", "testdata/pumps.csv", "--label", "state"}, "sawmill train: -o is required"},
+		{[]string{"train", "--label", "state", "-o", "x.json"}, "sawmill train: expected one training CSV file, got 0 argument(s)"},
 		{[]string{"train", "testdata/pumps.csv", "--label", "state", "-o", "x.json", "--task", "ranking"}, `--task "ranking": use classification or regression`},
-		{[]string{"train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "-o", filepath.Join(t.TempDir(), "m.json"), "--mtry", "9"}, "sawmill: sawmill train: --mtry 9: must be between 1 and 5, the number of features"},
+		{[]string{"train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "-o", filepath.Join(t.TempDir(), "m.json"), "--mtry", "9"}, "sawmill train: --mtry 9: must be between 1 and 5, the number of features"},
 		{[]string{"train", "testdata/pumps.csv", "--label", "state", "-o", "x.json", "--trees", "0"}, "--trees 0: must be at least 1"},
 		{[]string{"predict", "testdata/logistic.json"}, "expected a model file and a CSV file of rows, got 1 argument(s)"},
 		{[]string{"inspect", "--colour"}, "unknown flag: --colour"},

@@ -15,15 +15,37 @@ import (
 
 // plotsOutput adds --plots DIR to sawmill train: the out-of-bag error curve
 // and the permutation importance as SVG charts.
-func plotsOutput(c *cobra.Command) func(r *trainRun) error {
+func plotsOutput(c *cobra.Command) trainOutput {
 	var dir string
 	c.Flags().StringVar(&dir, "plots", "", "write charts (out-of-bag error curve, importance) as SVG into this folder")
-	return func(r *trainRun) error {
-		if dir == "" {
-			return nil
-		}
-		return writeCharts(r.Stdout, dir, r.Result.Forest)
+	return trainOutput{
+		check: func(r *trainRun) error {
+			if dir == "" {
+				return nil
+			}
+			return checkCharts(dir, r.Force, r.DataPath, r.ModelPath)
+		},
+		write: func(r *trainRun) error {
+			if dir == "" {
+				return nil
+			}
+			return writeCharts(r.Stdout, dir, r.Result.Forest)
+		},
 	}
+}
+
+// checkCharts refuses to draw into dir over a file sawmill did not draw
+// (unless force) or over one of inputs.
+func checkCharts(dir string, force bool, inputs ...string) error {
+	if fi, err := os.Stat(dir); err == nil && !fi.IsDir() {
+		return fmt.Errorf("%s: is a file, and --plots names the folder to draw the charts in\nhint: name a folder", dir)
+	}
+	for _, name := range []string{chart.CurveFile, chart.ImportanceFile} {
+		if err := checkOutput(filepath.Join(dir, name), inputs, force, "a chart sawmill drew", generated); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 // writeCharts writes the charts of f into dir (created if missing) and

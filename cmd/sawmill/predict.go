@@ -5,7 +5,9 @@ import (
 	"bytes"
 	"encoding/csv"
 	"io"
+	"os"
 	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -17,6 +19,7 @@ func newPredictCmd() *cobra.Command {
 	var out string
 	var keep []string
 	var raw bool
+	var force bool
 	c := &cobra.Command{
 		Use:   "predict MODEL.json ROWS.csv [-o OUT.csv] [--keep id,...] [--raw]",
 		Short: "Score CSV rows with the reference interpreter",
@@ -45,36 +48,61 @@ for raw scores.`,
   sawmill predict booster.json readings.csv --raw`,
 		Args: exactArgs(2, "a model file and a CSV file of rows"),
 		RunE: func(c *cobra.Command, args []string) error {
-			return runPredict(c, args[0], args[1], out, keep, raw)
+			return runPredict(c, args[0], args[1], out, keep, raw, force)
 		},
 	}
 	c.Flags().BoolVar(&raw, "raw", false, "print the scores before the output transform, one column per output")
 	c.Flags().StringVarP(&out, "output", "o", "", "write the CSV to this file instead of standard output")
 	c.Flags().StringSliceVar(&keep, "keep", nil, "columns to copy into the output, comma-separated (ids)")
+	c.Flags().BoolVar(&force, "force", false, "replace an existing -o file that is not an earlier output of predict")
 	return c
 }
 
-func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []string, raw bool) error {
+func runPredict(c *cobra.Command, modelPath, rowsPath, outPath string, keep []string, raw, force bool) error {
 	f, err := readModel(modelPath)
 	if err != nil {
 		return err
 	}
-	rows, err := forest.ReadRowsFile(rowsPath, f.Features, forest.RowOptions{Keep: keep})
+	if outPath != "" {
+		header := predictHeader(f, keep, raw)
+		ours := func(path string) bool { // an earlier run's output: the same header
+			lines := headLines(path, 1)
+			return len(lines) == 1 && string(lines[0]) == csvLine(header)
+		}
+		if err := checkOutput(outPath, []string{modelPath, rowsPath}, force, "an earlier output of predict (its header differs)", ours); err != nil {
+			return err
+		}
+	}
+	in, err := os.Open(rowsPath)
 	if err != nil {
 		return located(rowsPath, err)
 	}
+	defer in.Close()
+	rr, err := forest.NewRowReader(in, rowsPath, f.Features, forest.RowOptions{Keep: keep})
+	if err != nil {
+		return err
+	}
 	if outPath == "" {
-		bw := bufio.NewWriter(c.OutOrStdout())
-		if err := writePredictions(bw, f, rows, keep, raw); err != nil {
+		bw := bufio.NewWriterSize(c.OutOrStdout(), 1<<16)
+		if err := streamPredictions(bw, f, rr, keep, raw, 0); err != nil {
 			return err
 		}
 		return bw.Flush()
 	}
-	var buf bytes.Buffer
-	if err := writePredictions(&buf, f, rows, keep, raw); err != nil {
+	af, err := createAtomic(outPath)
+	if err != nil {
+		return located(outPath, err)
+	}
+	bw := bufio.NewWriterSize(af, 1<<16)
+	err = streamPredictions(bw, f, rr, keep, raw, 0)
+	if err == nil {
+		err = bw.Flush()
+	}
+	if err != nil {
+		af.abort()
 		return err
 	}
-	if err := forest.WriteFileAtomic(outPath, buf.Bytes(), 0o644); err != nil {
+	if err := af.commit(); err != nil {
 		return located(outPath, err)
 	}
 	return nil
@@ -104,35 +132,22 @@ func readSource(path, from string, o source.Options) (*source.Result, error) {
 // outputs, or with raw its scores before the transform.
 func writePredictions(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []string, raw bool) error {
 	cw := csv.NewWriter(w)
-	header := append([]string(nil), keep...)
-	logistic := f.IsClassifier() && f.NumOutputs() == 1
-	k := f.NumOutputs()
-	switch {
-	case raw && k == 1:
-		header = append(header, "raw")
-	case raw && f.IsClassifier():
-		for _, c := range f.Classes {
-			header = append(header, "raw_"+c)
-		}
-	case raw:
-		for j := range k {
-			header = append(header, "raw_"+strconv.Itoa(j))
-		}
-	case f.IsClassifier():
-		header = append(header, f.Classes...)
-		header = append(header, "class")
-	case k > 1:
-		for j := range k {
-			header = append(header, "prediction_"+strconv.Itoa(j))
-		}
-	default:
-		header = append(header, "prediction")
-	}
-	if err := cw.Write(header); err != nil {
+	if err := cw.Write(predictHeader(f, keep, raw)); err != nil {
 		return err
 	}
-	out := make([]float64, k)
-	rec := make([]string, 0, len(header))
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	return writeRows(w, f, rows, keep, raw)
+}
+
+// writeRows writes one line per row, without the header.
+func writeRows(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []string, raw bool) error {
+	cw := csv.NewWriter(w)
+	logistic := f.IsClassifier() && f.NumOutputs() == 1
+	out := make([]float64, f.NumOutputs())
+	rec := make([]string, 0, len(keep)+f.NumOutputs()+1)
 	for i := range rows.Len() {
 		rec = rec[:0]
 		if len(keep) > 0 {
@@ -165,6 +180,45 @@ func writePredictions(w io.Writer, f *forest.Forest, rows *forest.Rows, keep []s
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// predictHeader is predict's header line: the kept columns, then the
+// model's outputs (see predict -h), or with raw its scores before the
+// transform.
+func predictHeader(f *forest.Forest, keep []string, raw bool) []string {
+	header := append([]string(nil), keep...)
+	k := f.NumOutputs()
+	switch {
+	case raw && k == 1:
+		header = append(header, "raw")
+	case raw && f.IsClassifier():
+		for _, c := range f.Classes {
+			header = append(header, "raw_"+c)
+		}
+	case raw:
+		for j := range k {
+			header = append(header, "raw_"+strconv.Itoa(j))
+		}
+	case f.IsClassifier():
+		header = append(header, f.Classes...)
+		header = append(header, "class")
+	case k > 1:
+		for j := range k {
+			header = append(header, "prediction_"+strconv.Itoa(j))
+		}
+	default:
+		header = append(header, "prediction")
+	}
+	return header
+}
+
+// csvLine is rec as one CSV line, without the line end.
+func csvLine(rec []string) string {
+	var b bytes.Buffer
+	cw := csv.NewWriter(&b)
+	cw.Write(rec)
+	cw.Flush()
+	return strings.TrimRight(b.String(), "\r\n")
 }
 
 // num prints v in Go's shortest round-trip form.

@@ -15,7 +15,11 @@ func cTarget() target {
 			return compile.Options{SingleInputs: fl.float}
 		},
 		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-			return cemit.Emit(p, cemit.Options{Name: fl.name, Layout: fl.layout, Float: fl.float})
+			name := fl.name
+			if name == "" {
+				name = "model"
+			}
+			return cemit.Emit(p, cemit.Options{Name: name, Layout: fl.layout, Float: fl.float})
 		},
 	}
 }

@@ -13,7 +13,7 @@ func goTarget() target {
 		name:    "go",
 		options: func(*compileFlags) compile.Options { return compile.Options{} },
 		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-			o := golang.Options{Package: fl.pkg, Layout: fl.layout}
+			o := golang.Options{Package: fl.pkg, Layout: fl.layout, Tables: fl.tables}
 			if fl.sample != "" {
 				names := make([]string, len(p.Features))
 				for i, f := range p.Features {

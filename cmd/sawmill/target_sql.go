@@ -30,6 +30,7 @@ func sqlTarget() target {
 			}
 			o := sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
 			files, err := sql.Emit(p, o)
+			files = sqlFileName(files, fl.name)
 			if err != nil || !fl.selftest {
 				return files, err
 			}
@@ -72,4 +73,15 @@ func columnMap(p *compile.Program, pairs []string) ([]string, error) {
 		cols[i] = col
 	}
 	return cols, nil
+}
+
+// sqlFileName names the statement's file NAME.sql after --name; without it
+// the file keeps the emitter's name (score.sql).
+func sqlFileName(files []emit.File, name string) []emit.File {
+	for i := range files {
+		if name != "" && files[i].Name == sql.FileName {
+			files[i].Name = name + ".sql"
+		}
+	}
+	return files
 }

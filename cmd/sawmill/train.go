@@ -14,22 +14,31 @@ import (
 	"sawmill/forest/train"
 )
 
-// trainRun is one finished `sawmill train`, handed to the extra outputs.
+// trainRun is one `sawmill train`, handed to the extra outputs: before
+// training with the paths and flags only, after it with the data and the
+// result too.
 type trainRun struct {
 	DataPath  string
 	ModelPath string
+	Force     bool // --force: replace files sawmill did not write
 	Data      *train.Data
 	Result    *train.Result
 	Stdout    io.Writer
 	Stderr    io.Writer
 }
 
-// trainOutputs are optional extra outputs of `sawmill train` (plots of the
-// out-of-bag curve, say). Each one declares its flags on the command and
-// returns the function that writes its output once the model is written;
-// that function does nothing when its flags were not given. Adding one is
-// one line here.
-var trainOutputs = []func(c *cobra.Command) func(r *trainRun) error{plotsOutput}
+// trainOutput is an optional extra output of `sawmill train` (plots of the
+// out-of-bag curve, say). check runs before training and refuses files the
+// output may not write (an input, a file of the user's); write runs once
+// the model is written. Both do nothing when the output's flags were not
+// given.
+type trainOutput struct {
+	check, write func(r *trainRun) error
+}
+
+// trainOutputs declare their flags on the command. Adding one is one line
+// here.
+var trainOutputs = []func(c *cobra.Command) trainOutput{plotsOutput}
 
 type trainFlags struct {
 	label, output, task string
@@ -40,6 +49,7 @@ type trainFlags struct {
 	seed                uint64
 	threads             int
 	importance          bool
+	force               bool
 }
 
 func newTrainCmd() *cobra.Command {
@@ -81,7 +91,8 @@ for byte, whatever --threads says.`,
 	f.Uint64Var(&fl.seed, "seed", 1, "random seed")
 	f.IntVar(&fl.threads, "threads", 0, "parallel workers (0: one per core)")
 	f.BoolVar(&fl.importance, "importance", true, "compute the permutation importance (--importance=false to skip)")
-	var outputs []func(*trainRun) error
+	f.BoolVar(&fl.force, "force", false, "replace an existing -o file (or chart) that sawmill did not write")
+	var outputs []trainOutput
 	for _, add := range trainOutputs {
 		outputs = append(outputs, add(c))
 	}
@@ -91,7 +102,7 @@ for byte, whatever --threads says.`,
 	return c
 }
 
-func runTrain(c *cobra.Command, dataPath string, fl *trainFlags, outputs []func(*trainRun) error) error {
+func runTrain(c *cobra.Command, dataPath string, fl *trainFlags, outputs []trainOutput) error {
 	usage := func(format string, a ...any) error {
 		return usageError{fmt.Errorf("sawmill train: "+format+"\nhint: see 'sawmill train -h'", a...)}
 	}
@@ -113,6 +124,15 @@ func runTrain(c *cobra.Command, dataPath string, fl *trainFlags, outputs []func(
 	// Fail before a long training run, not after it.
 	if fi, err := os.Stat(filepath.Dir(fl.output)); err != nil || !fi.IsDir() {
 		return fmt.Errorf("%s: the folder to write the model in does not exist", fl.output)
+	}
+	if err := checkOutput(fl.output, []string{dataPath}, fl.force, "a model sawmill train wrote", trainedModel); err != nil {
+		return err
+	}
+	r := &trainRun{DataPath: dataPath, ModelPath: fl.output, Force: fl.force, Stdout: c.OutOrStdout(), Stderr: c.ErrOrStderr()}
+	for _, o := range outputs {
+		if err := o.check(r); err != nil {
+			return err
+		}
 	}
 
 	d, err := train.ReadCSVFile(dataPath, train.ReadOptions{Label: fl.label, Ignore: fl.ignore, Task: task})
@@ -144,11 +164,10 @@ func runTrain(c *cobra.Command, dataPath string, fl *trainFlags, outputs []func(
 	if err := forest.WriteFile(fl.output, res.Forest); err != nil {
 		return located(fl.output, err)
 	}
-	out := c.OutOrStdout()
-	printTrainSummary(out, dataPath, fl.output, d, res)
-	r := &trainRun{DataPath: dataPath, ModelPath: fl.output, Data: d, Result: res, Stdout: out, Stderr: stderr}
-	for _, write := range outputs {
-		if err := write(r); err != nil {
+	printTrainSummary(r.Stdout, dataPath, fl.output, d, res)
+	r.Data, r.Result = d, res
+	for _, o := range outputs {
+		if err := o.write(r); err != nil {
 			return err
 		}
 	}

@@ -99,7 +99,7 @@ func TestTrainFailureLeavesOutputAlone(t *testing.T) {
 	model := filepath.Join(dir, "model.json")
 	old := []byte("previous model\n")
 	require.NoError(t, os.WriteFile(model, old, 0o644))
-	code, _, errs := sawmill(t, "train", "testdata/bad_cell.csv", "--label", "state", "-o", model)
+	code, _, errs := sawmill(t, "train", "testdata/bad_cell.csv", "--label", "state", "-o", model, "--force")
 	require.Equal(t, 1, code)
 	assert.Contains(t, errs, "bad_cell.csv:3:")
 	got, err := os.ReadFile(model)
@@ -122,25 +122,33 @@ func TestTrainFailureLeavesOutputAlone(t *testing.T) {
 	assert.Equal(t, []string{"model.json", "taken"}, names)
 }
 
-// The hook for extra outputs of train: an output declares its flag and runs
-// after the model is written.
+// The hook for extra outputs of train: an output declares its flag, checks
+// before training and writes after the model is written.
 func TestTrainOutputsHook(t *testing.T) {
 	saved := trainOutputs
 	defer func() { trainOutputs = saved }()
 	var seen *trainRun
-	trainOutputs = append(trainOutputs, func(c *cobra.Command) func(*trainRun) error {
+	checked := false
+	trainOutputs = append(trainOutputs, func(c *cobra.Command) trainOutput {
 		on := c.Flags().Bool("test-extra", false, "")
-		return func(r *trainRun) error {
-			if *on {
-				seen = r
-			}
-			return nil
+		return trainOutput{
+			check: func(r *trainRun) error {
+				checked = *on && r.Result == nil // before training
+				return nil
+			},
+			write: func(r *trainRun) error {
+				if *on {
+					seen = r
+				}
+				return nil
+			},
 		}
 	})
 	model := filepath.Join(t.TempDir(), "m.json")
 	code, _, errs := sawmill(t, "train", "testdata/pumps.csv", "--label", "state", "--ignore", "pump_id", "--trees", "2", "-o", model, "--test-extra")
 	require.Equal(t, 0, code, errs)
 	require.NotNil(t, seen)
+	assert.True(t, checked, "check ran before training")
 	assert.Equal(t, model, seen.ModelPath)
 	assert.Len(t, seen.Result.Forest.Trees, 2)
 	_, err := os.Stat(seen.ModelPath)

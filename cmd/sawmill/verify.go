@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"slices"
 	"strings"
 	"text/tabwriter"
@@ -19,17 +20,19 @@ import (
 )
 
 type verifyFlags struct {
-	data     string
-	targets  []string
-	layouts  []string
-	variants []string
-	dialects []string
-	postgres string
-	maxRows  int
-	probes   bool
-	require  bool
-	asJSON   bool
-	maxNest  int
+	data      string
+	targets   []string
+	layouts   []string
+	variants  []string
+	dialects  []string
+	postgres  string
+	maxNest   int
+	maxRows   int
+	probes    bool
+	require   bool
+	asJSON    bool
+	expected  string
+	tolerance float64
 }
 
 // verifyTamper, when set (by tests only), edits each compiled program before
@@ -59,14 +62,17 @@ Each target, variant and layout gets a line: rows checked, rows that agree,
 the largest absolute difference, predicted labels that differ, build and
 scoring time. The first row that disagrees is shown in full.
 
-SQLite runs twice: in the SQLite embedded in sawmill (target sqlite), and
-in the system sqlite3 shell when one is on PATH (sqlite/shell), whose
-stock parser is what Python, Android and iOS users have: a statement only
-the embedded engine accepts fails there. PostgreSQL and DuckDB score every
-row holding a missing value a second time with NaN stored instead of NULL,
-which must give the same outputs bit for bit. C is built with whichever of
-gcc, clang and cc is present; the compilers and the shell that ran are
-listed under the table.
+With --expected OUTPUTS.csv, the model and every target are also held
+against outputs that the library which trained the model recorded for the
+--data rows, within --tolerance (default 1e-12) plus a target's own bound:
+the proof then reaches the original library, not only sawmill's
+interpreter. OUTPUTS.csv has a header; its columns are named like the
+model's outputs (as sawmill predict heads them, so a predict file serves),
+or it has exactly one column per output, in output order; one line per
+--data row, in the same order. The first row that is off is shown in full.
+
+A --data file of more than a million rows is checked a chunk at a time,
+each target rebuilt for each chunk, so memory stays flat.
 
 Exit status: 0 when every check that ran agreed; 1 when a row disagreed or
 a target failed to emit, build or run. A target whose toolchain or engine
@@ -75,7 +81,8 @@ fail the run, unless --require is given.`,
 		Example: `  sawmill verify pump-health.json
   sawmill verify pump-health.json --data readings.csv --target go,c
   sawmill verify pump-health.json --target sql --dialect sqlite,postgres --postgres postgres://localhost/scratch
-  sawmill verify pump-health.json --target c --variant float --layout table --json`,
+  sawmill verify pump-health.json --target c --variant float --layout table --json
+  sawmill verify forest.json --data rows.csv --expected sklearn_outputs.csv --tolerance 1e-9`,
 		Args: exactArgs(1, "MODEL.json"),
 		RunE: func(c *cobra.Command, args []string) error { return runVerify(c, args[0], &fl) },
 	}
@@ -86,11 +93,13 @@ fail the run, unless --require is given.`,
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
 	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres; default all")
 	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN)")
+	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
 	f.IntVar(&fl.maxRows, "max-rows", golden.DefaultMaxRows, "most rows to generate (0: no cap)")
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
 	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
 	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
-	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
+	f.StringVar(&fl.expected, "expected", "", "outputs the training library recorded for the --data rows (CSV: columns named like predict's, or one per output), to hold the model and every target against")
+	f.Float64Var(&fl.tolerance, "tolerance", DefaultTolerance, "with --expected, the largest |difference| from a recorded output that still agrees")
 	return c
 }
 
@@ -101,15 +110,34 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
+	if err := checkVerifyFlags(fl, golden.Runners()); err != nil {
+		return err
+	}
+	if err := checkExpectedFlags(fl); err != nil {
+		return err
+	}
 	f, err := readModel(modelPath)
 	if err != nil {
 		return err
 	}
-	var rows *forest.Rows
+	var rr *forest.RowReader
 	if fl.data != "" {
-		if rows, err = forest.ReadRowsFile(fl.data, f.Features, forest.RowOptions{}); err != nil {
+		in, err := os.Open(fl.data)
+		if err != nil {
 			return located(fl.data, err)
 		}
+		defer in.Close()
+		if rr, err = forest.NewRowReader(in, fl.data, f.Features, forest.RowOptions{}); err != nil {
+			return err
+		}
+	}
+	var ex *expectedReader
+	if fl.expected != "" {
+		var closer io.Closer
+		if ex, closer, err = openExpected(fl.expected, f); err != nil {
+			return err
+		}
+		defer closer.Close()
 	}
 	o := golden.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
@@ -122,9 +150,10 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if isTerminal(stderr) {
 		o.Done = func(ch *golden.Check) { fmt.Fprintf(stderr, "verify: %s: %s\n", ch.Name(), ch.Status) }
 	}
-	rep, err := golden.Verify(context.Background(), f, rows, o)
+	o.ExpectedSource, o.ExpectedTolerance = fl.expected, fl.tolerance
+	rep, err := verifyStream(context.Background(), f, rr, ex, fl.data, o)
 	if err != nil {
-		return usageError{fmt.Errorf("sawmill verify: %v\nhint: see 'sawmill verify -h'", err)}
+		return err
 	}
 	out := c.OutOrStdout()
 	if fl.asJSON {
@@ -137,6 +166,19 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 		printVerify(out, modelPath, fl.data, rep)
 	}
 	return verifyVerdict(rep, fl.data, fl.require)
+}
+
+// checkExpectedFlags: --expected compares outputs recorded for given rows.
+func checkExpectedFlags(fl *verifyFlags) error {
+	switch {
+	case fl.expected != "" && fl.data == "":
+		return usageError{fmt.Errorf("sawmill verify: --expected needs --data, the rows the outputs were recorded for\nhint: see 'sawmill verify -h'")}
+	case fl.expected != "" && fl.probes:
+		return usageError{fmt.Errorf("sawmill verify: --expected holds only the --data rows; --probes adds rows no library recorded\nhint: run verify --probes separately")}
+	case !(fl.tolerance >= 0) || math.IsInf(fl.tolerance, 0):
+		return usageError{fmt.Errorf("sawmill verify: --tolerance %v: must be a finite number, 0 or more\nhint: see 'sawmill verify -h'", fl.tolerance)}
+	}
+	return nil
 }
 
 // verifyVerdict is the command's error: nil when every check that ran
@@ -153,10 +195,27 @@ func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
 			bad = append(bad, fmt.Sprintf("%s could not run (--require): %s", ch.Name(), firstLine(ch.Reason)))
 		}
 	}
+	failed := len(bad)
+	var off []string
+	if e := rep.Expected; !e.OK() {
+		off = append(off, fmt.Sprintf("the model is off the recorded outputs %s at %s", e.Source, rowPlace(e.First, dataPath)))
+	}
+	for _, ch := range rep.Checks {
+		if e := ch.Expected; !e.OK() {
+			off = append(off, fmt.Sprintf("%s is off the recorded outputs at %s", ch.Name(), rowPlace(e.First, dataPath)))
+		}
+	}
+	if failed == 0 && len(off) > 0 {
+		return fmt.Errorf("verify: %s", strings.Join(off, "\n  "))
+	}
+	bad = append(bad, off...)
+	if ran := len(rep.Checks) - rep.Count(golden.NotRun); ran == 0 && len(bad) == 0 {
+		return fmt.Errorf("verify: no check ran, so nothing was verified\nhint: install a toolchain named under \"not run\", or choose other --target values")
+	}
 	if len(bad) == 0 {
 		return nil
 	}
-	return fmt.Errorf("verify: %d of %d checks did not pass:\n  %s", len(bad), len(rep.Checks), strings.Join(bad, "\n  "))
+	return fmt.Errorf("verify: %d of %d checks did not pass:\n  %s", failed, len(rep.Checks), strings.Join(bad, "\n  "))
 }
 
 // rowPlace names a mismatching row for a person: the file and line for a
@@ -234,24 +293,8 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 		}
 	}
 
-	var tools []string
-	for _, ch := range rep.Checks {
-		name := ch.Target
-		if ch.Variant != "" {
-			name += "/" + ch.Variant
-		}
-		if t := name + "\t" + ch.Tool; ch.Tool != "" && !slices.Contains(tools, t) {
-			tools = append(tools, t)
-		}
-	}
-	if len(tools) > 0 {
-		fmt.Fprintln(w, "\nran with:")
-		tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
-		for _, t := range tools {
-			fmt.Fprintf(tw, "  %s\n", t)
-		}
-		tw.Flush()
-	}
+	printToolchains(w, rep)
+	printExpected(w, rep, dataPath)
 	for _, ch := range rep.Checks {
 		switch ch.Status {
 		case golden.Failed:
@@ -278,6 +321,33 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 	fmt.Fprintln(w)
 }
 
+// printToolchains names the compilers (and versions) that built each
+// target, once per target and variant.
+func printToolchains(w io.Writer, rep *golden.Report) {
+	var lines [][2]string
+	for _, ch := range rep.Checks {
+		if ch.Toolchain == "" {
+			continue
+		}
+		name := ch.Target
+		if ch.Variant != "" {
+			name += "/" + ch.Variant
+		}
+		if !slices.ContainsFunc(lines, func(l [2]string) bool { return l == [2]string{name, ch.Toolchain} }) {
+			lines = append(lines, [2]string{name, ch.Toolchain})
+		}
+	}
+	if len(lines) == 0 {
+		return
+	}
+	fmt.Fprintln(w, "\nbuilt with")
+	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
+	for _, l := range lines {
+		fmt.Fprintf(tw, "  %s\t%s\n", l[0], l[1])
+	}
+	tw.Flush()
+}
+
 func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 	r := ch.First
 	fmt.Fprintf(w, "\n%s: first mismatch at %s\n", ch.Name(), rowPlace(r, dataPath))
@@ -293,21 +363,14 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 		fmt.Fprintln(w, "  (the target takes float32 inputs: want is the model on these values rounded to float32)")
 	}
 	tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
-	vec := func(v []golden.Num) string {
-		s := make([]string, len(v))
-		for i, x := range v {
-			s[i] = cell(float64(x))
-		}
-		return strings.Join(s, "\t")
-	}
 	cls := func(c string) string {
 		if c == "" {
 			return ""
 		}
 		return "\tclass " + c
 	}
-	fmt.Fprintf(tw, "  want\t%s%s\n", vec(r.Want), cls(r.WantClass))
-	fmt.Fprintf(tw, "  got\t%s%s\n", vec(r.Got), cls(r.GotClass))
+	fmt.Fprintf(tw, "  want\t%s%s\n", cells(r.Want), cls(r.WantClass))
+	fmt.Fprintf(tw, "  got\t%s%s\n", cells(r.Got), cls(r.GotClass))
 	tw.Flush()
 	if r.Output >= 0 {
 		d := math.Abs(float64(r.Got[r.Output]) - float64(r.Want[r.Output]))
@@ -315,6 +378,15 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 	} else {
 		fmt.Fprintf(w, "  the predicted class differs; %d of %d rows agree, %d labels differ\n", ch.Matches, ch.Rows, ch.LabelMismatches)
 	}
+}
+
+// cells prints outputs as cell does, tab-separated for a tabwriter.
+func cells(v []golden.Num) string {
+	s := make([]string, len(v))
+	for i, x := range v {
+		s[i] = cell(float64(x))
+	}
+	return strings.Join(s, "\t")
 }
 
 // cell prints a value as predict does, with missing shown as empty cells

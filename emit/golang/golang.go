@@ -25,6 +25,7 @@ import (
 	"go/token"
 	"math"
 	"strconv"
+	"strings"
 
 	"github.com/dave/jennifer/jen"
 
@@ -51,6 +52,9 @@ type Options struct {
 	// CommentNodes is the largest forest, in nodes, that gets one comment
 	// per node; 0 means 5000, < 0 never.
 	CommentNodes int
+	// Tables says how the table layout writes its arrays: TablesAuto
+	// (when empty), TablesLiteral or TablesBase64.
+	Tables string
 }
 
 // File names in the emitted package.
@@ -104,6 +108,11 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		}
 	}
 	g := newGen(p, o, pkg, layout)
+	tables, err := chooseTables(o.Tables, p.NumNodes())
+	if err != nil {
+		return nil, err
+	}
+	g.tables = tables
 	src, err := g.source()
 	if err != nil {
 		return nil, err
@@ -175,6 +184,7 @@ type gen struct {
 	usesNeg0 bool // some literal is -0: declare negZero
 	tab      *tableData
 	heap     *heapData
+	tables   string // TablesLiteral or TablesBase64, for the table layout
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
@@ -274,9 +284,48 @@ func (g *gen) header(f *jen.File) {
 			lines = append(lines, fmt.Sprintf("\t%d  %s", i, strconv.Quote(c)))
 		}
 	}
+	lines = append(lines, "")
+	lines = append(lines, wrapLine(g.layoutNote(), 76)...)
 	for _, l := range lines {
 		f.PackageComment(l)
 	}
+}
+
+// wrapLine breaks s at spaces into lines of at most width bytes (a longer
+// word keeps a line of its own).
+func wrapLine(s string, width int) []string {
+	var out []string
+	line := ""
+	for _, w := range strings.Fields(s) {
+		switch {
+		case line == "":
+			line = w
+		case len(line)+1+len(w) > width:
+			out = append(out, line)
+			line = w
+		default:
+			line += " " + w
+		}
+	}
+	return append(out, line)
+}
+
+// layoutNote says in the header how the code is laid out and how to get
+// the other forms.
+func (g *gen) layoutNote() string {
+	switch {
+	case g.layout == emit.Table && g.tables == TablesLiteral:
+		return "Layout table: the nodes are array literals below, one line per node. " +
+			"sawmill compile --layout nested writes if/else code instead; --tables base64 writes the table as a blob, which builds faster past some 50,000 nodes."
+	case g.layout == emit.Table:
+		return "Layout table: the nodes are a base64 blob that init decodes, which the Go compiler builds in seconds at any size. " +
+			"sawmill compile --tables literal writes them as array literals a reviewer can read, one line per node; --layout nested writes if/else code."
+	case g.layout == emit.Nested:
+		return "Layout nested: one function of if/else per tree. " +
+			"sawmill compile --layout table writes the nodes as a table walked by one loop, faster for forests of four trees or more."
+	}
+	return "Layout branchless: each tree a full heap walked without branches. " +
+		"sawmill compile --layout nested or --layout table writes the other forms."
 }
 
 // generatedLine is the standard marker of generated Go files.

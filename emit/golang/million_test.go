@@ -117,7 +117,7 @@ func emitMillion(t *testing.T, dir string) {
 // timed runs cmd under GNU time -v and returns its wall time, CPU time
 // (user and system, children included) and peak RSS. On a loaded machine
 // the CPU time is the steadier figure.
-func timed(t *testing.T, cmd *exec.Cmd) (time.Duration, time.Duration, int64) {
+func timed(t testing.TB, cmd *exec.Cmd) (time.Duration, time.Duration, int64) {
 	t.Helper()
 	var stderr bytes.Buffer
 	cmd.Stderr = &stderr

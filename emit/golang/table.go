@@ -40,6 +40,9 @@ type tableNode struct {
 	feat uint32  // index into xx; leafMark at a leaf
 	thr  float64 // threshold; at a leaf its value, or its row in leaves
 	far  uint32  // offset to the other child; 0 at a leaf
+	tree int     // the tree in the model (compile.Tree.Source), for comments
+	id   int32   // the node's id in the model's tree, for comments
+	op   compile.Op
 }
 
 // tableData is the whole forest in table form.
@@ -103,7 +106,7 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 			}
 			n := &t.Nodes[it.node]
 			if n.IsLeaf() {
-				tn := tableNode{feat: uint32(d.width)}
+				tn := tableNode{feat: uint32(d.width), tree: t.Source, id: n.ID}
 				if p.NumOutputs == 1 {
 					tn.thr = n.Value[0]
 				} else {
@@ -115,7 +118,7 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 				continue
 			}
 			f, th, first, second := testFor(n, nf)
-			d.nodes = append(d.nodes, tableNode{feat: uint32(f), thr: th})
+			d.nodes = append(d.nodes, tableNode{feat: uint32(f), thr: th, tree: t.Source, id: n.ID, op: n.Op})
 			stack = append(stack, item{second, at}, item{first, -1})
 		}
 	}
@@ -295,16 +298,25 @@ func (g *gen) tableSections(d *tableData) []section {
 	return out
 }
 
-// table declares the arrays, their decoding and the descents.
+// table declares the arrays, as readable literals or decoded from a blob
+// (Options.Tables), and the descents.
 func (g *gen) table() []jen.Code {
 	d := g.tableData()
+	doc := jen.Comment("The forest as one table (see step): nodes in depth-first order per tree, decoded").Line().
+		Comment("once by init from blob.")
+	if g.tables == TablesLiteral {
+		doc = jen.Comment("The forest as one table (see step): nodes in depth-first order per tree, one").Line().
+			Comment("line each in nodes below.")
+	}
 	out := []jen.Code{
-		jen.Comment("The forest as one table (see step): nodes in depth-first order per tree, decoded").Line().
-			Comment("once by init from blob.").Line().Add(g.xxConsts(d.negated)),
+		doc.Line().Add(g.xxConsts(d.negated)),
 		g.tableStep(d), g.tableLeaf4(),
 	}
 	if g.k > 1 {
 		out = append(out, g.baseScoreVar(), g.addRow("leafValues"))
+	}
+	if g.tables == TablesLiteral {
+		return append(out, g.literalDecls(d)...)
 	}
 	return append(out, g.blobDecls(g.tableSections(d))...)
 }

@@ -57,7 +57,11 @@ func ReadCSVFile(path string, o ReadOptions) (*Data, error) {
 // up to forest.MaxProblems.
 //
 // With no task given, the table is a classification problem when any label
-// is not a number, and a regression otherwise. Classes are the distinct
+// is not a number, and a regression otherwise; but when every label is a
+// whole number, at most MaxClassCodes distinct, both readings are common
+// (class codes such as wine's 0, 1, 2; counts or ratings) and a wrong
+// guess costs a whole training run, so ReadCSV asks for the task instead
+// of choosing. Classes are the distinct
 // labels sorted numerically when all are numbers, else byte-wise.
 func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 	if o.Label == "" {
@@ -93,6 +97,7 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 	}
 	label, ok := cols[o.Label]
 	if !ok {
+		label = -1 // no column is the label: an ignored column is not it
 		p.Add("%s:1: no column named %q (the label)\nhint: the columns are %s", name, o.Label, quoteList(names))
 	}
 	skip := make([]bool, len(header))
@@ -169,18 +174,24 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 		labels = append(labels, lv)
 		d.Line = append(d.Line, line)
 	}
+	// Columns where no cell is a number (ids, timestamps) are named together
+	// in one hint, every one of them.
+	var wholly []string
 	hint := ""
 	for j, n := range badCells {
 		switch {
 		case n == len(labels) && n > 0:
 			p.Add("%s: column %q: no cell is a finite number", name, d.Features[j])
-			hint = "hint: leave such a column out with --ignore " + d.Features[j]
+			wholly = append(wholly, d.Features[j])
 		case n > perColumn:
 			p.Add("%s: column %q: %d more cells are missing or not numbers", name, d.Features[j], n-perColumn)
 		}
 		if n > 0 && hint == "" {
 			hint = "hint: training needs every feature cell to be a finite number; fill or drop the rows named, or leave a column out with --ignore"
 		}
+	}
+	if len(wholly) > 0 {
+		hint = "hint: leave such columns out with --ignore " + strings.Join(append(slices.Clone(o.Ignore), wholly...), ",")
 	}
 	if p.Len() > 0 && hint != "" {
 		return nil, fmt.Errorf("%w\n%s", p.Err(), hint)
@@ -211,6 +222,12 @@ func (d *Data) setLabels(labels []string, task forest.Task, name string) error {
 			}
 		}
 		nums[i] = v
+	}
+	if task == "" && numeric {
+		if codes := classCodes(nums); codes != nil {
+			return fmt.Errorf("%s: column %q: every label is a whole number, %d distinct (%s): class codes or a quantity?\nhint: pass --task classification to predict the classes, or --task regression to predict a number",
+				name, d.Label, len(codes), codeList(codes))
+		}
 	}
 	if task == "" {
 		task = forest.Regression
@@ -260,6 +277,45 @@ func (d *Data) setLabels(labels []string, task forest.Task, name string) error {
 		d.Y[i] = float64(index[s])
 	}
 	return nil
+}
+
+// MaxClassCodes is the most distinct whole-number labels that read as
+// class codes as readily as a quantity: up to it, ReadCSV asks for the task
+// rather than guess it.
+const MaxClassCodes = 20
+
+// classCodes returns the distinct labels, sorted, when every one is a whole
+// number and there are at most MaxClassCodes of them; else nil.
+func classCodes(nums []float64) []float64 {
+	seen := map[float64]bool{}
+	var codes []float64
+	for _, v := range nums {
+		if v != math.Trunc(v) {
+			return nil
+		}
+		if !seen[v] {
+			if len(codes) == MaxClassCodes {
+				return nil
+			}
+			seen[v] = true
+			codes = append(codes, v)
+		}
+	}
+	slices.Sort(codes)
+	return codes
+}
+
+// codeList prints up to six codes, "0, 1, 2" or "1, 2, 3, ..., 12".
+func codeList(codes []float64) string {
+	var s []string
+	for i, v := range codes {
+		if i == 5 && len(codes) > 6 {
+			s = append(s, "...", strconv.FormatFloat(codes[len(codes)-1], 'g', -1, 64))
+			break
+		}
+		s = append(s, strconv.FormatFloat(v, 'g', -1, 64))
+	}
+	return strings.Join(s, ", ")
 }
 
 func (d *Data) lineOf(i int) int {

@@ -330,11 +330,30 @@ func TestReadCSV(t *testing.T) {
 	assert.Equal(t, []int{2, 3, 4, 5}, d.Line)
 
 	// numeric labels: regression unless told otherwise; classes sorted by value
-	num := "x,y\n1,10\n2,9\n3,2\n4,10\n"
-	d, err = ReadCSV(strings.NewReader(num), "n.csv", ReadOptions{Label: "y"})
+	frac := "x,y\n1,10.5\n2,9\n3,2\n4,10.5\n"
+	d, err = ReadCSV(strings.NewReader(frac), "n.csv", ReadOptions{Label: "y"})
 	require.NoError(t, err)
 	assert.Equal(t, forest.Regression, d.Task)
+	assert.Equal(t, []float64{10.5, 9, 2, 10.5}, d.Y)
+	// whole-number labels, few distinct: class codes or a quantity? The
+	// task must be given.
+	num := "x,y\n1,10\n2,9\n3,2\n4,10\n"
+	_, err = ReadCSV(strings.NewReader(num), "n.csv", ReadOptions{Label: "y"})
+	require.Error(t, err)
+	assert.Contains(t, err.Error(), `n.csv: column "y": every label is a whole number, 3 distinct (2, 9, 10)`)
+	assert.Contains(t, err.Error(), "hint: pass --task classification")
+	d, err = ReadCSV(strings.NewReader(num), "n.csv", ReadOptions{Label: "y", Task: forest.Regression})
+	require.NoError(t, err)
 	assert.Equal(t, []float64{10, 9, 2, 10}, d.Y)
+	// more than MaxClassCodes distinct whole numbers read as a quantity
+	var many strings.Builder
+	many.WriteString("x,y\n")
+	for i := range MaxClassCodes + 1 {
+		fmt.Fprintf(&many, "%d,%d\n", i, 100*i)
+	}
+	d, err = ReadCSV(strings.NewReader(many.String()), "n.csv", ReadOptions{Label: "y"})
+	require.NoError(t, err)
+	assert.Equal(t, forest.Regression, d.Task)
 	d, err = ReadCSV(strings.NewReader(num), "n.csv", ReadOptions{Label: "y", Task: forest.Classification})
 	require.NoError(t, err)
 	assert.Equal(t, []string{"2", "9", "10"}, d.Classes)
@@ -362,7 +381,7 @@ func TestReadCSVErrors(t *testing.T) {
 		{"a,y\n1,2\n2,x\n", ReadOptions{Label: "y", Task: forest.Regression}, []string{`d.csv:3: column "y": "x" is not a finite number`}},
 		{"a,y\n", ReadOptions{Label: "y"}, []string{`d.csv: no rows after the header`}},
 		{"id,a,y\nP1,1,x\nP2,2,z\n", ReadOptions{Label: "y"}, []string{`d.csv:2: column "id": "P1" is not a number`,
-			`d.csv: column "id": no cell is a finite number`, "hint: leave such a column out with --ignore id"}},
+			`d.csv: column "id": no cell is a finite number`, "hint: leave such columns out with --ignore id"}},
 		{"a,y\n,x\n,x\n,x\n,x\n,x\n3,z\n", ReadOptions{Label: "y"}, []string{`d.csv:4: column "a": missing value`,
 			`d.csv: column "a": 2 more cells are missing or not numbers`}},
 		{"", ReadOptions{Label: "y"}, []string{`d.csv: empty file`}},

@@ -28,6 +28,9 @@
 //
 //	0  "ok */"
 //	1  "no\"pe' --"
+//
+// Layout branchless: each tree a full heap walked without branches. sawmill
+// compile --layout nested or --layout table writes the other forms.
 package forestmodel
 
 import (

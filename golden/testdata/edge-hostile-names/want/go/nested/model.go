@@ -28,6 +28,10 @@
 //
 //	0  "ok */"
 //	1  "no\"pe' --"
+//
+// Layout nested: one function of if/else per tree. sawmill compile --layout
+// table writes the nodes as a table walked by one loop, faster for forests of
+// four trees or more.
 package forestmodel
 
 const (

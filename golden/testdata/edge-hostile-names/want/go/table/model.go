@@ -28,14 +28,13 @@
 //
 //	0  "ok */"
 //	1  "no\"pe' --"
+//
+// Layout table: the nodes are array literals below, one line per node. sawmill
+// compile --layout nested writes if/else code instead; --tables base64 writes
+// the table as a blob, which builds faster past some 50,000 nodes.
 package forestmodel
 
-import (
-	"encoding/base64"
-	"encoding/binary"
-	"math"
-	"strings"
-)
+import "math"
 
 const (
 	// NumFeatures is the length of Predict's input.
@@ -107,8 +106,8 @@ func PredictClass(x *[NumFeatures]float64) int {
 	return best
 }
 
-// The forest as one table (see step): nodes in depth-first order per tree, decoded
-// once by init from blob.
+// The forest as one table (see step): nodes in depth-first order per tree, one
+// line each in nodes below.
 const (
 	xxLen    = 2*NumFeatures + 1 // x, -x, then a NaN tested at every leaf
 	leafMark = xxLen - 1         // feat at a leaf
@@ -149,47 +148,94 @@ func addLeaf(acc *[NumOutputs]float64, r int) {
 	}
 }
 
+// tableNode is one node of the table: the index into xx it tests (leafMark at a leaf),
+// the offset to the node a failed test goes to (0 at a leaf) and the threshold (at a
+// leaf its value, or with several outputs its row in leafValues).
+type tableNode struct {
+	feat uint8
+	far  uint8
+	thr  float64
+}
+
+// nodes is the forest, one line per node, each tree's nodes in depth-first order with
+// the child a passed test goes to right after its node. A comment gives the node's
+// position, its tree and id in the model, and its test: x <= t sends a row to the next
+// line, else (and when the value is missing) to the line that far below; a test on
+// -x is a split that sends missing values the other way.
+var nodes = [...]tableNode{
+	// tree 0
+	{16, 32, -5e-324},             // 0: tree 0 node 0: -"select" <= -5e-324, else +32 (missing goes left)
+	{1, 2, 0.5},                   // 1: tree 0 node 2: "2nd reading" <= 0.5, else +2
+	{leafMark, 0, 0.0},            // 2: tree 0 node 3: leaf, row 0 of leafValues
+	{18, 28, -1.0000000000000002}, // 3: tree 0 node 4: -"a-b" <= -1.0000000000000002, else +28 (missing goes left)
+	{3, 2, 1.5},                   // 4: tree 0 node 6: "a_b" <= 1.5, else +2
+	{leafMark, 0, 1.0},            // 5: tree 0 node 7: leaf, row 1 of leafValues
+	{20, 24, -2.0000000000000004}, // 6: tree 0 node 8: -"a b" <= -2.0000000000000004, else +24 (missing goes left)
+	{5, 2, 2.5},                   // 7: tree 0 node 10: "back`quote" <= 2.5, else +2
+	{leafMark, 0, 2.0},            // 8: tree 0 node 11: leaf, row 2 of leafValues
+	{22, 20, -3.0000000000000004}, // 9: tree 0 node 12: -"end */ comment" <= -3.0000000000000004, else +20 (missing goes left)
+	{7, 2, 3.5},                   // 10: tree 0 node 14: "quote\"d" <= 3.5, else +2
+	{leafMark, 0, 3.0},            // 11: tree 0 node 15: leaf, row 3 of leafValues
+	{24, 16, -4.000000000000001},  // 12: tree 0 node 16: -"it's" <= -4.000000000000001, else +16 (missing goes left)
+	{9, 2, 4.5},                   // 13: tree 0 node 18: "back\\slash" <= 4.5, else +2
+	{leafMark, 0, 4.0},            // 14: tree 0 node 19: leaf, row 4 of leafValues
+	{26, 12, -5.000000000000001},  // 15: tree 0 node 20: -"DROP TABLE t;--" <= -5.000000000000001, else +12 (missing goes left)
+	{11, 2, 5.5},                  // 16: tree 0 node 22: "naïve température" <= 5.5, else +2
+	{leafMark, 0, 5.0},            // 17: tree 0 node 23: leaf, row 5 of leafValues
+	{28, 8, -6.000000000000001},   // 18: tree 0 node 24: -"??/" <= -6.000000000000001, else +8 (missing goes left)
+	{13, 2, 6.5},                  // 19: tree 0 node 26: "int" <= 6.5, else +2
+	{leafMark, 0, 6.0},            // 20: tree 0 node 27: leaf, row 6 of leafValues
+	{30, 4, -7.000000000000001},   // 21: tree 0 node 28: -"func" <= -7.000000000000001, else +4 (missing goes left)
+	{15, 2, 7.5},                  // 22: tree 0 node 30: "x" <= 7.5, else +2
+	{leafMark, 0, 7.0},            // 23: tree 0 node 31: leaf, row 7 of leafValues
+	{leafMark, 0, 8.0},            // 24: tree 0 node 32: leaf, row 8 of leafValues
+	{leafMark, 0, 9.0},            // 25: tree 0 node 29: leaf, row 9 of leafValues
+	{leafMark, 0, 10.0},           // 26: tree 0 node 25: leaf, row 10 of leafValues
+	{leafMark, 0, 11.0},           // 27: tree 0 node 21: leaf, row 11 of leafValues
+	{leafMark, 0, 12.0},           // 28: tree 0 node 17: leaf, row 12 of leafValues
+	{leafMark, 0, 13.0},           // 29: tree 0 node 13: leaf, row 13 of leafValues
+	{leafMark, 0, 14.0},           // 30: tree 0 node 9: leaf, row 14 of leafValues
+	{leafMark, 0, 15.0},           // 31: tree 0 node 5: leaf, row 15 of leafValues
+	{leafMark, 0, 16.0},           // 32: tree 0 node 1: leaf, row 16 of leafValues
+}
+
+// roots is the first node of each tree.
+var roots = []uint32{
+	0,
+}
+
+// leafValues holds the leaf vectors, NumOutputs values each, one leaf a line.
+var leafValues = []float64{
+	0.0625, 0.9375,
+	0.1875, 0.8125,
+	0.3125, 0.6875,
+	0.4375, 0.5625,
+	0.5625, 0.4375,
+	0.6875, 0.3125,
+	0.8125, 0.1875,
+	0.9375, 0.0625,
+	0.5, 0.5,
+	0.875, 0.125,
+	0.75, 0.25,
+	0.625, 0.375,
+	0.5, 0.5,
+	0.375, 0.625,
+	0.25, 0.75,
+	0.125, 0.875,
+	0.0, 1.0,
+}
+
 var (
-	feat       []uint8   // index into xx tested at each node; leafMark at a leaf
-	far        []uint8   // offset to the child taken when the test fails; 0 at a leaf
-	thr        []float64 // threshold; at a leaf its row in leafValues
-	roots      []uint32  // first node of each tree
-	leafValues []float64 // leaf vectors, NumOutputs values each
+	feat []uint8   // nodes' feat, the walk's first array
+	far  []uint8   // nodes' far
+	thr  []float64 // nodes' thr
 )
 
 func init() {
-	b, err := base64.StdEncoding.DecodeString(strings.Join(blob[:], ""))
-	if err != nil || len(b) != 606 {
-		panic("forestmodel: the forest's tables do not decode")
+	feat = make([]uint8, len(nodes))
+	far = make([]uint8, len(nodes))
+	thr = make([]float64, len(nodes))
+	for i, n := range nodes {
+		feat[i], far[i], thr[i] = n.feat, n.far, n.thr
 	}
-	feat, b = decodeUint8(b, 33)
-	far, b = decodeUint8(b, 33)
-	thr, b = decodeFloat64(b, 33)
-	roots, b = decodeUint32(b, 1)
-	leafValues, _ = decodeFloat64(b, 34)
-}
-
-func decodeUint8(b []byte, n int) ([]uint8, []byte) {
-	return b[:n:n], b[n:]
-}
-
-func decodeFloat64(b []byte, n int) ([]float64, []byte) {
-	v := make([]float64, n)
-	for i := range v {
-		v[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
-	}
-	return v, b[8*n:]
-}
-
-func decodeUint32(b []byte, n int) ([]uint32, []byte) {
-	v := make([]uint32, n)
-	for i := range v {
-		v[i] = binary.LittleEndian.Uint32(b[4*i:])
-	}
-	return v, b[4*n:]
-}
-
-// blob holds feat, far, thr, roots, leafValues in order, little-endian, base64-encoded.
-var blob = [...]string{
-	"EAEgEgMgFAUgFgcgGAkgGgsgHA0gHg8gICAgICAgICAgIAIAHAIAGAIAFAIAEAIADAIACAIABAIAAAAAAAAAAAAAAQAAAAAAAIAAAAAAAADgPwAAAAAAAAAAAQAAAAAA8L8AAAAAAAD4PwAAAAAAAPA/AQAAAAAAAMAAAAAAAAAEQAAAAAAAAABAAQAAAAAACMAAAAAAAAAMQAAAAAAAAAhAAQAAAAAAEMAAAAAAAAASQAAAAAAAABBAAQAAAAAAFMAAAAAAAAAWQAAAAAAAABRAAQAAAAAAGMAAAAAAAAAaQAAAAAAAABhAAQAAAAAAHMAAAAAAAAAeQAAAAAAAABxAAAAAAAAAIEAAAAAAAAAiQAAAAAAAACRAAAAAAAAAJkAAAAAAAAAoQAAAAAAAACpAAAAAAAAALEAAAAAAAAAuQAAAAAAAADBAAAAAAAAAAAAAALA/AAAAAAAA7j8AAAAAAADIPwAAAAAAAOo/AAAAAAAA1D8AAAAAAADmPwAAAAAAANw/AAAAAAAA4j8AAAAAAADiPwAAAAAAANw/AAAAAAAA5j8AAAAAAADUPwAAAAAAAOo/AAAAAAAAyD8AAAAAAADuPwAAAAAAALA/AAAAAAAA4D8AAAAAAADgPwAAAAAAAOw/AAAAAAAAwD8AAAAAAADoPwAAAAAAANA/AAAAAAAA5D8AAAAAAADYPwAAAAAAAOA/AAAAAAAA4D8AAAAAAADYPwAAAAAAAOQ/AAAAAAAA0D8AAAAAAADoPwAAAAAAAMA/AAAAAAAA7D8AAAAAAAAAAAAAAAAAAPA/",
 }

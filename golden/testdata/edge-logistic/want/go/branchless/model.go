@@ -14,6 +14,9 @@
 //
 //	0  "healthy"
 //	1  "bearing_wear"
+//
+// Layout branchless: each tree a full heap walked without branches. sawmill
+// compile --layout nested or --layout table writes the other forms.
 package forestmodel
 
 import (

@@ -14,6 +14,10 @@
 //
 //	0  "healthy"
 //	1  "bearing_wear"
+//
+// Layout nested: one function of if/else per tree. sawmill compile --layout
+// table writes the nodes as a table walked by one loop, faster for forests of
+// four trees or more.
 package forestmodel
 
 import "math"

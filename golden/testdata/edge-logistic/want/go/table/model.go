@@ -14,14 +14,13 @@
 //
 //	0  "healthy"
 //	1  "bearing_wear"
+//
+// Layout table: the nodes are array literals below, one line per node. sawmill
+// compile --layout nested writes if/else code instead; --tables base64 writes
+// the table as a blob, which builds faster past some 50,000 nodes.
 package forestmodel
 
-import (
-	"encoding/base64"
-	"encoding/binary"
-	"math"
-	"strings"
-)
+import "math"
 
 const (
 	// NumFeatures is the length of Predict's input.
@@ -71,8 +70,8 @@ func PredictClass(x *[NumFeatures]float64) int {
 	return 0
 }
 
-// The forest as one table (see step): nodes in depth-first order per tree, decoded
-// once by init from blob.
+// The forest as one table (see step): nodes in depth-first order per tree, one
+// line each in nodes below.
 const (
 	xxLen    = 2*NumFeatures + 1 // x, -x, then a NaN tested at every leaf
 	leafMark = xxLen - 1         // feat at a leaf
@@ -102,47 +101,55 @@ func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
 	return a, b, c, d
 }
 
+// tableNode is one node of the table: the index into xx it tests (leafMark at a leaf),
+// the offset to the node a failed test goes to (0 at a leaf) and the threshold (at a
+// leaf its value, or with several outputs its row in leafValues).
+type tableNode struct {
+	feat uint8
+	far  uint8
+	thr  float64
+}
+
+// nodes is the forest, one line per node, each tree's nodes in depth-first order with
+// the child a passed test goes to right after its node. A comment gives the node's
+// position, its tree and id in the model, and its test: x <= t sends a row to the next
+// line, else (and when the value is missing) to the line that far below; a test on
+// -x is a split that sends missing values the other way.
+var nodes = [...]tableNode{
+	// tree 0
+	{1, 4, 61.5},                // 0: tree 0 node 0: "bearing_temp_c" <= 61.5, else +4
+	{2, 2, -12.250000000000002}, // 1: tree 0 node 1: -"motor_current_a" <= -12.250000000000002, else +2 (missing goes left)
+	{leafMark, 0, 0.6},          // 2: tree 0 node 4: leaf
+	{leafMark, 0, -0.3},         // 3: tree 0 node 3: leaf
+	{leafMark, 0, 1.75},         // 4: tree 0 node 2: leaf
+	// tree 1
+	{0, 2, 10.0},        // 5: tree 1 node 0: "motor_current_a" <= 10, else +2
+	{leafMark, 0, -0.2}, // 6: tree 1 node 1: leaf
+	{leafMark, 0, 40.0}, // 7: tree 1 node 2: leaf
+	// tree 2
+	{1, 2, 70.0},          // 8: tree 2 node 0: "bearing_temp_c" <= 70, else +2
+	{leafMark, 0, -800.0}, // 9: tree 2 node 1: leaf
+	{leafMark, 0, 0.01},   // 10: tree 2 node 2: leaf
+}
+
+// roots is the first node of each tree.
+var roots = []uint32{
+	0, 5, 8,
+}
+
 var (
-	feat  []uint8   // index into xx tested at each node; leafMark at a leaf
-	far   []uint8   // offset to the child taken when the test fails; 0 at a leaf
-	thr   []float64 // threshold; the value at a leaf
-	roots []uint32  // first node of each tree
+	feat []uint8   // nodes' feat, the walk's first array
+	far  []uint8   // nodes' far
+	thr  []float64 // nodes' thr
 )
 
 func init() {
-	b, err := base64.StdEncoding.DecodeString(strings.Join(blob[:], ""))
-	if err != nil || len(b) != 122 {
-		panic("forestmodel: the forest's tables do not decode")
+	feat = make([]uint8, len(nodes))
+	far = make([]uint8, len(nodes))
+	thr = make([]float64, len(nodes))
+	for i, n := range nodes {
+		feat[i], far[i], thr[i] = n.feat, n.far, n.thr
 	}
-	feat, b = decodeUint8(b, 11)
-	far, b = decodeUint8(b, 11)
-	thr, b = decodeFloat64(b, 11)
-	roots, _ = decodeUint32(b, 3)
-}
-
-func decodeUint8(b []byte, n int) ([]uint8, []byte) {
-	return b[:n:n], b[n:]
-}
-
-func decodeFloat64(b []byte, n int) ([]float64, []byte) {
-	v := make([]float64, n)
-	for i := range v {
-		v[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
-	}
-	return v, b[8*n:]
-}
-
-func decodeUint32(b []byte, n int) ([]uint32, []byte) {
-	v := make([]uint32, n)
-	for i := range v {
-		v[i] = binary.LittleEndian.Uint32(b[4*i:])
-	}
-	return v, b[4*n:]
-}
-
-// blob holds feat, far, thr, roots in order, little-endian, base64-encoded.
-var blob = [...]string{
-	"AQIEBAQABAQBBAQEAgAAAAIAAAIAAAAAAAAAwE5AAQAAAACAKMAzMzMzMzPjPzMzMzMzM9O/AAAAAAAA/D8AAAAAAAAkQJqZmZmZmcm/AAAAAAAAREAAAAAAAIBRQAAAAAAAAInAexSuR+F6hD8AAAAABQAAAAgAAAA=",
 }
 
 // sigmoid is the logistic function in the form that never overflows.

@@ -9,6 +9,9 @@
 //
 //	x[0]  "a"
 //	x[1]  "b"
+//
+// Layout branchless: each tree a full heap walked without branches. sawmill
+// compile --layout nested or --layout table writes the other forms.
 package forestmodel
 
 import (

@@ -9,6 +9,10 @@
 //
 //	x[0]  "a"
 //	x[1]  "b"
+//
+// Layout nested: one function of if/else per tree. sawmill compile --layout
+// table writes the nodes as a table walked by one loop, faster for forests of
+// four trees or more.
 package forestmodel
 
 import "math"

@@ -8,6 +8,9 @@
 // Features (x[i] in Predict; NaN is a missing value):
 //
 //	x[0]  "x"  (unused)
+//
+// Layout branchless: each tree a full heap walked without branches. sawmill
+// compile --layout nested or --layout table writes the other forms.
 package forestmodel
 
 import (

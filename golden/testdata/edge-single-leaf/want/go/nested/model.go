@@ -8,6 +8,10 @@
 // Features (x[i] in Predict; NaN is a missing value):
 //
 //	x[0]  "x"  (unused)
+//
+// Layout nested: one function of if/else per tree. sawmill compile --layout
+// table writes the nodes as a table walked by one loop, faster for forests of
+// four trees or more.
 package forestmodel
 
 const (
