@@ -34,6 +34,22 @@ func Lower(f *forest.Forest) *Program {
 	if f.InputPrecision == forest.Float32 {
 		p.Compare = Round32
 	}
+	p.ZeroBound = forest.ZeroMissingBound
+	if f.Float32Accumulate() {
+		p.Accumulate = forest.Float32
+		for j, b := range p.BaseScore {
+			p.BaseScore[j] = forest.Round32(b) // every use rounds it first
+		}
+	}
+	if s := f.Scale(); s != 1 {
+		p.TransformScale = s
+	}
+	if f.CategoryMatch != "" && f.CategoryMatch != forest.MatchFloor {
+		p.CategoryMatch = f.CategoryMatch
+	}
+	if f.HasMissingValue {
+		p.HasMissingValue, p.MissingLo, p.MissingHi = true, f.MissingValue, f.MissingValue
+	}
 	for _, name := range f.Features {
 		p.Features = append(p.Features, Feature{Name: name, Used: true})
 	}
@@ -44,7 +60,7 @@ func Lower(f *forest.Forest) *Program {
 }
 
 func lowerTree(t *forest.Tree, ti, k int) Tree {
-	out := Tree{Source: ti}
+	out := Tree{Source: ti, HasOutput: t.HasOutput, Output: t.Output}
 	type item struct {
 		src    int
 		parent int32 // index in out.Nodes, -1 for the root
@@ -67,8 +83,16 @@ func lowerTree(t *forest.Tree, ti, k int) Tree {
 				Value: append([]float64(nil), t.Leaf(it.src, k)...)})
 			continue
 		}
-		out.Nodes = append(out.Nodes, Node{Feature: t.Feature[it.src], Op: LE, Threshold: t.Threshold[it.src],
-			MissingLeft: t.MissingLeft[it.src], ID: int32(it.src)})
+		n := Node{Feature: t.Feature[it.src], Op: LE, Threshold: t.Threshold[it.src],
+			MissingLeft: t.MissingLeft[it.src], ID: int32(it.src)}
+		if t.ZeroMissing != nil {
+			n.ZeroMissing = t.ZeroMissing[it.src]
+		}
+		if t.IsSetSplit(it.src) {
+			n.Threshold = 0
+			n.Categories = append([]int32{}, t.Categories[it.src]...)
+		}
+		out.Nodes = append(out.Nodes, n)
 		// Right first so that the left subtree comes next in preorder.
 		stack = append(stack, item{t.Right[it.src], idx, false}, item{t.Left[it.src], idx, true})
 	}
