@@ -30,7 +30,7 @@ type heapData struct {
 	depth    []uint32  // per tree: its depth, or deepTree
 	off      []uint32  // per tree: first split, or table root for a deep tree
 	leafOff  []uint32  // per tree: first leaf slot (heap trees)
-	set      []uint32 // 1 + the set descriptor of each heap split, 0 for numeric ones
+	set      []uint32  // 1 + the set descriptor of each heap split, 0 for numeric ones
 	featType string
 	table    *tableData // the deep trees, nil when there are none
 	negated  bool

@@ -192,6 +192,14 @@ func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
 }
 
 func (g *gen) source() ([]byte, error) {
+	switch g.layout {
+	case emit.Nested:
+		g.sets = buildSets(g.p, false)
+	case emit.Table:
+		g.sets = g.tableData().sets
+	case emit.Branchless:
+		g.sets = g.heapData().sets
+	}
 	f := jen.NewFile(g.pkg)
 	g.header(f)
 	f.Add(g.constants())
@@ -217,14 +225,6 @@ func (g *gen) source() ([]byte, error) {
 		body = g.branchless()
 	default:
 		panic("BUG: golang: layout " + g.layout)
-	}
-	switch g.layout {
-	case emit.Nested:
-		g.sets = buildSets(g.p, false)
-	case emit.Table:
-		g.sets = g.tableData().sets
-	case emit.Branchless:
-		g.sets = g.heapData().sets
 	}
 	body = append(body, g.setDecls()...)
 	for _, c := range body {

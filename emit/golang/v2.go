@@ -2,6 +2,7 @@ package golang
 
 import (
 	"fmt"
+	"math"
 	"strings"
 
 	"github.com/dave/jennifer/jen"
@@ -113,10 +114,10 @@ type setData struct {
 }
 
 type setDesc struct {
-	lo, hi             float64
+	lo, hi              float64
 	loOpen, isList, neg bool
-	base               int32
-	off, n             int
+	base                int32
+	off, n              int
 }
 
 // Flag bits of setKind in the emitted file.
@@ -250,7 +251,7 @@ func (g *gen) setDecls() []jen.Code {
 	}
 	v := jen.Id("v")
 	rangeTest := jen.Op("!").Parens(v.Clone().Op(">=").Id("setLo").Index(jen.Id("s")).Op("&&").Add(v.Clone()).Op("<").Id("setHi").Index(jen.Id("s"))).
-		Op("||").Add(v.Clone()).Op("==").Id("setLo").Index(jen.Id("s")).Op("&&").Id("setKind").Index(jen.Id("s")).Op("&").Id("setLoOpen").Op("!=").Lit(0)
+		Op("||").Add(v.Clone()).Op("==").Id("setLo").Index(jen.Id("s")).Op("&&").Id("setKind").Index(jen.Id("s")).Op("&").Id("setIsLoOpen").Op("!=").Lit(0)
 	var body []jen.Code
 	if g.p.CategoryRound32 {
 		body = append(body, jen.Id("v").Op("=").Float64().Parens(jen.Float32().Parens(jen.Id("v"))).
@@ -265,7 +266,7 @@ func (g *gen) setDecls() []jen.Code {
 	}
 	body = append(body,
 		jen.Id("off").Op(":=").Int().Parens(jen.Id("setOff").Index(jen.Id("s"))),
-		jen.If(jen.Id("setKind").Index(jen.Id("s")).Op("&").Id("setList").Op("!=").Lit(0)).Block(
+		jen.If(jen.Id("setKind").Index(jen.Id("s")).Op("&").Id("setIsList").Op("!=").Lit(0)).Block(
 			jen.Id("l").Op(":=").Id("setList").Index(jen.Id("off").Op(":").Id("off").Op("+").Int().Parens(jen.Id("setN").Index(jen.Id("s")))),
 			jen.List(jen.Id("i"), jen.Id("j")).Op(":=").List(jen.Lit(0), jen.Len(jen.Id("l"))),
 			jen.For(jen.Id("i").Op("<").Id("j")).Block(
@@ -282,9 +283,9 @@ func (g *gen) setDecls() []jen.Code {
 	)
 	out := []jen.Code{
 		jen.Comment("Flags of setKind.").Line().Const().Defs(
-			jen.Id("setList").Op("=").Lit(setListFlag).Comment("the set is a sorted list in setList, else a bitset in setWords"),
-			jen.Id("setNeg").Op("=").Lit(setNegFlag).Comment("setTest succeeds on non-missing non-members"),
-			jen.Id("setLoOpen").Op("=").Lit(setLoOpenFlag).Comment("setLo itself is no member"),
+			jen.Id("setIsList").Op("=").Lit(setListFlag).Comment("the set is a sorted list in setList, else a bitset in setWords"),
+			jen.Id("setIsNeg").Op("=").Lit(setNegFlag).Comment("setTest succeeds on non-missing non-members"),
+			jen.Id("setIsLoOpen").Op("=").Lit(setLoOpenFlag).Comment("setLo itself is no member"),
 		),
 		arr("setLo", "float64", "setLo and setHi bound each set's members: setLo[s] <= v < setHi[s].", lo),
 		arr("setHi", "float64", "setHi is one past each set's last category.", hi),
@@ -302,7 +303,7 @@ func (g *gen) setDecls() []jen.Code {
 		out = append(out, jen.Comment("setTest is the test of a set split in the tables: membership, or for a split").Line().
 			Comment("that sends missing values left, a value that is neither missing nor a member.").Line().
 			Func().Id("setTest").Params(jen.Id("s").Int(), jen.Id("v").Float64()).Bool().Block(
-			jen.If(jen.Id("setKind").Index(jen.Id("s")).Op("&").Id("setNeg").Op("!=").Lit(0)).Block(
+			jen.If(jen.Id("setKind").Index(jen.Id("s")).Op("&").Id("setIsNeg").Op("!=").Lit(0)).Block(
 				jen.Return(jen.Id("v").Op("==").Id("v").Op("&&").Op("!").Id("member").Call(jen.Id("s"), jen.Id("v"))),
 			),
 			jen.Return(jen.Id("member").Call(jen.Id("s"), jen.Id("v"))),
@@ -364,11 +365,26 @@ func (g *gen) inZeroBand(v jen.Code) jen.Code {
 	return jen.Add(v).Op(">=").Add(g.threshold(-z)).Op("&&").Add(v).Op("<=").Add(g.threshold(z))
 }
 
+// accLit is a constant of the accumulator's type: under float32
+// accumulation a float32 value, which may be an infinity (a base score
+// beyond float32's range rounds to one) or -0.
+func (g *gen) accLit(v float64) jen.Code {
+	switch {
+	case !g.p.Float32Accumulate():
+		return g.float(v)
+	case math.IsInf(v, 0):
+		return jen.Float32().Parens(jen.Qual("math", "Inf").Call(jen.Lit(int(math.Copysign(1, v)))))
+	case v == 0 && math.Signbit(v):
+		return jen.Float32().Parens(g.float(v))
+	}
+	return jen.Lit(v)
+}
+
 // baseScoreV2 declares the base score in the accumulator's type.
 func (g *gen) baseScoreV2() jen.Code {
 	vals := make([]jen.Code, g.k)
 	for j, v := range g.p.BaseScore {
-		vals[j] = g.float(v)
+		vals[j] = g.accLit(v)
 	}
 	return jen.Comment("baseScore is where a sum starts, or what is added after an average.").Line().
 		Var().Id("baseScore").Op("=").Index(jen.Id("NumOutputs")).Add(g.accType()).Values(vals...)
