@@ -17,6 +17,10 @@
 // a table of nodes kept as one binary string and walked by one loop; and a
 // branchless implicit-heap descent for shallow trees. Auto picks by node
 // count and depth (ChooseLayout).
+//
+// Format version 2 (set splits, zero_missing, a missing value, trees of one
+// output, float32 accumulation with an emitted copy of glibc's expf, the
+// scale and the new transforms) is written in every layout; v2.go says how.
 package golang
 
 import (
