@@ -203,7 +203,7 @@ func TestFloat32RewriteRoutesExhaustive(t *testing.T) {
 				Feature: []int{0, -1, 0, -1, -1}, Threshold: []float64{0, 0, 0.5, 0, 0},
 				Left: []int{1, -1, 3, -1, -1}, Right: []int{2, -1, 4, -1, -1},
 				MissingLeft: []bool{false, false, true, false, false}, Value: []float64{0, 1, 0, 2, 3},
-				Categories:  [][]int32{cats, nil, nil, nil, nil}, ZeroMissing: []bool{false, false, true, false, false},
+				Categories: [][]int32{cats, nil, nil, nil, nil}, ZeroMissing: []bool{false, false, true, false, false},
 			}}
 			require.NoError(t, f.Validate("set"))
 			want, got := []float64{0}, []float64{0}
