@@ -11,21 +11,9 @@ import (
 
 // Lower turns a validated forest into a Program with the same meaning: the
 // reachable nodes of each tree in preorder, nothing else changed. It walks
-// with an explicit stack, so any depth is fine. A model that Unsupported
-// rejects is a caller's bug: Lower panics rather than return a program that
-// means something else.
+// with an explicit stack, so any depth is fine. Every construct of format
+// version 2 is carried (see the Program's fields).
 func Lower(f *forest.Forest) *Program {
-	if err := Unsupported(f); err != nil {
-		panic("BUG: compile.Lower: call compile.Unsupported first: " + err.Error())
-	}
-	return lower(f)
-}
-
-// lower is Lower without the check. For a model of version 2 constructs the
-// result keeps only the tree shapes (set splits read as numeric splits at 0,
-// per-output trees' leaves of length 1): LeafRows uses it to walk paths and
-// keeps only rows that the interpreter confirms.
-func lower(f *forest.Forest) *Program {
 	var buf bytes.Buffer
 	if err := f.Encode(&buf); err != nil {
 		panic("BUG: compile.Lower: a validated forest does not encode: " + err.Error())

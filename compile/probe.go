@@ -17,7 +17,7 @@ import (
 // the lower bound, else 0; NaN when only a missing value reaches the leaf.
 // For float32 models the values are float32 numbers.
 func LeafRows(f *forest.Forest, limit int) [][]float64 {
-	p := lower(f)
+	p := Lower(f)
 	f32 := p.Compare == Round32
 	var rows [][]float64
 	for ti := range p.Trees {
