@@ -20,9 +20,10 @@ import (
 //
 // It writes one Go program with, per list, a range check then a bitset
 // word (as member does), a range check then a binary search of the sorted
-// list (member's other form), and a switch over the categories (what nested
-// code could write instead), builds it, and prints ns per test. The result
-// chose useBitset's rule: the bitset where it is small, else the list.
+// list (member's other form; "list-cmov" is a search written so the
+// compiler can use conditional moves), and a switch over the categories
+// (what nested code could write instead), builds it, and prints ns per
+// test. The result chose useBitset's rule (see v2.go).
 func BenchmarkSetMembership(b *testing.B) {
 	if _, err := exec.LookPath("go"); err != nil {
 		b.Skip("no go command on PATH: the benchmark builds the code it times")
@@ -88,9 +89,27 @@ func BenchmarkSetMembership(b *testing.B) {
 	return i < len(l) && l[i] == c
 }
 `, id, lo, int64(hi)+1, id)
+		fmt.Fprintf(&src, `func lower%s(v float64) bool {
+	if !(v >= %d && v < %d) {
+		return false
+	}
+	c := int32(v)
+	l := list%s
+	base, n := 0, len(l)
+	for n > 1 {
+		half := n >> 1
+		if l[base+half] <= c {
+			base += half
+		}
+		n -= half
+	}
+	return l[base] == c
+}
+`, id, lo, int64(hi)+1, id)
 		fmt.Fprintf(&src, "func switch%s(v float64) bool {\n\tif !(v >= %d && v < %d) {\n\t\treturn false\n\t}\n\tswitch int32(v) {\n\tcase %s:\n\t\treturn true\n\t}\n\treturn false\n}\n",
 			id, lo, int64(hi)+1, joinInts(cs))
 		cases = append(cases, fmt.Sprintf("{%q, search%s, list%s}", name+"/list", id, id),
+			fmt.Sprintf("{%q, lower%s, list%s}", name+"/list-cmov", id, id),
 			fmt.Sprintf("{%q, switch%s, list%s}", name+"/switch", id, id))
 	}
 	fmt.Fprintf(&src, `
