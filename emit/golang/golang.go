@@ -541,14 +541,7 @@ func (g *gen) predictClass() jen.Code {
 func (g *gen) transformFunc() jen.Code {
 	switch g.p.Transform {
 	case forest.Logistic:
-		return jen.Comment("sigmoid is the logistic function in the form that never overflows.").Line().
-			Func().Id("sigmoid").Params(jen.Id("z").Float64()).Float64().Block(
-			jen.If(jen.Id("z").Op(">=").Lit(0)).Block(
-				jen.Return(jen.Lit(1).Op("/").Parens(jen.Lit(1).Op("+").Qual("math", "Exp").Call(jen.Op("-").Id("z")))),
-			),
-			jen.Id("e").Op(":=").Qual("math", "Exp").Call(jen.Id("z")),
-			jen.Return(jen.Id("e").Op("/").Parens(jen.Lit(1).Op("+").Id("e"))),
-		)
+		return g.sigmoidFunc()
 	case forest.Softmax:
 		if g.k == 1 {
 			return jen.Comment("softmax1 is the softmax of one value: exp(z-z)/exp(z-z).").Line().
