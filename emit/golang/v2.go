@@ -381,7 +381,7 @@ func (g *gen) accLit(v float64) jen.Code {
 	case v == 0 && math.Signbit(v):
 		return jen.Float32().Parens(g.float(v))
 	}
-	return jen.Lit(v)
+	return g.float(v)
 }
 
 // baseScoreV2 declares the base score in the accumulator's type.
