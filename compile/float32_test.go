@@ -106,3 +106,58 @@ func TestSingle32Exhaustive(t *testing.T) {
 		}
 	}
 }
+
+// The missing band and the zero bound in the float64-input form: for every
+// float32 value v (zeros, subnormals, the ends of float32's range, ±Inf,
+// random values, the zero_missing bound), every float64 near v, near the
+// ends of Round32Range(v) and near the midpoints to v's neighbours has
+// round32(x) == v exactly when it lies in Round32Range(v) (IEEE 754-2019
+// 4.3.1, ties to even, as Go's float32 conversion does). The zero bound the
+// pass derives is checked the same way against |round32(x)| <= bound.
+func TestRound32RangeExhaustive(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	vs := []float32{0, float32(math.Copysign(0, -1)), 1, -1, -999, 0x1p-149, -0x1p-149, 0x1p-126, 16777216,
+		math.MaxFloat32, -math.MaxFloat32, float32(math.Inf(1)), float32(math.Inf(-1)), float32(forest.ZeroMissingBound)}
+	for _, th := range thresholds32(rng) {
+		if v := float32(th); !math.IsNaN(float64(v)) {
+			vs = append(vs, v)
+		}
+	}
+	checked := 0
+	for _, v := range vs {
+		lo, hi := Round32Range(v)
+		var xs []float64
+		down := math.Nextafter32(v, float32(math.Inf(-1)))
+		up := math.Nextafter32(v, float32(math.Inf(1)))
+		for _, c := range []float64{float64(v), lo, hi, float64(down)/2 + float64(v)/2, float64(up)/2 + float64(v)/2} {
+			if !math.IsInf(c, 0) && !math.IsNaN(c) {
+				xs = append(xs, walk64(c, 30)...)
+			}
+		}
+		xs = append(xs, math.Inf(1), math.Inf(-1), math.MaxFloat64, -math.MaxFloat64)
+		for _, x := range xs {
+			want := float32(x) == v
+			got := lo <= x && x <= hi
+			if got != want {
+				t.Fatalf("v=%v: x=%v (%#x): round32(x)==v is %v, x in [%v, %v] is %v", v, x, math.Float64bits(x), want, lo, hi, got)
+			}
+			checked++
+		}
+	}
+	for _, z := range []float64{forest.ZeroMissingBound, 0, 1e-40, 1, 0.1} {
+		p := &Program{Compare: Round32, ZeroBound: z}
+		p.Trees = []Tree{{Nodes: []Node{{Feature: -1, Left: -1, Right: -1}}}}
+		float32Compare(p)
+		for _, c := range []float64{z, p.ZeroBound, -z, -p.ZeroBound} {
+			for _, x := range walk64(c, 30) {
+				want := math.Abs(forest.Round32(x)) <= z
+				got := -p.ZeroBound <= x && x <= p.ZeroBound
+				if got != want {
+					t.Fatalf("zero bound %v: x=%v: |round32(x)| <= bound is %v, the pass's test %v is %v", z, x, want, p.ZeroBound, got)
+				}
+				checked++
+			}
+		}
+	}
+	t.Logf("%d (value, input) pairs agree", checked)
+}
