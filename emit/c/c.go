@@ -678,7 +678,11 @@ func (g *gen) docLines() []string {
 	}
 	l = append(l, "base = {"+strings.Join(bs, ", ")+"}.")
 	if s := p.Scale(); s != 1 {
-		l = append(l, fmt.Sprintf("Then z = %s * z, one multiplication.", g.alit(s)))
+		sl := floatConst(s) // round32(s) under float32 accumulation
+		if !g.f32 {
+			sl = doubleLit(s)
+		}
+		l = append(l, fmt.Sprintf("Then z = %s * z, one multiplication.", sl))
 	}
 	exp := "exp"
 	if g.at == "float" {
@@ -862,9 +866,11 @@ func (g *gen) finishBody(w *printer) {
 		}
 	}
 	if s := p.Scale(); s != 1 {
-		sl := g.alit(s)
+		var sl string
 		if g.f32 {
-			sl = floatConst(s)
+			sl = floatConst(s) // round32(s)
+		} else {
+			sl = g.alit(s)
 		}
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
 		w.line("	volatile %s z = %s * acc[j]; /* z = s * acc, rounded once; never fused */", at, sl)
