@@ -175,6 +175,11 @@ type gen struct {
 	usesNeg0 bool // some literal is -0: declare negZero
 	tab      *tableData
 	heap     *heapData
+	// Format version 2 (see v2.go).
+	v2     bool     // the program needs the v2 Predict
+	zero   bool     // some split has zero_missing
+	perOut bool     // some tree adds to one output of several
+	sets   *setData // set descriptors of the layout, nil when none
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
@@ -182,10 +187,19 @@ func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
 	if limit == 0 {
 		limit = 5000
 	}
-	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: p.NumNodes() <= limit}
+	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: p.NumNodes() <= limit,
+		v2: usesV2(p), zero: zeroMissing(p), perOut: perOutput(p)}
 }
 
 func (g *gen) source() ([]byte, error) {
+	switch g.layout {
+	case emit.Nested:
+		g.sets = buildSets(g.p, false)
+	case emit.Table:
+		g.sets = g.tableData().sets
+	case emit.Branchless:
+		g.sets = g.heapData().sets
+	}
 	f := jen.NewFile(g.pkg)
 	g.header(f)
 	f.Add(g.constants())
@@ -212,11 +226,12 @@ func (g *gen) source() ([]byte, error) {
 	default:
 		panic("BUG: golang: layout " + g.layout)
 	}
+	body = append(body, g.setDecls()...)
 	for _, c := range body {
 		f.Line()
 		f.Add(c)
 	}
-	if c := g.transformFunc(); c != nil {
+	if c := g.transformFunc(); c != nil && !g.v2 {
 		f.Line()
 		f.Add(c)
 	}
