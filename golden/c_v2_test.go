@@ -2,9 +2,15 @@ package golden
 
 import (
 	"math"
+	"math/rand/v2"
+	"slices"
 	"strconv"
 	"testing"
 
+	"github.com/stretchr/testify/require"
+
+	"sawmill/compile"
+	cemit "sawmill/emit/c"
 	"sawmill/forest"
 )
 
@@ -192,4 +198,53 @@ func TestCV2Float32Transforms(t *testing.T) {
 			})
 		}
 	}
+}
+
+// Set splits of 5,000 categories: a dense one (a bitset of 313 words) and
+// a sparse one over [0, 2^31) (a sorted list, searched), with rows at every
+// member, beside every member and at the ends. Each is static data, so the
+// file builds as fast as a small model (the build time is logged).
+func TestCThousandsOfCategories(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 5000))
+	dense, sparse := map[int32]bool{}, map[int32]bool{}
+	for len(dense) < 5000 {
+		dense[rng.Int32N(10000)] = true
+	}
+	for len(sparse) < 5000 {
+		sparse[rng.Int32N(1<<31-1)] = true
+	}
+	sorted := func(m map[int32]bool) []int32 {
+		var s []int32
+		for c := range m {
+			s = append(s, c)
+		}
+		slices.Sort(s)
+		return s
+	}
+	d, s := sorted(dense), sorted(sparse)
+	nodes := []cNode{cSet(0, d, 1, 2, false), cSet(1, s, 3, 4, true), cLeaf(1), cLeaf(2), cLeaf(3)}
+	f := mustValidate(t, &forest.Forest{Task: forest.Regression, Features: []string{"part_code", "serial"}, Combine: forest.Sum,
+		BaseScore: []float64{0}, Trees: []forest.Tree{v2Tree(nodes)}})
+	rows := &forest.Rows{Features: f.Features}
+	add := func(a, b float64) {
+		rows.Values = append(rows.Values, a, b)
+		rows.Line = append(rows.Line, len(rows.Line)+2)
+	}
+	for i := 0; i < 5000; i += 7 {
+		add(float64(d[i]), float64(s[i]))
+		add(float64(d[i])+0.5, float64(s[i])+1)
+		add(float64(d[i])-1, float64(s[i])-1)
+		add(1e4+float64(i), float64(s[i])+0.5)
+	}
+	for _, v := range []float64{-1, 0, 1<<31 - 1, 1 << 31, math.NaN(), math.Inf(1)} {
+		add(v, v)
+	}
+	checkC(t, f, rows)
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	files, err := cemit.Emit(p, cemit.Options{Name: cName})
+	require.NoError(t, err)
+	src := string(files[1].Data)
+	require.Contains(t, src, cName+"_set_bits[313]", "the dense split is a bitset")
+	require.Contains(t, src, cName+"_set_list[5000]", "the sparse split is a sorted list")
 }

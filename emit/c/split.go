@@ -133,15 +133,25 @@ func (g *gen) writeSets(w *printer) {
 	if len(st.sets) == 0 {
 		return
 	}
-	u32 := func(name, what string, vals []uint32) {
+	// u32 writes a table of the narrowest unsigned type that holds vals,
+	// or of uint32_t when wide is set.
+	u32 := func(name, what string, vals []uint32, wide bool) {
 		n := max(len(vals), 1)
-		w.line("static const uint32_t %s_%s[%d] = {", g.name, name, n)
+		big := uint32(0)
+		for _, v := range vals {
+			big = max(big, v)
+		}
+		eb := 4
+		if !wide {
+			eb = intBytes(int(big))
+		}
+		w.line("static const %s %s_%s[%d] = {", uintType(eb), g.name, name, n)
 		if len(vals) == 0 {
 			w.line("\t0u")
 		}
 		g.numbers(w, len(vals), func(i int) string { return fmt.Sprintf("%du", vals[i]) })
 		w.line("};")
-		g.tables = append(g.tables, Table{Name: g.name + "_" + name, What: what, Len: n, ElemBytes: 4})
+		g.tables = append(g.tables, Table{Name: g.name + "_" + name, What: what, Len: n, ElemBytes: eb})
 	}
 	var lo, n, at []uint32
 	for _, c := range st.sets {
@@ -150,14 +160,14 @@ func (g *gen) writeSets(w *printer) {
 	w.line("/* Set splits: %d distinct category lists. Set s < %d is a bitset of set_n[s]", len(st.sets), st.nBits)
 	w.line(" * bits from category set_lo[s], at word set_at[s] of set_bits; the others are")
 	w.line(" * sorted lists of set_n[s] categories from element set_at[s] of set_list. */")
-	u32("set_n", "bits or categories per set", n)
-	u32("set_at", "first word or element per set", at)
+	u32("set_n", "bits or categories per set", n, false)
+	u32("set_at", "first word or element per set", at, false)
 	if st.nBits > 0 {
-		u32("set_lo", "first category per bitset", lo[:max(st.nBits, 1)])
-		u32("set_bits", "bitset words", st.bits)
+		u32("set_lo", "first category per bitset", lo[:st.nBits], false)
+		u32("set_bits", "bitset words", st.bits, true)
 	}
 	if st.nBits < len(st.sets) {
-		u32("set_list", "sorted category lists", st.list)
+		u32("set_list", "sorted category lists", st.list, true)
 	}
 	w.line("")
 	var rule, test string
@@ -185,15 +195,15 @@ func (g *gen) writeSets(w *printer) {
 		w.line("}")
 	}
 	bitset := func() {
-		w.line("c -= %s_set_lo[s];", g.name)
-		w.line("if (c >= %s_set_n[s]) {", g.name)
+		w.line("c -= (uint32_t)%s_set_lo[s];", g.name)
+		w.line("if (c >= (uint32_t)%s_set_n[s]) {", g.name)
 		w.line("\treturn 0u;")
 		w.line("}")
-		w.line("return (%s_set_bits[%s_set_at[s] + (c >> 5)] >> (c & 31u)) & 1u;", g.name, g.name)
+		w.line("return (%s_set_bits[(uint32_t)%s_set_at[s] + (c >> 5)] >> (c & 31u)) & 1u;", g.name, g.name)
 	}
 	list := func() {
-		w.line("lo = %s_set_at[s];", g.name)
-		w.line("end = lo + %s_set_n[s];", g.name)
+		w.line("lo = (uint32_t)%s_set_at[s];", g.name)
+		w.line("end = lo + (uint32_t)%s_set_n[s];", g.name)
 		w.line("hi = end;")
 		w.line("while (lo < hi) {")
 		w.line("\tconst uint32_t mid = lo + (hi - lo) / 2u;")
