@@ -72,20 +72,7 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 	}
 	const u = 0x1p-24
 	gamma := func(n float64) float64 { return n * u / (1 - n*u) }
-	m := 0.0
-	for ti := range p.Trees {
-		big := 0.0
-		for i := range p.Trees[ti].Nodes {
-			for _, v := range p.Trees[ti].Nodes[i].Value {
-				big = math.Max(big, math.Abs(v))
-			}
-		}
-		m += big
-	}
-	b := 0.0
-	for _, v := range p.BaseScore {
-		b = math.Max(b, math.Abs(v))
-	}
+	m, b := magnitudes(p)
 	T := float64(len(p.Trees))
 	// With trees of one output, output j sums fewer trees, T_j; the bound
 	// below takes T for the count of roundings and the smallest T_j for
@@ -129,16 +116,7 @@ func FitsFloat(p *compile.Program) error {
 	if err := floatBounded(p); err != nil {
 		return err
 	}
-	total := 0.0
-	for ti := range p.Trees {
-		big := 0.0
-		for i := range p.Trees[ti].Nodes {
-			for _, v := range p.Trees[ti].Nodes[i].Value {
-				big = math.Max(big, math.Abs(v))
-			}
-		}
-		total += big
-	}
+	total, _ := magnitudes(p)
 	for _, v := range p.BaseScore {
 		total = math.Max(total, total+math.Abs(v))
 	}
@@ -151,7 +129,13 @@ func FitsFloat(p *compile.Program) error {
 // maxScore bounds |z|, the joined and scaled score, over every row: |scale|
 // times (the largest |base| plus each tree's largest |leaf|).
 func maxScore(p *compile.Program) float64 {
-	total := 0.0
+	m, b := magnitudes(p)
+	return math.Abs(p.Scale()) * (m + b)
+}
+
+// magnitudes returns the sum over trees of each tree's largest |leaf|, and
+// the largest |base score|.
+func magnitudes(p *compile.Program) (leaves, base float64) {
 	for ti := range p.Trees {
 		big := 0.0
 		for i := range p.Trees[ti].Nodes {
@@ -159,13 +143,12 @@ func maxScore(p *compile.Program) float64 {
 				big = math.Max(big, math.Abs(v))
 			}
 		}
-		total += big
+		leaves += big
 	}
-	b := 0.0
 	for _, v := range p.BaseScore {
-		b = math.Max(b, math.Abs(v))
+		base = math.Max(base, math.Abs(v))
 	}
-	return math.Abs(p.Scale()) * (total + b)
+	return leaves, base
 }
 
 // floatBounded reports whether float mode can score p, a model that

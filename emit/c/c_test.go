@@ -408,3 +408,37 @@ func TestSetSplitBytesPerNode(t *testing.T) {
 	require.Equal(t, emit.Table, sizes[1].Layout)
 	require.LessOrEqual(t, sizes[1].BytesPerNode(), 12.0)
 }
+
+// Under float32 accumulation the source refuses wider float evaluation
+// and contraction, and the header says so and states the bound with
+// another C library's expf; float C refuses a float64-accumulating model
+// whose transform it cannot bound.
+func TestFloat32AccumulationSource(t *testing.T) {
+	f := pumpForest(t, forest.Float64)
+	f.Accumulate, f.Transform, f.TransformScale = forest.Float32, forest.Softmax, 0.5
+	for i := range f.Trees {
+		for j, v := range f.Trees[i].Value {
+			f.Trees[i].Value[j] = float64(float32(v))
+		}
+	}
+	require.NoError(t, f.Validate("pump.json"))
+	for _, layout := range []string{emit.Nested, emit.Table} {
+		files, err := Emit(compiled(t, f, false), Options{Layout: layout})
+		require.NoError(t, err)
+		h, c := string(files[0].Data), string(files[1].Data)
+		require.Contains(t, h, "accumulates in float32")
+		require.Contains(t, h, "relative 2^-21")
+		require.Contains(t, c, "#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD != 0\n#error")
+		require.Contains(t, c, "#pragma STDC FP_CONTRACT OFF")
+		require.Contains(t, c, "volatile float z = 0.5f * acc[j];")
+		require.Contains(t, c, "s += (double)acc[j];", "softmax sums its float exponentials in double")
+		require.Contains(t, c, "float acc[MODEL_NUM_OUTPUTS];")
+	}
+	g := pumpForest(t, forest.Float64)
+	g.Transform = forest.Normalize
+	require.NoError(t, g.Validate("pump.json"))
+	_, err := Emit(compiled(t, g, true), Options{Float: true})
+	require.ErrorContains(t, err, "normalize")
+	require.ErrorContains(t, err, "hint: emit double C")
+	require.Error(t, FitsFloat(compiled(t, g, true)))
+}

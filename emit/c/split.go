@@ -215,22 +215,18 @@ func (g *gen) writeSets(w *printer) {
 		w.line("}")
 		w.line("return (uint32_t)(lo < end && %s_set_list[lo] == c);", g.name)
 	}
-	switch {
-	case st.nBits == len(st.sets):
-		bitset()
-	case st.nBits == 0:
-		w.line("{")
-		w.in()
-		w.line("uint32_t lo, hi, end;")
-		list()
-		w.out()
-		w.line("}")
-	default:
+	if st.nBits > 0 && st.nBits < len(st.sets) {
 		w.line("if (s < %du) {", st.nBits)
 		w.in()
+	}
+	if st.nBits > 0 {
 		bitset()
+	}
+	if st.nBits > 0 && st.nBits < len(st.sets) {
 		w.out()
 		w.line("}")
+	}
+	if st.nBits < len(st.sets) {
 		w.line("{")
 		w.in()
 		w.line("uint32_t lo, hi, end;")
