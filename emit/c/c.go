@@ -246,7 +246,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 // accumulator, rounded to the nearest float with a float one (an error when
 // that overflows; under float32 accumulation every value is a float already).
 func (g *gen) narrow(v []float64) ([]float64, error) {
-	if g.at != "float" {
+	if g.at != "float" || g.f32 {
 		return v, nil
 	}
 	out := make([]float64, len(v))
@@ -372,10 +372,26 @@ func (g *gen) lit(v float64) string {
 	return doubleLit(v)
 }
 
-// alit formats a value as a literal of the accumulator's type.
+// alit formats a value as a literal of the accumulator's type. Under
+// float32 accumulation a base score may have rounded to an infinity, which
+// is HUGE_VALF (math.h).
 func (g *gen) alit(v float64) string {
+	if g.at == "float" && math.IsInf(v, 0) {
+		return floatConst(v)
+	}
 	if g.at == "float" {
 		return floatLit(v)
+	}
+	return doubleLit(v)
+}
+
+// doubleConst is doubleLit, or HUGE_VAL (math.h) for an infinity.
+func doubleConst(v float64) string {
+	switch {
+	case math.IsInf(v, 1):
+		return "HUGE_VAL"
+	case math.IsInf(v, -1):
+		return "(-HUGE_VAL)"
 	}
 	return doubleLit(v)
 }

@@ -833,7 +833,7 @@ func (g *gen) table(w *printer) error {
 		for j := 0; j < p.NumOutputs; j++ {
 			start := g.accStart(j)
 			if g.at != g.ft {
-				start = doubleLit(g.accValue(j))
+				start = doubleConst(g.accValue(j))
 			}
 			w.line("outs[ri * %s + %du] = %s;", no, j, start)
 		}
