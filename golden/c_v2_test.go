@@ -248,3 +248,35 @@ func TestCThousandsOfCategories(t *testing.T) {
 	require.Contains(t, src, cName+"_set_bits[313]", "the dense split is a bitset")
 	require.Contains(t, src, cName+"_set_list[5000]", "the sparse split is a sorted list")
 }
+
+// Eighty set splits: nested code keeps the membership test out of line
+// (cemit's noinlineSites), which every compiler must still build and run.
+func TestCV2ManySetSplits(t *testing.T) {
+	rng := rand.New(rand.NewPCG(80, 3))
+	var trees []forest.Tree
+	for ti := 0; ti < 10; ti++ {
+		var nodes []cNode
+		for i := 0; i < 15; i++ {
+			if i >= 7 {
+				nodes = append(nodes, cLeaf(float64(rng.IntN(16))/4))
+				continue
+			}
+			var cats []int32
+			for c := int32(0); c < 40; c++ {
+				if rng.IntN(2) == 0 {
+					cats = append(cats, c)
+				}
+			}
+			nodes = append(nodes, cSet(rng.IntN(3), cats, 2*i+1, 2*i+2, rng.IntN(2) == 0))
+		}
+		trees = append(trees, v2Tree(nodes, 0))
+	}
+	f := mustValidate(t, &forest.Forest{Task: forest.Regression, Features: []string{"a", "b", "c"}, Combine: forest.Sum,
+		BaseScore: []float64{0}, Trees: trees})
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	files, err := cemit.Emit(p, cemit.Options{Name: cName, Layout: "nested"})
+	require.NoError(t, err)
+	require.Contains(t, string(files[1].Data), "__attribute__((noinline))")
+	checkC(t, f, categoryRows(f))
+}
