@@ -11,7 +11,8 @@ import (
 
 // Lower turns a validated forest into a Program with the same meaning: the
 // reachable nodes of each tree in preorder, nothing else changed. It walks
-// with an explicit stack, so any depth is fine.
+// with an explicit stack, so any depth is fine. Every construct of format
+// version 2 is carried (see the Program's fields).
 func Lower(f *forest.Forest) *Program {
 	var buf bytes.Buffer
 	if err := f.Encode(&buf); err != nil {

@@ -63,6 +63,12 @@ func FuzzDecode(f *testing.F) {
 	f.Add([]byte(`{"sawmill_forest":1,"task":"classification","features":["a","b"],"classes":["p","q"],"output_transform":"logistic","combine":"sum","trees":[{"feature":[0,-1,-1],"threshold":[0.5,0,0],"left":[1,-1,-1],"right":[2,-1,-1],"missing_left":[true,false,false],"value":[[0],[-1],[1]]}]}`))
 	f.Add([]byte(`{"sawmill_forest":1,"task":"regression","features":["x"],"trees":[{"feature":[0,0],"threshold":[1,1],"left":[1,0],"right":[1,0],"value":[[0],[0]]}]}`))
 	f.Add([]byte(`{"sawmill_forest":1,"task":"classification","features":["x"],"classes":["a","b","c"],"trees":[{"feature":[-1,7],"threshold":[0,1e999],"left":[-1,1],"right":[-1,5],"value":[[1,2,3],[]]}]}`))
+	// Version 2: every key, set splits under each category_match,
+	// per-output trees, float32 accumulation, and near-misses of each rule.
+	f.Add([]byte(`{"sawmill_forest":2,"task":"classification","features":["a","b"],"classes":["p","q","r"],"input_precision":"float32","accumulate":"float32","combine":"sum","output_transform":"softmax","transform_scale":0.5,"category_match":"truncate","missing_value":-999,"base_score":[0.5,0.5,0.5],"trees":[{"output":0,"feature":[0,1,-1,-1,-1],"threshold":[0,2.5,0,0,0],"left":[1,3,-1,-1,-1],"right":[2,4,-1,-1,-1],"missing_left":[true,false,false,false,false],"zero_missing":[false,true,false,false,false],"categories":[[0,3,2147483647],null,null,null,null],"value":[[0],[0],[1],[0.25],[-2]]},{"output":2,"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[1]]},{"output":1,"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[1]]}]}`))
+	f.Add([]byte(`{"sawmill_forest":2,"task":"regression","features":["x"],"outputs":3,"combine":"average","output_transform":"normalize","category_match":"exact","trees":[{"feature":[0,-1,-1],"threshold":[0,0,0],"left":[1,-1,-1],"right":[2,-1,-1],"categories":[[],null,null],"value":[[0,0,0],[1,2,3],[3,2,1]]},{"output":1,"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[2]]}]}`))
+	f.Add([]byte(`{"sawmill_forest":2,"task":"regression","features":["x"],"accumulate":"float32","output_transform":"exp","trees":[{"feature":[0,-1,-1],"threshold":[0,0,0],"left":[1,-1,-1],"right":[2,-1,-1],"categories":[[2,1],null,null],"value":[[0],[0.1],[1e39]]}]}`))
+	f.Add([]byte(`{"sawmill_forest":2,"task":"classification","features":["x"],"classes":["a","b"],"combine":"vote","output_transform":"logistic_each","missing_value":0,"trees":[{"output":5,"feature":[-1],"threshold":[0],"left":[-1],"right":[-1],"value":[[1]]}],"input_precison":"float32"}`))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		var fo *Forest
 		var err error
@@ -95,14 +101,25 @@ func FuzzDecode(f *testing.F) {
 		if err := back.Encode(&b); err != nil || !bytes.Equal(a.Bytes(), b.Bytes()) {
 			t.Fatalf("encode, decode, encode is not stable (%v)", err)
 		}
-		// Scoring terminates on every kind of input.
+		if v := fo.Version(); v != back.Version() || (v == 2) != bytes.Contains(a.Bytes(), []byte(`"sawmill_forest": 2,`)) {
+			t.Fatalf("version %d written as %q", v, a.Bytes()[:min(40, a.Len())])
+		}
+		// Scoring terminates on every kind of input; under float32
+		// accumulation every output is a float32 value.
 		out := make([]float64, fo.NumOutputs())
-		for _, v := range []float64{0, math.NaN(), math.Inf(1), math.Inf(-1), math.Copysign(0, -1)} {
+		for _, v := range []float64{0, math.NaN(), math.Inf(1), math.Inf(-1), math.Copysign(0, -1), -0.5, 3, 1 << 31} {
 			x := make([]float64, len(fo.Features))
 			for i := range x {
 				x[i] = v
 			}
 			fo.Predict(x, out)
+			if fo.Float32Accumulate() {
+				for _, o := range out {
+					if o == o && o != Round32(o) {
+						t.Fatalf("float32 accumulation gave %v, not a float32", o)
+					}
+				}
+			}
 		}
 	})
 }

@@ -114,40 +114,105 @@ type treeDoc struct {
 var v2Keys = []string{"accumulate", "transform_scale", "outputs", "category_match", "missing_value"}
 var v2TreeKeys = []string{"output", "categories", "zero_missing"}
 
-// decodeStrict decodes one JSON value into v, rejecting keys v does not
-// name and anything after the value. An unknown key is reported with the
-// nearest known one as a hint.
+// decodeStrict decodes one JSON document into v and rejects keys of its
+// top-level object that v does not name, with the nearest known key as a
+// hint. It returns a message without the file name, or "" on success.
+// (json.Unmarshal, unlike a json.Decoder, holds no second copy of a large
+// document.)
 func decodeStrict(data []byte, v any, known []string) string {
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(v); err != nil {
-		if key, ok := unknownField(err); ok {
-			return unknownKeyMessage(key, known)
-		}
+	if err := json.Unmarshal(data, v); err != nil {
 		return describeJSONError(data, err)
 	}
-	off := dec.InputOffset()
-	if rest := bytes.TrimLeft(data[off:], " \t\r\n"); len(rest) > 0 {
-		line, col := lineCol(data, int64(len(data)-len(rest)))
-		return fmt.Sprintf("line %d, column %d: invalid JSON: data after the document", line, col)
+	for _, key := range objectKeys(data) {
+		if !slices.Contains(known, key) {
+			return unknownKeyMessage(key, known)
+		}
 	}
 	return ""
 }
 
-// unknownField recognises encoding/json's error for a key that
-// DisallowUnknownFields refuses (`json: unknown field "name"`, the wording
-// of Go's encoding/json since Go 1.10) and returns the key.
-func unknownField(err error) (string, bool) {
-	const prefix = "json: unknown field "
-	msg := err.Error()
-	if !strings.HasPrefix(msg, prefix) {
-		return "", false
+// objectKeys lists the keys of the object that valid JSON data holds (none
+// when it holds something else), in order, skipping over the values without
+// decoding them.
+func objectKeys(data []byte) []string {
+	i := skipSpace(data, 0)
+	if i >= len(data) || data[i] != '{' {
+		return nil
 	}
-	key, uerr := strconv.Unquote(msg[len(prefix):])
-	if uerr != nil {
-		return "", false
+	var keys []string
+	i++
+	for {
+		i = skipSpace(data, i)
+		if i >= len(data) || data[i] != '"' {
+			return keys // '}' of an empty object
+		}
+		end := skipString(data, i)
+		var key string
+		if json.Unmarshal(data[i:end], &key) != nil {
+			return keys
+		}
+		keys = append(keys, key)
+		i = skipSpace(data, end)
+		i = skipValue(data, skipSpace(data, i+1)) // past ':'
+		i = skipSpace(data, i)
+		if i >= len(data) || data[i] != ',' {
+			return keys
+		}
+		i++
 	}
-	return key, true
+}
+
+func skipSpace(data []byte, i int) int {
+	for i < len(data) && (data[i] == ' ' || data[i] == '\t' || data[i] == '\n' || data[i] == '\r') {
+		i++
+	}
+	return i
+}
+
+// skipString returns the index after the string that starts at data[i].
+func skipString(data []byte, i int) int {
+	for i++; i < len(data); i++ {
+		switch data[i] {
+		case '\\':
+			i++
+		case '"':
+			return i + 1
+		}
+	}
+	return i
+}
+
+// skipValue returns the index after the value that starts at data[i]:
+// strings are skipped whole, brackets counted, anything else runs to the
+// next delimiter.
+func skipValue(data []byte, i int) int {
+	depth := 0
+	for i < len(data) {
+		switch data[i] {
+		case '"':
+			i = skipString(data, i)
+			if depth == 0 {
+				return i
+			}
+			continue
+		case '{', '[':
+			depth++
+		case '}', ']':
+			if depth == 0 {
+				return i
+			}
+			depth--
+			if depth == 0 {
+				return i + 1
+			}
+		case ',':
+			if depth == 0 {
+				return i
+			}
+		}
+		i++
+	}
+	return i
 }
 
 // jsonKeys lists the JSON keys of a struct's fields, in field order.
@@ -223,12 +288,18 @@ func Decode(data []byte, name string, o ReadOptions) (*Forest, error) {
 	var d fileDoc
 	if msg := decodeStrict(data, &d, fileKeys); msg != "" {
 		// A file of a newer version may have keys this reader does not
-		// know: say that its version is the problem.
+		// know: say that its version is the problem; and a JSON file of
+		// another kind is no forest at all.
 		var v struct {
 			Version json.RawMessage `json:"sawmill_forest"`
 		}
-		if json.Unmarshal(data, &v) == nil && v.Version != nil && !knownVersion(v.Version) {
-			return nil, unsupportedVersion(name, v.Version)
+		if json.Unmarshal(data, &v) == nil {
+			switch {
+			case v.Version == nil:
+				return nil, fmt.Errorf("%s: missing \"sawmill_forest\": not a sawmill forest file", name)
+			case !knownVersion(v.Version):
+				return nil, unsupportedVersion(name, v.Version)
+			}
 		}
 		return nil, fmt.Errorf("%s: %s", name, msg)
 	}
@@ -395,11 +466,12 @@ func treeFromDoc(td *treeDoc, ti, w int, name string, p *Problems) (Tree, map[in
 	if td.MissingLeft == nil {
 		td.MissingLeft = make([]bool, n)
 	}
-	lens := []struct {
+	type arrayLen struct {
 		key string
 		n   int
-		nil bool
-	}{
+		nil bool // the key is absent, and required
+	}
+	lens := []arrayLen{
 		{"feature", len(td.Feature), td.Feature == nil},
 		{"threshold", len(td.Threshold), td.Threshold == nil},
 		{"right", len(td.Right), td.Right == nil},
@@ -407,18 +479,10 @@ func treeFromDoc(td *treeDoc, ti, w int, name string, p *Problems) (Tree, map[in
 		{"value", len(td.Value), td.Value == nil},
 	}
 	if td.Categories != nil {
-		lens = append(lens, struct {
-			key string
-			n   int
-			nil bool
-		}{"categories", len(td.Categories), false})
+		lens = append(lens, arrayLen{"categories", len(td.Categories), false})
 	}
 	if td.ZeroMissing != nil {
-		lens = append(lens, struct {
-			key string
-			n   int
-			nil bool
-		}{"zero_missing", len(td.ZeroMissing), false})
+		lens = append(lens, arrayLen{"zero_missing", len(td.ZeroMissing), false})
 	}
 	if td.Left == nil {
 		p.Add("%s: tree %d: missing \"left\"", name, ti)

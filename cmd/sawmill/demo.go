@@ -250,7 +250,7 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	// 6. Predictions and README.
 	st.begin("writing predictions and the README")
 	var pred bytes.Buffer
-	if err := writePredictions(&pred, f, withKeep(rows, score), []string{"pump_id", "timestamp"}); err != nil {
+	if err := writePredictions(&pred, f, withKeep(rows, score), []string{"pump_id", "timestamp"}, false); err != nil {
 		return err
 	}
 	if err := put(demoPredFile, pred.Bytes()); err != nil {

@@ -24,7 +24,11 @@ func newInspectCmd() *cobra.Command {
 		Long: `Read and validate a model file and describe it: the number of trees,
 nodes and leaves, tree depths, which features the splits use and how often,
 the outputs and classes, how trees are combined, the output transform, the
-input precision, the provenance, and the file size.
+input precision, the provenance, and the file size. For a model of format
+version 2 it also names the version 2 keys in use and what they say: the
+accumulation precision, the transform scale, set splits and their category
+rule, splits where zeros count as missing, the missing-value sentinel, and
+the trees that add to one output.
 
 Only nodes reachable from a tree's root are counted.`,
 		Example: `  sawmill inspect pump-health.json
@@ -42,7 +46,7 @@ Only nodes reachable from a tree's root are counted.`,
 			if err != nil {
 				return err
 			}
-			return printCSizes(c.Context(), c.OutOrStdout(), f)
+			return printCSizes(c.Context(), c.OutOrStdout(), args[0], f)
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
@@ -56,6 +60,9 @@ type stats struct {
 	depthMin, depthMax int
 	depthMean          float64
 	splits             []int // per feature, the number of splits that test it
+	// version 2: set splits, splits where zeros count as missing, trees
+	// that add to one output
+	setSplits, zeroMissing, outputTrees int
 }
 
 // forestStats walks every tree with an explicit stack: trees can be far too
@@ -79,9 +86,18 @@ func forestStats(f *forest.Forest) stats {
 				continue
 			}
 			st.splits[t.Feature[it.node]]++
+			if t.IsSetSplit(it.node) {
+				st.setSplits++
+			}
+			if t.ZeroMissing != nil && t.ZeroMissing[it.node] {
+				st.zeroMissing++
+			}
 			stack = append(stack, item{t.Right[it.node], it.depth + 1}, item{t.Left[it.node], it.depth + 1})
 		}
 		sum += deepest
+		if t.HasOutput {
+			st.outputTrees++
+		}
 		st.depthMax = max(st.depthMax, deepest)
 		if st.depthMin < 0 || deepest < st.depthMin {
 			st.depthMin = deepest
@@ -122,6 +138,17 @@ type inspectDoc struct {
 	InputPrecision forest.Precision `json:"input_precision"`
 	BaseScore      []float64        `json:"base_score"`
 	Provenance     json.RawMessage  `json:"provenance,omitempty"`
+	// Format version 2: the version a writer gives the model, the version 2
+	// keys in use and what they say.
+	FormatVersion  int                  `json:"format_version"`
+	V2             []string             `json:"v2_keys,omitempty"`
+	Accumulate     forest.Precision     `json:"accumulate,omitempty"`
+	TransformScale float64              `json:"transform_scale,omitempty"`
+	CategoryMatch  forest.CategoryMatch `json:"category_match,omitempty"`
+	MissingValue   *float64             `json:"missing_value,omitempty"`
+	SetSplits      int                  `json:"set_splits,omitempty"`
+	ZeroMissing    int                  `json:"zero_missing_splits,omitempty"`
+	OutputTrees    int                  `json:"per_output_trees,omitempty"`
 }
 
 func runInspect(w io.Writer, path string, asJSON bool) error {
@@ -141,6 +168,14 @@ func runInspect(w io.Writer, path string, asJSON bool) error {
 		Outputs: f.NumOutputs(), Classes: f.Classes,
 		Combine: f.Combine, Transform: f.Transform, InputPrecision: f.InputPrecision,
 		BaseScore: f.BaseScore, Provenance: f.Provenance,
+	}
+	doc.FormatVersion, doc.V2 = f.Version(), f.V2Constructs()
+	if doc.FormatVersion > 1 {
+		doc.Accumulate, doc.TransformScale, doc.CategoryMatch = f.Accumulate, f.Scale(), f.CategoryMatch
+		if f.HasMissingValue {
+			doc.MissingValue = &f.MissingValue
+		}
+		doc.SetSplits, doc.ZeroMissing, doc.OutputTrees = st.setSplits, st.zeroMissing, st.outputTrees
 	}
 	for i, name := range f.Features {
 		doc.Features = append(doc.Features, inspectFeature{Name: name, Splits: st.splits[i]})
@@ -180,6 +215,27 @@ func printInspect(w io.Writer, d *inspectDoc) error {
 	row("precision", "%s", d.InputPrecision)
 	if nonZero(d.BaseScore) {
 		row("base score", "%s", floatList(d.BaseScore))
+	}
+	if d.FormatVersion > 1 {
+		row("format", "version 2: %s", strings.Join(d.V2, ", "))
+		row("accumulate", "%s", d.Accumulate)
+		if d.TransformScale != 1 {
+			row("scale", "%s", num(d.TransformScale))
+		}
+		if d.SetSplits > 0 {
+			row("set splits", "%d, category_match %s", d.SetSplits, d.CategoryMatch)
+		} else if d.CategoryMatch != forest.MatchFloor {
+			row("category match", "%s (no set splits)", d.CategoryMatch)
+		}
+		if d.ZeroMissing > 0 {
+			row("zero missing", "%s where |x| <= %s counts as missing", plural(d.ZeroMissing, "split"), num(forest.ZeroMissingBound))
+		}
+		if d.MissingValue != nil {
+			row("missing value", "%s counts as missing in every input", num(*d.MissingValue))
+		}
+		if d.OutputTrees > 0 {
+			row("output trees", "%d of %d trees add to one output each", d.OutputTrees, d.Trees)
+		}
 	}
 	row("features", "%d, %d used", len(d.Features), d.FeaturesUsed)
 	if err := tw.Flush(); err != nil {

@@ -15,14 +15,14 @@ import (
 // printCSizes reports, for C in double and in float, each layout's static
 // tables in bytes and, when arm-none-eabi-gcc is on PATH, the flash the
 // object takes on a Cortex-M4 (.text + .rodata, compiled -Os -mthumb).
-func printCSizes(ctx context.Context, w io.Writer, f *forest.Forest) error {
+func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest) error {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tCortex-M4 .text\t.rodata\tflash\t")
 	noARM := false
 	for _, float := range []bool{false, true} {
 		p, _, err := compile.Compile(f, compile.Options{SingleInputs: float})
 		if err != nil {
-			return err
+			return fmt.Errorf("%s: %v", path, err)
 		}
 		o := cemit.Options{Float: float}
 		sizes, err := cemit.MeasureARM(ctx, p, o)

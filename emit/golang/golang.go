@@ -17,6 +17,10 @@
 // a table of nodes kept as one binary string and walked by one loop; and a
 // branchless implicit-heap descent for shallow trees. Auto picks by node
 // count and depth (ChooseLayout).
+//
+// Format version 2 (set splits, zero_missing, a missing value, trees of one
+// output, float32 accumulation with an emitted copy of glibc's expf, the
+// scale and the new transforms) is written in every layout; v2.go says how.
 package golang
 
 import (
@@ -537,14 +541,7 @@ func (g *gen) predictClass() jen.Code {
 func (g *gen) transformFunc() jen.Code {
 	switch g.p.Transform {
 	case forest.Logistic:
-		return jen.Comment("sigmoid is the logistic function in the form that never overflows.").Line().
-			Func().Id("sigmoid").Params(jen.Id("z").Float64()).Float64().Block(
-			jen.If(jen.Id("z").Op(">=").Lit(0)).Block(
-				jen.Return(jen.Lit(1).Op("/").Parens(jen.Lit(1).Op("+").Qual("math", "Exp").Call(jen.Op("-").Id("z")))),
-			),
-			jen.Id("e").Op(":=").Qual("math", "Exp").Call(jen.Id("z")),
-			jen.Return(jen.Id("e").Op("/").Parens(jen.Lit(1).Op("+").Id("e"))),
-		)
+		return g.sigmoidFunc()
 	case forest.Softmax:
 		if g.k == 1 {
 			return jen.Comment("softmax1 is the softmax of one value: exp(z-z)/exp(z-z).").Line().
