@@ -100,13 +100,17 @@ func probeRows(f *forest.Forest) *forest.Rows {
 				float64(math.Nextafter32(float32(th), float32(math.Inf(1)))), float64(math.Nextafter32(float32(th), float32(math.Inf(-1)))))
 		}
 	}
-	vals = append(vals, special...)
+	return valueRows(f, append(vals, special...), 7)
+}
+
+// valueRows puts each value in every column of a row of its own, and mixes
+// them in as many more rows, column j of row i taking value i + j*stride.
+func valueRows(f *forest.Forest, vals []float64, stride int) *forest.Rows {
 	nf := len(f.Features)
 	rows := &forest.Rows{Features: f.Features}
-	// Each value in every column, and mixed rows.
 	for i, v := range vals {
 		for j := 0; j < nf; j++ {
-			rows.Values = append(rows.Values, vals[(i+j*7)%len(vals)])
+			rows.Values = append(rows.Values, vals[(i+j*stride)%len(vals)])
 		}
 		rows.Line = append(rows.Line, len(rows.Line)+2)
 		for j := 0; j < nf; j++ {

@@ -60,20 +60,7 @@ func categoryRows(f *forest.Forest, extra ...float64) *forest.Rows {
 		-1e300, -2, -1.5, 1e-36, -1e-36, forest.ZeroMissingBound, -forest.ZeroMissingBound,
 		math.Nextafter(forest.ZeroMissingBound, 1), math.Nextafter(-forest.ZeroMissingBound, -1), 5e-324,
 		math.Inf(1), math.Inf(-1), math.NaN(), 0.1, float64(float32(0.1)), -999, math.Nextafter(-999, 0), 1 + 0x1p-30, 2 - 0x1p-30}
-	vals = append(vals, extra...)
-	nf := len(f.Features)
-	rows := &forest.Rows{Features: f.Features}
-	for i, v := range vals {
-		for j := 0; j < nf; j++ {
-			rows.Values = append(rows.Values, vals[(i+j*5)%len(vals)])
-		}
-		rows.Line = append(rows.Line, len(rows.Line)+2)
-		for j := 0; j < nf; j++ {
-			rows.Values = append(rows.Values, v)
-		}
-		rows.Line = append(rows.Line, len(rows.Line)+2)
-	}
-	return rows
+	return valueRows(f, append(vals, extra...), 5)
 }
 
 // setForest has set splits of every kind: a one-word bitset, a bitset of

@@ -158,9 +158,9 @@ func magnitudes(p *compile.Program) (leaves, base float64) {
 func floatBounded(p *compile.Program) error {
 	switch {
 	case p.Transform == forest.Exp, p.Transform == forest.Normalize:
-		return fmt.Errorf("float C: output transform %s of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Transform)
+		return fmt.Errorf("output transform %s of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Transform)
 	case p.Scale() != 1:
-		return fmt.Errorf("float C: transform scale %v of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Scale())
+		return fmt.Errorf("transform scale %v of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Scale())
 	}
 	return nil
 }

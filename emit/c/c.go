@@ -212,7 +212,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	}
 	if o.Float && !g.f32 {
 		if err := floatBounded(p); err != nil {
-			return nil, err
+			return nil, fmt.Errorf("float C: %w", err)
 		}
 	}
 	g.sets = newSetTable(p)
