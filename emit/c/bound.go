@@ -42,39 +42,50 @@ import (
 // output moves by at most 2·p(1-p)·max|dz| <= half of it, plus (K+12)u for
 // the K expfs, the sum and the division. The result is doubled, for the
 // second-order terms and the interpreter's own float64 rounding.
+//
+// Float32 accumulation (either mode): every operation is the interpreter's
+// own float operation in its order, and expf is the C library's, which the
+// interpreter's forest.Expf ports bit for bit from glibc; so the bound is 0
+// with glibc. Another C library's expf may differ by an ulp or two (its own
+// documented accuracy); the header states what that moves.
+//
+// Version 2 in double mode: the scale is one multiplication and normalize
+// is additions and divisions, both exact; logistic_each is bounded as the
+// logistic; exp is within 2 ulp of the interpreter's e^z, a relative 2^-51,
+// so within 2^-51·e^zmax with zmax the largest |z| the model can reach
+// (|scale| times the largest |base| plus each tree's largest |leaf|).
 func ErrorBound(p *compile.Program, float bool) float64 {
 	k := float64(p.NumOutputs)
+	if p.Float32Accumulate() {
+		return 0
+	}
 	if !float {
 		switch p.Transform {
-		case forest.Logistic:
+		case forest.Logistic, forest.LogisticEach:
 			return 0x1p-50
 		case forest.Softmax:
 			return (2*k + 8) * 0x1p-52
+		case forest.Exp:
+			return 0x1p-51 * math.Exp(maxScore(p))
 		}
 		return 0
 	}
 	const u = 0x1p-24
 	gamma := func(n float64) float64 { return n * u / (1 - n*u) }
-	m := 0.0
-	for ti := range p.Trees {
-		big := 0.0
-		for i := range p.Trees[ti].Nodes {
-			for _, v := range p.Trees[ti].Nodes[i].Value {
-				big = math.Max(big, math.Abs(v))
-			}
-		}
-		m += big
-	}
-	b := 0.0
-	for _, v := range p.BaseScore {
-		b = math.Max(b, math.Abs(v))
-	}
+	m, b := magnitudes(p)
 	T := float64(len(p.Trees))
+	// With trees of one output, output j sums fewer trees, T_j; the bound
+	// below takes T for the count of roundings and the smallest T_j for
+	// the average's divisor.
+	tMin := T
+	for j := 0; j < p.NumOutputs; j++ {
+		tMin = min(tMin, float64(max(p.TreesAddingTo(j), 1)))
+	}
 	var e float64
 	if p.Combine == forest.Sum {
 		e = gamma(T+2) * (m + b)
 	} else {
-		e = gamma(T+3) * (m/T + b)
+		e = gamma(T+3) * (m/tMin + b)
 	}
 	// Below float's normal range a rounding errs by up to half its
 	// smallest subnormal, 2^-150, whatever the value (Higham's model with
@@ -82,7 +93,7 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 	// score, per addition and for the division.
 	e += (2*T + 4) * 0x1p-150
 	switch p.Transform {
-	case forest.Logistic:
+	case forest.Logistic, forest.LogisticEach:
 		e = e/4 + 8*u
 	case forest.Softmax:
 		e = e/2 + (k+12)*u
@@ -95,8 +106,36 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 // base plus each tree's largest |leaf|), within float range. Emit rejects
 // only leaves and base scores out of range; a sum past the range would give
 // an infinity where double C gives a number.
+//
+// Under float32 accumulation the interpreter itself adds in float, so float
+// C is exact and nothing is checked; otherwise floatBounded must hold too.
 func FitsFloat(p *compile.Program) error {
-	total := 0.0
+	if p.Float32Accumulate() {
+		return nil
+	}
+	if err := floatBounded(p); err != nil {
+		return err
+	}
+	total, _ := magnitudes(p)
+	for _, v := range p.BaseScore {
+		total = math.Max(total, total+math.Abs(v))
+	}
+	if total > math.MaxFloat32 {
+		return fmt.Errorf("the outputs can reach %g, beyond float range (%g)\nhint: emit double C", total, math.MaxFloat32)
+	}
+	return nil
+}
+
+// maxScore bounds |z|, the joined and scaled score, over every row: |scale|
+// times (the largest |base| plus each tree's largest |leaf|).
+func maxScore(p *compile.Program) float64 {
+	m, b := magnitudes(p)
+	return math.Abs(p.Scale()) * (m + b)
+}
+
+// magnitudes returns the sum over trees of each tree's largest |leaf|, and
+// the largest |base score|.
+func magnitudes(p *compile.Program) (leaves, base float64) {
 	for ti := range p.Trees {
 		big := 0.0
 		for i := range p.Trees[ti].Nodes {
@@ -104,13 +143,24 @@ func FitsFloat(p *compile.Program) error {
 				big = math.Max(big, math.Abs(v))
 			}
 		}
-		total += big
+		leaves += big
 	}
 	for _, v := range p.BaseScore {
-		total = math.Max(total, total+math.Abs(v))
+		base = math.Max(base, math.Abs(v))
 	}
-	if total > math.MaxFloat32 {
-		return fmt.Errorf("the outputs can reach %g, beyond float range (%g)\nhint: emit double C", total, math.MaxFloat32)
+	return leaves, base
+}
+
+// floatBounded reports whether float mode can score p, a model that
+// accumulates in float64, within a bound ErrorBound derives: not with the
+// exp or normalize transforms or a transform scale, whose float errors the
+// bound does not cover.
+func floatBounded(p *compile.Program) error {
+	switch {
+	case p.Transform == forest.Exp, p.Transform == forest.Normalize:
+		return fmt.Errorf("output transform %s of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Transform)
+	case p.Scale() != 1:
+		return fmt.Errorf("transform scale %v of a model that accumulates in float64 has no error bound in float arithmetic\nhint: emit double C", p.Scale())
 	}
 	return nil
 }

@@ -105,9 +105,6 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 
 // Emit returns NAME.h and NAME.c for p.
 func Emit(p *compile.Program, o Options) ([]emit.File, error) {
-	if err := refuseFormat2(p); err != nil {
-		return nil, err
-	}
 	g, err := newGen(p, o)
 	if err != nil {
 		return nil, err
@@ -139,9 +136,17 @@ type gen struct {
 	upper  string // upper-case prefix of macros
 	layout string
 	why    string
-	ft     string // "double" or "float"
+	ft     string // "double" or "float": the API's type, of inputs and outputs
+	// at is the accumulator's type: "float" under float32 accumulation or
+	// in float mode, else "double".
+	at string
+	// f32 is the program's float32 accumulation: every joining operation,
+	// the scale and the transform in float, one operation per statement.
+	f32 bool
+	// sets numbers the distinct category lists of the set splits.
+	sets *setTable
 	// leaves holds every leaf value as the target computes with it (rounded to
-	// float in float mode), by tree and node.
+	// float when the accumulator is float), by tree and node.
 	leaves   [][][]float64
 	base     []float64
 	tables   []Table // static tables of NAME.c, for the size report
@@ -197,11 +202,20 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	if err != nil {
 		return nil, err
 	}
-	g := &gen{p: p, o: o, name: name, upper: upperASCII(name), layout: layout, why: why, ft: "double",
-		comments: p.NumNodes() <= commentNodes}
+	g := &gen{p: p, o: o, name: name, upper: upperASCII(name), layout: layout, why: why, ft: "double", at: "double",
+		f32: p.Float32Accumulate(), comments: p.NumNodes() <= commentNodes}
 	if o.Float {
 		g.ft = "float"
 	}
+	if o.Float || g.f32 {
+		g.at = "float"
+	}
+	if o.Float && !g.f32 {
+		if err := floatBounded(p); err != nil {
+			return nil, fmt.Errorf("float C: %w", err)
+		}
+	}
+	g.sets = newSetTable(p)
 	g.leaves = make([][][]float64, len(p.Trees))
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
@@ -228,10 +242,11 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	return g, nil
 }
 
-// narrow returns v as the target computes with it: unchanged in double mode,
-// rounded to the nearest float in float mode (an error when that overflows).
+// narrow returns v as the target computes with it: unchanged with a double
+// accumulator, rounded to the nearest float with a float one (an error when
+// that overflows; under float32 accumulation every value is a float already).
 func (g *gen) narrow(v []float64) ([]float64, error) {
-	if !g.o.Float {
+	if g.at != "float" || g.f32 {
 		return v, nil
 	}
 	out := make([]float64, len(v))
@@ -353,6 +368,30 @@ func CheckName(name string) error {
 func (g *gen) lit(v float64) string {
 	if g.o.Float {
 		return floatLit(v)
+	}
+	return doubleLit(v)
+}
+
+// alit formats a value as a literal of the accumulator's type. Under
+// float32 accumulation a base score may have rounded to an infinity, which
+// is HUGE_VALF (math.h).
+func (g *gen) alit(v float64) string {
+	if g.at == "float" && math.IsInf(v, 0) {
+		return floatConst(v)
+	}
+	if g.at == "float" {
+		return floatLit(v)
+	}
+	return doubleLit(v)
+}
+
+// doubleConst is doubleLit, or HUGE_VAL (math.h) for an infinity.
+func doubleConst(v float64) string {
+	switch {
+	case math.IsInf(v, 1):
+		return "HUGE_VAL"
+	case math.IsInf(v, -1):
+		return "(-HUGE_VAL)"
 	}
 	return doubleLit(v)
 }
@@ -504,21 +543,34 @@ func (g *gen) header() []byte {
 	}
 	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
 	w.line(" *")
-	if g.o.Float {
+	switch {
+	case g.f32:
+		w.line(" * Arithmetic: the model accumulates in float32, and so does this code: every")
+		w.line(" * addition, the division of an average, the scale and the transform are")
+		w.line(" * float (IEEE 754 binary32) operations, one per statement, in the")
+		w.line(" * interpreter's order; comparisons are exact. The transform calls the C")
+		w.line(" * library's expf; the interpreter ports glibc's, so with glibc the outputs")
+		w.line(" * are bit-identical to sawmill's interpreter. With another C library whose")
+		w.line(" * expf is within 1 ulp of e^x, a transformed output is within 4 ulp (a")
+		w.line(" * relative 2^-21) of the interpreter's. The code needs FLT_EVAL_METHOD 0")
+		w.line(" * (x86-64 SSE, AArch64, ARM VFP) and stops with #error elsewhere: with x87")
+		w.line(" * excess precision build with -msse2 -mfpmath=sse.")
+	case g.o.Float:
 		w.line(" * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every")
 		w.line(" * float input: each threshold is the float the model's comparison reduces")
 		w.line(" * to. Leaves are rounded to float and summed in float, so outputs differ")
 		w.line(" * from the double model by a rounding error bounded by the number of trees")
-		w.line(" * times the largest leaf times about 2^-23.")
-	} else {
+		w.line(" * times the largest leaf times about 2^-23; for this model every output is")
+		w.line(" * within %s of the interpreter's on the same float inputs.", strconv.FormatFloat(ErrorBound(p, true), 'g', 3, 64))
+	default:
 		w.line(" * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to")
 		w.line(" * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,")
-		if p.Transform != forest.NoTransform {
+		if b := ErrorBound(p, false); b != 0 {
 			w.line(" * ARM VFP): the same comparisons and additions in the same order; the")
 			w.line(" * transform uses the C library's exp, which may differ from the")
-			w.line(" * interpreter's in the last bit.")
+			w.line(" * interpreter's in the last bit (every output within %s of it).", strconv.FormatFloat(b, 'g', 3, 64))
 		} else {
-			w.line(" * ARM VFP): the same comparisons and additions in the same order.")
+			w.line(" * ARM VFP): the same comparisons and operations in the same order.")
 		}
 		w.line(" * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the")
 		w.line(" * last bit; comparisons stay exact.")
@@ -612,29 +664,88 @@ func (g *gen) docLines() []string {
 	if T == 1 {
 		terms = "leaf_0(x)"
 	}
+	perOutput := false
+	for ti := range p.Trees {
+		perOutput = perOutput || g.scalarTree(ti)
+	}
+	arith := ""
+	if g.f32 {
+		arith = " in float"
+	}
 	switch p.Combine {
 	case forest.Sum:
-		l = append(l, fmt.Sprintf("%s_predict: z = base + %s, added in that order,", g.name, terms),
+		l = append(l, fmt.Sprintf("%s_predict: z = base + %s, added%s in that order,", g.name, terms, arith),
 			"with "+each+";")
 	case forest.Average:
-		l = append(l, fmt.Sprintf("%s_predict: z = (0 + %s) / %d + base, added in that", g.name, terms, T),
+		div := fmt.Sprint(T)
+		if perOutput {
+			div = "T_j"
+		}
+		l = append(l, fmt.Sprintf("%s_predict: z = (0 + %s) / %s + base, added%s in that", g.name, terms, div, arith),
 			"order, with "+each+";")
+	}
+	if perOutput {
+		l = append(l, "a tree of one output (so marked below) adds its one value to that output",
+			"only; T_j is the number of trees adding to output j;")
 	}
 	var bs []string
 	for _, b := range g.base {
-		bs = append(bs, g.lit(b))
+		bs = append(bs, g.alit(b))
 	}
 	l = append(l, "base = {"+strings.Join(bs, ", ")+"}.")
+	if s := p.Scale(); s != 1 {
+		sl := floatConst(s) // round32(s) under float32 accumulation
+		if !g.f32 {
+			sl = doubleLit(s)
+		}
+		l = append(l, fmt.Sprintf("Then z = %s * z, one multiplication.", sl))
+	}
+	exp := "exp"
+	if g.at == "float" {
+		exp = "expf"
+	}
 	switch p.Transform {
-	case forest.Logistic:
-		l = append(l, "Then out = 1/(1+exp(-z)) for z >= 0, exp(z)/(1+exp(z)) for z < 0.")
+	case forest.Logistic, forest.LogisticEach:
+		if g.f32 {
+			l = append(l, "Then out_j = 1/(1+expf(-z_j)), each operation in float.")
+		} else {
+			l = append(l, fmt.Sprintf("Then out_j = 1/(1+%s(-z_j)) for z_j >= 0, %s(z_j)/(1+%s(z_j)) for z_j < 0.", exp, exp, exp))
+		}
 	case forest.Softmax:
-		l = append(l, "Then out = softmax(z): m = max z, e_j = exp(z_j - m), s = e_0 + ... (in order),", "out_j = e_j / s.")
+		sum := "(in order)"
+		if g.f32 {
+			sum = "(in double, in order, then rounded to float)"
+		}
+		l = append(l, fmt.Sprintf("Then out = softmax(z): m = max z, e_j = %s(z_j - m), s = e_0 + ... %s,", exp, sum), "out_j = e_j / s.")
+	case forest.Exp:
+		l = append(l, fmt.Sprintf("Then out_j = %s(z_j).", exp))
+	case forest.Normalize:
+		l = append(l, "Then out_j = z_j / s with s = z_0 + z_1 + ... in order; all zeros when s is 0.")
 	default:
 		l = append(l, "out = z.")
 	}
 	l = append(l, "A split sends x left when x[f] <= t (some splits, from float32 models, use <);",
 		"a missing (NaN) input goes the way the model says for that split.")
+	if len(g.sets.sets) > 0 {
+		rule := map[forest.CategoryMatch]string{
+			forest.MatchTruncate: "its integer part toward zero, for -1 < x[f] < 2^31",
+			forest.MatchExact:    "x[f] itself when an integer in [0, 2^31)",
+		}[p.CategoryMatch]
+		if rule == "" {
+			rule = "its integer part, for 0 <= x[f] < 2^31"
+		}
+		l = append(l, "A set split sends x left when the category of x[f] ("+rule+")",
+			"is one of the split's list; other values go right.")
+		if p.CategoryRound32 {
+			l = append(l, "Set splits take the category of x[f] rounded to float.")
+		}
+	}
+	if p.HasMissingValue {
+		l = append(l, fmt.Sprintf("An input in [%s, %s] also counts as missing.", g.boundLit(p.MissingLo), g.boundLit(p.MissingHi)))
+	}
+	if hasZeroMissing(p) {
+		l = append(l, fmt.Sprintf("At splits so marked, an input in [%s, %s] also counts as missing.", g.boundLit(-p.ZeroBound), g.boundLit(p.ZeroBound)))
+	}
 	return l
 }
 
@@ -646,14 +757,30 @@ func (g *gen) source(body []byte) []byte {
 	w.line(" * Model: SHA-256 %s; layout %s, %s arithmetic. See %s.h. */", comment(p.Hash), g.layout, g.ft, g.name)
 	w.line("")
 	w.line(`#include "%s.h"`, g.name)
-	if g.layout == emit.Table {
-		w.line("")
-		w.line("#include <stdint.h>")
+	w.line("")
+	if g.f32 {
+		w.line("#include <float.h>")
 	}
-	if p.Transform != forest.NoTransform {
-		w.line("")
+	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
+	if g.layout == emit.Table || len(g.sets.sets) > 0 {
+		w.line("#include <stdint.h>")
+	}
+	if g.f32 {
+		w.line("")
+		w.line("/* Float operations must round to float each time (see %s.h). */", g.name)
+		w.line("#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD != 0")
+		w.line("#error \"float32 accumulation needs FLT_EVAL_METHOD 0: build with SSE (-msse2 -mfpmath=sse) or another IEEE float unit\"")
+		w.line("#endif")
+	}
+	w.line("")
+	w.line("/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc")
+	w.line(" * ignores the pragma and contracts in its GNU modes; the code keeps a")
+	w.line(" * multiplication away from any addition. */")
+	w.line("#if !defined(__GNUC__) || defined(__clang__)")
+	w.line("#pragma STDC FP_CONTRACT OFF")
+	w.line("#endif")
 	w.line("")
 	w.line("const char *const %s_feature_names[%s_NUM_FEATURES] = {", g.name, g.upper)
 	for i, f := range p.Features {
@@ -731,57 +858,134 @@ func (g *gen) writeBatch(w *printer) {
 	w.line("}")
 }
 
-// finishBody writes, from the sums in acc, the average, the transform and
-// the copy to out.
+// finishBody writes, from the sums in acc, the average, the scale, the
+// transform and the copy to out, in the order and the arithmetic the
+// interpreter uses (forest.Forest.PredictRaw and Finish). Under float32
+// accumulation each float operation is a statement of its own, so that no
+// wider intermediate and no contraction into a fused multiply-add can
+// change a bit; the one multiplication, by the scale, is stored through a
+// volatile so that gcc's -ffp-contract=fast (its default outside the ISO
+// modes) cannot fuse it with the subtraction or addition that follows.
 func (g *gen) finishBody(w *printer) {
 	p := g.p
 	k := p.NumOutputs
-	ft := g.ft
+	at := g.at
 	if p.Combine == forest.Average {
-		n := g.lit(float64(len(p.Trees)))
 		for j := 0; j < k; j++ {
-			w.line("acc[%d] = acc[%d] / %s + %s;", j, j, n, g.lit(g.base[j]))
+			n := g.alit(float64(p.TreesAddingTo(j)))
+			if g.f32 {
+				w.line("acc[%d] = acc[%d] / %s;", j, j, n)
+				w.line("acc[%d] = acc[%d] + %s;", j, j, g.alit(g.base[j]))
+			} else {
+				w.line("acc[%d] = acc[%d] / %s + %s;", j, j, n, g.alit(g.base[j]))
+			}
 		}
 	}
+	if s := p.Scale(); s != 1 {
+		var sl string
+		if g.f32 {
+			sl = floatConst(s) // round32(s)
+		} else {
+			sl = g.alit(s)
+		}
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("	volatile %s z = %s * acc[j]; /* z = s * acc, rounded once; never fused */", at, sl)
+		w.line("	acc[j] = z;")
+		w.line("}")
+	}
 	exp := "exp"
-	if g.o.Float {
+	if at == "float" {
 		exp = "expf"
 	}
+	one, zero := g.alit(1), g.alit(0)
 	switch p.Transform {
-	case forest.Logistic:
+	case forest.Logistic, forest.LogisticEach:
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
 		w.in()
-		w.line("if (acc[j] >= %s) {", g.lit(0))
-		w.line("\tout[j] = %s / (%s + %s(-acc[j]));", g.lit(1), g.lit(1), exp)
-		w.line("} else {")
-		w.line("\t%s e = %s(acc[j]);", ft, exp)
-		w.line("\tout[j] = e / (%s + e);", g.lit(1))
-		w.line("}")
+		if g.f32 {
+			w.line("const float d = %s + expf(-acc[j]);", one)
+			w.line("acc[j] = %s / d;", one)
+		} else {
+			w.line("if (acc[j] >= %s) {", zero)
+			w.line("	acc[j] = %s / (%s + %s(-acc[j]));", one, one, exp)
+			w.line("} else {")
+			w.line("	const %s e = %s(acc[j]);", at, exp)
+			w.line("	acc[j] = e / (%s + e);", one)
+			w.line("}")
+		}
 		w.out()
+		w.line("}")
+	case forest.Exp:
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("	acc[j] = %s(acc[j]);", exp)
 		w.line("}")
 	case forest.Softmax:
 		w.line("{")
 		w.in()
-		w.line("%s m = acc[0], s = %s;", ft, g.lit(0))
+		st := at
+		if g.f32 {
+			st = "double" // the exponentials are summed in double
+		}
+		w.line("%s m = acc[0];", at)
+		w.line("%s s = %s;", st, map[string]string{"double": "0.0", "float": "0.0f"}[st])
 		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tif (acc[j] > m) {")
-		w.line("\t\tm = acc[j];")
-		w.line("\t}")
+		w.line("	if (acc[j] > m) {")
+		w.line("		m = acc[j];")
+		w.line("	}")
 		w.line("}")
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tacc[j] = %s(acc[j] - m);", exp)
-		w.line("\ts += acc[j];")
+		if g.f32 {
+			w.line("	acc[j] = expf(acc[j] - m);")
+			w.line("	s += (double)acc[j];")
+		} else {
+			w.line("	acc[j] = %s(acc[j] - m);", exp)
+			w.line("	s += acc[j];")
+		}
 		w.line("}")
-		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tout[j] = acc[j] / s;")
+		if g.f32 {
+			w.line("m = (float)s; /* the sum, rounded to float once */")
+			w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+			w.line("	acc[j] = acc[j] / m;")
+		} else {
+			w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+			w.line("	acc[j] = acc[j] / s;")
+		}
 		w.line("}")
 		w.out()
 		w.line("}")
-	default:
+	case forest.Normalize:
+		w.line("{")
+		w.in()
+		w.line("%s s = %s;", at, zero)
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tout[j] = acc[j];")
+		w.line("	s = s + acc[j];")
+		w.line("}")
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("	acc[j] = s == %s ? %s : acc[j] / s; /* a zero sum gives zeros */", zero, zero)
+		w.line("}")
+		w.out()
 		w.line("}")
 	}
+	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+	if at != g.ft {
+		w.line("	out[j] = (%s)acc[j];", g.ft)
+	} else {
+		w.line("	out[j] = acc[j];")
+	}
+	w.line("}")
+}
+
+// floatConst is a float constant for round32(v): its literal, or for a
+// value float cannot hold, the infinity or zero it rounds to.
+func floatConst(v float64) string {
+	f := float32(v)
+	switch {
+	case math.IsInf(float64(f), 1):
+		return "HUGE_VALF"
+	case math.IsInf(float64(f), -1):
+		return "(-HUGE_VALF)"
+	}
+	return floatLit(float64(f))
 }
 
 // predictStart opens predict and sets the accumulator acc to its start:
@@ -791,7 +995,7 @@ func (g *gen) predictStart(w *printer, locals ...string) {
 	w.line("void %s_predict(const %s *x, %s *out)", g.name, g.ft, g.ft)
 	w.line("{")
 	w.in()
-	w.line("%s acc[%s_NUM_OUTPUTS];", g.ft, g.upper)
+	w.line("%s acc[%s_NUM_OUTPUTS];", g.at, g.upper)
 	w.line("int j;")
 	for _, l := range locals {
 		w.line("%s", l)
@@ -804,18 +1008,13 @@ func (g *gen) predictStart(w *printer, locals ...string) {
 // accStart is output j's sum before the first tree: the base score for a
 // sum, zero for an average (which adds the base after dividing).
 func (g *gen) accStart(j int) string {
-	if g.p.Combine == forest.Sum {
-		return g.lit(g.base[j])
-	}
-	return g.lit(0)
+	return g.alit(g.accValue(j))
 }
 
-// refuseFormat2 refuses the format 2 constructs this target does not write
-// yet, with the first one's emit.Unsupported.
-func refuseFormat2(p *compile.Program) error {
-	for _, u := range emit.Format2Uses(p) {
-		u.Target = "c"
-		return &u
+// accValue is accStart's value.
+func (g *gen) accValue(j int) float64 {
+	if g.p.Combine == forest.Sum {
+		return g.base[j]
 	}
-	return nil
+	return 0
 }

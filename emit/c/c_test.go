@@ -3,7 +3,9 @@ package cemit
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
+	"math/rand/v2"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -343,4 +345,100 @@ func TestTableWalkMatchesEval(t *testing.T) {
 			require.Equal(t, want, got, "mode %d, row %d", mode, r)
 		}
 	}
+}
+
+// setSplitForest is a 100-tree, depth-6 model of 20 features in which
+// every other split tests a random set of the categories 0 to 63 (as a
+// boosting library's categorical splits do), the rest numeric.
+func setSplitForest(t testing.TB) *forest.Forest {
+	rng := rand.New(rand.NewPCG(100, 6))
+	const trees, depth, nf = 100, 6, 20
+	f := &forest.Forest{Task: forest.Regression, Combine: forest.Sum, Transform: forest.NoTransform,
+		InputPrecision: forest.Float64, BaseScore: []float64{0.5}}
+	for j := 0; j < nf; j++ {
+		f.Features = append(f.Features, fmt.Sprintf("f%d", j))
+	}
+	for ti := 0; ti < trees; ti++ {
+		var tr forest.Tree
+		n := 1<<(depth+1) - 1
+		tr.Categories = make([][]int32, n)
+		for i := 0; i < n; i++ {
+			tr.MissingLeft = append(tr.MissingLeft, rng.IntN(2) == 0)
+			if i < n/2 {
+				tr.Feature = append(tr.Feature, rng.IntN(nf))
+				tr.Left, tr.Right = append(tr.Left, 2*i+1), append(tr.Right, 2*i+2)
+				tr.Value = append(tr.Value, 0)
+				if i%2 == 0 {
+					tr.Threshold = append(tr.Threshold, 0)
+					cats := []int32{}
+					for c := int32(0); c < 64; c++ {
+						if rng.IntN(3) == 0 {
+							cats = append(cats, c)
+						}
+					}
+					tr.Categories[i] = cats
+				} else {
+					tr.Threshold = append(tr.Threshold, rng.Float64())
+				}
+				continue
+			}
+			tr.Feature, tr.Threshold = append(tr.Feature, -1), append(tr.Threshold, 0)
+			tr.Left, tr.Right = append(tr.Left, -1), append(tr.Right, -1)
+			tr.Value = append(tr.Value, float64(float32(rng.NormFloat64())))
+		}
+		f.Trees = append(f.Trees, tr)
+	}
+	require.NoError(t, f.Validate("sets.json"))
+	return f
+}
+
+// The table layout of setSplitForest: each split a word, each distinct
+// category list 12 bytes of descriptor and its bitset's two words; at
+// most 12 bytes per node, leaves included (the test logs the figure).
+func TestSetSplitBytesPerNode(t *testing.T) {
+	p := compiled(t, setSplitForest(t), false)
+	sizes, err := Sizes(p, Options{})
+	require.NoError(t, err)
+	for _, s := range sizes {
+		t.Logf("%s: %d nodes, tables %d bytes, %.2f bytes per node", s.Layout, s.Nodes, s.TableBytes, s.BytesPerNode())
+		for _, tb := range s.Tables {
+			t.Logf("  %s: %d x %d", tb.Name, tb.Len, tb.ElemBytes)
+		}
+	}
+	require.Equal(t, emit.Table, sizes[1].Layout)
+	require.LessOrEqual(t, sizes[1].BytesPerNode(), 12.0)
+}
+
+// Under float32 accumulation the source refuses wider float evaluation
+// and contraction, and the header says so and states the bound with
+// another C library's expf; float C refuses a float64-accumulating model
+// whose transform it cannot bound.
+func TestFloat32AccumulationSource(t *testing.T) {
+	f := pumpForest(t, forest.Float64)
+	f.Accumulate, f.Transform, f.TransformScale = forest.Float32, forest.Softmax, 0.5
+	for i := range f.Trees {
+		for j, v := range f.Trees[i].Value {
+			f.Trees[i].Value[j] = float64(float32(v))
+		}
+	}
+	require.NoError(t, f.Validate("pump.json"))
+	for _, layout := range []string{emit.Nested, emit.Table} {
+		files, err := Emit(compiled(t, f, false), Options{Layout: layout})
+		require.NoError(t, err)
+		h, c := string(files[0].Data), string(files[1].Data)
+		require.Contains(t, h, "accumulates in float32")
+		require.Contains(t, h, "relative 2^-21")
+		require.Contains(t, c, "#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD != 0\n#error")
+		require.Contains(t, c, "#pragma STDC FP_CONTRACT OFF")
+		require.Contains(t, c, "volatile float z = 0.5f * acc[j];")
+		require.Contains(t, c, "s += (double)acc[j];", "softmax sums its float exponentials in double")
+		require.Contains(t, c, "float acc[MODEL_NUM_OUTPUTS];")
+	}
+	g := pumpForest(t, forest.Float64)
+	g.Transform = forest.Normalize
+	require.NoError(t, g.Validate("pump.json"))
+	_, err := Emit(compiled(t, g, true), Options{Float: true})
+	require.ErrorContains(t, err, "normalize")
+	require.ErrorContains(t, err, "hint: emit double C")
+	require.Error(t, FitsFloat(compiled(t, g, true)))
 }

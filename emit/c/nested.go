@@ -3,6 +3,7 @@ package cemit
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"sawmill/compile"
 )
@@ -22,17 +23,18 @@ import (
 func (g *gen) nested(w *printer) {
 	p := g.p
 	k := p.NumOutputs
+	g.writeSets(w)
 	var rows *leafRows
-	if k > 1 {
+	if g.anyFullTree() && k > 1 {
 		rows = g.distinctLeaves()
-		w.line("static const %s %s_leaf[%d][%s_NUM_OUTPUTS] = {", g.ft, g.name, len(rows.vecs), g.upper)
+		w.line("static const %s %s_leaf[%d][%s_NUM_OUTPUTS] = {", g.at, g.name, len(rows.vecs), g.upper)
 		for i, v := range rows.vecs {
 			w.line("\t{%s}%s", g.joinLits(v), comma(i, len(rows.vecs)))
 		}
 		w.line("};")
 		w.line("")
 		g.tables = append(g.tables, Table{Name: g.name + "_leaf", What: "distinct leaf vectors", Len: len(rows.vecs) * k, ElemBytes: g.elemBytes()})
-		w.line("static void %s_add(%s *acc, const %s *v)", g.name, g.ft, g.ft)
+		w.line("static void %s_add(%s *acc, const %s *v)", g.name, g.at, g.at)
 		w.line("{")
 		w.line("\tint j;")
 		w.line("\tfor (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
@@ -45,22 +47,26 @@ func (g *gen) nested(w *printer) {
 		t := &p.Trees[ti]
 		depth := t.Depth()
 		if g.comments || ti == 0 {
-			w.line("/* tree %d: %d nodes, depth %d */", t.Source, len(t.Nodes), depth)
+			w.line("/* tree %d: %d nodes, depth %d%s */", t.Source, len(t.Nodes), depth, g.outputNote(ti))
 		}
-		if k == 1 {
-			w.line("static %s %s_tree%d(const %s *x)", g.ft, g.name, ti, g.ft)
+		if k == 1 || g.scalarTree(ti) {
+			w.line("static %s %s_tree%d(const %s *x)", g.at, g.name, ti, g.ft)
 		} else {
-			w.line("static const %s *%s_tree%d(const %s *x)", g.ft, g.name, ti, g.ft)
+			w.line("static const %s *%s_tree%d(const %s *x)", g.at, g.name, ti, g.ft)
 		}
 		w.line("{")
 		w.in()
 		if len(t.Nodes) == 1 {
 			w.line("(void)x;")
 		}
+		tr := rows
+		if g.scalarTree(ti) {
+			tr = nil
+		}
 		if depth > MaxNesting {
-			g.treeGoto(w, ti, rows)
+			g.treeGoto(w, ti, tr)
 		} else {
-			g.treeIf(w, ti, rows)
+			g.treeIf(w, ti, tr)
 		}
 		w.out()
 		w.line("}")
@@ -68,12 +74,39 @@ func (g *gen) nested(w *printer) {
 	}
 	g.predictStart(w)
 	for ti := range p.Trees {
-		if k == 1 {
+		switch {
+		case g.scalarTree(ti):
+			w.line("acc[%d] += %s_tree%d(x);", p.Trees[ti].Output, g.name, ti)
+		case k == 1:
 			w.line("acc[0] += %s_tree%d(x);", g.name, ti)
-		} else {
+		default:
 			w.line("%s_add(acc, %s_tree%d(x));", g.name, g.name, ti)
 		}
 	}
+}
+
+// scalarTree reports whether tree ti adds one value to one output of
+// several (a tree of one output, format 2's trees[].output).
+func (g *gen) scalarTree(ti int) bool {
+	return g.p.Trees[ti].HasOutput && g.p.NumOutputs > 1
+}
+
+// anyFullTree reports whether some tree adds a vector to every output.
+func (g *gen) anyFullTree() bool {
+	for ti := range g.p.Trees {
+		if !g.scalarTree(ti) {
+			return true
+		}
+	}
+	return false
+}
+
+// outputNote says which output a tree of one output adds to.
+func (g *gen) outputNote(ti int) string {
+	if !g.scalarTree(ti) {
+		return ""
+	}
+	return fmt.Sprintf(", adds to out[%d] only", g.p.Trees[ti].Output)
 }
 
 // treeIf writes tree ti as nested if/else, with an explicit stack.
@@ -154,26 +187,47 @@ func (g *gen) nodeComment(n *compile.Node) string {
 	return fmt.Sprintf(" /* node %d */", n.ID)
 }
 
-// goesLeft is the condition under which a row goes left at split n: the
-// comparison when missing values go right (NaN fails it), its negated
-// complement when they go left (NaN fails the complement).
+// goesLeft is the condition under which a row goes left at split n. A
+// numeric split without other missing values is the comparison when
+// missing values go right (NaN fails it) and its negated complement when
+// they go left (NaN fails the complement); a set split and the missing
+// bands are spelled out.
 func (g *gen) goesLeft(n *compile.Node) string {
 	x := fmt.Sprintf("x[%d]", n.Feature)
-	t := g.lit(n.Threshold)
-	switch {
-	case n.Op == compile.LE && !n.MissingLeft:
-		return x + " <= " + t
-	case n.Op == compile.LE:
-		return "!(" + x + " > " + t + ")"
-	case !n.MissingLeft:
-		return x + " < " + t
-	default:
-		return "!(" + x + " >= " + t + ")"
+	var left string // the test that sends x left, NaN going where n says
+	if n.IsSetSplit() {
+		left = g.member(n, x)
+		if n.MissingLeft {
+			left = x + " != " + x + " || " + left
+		}
+	} else {
+		t := g.lit(n.Threshold)
+		switch {
+		case n.Op == compile.LE && !n.MissingLeft:
+			left = x + " <= " + t
+		case n.Op == compile.LE:
+			left = "!(" + x + " > " + t + ")"
+		case !n.MissingLeft:
+			left = x + " < " + t
+		default:
+			left = "!(" + x + " >= " + t + ")"
+		}
 	}
+	e := g.extraMissing(n, x)
+	switch {
+	case e == "":
+		return left
+	case n.MissingLeft:
+		return e + " || " + paren(left)
+	}
+	return "!" + e + " && " + paren(left)
 }
 
 // goesRight is the negation of goesLeft.
 func (g *gen) goesRight(n *compile.Node) string {
+	if n.IsSetSplit() || g.extraMissing(n, "x") != "" {
+		return "!(" + g.goesLeft(n) + ")"
+	}
 	x := fmt.Sprintf("x[%d]", n.Feature)
 	t := g.lit(n.Threshold)
 	switch {
@@ -188,10 +242,18 @@ func (g *gen) goesRight(n *compile.Node) string {
 	}
 }
 
+// paren wraps a condition holding a top-level || or && in parentheses.
+func paren(c string) string {
+	if strings.Contains(c, "||") || strings.Contains(c, "&&") {
+		return "(" + c + ")"
+	}
+	return c
+}
+
 func (g *gen) leafExpr(ti int, ni int32, rows *leafRows) string {
 	v := g.leaves[ti][ni]
 	if rows == nil {
-		return g.lit(v[0])
+		return g.alit(v[0])
 	}
 	return fmt.Sprintf("%s_leaf[%d]", g.name, rows.row(v))
 }
@@ -202,13 +264,13 @@ func (g *gen) joinLits(v []float64) string {
 		if i > 0 {
 			s += ", "
 		}
-		s += g.lit(x)
+		s += g.alit(x)
 	}
 	return s
 }
 
 func (g *gen) elemBytes() int {
-	if g.o.Float {
+	if g.at == "float" {
 		return 4
 	}
 	return 8
@@ -239,9 +301,16 @@ func vecKey(v []float64) string {
 	return string(b)
 }
 
-func (g *gen) distinctLeaves() *leafRows {
+func (g *gen) distinctLeaves() *leafRows { return g.distinctLeavesOf(false) }
+
+// distinctLeavesOf is distinctLeaves over the trees of one output (scalar)
+// or over the others.
+func (g *gen) distinctLeavesOf(scalar bool) *leafRows {
 	r := &leafRows{index: map[string]int{}}
 	for ti := range g.p.Trees {
+		if g.scalarTree(ti) != scalar {
+			continue
+		}
 		for ni := range g.p.Trees[ti].Nodes {
 			v := g.leaves[ti][ni]
 			if v == nil {

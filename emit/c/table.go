@@ -36,6 +36,8 @@ type tableLayout struct {
 	tBits    int
 	hasML    bool
 	hasLT    bool
+	hasSet   bool // some split is a set split: its index field is its set number
+	hasZM    bool // some split counts zeros as missing
 	// p1 holds the splits in the left subtree, or with inWord at a split
 	// whose left child is a leaf, that leaf's row; p2 (only with inWord)
 	// the row of a right leaf child.
@@ -54,19 +56,45 @@ type tableLayout struct {
 	words     []uint64
 	treeStart []int // len T+1, in words
 	treeNodes []int // words per tree, for comments
+	// leafRows are the distinct leaf vectors of the trees that add to
+	// every output, of width NumOutputs; or, when every tree adds to one
+	// output of several, their values, of width 1. In a model mixing the
+	// two, rows1 holds the values of the trees of one output.
 	leafRows  *leafRows
-	leafOf    []int // per leaf in preorder, its row of leafRows
+	width     int
+	rows1     *leafRows
+	mixed     bool
+	hasOut    bool  // some tree adds to one output of several: NAME_out is written
+	leafOf    []int // per leaf in preorder, its row of leafRows (rows1 for a leaf of a tree of one output when mixed)
 	direct    bool  // leaf vectors stored per leaf, not by row
 	leafFloat bool  // every leaf value is a float value
 }
 
 func (g *gen) buildTable() (*tableLayout, error) {
 	p := g.p
-	tl := &tableLayout{leafRows: g.distinctLeaves()}
+	tl := &tableLayout{width: p.NumOutputs}
+	for ti := range p.Trees {
+		tl.hasOut = tl.hasOut || g.scalarTree(ti)
+	}
+	tl.leafRows = g.distinctLeaves()
+	switch {
+	case tl.hasOut && !g.anyFullTree():
+		tl.leafRows, tl.width = g.distinctLeavesOf(true), 1
+	case tl.hasOut:
+		tl.rows1, tl.mixed = g.distinctLeavesOf(true), true
+	}
+	rowsOf := func(ti int) *leafRows {
+		if tl.mixed && g.scalarTree(ti) {
+			return tl.rows1
+		}
+		return tl.leafRows
+	}
 	type split struct {
 		feature   int
 		thr       float64
 		lt, ml    bool
+		set       int // the set number at a set split, else -1
+		zm        bool
 		ll, rl    bool
 		leftCount int
 		// rows of leafRows of a leaf left or right child
@@ -96,31 +124,36 @@ func (g *gen) buildTable() (*tableLayout, error) {
 			stack = stack[:len(stack)-1]
 			n := &t.Nodes[i]
 			if n.IsLeaf() {
-				tl.leafOf = append(tl.leafOf, tl.leafRows.row(g.leaves[ti][i]))
+				tl.leafOf = append(tl.leafOf, rowsOf(ti).row(g.leaves[ti][i]))
 				continue
 			}
-			th, lt := g.normalise(n.Op, n.Threshold)
-			if tl.round32 {
-				th, lt = float64(compile.Floor32(n.Threshold)), false
-			}
-			if th == 0 {
-				th = 0 // x <= -0 and x <= 0 agree everywhere
-			}
-			thrSet[n.Feature][math.Float64bits(th)] = true
-			sp := split{feature: n.Feature, thr: th, lt: lt, ml: n.MissingLeft,
+			sp := split{feature: n.Feature, set: -1, ml: n.MissingLeft, zm: n.ZeroMissing,
 				ll: t.Nodes[n.Left].IsLeaf(), rl: t.Nodes[n.Right].IsLeaf(), leftCount: below[n.Left]}
+			if n.IsSetSplit() {
+				sp.set = g.sets.of(n)
+			} else {
+				th, lt := g.normalise(n.Op, n.Threshold)
+				if tl.round32 {
+					th, lt = float64(compile.Floor32(n.Threshold)), false
+				}
+				if th == 0 {
+					th = 0 // x <= -0 and x <= 0 agree everywhere
+				}
+				thrSet[n.Feature][math.Float64bits(th)] = true
+				sp.thr, sp.lt = th, lt
+			}
 			if sp.ll {
-				sp.leftRow = tl.leafRows.row(g.leaves[ti][n.Left])
+				sp.leftRow = rowsOf(ti).row(g.leaves[ti][n.Left])
 			}
 			if sp.rl {
-				sp.rightRow = tl.leafRows.row(g.leaves[ti][n.Right])
+				sp.rightRow = rowsOf(ti).row(g.leaves[ti][n.Right])
 			}
 			splits = append(splits, sp)
 			stack = append(stack, n.Right, n.Left)
 		}
 		sole := -1
 		if t.Nodes[0].IsLeaf() {
-			sole = tl.leafRows.row(g.leaves[ti][0])
+			sole = rowsOf(ti).row(g.leaves[ti][0])
 			tl.hasSole = true
 		}
 		tl.soleRow = append(tl.soleRow, sole)
@@ -153,21 +186,34 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	for _, s := range splits {
 		tl.hasML = tl.hasML || s.ml
 		tl.hasLT = tl.hasLT || s.lt
+		tl.hasSet = tl.hasSet || s.set >= 0
+		tl.hasZM = tl.hasZM || s.zm
 		maxLeft = max(maxLeft, s.leftCount)
 	}
 	tl.leafFloat = true
-	for _, v := range tl.leafRows.vecs {
-		for _, x := range v {
-			if float64(float32(x)) != x {
-				tl.leafFloat = false
+	for _, r := range []*leafRows{tl.leafRows, tl.rows1} {
+		if r == nil {
+			continue
+		}
+		for _, v := range r.vecs {
+			for _, x := range v {
+				if float64(float32(x)) != x {
+					tl.leafFloat = false
+				}
 			}
 		}
 	}
-	k := p.NumOutputs
+	k := tl.width
 	vb := tl.leafElemBytes(g)
 	nLeaves, nRows := len(tl.leafOf), len(tl.leafRows.vecs)
+	rowBytes := nRows * k * vb
+	if tl.mixed {
+		nRows = max(nRows, len(tl.rows1.vecs))
+		rowBytes += len(tl.rows1.vecs) * vb
+	}
 	aBits, rBits := bitsFor(maxLeft), bitsFor(nRows-1)
-	flags := b2i(tl.hasML) + b2i(tl.hasLT) + 2
+	flags := b2i(tl.hasML) + b2i(tl.hasLT) + b2i(tl.hasSet) + b2i(tl.hasZM) + 2
+	setBits := bitsFor(len(g.sets.sets) - 1)
 	// The word for each choice of threshold addressing and leaf mode; the
 	// cheapest wins (ties: leaves outside the word, the plainer walk).
 	type choice struct {
@@ -181,13 +227,17 @@ func (g *gen) buildTable() (*tableLayout, error) {
 			if perFeat {
 				tb = bitsFor(maxLocal - 1)
 			}
+			tb = max(tb, setBits)
 			c := choice{perFeat: perFeat, inWord: inWord}
 			if inWord {
 				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
-				c.bytes = nRows * k * vb
+				c.bytes = rowBytes
 			} else {
 				c.bits = tl.fBits + tb + flags + aBits
-				c.bytes = min(nLeaves*k*vb, nLeaves*intBytes(nRows-1)+nRows*k*vb)
+				c.bytes = nLeaves*intBytes(nRows-1) + rowBytes
+				if !tl.mixed {
+					c.bytes = min(c.bytes, nLeaves*k*vb)
+				}
 			}
 			if perFeat {
 				c.bytes += len(p.Features) * intBytes(len(tl.thr))
@@ -215,14 +265,20 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	if tl.perFeat {
 		tl.tBits = bitsFor(maxLocal - 1)
 	}
+	tl.tBits = max(tl.tBits, setBits)
 	tl.p1Bits = aBits
 	if tl.inWord {
 		tl.p1Bits, tl.p2Bits = max(aBits, rBits), rBits
 	}
 	for _, s := range splits {
-		ti := index[s.feature][math.Float64bits(s.thr)]
-		if !tl.perFeat {
-			ti += tl.thrBase[s.feature]
+		var ti int
+		if s.set >= 0 {
+			ti = s.set
+		} else {
+			ti = index[s.feature][math.Float64bits(s.thr)]
+			if !tl.perFeat {
+				ti += tl.thrBase[s.feature]
+			}
 		}
 		w := uint64(s.feature) | uint64(ti)<<tl.tShift()
 		if s.ml {
@@ -230,6 +286,12 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		}
 		if s.lt {
 			w |= tl.ltBit()
+		}
+		if s.set >= 0 {
+			w |= tl.setBit()
+		}
+		if s.zm {
+			w |= tl.zmBit()
 		}
 		if s.ll {
 			w |= tl.llBit()
@@ -247,7 +309,7 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		}
 		tl.words = append(tl.words, w)
 	}
-	tl.direct = !tl.inWord && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
+	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
 	return tl, nil
 }
 
@@ -263,7 +325,7 @@ func roundsToFloat(p *compile.Program) bool {
 	for ti := range p.Trees {
 		for i := range p.Trees[ti].Nodes {
 			n := &p.Trees[ti].Nodes[i]
-			if n.IsLeaf() {
+			if n.IsLeaf() || n.IsSetSplit() {
 				continue
 			}
 			t32 := compile.Floor32(n.Threshold)
@@ -302,12 +364,16 @@ func (tl *tableLayout) tShift() int    { return tl.fBits }
 func (tl *tableLayout) flagShift() int { return tl.fBits + tl.tBits }
 func (tl *tableLayout) mlBit() uint64  { return 1 << tl.flagShift() }
 func (tl *tableLayout) ltBit() uint64  { return 1 << (tl.flagShift() + b2i(tl.hasML)) }
+func (tl *tableLayout) setBit() uint64 { return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT)) }
+func (tl *tableLayout) zmBit() uint64 {
+	return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + b2i(tl.hasSet))
+}
 func (tl *tableLayout) llBit() uint64 {
-	return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT))
+	return 1 << (tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + b2i(tl.hasSet) + b2i(tl.hasZM))
 }
 func (tl *tableLayout) rlBit() uint64 { return tl.llBit() << 1 }
 func (tl *tableLayout) p1Shift() int {
-	return tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + 2
+	return tl.flagShift() + b2i(tl.hasML) + b2i(tl.hasLT) + b2i(tl.hasSet) + b2i(tl.hasZM) + 2
 }
 func (tl *tableLayout) p2Shift() int { return tl.p1Shift() + tl.p1Bits }
 
@@ -319,7 +385,7 @@ func (tl *tableLayout) thrElemBytes(g *gen) int {
 }
 
 func (tl *tableLayout) leafElemBytes(g *gen) int {
-	if g.o.Float || tl.leafFloat {
+	if g.at == "float" || tl.leafFloat {
 		return 4
 	}
 	return 8
@@ -388,13 +454,19 @@ func (g *gen) table(w *printer) error {
 		return err
 	}
 	p := g.p
-	k := p.NumOutputs
+	k := tl.width
 	wt := fmt.Sprintf("uint%d_t", tl.wordBits)
 	T := len(p.Trees)
+	g.writeSets(w)
 
 	// The split words, one line per tree (or several when long).
-	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), threshold index (%s)%s%s,", nbits(tl.fBits), nbits(tl.tBits),
-		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT])
+	idxName := "threshold index"
+	if tl.hasSet {
+		idxName = "threshold index, or set number at a set split"
+	}
+	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), %s (%s)%s%s%s%s,", nbits(tl.fBits), idxName, nbits(tl.tBits),
+		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT],
+		map[bool]string{true: ", set split (1 bit)"}[tl.hasSet], map[bool]string{true: ", zero is missing (1 bit)"}[tl.hasZM])
 	if tl.inWord {
 		w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), then (%s) the left leaf's row of %s_leaf", nbits(tl.p1Bits), g.name)
 		w.line(" * if the left child is a leaf, else the splits in the left subtree, then (%s) the right", nbits(tl.p2Bits))
@@ -460,15 +532,38 @@ func (g *gen) table(w *printer) error {
 		w.line("")
 	}
 
-	lt := g.ft
-	if !g.o.Float && tl.leafFloat {
+	lt := g.at
+	if tl.leafFloat {
 		lt = "float"
 	}
-	llit := g.lit
+	llit := g.alit
 	if lt == "float" {
 		llit = floatLit
 	}
-	exactNote := map[bool]string{true: " (all exact as float)"}[lt != g.ft]
+	exactNote := map[bool]string{true: " (all exact as float)"}[lt != g.at]
+	if tl.hasOut {
+		ob := intBytes(p.NumOutputs)
+		w.line("/* Per tree, the output it adds to, or %d: every output. */", p.NumOutputs)
+		w.line("static const %s %s_out[%d] = {", uintType(ob), g.name, T)
+		g.numbers(w, T, func(i int) string {
+			if g.scalarTree(i) {
+				return fmt.Sprint(p.Trees[i].Output)
+			}
+			return fmt.Sprint(p.NumOutputs)
+		})
+		w.line("};")
+		g.tables = append(g.tables, Table{g.name + "_out", "output per tree", T, ob})
+		w.line("")
+	}
+	if tl.mixed {
+		n := len(tl.rows1.vecs)
+		w.line("/* Distinct leaf values of the trees of one output%s. */", exactNote)
+		w.line("static const %s %s_leaf1[%d] = {", lt, g.name, max(n, 1))
+		g.numbers(w, n, func(i int) string { return llit(tl.rows1.vecs[i][0]) })
+		w.line("};")
+		g.tables = append(g.tables, Table{g.name + "_leaf1", "distinct leaf values of trees of one output", n, tl.leafElemBytes(g)})
+		w.line("")
+	}
 	switch {
 	case tl.direct:
 		w.line("/* Leaf vectors, per leaf in preorder%s. */", exactNote)
@@ -478,7 +573,7 @@ func (g *gen) table(w *printer) error {
 		g.tables = append(g.tables, Table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
 	default:
 		if !tl.inWord {
-			rb := intBytes(len(tl.leafRows.vecs) - 1)
+			rb := intBytes(tl.maxRows() - 1)
 			w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
 			w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
 			g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
@@ -495,7 +590,7 @@ func (g *gen) table(w *printer) error {
 	}
 	w.line("")
 	if tl.inWord && tl.hasSole {
-		rb := intBytes(len(tl.leafRows.vecs) - 1)
+		rb := intBytes(tl.maxRows() - 1)
 		w.line("/* Per tree that is a single leaf, the row of %s_leaf of its leaf (others 0). */", g.name)
 		w.line("static const %s %s_sole[%d] = {", uintType(rb), g.name, T)
 		g.numbers(w, T, func(i int) string { return fmt.Sprint(max(tl.soleRow[i], 0)) })
@@ -521,6 +616,10 @@ func (g *gen) table(w *printer) error {
 	if tl.perFeat {
 		idx = fmt.Sprintf("%s_thr_base[f] + %s", g.name, idx)
 	}
+	if tl.hasSet {
+		// a set split's index is its set number, not a threshold's
+		idx = fmt.Sprintf("%s ? 0u : %s", bit(tl.setBit()), idx)
+	}
 	th := fmt.Sprintf("%s_thr[%s]", g.name, idx)
 	if tt != vt {
 		th = "(double)" + th
@@ -529,7 +628,9 @@ func (g *gen) table(w *printer) error {
 	if tl.hasLT {
 		left = fmt.Sprintf("(%s & ((%s ^ 1u) | (uint32_t)(v < th)))", left, bit(tl.ltBit()))
 	}
-	if tl.hasML {
+	// general: a set split or numbers that count as missing
+	general := tl.hasSet || tl.hasZM || p.HasMissingValue
+	if tl.hasML && !general {
 		left = fmt.Sprintf("(%s | (%s & (uint32_t)(v != v)))", left, bit(tl.mlBit()))
 	}
 	// A walk is three variables per tree: the word it stands on (i), whether
@@ -576,12 +677,40 @@ func (g *gen) table(w *printer) error {
 		} else {
 			w.line("const uint32_t f = (uint32_t)(w & %s);", hexLit(1<<tl.fBits-1))
 		}
-		if tl.round32 {
+		switch {
+		case tl.round32 && general:
+			w.line("const %s xv = %s[f];", g.ft, xOf(l))
+			w.line("const float v = (float)xv; /* rounded to nearest, as the model's float32 inputs */")
+		case tl.round32:
 			w.line("const float v = (float)%s[f]; /* rounded to nearest, as the model's float32 inputs */", xOf(l))
-		} else {
+		default:
 			w.line("const %s v = %s[f];", g.ft, xOf(l))
 		}
 		w.line("const %s th = %s;", vt, th)
+		if general {
+			xv := "v"
+			if tl.round32 {
+				xv = "xv"
+			}
+			miss := fmt.Sprintf("(uint32_t)(%s != %s)", xv, xv)
+			if p.HasMissingValue {
+				miss += fmt.Sprintf(" | (uint32_t)%s", g.band(xv, p.MissingLo, p.MissingHi))
+			}
+			if tl.hasZM {
+				miss += fmt.Sprintf(" | (%s & (uint32_t)%s)", bit(tl.zmBit()), g.band(xv, -p.ZeroBound, p.ZeroBound))
+			}
+			w.line("const uint32_t miss = %s;", miss)
+			test := left
+			if tl.hasSet {
+				w.line("const uint32_t set = %s;", bit(tl.setBit()))
+				test = fmt.Sprintf("(set != 0u ? %s_member(%s, %s) : %s)", g.name, g.memberArg(xv), field(tl.tShift(), tl.tBits), left)
+			}
+			ml := "0u"
+			if tl.hasML {
+				ml = bit(tl.mlBit())
+			}
+			left = fmt.Sprintf("((%s & (miss ^ 1u)) | (%s & miss))", test, ml)
+		}
 		w.line("const uint32_t r = %s ^ 1u; /* 1: right */", left)
 		w.line("const uint32_t p1 = %s;", field(tl.p1Shift(), tl.p1Bits))
 		w.line("const uint32_t leaf = (uint32_t)(w >> (%d + r)) & 1u; /* the child is a leaf */", bits.TrailingZeros64(tl.llBit()))
@@ -605,17 +734,44 @@ func (g *gen) table(w *printer) error {
 		return "at" + l
 	}
 	conv := ""
-	if lt != g.ft {
+	if lt != g.at {
 		conv = "(double)"
 	}
-	add := func(l string) {
-		if k == 1 {
-			w.line("%s[0] += %s%s_leaf[%s];", accOf(l), conv, g.name, row(l))
-			return
+	// addTo adds a leaf value (of the accumulator's type) to dst: in
+	// predict_batch under float32 accumulation with the double API, dst
+	// is a double holding a float value, and the addition is still a
+	// float operation.
+	addTo := func(dst, v string) string {
+		if batch && g.at != g.ft {
+			return fmt.Sprintf("%s = (%s)((%s)%s + %s);", dst, g.ft, g.at, dst, v)
 		}
-		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\t%s[j] += %s%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS + (uint32_t)j];", accOf(l), conv, g.name, row(l), g.upper)
-		w.line("}")
+		return fmt.Sprintf("%s += %s;", dst, v)
+	}
+	// add adds the leaf lane l reached in tree t.
+	add := func(l, t string) {
+		full := func() {
+			if k == 1 {
+				w.line("%s", addTo(accOf(l)+"[0]", conv+g.name+"_leaf["+row(l)+"]"))
+				return
+			}
+			w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+			w.line("\t%s", addTo(accOf(l)+"[j]", fmt.Sprintf("%s%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS + (uint32_t)j]", conv, g.name, row(l), g.upper)))
+			w.line("}")
+		}
+		switch {
+		case !tl.hasOut:
+			full()
+		case !tl.mixed:
+			w.line("%s", addTo(fmt.Sprintf("%s[%s_out[%s]]", accOf(l), g.name, t), conv+g.name+"_leaf["+row(l)+"]"))
+		default:
+			w.line("if (%s_out[%s] < %s_NUM_OUTPUTS) {", g.name, t, g.upper)
+			w.line("\t%s", addTo(fmt.Sprintf("%s[%s_out[%s]]", accOf(l), g.name, t), conv+g.name+"_leaf1["+row(l)+"]"))
+			w.line("} else {")
+			w.in()
+			full()
+			w.out()
+			w.line("}")
+		}
 	}
 	lanes := []string{"0", "1", "2", "3"}
 	T4 := T - T%4
@@ -639,8 +795,8 @@ func (g *gen) table(w *printer) error {
 		}
 		w.out()
 		w.line("}")
-		for _, l := range lanes {
-			add(l)
+		for j, l := range lanes {
+			add(l, fmt.Sprintf("t + %du", j))
 		}
 		w.out()
 		w.line("}")
@@ -654,7 +810,7 @@ func (g *gen) table(w *printer) error {
 		step("0")
 		w.out()
 		w.line("}")
-		add("0")
+		add("0", "t")
 		w.out()
 		w.line("}")
 	}
@@ -674,8 +830,12 @@ func (g *gen) table(w *printer) error {
 		w.line("%s *o0 = outs, *o1 = outs, *o2 = outs, *o3 = outs;", ft)
 		w.line("for (ri = 0; ri < n; ri++) {")
 		w.in()
-		for j := 0; j < k; j++ {
-			w.line("outs[ri * %s + %du] = %s;", no, j, g.accStart(j))
+		for j := 0; j < p.NumOutputs; j++ {
+			start := g.accStart(j)
+			if g.at != g.ft {
+				start = doubleConst(g.accValue(j))
+			}
+			w.line("outs[ri * %s + %du] = %s;", no, j, start)
 		}
 		w.out()
 		w.line("}")
@@ -709,7 +869,7 @@ func (g *gen) table(w *printer) error {
 		for _, l := range lanes {
 			w.line("if ((done%s & live%s) != 0u) {", l, l)
 			w.in()
-			add(l)
+			add(l, "t")
 			w.line("if (next < n) {")
 			w.in()
 			w.line("x%s = x + next * %s;", l, nf)
@@ -729,10 +889,14 @@ func (g *gen) table(w *printer) error {
 		w.line("}")
 		w.line("for (ri = 0; ri < n; ri++) {")
 		w.in()
-		w.line("%s acc[%s];", ft, no)
+		w.line("%s acc[%s];", g.at, no)
 		w.line("%s *const o = outs + ri * %s;", ft, no)
 		w.line("for (j = 0; j < %s; j++) {", no)
-		w.line("\tacc[j] = o[j];")
+		if g.at != ft {
+			w.line("\tacc[j] = (%s)o[j]; /* exact: a float value */", g.at)
+		} else {
+			w.line("\tacc[j] = o[j];")
+		}
 		w.line("}")
 		w.line("{")
 		w.in()
@@ -764,4 +928,13 @@ func (g *gen) numbers(w *printer, n int, elem func(int) string) {
 		}
 		w.line("\t%s", b.String())
 	}
+}
+
+// maxRows is the number of rows of the larger leaf table.
+func (tl *tableLayout) maxRows() int {
+	n := len(tl.leafRows.vecs)
+	if tl.mixed {
+		n = max(n, len(tl.rows1.vecs))
+	}
+	return n
 }

@@ -43,7 +43,7 @@
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,
- * ARM VFP): the same comparisons and additions in the same order.
+ * ARM VFP): the same comparisons and operations in the same order.
  * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the
  * last bit; comparisons stay exact.
  * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations

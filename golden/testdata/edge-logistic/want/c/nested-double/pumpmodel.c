@@ -5,6 +5,13 @@
 
 #include <math.h>
 
+/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
+ * ignores the pragma and contracts in its GNU modes; the code keeps a
+ * multiplication away from any addition. */
+#if !defined(__GNUC__) || defined(__clang__)
+#pragma STDC FP_CONTRACT OFF
+#endif
+
 const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 	"motor_current_a",
 	"bearing_temp_c"
@@ -59,11 +66,14 @@ void pumpmodel_predict(const double *x, double *out)
 	acc[0] += pumpmodel_tree2(x);
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		if (acc[j] >= 0.0) {
-			out[j] = 1.0 / (1.0 + exp(-acc[j]));
+			acc[j] = 1.0 / (1.0 + exp(-acc[j]));
 		} else {
-			double e = exp(acc[j]);
-			out[j] = e / (1.0 + e);
+			const double e = exp(acc[j]);
+			acc[j] = e / (1.0 + e);
 		}
+	}
+	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+		out[j] = acc[j];
 	}
 }
 

@@ -6,7 +6,7 @@
  * pumpmodel_predict: z = base + leaf_0(x) + ... + leaf_2(x), added in that order,
  * with leaf_t(x), the value vector of the leaf x reaches in tree t;
  * base = {-0.4054651081081644}.
- * Then out = 1/(1+exp(-z)) for z >= 0, exp(z)/(1+exp(z)) for z < 0.
+ * Then out_j = 1/(1+exp(-z_j)) for z_j >= 0, exp(z_j)/(1+exp(z_j)) for z_j < 0.
  * A split sends x left when x[f] <= t (some splits, from float32 models, use <);
  * a missing (NaN) input goes the way the model says for that split.
  *
@@ -26,7 +26,7 @@
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,
  * ARM VFP): the same comparisons and additions in the same order; the
  * transform uses the C library's exp, which may differ from the
- * interpreter's in the last bit.
+ * interpreter's in the last bit (every output within 8.88e-16 of it).
  * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the
  * last bit; comparisons stay exact.
  * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations

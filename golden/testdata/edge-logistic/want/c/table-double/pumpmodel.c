@@ -3,9 +3,15 @@
 
 #include "pumpmodel.h"
 
+#include <math.h>
 #include <stdint.h>
 
-#include <math.h>
+/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
+ * ignores the pragma and contracts in its GNU modes; the code keeps a
+ * multiplication away from any addition. */
+#if !defined(__GNUC__) || defined(__clang__)
+#pragma STDC FP_CONTRACT OFF
+#endif
 
 const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 	"motor_current_a",
@@ -75,11 +81,14 @@ void pumpmodel_predict(const double *x, double *out)
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		if (acc[j] >= 0.0) {
-			out[j] = 1.0 / (1.0 + exp(-acc[j]));
+			acc[j] = 1.0 / (1.0 + exp(-acc[j]));
 		} else {
-			double e = exp(acc[j]);
-			out[j] = e / (1.0 + e);
+			const double e = exp(acc[j]);
+			acc[j] = e / (1.0 + e);
 		}
+	}
+	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+		out[j] = acc[j];
 	}
 }
 
@@ -297,11 +306,14 @@ void pumpmodel_predict_batch(const double *x, size_t n, double *outs)
 			double *const out = o;
 			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 				if (acc[j] >= 0.0) {
-					out[j] = 1.0 / (1.0 + exp(-acc[j]));
+					acc[j] = 1.0 / (1.0 + exp(-acc[j]));
 				} else {
-					double e = exp(acc[j]);
-					out[j] = e / (1.0 + e);
+					const double e = exp(acc[j]);
+					acc[j] = e / (1.0 + e);
 				}
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				out[j] = acc[j];
 			}
 		}
 	}

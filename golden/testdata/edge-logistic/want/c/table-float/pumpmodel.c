@@ -3,9 +3,15 @@
 
 #include "pumpmodel.h"
 
+#include <math.h>
 #include <stdint.h>
 
-#include <math.h>
+/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
+ * ignores the pragma and contracts in its GNU modes; the code keeps a
+ * multiplication away from any addition. */
+#if !defined(__GNUC__) || defined(__clang__)
+#pragma STDC FP_CONTRACT OFF
+#endif
 
 const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 	"motor_current_a",
@@ -75,11 +81,14 @@ void pumpmodel_predict(const float *x, float *out)
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		if (acc[j] >= 0.0f) {
-			out[j] = 1.0f / (1.0f + expf(-acc[j]));
+			acc[j] = 1.0f / (1.0f + expf(-acc[j]));
 		} else {
-			float e = expf(acc[j]);
-			out[j] = e / (1.0f + e);
+			const float e = expf(acc[j]);
+			acc[j] = e / (1.0f + e);
 		}
+	}
+	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+		out[j] = acc[j];
 	}
 }
 
@@ -297,11 +306,14 @@ void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
 			float *const out = o;
 			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 				if (acc[j] >= 0.0f) {
-					out[j] = 1.0f / (1.0f + expf(-acc[j]));
+					acc[j] = 1.0f / (1.0f + expf(-acc[j]));
 				} else {
-					float e = expf(acc[j]);
-					out[j] = e / (1.0f + e);
+					const float e = expf(acc[j]);
+					acc[j] = e / (1.0f + e);
 				}
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				out[j] = acc[j];
 			}
 		}
 	}

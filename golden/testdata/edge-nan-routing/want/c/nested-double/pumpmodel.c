@@ -3,6 +3,14 @@
 
 #include "pumpmodel.h"
 
+
+/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
+ * ignores the pragma and contracts in its GNU modes; the code keeps a
+ * multiplication away from any addition. */
+#if !defined(__GNUC__) || defined(__clang__)
+#pragma STDC FP_CONTRACT OFF
+#endif
+
 const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 	"a",
 	"b"
