@@ -26,11 +26,57 @@ func Check(p *Program) error {
 	if len(p.Trees) == 0 {
 		return fmt.Errorf("no trees")
 	}
+	f32 := false
+	switch p.Accumulate {
+	case "", forest.Float64:
+	case forest.Float32:
+		f32 = true
+		for j, b := range p.BaseScore {
+			if !isFloat32(b) {
+				return fmt.Errorf("base score %d (%v) is not a float32 value under float32 accumulation", j, b)
+			}
+		}
+	default:
+		return fmt.Errorf("unknown accumulate %q", p.Accumulate)
+	}
+	if s := p.TransformScale; math.IsNaN(s) || math.IsInf(s, 0) {
+		return fmt.Errorf("transform scale %v", s)
+	}
+	switch p.CategoryMatch {
+	case "", forest.MatchFloor, forest.MatchTruncate, forest.MatchExact:
+	default:
+		return fmt.Errorf("unknown category match %q", p.CategoryMatch)
+	}
+	if p.CategoryRound32 && p.Compare != Double {
+		return fmt.Errorf("set splits round to float32 in a %v program", p.Compare)
+	}
+	if p.HasMissingValue {
+		lo, hi := p.MissingLo, p.MissingHi
+		if math.IsNaN(lo) || math.IsNaN(hi) || lo > hi {
+			return fmt.Errorf("missing band [%v, %v]", lo, hi)
+		}
+		if p.Compare == Single && !(isFloat32(lo) && isFloat32(hi)) {
+			return fmt.Errorf("missing band [%v, %v] is not of float32 values in a single-precision program", lo, hi)
+		}
+	}
+	if z := p.ZeroBound; !(z >= 0) || math.IsInf(z, 0) || p.Compare == Single && !isFloat32(z) {
+		return fmt.Errorf("zero bound %v", z)
+	}
 	nf := len(p.Features)
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
 		if len(t.Nodes) == 0 {
 			return fmt.Errorf("tree %d: no nodes", t.Source)
+		}
+		width := k
+		if t.HasOutput {
+			if t.Output < 0 || t.Output >= k {
+				return fmt.Errorf("tree %d: output %d out of range", t.Source, t.Output)
+			}
+			if p.Combine == forest.Vote {
+				return fmt.Errorf("tree %d: a tree of one output in a vote program", t.Source)
+			}
+			width = 1
 		}
 		parents := make([]int32, len(t.Nodes))
 		for i := range parents {
@@ -51,11 +97,21 @@ func Check(p *Program) error {
 				if n.Right != -1 {
 					return at("leaf with a right child")
 				}
-				if len(n.Value) != k {
-					return at("leaf vector has %d entries, want %d", len(n.Value), k)
+				if len(n.Value) != width {
+					return at("leaf vector has %d entries, want %d", len(n.Value), width)
 				}
 				if n.Feature != -1 {
 					return at("leaf tests feature %d", n.Feature)
+				}
+				if n.ZeroMissing || n.Categories != nil {
+					return at("leaf with split data")
+				}
+				if f32 {
+					for _, v := range n.Value {
+						if !isFloat32(v) {
+							return at("leaf value %v is not a float32 value under float32 accumulation", v)
+						}
+					}
 				}
 				continue
 			}
@@ -71,13 +127,23 @@ func Check(p *Program) error {
 			if n.Op != LE && n.Op != LT {
 				return at("unknown op %d", n.Op)
 			}
+			if n.Categories != nil {
+				if n.Op != LE || n.Threshold != 0 {
+					return at("set split with op %v and threshold %v", n.Op, n.Threshold)
+				}
+				for j, c := range n.Categories {
+					if c < 0 || j > 0 && c <= n.Categories[j-1] {
+						return at("categories not sorted, distinct and non-negative at %d", c)
+					}
+				}
+			}
 			if math.IsNaN(n.Threshold) || math.IsInf(n.Threshold, 0) {
 				return at("threshold %v", n.Threshold)
 			}
 			if p.Compare == Single && float64(float32(n.Threshold)) != n.Threshold {
 				return at("threshold %v is not a float32 value in a single-precision program", n.Threshold)
 			}
-			if p.Compare == Round32 && n.Op != LE {
+			if p.Compare == Round32 && n.Op != LE && n.Categories == nil {
 				return at("op %v before the float32 pass", n.Op)
 			}
 			for _, c := range [2]int32{n.Left, n.Right} {
@@ -93,3 +159,6 @@ func Check(p *Program) error {
 	}
 	return nil
 }
+
+// isFloat32 reports whether v is exactly a float32 value (±Inf included).
+func isFloat32(v float64) bool { return float64(float32(v)) == v }

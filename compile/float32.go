@@ -17,6 +17,18 @@ import "math"
 //     higher; at m, to whichever of the two has an even significand. So the
 //     test is x <= m when t32's significand is even and x < m when odd.
 //
+// The missing tests are intervals and move the same way: for float64
+// inputs the missing band [m, m] of a float32 model becomes Round32Range(m),
+// every float64 that rounds to m (none when m is no float32, and then the
+// band is dropped), and the zero bound z becomes the top of
+// Round32Range(Floor32(z)); for float32 inputs the band shrinks to the
+// float32 values inside it and the zero bound to Floor32(z). Set splits of
+// a float32 model keep their categories: in the float64-input form they
+// are marked CategoryRound32 (a target rounds the input to float32 before
+// taking its category: the category edges of round32(x) are not those of
+// x, and no shift of the lists would make them so); in the float32-input
+// form the input is already the rounded value.
+//
 // A float64 model compiled for float32 inputs gets the same Single form,
 // which is exact for every float32 input (narrowing the input is the
 // target's choice, not this pass's).
@@ -26,23 +38,74 @@ func float32Compare(p *Program) {
 		for ti := range p.Trees {
 			for i := range p.Trees[ti].Nodes {
 				n := &p.Trees[ti].Nodes[i]
-				if !n.IsLeaf() {
+				switch {
+				case n.IsSetSplit():
+					p.CategoryRound32 = true
+				case !n.IsLeaf():
 					n.Op, n.Threshold = Midpoint32(n.Threshold)
 				}
 			}
 		}
+		if lo, hi, ok := band32(p); ok {
+			p.MissingLo, _ = Round32Range(lo)
+			_, p.MissingHi = Round32Range(hi)
+		}
+		_, p.ZeroBound = Round32Range(Floor32(p.ZeroBound))
 		p.Compare = Double
 	case p.SingleInputs && p.Compare != Single:
 		for ti := range p.Trees {
 			for i := range p.Trees[ti].Nodes {
 				n := &p.Trees[ti].Nodes[i]
-				if !n.IsLeaf() {
+				if !n.IsLeaf() && !n.IsSetSplit() {
 					n.Op, n.Threshold = Single32(n.Op, n.Threshold)
 				}
 			}
 		}
+		if lo, hi, ok := band32(p); ok {
+			p.MissingLo, p.MissingHi = float64(lo), float64(hi)
+		}
+		p.ZeroBound = float64(Floor32(p.ZeroBound))
+		p.CategoryRound32 = false // a float32 input is its own rounding
 		p.Compare = Single
 	}
+}
+
+// band32 narrows the missing band to the float32 values inside it, which
+// are all a rounded or float32 input can be; it drops the band (ok false)
+// when it holds none.
+func band32(p *Program) (lo, hi float32, ok bool) {
+	if !p.HasMissingValue {
+		return 0, 0, false
+	}
+	lo, hi = -Floor32(-p.MissingLo), Floor32(p.MissingHi)
+	p.HasMissingValue = lo <= hi
+	return lo, hi, p.HasMissingValue
+}
+
+// Round32Range is the closed interval of float64 values x with
+// round32(x) == v (so both zeros when v is zero): its ends sit at or next
+// to the midpoints between v and its float32 neighbours, on the side
+// round-half-even sends to v; −Inf's starts at −Inf and +Inf's ends there.
+func Round32Range(v float32) (lo, hi float64) {
+	if math.IsInf(float64(v), -1) {
+		_, m := Midpoint32(float64(v)) // x <= m rounds to −Inf: −Inf's significand is even
+		return math.Inf(-1), m
+	}
+	op, m := Midpoint32(float64(v)) // round32(x) <= v  ⇔  x op m
+	hi = m
+	if op == LT {
+		hi = math.Nextafter(m, math.Inf(-1))
+	}
+	below := math.Nextafter32(v, float32(math.Inf(-1)))
+	if v == 0 {
+		below = -math.SmallestNonzeroFloat32 // the float32 below both zeros
+	}
+	op, m = Midpoint32(float64(below)) // round32(x) < v  ⇔  x op m
+	lo = m
+	if op == LE {
+		lo = math.Nextafter(m, math.Inf(1))
+	}
+	return lo, hi
 }
 
 // Floor32 is the largest float32 not above t (possibly -Inf).

@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"github.com/stretchr/testify/require"
+
 	"sawmill/forest"
 )
 
@@ -105,4 +107,123 @@ func TestSingle32Exhaustive(t *testing.T) {
 			}
 		}
 	}
+}
+
+// The missing band and the zero bound in the float64-input form: for every
+// float32 value v (zeros, subnormals, the ends of float32's range, ±Inf,
+// random values, the zero_missing bound), every float64 near v, near the
+// ends of Round32Range(v) and near the midpoints to v's neighbours has
+// round32(x) == v exactly when it lies in Round32Range(v) (IEEE 754-2019
+// 4.3.1, ties to even, as Go's float32 conversion does). The zero bound the
+// pass derives is checked the same way against |round32(x)| <= bound.
+func TestRound32RangeExhaustive(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	vs := []float32{0, float32(math.Copysign(0, -1)), 1, -1, -999, 0x1p-149, -0x1p-149, 0x1p-126, 16777216,
+		math.MaxFloat32, -math.MaxFloat32, float32(math.Inf(1)), float32(math.Inf(-1)), float32(forest.ZeroMissingBound)}
+	for _, th := range thresholds32(rng) {
+		if v := float32(th); !math.IsNaN(float64(v)) {
+			vs = append(vs, v)
+		}
+	}
+	checked := 0
+	for _, v := range vs {
+		lo, hi := Round32Range(v)
+		var xs []float64
+		down := math.Nextafter32(v, float32(math.Inf(-1)))
+		up := math.Nextafter32(v, float32(math.Inf(1)))
+		for _, c := range []float64{float64(v), lo, hi, float64(down)/2 + float64(v)/2, float64(up)/2 + float64(v)/2} {
+			if !math.IsInf(c, 0) && !math.IsNaN(c) {
+				xs = append(xs, walk64(c, 30)...)
+			}
+		}
+		xs = append(xs, math.Inf(1), math.Inf(-1), math.MaxFloat64, -math.MaxFloat64)
+		for _, x := range xs {
+			want := float32(x) == v
+			got := lo <= x && x <= hi
+			if got != want {
+				t.Fatalf("v=%v: x=%v (%#x): round32(x)==v is %v, x in [%v, %v] is %v", v, x, math.Float64bits(x), want, lo, hi, got)
+			}
+			checked++
+		}
+	}
+	for _, z := range []float64{forest.ZeroMissingBound, 0, 1e-40, 1, 0.1} {
+		p := &Program{Compare: Round32, ZeroBound: z}
+		p.Trees = []Tree{{Nodes: []Node{{Feature: -1, Left: -1, Right: -1}}}}
+		float32Compare(p)
+		for _, c := range []float64{z, p.ZeroBound, -z, -p.ZeroBound} {
+			for _, x := range walk64(c, 30) {
+				want := math.Abs(forest.Round32(x)) <= z
+				got := -p.ZeroBound <= x && x <= p.ZeroBound
+				if got != want {
+					t.Fatalf("zero bound %v: x=%v: |round32(x)| <= bound is %v, the pass's test %v is %v", z, x, want, p.ZeroBound, got)
+				}
+				checked++
+			}
+		}
+	}
+	t.Logf("%d (value, input) pairs agree", checked)
+}
+
+// Set splits, zero_missing and the missing band through the float32 pass:
+// for a float32-input model, every float64 near a category's edges (its
+// integer, the next, the midpoints to their float32 neighbours, around 2^23,
+// 2^24 and 2^31), near the zero bound and near the missing value routes in
+// the float64-input form (Double, CategoryRound32) and, rounded, in the
+// float32-input form (Single) exactly as the interpreter routes it, under
+// every category rule.
+func TestFloat32RewriteRoutesExhaustive(t *testing.T) {
+	cats := []int32{0, 1, 2, 3, 1<<23 - 1, 1 << 23, 1<<23 + 1, 1<<24 - 1, 1 << 24, 1<<24 + 1, 1<<24 + 2, 1<<31 - 128, 1<<31 - 1}
+	var xs []float64
+	for _, c := range append(cats, -1, -2, 4, 1<<23+2, 1<<24+3) {
+		for _, v := range []float64{float64(c), float64(c) + 1, float64(c) - 0.5, float64(c) + 0.5} {
+			xs = append(xs, walk64(v, 12)...)
+			v32 := float32(v)
+			for _, u := range []float32{math.Nextafter32(v32, float32(math.Inf(-1))), v32, math.Nextafter32(v32, float32(math.Inf(1)))} {
+				xs = append(xs, walk64(float64(u), 3)...)
+				m := float64(u)/2 + float64(math.Nextafter32(u, float32(math.Inf(1))))/2
+				xs = append(xs, walk64(m, 3)...)
+			}
+		}
+	}
+	for _, z := range []float64{forest.ZeroMissingBound, -forest.ZeroMissingBound, -999, 0} {
+		xs = append(xs, walk64(z, 20)...)
+		lo, hi := Round32Range(float32(z))
+		xs = append(xs, walk64(lo, 5)...)
+		xs = append(xs, walk64(hi, 5)...)
+	}
+	xs = append(xs, math.NaN(), math.Inf(1), math.Inf(-1), math.MaxFloat64, 5e-324, -5e-324)
+	checked := 0
+	for _, m := range []forest.CategoryMatch{forest.MatchFloor, forest.MatchTruncate, forest.MatchExact} {
+		for _, mv := range []float64{-999, 0} {
+			f := &forest.Forest{Task: forest.Regression, Features: []string{"x"}, InputPrecision: forest.Float32,
+				Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0}, CategoryMatch: m,
+				HasMissingValue: true, MissingValue: mv}
+			// a set split on x, whose right child is a zero_missing split on x
+			f.Trees = []forest.Tree{{
+				Feature: []int{0, -1, 0, -1, -1}, Threshold: []float64{0, 0, 0.5, 0, 0},
+				Left: []int{1, -1, 3, -1, -1}, Right: []int{2, -1, 4, -1, -1},
+				MissingLeft: []bool{false, false, true, false, false}, Value: []float64{0, 1, 0, 2, 3},
+				Categories: [][]int32{cats, nil, nil, nil, nil}, ZeroMissing: []bool{false, false, true, false, false},
+			}}
+			require.NoError(t, f.Validate("set"))
+			want, got := []float64{0}, []float64{0}
+			for _, single := range []bool{false, true} {
+				p, _, err := Compile(f, Options{SingleInputs: single, Skip: []string{"prune"}})
+				require.NoError(t, err)
+				require.Equal(t, !single, p.CategoryRound32)
+				for _, x := range xs {
+					if single {
+						x = float64(float32(x))
+					}
+					f.Predict([]float64{x}, want)
+					Eval(p, []float64{x}, got)
+					if want[0] != got[0] {
+						t.Fatalf("match %s, missing value %v, single %v: x=%v (%#x): interpreter %v, program %v\n%s", m, mv, single, x, math.Float64bits(x), want[0], got[0], p)
+					}
+					checked++
+				}
+			}
+		}
+	}
+	t.Logf("%d inputs route alike", checked)
 }

@@ -6,8 +6,9 @@ import (
 )
 
 // fold replaces a split whose two subtrees are identical by its left subtree.
-// Identical means the same shape, features, comparisons, missing routing,
-// and bit-identical thresholds and leaf values, so whichever way a row goes,
+// Identical means the same shape, features, comparisons, missing routing
+// (zero_missing included), categories of set splits, and bit-identical
+// thresholds and leaf values, so whichever way a row goes,
 // it reaches an equal leaf: exact. Subtrees are numbered bottom-up by their
 // content (hash-consing), so a split that folds counts as its child for its
 // ancestors, and chains of folds collapse in one pass.
@@ -40,10 +41,20 @@ func foldTree(nodes []Node) {
 				continue
 			}
 			key = append(key, 'S', byte(n.Op))
+			flags := byte(0)
 			if n.MissingLeft {
-				key = append(key, 1)
-			} else {
-				key = append(key, 0)
+				flags |= 1
+			}
+			if n.ZeroMissing {
+				flags |= 2
+			}
+			if n.IsSetSplit() {
+				flags |= 4
+			}
+			key = append(key, flags)
+			key = binary.LittleEndian.AppendUint32(key, uint32(len(n.Categories)))
+			for _, c := range n.Categories {
+				key = binary.LittleEndian.AppendUint32(key, uint32(c))
 			}
 			key = binary.LittleEndian.AppendUint64(key, uint64(n.Feature))
 			key = binary.LittleEndian.AppendUint64(key, math.Float64bits(n.Threshold))

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 
 	"sawmill/forest"
 )
@@ -50,10 +51,128 @@ func randomForest(rng *rand.Rand) *forest.Forest {
 	for ti := 0; ti < 1+rng.IntN(4); ti++ {
 		f.Trees = append(f.Trees, randomTree(rng, nf, k, pool))
 	}
+	if rng.IntN(2) == 0 {
+		addV2(rng, f, pool)
+	}
 	if err := f.Validate("random"); err != nil {
 		panic(err)
 	}
 	return f
+}
+
+// addV2 gives a random forest version 2 constructs, each with some
+// chance: more outputs for a regression model, trees of one output, set
+// splits with random lists (small, at the top of the range, at float32's
+// integer limit), zero_missing splits, a category rule, a missing value,
+// float32 accumulation, every transform and a scale.
+func addV2(rng *rand.Rand, f *forest.Forest, pool []float64) {
+	if f.Task == forest.Regression && rng.IntN(2) == 0 {
+		k := 2 + rng.IntN(2)
+		f.Outputs = k
+		f.BaseScore = make([]float64, k)
+		for j := range f.BaseScore {
+			f.BaseScore[j] = float64(rng.IntN(9)-4) / 8
+		}
+		for ti := range f.Trees {
+			t := &f.Trees[ti]
+			old := t.Value
+			t.Value = nil
+			for i := range t.Left {
+				for j := 0; j < k; j++ {
+					t.Value = append(t.Value, old[i]+float64(j)/4)
+				}
+			}
+		}
+	}
+	k := f.NumOutputs()
+	if f.Combine != forest.Vote && rng.IntN(2) == 0 {
+		for ti := range f.Trees {
+			if rng.IntN(3) == 0 {
+				continue
+			}
+			t := &f.Trees[ti]
+			o := (ti + rng.IntN(2)) % k
+			var v []float64
+			for i := range t.Left {
+				v = append(v, t.Value[i*k+o])
+			}
+			t.HasOutput, t.Output, t.Value = true, o, v
+		}
+		if f.Combine == forest.Average {
+			for j := 0; j < k; j++ { // every output needs a tree to average
+				f.Trees = append(f.Trees, forest.Tree{Feature: []int{-1}, Threshold: []float64{0}, Left: []int{-1},
+					Right: []int{-1}, MissingLeft: []bool{false}, Value: []float64{float64(j) / 2}, HasOutput: true, Output: j})
+			}
+		}
+	}
+	cats := rng.IntN(2) == 0
+	zeros := rng.IntN(2) == 0
+	for ti := range f.Trees {
+		t := &f.Trees[ti]
+		for i, l := range t.Left {
+			if l == -1 {
+				continue
+			}
+			if cats && rng.IntN(2) == 0 {
+				if t.Categories == nil {
+					t.Categories = make([][]int32, len(t.Left))
+				}
+				t.Categories[i] = randomCategories(rng)
+				t.Threshold[i] = 0
+			}
+			if zeros && rng.IntN(3) == 0 {
+				if t.ZeroMissing == nil {
+					t.ZeroMissing = make([]bool, len(t.Left))
+				}
+				t.ZeroMissing[i] = true
+			}
+		}
+	}
+	f.CategoryMatch = []forest.CategoryMatch{"", forest.MatchFloor, forest.MatchTruncate, forest.MatchExact}[rng.IntN(4)]
+	if rng.IntN(3) == 0 {
+		f.HasMissingValue = true
+		f.MissingValue = []float64{0, -999, 1, pool[rng.IntN(len(pool))]}[rng.IntN(4)]
+	}
+	if rng.IntN(2) == 0 {
+		f.Accumulate = forest.Float32
+		if rng.IntN(2) == 0 {
+			for j, b := range f.BaseScore {
+				f.BaseScore[j] = forest.Round32(b)
+			}
+		}
+	}
+	trs := []forest.Transform{forest.NoTransform, forest.Exp, forest.LogisticEach, forest.Normalize}
+	if k > 1 {
+		trs = append(trs, forest.Softmax)
+	} else if f.Task == forest.Regression {
+		trs = append(trs, forest.Logistic)
+	}
+	// a binary classifier's logistic fixes its one output; keep it
+	if f.Transform != forest.Logistic && (f.Task == forest.Regression || rng.IntN(2) == 0) {
+		f.Transform = trs[rng.IntN(len(trs))]
+	}
+	if rng.IntN(2) == 0 {
+		f.TransformScale = []float64{0.5, -1.5, 1e-3, 3, 1.0000001, 1e-50, 1e50}[rng.IntN(7)]
+	}
+}
+
+// randomCategories is a sorted list of distinct categories: small ones,
+// ones at float32's integer limit (2^24), at the top of the range, or none.
+func randomCategories(rng *rand.Rand) []int32 {
+	var c []int32
+	switch rng.IntN(5) {
+	case 0:
+		return []int32{}
+	case 1:
+		c = []int32{1 << 24, 1<<24 + 1, 1<<24 + 2}
+	case 2:
+		c = []int32{0, 1<<31 - 2, 1<<31 - 1}
+	}
+	for i := 0; i < 1+rng.IntN(4); i++ {
+		c = append(c, int32(rng.IntN(8)))
+	}
+	slices.Sort(c)
+	return slices.Compact(c)
 }
 
 func thresholdPool(rng *rand.Rand) []float64 {
@@ -112,7 +231,17 @@ func randomRows(rng *rand.Rand, f *forest.Forest, n int) [][]float64 {
 			}
 		}
 	}
-	ts = append(ts, 0)
+	ts = append(ts, 0, forest.ZeroMissingBound, -forest.ZeroMissingBound, 0x1p-150, -1, -0.5, 0.5, 2.5, 1<<24+1, 1<<31, 1<<31-1, 1<<31-64)
+	if f.HasMissingValue {
+		ts = append(ts, f.MissingValue)
+	}
+	for _, t := range f.Trees {
+		for _, cs := range t.Categories {
+			for _, c := range cs {
+				ts = append(ts, float64(c), float64(c)+1, float64(c)-0.5)
+			}
+		}
+	}
 	rows := make([][]float64, n)
 	for r := range rows {
 		x := make([]float64, len(f.Features))

@@ -11,21 +11,9 @@ import (
 
 // Lower turns a validated forest into a Program with the same meaning: the
 // reachable nodes of each tree in preorder, nothing else changed. It walks
-// with an explicit stack, so any depth is fine. A model that Unsupported
-// rejects is a caller's bug: Lower panics rather than return a program that
-// means something else.
+// with an explicit stack, so any depth is fine. Every construct of format
+// version 2 is carried (see the Program's fields).
 func Lower(f *forest.Forest) *Program {
-	if err := Unsupported(f); err != nil {
-		panic("BUG: compile.Lower: call compile.Unsupported first: " + err.Error())
-	}
-	return lower(f)
-}
-
-// lower is Lower without the check. For a model of version 2 constructs the
-// result keeps only the tree shapes (set splits read as numeric splits at 0,
-// per-output trees' leaves of length 1): LeafRows uses it to walk paths and
-// keeps only rows that the interpreter confirms.
-func lower(f *forest.Forest) *Program {
 	var buf bytes.Buffer
 	if err := f.Encode(&buf); err != nil {
 		panic("BUG: compile.Lower: a validated forest does not encode: " + err.Error())
@@ -47,6 +35,22 @@ func lower(f *forest.Forest) *Program {
 	if f.InputPrecision == forest.Float32 {
 		p.Compare = Round32
 	}
+	p.ZeroBound = forest.ZeroMissingBound
+	if f.Float32Accumulate() {
+		p.Accumulate = forest.Float32
+		for j, b := range p.BaseScore {
+			p.BaseScore[j] = forest.Round32(b) // every use rounds it first
+		}
+	}
+	if s := f.Scale(); s != 1 {
+		p.TransformScale = s
+	}
+	if f.CategoryMatch != "" && f.CategoryMatch != forest.MatchFloor {
+		p.CategoryMatch = f.CategoryMatch
+	}
+	if f.HasMissingValue {
+		p.HasMissingValue, p.MissingLo, p.MissingHi = true, f.MissingValue, f.MissingValue
+	}
 	for _, name := range f.Features {
 		p.Features = append(p.Features, Feature{Name: name, Used: true})
 	}
@@ -57,7 +61,7 @@ func lower(f *forest.Forest) *Program {
 }
 
 func lowerTree(t *forest.Tree, ti, k int) Tree {
-	out := Tree{Source: ti}
+	out := Tree{Source: ti, HasOutput: t.HasOutput, Output: t.Output}
 	type item struct {
 		src    int
 		parent int32 // index in out.Nodes, -1 for the root
@@ -80,8 +84,16 @@ func lowerTree(t *forest.Tree, ti, k int) Tree {
 				Value: append([]float64(nil), t.Leaf(it.src, k)...)})
 			continue
 		}
-		out.Nodes = append(out.Nodes, Node{Feature: t.Feature[it.src], Op: LE, Threshold: t.Threshold[it.src],
-			MissingLeft: t.MissingLeft[it.src], ID: int32(it.src)})
+		n := Node{Feature: t.Feature[it.src], Op: LE, Threshold: t.Threshold[it.src],
+			MissingLeft: t.MissingLeft[it.src], ID: int32(it.src)}
+		if t.ZeroMissing != nil {
+			n.ZeroMissing = t.ZeroMissing[it.src]
+		}
+		if t.IsSetSplit(it.src) {
+			n.Threshold = 0
+			n.Categories = append([]int32{}, t.Categories[it.src]...)
+		}
+		out.Nodes = append(out.Nodes, n)
 		// Right first so that the left subtree comes next in preorder.
 		stack = append(stack, item{t.Right[it.src], idx, false}, item{t.Left[it.src], idx, true})
 	}

@@ -67,12 +67,8 @@ type Stat struct {
 	SplitsRemoved int
 }
 
-// Compile lowers a validated forest and runs the pass pipeline. A model with
-// a construct the compiler does not implement yet is refused (Unsupported).
+// Compile lowers a validated forest and runs the pass pipeline.
 func Compile(f *forest.Forest, o Options) (*Program, []Stat, error) {
-	if err := Unsupported(f); err != nil {
-		return nil, nil, err
-	}
 	p := Lower(f)
 	stats, err := Run(p, o)
 	if err != nil {

@@ -122,6 +122,90 @@ func TestPassTables(t *testing.T) {
   1 #1 leaf -0
   2 #2 leaf 0
 `},
+		{"set member bounds a numeric split", "prune", hdr + `tree 0
+  0 #0 x0 in {2,3} missing=right ? 1 : 4
+  1 #1 x0 <= 4 missing=right ? 2 : 3
+  2 #2 leaf 1
+  3 #3 leaf 2
+  4 #4 x0 <= 4 missing=right ? 5 : 6
+  5 #5 leaf 3
+  6 #6 leaf 4
+`, hdr + `tree 0
+  0 #0 x0 in {2,3} missing=right ? 1 : 2
+  1 #2 leaf 1
+  2 #4 x0 <= 4 missing=right ? 3 : 4
+  3 #5 leaf 3
+  4 #6 leaf 4
+`},
+		{"empty set sends everything right", "prune", hdr + `tree 0
+  0 #0 x0 <= 0 missing=right ? 1 : 4
+  1 #1 x0 in {} missing=left ? 2 : 3
+  2 #2 leaf 1
+  3 #3 leaf 2
+  4 #4 leaf 3
+`, hdr + `tree 0
+  0 #0 x0 <= 0 missing=right ? 1 : 2
+  1 #3 leaf 2
+  2 #4 leaf 3
+`},
+		{"one listed category decides a set split", "prune", hdr + `tree 0
+  0 #0 x0 <= 3.5 missing=right ? 1 : 2
+  1 #1 leaf 0
+  2 #2 x0 <= 3.9 missing=left ? 3 : 6
+  3 #3 x0 in {3} missing=left ? 4 : 5
+  4 #4 leaf 1
+  5 #5 leaf 2
+  6 #6 leaf 3
+`, hdr + `tree 0
+  0 #0 x0 <= 3.5 missing=right ? 1 : 2
+  1 #1 leaf 0
+  2 #2 x0 <= 3.9 missing=left ? 3 : 4
+  3 #4 leaf 1
+  4 #6 leaf 3
+`},
+		{"zero band far away: decided", "prune", hdr + `tree 0
+  0 #0 x0 <= 1 missing=left ? 1 : 2
+  1 #1 leaf 0
+  2 #2 x0 <= 0.5 missing=left+zero ? 3 : 4
+  3 #3 leaf 1
+  4 #4 leaf 2
+`, hdr + `tree 0
+  0 #0 x0 <= 1 missing=left ? 1 : 2
+  1 #1 leaf 0
+  2 #4 leaf 2
+`},
+		{"zero band reaches the missing side", "prune", hdr + `tree 0
+  0 #0 x0 <= 1 missing=left+zero ? 1 : 2
+  1 #1 x0 <= 1 missing=right ? 3 : 4
+  2 #2 x0 <= -1 missing=right ? 5 : 6
+  3 #3 leaf 1
+  4 #4 leaf 2
+  5 #5 leaf 3
+  6 #6 leaf 4
+`, hdr + `tree 0
+  0 #0 x0 <= 1 missing=left+zero ? 1 : 4
+  1 #1 x0 <= 1 missing=right ? 2 : 3
+  2 #3 leaf 1
+  3 #4 leaf 2
+  4 #6 leaf 4
+`},
+		{"set splits with other categories do not fold", "fold", hdr + `tree 0
+  0 #0 x0 <= 1 missing=right ? 1 : 4
+  1 #1 x1 in {1,2} missing=right ? 2 : 3
+  2 #2 leaf 1
+  3 #3 leaf 2
+  4 #4 x1 in {1,3} missing=right ? 5 : 6
+  5 #5 leaf 1
+  6 #6 leaf 2
+`, hdr + `tree 0
+  0 #0 x0 <= 1 missing=right ? 1 : 4
+  1 #1 x1 in {1,2} missing=right ? 2 : 3
+  2 #2 leaf 1
+  3 #3 leaf 2
+  4 #4 x1 in {1,3} missing=right ? 5 : 6
+  5 #5 leaf 1
+  6 #6 leaf 2
+`},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -186,7 +270,11 @@ func TestPipelineExact(t *testing.T) {
 				}
 				f.Predict(x32, want)
 				Eval(ps, x32, got)
-				require.Equal(t, want, got)
+				for j := range want {
+					if math.Float64bits(want[j]) != math.Float64bits(got[j]) && !(math.IsNaN(want[j]) && math.IsNaN(got[j])) {
+						t.Fatalf("forest %d (Single), row %v, output %d: interpreter %v, program %v\nprogram:\n%s", i, x32, j, want[j], got[j], ps)
+					}
+				}
 			}
 		}
 	}

@@ -17,13 +17,13 @@ import (
 // the lower bound, else 0; NaN when only a missing value reaches the leaf.
 // For float32 models the values are float32 numbers.
 func LeafRows(f *forest.Forest, limit int) [][]float64 {
-	p := lower(f)
+	p := Lower(f)
 	f32 := p.Compare == Round32
 	var rows [][]float64
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
 		src := &f.Trees[t.Source]
-		walkBoxes(t.Nodes, len(p.Features), f32, func(leaf int, box []span) bool {
+		walkBoxes(t.Nodes, len(p.Features), rulesOf(p), func(leaf int, box []span) bool {
 			x := make([]float64, len(box))
 			for j, s := range box {
 				x[j] = s.pick(f32)
@@ -84,7 +84,7 @@ func (s span) pick(f32 bool) float64 {
 // walkBoxes visits every leaf reachable under the path facts with the box
 // of spans, one per feature, valid during the call. visit returns false to
 // stop. The walk is depth-first with an undo log, no recursion.
-func walkBoxes(nodes []Node, nf int, round32 bool, visit func(leaf int, box []span) bool) {
+func walkBoxes(nodes []Node, nf int, r rules, visit func(leaf int, box []span) bool) {
 	st := make([]span, nf)
 	for i := range st {
 		st[i] = fullSpan()
@@ -111,7 +111,7 @@ func walkBoxes(nodes []Node, nf int, round32 bool, visit func(leaf int, box []sp
 		if it.from >= 0 {
 			n := &nodes[it.from]
 			log = append(log, undo{n.Feature, st[n.Feature]})
-			st[n.Feature].narrow(n.Op, effective(n.Threshold, round32), n.MissingLeft, it.left)
+			r.narrow(&st[n.Feature], n, it.left)
 		}
 		n := &nodes[it.node]
 		if n.IsLeaf() {
@@ -127,8 +127,10 @@ func walkBoxes(nodes []Node, nf int, round32 bool, visit func(leaf int, box []sp
 
 // ThresholdRows returns, for every reachable split of f, rows that put its
 // feature at the threshold, at its float64 neighbours, at its float32
-// rounding and that value's float32 neighbours, and at a missing value; the
-// other features are 0. At most limit rows (limit <= 0: all).
+// rounding and that value's float32 neighbours, and at a missing value (at a
+// set split: at the edges of its first categories, and at negative values;
+// at a zero_missing split: at the edges of the zero band; with a
+// missing_value: at its edges); the other features are 0. At most limit rows (limit <= 0: all).
 func ThresholdRows(f *forest.Forest, limit int) [][]float64 {
 	var rows [][]float64
 	nf := len(f.Features)
@@ -138,11 +140,24 @@ func ThresholdRows(f *forest.Forest, limit int) [][]float64 {
 			if t.IsLeaf(i) {
 				continue
 			}
-			th := t.Threshold[i]
-			t32 := float32(th)
-			vals := []float64{th, math.Nextafter(th, math.Inf(-1)), math.Nextafter(th, math.Inf(1)),
-				float64(t32), float64(math.Nextafter32(t32, float32(math.Inf(-1)))),
-				float64(math.Nextafter32(t32, float32(math.Inf(1)))), math.NaN()}
+			vals := append(edges(t.Threshold[i]), math.NaN())
+			if t.IsSetSplit(i) {
+				vals = []float64{math.NaN(), -0.5, -1, math.Copysign(0, -1)}
+				for j, c := range t.Categories[i] {
+					if j == 4 {
+						break
+					}
+					vals = append(vals, edges(float64(c))...)
+					vals = append(vals, float64(c)+0.5, math.Nextafter(float64(c)+1, 0))
+				}
+			}
+			if t.ZeroMissing != nil && t.ZeroMissing[i] {
+				vals = append(vals, edges(forest.ZeroMissingBound)...)
+				vals = append(vals, edges(-forest.ZeroMissingBound)...)
+			}
+			if f.HasMissingValue {
+				vals = append(vals, edges(f.MissingValue)...)
+			}
 			for _, v := range vals {
 				x := make([]float64, nf)
 				x[t.Feature[i]] = v
@@ -154,6 +169,15 @@ func ThresholdRows(f *forest.Forest, limit int) [][]float64 {
 		}
 	}
 	return rows
+}
+
+// edges is v, its float64 neighbours, its float32 rounding and that
+// value's float32 neighbours.
+func edges(v float64) []float64 {
+	v32 := float32(v)
+	return []float64{v, math.Nextafter(v, math.Inf(-1)), math.Nextafter(v, math.Inf(1)),
+		float64(v32), float64(math.Nextafter32(v32, float32(math.Inf(-1)))),
+		float64(math.Nextafter32(v32, float32(math.Inf(1))))}
 }
 
 // reachableNodes lists the nodes reachable from the root in preorder; the

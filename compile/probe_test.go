@@ -19,8 +19,17 @@ func TestLeafRowsCoverage(t *testing.T) {
 		p, _, err := Compile(f, Options{Skip: []string{"fold"}})
 		assert.NoError(t, err)
 		// After pruning, the leaves left are exactly the reachable ones: each
-		// must be hit.
-		assert.Equal(t, p.NumLeaves(), c.LeavesHit, "forest %d", i)
+		// must be hit. With set splits and numbers that count as missing the
+		// analysis over-approximates, so some leaves left may be unreachable.
+		complete := !f.HasMissingValue
+		for _, tr := range f.Trees {
+			complete = complete && tr.Categories == nil && tr.ZeroMissing == nil
+		}
+		if complete {
+			assert.Equal(t, p.NumLeaves(), c.LeavesHit, "forest %d", i)
+		} else {
+			assert.LessOrEqual(t, c.LeavesHit, p.NumLeaves(), "forest %d", i)
+		}
 		all := append(rows, ThresholdRows(f, 0)...)
 		c2 := Cover(f, all)
 		assert.GreaterOrEqual(t, c2.BranchesHit, c.BranchesHit)

@@ -21,14 +21,40 @@ import (
 //	  1 #1 leaf 0.9,0.1,0
 //	  2 #2 leaf 0.2,0.3,0.5
 //
+// Version 2 adds, only where they differ from the defaults, the program
+// keys accumulate=float32, scale=S, match=truncate|exact, catround32=true,
+// missing=LO,HI (the missing band) and zero=Z (the zero bound, default
+// forest.ZeroMissingBound); "tree 4 output=2" for a tree of one output; set
+// splits "x1 in {0,3,7}" in place of "x1 <= t"; and "missing=left+zero" on
+// a zero_missing split.
+//
 // Each node line is its index, its model node id after '#', then either a
 // split or a leaf. Numbers are Go's shortest round-trip form ("-0" kept).
 
 // Format writes p's text form.
 func Format(w io.Writer, p *Program) error {
 	bw := bufio.NewWriter(w)
-	fmt.Fprintf(bw, "program %s outputs=%d combine=%s transform=%s compare=%s base=%s\n",
+	fmt.Fprintf(bw, "program %s outputs=%d combine=%s transform=%s compare=%s base=%s",
 		p.Task, p.NumOutputs, p.Combine, p.Transform, p.Compare, joinFloats(p.BaseScore))
+	if p.Float32Accumulate() {
+		fmt.Fprintf(bw, " accumulate=float32")
+	}
+	if p.Scale() != 1 {
+		fmt.Fprintf(bw, " scale=%s", fmtFloat(p.TransformScale))
+	}
+	if p.CategoryMatch != "" && p.CategoryMatch != forest.MatchFloor {
+		fmt.Fprintf(bw, " match=%s", p.CategoryMatch)
+	}
+	if p.CategoryRound32 {
+		fmt.Fprintf(bw, " catround32=true")
+	}
+	if p.HasMissingValue {
+		fmt.Fprintf(bw, " missing=%s,%s", fmtFloat(p.MissingLo), fmtFloat(p.MissingHi))
+	}
+	if p.ZeroBound != forest.ZeroMissingBound {
+		fmt.Fprintf(bw, " zero=%s", fmtFloat(p.ZeroBound))
+	}
+	fmt.Fprintln(bw)
 	for _, f := range p.Features {
 		used := "unused"
 		if f.Used {
@@ -40,7 +66,11 @@ func Format(w io.Writer, p *Program) error {
 		fmt.Fprintf(bw, "class %s\n", strconv.Quote(c))
 	}
 	for _, t := range p.Trees {
-		fmt.Fprintf(bw, "tree %d\n", t.Source)
+		if t.HasOutput {
+			fmt.Fprintf(bw, "tree %d output=%d\n", t.Source, t.Output)
+		} else {
+			fmt.Fprintf(bw, "tree %d\n", t.Source)
+		}
 		for i, n := range t.Nodes {
 			if n.IsLeaf() {
 				fmt.Fprintf(bw, "  %d #%d leaf %s\n", i, n.ID, joinFloats(n.Value))
@@ -50,8 +80,15 @@ func Format(w io.Writer, p *Program) error {
 			if n.MissingLeft {
 				miss = "left"
 			}
+			if n.ZeroMissing {
+				miss += "+zero"
+			}
+			op, t := n.Op.String(), fmtFloat(n.Threshold)
+			if n.IsSetSplit() {
+				op, t = "in", fmtCategories(n.Categories)
+			}
 			fmt.Fprintf(bw, "  %d #%d x%d %s %s missing=%s ? %d : %d\n",
-				i, n.ID, n.Feature, n.Op, fmtFloat(n.Threshold), miss, n.Left, n.Right)
+				i, n.ID, n.Feature, op, t, miss, n.Left, n.Right)
 		}
 	}
 	return bw.Flush()
@@ -65,6 +102,14 @@ func (p *Program) String() string {
 }
 
 func fmtFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+func fmtCategories(c []int32) string {
+	s := make([]string, len(c))
+	for i, x := range c {
+		s[i] = strconv.Itoa(int(x))
+	}
+	return "{" + strings.Join(s, ",") + "}"
+}
 
 func joinFloats(v []float64) string {
 	s := make([]string, len(v))
@@ -95,6 +140,7 @@ func Parse(text string) (*Program, error) {
 			}
 			p.Task = forest.Task(fs[0])
 			p.Combine, p.Transform, p.Compare = forest.Sum, forest.NoTransform, Double
+			p.ZeroBound = forest.ZeroMissingBound
 			for _, kv := range fs[1:] {
 				k, v, _ := strings.Cut(kv, "=")
 				switch k {
@@ -119,6 +165,28 @@ func Parse(text string) (*Program, error) {
 					default:
 						return nil, where("unknown compare %q", v)
 					}
+				case "accumulate":
+					p.Accumulate = forest.Precision(v)
+				case "scale", "zero":
+					x, err := strconv.ParseFloat(v, 64)
+					if err != nil {
+						return nil, where("%s: %v", k, err)
+					}
+					if k == "scale" {
+						p.TransformScale = x
+					} else {
+						p.ZeroBound = x
+					}
+				case "match":
+					p.CategoryMatch = forest.CategoryMatch(v)
+				case "catround32":
+					p.CategoryRound32 = v == "true"
+				case "missing":
+					b, err := parseFloats(v)
+					if err != nil || len(b) != 2 {
+						return nil, where("missing wants LO,HI, got %q", v)
+					}
+					p.HasMissingValue, p.MissingLo, p.MissingHi = true, b[0], b[1]
 				case "base":
 					b, err := parseFloats(v)
 					if err != nil {
@@ -140,11 +208,18 @@ func Parse(text string) (*Program, error) {
 				p.Features = append(p.Features, Feature{Name: name, Used: strings.TrimSpace(tail) != "unused"})
 			}
 		case "tree":
-			src, err := strconv.Atoi(rest)
+			num, out, hasOut := strings.Cut(rest, " output=")
+			src, err := strconv.Atoi(num)
 			if err != nil {
 				return nil, where("tree: %v", err)
 			}
-			p.Trees = append(p.Trees, Tree{Source: src})
+			t := Tree{Source: src, HasOutput: hasOut}
+			if hasOut {
+				if t.Output, err = strconv.Atoi(out); err != nil {
+					return nil, where("tree output: %v", err)
+				}
+			}
+			p.Trees = append(p.Trees, t)
 		default:
 			if len(p.Trees) == 0 {
 				return nil, where("node before any tree")
@@ -205,11 +280,21 @@ func parseNode(line string, want int) (Node, error) {
 		n.Op = LE
 	case "<":
 		n.Op = LT
+	case "in":
+		if n.Categories, err = parseCategories(fs[4]); err != nil {
+			return Node{}, err
+		}
 	default:
 		return Node{}, fmt.Errorf("unknown op %q", fs[3])
 	}
-	if n.Threshold, err = strconv.ParseFloat(fs[4], 64); err != nil {
-		return Node{}, fmt.Errorf("threshold %q is not a number", fs[4])
+	if fs[3] != "in" {
+		if n.Threshold, err = strconv.ParseFloat(fs[4], 64); err != nil {
+			return Node{}, fmt.Errorf("threshold %q is not a number", fs[4])
+		}
+	}
+	if side, ok := strings.CutSuffix(fs[5], "+zero"); ok {
+		n.ZeroMissing = true
+		fs[5] = side
 	}
 	switch fs[5] {
 	case "missing=left":
@@ -225,6 +310,25 @@ func parseNode(line string, want int) (Node, error) {
 	}
 	n.Left, n.Right = int32(l), int32(r)
 	return n, nil
+}
+
+func parseCategories(s string) ([]int32, error) {
+	inner, ok := strings.CutPrefix(s, "{")
+	if inner, ok = strings.CutSuffix(inner, "}"); !ok {
+		return nil, fmt.Errorf("categories %q must read like {0,3,7}", s)
+	}
+	out := []int32{}
+	if inner == "" {
+		return out, nil
+	}
+	for _, x := range strings.Split(inner, ",") {
+		c, err := strconv.ParseInt(x, 10, 32)
+		if err != nil {
+			return nil, fmt.Errorf("category %q is not an int32", x)
+		}
+		out = append(out, int32(c))
+	}
+	return out, nil
 }
 
 func parseFloats(s string) ([]float64, error) {

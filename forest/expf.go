@@ -67,3 +67,12 @@ var expfTab = [32]uint64{
 	0x3feee89f995ad3ad, 0x3feeff76f2fb5e47, 0x3fef199bdd85529c, 0x3fef3720dcef9069,
 	0x3fef5818dcfba487, 0x3fef7c97337b9b5f, 0x3fefa4afa2a490da, 0x3fefd0765b6e4540,
 }
+
+// ExpfData returns the constants Expf computes with, for emitters that write
+// Expf out in another language: the 32-entry table, 32/ln 2, the three
+// polynomial coefficients (C0 the cubic's, C2 the linear one's) and the
+// rounding shift, each as its float64 bits.
+func ExpfData() (tab [32]uint64, invLn2N, c0, c1, c2, shift uint64) {
+	return expfTab, math.Float64bits(expfInvLn2N), math.Float64bits(expfC0), math.Float64bits(expfC1),
+		math.Float64bits(expfC2), math.Float64bits(expfShift)
+}

@@ -51,7 +51,7 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 		o.Name = fmt.Sprintf("m%d", i)
 		files, err := cemit.Emit(j.Program, o)
 		if err != nil {
-			res[i].Err = err
+			res[i].Err = declined(err)
 			continue
 		}
 		for _, f := range files {

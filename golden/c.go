@@ -123,7 +123,8 @@ func (cRunner) options(layout, variant string) cemit.Options {
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
-	return cemit.Emit(p, r.options(layout, variant))
+	files, err := cemit.Emit(p, r.options(layout, variant))
+	return files, declined(err)
 }
 
 var cToolsOnce struct {
@@ -243,7 +244,7 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
 	files, err := cemit.Emit(p, o)
 	if err != nil {
-		return nil, err
+		return nil, declined(err)
 	}
 	for _, f := range files {
 		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {

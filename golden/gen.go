@@ -33,6 +33,9 @@ type GenOptions struct {
 	// Garbage adds unreachable node slots (out-of-range features, child ids
 	// that loop) and shuffles node ids, as the format allows.
 	Garbage bool
+	// V1Only draws no format version 2 construct (by default half the
+	// forests use some).
+	V1Only bool
 }
 
 func (o GenOptions) withDefaults() GenOptions {
@@ -135,6 +138,9 @@ func RandomForest(seed uint64, o GenOptions) *forest.Forest {
 	for range nt {
 		f.Trees = append(f.Trees, g.tree(nf, k))
 	}
+	if !o.V1Only && rng.IntN(2) == 0 {
+		g.version2(f)
+	}
 	if rng.IntN(4) == 0 {
 		f.Provenance = []byte(`{"generator":"golden.RandomForest","seed":` + strconv.FormatUint(seed, 10) + `}`)
 	}
@@ -145,6 +151,141 @@ func RandomForest(seed uint64, o GenOptions) *forest.Forest {
 }
 
 func pick[T any](rng *rand.Rand, v ...T) T { return v[rng.IntN(len(v))] }
+
+// version2 gives f format 2 constructs, each with some chance: more
+// outputs for a regression model, trees of one output (the shape of
+// per-class boosting), set splits with random category lists (small,
+// around float32's integer limit 2^24, at the top of [0, 2^31), empty,
+// long), zero_missing splits, a category rule, a missing value (0, −999 or
+// a threshold), float32 accumulation, every transform and a scale.
+func (g *gen) version2(f *forest.Forest) {
+	rng := g.rng
+	if f.Task == forest.Regression && f.Transform != forest.Logistic && rng.IntN(2) == 0 {
+		k := 2 + rng.IntN(3)
+		f.Outputs = k
+		f.BaseScore = make([]float64, k)
+		for j := range f.BaseScore {
+			f.BaseScore[j] = g.value()
+		}
+		for ti := range f.Trees {
+			t := &f.Trees[ti]
+			old := t.Value
+			t.Value = make([]float64, 0, len(old)*k)
+			for _, v := range old {
+				t.Value = append(t.Value, v)
+				for j := 1; j < k; j++ {
+					t.Value = append(t.Value, g.value())
+				}
+			}
+		}
+	}
+	k := f.NumOutputs()
+	if f.Combine != forest.Vote && k > 1 && rng.IntN(2) == 0 {
+		for ti := range f.Trees {
+			if rng.IntN(4) == 0 {
+				continue
+			}
+			t := &f.Trees[ti]
+			o := (ti + rng.IntN(2)) % k
+			v := make([]float64, t.NumNodes())
+			for i := range v {
+				v[i] = t.Value[i*k+o]
+			}
+			t.HasOutput, t.Output, t.Value = true, o, v
+		}
+		if f.Combine == forest.Average { // every output needs a tree to average
+			for j := 0; j < k; j++ {
+				f.Trees = append(f.Trees, forest.Tree{Feature: []int{-1}, Threshold: []float64{0}, Left: []int{-1},
+					Right: []int{-1}, MissingLeft: []bool{false}, Value: []float64{g.value()}, HasOutput: true, Output: j})
+			}
+		}
+	}
+	cats, zeros := rng.IntN(2) == 0, rng.IntN(3) == 0
+	for ti := range f.Trees {
+		t := &f.Trees[ti]
+		for i, l := range t.Left {
+			if l == -1 || t.Feature[i] < 0 || t.Feature[i] >= len(f.Features) {
+				continue
+			}
+			if cats && rng.IntN(2) == 0 {
+				if t.Categories == nil {
+					t.Categories = make([][]int32, t.NumNodes())
+				}
+				t.Categories[i] = g.categories()
+				t.Threshold[i] = 0
+			}
+			if zeros && rng.IntN(3) == 0 {
+				if t.ZeroMissing == nil {
+					t.ZeroMissing = make([]bool, t.NumNodes())
+				}
+				t.ZeroMissing[i] = true
+			}
+		}
+	}
+	f.CategoryMatch = pick(rng, "", forest.MatchFloor, forest.MatchTruncate, forest.MatchExact)
+	if rng.IntN(3) == 0 {
+		f.HasMissingValue = true
+		f.MissingValue = pick(rng, 0, -999, 1, pick(rng, g.pool...))
+	}
+	if rng.IntN(2) == 0 {
+		f.Accumulate = forest.Float32
+		for ti := range f.Trees {
+			t := &f.Trees[ti]
+			for i, v := range t.Value {
+				if r := forest.Round32(v); !math.IsInf(r, 0) {
+					t.Value[i] = r
+				} else {
+					t.Value[i] = math.Copysign(math.MaxFloat32, v)
+				}
+			}
+		}
+		if rng.IntN(2) == 0 {
+			for j, b := range f.BaseScore {
+				f.BaseScore[j] = forest.Round32(b)
+				if math.IsInf(f.BaseScore[j], 0) {
+					f.BaseScore[j] = 1
+				}
+			}
+		}
+	}
+	if f.Transform != forest.Logistic && (f.Task == forest.Regression || rng.IntN(2) == 0) {
+		trs := []forest.Transform{forest.NoTransform, forest.Exp, forest.LogisticEach, forest.Normalize, forest.Softmax}
+		if k == 1 && f.Task == forest.Regression {
+			trs = append(trs, forest.Logistic)
+		}
+		f.Transform = pick(rng, trs...)
+	}
+	if rng.IntN(3) == 0 {
+		f.TransformScale = pick(rng, 0.5, -1.5, 1e-3, 3, 1.0000001, 1e-50, 1e50, -1)
+	}
+}
+
+// categories draws a sorted list of distinct categories.
+func (g *gen) categories() []int32 {
+	rng := g.rng
+	var c []int32
+	switch rng.IntN(8) {
+	case 0:
+		return []int32{}
+	case 1:
+		c = []int32{1 << 24, 1<<24 + 1, 1<<24 + 3}
+	case 2:
+		c = []int32{0, 1<<31 - 2, 1<<31 - 1}
+	case 3: // long and dense
+		for i := 0; i < 200+rng.IntN(2000); i++ {
+			c = append(c, int32(rng.IntN(3000)))
+		}
+	case 4: // long and sparse
+		for i := 0; i < 100+rng.IntN(500); i++ {
+			c = append(c, int32(rng.IntN(1<<31)))
+		}
+	}
+	for i := 0; i < 1+rng.IntN(5); i++ {
+		c = append(c, int32(rng.IntN(10)))
+	}
+	slices.Sort(c)
+	return slices.Compact(c)
+}
 
 type gen struct {
 	rng  *rand.Rand
@@ -414,6 +555,27 @@ func RandomRows(seed uint64, f *forest.Forest, n int) *forest.Rows {
 		}
 	}
 	all = append(all, 0)
+	// Version 2's edges: categories, the zero band and the missing value.
+	for ti := range f.Trees {
+		t := &f.Trees[ti]
+		for i, cs := range t.Categories {
+			if cs == nil || t.Feature[i] < 0 || t.Feature[i] >= nf {
+				continue
+			}
+			for _, c := range cs[:min(len(cs), 6)] {
+				v := float64(c)
+				byFeature[t.Feature[i]] = append(byFeature[t.Feature[i]], v, v+1, v-0.5, v+0.5, -v)
+			}
+		}
+		for i, z := range t.ZeroMissing {
+			if z && t.Feature[i] >= 0 && t.Feature[i] < nf {
+				byFeature[t.Feature[i]] = append(byFeature[t.Feature[i]], forest.ZeroMissingBound, -forest.ZeroMissingBound)
+			}
+		}
+	}
+	if f.HasMissingValue {
+		all = append(all, f.MissingValue, f.MissingValue)
+	}
 	rows := &forest.Rows{Features: f.Features, Values: make([]float64, 0, n*nf), Line: make([]int, n)}
 	for r := 0; r < n; r++ {
 		rows.Line[r] = r + 2

@@ -334,3 +334,13 @@ var ErrSkip = errors.New("not available here")
 // there. It wraps ErrSkip, but unlike an absent engine it is no failure
 // under SAWMILL_REQUIRE_ENGINES.
 var ErrDeclined = fmt.Errorf("%w: the target cannot represent this model", ErrSkip)
+
+// declined maps a target's refusal of a construct it cannot write
+// (emit.Unsupported) to ErrDeclined; other errors pass unchanged.
+func declined(err error) error {
+	var u *emit.Unsupported
+	if errors.As(err, &u) {
+		return fmt.Errorf("%w: %v", ErrDeclined, err)
+	}
+	return err
+}

@@ -117,9 +117,16 @@ func (s *shrinker) hoistSubtrees() bool {
 			for _, c := range []int{t.Left[i], t.Right[i]} {
 				g := cloneForest(s.f)
 				gt := &g.Trees[ti]
+				w := gt.Width(k)
 				gt.Feature[i], gt.Threshold[i], gt.MissingLeft[i] = gt.Feature[c], gt.Threshold[c], gt.MissingLeft[c]
 				gt.Left[i], gt.Right[i] = gt.Left[c], gt.Right[c]
-				copy(gt.Value[i*k:(i+1)*k], gt.Value[c*k:(c+1)*k])
+				if gt.Categories != nil {
+					gt.Categories[i] = gt.Categories[c]
+				}
+				if gt.ZeroMissing != nil {
+					gt.ZeroMissing[i] = gt.ZeroMissing[c]
+				}
+				copy(gt.Value[i*w:(i+1)*w], gt.Value[c*w:(c+1)*w])
 				*gt = compactTree(gt, k)
 				if s.try(g, s.rows) {
 					changed = true
@@ -154,7 +161,8 @@ func (s *shrinker) cutSubtrees() bool {
 						leaf = gt.Right[leaf]
 					}
 				}
-				copy(gt.Value[i*k:(i+1)*k], gt.Value[leaf*k:(leaf+1)*k])
+				w := gt.Width(k)
+				copy(gt.Value[i*w:(i+1)*w], gt.Value[leaf*w:(leaf+1)*w])
 				gt.Left[i], gt.Right[i], gt.Feature[i], gt.Threshold[i] = -1, -1, -1, 0
 				*gt = compactTree(gt, k)
 				if s.try(g, s.rows) {
@@ -185,8 +193,18 @@ func dropOutput(f *forest.Forest, j int) *forest.Forest {
 	k := f.NumOutputs()
 	g.Classes = slices.Delete(g.Classes, j, j+1)
 	g.BaseScore = slices.Delete(g.BaseScore, j, j+1)
+	var trees []forest.Tree
 	for ti := range g.Trees {
 		t := &g.Trees[ti]
+		if t.HasOutput { // a tree of output j goes with it; later outputs move down
+			if t.Output != j {
+				if t.Output > j {
+					t.Output--
+				}
+				trees = append(trees, *t)
+			}
+			continue
+		}
 		var v []float64
 		for i := 0; i < t.NumNodes(); i++ {
 			for c := 0; c < k; c++ {
@@ -196,7 +214,9 @@ func dropOutput(f *forest.Forest, j int) *forest.Forest {
 			}
 		}
 		t.Value = v
+		trees = append(trees, *t)
 	}
+	g.Trees = trees
 	return g
 }
 
@@ -302,6 +322,26 @@ func (s *shrinker) simplifyHeader() bool {
 			g.Provenance = nil
 			return was != nil
 		},
+		func(g *forest.Forest) bool {
+			was := g.Accumulate
+			g.Accumulate = ""
+			return was != ""
+		},
+		func(g *forest.Forest) bool {
+			was := g.TransformScale
+			g.TransformScale = 0
+			return was != 0
+		},
+		func(g *forest.Forest) bool {
+			was := g.HasMissingValue
+			g.HasMissingValue, g.MissingValue = false, 0
+			return was
+		},
+		func(g *forest.Forest) bool {
+			was := g.CategoryMatch
+			g.CategoryMatch = ""
+			return was != ""
+		},
 	}
 	for _, e := range edits {
 		g := cloneForest(s.f)
@@ -350,9 +390,14 @@ func reachable(t *forest.Tree) []bool {
 }
 
 // compactTree keeps only the reachable nodes of a valid tree, renumbered in
-// preorder.
+// preorder, with their categories and zero_missing flags (dropped when no
+// node keeps one) and the tree's output.
 func compactTree(t *forest.Tree, k int) forest.Tree {
-	var out forest.Tree
+	out := forest.Tree{HasOutput: t.HasOutput, Output: t.Output}
+	k = t.Width(k)
+	var cats [][]int32
+	var zeros []bool
+	anyCat, anyZero := false, false
 	type item struct {
 		src, parent int
 		left        bool
@@ -379,12 +424,26 @@ func compactTree(t *forest.Tree, k int) forest.Tree {
 		out.Left = append(out.Left, -1)
 		out.Right = append(out.Right, -1)
 		out.MissingLeft = append(out.MissingLeft, t.MissingLeft[it.src] && !leaf)
+		var c []int32
+		if !leaf && t.IsSetSplit(it.src) {
+			c, anyCat = t.Categories[it.src], true
+		}
+		cats = append(cats, c)
+		z := !leaf && t.ZeroMissing != nil && t.ZeroMissing[it.src]
+		anyZero = anyZero || z
+		zeros = append(zeros, z)
 		if leaf {
 			out.Value = append(out.Value, t.Value[it.src*k:(it.src+1)*k]...)
 		} else {
 			out.Value = append(out.Value, make([]float64, k)...)
 			stack = append(stack, item{t.Right[it.src], id, false}, item{t.Left[it.src], id, true})
 		}
+	}
+	if anyCat {
+		out.Categories = cats
+	}
+	if anyZero {
+		out.ZeroMissing = zeros
 	}
 	return out
 }
@@ -401,6 +460,15 @@ func cloneForest(f *forest.Forest) *forest.Forest {
 			Feature: slices.Clone(t.Feature), Threshold: slices.Clone(t.Threshold),
 			Left: slices.Clone(t.Left), Right: slices.Clone(t.Right),
 			MissingLeft: slices.Clone(t.MissingLeft), Value: slices.Clone(t.Value),
+			HasOutput: t.HasOutput, Output: t.Output, ZeroMissing: slices.Clone(t.ZeroMissing),
+		}
+		if t.Categories != nil {
+			g.Trees[i].Categories = make([][]int32, len(t.Categories))
+			for j, c := range t.Categories {
+				if c != nil {
+					g.Trees[i].Categories[j] = slices.Clone(c)
+				}
+			}
 		}
 	}
 	return &g

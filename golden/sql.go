@@ -101,7 +101,7 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
 		}
 	} else if err != nil {
-		return o, err
+		return o, declined(err)
 	}
 	return o, nil
 }

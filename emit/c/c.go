@@ -105,6 +105,9 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 
 // Emit returns NAME.h and NAME.c for p.
 func Emit(p *compile.Program, o Options) ([]emit.File, error) {
+	if err := refuseFormat2(p); err != nil {
+		return nil, err
+	}
 	g, err := newGen(p, o)
 	if err != nil {
 		return nil, err
@@ -805,4 +808,14 @@ func (g *gen) accStart(j int) string {
 		return g.lit(g.base[j])
 	}
 	return g.lit(0)
+}
+
+// refuseFormat2 refuses the format 2 constructs this target does not write
+// yet, with the first one's emit.Unsupported.
+func refuseFormat2(p *compile.Program) error {
+	for _, u := range emit.Format2Uses(p) {
+		u.Target = "c"
+		return &u
+	}
+	return nil
 }

@@ -30,18 +30,19 @@ type heapData struct {
 	depth    []uint32  // per tree: its depth, or deepTree
 	off      []uint32  // per tree: first split, or table root for a deep tree
 	leafOff  []uint32  // per tree: first leaf slot (heap trees)
+	set      []uint32  // 1 + the set descriptor of each heap split, 0 for numeric ones
 	featType string
 	table    *tableData // the deep trees, nil when there are none
 	negated  bool
+	variants int      // blocks of xx, as tableData's
+	sets     *setData // set descriptors, nil when there are none
 	width    int
 }
 
 func buildHeap(p *compile.Program) *heapData {
 	nf := len(p.Features)
-	h := &heapData{negated: negates(p), width: nf}
-	if h.negated {
-		h.width = 2 * nf
-	}
+	h := &heapData{negated: negates(p), variants: blocks(p), sets: buildSets(p, true)}
+	h.width = h.variants * nf
 	var deep []int
 	slots := 0
 	for ti := range p.Trees {
@@ -64,12 +65,14 @@ func buildHeap(p *compile.Program) *heapData {
 			if n.IsLeaf() { // padding: both children are this leaf
 				h.feat = append(h.feat, 0)
 				h.thr = append(h.thr, 0)
+				h.set = append(h.set, 0)
 				at[2*pos+1], at[2*pos+2] = at[pos], at[pos]
 				continue
 			}
-			f, th, first, second := testFor(n, nf)
+			f, th, first, second, set := testFor(n, nf, h.sets)
 			h.feat = append(h.feat, uint32(f))
 			h.thr = append(h.thr, th)
+			h.set = append(h.set, uint32(set+1))
 			at[2*pos+1], at[2*pos+2] = first, second
 		}
 		for pos := splits; pos < len(at); pos++ {
@@ -78,6 +81,9 @@ func buildHeap(p *compile.Program) *heapData {
 				panic("BUG: golang: a heap slot below the tree's depth is a split")
 			}
 			h.leaves = append(h.leaves, n.Value...)
+			if len(n.Value) < p.NumOutputs { // a tree of one output: its value, then zeros
+				h.leaves = append(h.leaves, make([]float64, p.NumOutputs-len(n.Value))...)
+			}
 			slots++
 		}
 	}
@@ -105,7 +111,7 @@ func (g *gen) branchless() []jen.Code {
 		jen.Comment("The forest as full binary heaps (see heapLeaf), decoded once by init from blob.").Line().
 			Comment("A tree whose depth is deepTree is kept in table form (see leaf).").Line().
 			Const().Id("deepTree").Op("=").Lit(deepTree),
-		g.xxConsts(h.negated),
+		g.xxConsts(h.variants),
 		g.heapLeafFunc(h),
 	}
 	sections := []section{
@@ -140,6 +146,14 @@ func (g *gen) branchless() []jen.Code {
 			}
 		}},
 	}
+	if h.sets != nil {
+		typ := narrowest(uint64(len(h.sets.descs)))
+		sections = append(sections, section{"hSet", typ, len(h.set), "1 + the set of a heap split that tests one, else 0", func(bl *blob) {
+			for _, v := range h.set {
+				bl.uint(typ, v)
+			}
+		}})
+	}
 	if h.table != nil {
 		out = append(out, g.tableStep(h.table), g.tableLeaf())
 		for _, sc := range g.tableSections(h.table) {
@@ -148,7 +162,13 @@ func (g *gen) branchless() []jen.Code {
 			}
 		}
 	}
-	if g.k > 1 {
+	switch {
+	case g.v2:
+		out = append(out, g.v2Decls()...)
+		if g.k > 1 && h.table != nil {
+			out = append(out, g.addTableRow())
+		}
+	case g.k > 1:
 		out = append(out, g.baseScoreVar(), g.addRow("hLeaf"))
 		if h.table != nil {
 			out = append(out, g.addTableRow())
@@ -160,10 +180,10 @@ func (g *gen) branchless() []jen.Code {
 // addTableRow is addLeaf for the table's leaf rows.
 func (g *gen) addTableRow() jen.Code {
 	return jen.Comment("addTableLeaf adds row r of the table's leafValues to acc.").Line().
-		Func().Id("addTableLeaf").Params(jen.Id("acc").Op("*").Index(jen.Id("NumOutputs")).Float64(), jen.Id("r").Int()).Block(
+		Func().Id("addTableLeaf").Params(jen.Id("acc").Op("*").Index(jen.Id("NumOutputs")).Add(g.accType()), jen.Id("r").Int()).Block(
 		jen.Id("v").Op(":=").Id("leafValues").Index(jen.Id("r").Op("*").Id("NumOutputs").Op(":")).Index(jen.Op(":").Id("NumOutputs")),
 		jen.For(jen.Id("j").Op(":=").Range().Id("acc")).Block(
-			jen.Id("acc").Index(jen.Id("j")).Op("+=").Id("v").Index(jen.Id("j")),
+			jen.Id("acc").Index(jen.Id("j")).Op("+=").Add(g.acc(jen.Id("v").Index(jen.Id("j")))),
 		),
 	)
 }
@@ -195,11 +215,25 @@ func (g *gen) heapLeafFunc(h *heapData) jen.Code {
 		jen.Id("k").Op(":=").Lit(0),
 		jen.For(jen.Id("l").Op(":=").Lit(0), jen.Id("l").Op("<").Id("depth"), jen.Id("l").Op("++")).Block(
 			jen.Id("fail").Op(":=").Lit(1),
-			jen.If(jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("k"))).Op("<=").Id("thr").Index(jen.Id("k"))).Block(jen.Id("fail").Op("=").Lit(0)),
+			g.heapTest(h),
 			jen.Id("k").Op("=").Lit(2).Op("*").Id("k").Op("+").Lit(1).Op("+").Id("fail"),
 		),
 		jen.Return(jen.Id("k").Op("-").Id("n")),
 	)
+}
+
+// heapTest sets fail to 0 when heap split k's test succeeds; with set
+// splits, hSet says which test it is (see setTest).
+func (g *gen) heapTest(h *heapData) jen.Code {
+	test := jen.If(jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("k"))).Op("<=").Id("thr").Index(jen.Id("k"))).Block(jen.Id("fail").Op("=").Lit(0))
+	if h.sets == nil {
+		return test
+	}
+	return jen.If(jen.Id("s").Op(":=").Id("hSet").Index(jen.Id("off").Op("+").Id("k")), jen.Id("s").Op("!=").Lit(0)).Block(
+		jen.If(jen.Id("setTest").Call(jen.Int().Parens(jen.Id("s")).Op("-").Lit(1), jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("k"))))).Block(
+			jen.Id("fail").Op("=").Lit(0),
+		),
+	).Else().Add(test)
 }
 
 // branchlessPredictBody walks every tree in order:
@@ -213,12 +247,41 @@ func (g *gen) heapLeafFunc(h *heapData) jen.Code {
 //	}
 func (g *gen) branchlessPredictBody() []jen.Code {
 	h := g.heapData()
-	body := g.extendInput(h.negated)
+	body := g.extendInput(h.variants)
 	xx := jen.Op("&").Id("xx")
 	slot := jen.Int().Parens(jen.Id("leafOff").Index(jen.Id("t"))).Op("+").
 		Id("heapLeaf").Call(xx, jen.Int().Parens(jen.Id("treeOff").Index(jen.Id("t"))), jen.Int().Parens(jen.Id("d")))
 	tableLeaf := jen.Id("leaf").Call(xx, jen.Int().Parens(jen.Id("treeOff").Index(jen.Id("t"))))
 	var loop []jen.Code
+	if g.v2 {
+		if h.table != nil {
+			leafV := jen.Id("thr").Index(tableLeaf)
+			add := g.addV2(jen.Id("t"), -1, leafV)
+			if g.k > 1 && g.perOut {
+				add = jen.If(jen.Id("o").Op(":=").Id("treeOut").Index(jen.Id("t")), jen.Id("o").Op(">=").Lit(0)).Block(
+					jen.Id("acc").Index(jen.Id("o")).Op("+=").Add(g.acc(leafV)),
+				).Else().Block(jen.Id("addTableLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(leafV)))
+			} else if g.k > 1 {
+				add = jen.Id("addTableLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(leafV))
+			}
+			loop = append(loop, jen.If(jen.Id("d").Op("==").Id("deepTree")).Block(add, jen.Continue()))
+		}
+		switch {
+		case g.k == 1:
+			loop = append(loop, jen.Id("acc").Index(jen.Lit(0)).Op("+=").Add(g.acc(jen.Id("hLeaf").Index(slot))))
+		case g.perOut:
+			loop = append(loop,
+				jen.Id("slot").Op(":=").Add(slot),
+				jen.If(jen.Id("o").Op(":=").Id("treeOut").Index(jen.Id("t")), jen.Id("o").Op(">=").Lit(0)).Block(
+					jen.Id("acc").Index(jen.Id("o")).Op("+=").Add(g.acc(jen.Id("hLeaf").Index(jen.Id("slot").Op("*").Id("NumOutputs")))),
+				).Else().Block(jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), jen.Id("slot"))))
+		default:
+			loop = append(loop, jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), slot))
+		}
+		body = append(body, g.startV2(),
+			jen.For(jen.List(jen.Id("t"), jen.Id("d")).Op(":=").Range().Id("treeDepth")).Block(loop...))
+		return append(body, g.finishV2()...)
+	}
 	if g.k == 1 {
 		if h.table != nil {
 			loop = append(loop, jen.If(jen.Id("d").Op("==").Id("deepTree")).Block(

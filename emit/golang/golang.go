@@ -17,6 +17,10 @@
 // a table of nodes kept as one binary string and walked by one loop; and a
 // branchless implicit-heap descent for shallow trees. Auto picks by node
 // count and depth (ChooseLayout).
+//
+// Format version 2 (set splits, zero_missing, a missing value, trees of one
+// output, float32 accumulation with an emitted copy of glibc's expf, the
+// scale and the new transforms) is written in every layout; v2.go says how.
 package golang
 
 import (
@@ -175,6 +179,11 @@ type gen struct {
 	usesNeg0 bool // some literal is -0: declare negZero
 	tab      *tableData
 	heap     *heapData
+	// Format version 2 (see v2.go).
+	v2     bool     // the program needs the v2 Predict
+	zero   bool     // some split has zero_missing
+	perOut bool     // some tree adds to one output of several
+	sets   *setData // set descriptors of the layout, nil when none
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
@@ -182,10 +191,19 @@ func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
 	if limit == 0 {
 		limit = 5000
 	}
-	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: p.NumNodes() <= limit}
+	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: p.NumNodes() <= limit,
+		v2: usesV2(p), zero: zeroMissing(p), perOut: perOutput(p)}
 }
 
 func (g *gen) source() ([]byte, error) {
+	switch g.layout {
+	case emit.Nested:
+		g.sets = buildSets(g.p, false)
+	case emit.Table:
+		g.sets = g.tableData().sets
+	case emit.Branchless:
+		g.sets = g.heapData().sets
+	}
 	f := jen.NewFile(g.pkg)
 	g.header(f)
 	f.Add(g.constants())
@@ -212,11 +230,12 @@ func (g *gen) source() ([]byte, error) {
 	default:
 		panic("BUG: golang: layout " + g.layout)
 	}
+	body = append(body, g.setDecls()...)
 	for _, c := range body {
 		f.Line()
 		f.Add(c)
 	}
-	if c := g.transformFunc(); c != nil {
+	if c := g.transformFunc(); c != nil && !g.v2 {
 		f.Line()
 		f.Add(c)
 	}
@@ -522,14 +541,7 @@ func (g *gen) predictClass() jen.Code {
 func (g *gen) transformFunc() jen.Code {
 	switch g.p.Transform {
 	case forest.Logistic:
-		return jen.Comment("sigmoid is the logistic function in the form that never overflows.").Line().
-			Func().Id("sigmoid").Params(jen.Id("z").Float64()).Float64().Block(
-			jen.If(jen.Id("z").Op(">=").Lit(0)).Block(
-				jen.Return(jen.Lit(1).Op("/").Parens(jen.Lit(1).Op("+").Qual("math", "Exp").Call(jen.Op("-").Id("z")))),
-			),
-			jen.Id("e").Op(":=").Qual("math", "Exp").Call(jen.Id("z")),
-			jen.Return(jen.Id("e").Op("/").Parens(jen.Lit(1).Op("+").Id("e"))),
-		)
+		return g.sigmoidFunc()
 	case forest.Softmax:
 		if g.k == 1 {
 			return jen.Comment("softmax1 is the softmax of one value: exp(z-z)/exp(z-z).").Line().

@@ -39,7 +39,13 @@ func (g *gen) nested() []jen.Code {
 		t := &g.p.Trees[ti]
 		out = append(out, g.treeFunc(ti, t, &leaf, &rows))
 	}
-	if g.k > 1 {
+	switch {
+	case g.v2:
+		out = append(out, g.v2Decls()...)
+		if g.k > 1 && len(rows) > 0 {
+			out = append(out, g.leafValuesVar(rows))
+		}
+	case g.k > 1:
 		out = append(out, g.baseScoreVar(), g.leafTable(rows))
 	}
 	return out
@@ -53,6 +59,17 @@ func (g *gen) nested() []jen.Code {
 //
 // or, for several outputs, addLeaf(&acc, tree0(x)) per tree.
 func (g *gen) nestedPredictBody() []jen.Code {
+	if g.v2 {
+		body := append(g.inputPrep(true), g.startV2())
+		args := []jen.Code{jen.Id("x")}
+		if g.zero {
+			args = append(args, jen.Op("&").Id("xz"))
+		}
+		for ti := range g.p.Trees {
+			body = append(body, g.addV2(nil, ti, jen.Id(treeName(ti)).Call(args...)))
+		}
+		return append(body, g.finishV2()...)
+	}
 	if g.k == 1 {
 		body := []jen.Code{g.scalarStart()}
 		for ti := range g.p.Trees {
@@ -75,14 +92,21 @@ func treeName(ti int) string { return fmt.Sprintf("tree%d", ti) }
 //	func tree3(x *[NumFeatures]float64) float64 { … }
 func (g *gen) treeFunc(ti int, t *compile.Tree, leaf *int, rows *[]jen.Code) jen.Code {
 	result := jen.Float64()
-	if g.k > 1 {
+	if g.k > 1 && !t.HasOutput {
 		result = jen.Int()
 	}
 	size := subtreeSizes(t)
 	body := g.subtree(t, 0, size, leaf, rows)
 	doc := fmt.Sprintf("%s is model tree %d: %d nodes, depth %d.", treeName(ti), t.Source, len(t.Nodes), t.Depth())
+	if t.HasOutput && g.k > 1 {
+		doc = fmt.Sprintf("%s is model tree %d, of output %d: %d nodes, depth %d.", treeName(ti), t.Source, t.Output, len(t.Nodes), t.Depth())
+	}
+	params := []jen.Code{jen.Id("x").Op("*").Index(jen.Id("NumFeatures")).Float64()}
+	if g.zero {
+		params = []jen.Code{jen.List(jen.Id("x"), jen.Id("xz")).Op("*").Index(jen.Id("NumFeatures")).Float64()}
+	}
 	return jen.Comment(doc).Line().
-		Func().Id(treeName(ti)).Params(jen.Id("x").Op("*").Index(jen.Id("NumFeatures")).Float64()).Add(result).
+		Func().Id(treeName(ti)).Params(params...).Add(result).
 		Block(body...)
 }
 
@@ -131,7 +155,7 @@ func (g *gen) subtree(t *compile.Tree, i int32, size []int32, leaf *int, rows *[
 // or, for several outputs, the leaf's row in leafValues (return 12).
 func (g *gen) leafReturn(n *compile.Node, leaf *int, rows *[]jen.Code) jen.Code {
 	var ret *jen.Statement
-	if g.k == 1 {
+	if len(n.Value) == 1 { // one output, or a tree of one output
 		ret = jen.Return(g.float(n.Value[0]))
 	} else {
 		*rows = append(*rows, g.leafRow(n.Value))
@@ -151,12 +175,37 @@ func (g *gen) leafReturn(n *compile.Node, leaf *int, rows *[]jen.Code) jen.Code 
 //	!(x[f] > t)    left, missing left      x[f] > t       right, missing left
 //
 // and likewise with < and >= for strict splits.
+//
+// A zero_missing split tests xz, where the zero band is NaN. A set split
+// tests member, which is false for NaN:
+//
+//	member(s, v)             left, missing right
+//	v != v || member(s, v)   left, missing left
+//	!member(s, v)            right, missing right
+//	v == v && !member(s, v)  right, missing left
 func (g *gen) goes(n *compile.Node, left bool) jen.Code {
 	op, neg := "<=", ">"
 	if n.Op == compile.LT {
 		op, neg = "<", ">="
 	}
-	xf := jen.Id("x").Index(jen.Lit(n.Feature))
+	xs := "x"
+	if n.ZeroMissing {
+		xs = "xz"
+	}
+	xf := jen.Id(xs).Index(jen.Lit(n.Feature))
+	if n.IsSetSplit() {
+		mem := jen.Id("member").Call(jen.Lit(g.sets.lookup(n, false)), xf)
+		switch {
+		case left && !n.MissingLeft:
+			return mem
+		case left:
+			return jen.Id(xs).Index(jen.Lit(n.Feature)).Op("!=").Add(xf.Clone()).Op("||").Add(mem)
+		case !n.MissingLeft:
+			return jen.Op("!").Add(mem)
+		default:
+			return jen.Id(xs).Index(jen.Lit(n.Feature)).Op("==").Add(xf.Clone()).Op("&&").Op("!").Add(mem)
+		}
+	}
 	t := g.threshold(n.Threshold)
 	switch {
 	case left && !n.MissingLeft:
@@ -194,14 +243,7 @@ func (g *gen) leafRow(v []float64) jen.Code {
 //		}
 //	}
 func (g *gen) leafTable(rows []jen.Code) jen.Code {
-	items := make([]jen.Code, 0, len(rows)+1)
-	for _, r := range rows {
-		items = append(items, jen.Line().Add(r))
-	}
-	items = append(items, jen.Line())
-	return jen.Comment("leafValues holds the leaf vectors the tree functions point to.").Line().
-		Var().Id("leafValues").Op("=").Index(jen.Op("...")).Index(jen.Id("NumOutputs")).Float64().Values(items...).
-		Line().Line().
+	return g.leafValuesVar(rows).Line().Line().
 		Comment("addLeaf adds leaf vector i to acc.").Line().
 		Func().Id("addLeaf").Params(jen.Id("acc").Op("*").Index(jen.Id("NumOutputs")).Float64(), jen.Id("i").Int()).Block(
 		jen.Id("v").Op(":=").Op("&").Id("leafValues").Index(jen.Id("i")),
@@ -209,6 +251,22 @@ func (g *gen) leafTable(rows []jen.Code) jen.Code {
 			jen.Id("acc").Index(jen.Id("j")).Op("+=").Id("v").Index(jen.Id("j")),
 		),
 	)
+}
+
+// leafValuesVar is the table of leaf vectors:
+//
+//	var leafValues = [...][NumOutputs]float64{
+//		{0.1, 0.9, 0},
+//		…
+//	}
+func (g *gen) leafValuesVar(rows []jen.Code) *jen.Statement {
+	items := make([]jen.Code, 0, len(rows)+1)
+	for _, r := range rows {
+		items = append(items, jen.Line().Add(r))
+	}
+	items = append(items, jen.Line())
+	return jen.Comment("leafValues holds the leaf vectors the tree functions point to.").Line().
+		Var().Id("leafValues").Op("=").Index(jen.Op("...")).Index(jen.Id("NumOutputs")).Float64().Values(items...)
 }
 
 // quoteName shows a feature name in a comment: Go-quoted, so no character

@@ -40,6 +40,7 @@ type tableNode struct {
 	feat uint32  // index into xx; leafMark at a leaf
 	thr  float64 // threshold; at a leaf its value, or its row in leaves
 	far  uint32  // offset to the other child; 0 at a leaf
+	set  uint32  // 1 + the set descriptor of a set split (see v2.go), else 0
 }
 
 // tableData is the whole forest in table form.
@@ -48,25 +49,51 @@ type tableData struct {
 	roots    []uint32
 	leaves   []float64 // leaf rows back to back, several outputs only
 	negated  bool      // some split tests -x: xx holds x then -x
+	variants int       // blocks of NumFeatures in xx: x; x, -x; or x, -x, xz, -xz
+	sets     *setData  // descriptors of the set splits, nil when none
 	width    int       // len(xx) - 1, the index of its NaN slot
 	featType string    // narrowest unsigned type holding every feat and leafMark
 	farType  string
 }
 
 // testFor rewrites split n as a test that succeeds (never for NaN) exactly
-// when the row goes to the child returned first.
-func testFor(n *compile.Node, nf int) (feat int, thr float64, first, second int32) {
+// when the row goes to the child returned first. A zero_missing split tests
+// the blocks of xx that hold xz and -xz. A set split (set >= 0, its
+// descriptor) tests membership, or, when missing values go left, being
+// neither missing nor a member (the descriptor's negated form).
+func testFor(n *compile.Node, nf int, sets *setData) (feat int, thr float64, first, second int32, set int) {
 	down := math.Inf(-1)
-	switch {
-	case !n.MissingLeft && n.Op == compile.LE: // x <= t
-		return n.Feature, n.Threshold, n.Left, n.Right
-	case !n.MissingLeft: // x < t  ⇔  x <= prev(t)
-		return n.Feature, math.Nextafter(n.Threshold, down), n.Left, n.Right
-	case n.Op == compile.LE: // right when x > t  ⇔  -x <= prev(-t)
-		return nf + n.Feature, math.Nextafter(-n.Threshold, down), n.Right, n.Left
-	default: // right when x >= t  ⇔  -x <= -t
-		return nf + n.Feature, -n.Threshold, n.Right, n.Left
+	base := n.Feature
+	if n.ZeroMissing {
+		base += 2 * nf
 	}
+	switch {
+	case n.IsSetSplit() && n.MissingLeft:
+		return base, 0, n.Right, n.Left, sets.lookup(n, true)
+	case n.IsSetSplit():
+		return base, 0, n.Left, n.Right, sets.lookup(n, false)
+	case !n.MissingLeft && n.Op == compile.LE: // x <= t
+		return base, n.Threshold, n.Left, n.Right, -1
+	case !n.MissingLeft: // x < t  ⇔  x <= prev(t)
+		return base, math.Nextafter(n.Threshold, down), n.Left, n.Right, -1
+	case n.Op == compile.LE: // right when x > t  ⇔  -x <= prev(-t)
+		return nf + base, math.Nextafter(-n.Threshold, down), n.Right, n.Left, -1
+	default: // right when x >= t  ⇔  -x <= -t
+		return nf + base, -n.Threshold, n.Right, n.Left, -1
+	}
+}
+
+// blocks is the number of NumFeatures-long blocks of xx: 1 (x), 2 (x and
+// -x, when some numeric split sends missing values left) or 4 (x, -x, xz,
+// -xz, when some split has zero_missing).
+func blocks(p *compile.Program) int {
+	switch {
+	case zeroMissing(p):
+		return 4
+	case negates(p):
+		return 2
+	}
+	return 1
 }
 
 // buildTable lays out the given trees (all when nil) in table form.
@@ -78,10 +105,8 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 			trees[i] = i
 		}
 	}
-	d := &tableData{width: nf, negated: negates(p)}
-	if d.negated {
-		d.width = 2 * nf
-	}
+	d := &tableData{negated: negates(p), variants: blocks(p), sets: buildSets(p, true)}
+	d.width = d.variants * nf
 	leafRow := uint32(0)
 	maxFar := uint32(0)
 	for _, ti := range trees {
@@ -104,7 +129,7 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 			n := &t.Nodes[it.node]
 			if n.IsLeaf() {
 				tn := tableNode{feat: uint32(d.width)}
-				if p.NumOutputs == 1 {
+				if p.NumOutputs == 1 || t.HasOutput {
 					tn.thr = n.Value[0]
 				} else {
 					tn.thr = float64(leafRow)
@@ -114,8 +139,8 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 				d.nodes = append(d.nodes, tn)
 				continue
 			}
-			f, th, first, second := testFor(n, nf)
-			d.nodes = append(d.nodes, tableNode{feat: uint32(f), thr: th})
+			f, th, first, second, set := testFor(n, nf, d.sets)
+			d.nodes = append(d.nodes, tableNode{feat: uint32(f), thr: th, set: uint32(set + 1)})
 			stack = append(stack, item{second, at}, item{first, -1})
 		}
 	}
@@ -127,12 +152,12 @@ func buildTable(p *compile.Program, trees []int) *tableData {
 	return d
 }
 
-// negates reports whether some split sends missing values left, so that
-// the extended input must hold -x.
+// negates reports whether some numeric split sends missing values left, so
+// that the extended input must hold -x.
 func negates(p *compile.Program) bool {
 	for ti := range p.Trees {
 		for i := range p.Trees[ti].Nodes {
-			if n := &p.Trees[ti].Nodes[i]; !n.IsLeaf() && n.MissingLeft {
+			if n := &p.Trees[ti].Nodes[i]; !n.IsLeaf() && !n.IsSetSplit() && n.MissingLeft {
 				return true
 			}
 		}
@@ -285,6 +310,14 @@ func (g *gen) tableSections(d *tableData) []section {
 			}
 		}},
 	}
+	if d.sets != nil {
+		typ := narrowest(uint64(len(d.sets.descs)))
+		out = append(out, section{"nodeSet", typ, len(d.nodes), "1 + the set of a set split, else 0", func(bl *blob) {
+			for _, n := range d.nodes {
+				bl.uint(typ, n.set)
+			}
+		}})
+	}
 	if g.k > 1 {
 		out = append(out, section{"leafValues", "float64", len(d.leaves), "leaf vectors, NumOutputs values each", func(bl *blob) {
 			for _, v := range d.leaves {
@@ -300,10 +333,16 @@ func (g *gen) table() []jen.Code {
 	d := g.tableData()
 	out := []jen.Code{
 		jen.Comment("The forest as one table (see step): nodes in depth-first order per tree, decoded").Line().
-			Comment("once by init from blob.").Line().Add(g.xxConsts(d.negated)),
+			Comment("once by init from blob.").Line().Add(g.xxConsts(d.variants)),
 		g.tableStep(d), g.tableLeaf4(),
 	}
-	if g.k > 1 {
+	switch {
+	case g.v2:
+		out = append(out, g.v2Decls()...)
+		if g.perOut {
+			out = append(out, g.addTreeFunc())
+		}
+	case g.k > 1:
 		out = append(out, g.baseScoreVar(), g.addRow("leafValues"))
 	}
 	return append(out, g.blobDecls(g.tableSections(d))...)
@@ -340,12 +379,16 @@ func (g *gen) addRow(table string) jen.Code {
 //		xxLen    = 2*NumFeatures + 1 // x, -x, NaN
 //		leafMark = xxLen - 1
 //	)
-func (g *gen) xxConsts(negated bool) jen.Code {
+func (g *gen) xxConsts(variants int) jen.Code {
 	size := jen.Id("NumFeatures").Op("+").Lit(1)
 	doc := "x, then a NaN tested at every leaf"
-	if negated {
+	switch variants {
+	case 2:
 		size = jen.Lit(2).Op("*").Id("NumFeatures").Op("+").Lit(1)
 		doc = "x, -x, then a NaN tested at every leaf"
+	case 4:
+		size = jen.Lit(4).Op("*").Id("NumFeatures").Op("+").Lit(1)
+		doc = "x, -x, xz (the zero band made NaN), -xz, then a NaN tested at every leaf"
 	}
 	return jen.Const().Defs(
 		jen.Id("xxLen").Op("=").Add(size).Comment(doc),
@@ -363,13 +406,24 @@ func (g *gen) xxConsts(negated bool) jen.Code {
 //		return i + 1 + (int(far[i])-1)&-fail
 //	}
 func (g *gen) tableStep(d *tableData) jen.Code {
+	test := jen.If(jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("i"))).Op("<=").Id("thr").Index(jen.Id("i"))).Block(jen.Id("fail").Op("=").Lit(0))
+	doc := jen.Null()
+	if d.sets != nil {
+		// if s := nodeSet[i]; s != 0 { if setTest(int(s)-1, xx[feat[i]]) { fail = 0 } } else if … { fail = 0 }
+		test = jen.If(jen.Id("s").Op(":=").Id("nodeSet").Index(jen.Id("i")), jen.Id("s").Op("!=").Lit(0)).Block(
+			jen.If(jen.Id("setTest").Call(jen.Int().Parens(jen.Id("s")).Op("-").Lit(1), jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("i"))))).Block(
+				jen.Id("fail").Op("=").Lit(0),
+			),
+		).Else().Add(test)
+		doc = jen.Comment("At a set split (nodeSet[i] != 0) the test is setTest's.").Line()
+	}
 	return jen.Comment("step moves from node i to the next node of the walk: i+1 when xx[feat[i]] <= thr[i],").Line().
 		Comment("else (also when the value is NaN) i+far[i]. A leaf has far 0 and tests the NaN, so").Line().
-		Comment("the walk stays on it.").Line().
+		Comment("the walk stays on it.").Line().Add(doc).
 		Func().Id("step").Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.Id("feat").Index().Id(d.featType),
 		jen.Id("far").Index().Id(d.farType), jen.Id("thr").Index().Float64(), jen.Id("i").Int()).Int().Block(
 		jen.Id("fail").Op(":=").Lit(1),
-		jen.If(jen.Id("xx").Index(jen.Id("feat").Index(jen.Id("i"))).Op("<=").Id("thr").Index(jen.Id("i"))).Block(jen.Id("fail").Op("=").Lit(0)),
+		test,
 		jen.Return(jen.Id("i").Op("+").Lit(1).Op("+").Parens(jen.Int().Parens(jen.Id("far").Index(jen.Id("i"))).Op("-").Lit(1)).Op("&").Op("-").Id("fail")),
 	)
 }
@@ -436,17 +490,28 @@ func (g *gen) tableLeaf4() jen.Code {
 //		xx[j], xx[NumFeatures+j] = v, -v   // or xx[j] = v
 //	}
 //	xx[leafMark] = math.NaN()
-func (g *gen) extendInput(negated bool) []jen.Code {
-	fill := jen.Id("xx").Index(jen.Id("j")).Op("=").Id("v")
-	if negated {
-		fill = jen.List(jen.Id("xx").Index(jen.Id("j")), jen.Id("xx").Index(jen.Id("NumFeatures").Op("+").Id("j"))).
-			Op("=").List(jen.Id("v"), jen.Op("-").Id("v"))
+func (g *gen) extendInput(variants int) []jen.Code {
+	fill := []jen.Code{jen.Id("xx").Index(jen.Id("j")).Op("=").Id("v")}
+	if variants >= 2 {
+		fill = []jen.Code{jen.List(jen.Id("xx").Index(jen.Id("j")), jen.Id("xx").Index(jen.Id("NumFeatures").Op("+").Id("j"))).
+			Op("=").List(jen.Id("v"), jen.Op("-").Id("v"))}
 	}
-	return []jen.Code{
+	if variants == 4 {
+		// z := v; if -Z <= v && v <= Z { z = NaN }; xx[2*NumFeatures+j], xx[3*NumFeatures+j] = z, -z
+		fill = append(fill,
+			jen.Id("z").Op(":=").Id("v"),
+			jen.If(g.inZeroBand(jen.Id("v"))).Block(jen.Id("z").Op("=").Qual("math", "NaN").Call()),
+			jen.List(jen.Id("xx").Index(jen.Lit(2).Op("*").Id("NumFeatures").Op("+").Id("j")),
+				jen.Id("xx").Index(jen.Lit(3).Op("*").Id("NumFeatures").Op("+").Id("j"))).
+				Op("=").List(jen.Id("z"), jen.Op("-").Id("z")),
+		)
+	}
+	out := g.inputPrep(false)
+	return append(out,
 		jen.Var().Id("xx").Index(jen.Id("xxLen")).Float64(),
-		jen.For(jen.List(jen.Id("j"), jen.Id("v")).Op(":=").Range().Id("x")).Block(fill),
+		jen.For(jen.List(jen.Id("j"), jen.Id("v")).Op(":=").Range().Id("x")).Block(fill...),
 		jen.Id("xx").Index(jen.Id("leafMark")).Op("=").Qual("math", "NaN").Call(),
-	}
+	)
 }
 
 // tablePredictBody walks the trees four at a time and adds their leaves in
@@ -462,9 +527,14 @@ func (g *gen) extendInput(negated bool) []jen.Code {
 //	s += thr[a]
 //	s += thr[b]
 func (g *gen) tablePredictBody() []jen.Code {
-	body := g.extendInput(g.tableData().negated)
+	body := g.extendInput(g.tableData().variants)
+	tree := 0 // the tree add is called for, counted for the v2 form
 	add := func(leaf jen.Code) jen.Code {
-		if g.k == 1 {
+		tree++
+		switch {
+		case g.v2:
+			return g.addV2(jen.Id("t").Op("+").Lit((tree-1)%4), -1, jen.Id("thr").Index(leaf))
+		case g.k == 1:
 			return jen.Id("s").Op("+=").Id("thr").Index(leaf)
 		}
 		return jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("thr").Index(leaf)))
@@ -478,6 +548,13 @@ func (g *gen) tablePredictBody() []jen.Code {
 	walk := []jen.Code{
 		jen.Id("r").Op(":=").Id("roots"),
 		jen.For(jen.Empty(), jen.Len(jen.Id("r")).Op(">=").Lit(4), jen.Id("r").Op("=").Id("r").Index(jen.Lit(4).Op(":"))).Block(four...),
+	}
+	if g.v2 && g.perOut { // the tree index t goes along with r
+		walk = []jen.Code{
+			jen.List(jen.Id("r"), jen.Id("t")).Op(":=").List(jen.Id("roots"), jen.Lit(0)),
+			jen.For(jen.Empty(), jen.Len(jen.Id("r")).Op(">=").Lit(4), jen.List(jen.Id("r"), jen.Id("t")).Op("=").
+				List(jen.Id("r").Index(jen.Lit(4).Op(":")), jen.Id("t").Op("+").Lit(4))).Block(four...),
+		}
 	}
 	// The last one to three trees go through leaf4 too, the last root
 	// repeated in the unused places.
@@ -497,7 +574,12 @@ func (g *gen) tablePredictBody() []jen.Code {
 			walk = append(walk, add(jen.Id(ids[i])))
 		}
 	}
-	if g.k == 1 {
+	switch {
+	case g.v2:
+		body = append(body, g.startV2())
+		body = append(body, walk...)
+		return append(body, g.finishV2()...)
+	case g.k == 1:
 		body = append(body, g.scalarStart())
 		body = append(body, walk...)
 		return append(body, g.scalarFinish()...)

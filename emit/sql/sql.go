@@ -191,6 +191,9 @@ type gen struct {
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
+	if err := refuseFormat2(p); err != nil {
+		return nil, err
+	}
 	switch p.Compare {
 	case compile.Double:
 	case compile.Single:
@@ -464,4 +467,14 @@ func binaryVotes(p *compile.Program) bool {
 		}
 	}
 	return true
+}
+
+// refuseFormat2 refuses the format 2 constructs this target does not write
+// yet, with the first one's emit.Unsupported.
+func refuseFormat2(p *compile.Program) error {
+	for _, u := range emit.Format2Uses(p) {
+		u.Target = "sql"
+		return &u
+	}
+	return nil
 }
