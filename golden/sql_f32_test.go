@@ -93,7 +93,7 @@ func round32Sample(n int) []float64 {
 			m := float64(rng.Int64N(1<<24)<<1 | 1)
 			xs = append(xs, math.Ldexp(m, rng.IntN(300)-175)*float64(1-2*rng.IntN(2)))
 		case 2:
-			f := math.Float32frombits(rng.Uint32() &^ (0xff << 23) | uint32(rng.IntN(254)+1)<<23)
+			f := math.Float32frombits(rng.Uint32()&^(0xff<<23) | uint32(rng.IntN(254)+1)<<23)
 			xs = append(xs, math.Nextafter(float64(f), math.Inf(2*rng.IntN(2)-1)))
 		}
 	}
