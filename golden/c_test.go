@@ -2,6 +2,7 @@ package golden
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"math/bits"
@@ -302,6 +303,9 @@ func TestCGoldenCasesFullMatrix(t *testing.T) {
 					p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
 					require.NoError(t, err)
 					res, err := r.Score(context.Background(), p, layout, variant, c.Rows, t.TempDir())
+					if errors.Is(err, ErrDeclined) {
+						t.Skip(err) // a construct C does not write yet, or beyond float's range
+					}
 					require.NoError(t, err)
 					want, wantCls := c.ReferenceFor(r, variant)
 					exact, bound := r.Tolerance(variant, p)
