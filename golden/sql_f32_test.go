@@ -2,6 +2,7 @@ package golden
 
 import (
 	"context"
+	dbsql "database/sql"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -133,27 +134,13 @@ func TestSQLRound32(t *testing.T) {
 				if err != nil {
 					t.Fatalf("%v\n%s", err, q)
 				}
-				defer rows.Close()
-				seen := 0
-				for rows.Next() {
-					var i int64
-					var got float64
-					if err := rows.Scan(&i, &got); err != nil {
-						t.Fatal(err)
-					}
+				eachResult(t, rows, len(xs), func(i int64, got float64) {
 					x := xs[i]
 					want := float64(float32(x))
 					if math.Float64bits(got) != math.Float64bits(want) {
 						t.Fatalf("round32(%v = %#x) = %v, float32 gives %v\n%s", x, math.Float64bits(x), got, want, q)
 					}
-					seen++
-				}
-				if err := rows.Err(); err != nil {
-					t.Fatal(err)
-				}
-				if seen != len(xs) {
-					t.Fatalf("%d results for %d values", seen, len(xs))
-				}
+				})
 			})
 		}
 	}
@@ -253,14 +240,7 @@ func TestSQLSetSplit5000(t *testing.T) {
 					if err != nil {
 						t.Fatal(err)
 					}
-					defer rows.Close()
-					seen := 0
-					for rows.Next() {
-						var i int64
-						var got float64
-						if err := rows.Scan(&i, &got); err != nil {
-							t.Fatal(err)
-						}
+					eachResult(t, rows, len(xs), func(i int64, got float64) {
 						x := xs[i]
 						if r.engine == "sqlite" && x == 0 {
 							x = 0 // SQLite stores -0 as 0
@@ -272,16 +252,32 @@ func TestSQLSetSplit5000(t *testing.T) {
 						if got != want {
 							t.Fatalf("x = %v: leaf %v, want %v", x, got, want)
 						}
-						seen++
-					}
-					if err := rows.Err(); err != nil {
-						t.Fatal(err)
-					}
-					if seen != len(xs) {
-						t.Fatalf("%d results for %d values", seen, len(xs))
-					}
+					})
 				})
 			}
 		}
+	}
+}
+
+// eachResult reads result rows (i, value), passes each to check, and
+// fails unless exactly n came.
+func eachResult(t *testing.T, rows *dbsql.Rows, n int, check func(i int64, got float64)) {
+	t.Helper()
+	defer rows.Close()
+	seen := 0
+	for rows.Next() {
+		var i int64
+		var got float64
+		if err := rows.Scan(&i, &got); err != nil {
+			t.Fatal(err)
+		}
+		check(i, got)
+		seen++
+	}
+	if err := rows.Err(); err != nil {
+		t.Fatal(err)
+	}
+	if seen != n {
+		t.Fatalf("%d results for %d values", seen, n)
 	}
 }
