@@ -394,8 +394,35 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 		return nil, err
 	}
 	return r.score(ctx, p, rows, dir, isShell(variant), func(schema string) (sqlemit.Options, error) {
-		return r.options(p, layout, variant, schema)
+		o, err := r.options(p, layout, variant, schema)
+		if err == nil && isShell(variant) {
+			o = shellOutputs(p, o)
+		}
+		return o, err
 	})
+}
+
+// shellOutputs renames output columns named "true" or "false" (in any
+// case) for the sqlite3 shell: SQLite 3.40 reads such a name as the
+// boolean keyword where the shell's query reads the column (measured:
+// select printf('%!.17g', "false") from (select 5.0 as "false") prints
+// 0.0, and qualifying the name finds no column). The embedded engine runs
+// the statement with the names as they are.
+func shellOutputs(p *compile.Program, o sqlemit.Options) sqlemit.Options {
+	outs := o.Outputs
+	if outs == nil {
+		outs = sqlemit.OutputNames(p)
+	}
+	for _, n := range outs {
+		if strings.EqualFold(n, "true") || strings.EqualFold(n, "false") {
+			o.Outputs = nil
+			for j, n := range outs {
+				o.Outputs = append(o.Outputs, "o"+strconv.Itoa(j)+" "+n)
+			}
+			return o
+		}
+	}
+	return o
 }
 
 // Stage counts past which a run would take many minutes (trees thousands

@@ -30,18 +30,59 @@ const selftestRowsPerInsert = 100
 
 // Tolerance is the largest difference between an output of the statement
 // and the interpreter's that the self-test (and the golden runners) accept:
-// 0 for a model without a transform, whose statement computes each output
-// with the interpreter's IEEE double operations in the interpreter's order;
-// (k+4)·2^-52 for k outputs under the logistic or softmax transform, where
-// EXP is the engine's C library exp, one ulp from Go's math.Exp on about one
-// argument in seven (measured in golden's TestSQLExp): each exp contributes
-// at most one ulp (2^-53 relative), the softmax sum at most k of them, and
-// the outputs are at most 1.
+// 0 for a model without a transform that uses EXP (none and normalize),
+// whose statement computes each output with the interpreter's IEEE
+// operations in the interpreter's order (float32 ones included, see
+// f32.go); the raw sums are always bit for bit. Otherwise:
+//
+//   - float64 logistic, logistic_each, softmax: (k+4)·2^-52 for k outputs.
+//     EXP is the engine's C library exp, one ulp from Go's math.Exp on about
+//     one argument in seven (measured in golden's TestSQLExp): each exp
+//     contributes at most one ulp (2^-53 relative), the softmax sum at most k
+//     of them, and the outputs are at most 1.
+//   - float64 exp: 2^-51 times e^M, M the largest |score| the leaves allow
+//     (two ulps of the largest output).
+//   - float32 accumulation: expf is written round32(e^z) with the engine's
+//     double exp, which differs from the C library's expf by one float32
+//     ulp on a few arguments in 100,000 (see forest.Expf). One ulp of expf
+//     moves the logistic by at most about an ulp of an output at most 1:
+//     2^-23; the softmax by k+2 ulps: (k+2)·2^-23; exp by one ulp of the
+//     largest output, 2^-23 times expf(M).
 func Tolerance(p *compile.Program) float64 {
-	if p.Transform == forest.NoTransform {
+	k := float64(p.NumOutputs)
+	switch {
+	case p.Transform == forest.NoTransform, p.Transform == forest.Normalize:
 		return 0
+	case p.Float32Accumulate() && p.Transform == forest.Exp:
+		return 0x1p-23 * float64(forest.Expf(float32(maxScore(p))))
+	case p.Float32Accumulate() && p.Transform == forest.Softmax:
+		return (k + 2) * 0x1p-23
+	case p.Float32Accumulate():
+		return 0x1p-23
+	case p.Transform == forest.Exp:
+		return 0x1p-51 * math.Exp(maxScore(p))
 	}
-	return float64(p.NumOutputs+4) * 0x1p-52
+	return (k + 4) * 0x1p-52
+}
+
+// maxScore bounds |score| after the scale: the sum over trees of each
+// tree's largest |leaf|, plus the largest |base score|, times |scale|, with
+// 1% to spare for float32 roundings.
+func maxScore(p *compile.Program) float64 {
+	leaves, base := 0.0, 0.0
+	for ti := range p.Trees {
+		big := 0.0
+		for i := range p.Trees[ti].Nodes {
+			for _, v := range p.Trees[ti].Nodes[i].Value {
+				big = math.Max(big, math.Abs(v))
+			}
+		}
+		leaves += big
+	}
+	for _, v := range p.BaseScore {
+		base = math.Max(base, math.Abs(v))
+	}
+	return 1.01 * math.Abs(p.Scale()) * (leaves + base)
 }
 
 // Selftest writes a script, for o.Dialect, that proves the scoring

@@ -191,9 +191,6 @@ type gen struct {
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
-	if err := refuseFormat2(p); err != nil {
-		return nil, err
-	}
 	switch p.Compare {
 	case compile.Double:
 	case compile.Single:
@@ -224,6 +221,9 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	g.chunk = o.TreesPerStage
 	if g.chunk <= 0 {
 		g.chunk = 100
+	}
+	if p.Float32Accumulate() && !g.native32() {
+		g.chunk = 1 // one float32 addition a stage: see sumStart
 	}
 	switch o.Comments {
 	case 0:
@@ -451,11 +451,14 @@ func Stages(p *compile.Program, o Options) (int, error) {
 // are counts, exact in a double, and output 0's count is the number of
 // trees less output 1's, so each tree need be walked for one output only.
 func binaryVotes(p *compile.Program) bool {
-	if p.Combine != forest.Average || p.NumOutputs != 2 {
+	if p.Combine != forest.Average || p.NumOutputs != 2 || p.Float32Accumulate() {
 		return false
 	}
 	one, zero := math.Float64bits(1), math.Float64bits(0)
 	for ti := range p.Trees {
+		if p.Trees[ti].HasOutput {
+			return false
+		}
 		for _, n := range p.Trees[ti].Nodes {
 			if !n.IsLeaf() {
 				continue
@@ -467,14 +470,4 @@ func binaryVotes(p *compile.Program) bool {
 		}
 	}
 	return true
-}
-
-// refuseFormat2 refuses the format 2 constructs this target does not write
-// yet, with the first one's emit.Unsupported.
-func refuseFormat2(p *compile.Program) error {
-	for _, u := range emit.Format2Uses(p) {
-		u.Target = "sql"
-		return &u
-	}
-	return nil
 }

@@ -28,10 +28,17 @@ func (g *gen) statement() {
 	switch {
 	case g.votes:
 		g.votesStage()
+	case p.Float32Accumulate():
+		g.finish32()
 	case g.meanStage():
 		g.divideStage()
 	}
-	g.transformStages()
+	g.scaleStage()
+	if p.Float32Accumulate() {
+		g.transform32()
+	} else {
+		g.transformStages()
+	}
 	g.final()
 }
 
@@ -64,10 +71,10 @@ func (g *gen) meanStage() bool {
 // s*0 is that zero, with s's sign.
 func (g *gen) divideStage() {
 	num := g.d.num
-	n := len(g.p.Trees)
-	tiny := math.Float64frombits(uint64(n / 2)) // floor(n/2) * 2^-1074
 	items := g.carry(false)
 	for j := 0; j < g.p.NumOutputs; j++ {
+		n := g.p.TreesAddingTo(j)
+		tiny := math.Float64frombits(uint64(n / 2)) // floor(n/2) * 2^-1074
 		z := outCol(j)
 		items = append(items, fmt.Sprintf("CASE WHEN ABS(%s) <= %s THEN %s * %s ELSE %s / %s END + %s AS %s",
 			z, num(tiny), z, num(0), z, num(float64(n)), num(g.p.BaseScore[j]), z))
@@ -107,6 +114,16 @@ func (g *gen) header() {
 		w.WriteString(" " + emit.CommentSafe(ident(c)))
 	}
 	w.WriteString("\n")
+	if p.Float32Accumulate() {
+		if g.native32() {
+			w.WriteString("-- Float32 model: the sums are added in single precision (real), as the model says.\n")
+		} else {
+			w.WriteString("-- Float32 model: every float32 operation is a double one rounded to float32 in double\n-- arithmetic (exact; one tree a sub-query).\n")
+		}
+		if p.Transform != forest.NoTransform && p.Transform != forest.Normalize {
+			fmt.Fprintf(w, "-- expf is float32(EXP(z)), one ulp from the C library's expf on a few inputs in 100,000:\n-- transformed outputs are within %.3g of the model's; the sums before the transform are exact.\n", Tolerance(p))
+		}
+	}
 	switch g.d {
 	case Postgres:
 		w.WriteString("-- PostgreSQL: run with standard_conforming_strings = on (the default), and SET jit = off\n")
@@ -232,22 +249,45 @@ func (g *gen) featureInput(col string) string {
 // sumStart is the running sum of output j before trees [a, ...): the base
 // score (Sum) or zero (Average) at the first tree, the previous stage's
 // column after.
+//
+// Under float32 accumulation in SQLite and ANSI text every stage adds one
+// tree (see newGen) to the sum rounded to float32, and leaves its sum
+// unrounded for the next stage (or finish32) to round: so every addition is
+// one float32 operation and the rounding's argument is a column.
 func (g *gen) sumStart(a, j int) string {
 	if a > 0 {
+		if g.p.Float32Accumulate() && !g.native32() {
+			return g.r32(outCol(j))
+		}
 		return outCol(j)
 	}
 	if g.p.Combine == forest.Sum {
-		return g.d.num(g.p.BaseScore[j])
+		return g.acc(g.p.BaseScore[j])
 	}
-	return g.d.num(0)
+	return g.acc(0)
+}
+
+// addsTo reports whether tree ti adds to output j.
+func (g *gen) addsTo(ti, j int) bool {
+	t := &g.p.Trees[ti]
+	return !t.HasOutput || t.Output == j
+}
+
+// leafValue is what leaf i of tree ti adds to output j (which it adds to).
+func (g *gen) leafValue(ti int, i int32, j int) float64 {
+	t := &g.p.Trees[ti]
+	if t.HasOutput {
+		return t.Nodes[i].Value[0]
+	}
+	return t.Nodes[i].Value[j]
 }
 
 // sumEnd closes the running sum after tree b: for Average after the last
 // tree, divide by the number of trees and add the base score, as the
 // interpreter does.
 func (g *gen) sumEnd(b, j int, sum string) string {
-	if b == len(g.p.Trees) && g.p.Combine == forest.Average && !g.votes && !g.meanStage() {
-		return "(" + sum + ")\n    / " + g.d.num(float64(len(g.p.Trees))) + " + " + g.d.num(g.p.BaseScore[j])
+	if b == len(g.p.Trees) && g.p.Combine == forest.Average && !g.votes && !g.meanStage() && !g.p.Float32Accumulate() {
+		return "(" + sum + ")\n    / " + g.d.num(float64(g.p.TreesAddingTo(j))) + " + " + g.d.num(g.p.BaseScore[j])
 	}
 	return sum
 }
@@ -260,12 +300,14 @@ func (g *gen) nestedStage(a, b int) {
 		var s strings.Builder
 		s.WriteString(g.sumStart(a, j))
 		for ti := a; ti < b; ti++ {
+			if !g.addsTo(ti, j) {
+				continue
+			}
 			if g.comments {
 				fmt.Fprintf(&s, "\n    -- tree %d", g.p.Trees[ti].Source)
 			}
 			s.WriteString("\n    + ")
-			t := &g.p.Trees[ti]
-			g.writeTree(&s, ti, 0, -1, func(i int32) string { return g.d.num(t.Nodes[i].Value[j]) }, 3)
+			g.writeTree(&s, ti, 0, -1, func(i int32) string { return g.acc(g.leafValue(ti, i, j)) }, 3)
 		}
 		items = append(items, g.sumEnd(b, j, s.String())+" AS "+outCol(j))
 	}
@@ -312,6 +354,9 @@ func (g *gen) tableStages(a, b int) {
 		var s strings.Builder
 		s.WriteString(g.sumStart(a, j))
 		for ti := a; ti < b; ti++ {
+			if !g.addsTo(ti, j) {
+				continue
+			}
 			if g.comments {
 				fmt.Fprintf(&s, "\n    -- tree %d", g.p.Trees[ti].Source)
 			}
@@ -329,7 +374,7 @@ func (g *gen) transformStages() {
 	k := g.p.NumOutputs
 	num := g.d.num
 	switch g.p.Transform {
-	case forest.Logistic:
+	case forest.Logistic, forest.LogisticEach:
 		// 1/(1+e^-z) for z >= 0, e^z/(1+e^z) below: forest.Sigmoid.
 		items := g.carry(false)
 		for j := 0; j < k; j++ {
@@ -349,26 +394,227 @@ func (g *gen) transformStages() {
 			items = append(items, g.exp(outCol(j)+" - m")+" AS "+outCol(j))
 		}
 		g.cte(items, true)
-		// The sum in the interpreter's order, at most sumTerms additions
-		// a stage: SQLite refuses an expression tree deeper than 1000.
-		sum := ""
-		for a := 0; a < k; a += sumTerms {
-			b := min(a+sumTerms, k)
-			terms := zs[a:b]
-			if sum != "" {
-				terms = append([]string{sum}, terms...)
-			}
-			items := append(g.carry(false), zs...)
-			items = append(items, strings.Join(terms, " + ")+" AS "+sumCol)
-			g.cte(items, true)
-			sum = sumCol
-		}
+		sum := g.sumStages(zs)
 		items = g.carry(false)
 		for j := 0; j < k; j++ {
 			items = append(items, fmt.Sprintf("%s / %s AS %s", outCol(j), sum, outCol(j)))
 		}
 		g.cte(items, true)
+	case forest.Exp:
+		g.mapStage(func(z string) string { return g.expOut(z) })
+	case forest.Normalize:
+		// s = z_0 + z_1 + ... in order; each output z_j/s, or 0 when s is 0.
+		sum := g.sumStages(outCols(k))
+		g.mapStage(func(z string) string {
+			return fmt.Sprintf("CASE WHEN %s = %s THEN %s ELSE %s END", sum, num(0), num(0), g.div(z, sum))
+		})
 	}
+}
+
+// mapStage is a stage that replaces every output z_j by f(z_j).
+func (g *gen) mapStage(f func(z string) string) {
+	items := g.carry(false)
+	for j := 0; j < g.p.NumOutputs; j++ {
+		items = append(items, f(outCol(j))+" AS "+outCol(j))
+	}
+	g.cte(items, true)
+}
+
+// expOut is e^z for the exp transform: EXP, with PostgreSQL's errors
+// avoided (see exp) and +Inf above expMax, where the C library's exp
+// overflows (PostgreSQL raises an error there, ISO/IEC 9075 lets it).
+func (g *gen) expOut(z string) string {
+	return fmt.Sprintf("CASE WHEN %s > %s THEN %s ELSE %s END", z, g.d.num(expMax), g.infTimes(g.d.num(1)), g.exp(z))
+}
+
+// expMax is the largest double whose exponential is finite: math.Exp and
+// glibc's exp both overflow past it (both are within an ulp of e^x, and
+// e^expMax is more than an ulp below the largest double).
+var expMax = func() float64 {
+	lo, hi := math.Float64bits(709), math.Float64bits(710) // exp finite at lo, not at hi
+	for hi-lo > 1 {
+		mid := lo + (hi-lo)/2
+		if math.IsInf(math.Exp(math.Float64frombits(mid)), 1) {
+			hi = mid
+		} else {
+			lo = mid
+		}
+	}
+	return math.Float64frombits(lo)
+}()
+
+// div is z/s. PostgreSQL raises "value out of range: underflow" where a
+// quotient of a non-zero z rounds to zero; postgres and ansi text spell
+// that case as the signed zero IEEE 754 division gives. For |z| >= 2^-51
+// the quotient is above 2^-1075 (|s| < 2^1024) and never rounds to zero;
+// below, z/s rounds to zero exactly when |z|/|s| <= 2^-1075 (a tie goes to
+// the even zero), that is |s| >= |z|·2^1075, computed exactly and without
+// overflow as |z|·2^537·2^538.
+func (g *gen) div(z, s string) string {
+	if g.d != Postgres && g.d != ANSI {
+		return z + " / " + s
+	}
+	num := g.d.num
+	return fmt.Sprintf("CASE WHEN ABS(%[1]s) >= %[3]s THEN %[1]s / %[2]s WHEN ABS(%[2]s) >= ABS(%[1]s) * %[4]s * %[5]s THEN CASE WHEN %[2]s < %[6]s THEN %[1]s * %[7]s ELSE %[1]s * %[6]s END ELSE %[1]s / %[2]s END",
+		z, s, num(0x1p-51), num(0x1p537), num(0x1p538), num(0), num(math.Copysign(0, -1)))
+}
+
+// scaleStage multiplies every output by the transform scale s (when it is
+// not 1): one float64 multiplication, or under float32 accumulation the
+// float32 product round32(round32(s)·z). A float64 product rounding to
+// zero from non-zero operands is an error in PostgreSQL; postgres and ansi
+// text give the signed zero below scaleTiny.
+func (g *gen) scaleStage() {
+	s := g.p.Scale()
+	if s == 1 {
+		return
+	}
+	num := g.d.num
+	if g.p.Float32Accumulate() {
+		s32 := float64(float32(s))
+		g.mapStage(func(z string) string { return g.r32(num(s32) + " * " + z) })
+		return
+	}
+	if g.d != Postgres && g.d != ANSI {
+		g.mapStage(func(z string) string { return z + " * " + num(s) })
+		return
+	}
+	tiny := scaleTiny(s)
+	g.mapStage(func(z string) string {
+		return fmt.Sprintf("CASE WHEN ABS(%s) <= %s THEN %s * %s ELSE %s * %s END", z, num(tiny), z, num(math.Copysign(0, s)), z, num(s))
+	})
+}
+
+// scaleTiny is the largest z >= 0 whose product with s rounds to zero (0
+// when only 0 does): a binary search over the doubles, which the product
+// orders.
+func scaleTiny(s float64) float64 {
+	lo, hi := uint64(0), math.Float64bits(math.MaxFloat64)
+	for lo < hi { // the largest bits b with Float64frombits(b)·|s| == 0
+		mid := lo + (hi-lo+1)/2
+		if float64(math.Float64frombits(mid)*math.Abs(s)) == 0 {
+			lo = mid
+		} else {
+			hi = mid - 1
+		}
+	}
+	return math.Float64frombits(lo)
+}
+
+// finish32 ends a float32 accumulation. Native sums (PostgreSQL, DuckDB)
+// divide an average in float32 arithmetic (PostgreSQL raises an error where
+// a quotient of a non-zero sum rounds to zero, so, as divideStage does, the
+// sums of at most floor(n/2)·2^-149 give the signed zero) and add the base
+// score, then become doubles. In SQLite and ANSI text the last addition is
+// rounded, then an average is round32(round32(acc/n) + base).
+func (g *gen) finish32() {
+	num := g.d.num
+	avg := g.p.Combine == forest.Average
+	if g.native32() {
+		items := g.carry(false)
+		for j := 0; j < g.p.NumOutputs; j++ {
+			z := outCol(j)
+			e := z
+			if avg {
+				n := g.p.TreesAddingTo(j)
+				tiny := float64(n/2) * 0x1p-149
+				e = fmt.Sprintf("CASE WHEN ABS(%s) <= %s THEN %s * %s ELSE %s / %s END + %s",
+					z, g.acc(tiny), z, g.acc(0), z, g.acc(float64(n)), g.acc(g.p.BaseScore[j]))
+			}
+			items = append(items, g.toDouble(e)+" AS "+z)
+		}
+		g.cte(items, true)
+		return
+	}
+	g.mapStage(g.r32)
+	if avg {
+		items := g.carry(false)
+		for j := 0; j < g.p.NumOutputs; j++ {
+			items = append(items, g.r32(outCol(j)+" / "+num(float64(g.p.TreesAddingTo(j))))+" AS "+outCol(j))
+		}
+		g.cte(items, true)
+		items = g.carry(false)
+		for j := 0; j < g.p.NumOutputs; j++ {
+			items = append(items, g.r32(outCol(j)+" + "+num(g.p.BaseScore[j]))+" AS "+outCol(j))
+		}
+		g.cte(items, true)
+	}
+}
+
+// transform32 applies the output transform under float32 accumulation, as
+// forest.ApplyTransform32 does, on doubles that hold float32 values: every
+// float32 operation is the double operation rounded by r32 (exact, see
+// f32.go), one rounding a stage so that r32's argument stays small. The
+// one exception is expf, which no engine has: it is written
+// round32(e^z) with the engine's double exp, which differs from the C
+// library's expf by an ulp on a few inputs in 100,000; transformed outputs
+// are held to Tolerance.
+func (g *gen) transform32() {
+	k := g.p.NumOutputs
+	num := g.d.num
+	switch g.p.Transform {
+	case forest.Logistic, forest.LogisticEach:
+		// round32(1 / round32(1 + expf(-z)))
+		g.mapStage(func(z string) string { return g.expArg(z + " * " + num(-1)) })
+		g.mapStage(g.r32)
+		g.mapStage(func(z string) string { return g.r32(num(1) + " + " + z) })
+		g.mapStage(func(z string) string { return g.r32(num(1) + " / " + z) })
+	case forest.Exp:
+		g.mapStage(g.expArg)
+		g.mapStage(g.r32)
+	case forest.Softmax:
+		zs := outCols(k)
+		m, _ := g.largest(zs, false)
+		items := append(g.carry(false), zs...)
+		g.cte(append(items, m+" AS m"), true)
+		g.mapStage(func(z string) string { return g.r32(z + " - m") })
+		g.mapStage(g.expArg)
+		g.mapStage(g.r32)
+		sum := g.sumStages(zs) // in double, as the format says
+		items = append(g.carry(false), zs...)
+		g.cte(append(items, g.r32(sum)+" AS "+sum), true)
+		g.mapStage(func(z string) string { return g.r32(z + " / " + sum) })
+	case forest.Normalize:
+		// s in float32, in order; z_j/s, or 0 when s is 0.
+		zs := outCols(k)
+		items := append(g.carry(false), zs...)
+		g.cte(append(items, zs[0]+" AS "+sumCol), true)
+		for j := 1; j < k; j++ {
+			items := append(g.carry(false), zs...)
+			g.cte(append(items, g.r32(sumCol+" + "+zs[j])+" AS "+sumCol), true)
+		}
+		g.mapStage(func(z string) string {
+			return fmt.Sprintf("CASE WHEN %s = %s THEN %s ELSE %s END", sumCol, num(0), num(0), g.r32(z+" / "+sumCol))
+		})
+	}
+}
+
+// expArg is e^a in double for a float32 a, ready for r32: arguments
+// beyond ±700 give 1e300 or 0, which round32 takes to +Inf and +0 as it
+// would the true values (|a| <= 700 keeps PostgreSQL's exp from raising
+// an error on overflow or underflow).
+func (g *gen) expArg(a string) string {
+	num := g.d.num
+	return fmt.Sprintf("CASE WHEN %s > %s THEN %s WHEN %s < %s THEN %s ELSE EXP(%s) END", a, num(700), num(1e300), a, num(-700), num(0), a)
+}
+
+// sumStages adds the outputs zs up in the interpreter's order, at most
+// sumTerms additions a stage (SQLite refuses an expression tree deeper than
+// 1000), into column sumCol, carrying the outputs; it returns sumCol.
+func (g *gen) sumStages(zs []string) string {
+	sum := ""
+	for a := 0; a < len(zs); a += sumTerms {
+		b := min(a+sumTerms, len(zs))
+		terms := zs[a:b]
+		if sum != "" {
+			terms = append([]string{sum}, terms...)
+		}
+		items := append(g.carry(false), zs...)
+		items = append(items, strings.Join(terms, " + ")+" AS "+sumCol)
+		g.cte(items, true)
+		sum = sumCol
+	}
+	return sum
 }
 
 // sumTerms is the most terms one stage adds up.
