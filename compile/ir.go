@@ -3,6 +3,7 @@ package compile
 import (
 	"encoding/json"
 	"fmt"
+	"math"
 
 	"sawmill/forest"
 )
@@ -305,4 +306,23 @@ func (p *Program) UsedFeatures() []int {
 		}
 	}
 	return u
+}
+
+// Magnitudes returns the sum over trees of each tree's largest |leaf value|
+// and the largest |base score|: what error bounds of the joined score are
+// built from.
+func (p *Program) Magnitudes() (leaves, base float64) {
+	for ti := range p.Trees {
+		big := 0.0
+		for i := range p.Trees[ti].Nodes {
+			for _, v := range p.Trees[ti].Nodes[i].Value {
+				big = math.Max(big, math.Abs(v))
+			}
+		}
+		leaves += big
+	}
+	for _, v := range p.BaseScore {
+		base = math.Max(base, math.Abs(v))
+	}
+	return leaves, base
 }

@@ -72,7 +72,7 @@ func ErrorBound(p *compile.Program, float bool) float64 {
 	}
 	const u = 0x1p-24
 	gamma := func(n float64) float64 { return n * u / (1 - n*u) }
-	m, b := magnitudes(p)
+	m, b := p.Magnitudes()
 	T := float64(len(p.Trees))
 	// With trees of one output, output j sums fewer trees, T_j; the bound
 	// below takes T for the count of roundings and the smallest T_j for
@@ -116,7 +116,7 @@ func FitsFloat(p *compile.Program) error {
 	if err := floatBounded(p); err != nil {
 		return err
 	}
-	total, _ := magnitudes(p)
+	total, _ := p.Magnitudes()
 	for _, v := range p.BaseScore {
 		total = math.Max(total, total+math.Abs(v))
 	}
@@ -129,26 +129,8 @@ func FitsFloat(p *compile.Program) error {
 // maxScore bounds |z|, the joined and scaled score, over every row: |scale|
 // times (the largest |base| plus each tree's largest |leaf|).
 func maxScore(p *compile.Program) float64 {
-	m, b := magnitudes(p)
+	m, b := p.Magnitudes()
 	return math.Abs(p.Scale()) * (m + b)
-}
-
-// magnitudes returns the sum over trees of each tree's largest |leaf|, and
-// the largest |base score|.
-func magnitudes(p *compile.Program) (leaves, base float64) {
-	for ti := range p.Trees {
-		big := 0.0
-		for i := range p.Trees[ti].Nodes {
-			for _, v := range p.Trees[ti].Nodes[i].Value {
-				big = math.Max(big, math.Abs(v))
-			}
-		}
-		leaves += big
-	}
-	for _, v := range p.BaseScore {
-		base = math.Max(base, math.Abs(v))
-	}
-	return leaves, base
 }
 
 // floatBounded reports whether float mode can score p, a model that

@@ -69,19 +69,7 @@ func Tolerance(p *compile.Program) float64 {
 // tree's largest |leaf|, plus the largest |base score|, times |scale|, with
 // 1% to spare for float32 roundings.
 func maxScore(p *compile.Program) float64 {
-	leaves, base := 0.0, 0.0
-	for ti := range p.Trees {
-		big := 0.0
-		for i := range p.Trees[ti].Nodes {
-			for _, v := range p.Trees[ti].Nodes[i].Value {
-				big = math.Max(big, math.Abs(v))
-			}
-		}
-		leaves += big
-	}
-	for _, v := range p.BaseScore {
-		base = math.Max(base, math.Abs(v))
-	}
+	leaves, base := p.Magnitudes()
 	return 1.01 * math.Abs(p.Scale()) * (leaves + base)
 }
 
