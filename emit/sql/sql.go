@@ -245,10 +245,17 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 			}
 		}
 	}
+	// A float32 model's base score, or its transform scale, can round to an
+	// infinity in float32 (a finite float64 past float32's range). SQL has
+	// no portable literal for it: the model is refused as one this target
+	// cannot write, never emitted with a different number.
 	for _, v := range p.BaseScore {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, fmt.Errorf("sql: base score %v is not a finite number, which SQL cannot spell", v)
+			return nil, &emit.Unsupported{Target: "sql", Construct: fmt.Sprintf("a base score of %v (past float32's range)", v)}
 		}
+	}
+	if s := p.Scale(); p.Float32Accumulate() && s != 1 && math.IsInf(float64(float32(s)), 0) {
+		return nil, &emit.Unsupported{Target: "sql", Construct: fmt.Sprintf("a transform scale of %v, which float32 rounds to an infinity", s)}
 	}
 	if g.d == SQLite {
 		seen := map[float64]bool{}
