@@ -525,6 +525,19 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	return res, err
 }
 
+// runError is the error of a statement that failed to run. PostgreSQL
+// raises "value out of range: overflow" where a float32 sum (a real column)
+// passes float32's range, instead of giving an infinity as the interpreter
+// does: for a float32-accumulating program that is a model the engine
+// cannot score on these rows, declined with the reason, never a number
+// that differs.
+func runError(p *compile.Program, engine string, err error) error {
+	if p.Float32Accumulate() && strings.Contains(err.Error(), "value out of range: overflow") {
+		return fmt.Errorf("%w: %s raises overflow where a float32 sum passes float32's range: %v", ErrDeclined, engine, shorten(err))
+	}
+	return fmt.Errorf("%s: run: %v", engine, shorten(err))
+}
+
 // run prepares and runs the statement and reads the result: n rows and
 // then the NaN twins of the last load. Build is the prepare time, Run the
 // execution and reading.
@@ -539,7 +552,7 @@ func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n, ex
 	start = time.Now()
 	q, err := stmt.QueryContext(ctx)
 	if err != nil {
-		return nil, fmt.Errorf("%s: run: %v", engine, shorten(err))
+		return nil, runError(p, engine, err)
 	}
 	defer q.Close()
 	c := newCollector(p, n, db.twins, engine)
@@ -565,7 +578,7 @@ func (db *sqlDB) run(ctx context.Context, p *compile.Program, text string, n, ex
 		}
 	}
 	if err := q.Err(); err != nil {
-		return nil, fmt.Errorf("%s: run: %v", engine, shorten(err))
+		return nil, runError(p, engine, err)
 	}
 	res, err := c.finish()
 	if err != nil {
