@@ -1,4 +1,4 @@
-module sawmill
+module github.com/sawmill-dev/sawmill
 
 go 1.26.8
 

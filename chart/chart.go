@@ -23,7 +23,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgsvg"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // File names of the charts, for folders that hold them.

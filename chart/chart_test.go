@@ -17,8 +17,8 @@ import (
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
 
-	"sawmill/forest"
-	"sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
 )
 
 // pumps invents a small pump-health table; it stands for no real

@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Check verifies the Program's invariants and returns the first violation,

@@ -1,7 +1,7 @@
 package compile
 
 import (
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Eval scores one row with the Program itself, the way an emitted target

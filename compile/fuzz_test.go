@@ -10,7 +10,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // The fuzz targets hold the compiled Program against the interpreter bit for

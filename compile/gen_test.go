@@ -6,7 +6,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // randomForest makes a small random valid forest with repeated and adjacent

@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"math"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Compare says what a split's comparison sees of the input.

@@ -6,7 +6,7 @@ import (
 	"encoding/hex"
 	"fmt"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Lower turns a validated forest into a Program with the same meaning: the

@@ -6,7 +6,7 @@ import (
 	"slices"
 	"time"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Pass is one step of the pipeline. A pass is exact when, for every input row

@@ -3,7 +3,7 @@ package compile
 import (
 	"math"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // LeafRows returns rows that reach the leaves of f: for each reachable leaf

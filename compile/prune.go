@@ -3,7 +3,7 @@ package compile
 import (
 	"math"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // prune decides splits from the facts of their path. Along each root-to-leaf

@@ -7,7 +7,7 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // The text form of a Program has one line per node, so pass tests can be

@@ -1,6 +1,6 @@
 package compile
 
-import "sawmill/forest"
+import "github.com/sawmill-dev/sawmill/forest"
 
 // lowerVote turns a vote model into an average of one-hot vectors: each leaf
 // becomes 1 at the argmax of its vector (ties to the lowest index) and 0

@@ -3,8 +3,8 @@ package emit
 import (
 	"fmt"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Unsupported is the error of a target asked to write a construct it cannot

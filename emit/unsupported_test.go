@@ -4,7 +4,7 @@ import (
 	"strings"
 	"testing"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // Format2Uses finds each format 2 construct once, at its first use, and the

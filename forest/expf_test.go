@@ -6,7 +6,7 @@ import (
 	"sync"
 	"testing"
 
-	"sawmill/forest/internal/libm"
+	"github.com/sawmill-dev/sawmill/forest/internal/libm"
 )
 
 // The reference for Expf is the C library's expf (glibc on the machines

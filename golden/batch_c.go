@@ -13,7 +13,7 @@ import (
 	"sync"
 	"time"
 
-	cemit "sawmill/emit/c"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
 )
 
 // ScoreBatch implements BatchScorer for the registered runner's

@@ -13,8 +13,8 @@ import (
 	"strings"
 	"time"
 
-	"sawmill/emit/golang"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // goBatchDriver is the package that scores a batch: a test importing every

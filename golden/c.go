@@ -16,10 +16,10 @@ import (
 	"sync"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	cemit "sawmill/emit/c"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // cRunner builds emitted C with the real compilers and runs it. Every Score

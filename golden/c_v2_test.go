@@ -9,9 +9,9 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sawmill/compile"
-	cemit "sawmill/emit/c"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Format 2 in the C target: hand-made forests for each construct, built in

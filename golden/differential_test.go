@@ -14,8 +14,8 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Differential testing after Yang, Chen, Eide and Regehr, "Finding and

@@ -3,7 +3,7 @@ package golden
 import (
 	"math"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Agreement is how one scorer (the interpreter, or a target) agrees with

@@ -12,7 +12,7 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // GenOptions bounds the forests RandomForest draws. Zero values mean the

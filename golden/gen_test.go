@@ -9,7 +9,7 @@ import (
 	"slices"
 	"testing"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 func encode(t *testing.T, f *forest.Forest) []byte {

@@ -15,10 +15,10 @@ import (
 	"sync"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/emit/golang"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // goRunner builds emitted Go with the real toolchain. The package goes into

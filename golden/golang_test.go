@@ -8,10 +8,10 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/emit/golang"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // handForest is a small forest written out for one edge case.

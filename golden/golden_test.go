@@ -13,8 +13,8 @@ import (
 	"strings"
 	"testing"
 
-	"sawmill/compile"
-	"sawmill/emit"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 )
 
 var update = flag.Bool("update", false, "rewrite snapshot files that differ")

@@ -10,9 +10,9 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // deepDepth is the depth of the deep-tree limit test, the depth the project

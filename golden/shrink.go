@@ -5,7 +5,7 @@ import (
 	"math"
 	"slices"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Shrink makes a failing case smaller while fails still reports it failing:

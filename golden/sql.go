@@ -19,10 +19,10 @@ import (
 	_ "github.com/jackc/pgx/v5/stdlib" // database/sql driver "pgx"
 	_ "modernc.org/sqlite"             // database/sql driver "sqlite", pure Go
 
-	"sawmill/compile"
-	"sawmill/emit"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // sqlRunner runs emitted SQL in a real engine: it creates a table with one

@@ -11,9 +11,9 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/compile"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // loadValues creates table r32 (i, x) in db's session and loads xs, bound

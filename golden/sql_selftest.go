@@ -1,8 +1,8 @@
 package golden
 
 import (
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // SelftestProbes is what sql.Selftest takes for f (and what `sawmill

@@ -10,9 +10,9 @@ import (
 	"strings"
 	"testing"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	sqlemit "sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
 )
 
 // splitScript cuts a script into statements at semicolons outside string

@@ -14,8 +14,8 @@ import (
 	"sync"
 	"time"
 
-	"sawmill/compile"
-	sqlemit "sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/compile"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
 )
 
 // The system sqlite3 shell. Most SQLite users run the stock build (the

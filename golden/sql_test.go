@@ -9,10 +9,10 @@ import (
 	"strings"
 	"testing"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // The SQL runners' own tests: what the golden cases do not reach (deep

@@ -11,8 +11,8 @@ import (
 	"strings"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // DefaultMaxRows caps the rows Verify generates when none are given.

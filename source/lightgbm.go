@@ -45,7 +45,7 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 var lightgbmFormat = Format{

@@ -16,7 +16,7 @@ import (
 	"os"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Options are what a user can say about a model that its file does not.

@@ -9,7 +9,7 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // XGBoost's model files, JSON and UBJSON, of versions 1.x to 3.x: one

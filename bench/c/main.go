@@ -31,10 +31,10 @@ import (
 	"strings"
 	"time"
 
-	"sawmill/compile"
-	cemit "sawmill/emit/c"
-	"sawmill/emit/golang"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 func main() {

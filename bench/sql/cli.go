@@ -13,10 +13,10 @@ import (
 	"strings"
 	"time"
 
-	"sawmill/compile"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 var runTime = regexp.MustCompile(`Run Time: real ([0-9.]+) user ([0-9.]+) sys ([0-9.]+)`)

@@ -22,12 +22,12 @@ import (
 	"strings"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
-	"sawmill/forest/train"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 func main() {

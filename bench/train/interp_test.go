@@ -4,9 +4,9 @@ import (
 	"sync"
 	"testing"
 
-	"sawmill/bench/train/synth"
-	"sawmill/forest"
-	"sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/bench/train/synth"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
 )
 
 var bench500 struct {

@@ -12,9 +12,9 @@ import (
 	"syscall"
 	"time"
 
-	"sawmill/bench/train/synth"
-	"sawmill/forest"
-	"sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/bench/train/synth"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
 )
 
 func main() {

@@ -10,9 +10,9 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // target is one --target value: the compile options it needs and how it

@@ -15,15 +15,15 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/chart"
-	"sawmill/compile"
-	"sawmill/emit"
-	cemit "sawmill/emit/c"
-	"sawmill/emit/golang"
-	sqlemit "sawmill/emit/sql"
-	"sawmill/forest"
-	"sawmill/forest/train"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/chart"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // Demo defaults: the seed is part of the demo's stated result.

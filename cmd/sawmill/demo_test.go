@@ -13,7 +13,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 func encodeModel(t *testing.T, f *forest.Forest) []byte {

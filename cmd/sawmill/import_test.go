@@ -8,8 +8,8 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sawmill/forest"
-	"sawmill/source"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/source"
 )
 
 const xgbFixture = "../../source/testdata/xgboost/x3_multi_softprob/model.ubj"

@@ -15,7 +15,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 func newInspectCmd() *cobra.Command {

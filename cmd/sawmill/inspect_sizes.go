@@ -7,9 +7,9 @@ import (
 	"io"
 	"text/tabwriter"
 
-	"sawmill/compile"
-	cemit "sawmill/emit/c"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // printCSizes reports, for C in double and in float, each layout's static

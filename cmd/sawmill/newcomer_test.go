@@ -15,7 +15,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // copyFile copies testdata into dir and returns the copy's path.

@@ -9,8 +9,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/chart"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/chart"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // plotsOutput adds --plots DIR to sawmill train: the out-of-bag error curve

@@ -11,8 +11,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/forest"
-	"sawmill/source"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/source"
 )
 
 func newPredictCmd() *cobra.Command {

@@ -11,7 +11,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // `sawmill predict` prints the kept columns, one column per class in class

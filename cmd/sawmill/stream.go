@@ -9,7 +9,7 @@ import (
 	"runtime"
 	"sync"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // predictChunk is the rows predict reads, scores and writes at a time: big

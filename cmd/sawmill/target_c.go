@@ -1,9 +1,9 @@
 package main
 
 import (
-	"sawmill/compile"
-	"sawmill/emit"
-	cemit "sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	cemit "github.com/sawmill-dev/sawmill/emit/c"
 )
 
 // cTarget emits NAME.h and NAME.c through emit/c. --float compiles the

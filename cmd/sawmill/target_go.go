@@ -1,10 +1,10 @@
 package main
 
 import (
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/emit/golang"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // goTarget emits a Go package through emit/golang.

@@ -4,10 +4,10 @@ import (
 	"fmt"
 	"strings"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/emit/sql"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // sqlTarget emits one statement through emit/sql and, with --selftest, the

@@ -10,8 +10,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/forest"
-	"sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
 )
 
 // trainRun is one `sawmill train`, handed to the extra outputs: before

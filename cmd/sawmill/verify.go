@@ -14,9 +14,9 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"sawmill/compile"
-	"sawmill/forest"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 type verifyFlags struct {

@@ -9,8 +9,8 @@ import (
 	"strings"
 	"text/tabwriter"
 
-	"sawmill/forest"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // DefaultTolerance is verify --tolerance's default: the bound within which

@@ -5,7 +5,7 @@ import (
 	"slices"
 	"strings"
 
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // checkVerifyFlags refuses --layout and --variant values that none of the

@@ -6,9 +6,9 @@ import (
 	"io"
 	"math"
 
-	"sawmill/compile"
-	"sawmill/forest"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // verifyChunk is the most rows of --data verify holds at once. A file

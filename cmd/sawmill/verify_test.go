@@ -10,9 +10,9 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sawmill/compile"
-	"sawmill/forest"
-	"sawmill/golden"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/golden"
 )
 
 // registeredTargets are the runner names verify can use in this build.

@@ -4,8 +4,8 @@ import (
 	"fmt"
 	"math"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // ErrorBound bounds |C output - interpreter output| for every row, 0 when

@@ -43,9 +43,9 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Options controls the emitted C.

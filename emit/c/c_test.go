@@ -13,9 +13,9 @@ import (
 
 	"github.com/stretchr/testify/require"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 func TestCommentIsSafe(t *testing.T) {

@@ -5,7 +5,7 @@ import (
 	"math"
 	"strings"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // nested writes one static function per tree and predict calling them in

@@ -11,8 +11,8 @@ import (
 	"path/filepath"
 	"strings"
 
-	"sawmill/compile"
-	"sawmill/emit"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 )
 
 // Size is what one layout of a program costs.

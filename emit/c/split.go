@@ -5,9 +5,9 @@ import (
 	"math"
 	"strings"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Format 2's splits in C: set splits, the missing band and zero-as-missing.

@@ -7,7 +7,7 @@ import (
 	"slices"
 	"strings"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // The table layout. Each tree's splits are packed words in preorder, one

@@ -14,11 +14,11 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/bench/train/synth"
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
-	"sawmill/forest/train"
+	"github.com/sawmill-dev/sawmill/bench/train/synth"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
 )
 
 // BenchmarkLayouts holds the emitted Go of every layout against the
@@ -114,7 +114,7 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	mod := fmt.Sprintf("module bench\n\ngo 1.21\n\nrequire sawmill v0.0.0\n\nreplace sawmill => %s\n", root)
+	mod := fmt.Sprintf("module bench\n\ngo 1.21\n\nrequire github.com/sawmill-dev/sawmill v0.0.0\n\nreplace github.com/sawmill-dev/sawmill => %s\n", root)
 	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte(mod), 0o644); err != nil {
 		b.Fatal(err)
 	}
@@ -202,7 +202,7 @@ import (
 	"slices"
 	"time"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 `)
 	for _, l := range layouts {
 		fmt.Fprintf(&b, "\t%q\n", "bench/"+l)

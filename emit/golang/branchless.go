@@ -3,7 +3,7 @@ package golang
 import (
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // The branchless layout stores each tree of depth d <= MaxBranchlessDepth

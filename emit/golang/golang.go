@@ -33,9 +33,9 @@ import (
 
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Options controls the emitted package.

@@ -13,9 +13,9 @@ import (
 	"testing"
 	"time"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // TestMillionNodes measures what auto costs on a forest of about a million

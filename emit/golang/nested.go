@@ -5,7 +5,7 @@ import (
 
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // The nested layout is one function per tree. Each split becomes an if whose

@@ -9,7 +9,7 @@ import (
 
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // The table layout keeps the forest as flat arrays walked by one loop. The

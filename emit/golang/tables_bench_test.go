@@ -8,8 +8,8 @@ import (
 	"path/filepath"
 	"testing"
 
-	"sawmill/compile"
-	"sawmill/emit"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 )
 
 // BenchmarkTableBuild measures what the table layout's two ways of writing

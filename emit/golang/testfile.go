@@ -7,8 +7,8 @@ import (
 
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // testRow is one row checked by the emitted model_test.go, with the outputs

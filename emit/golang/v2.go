@@ -7,8 +7,8 @@ import (
 
 	"github.com/dave/jennifer/jen"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Format version 2 in the Go target. A program that uses none of it is

@@ -5,7 +5,7 @@ import (
 	"math"
 	"strings"
 
-	"sawmill/compile"
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // Float32 arithmetic in SQL.

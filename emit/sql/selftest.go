@@ -6,9 +6,9 @@ import (
 	"strings"
 	"unicode/utf8"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // SelftestFileName is the name of the file Selftest returns.

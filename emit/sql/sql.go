@@ -10,9 +10,9 @@ import (
 	"strings"
 	"unicode/utf8"
 
-	"sawmill/compile"
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Dialect is the SQL engine the statement is written for.

@@ -6,8 +6,8 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/emit"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // statement writes the whole file: header comment, then one statement made

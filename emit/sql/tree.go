@@ -5,8 +5,8 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/compile"
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // maxIndent caps indentation, so that a 300-deep tree does not spend most

@@ -11,7 +11,7 @@ import (
 	"strconv"
 	"strings"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // Data is a training table: a feature matrix and one label per row.

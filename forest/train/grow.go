@@ -5,7 +5,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // table is the training data laid out for growing: one column per feature,

@@ -11,7 +11,7 @@ import (
 	"sync"
 	"sync/atomic"
 
-	"sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // DefaultTrees is the number of trees grown when Settings.Trees is 0.
