@@ -12,6 +12,8 @@ require (
 	modernc.org/sqlite v1.62.0
 )
 
+require google.golang.org/protobuf v1.36.11
+
 require (
 	codeberg.org/go-fonts/liberation v0.5.0 // indirect
 	codeberg.org/go-latex/latex v0.2.0 // indirect
