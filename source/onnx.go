@@ -171,13 +171,13 @@ func readONNX(data []byte, name string, o Options) (*Result, error) {
 // onnxGraph finds the one tree-ensemble node and the graph input it reads,
 // and refuses every other node but Cast, ZipMap and Identity after it.
 func onnxGraph(g *onnxpb.GraphProto, name string) (*onnxpb.NodeProto, *onnxpb.ValueInfoProto, error) {
-	inits := map[string]bool{}
+	inits := map[string]*onnxpb.TensorProto{}
 	for _, t := range g.GetInitializer() {
-		inits[t.GetName()] = true
+		inits[t.GetName()] = t
 	}
 	var inputs []*onnxpb.ValueInfoProto
 	for _, in := range g.GetInput() {
-		if !inits[in.GetName()] {
+		if inits[in.GetName()] == nil {
 			inputs = append(inputs, in)
 		}
 	}
@@ -224,8 +224,14 @@ func onnxGraph(g *onnxpb.GraphProto, name string) (*onnxpb.NodeProto, *onnxpb.Va
 			for _, out := range n.GetOutput() {
 				after[out] = true
 			}
+		case (dom == "" || dom == "ai.onnx") && n.GetOpType() == "Mul" && len(n.GetInput()) == 2 && onnxIsOne(inits[n.GetInput()[1]]) && after[n.GetInput()[0]]:
+			// onnxmltools 1.16.0 writes LightGBM classifiers with their
+			// probabilities multiplied by a constant 1: x*1 is x exactly.
+			for _, out := range n.GetOutput() {
+				after[out] = true
+			}
 		default:
-			return nil, nil, onnxErr(name, "%s: not read; sawmill reads one TreeEnsembleRegressor or TreeEnsembleClassifier on the graph's input, with only Cast, ZipMap or Identity after it", at)
+			return nil, nil, onnxErr(name, "%s: not read; sawmill reads one TreeEnsembleRegressor or TreeEnsembleClassifier on the graph's input, with only Cast, ZipMap, Identity or a multiplication by 1 after it", at)
 		}
 	}
 	if ens == nil {
@@ -237,6 +243,22 @@ func onnxGraph(g *onnxpb.GraphProto, name string) (*onnxpb.NodeProto, *onnxpb.Va
 		return nil, nil, onnxErr(name, "graph node %q: unknown operator %s", ens.GetName(), ens.GetOpType())
 	}
 	return ens, inputs[0], nil
+}
+
+// onnxIsOne reports whether t is a float tensor of one element, 1.
+func onnxIsOne(t *onnxpb.TensorProto) bool {
+	if t == nil || onnxpb.TensorProto_DataType(t.GetDataType()) != onnxpb.TensorProto_FLOAT {
+		return false
+	}
+	for _, d := range t.GetDims() {
+		if d != 1 {
+			return false
+		}
+	}
+	if raw := t.GetRawData(); t.RawData != nil {
+		return len(raw) == 4 && math.Float32frombits(binary.LittleEndian.Uint32(raw)) == 1
+	}
+	return len(t.GetFloatData()) == 1 && t.GetFloatData()[0] == 1
 }
 
 // onnxInputWidth returns the number of features the input tensor declares
@@ -646,36 +668,42 @@ func (e *onnxEnsemble) forest(name string, nf int, o Options) (*Result, error) {
 	// per output in the binary case.
 	outs := k
 	switch e.post {
-	case "NONE":
-	case "LOGISTIC":
-		switch {
-		case binaryCase:
-			f.Transform = forest.Logistic
-			outs = 1
-			notes = append(notes, "one score for two labels: the output is the probability of the second, logistic(score); ONNX Runtime also outputs 1 minus it for the first")
-		case k == 1:
-			f.Transform = forest.Logistic
-		default:
-			f.Transform = forest.LogisticEach
-		}
-	case "SOFTMAX":
-		if binaryCase {
-			notes = append(notes, "one score s for two labels: ONNX Runtime outputs [-s, s] and does not apply its SOFTMAX there, and neither does sawmill")
-		} else {
-			f.Transform = forest.Softmax
-		}
-	case "SOFTMAX_ZERO":
-		if !binaryCase {
-			return nil, onnxErr(name, "%s: post_transform SOFTMAX_ZERO (a softmax that leaves zero scores at zero) has no counterpart in sawmill's model format\nhint: convert the model with post_transform SOFTMAX or NONE", e.op)
-		}
-		notes = append(notes, "one score s for two labels: ONNX Runtime outputs [-s, s] and does not apply its SOFTMAX_ZERO there, and neither does sawmill")
-	case "PROBIT":
-		return nil, onnxErr(name, "%s: post_transform PROBIT (the inverse of the normal distribution function) has no counterpart in sawmill's model format", e.op)
+	case "NONE", "LOGISTIC", "SOFTMAX", "SOFTMAX_ZERO", "PROBIT":
 	default:
 		return nil, onnxErr(name, "%s: unknown post_transform %q", e.op, clip([]byte(e.post)))
 	}
-	if f.Task == forest.Regression && f.Transform == forest.Softmax && k == 1 {
-		return nil, onnxErr(name, "%s: post_transform SOFTMAX on a single target", e.op)
+	// positive: no weight is negative, which decides what ONNX Runtime
+	// makes of a binary case's one score.
+	positive := !slices.ContainsFunc(e.weights, func(w float32) bool { return w < 0 })
+	switch {
+	case e.post == "PROBIT":
+		return nil, onnxErr(name, "%s: post_transform PROBIT (the inverse of the normal distribution function) has no counterpart in sawmill's model format", e.op)
+	case binaryCase && e.post == "LOGISTIC":
+		f.Transform = forest.Logistic
+		outs = 1
+		notes = append(notes, "one score s for two labels: the output is p = logistic(s), the probability of the second label; ONNX Runtime also outputs 1-p for the first")
+		if positive {
+			notes = append(notes, "warning: no weight is negative, so ONNX Runtime's label is the second when s > 0.5, not when p > 0.5 as its own probabilities say; sawmill's class follows the probabilities")
+		}
+	case binaryCase:
+		// NONE, and SOFTMAX and SOFTMAX_ZERO, which ONNX Runtime does not
+		// apply in the binary case.
+		s := "[-s, s]"
+		if positive {
+			s = "[1-s, s]"
+		}
+		notes = append(notes, fmt.Sprintf("one score s for two labels: the outputs are %s, as ONNX Runtime gives them under post_transform %s", s, e.post))
+	case e.post == "NONE":
+	case k == 1 && !e.classifier:
+		// One target: ONNX Runtime applies PROBIT only (measured: LOGISTIC
+		// leaves the score as it is).
+		notes = append(notes, fmt.Sprintf("post_transform %s on a single target: ONNX Runtime does not apply it, and neither does sawmill", e.post))
+	case e.post == "LOGISTIC":
+		f.Transform = forest.LogisticEach
+	case e.post == "SOFTMAX":
+		f.Transform = forest.Softmax
+	case e.post == "SOFTMAX_ZERO":
+		return nil, onnxErr(name, "%s: post_transform SOFTMAX_ZERO (a softmax that leaves zero scores at zero) has no counterpart in sawmill's model format\nhint: convert the model with post_transform SOFTMAX or NONE", e.op)
 	}
 
 	// A leaf's vector: the weights of each output, zero where none (adding
@@ -775,6 +803,11 @@ func (e *onnxEnsemble) forest(name string, nf int, o Options) (*Result, error) {
 		}
 		if added {
 			notes = append(notes, "base_values added after the trees, as ONNX Runtime does: they are the last tree(s), of a single leaf")
+		}
+		if binaryCase && outs == 2 && positive {
+			// 1-s: the first output holds -s; one more float32 addition.
+			f.Trees = append(f.Trees, forest.Tree{Feature: []int{-1}, Threshold: []float64{0}, Left: []int{-1}, Right: []int{-1}, MissingLeft: []bool{false},
+				HasOutput: true, Output: 0, Value: []float64{1}})
 		}
 	}
 	if c.sets > 0 {
