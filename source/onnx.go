@@ -143,7 +143,7 @@ func readONNX(data []byte, name string, o Options) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
-	r, err := e.forest(name, nf, o)
+	r, err := e.forest(name, nf, int64(len(data)), o)
 	if err != nil {
 		return nil, err
 	}
@@ -606,7 +606,7 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 }
 
 // forest converts the checked ensemble into a format-2 forest.
-func (e *onnxEnsemble) forest(name string, nf int, o Options) (*Result, error) {
+func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*Result, error) {
 	var notes []string
 	f := &forest.Forest{
 		InputPrecision: forest.Float32,
@@ -725,7 +725,10 @@ func (e *onnxEnsemble) forest(name string, nf int, o Options) (*Result, error) {
 			dst[wt.target] = float64(wt.w)
 		}
 	}
-	budget := 4*int64(len(e.nodeIDs)) + 1<<16
+	// Memory in proportion to the file: node slots (an equality test on a
+	// non-integer copies a subtree) and value slots (a node of a model of
+	// many targets holds a vector).
+	budget := 4*int64(len(e.nodeIDs)) + 1024
 	maxNodes := o.Read.MaxNodes
 	if maxNodes <= 0 {
 		maxNodes = forest.DefaultMaxNodes
@@ -733,6 +736,7 @@ func (e *onnxEnsemble) forest(name string, nf int, o Options) (*Result, error) {
 	budget = min(budget, maxNodes)
 	var c onnxConv
 	c.budget = budget
+	c.values = 32*fileSize + 1<<16
 	for ti := range trees {
 		t := &trees[ti]
 		// A SUM tree whose weights all go to one target adds to that output
@@ -860,6 +864,7 @@ func onnxSingleTarget(t *onnxTree) int {
 // onnxConv turns ONNX trees into sawmill trees and counts the rewrites.
 type onnxConv struct {
 	budget            int64 // node slots left over all trees
+	values            int64 // value slots left over all trees
 	strict, sets, eq2 int
 	visited           []int8
 }
@@ -898,6 +903,10 @@ func (c *onnxConv) tree(t *onnxTree, name string, w int, leaf func([]onnxWeight,
 			return 0, onnxErr(name, "tree %d: the model needs more nodes than the limit allows (equality tests on non-integers copy subtrees)", t.id)
 		}
 		c.budget--
+		c.values -= int64(w)
+		if c.values < 0 {
+			return 0, onnxErr(name, "tree %d: %d outputs per node take more memory than a file of this size may ask for", t.id, w)
+		}
 		ft.Feature = append(ft.Feature, -1)
 		ft.Threshold = append(ft.Threshold, 0)
 		ft.Left = append(ft.Left, -1)
