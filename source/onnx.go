@@ -464,6 +464,51 @@ type onnxWeight struct {
 type onnxTree struct {
 	id    int64
 	nodes []onnxNode
+	index onnxIndex
+}
+
+// onnxIndex maps a tree's node ids to their places in the tree: a slice
+// while the ids are below the tree's size (as every converter numbers them),
+// a map otherwise.
+type onnxIndex struct {
+	dense  []int32 // -1: no such node
+	sparse map[int64]int
+}
+
+func newONNXIndex(n int) onnxIndex {
+	d := make([]int32, n)
+	for i := range d {
+		d[i] = -1
+	}
+	return onnxIndex{dense: d}
+}
+
+func (x *onnxIndex) get(id int64) (int, bool) {
+	if x.sparse != nil {
+		i, ok := x.sparse[id]
+		return i, ok
+	}
+	if id < 0 || id >= int64(len(x.dense)) || x.dense[id] < 0 {
+		return 0, false
+	}
+	return int(x.dense[id]), true
+}
+
+func (x *onnxIndex) set(id int64, i int) {
+	if x.sparse == nil && id >= 0 && id < int64(len(x.dense)) {
+		x.dense[id] = int32(i)
+		return
+	}
+	if x.sparse == nil {
+		x.sparse = make(map[int64]int, len(x.dense))
+		for j, v := range x.dense {
+			if v >= 0 {
+				x.sparse[int64(j)] = int(v)
+			}
+		}
+		x.dense = nil
+	}
+	x.sparse[id] = i
 }
 
 // onnxModes are the node modes of opsets 1 to 3.
@@ -496,9 +541,7 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 	if len(e.wTree) != nw || len(e.wNode) != nw || len(e.wTarget) != nw {
 		return nil, 0, onnxErr(name, "%s: %s_treeids, %s_nodeids, %s_ids and %s_weights have %d, %d, %d and %d entries: one per weight", e.op, w, w, w, w, len(e.wTree), len(e.wNode), len(e.wTarget), nw)
 	}
-	type key struct{ tree, node int64 }
 	treeOf := map[int64]int{} // tree id -> index in trees
-	index := make(map[key]int, n)
 	var trees []onnxTree
 	maxFeature := -1
 	for i := 0; i < n; i++ {
@@ -507,15 +550,19 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 		if !ok {
 			ti = len(trees)
 			treeOf[tid] = ti
-			trees = append(trees, onnxTree{id: tid})
+			end := i + 1
+			for end < n && e.treeIDs[end] == tid {
+				end++
+			}
+			trees = append(trees, onnxTree{id: tid, index: newONNXIndex(end - i), nodes: make([]onnxNode, 0, end-i)})
 		} else if ti != len(trees)-1 {
 			return nil, 0, onnxErr(name, "tree %d, node %d: the tree's nodes are not listed together (ONNX Runtime starts a tree where the tree id changes)", tid, nid)
 		}
-		if _, dup := index[key{tid, nid}]; dup {
+		t := &trees[ti]
+		if _, dup := t.index.get(nid); dup {
 			return nil, 0, onnxErr(name, "tree %d, node %d: node id given twice", tid, nid)
 		}
-		t := &trees[ti]
-		index[key{tid, nid}] = len(t.nodes)
+		t.index.set(nid, len(t.nodes))
 		mode := e.modes[i]
 		if !onnxModes[mode] {
 			if mode == "BRANCH_MEMBER" {
@@ -561,7 +608,7 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 				dst *int
 				key string
 			}{{e.trueIDs[i], &nd.trueChild, "nodes_truenodeids"}, {e.falseIDs[i], &nd.falseChild, "nodes_falsenodeids"}} {
-				ci, ok := index[key{t.id, c.id}]
+				ci, ok := t.index.get(c.id)
 				if !ok {
 					return nil, 0, onnxErr(name, "tree %d, node %d: %s names node %d, which the tree does not have", t.id, nd.id, c.key, c.id)
 				}
@@ -577,7 +624,7 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 		if !ok {
 			return nil, 0, onnxErr(name, "%s weight %d: tree %d does not exist", w, i, tid)
 		}
-		j, ok := index[key{tid, nid}]
+		j, ok := trees[ti].index.get(nid)
 		if !ok {
 			return nil, 0, onnxErr(name, "tree %d, node %d: a %s weight names a node the tree does not have", tid, nid, w)
 		}
@@ -896,8 +943,10 @@ func (c *onnxConv) tree(t *onnxTree, name string, w int, leaf func([]onnxWeight,
 			stack = append(stack, ch)
 		}
 	}
-	ft := forest.Tree{}
-	var cats [][]int32
+	m := len(t.nodes)
+	ft := forest.Tree{Feature: make([]int, 0, m), Threshold: make([]float64, 0, m), Left: make([]int, 0, m),
+		Right: make([]int, 0, m), MissingLeft: make([]bool, 0, m), Value: make([]float64, 0, m*w)}
+	cats := make([][]int32, 0, m)
 	newNode := func() (int, error) {
 		if c.budget <= 0 {
 			return 0, onnxErr(name, "tree %d: the model needs more nodes than the limit allows (equality tests on non-integers copy subtrees)", t.id)
