@@ -63,6 +63,10 @@ from sklearn.datasets import load_breast_cancer, load_diabetes, load_wine
 warnings.filterwarnings("ignore")
 
 OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "source", "testdata", "onnx")
+# SEED shifts every training seed and the hand-built models' generator: the
+# committed fixtures use 0, scripts/onnx_live_check.py another.
+SEED = 0
+QUIET = False
 OPSETS = {"": 17, "ai.onnx.ml": 3}
 
 
@@ -81,7 +85,7 @@ def dataset(name):
     # Four significant digits keep the committed rows small; the models are
     # trained on these values.
     X = np.vectorize(lambda v: float(f"{v:.4g}"))(X)
-    rng = np.random.default_rng(20240601)
+    rng = np.random.default_rng(20240601 + SEED)
     idx = rng.permutation(len(X))
     test = idx[:40]
     train = idx[40:]
@@ -245,7 +249,8 @@ def save(name, model, X, meta, skl=None):
     with open(os.path.join(d, "meta.json"), "w") as fh:
         json.dump(meta, fh, indent=1, sort_keys=True)
         fh.write("\n")
-    print("wrote", name, X.shape)
+    if not QUIET:
+        print("wrote", name, X.shape)
 
 
 def rows_for(model, held):
@@ -270,14 +275,14 @@ def sklearn_models():
     import sklearn
 
     cases = [
-        ("skl-rf-binary", "breast_cancer", RandomForestClassifier(n_estimators=8, max_depth=4, random_state=1), {"zipmap": True}),
-        ("skl-rf-wine", "wine", RandomForestClassifier(n_estimators=6, max_depth=4, random_state=2), {"zipmap": False}),
-        ("skl-et-wine", "wine", ExtraTreesClassifier(n_estimators=5, max_depth=4, random_state=3), {"zipmap": False}),
-        ("skl-rf-regression", "diabetes", RandomForestRegressor(n_estimators=6, max_depth=4, random_state=4), {}),
-        ("skl-gb-binary", "breast_cancer", GradientBoostingClassifier(n_estimators=12, max_depth=3, random_state=5), {"zipmap": False}),
-        ("skl-gb-wine", "wine", GradientBoostingClassifier(n_estimators=6, max_depth=3, random_state=6), {"zipmap": False}),
-        ("skl-gb-regression", "diabetes", GradientBoostingRegressor(n_estimators=15, max_depth=3, random_state=7), {}),
-        ("skl-dt-2targets", "diabetes", DecisionTreeRegressor(max_depth=5, random_state=8), {}),
+        ("skl-rf-binary", "breast_cancer", RandomForestClassifier(n_estimators=8, max_depth=4, random_state=1 + SEED), {"zipmap": True}),
+        ("skl-rf-wine", "wine", RandomForestClassifier(n_estimators=6, max_depth=4, random_state=2 + SEED), {"zipmap": False}),
+        ("skl-et-wine", "wine", ExtraTreesClassifier(n_estimators=5, max_depth=4, random_state=3 + SEED), {"zipmap": False}),
+        ("skl-rf-regression", "diabetes", RandomForestRegressor(n_estimators=6, max_depth=4, random_state=4 + SEED), {}),
+        ("skl-gb-binary", "breast_cancer", GradientBoostingClassifier(n_estimators=12, max_depth=3, random_state=5 + SEED), {"zipmap": False}),
+        ("skl-gb-wine", "wine", GradientBoostingClassifier(n_estimators=6, max_depth=3, random_state=6 + SEED), {"zipmap": False}),
+        ("skl-gb-regression", "diabetes", GradientBoostingRegressor(n_estimators=15, max_depth=3, random_state=7 + SEED), {}),
+        ("skl-dt-2targets", "diabetes", DecisionTreeRegressor(max_depth=5, random_state=8 + SEED), {}),
     ]
     for name, ds, est, opts in cases:
         Xtr, ytr, Xte = dataset(ds)
@@ -300,9 +305,9 @@ def xgboost_models():
     from onnxmltools.convert.common.data_types import FloatTensorType
 
     cases = [
-        ("xgb-binary", "breast_cancer", xgb.XGBClassifier(n_estimators=10, max_depth=3, random_state=1, n_jobs=1)),
-        ("xgb-wine", "wine", xgb.XGBClassifier(n_estimators=5, max_depth=3, random_state=2, n_jobs=1)),
-        ("xgb-regression", "diabetes", xgb.XGBRegressor(n_estimators=12, max_depth=3, random_state=3, n_jobs=1)),
+        ("xgb-binary", "breast_cancer", xgb.XGBClassifier(n_estimators=10, max_depth=3, random_state=1 + SEED, n_jobs=1)),
+        ("xgb-wine", "wine", xgb.XGBClassifier(n_estimators=5, max_depth=3, random_state=2 + SEED, n_jobs=1)),
+        ("xgb-regression", "diabetes", xgb.XGBRegressor(n_estimators=12, max_depth=3, random_state=3 + SEED, n_jobs=1)),
     ]
     for name, ds, est in cases:
         Xtr, ytr, Xte = dataset(ds)
@@ -312,6 +317,7 @@ def xgboost_models():
         except Exception as e:
             print("skipped", name, "onnxmltools", onnxmltools.__version__, "with xgboost", xgb.__version__, ":", str(e).splitlines()[0][:200], file=sys.stderr)
             continue
+        model.graph.name = name  # onnxmltools names the graph by a random uuid
         X = rows_for(model, Xte)
         save(name, model, X, {"source": "onnxmltools", "estimator": type(est).__name__, "dataset": ds, "xgboost": xgb.__version__})
 
@@ -325,7 +331,7 @@ def lightgbm_models():
     import onnxmltools
     from onnxmltools.convert.common.data_types import FloatTensorType
 
-    common = dict(n_estimators=8, num_leaves=6, random_state=1, n_jobs=1, verbose=-1, min_child_samples=5)
+    common = dict(n_estimators=8, num_leaves=6, random_state=1 + SEED, n_jobs=1, verbose=-1, min_child_samples=5)
     cases = [
         ("lgb-binary", "breast_cancer", lgb.LGBMClassifier(**common)),
         ("lgb-wine", "wine", lgb.LGBMClassifier(**common)),
@@ -339,6 +345,7 @@ def lightgbm_models():
         except Exception as e:
             print("skipped", name, "onnxmltools", onnxmltools.__version__, "with lightgbm", lgb.__version__, ":", str(e).splitlines()[0][:200], file=sys.stderr)
             continue
+        model.graph.name = name  # onnxmltools names the graph by a random uuid
         X = rows_for(model, Xte)
         save(name, model, X, {"source": "onnxmltools", "estimator": type(est).__name__, "dataset": ds, "lightgbm": lgb.__version__})
 
@@ -420,7 +427,7 @@ ALL_MODES = ["BRANCH_LEQ", "BRANCH_LT", "BRANCH_GTE", "BRANCH_GT", "BRANCH_EQ", 
 
 
 def hand_models():
-    rng = np.random.default_rng(12)
+    rng = np.random.default_rng(12 + SEED)
     nf = 4
 
     def reg(name, k, post="NONE", agg="SUM", base=None, modes=ALL_MODES, ntrees=4, depth=3, note=""):
@@ -480,7 +487,10 @@ def hand_models():
     save("hand-refuse-abs", m, hand_rows(m, nf, rng, 4), {"source": "onnx.helper", "error": "graph node 1 \"absolute\" (op Abs): not read"})
 
 
-def main():
+def build(out, seed=0, quiet=False):
+    """Write every model under out, training with seeds shifted by seed."""
+    global OUT, SEED, QUIET
+    OUT, SEED, QUIET = out, seed, quiet
     os.makedirs(OUT, exist_ok=True)
     sklearn_models()
     xgboost_models()
@@ -489,4 +499,4 @@ def main():
 
 
 if __name__ == "__main__":
-    main()
+    build(OUT)
