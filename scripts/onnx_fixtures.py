@@ -219,6 +219,11 @@ def save(name, model, X, meta, skl=None):
     if os.path.isdir(d):
         shutil.rmtree(d)
     os.makedirs(d)
+    # skl2onnx lists the opset imports in a set's order: sort them so that a
+    # rerun writes the same bytes.
+    ops = sorted(model.opset_import, key=lambda o: o.domain)
+    del model.opset_import[:]
+    model.opset_import.extend(ops)
     onnx.save(model, os.path.join(d, "model.onnx"))
     nf = X.shape[1]
     write_csv(os.path.join(d, "rows.csv"), [f"f{j}" for j in range(nf)], [[fmt(v) if not np.isnan(v) else "" for v in r] for r in X])
