@@ -112,7 +112,11 @@ def ensemble_only(model, post=None):
     m = onnx.ModelProto()
     m.CopyFrom(model)
     node = ensemble_node(m)
-    if post is not None:
+    if post is not None and node.op_type == "TreeEnsemble":
+        for a in node.attribute:
+            if a.name == "post_transform":
+                a.i = V5_TRANSFORMS.index(post)
+    elif post is not None:
         for a in node.attribute:
             if a.name == "post_transform":
                 a.s = post.encode()
@@ -135,6 +139,11 @@ def ensemble_only(model, post=None):
 def thresholds(model):
     node = ensemble_node(model)
     at = {a.name: a for a in node.attribute}
+    if node.op_type == "TreeEnsemble":
+        feats = list(at["nodes_featureids"].ints)
+        modes = list(nh.to_array(at["nodes_modes"].t))
+        vals = list(nh.to_array(at["nodes_splits"].t))
+        return sorted({(f, float(np.float32(v))) for f, m, v in zip(feats, modes, vals) if m != 6})
     feats = list(at["nodes_featureids"].ints)
     modes = [s.decode() for s in at["nodes_modes"].strings]
     vals = list(at["nodes_values"].floats) if "nodes_values" in at else list(nh.to_array(at["nodes_values_as_tensor"].t))
@@ -428,6 +437,55 @@ def hand_rows(model, nf, rng, n=40):
     return np.vstack([held, probe_rows(model, held, nf)])
 
 
+V5_TRANSFORMS = ["NONE", "SOFTMAX", "LOGISTIC", "SOFTMAX_ZERO", "PROBIT"]
+V5_AGGREGATES = ["AVERAGE", "SUM", "MIN", "MAX"]
+
+
+def v5_attrs(rng, ntrees, depth, nf, k, modes, fractional_member=False):
+    """TreeEnsemble (ai.onnx.ml opset 5): full trees of the given depth, splits
+    and leaves in their own arrays, modes as numbers (6 is BRANCH_MEMBER)."""
+    grid = np.float32(np.round(rng.normal(0, 1, 64), 2))
+    feats, modes_, splits, tids, tleaf, fids, fleaf, track, members = [], [], [], [], [], [], [], [], []
+    ltarget, lweight, roots = [], [], []
+    for t in range(ntrees):
+        base = len(modes_)
+        roots.append(base)
+        inner = 2**depth - 1  # splits of a full tree, numbered breadth first
+        leaf0 = len(lweight)
+        for i in range(inner):
+            m = modes[rng.integers(len(modes))]
+            modes_.append(m)
+            feats.append(int(rng.integers(nf)))
+            if m == 6:
+                splits.append(0.0)
+                vals = sorted(set(int(v) for v in rng.integers(0, 5, size=int(rng.integers(1, 4)))))
+                if fractional_member:
+                    vals = [v + 0.5 for v in vals]
+                members.extend([float(v) for v in vals] + [np.nan])
+            elif m in (4, 5):
+                splits.append(float(rng.integers(0, 4)) if rng.random() < 0.5 else float(grid[rng.integers(8)]))
+            else:
+                splits.append(float(grid[rng.integers(len(grid))]))
+            track.append(int(rng.random() < 0.3))
+            for side, (ids, leafs) in enumerate([(tids, tleaf), (fids, fleaf)]):
+                c = 2 * i + 1 + side
+                if c < inner:
+                    ids.append(base + c)
+                    leafs.append(0)
+                else:
+                    ids.append(leaf0 + c - inner)
+                    leafs.append(1)
+        for j in range(inner + 1):
+            ltarget.append(int(rng.integers(k)))
+            lweight.append(float(np.float32(rng.normal(0, 1))))
+    return dict(
+        tree_roots=roots, nodes_featureids=feats, nodes_modes=nh.from_array(np.array(modes_, dtype=np.uint8)),
+        nodes_splits=nh.from_array(np.array(splits, dtype=np.float32)), nodes_truenodeids=tids, nodes_trueleafs=tleaf,
+        nodes_falsenodeids=fids, nodes_falseleafs=fleaf, nodes_missing_value_tracks_true=track,
+        membership_values=nh.from_array(np.array(members or [np.nan], dtype=np.float32)),
+        leaf_targetids=ltarget, leaf_weights=nh.from_array(np.array(lweight, dtype=np.float32)), n_targets=k)
+
+
 ALL_MODES = ["BRANCH_LEQ", "BRANCH_LT", "BRANCH_GTE", "BRANCH_GT", "BRANCH_EQ", "BRANCH_NEQ"]
 
 
@@ -484,6 +542,22 @@ def hand_models():
     clf("hand-binary-softmax-zero", 2, post="SOFTMAX_ZERO", ids_only=0, note="binary case: ONNX Runtime does not apply SOFTMAX_ZERO")
     clf("hand-class1-only", 2, post="LOGISTIC", ids_only=1, note="weights only for class 1: not the binary case, [logistic(0), logistic(s)]")
     clf("hand-softmax-zero", 3, post="SOFTMAX_ZERO", error="post_transform SOFTMAX_ZERO")
+    def v5(name, k, post="NONE", agg="SUM", modes=(0, 1, 2, 3, 4, 5, 6), error=None, note="", fractional_member=False):
+        a = v5_attrs(rng, 4, 3, nf, k, list(modes), fractional_member=fractional_member)
+        a.update(post_transform=V5_TRANSFORMS.index(post), aggregate_function=V5_AGGREGATES.index(agg))
+        m = hand_model("TreeEnsemble", a, nf, k, opset_ml=5)
+        meta = {"source": "onnx.helper", "note": note}
+        if error:
+            meta["error"] = error
+        save(name, m, hand_rows(m, nf, rng), meta)
+
+    v5("hand-v5-modes-sum", 1, note="TreeEnsemble (opset 5): every node mode with BRANCH_MEMBER, missing-value tracking")
+    v5("hand-v5-average-2targets", 2, agg="AVERAGE")
+    # onnxruntime 1.31.1 applies LOGISTIC for post_transform 1 (SOFTMAX in
+    # the standard) and SOFTMAX for 2 (LOGISTIC): sawmill refuses both.
+    v5("hand-v5-softmax-3targets", 3, post="SOFTMAX", error="ONNX Runtime 1.31.1 applies LOGISTIC instead")
+    v5("hand-v5-logistic-2targets", 2, post="LOGISTIC", error="ONNX Runtime 1.31.1 applies SOFTMAX instead")
+    v5("hand-v5-member-fraction", 1, modes=(6, 0), fractional_member=True, error="sawmill reads sets of whole numbers")
     # A graph with a node that is not read, after the ensemble.
     a = random_tree_attrs(rng, 2, 2, nf, 1, ALL_MODES, "target_")
     a.update(n_targets=1)

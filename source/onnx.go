@@ -1,9 +1,10 @@
 package source
 
 // The ONNX-ML reader: a ModelProto (.onnx file) whose graph is one
-// TreeEnsembleRegressor or TreeEnsembleClassifier of the ai.onnx.ml domain,
-// opsets 1 to 3, with a single float input tensor before it and nothing but
-// Cast, ZipMap and Identity after it. The schema is ONNX's own (the bindings
+// TreeEnsembleRegressor or TreeEnsembleClassifier of the ai.onnx.ml domain
+// (opsets 1 to 3), or one TreeEnsemble (opset 5, onnx_v5.go), with a single
+// float input tensor before it and nothing but Cast, ZipMap, Identity and a
+// multiplication by 1 after it. The schema is ONNX's own (the bindings
 // in internal/onnxpb are generated from onnx-ml.proto of ONNX 1.23.2), and the
 // operators' meaning is the ai.onnx.ml operator documentation
 // (docs/Operators-ml.md of ONNX) as ONNX Runtime computes it. What follows was
@@ -65,7 +66,7 @@ import (
 
 var onnxFormat = Format{
 	Name:     "onnx",
-	Describe: "ONNX-ML model file (.onnx) of a TreeEnsembleRegressor or TreeEnsembleClassifier, ai.onnx.ml opsets 1 to 3",
+	Describe: "ONNX-ML model file (.onnx): TreeEnsembleRegressor or TreeEnsembleClassifier (ai.onnx.ml opsets 1 to 3) or TreeEnsemble (opset 5)",
 	Detect:   detectONNX,
 	Read:     readONNX,
 }
@@ -129,11 +130,11 @@ func readONNX(data []byte, name string, o Options) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
-	if ml < 1 || ml > 3 {
-		if ens.GetOpType() == "TreeEnsemble" || ml >= 5 {
-			return nil, onnxErr(name, "graph node %q: %s of ai.onnx.ml opset %d is not read; sawmill reads TreeEnsembleRegressor and TreeEnsembleClassifier of opsets 1 to 3\nhint: convert with target_opset {'ai.onnx.ml': 3}", ens.GetName(), ens.GetOpType(), ml)
-		}
-		return nil, onnxErr(name, "the model imports ai.onnx.ml opset %d; sawmill reads opsets 1 to 3", ml)
+	switch {
+	case ens.GetOpType() == "TreeEnsemble" && ml < 5:
+		return nil, onnxErr(name, "graph node %q: TreeEnsemble needs ai.onnx.ml opset 5 or later, the model imports %d", ens.GetName(), ml)
+	case ens.GetOpType() != "TreeEnsemble" && (ml < 1 || ml > 4):
+		return nil, onnxErr(name, "graph node %q: %s of ai.onnx.ml opset %d is not read; sawmill reads it from opsets 1 to 4 (its last version is 3), and TreeEnsemble from opset 5", ens.GetName(), ens.GetOpType(), ml)
 	}
 	nf, err := onnxInputWidth(input, name)
 	if err != nil {
@@ -299,6 +300,8 @@ type onnxEnsemble struct {
 
 	nTargets  int64
 	labels    []string
+	v5        *onnxV5 // TreeEnsemble (opset 5): its own node arrays
+	size      int     // nodes and leaves in the file
 	base      []float32
 	post      string
 	aggregate string
@@ -309,7 +312,10 @@ func onnxAttributes(n *onnxpb.NodeProto, name string) (*onnxEnsemble, error) {
 	e := &onnxEnsemble{op: n.GetOpType(), classifier: n.GetOpType() == "TreeEnsembleClassifier", post: "NONE", aggregate: "SUM"}
 	at := fmt.Sprintf("%s %q", e.op, n.GetName())
 	if e.op == "TreeEnsemble" {
-		return nil, onnxErr(name, "%s: TreeEnsemble (ai.onnx.ml opset 5) is not read; sawmill reads TreeEnsembleRegressor and TreeEnsembleClassifier of opsets 1 to 3\nhint: convert with target_opset {'ai.onnx.ml': 3}", at)
+		if err := onnxAttributesV5(n, e, name, at); err != nil {
+			return nil, err
+		}
+		return e, nil
 	}
 	w := "target_"
 	if e.classifier {
@@ -452,6 +458,7 @@ type onnxNode struct {
 	falseChild  int
 	missingTrue bool
 	leaf        []onnxWeight
+	set         []int32 // BRANCH_MEMBER (opset 5): the sorted members
 }
 
 // onnxWeight is one weight of a leaf.
@@ -691,7 +698,15 @@ func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*
 			f.Outputs = k
 		}
 	}
-	trees, width, err := e.trees(name, k)
+	var trees []onnxTree
+	var width int
+	var err error
+	if e.v5 != nil {
+		trees, width, err = e.treesV5(name, k)
+	} else {
+		e.size = len(e.nodeIDs)
+		trees, width, err = e.trees(name, k)
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -775,7 +790,7 @@ func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*
 	// Memory in proportion to the file: node slots (an equality test on a
 	// non-integer copies a subtree) and value slots (a node of a model of
 	// many targets holds a vector).
-	budget := 4*int64(len(e.nodeIDs)) + 1024
+	budget := 4*int64(e.size) + 1024
 	maxNodes := o.Read.MaxNodes
 	if maxNodes <= 0 {
 		maxNodes = forest.DefaultMaxNodes
@@ -1011,6 +1026,10 @@ func (c *onnxConv) tree(t *onnxTree, name string, w int, leaf func([]onnxWeight,
 			} else {
 				split(tk.dst, nd.feature, float64(p), fn, tn, !nd.missingTrue)
 			}
+		case "BRANCH_MEMBER":
+			split(tk.dst, nd.feature, 0, tn, fn, nd.missingTrue)
+			cats[tk.dst] = nd.set
+			c.sets++
 		case "BRANCH_EQ", "BRANCH_NEQ":
 			// eq is the child taken when x == v, ne the other; NaN goes to
 			// the true child when tracked, and NaN != v is true.

@@ -17,7 +17,7 @@ import (
 // Seeds are the committed corpus under testdata/fuzz/FuzzONNX and a few of
 // the fixtures.
 func FuzzONNX(f *testing.F) {
-	for _, d := range []string{"hand-modes-sum", "hand-binary-positive-none", "skl-gb-binary", "lgb-wine"} {
+	for _, d := range []string{"hand-modes-sum", "hand-binary-positive-none", "skl-gb-binary", "lgb-wine", "hand-v5-modes-sum"} {
 		data, err := os.ReadFile(filepath.Join("testdata", "onnx", d, "model.onnx"))
 		if err != nil {
 			f.Fatal(err)

@@ -123,7 +123,14 @@ func TestONNXRefuses(t *testing.T) {
 					op.Version = proto.Int64(5)
 				}
 			}
-		}), "m.onnx: graph node \"ensemble\": TreeEnsemble of ai.onnx.ml opset 5 is not read"},
+		}), "m.onnx: TreeEnsemble \"ensemble\": attribute base_values is not read"},
+		{"opset 3 operator under opset 5", mutateONNX(t, func(m *onnxpb.ModelProto) {
+			for _, op := range m.GetOpsetImport() {
+				if op.GetDomain() == "ai.onnx.ml" {
+					op.Version = proto.Int64(5)
+				}
+			}
+		}), "m.onnx: graph node \"ensemble\": TreeEnsembleRegressor of ai.onnx.ml opset 5 is not read"},
 		{"two inputs", mutateONNX(t, func(m *onnxpb.ModelProto) {
 			g := m.GetGraph()
 			g.Input = append(g.Input, g.Input[0])
