@@ -10,6 +10,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -121,6 +122,19 @@ func onnxCheck(t *testing.T, fx onnxFixture) float64 {
 	k := f.NumOutputs()
 	raw := make([]float64, k)
 	out := make([]float64, k)
+	// Through compile: a program must score every row like the
+	// interpreter, or compile must refuse a format 2 construct it does not
+	// implement with a message that says so.
+	p, _, cerr := compile.Compile(f, compile.Options{})
+	switch {
+	case cerr == nil:
+	case len(f.V2Constructs()) > 0 && strings.Contains(cerr.Error(), "not supported"):
+		t.Logf("%s: compile refuses it: %v", fx.name, cerr)
+		p = nil
+	default:
+		require.NoError(t, cerr)
+	}
+	compiled := make([]float64, k)
 	worst := 0.0
 	labelOff := 0
 	positiveLogistic := false
@@ -133,6 +147,12 @@ func onnxCheck(t *testing.T, fx onnxFixture) float64 {
 		f.PredictRaw(x, raw)
 		copy(out, raw)
 		f.Finish(out)
+		if p != nil {
+			compile.Eval(p, x, compiled)
+			for j := range k {
+				require.Equal(t, math.Float64bits(out[j]), math.Float64bits(compiled[j]), "row %d, output %d: compiled %v, interpreter %v", i+1, j, compiled[j], out[j])
+			}
+		}
 		// The binary case: ONNX Runtime's raw outputs are [-s, s]; with a
 		// logistic sawmill has one output, s.
 		if k == 1 && len(wraw) == 2 {
