@@ -112,8 +112,11 @@ func readONNX(data []byte, name string, o Options) (*Result, error) {
 	var m onnxpb.ModelProto
 	// The protobuf library checks every declared length against the bytes
 	// left, so a length bomb fails here before anything is allocated for
-	// it; repeated fields grow with the bytes that hold them.
-	if err := (proto.UnmarshalOptions{DiscardUnknown: true}).Unmarshal(data, &m); err != nil {
+	// it; repeated fields grow with the bytes that hold them. A tree
+	// ensemble's file nests messages 5 deep (model, graph, node, attribute,
+	// tensor); graphs inside attributes (control flow) are not read, so 32
+	// levels are plenty and no file can make the decoder recurse deeper.
+	if err := (proto.UnmarshalOptions{DiscardUnknown: true, RecursionLimit: 32}).Unmarshal(data, &m); err != nil {
 		return nil, onnxErr(name, "not a readable ONNX model: %v\nhint: the file is truncated or damaged; export the model again", err)
 	}
 	ml := int64(-1)

@@ -192,3 +192,33 @@ func TestONNXDetect(t *testing.T) {
 	require.False(t, detectONNX([]byte{0x08}))
 	require.False(t, detectONNX(bytes.Repeat([]byte{0x08, 0x01}, 10)), "no graph")
 }
+
+// TestONNXDeepNesting: a graph inside an attribute inside a node inside a
+// graph, 30,000 deep, in a file of a few hundred kilobytes: the decoder
+// stops at the reader's recursion limit (32) with an error, without
+// recursing further.
+func TestONNXDeepNesting(t *testing.T) {
+	// Written from the inside out: each level is a tag and the length of
+	// everything inside it.
+	fields := []protowire.Number{1, 5, 6} // GraphProto.node, NodeProto.attribute, AttributeProto.g
+	var headers [][]byte
+	inside := 0
+	const levels = 30000
+	for i := 0; i < levels; i++ {
+		// The outermost (the last written) is GraphProto.node.
+		h := protowire.AppendTag(nil, fields[(levels-1-i)%3], protowire.BytesType)
+		h = protowire.AppendVarint(h, uint64(inside))
+		headers = append(headers, h)
+		inside += len(h)
+	}
+	data := protowire.AppendTag(nil, 1, protowire.VarintType)
+	data = protowire.AppendVarint(data, 9)
+	data = protowire.AppendTag(data, 7, protowire.BytesType) // ModelProto.graph
+	data = protowire.AppendVarint(data, uint64(inside))
+	for i := len(headers) - 1; i >= 0; i-- {
+		data = append(data, headers[i]...)
+	}
+	_, err := Decode(data, "deep.onnx", "onnx", Options{})
+	require.ErrorContains(t, err, "deep.onnx: not a readable ONNX model")
+	require.ErrorContains(t, err, "recursion")
+}
