@@ -524,6 +524,47 @@ func (x *onnxIndex) set(id int64, i int) {
 // onnxModes are the node modes of opsets 1 to 3.
 var onnxModes = map[string]bool{"BRANCH_LEQ": true, "BRANCH_LT": true, "BRANCH_GTE": true, "BRANCH_GT": true, "BRANCH_EQ": true, "BRANCH_NEQ": true, "LEAF": true}
 
+// onnxLen is the length of one per-node attribute.
+type onnxLen struct {
+	key string
+	n   int
+}
+
+// perNode checks that every per-node attribute (and the optional
+// nodes_missing_value_tracks_true) has n entries, as ref has.
+func (e *onnxEnsemble) perNode(name, ref string, n int, missingTrue []int64, lens []onnxLen) error {
+	if missingTrue != nil {
+		lens = append(lens, onnxLen{"nodes_missing_value_tracks_true", len(missingTrue)})
+	}
+	for _, a := range lens {
+		if a.n != n {
+			return onnxErr(name, "%s: %s has %d entries, %s has %d: one per node", e.op, a.key, a.n, ref, n)
+		}
+	}
+	return nil
+}
+
+// onnxSplit checks split node i of tree tree (node id node): its feature id,
+// its threshold (unless it is a set), and its missing-value tracking.
+func onnxSplit(name string, tree, node, feature int64, value float32, isSet bool, missingTrue []int64, i int) (int, bool, error) {
+	if feature < 0 || feature >= 1<<24 {
+		return 0, false, onnxErr(name, "tree %d, node %d: feature id %d is out of range", tree, node, feature)
+	}
+	if v := float64(value); !isSet && (math.IsNaN(v) || math.IsInf(v, 0)) {
+		return 0, false, onnxErr(name, "tree %d, node %d: threshold is %v", tree, node, v)
+	}
+	if missingTrue == nil {
+		return int(feature), false, nil
+	}
+	switch missingTrue[i] {
+	case 0:
+		return int(feature), false, nil
+	case 1:
+		return int(feature), true, nil
+	}
+	return 0, false, onnxErr(name, "tree %d, node %d: nodes_missing_value_tracks_true is %d, not 0 or 1", tree, node, missingTrue[i])
+}
+
 // trees groups the per-node attributes into trees in the order ONNX Runtime
 // adds them, and attaches the weights to their leaves.
 func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
@@ -531,17 +572,9 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 	if n == 0 {
 		return nil, 0, onnxErr(name, "%s: the ensemble has no nodes", e.op)
 	}
-	for _, a := range []struct {
-		key string
-		n   int
-	}{{"nodes_treeids", len(e.treeIDs)}, {"nodes_featureids", len(e.featureIDs)}, {"nodes_modes", len(e.modes)},
-		{"nodes_values", len(e.values)}, {"nodes_truenodeids", len(e.trueIDs)}, {"nodes_falsenodeids", len(e.falseIDs)}} {
-		if a.n != n {
-			return nil, 0, onnxErr(name, "%s: %s has %d entries, nodes_nodeids has %d: one per node", e.op, a.key, a.n, n)
-		}
-	}
-	if e.missingTrue != nil && len(e.missingTrue) != n {
-		return nil, 0, onnxErr(name, "%s: nodes_missing_value_tracks_true has %d entries, nodes_nodeids has %d: one per node", e.op, len(e.missingTrue), n)
+	if err := e.perNode(name, "nodes_nodeids", n, e.missingTrue, []onnxLen{{"nodes_treeids", len(e.treeIDs)}, {"nodes_featureids", len(e.featureIDs)},
+		{"nodes_modes", len(e.modes)}, {"nodes_values", len(e.values)}, {"nodes_truenodeids", len(e.trueIDs)}, {"nodes_falsenodeids", len(e.falseIDs)}}); err != nil {
+		return nil, 0, err
 	}
 	w := "target"
 	if e.classifier {
@@ -582,24 +615,12 @@ func (e *onnxEnsemble) trees(name string, k int) ([]onnxTree, int, error) {
 		}
 		nd := onnxNode{id: nid, mode: mode, feature: -1, value: e.values[i], trueChild: -1, falseChild: -1}
 		if mode != "LEAF" {
-			f := e.featureIDs[i]
-			if f < 0 || f >= 1<<24 {
-				return nil, 0, onnxErr(name, "tree %d, node %d: feature id %d is out of range", tid, nid, f)
+			var err error
+			nd.feature, nd.missingTrue, err = onnxSplit(name, tid, nid, e.featureIDs[i], nd.value, false, e.missingTrue, i)
+			if err != nil {
+				return nil, 0, err
 			}
-			nd.feature = int(f)
-			maxFeature = max(maxFeature, int(f))
-			if v := float64(nd.value); math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, 0, onnxErr(name, "tree %d, node %d: threshold is %v", tid, nid, v)
-			}
-			if e.missingTrue != nil {
-				switch e.missingTrue[i] {
-				case 0:
-				case 1:
-					nd.missingTrue = true
-				default:
-					return nil, 0, onnxErr(name, "tree %d, node %d: nodes_missing_value_tracks_true is %d, not 0 or 1", tid, nid, e.missingTrue[i])
-				}
-			}
+			maxFeature = max(maxFeature, nd.feature)
 		}
 		t.nodes = append(t.nodes, nd)
 	}
@@ -893,13 +914,10 @@ func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*
 		f.Features = append(f.Features, "f"+strconv.Itoa(i))
 	}
 	notes = append(notes, "ONNX names no features: called f0, f1, ... in input order (--features names them)")
-	if o.Missing != nil {
-		v := *o.Missing
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, onnxErr(name, "--missing %v: give a finite number (NaN is always missing)", v)
-		}
-		f.HasMissingValue, f.MissingValue = true, forest.Round32(v)
-		notes = append(notes, fmt.Sprintf("inputs equal to %v (as float32) count as missing", v))
+	if note, err := o.missing32(f, name); err != nil {
+		return nil, err
+	} else if note != "" {
+		notes = append(notes, note)
 	}
 	if o.Iterations > 0 {
 		return nil, onnxErr(name, "--iterations: an ONNX ensemble has no boosting rounds to keep")

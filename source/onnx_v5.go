@@ -151,17 +151,9 @@ func (e *onnxEnsemble) treesV5(name string, k int) ([]onnxTree, int, error) {
 	if n == 0 {
 		return nil, 0, onnxErr(name, "%s: the ensemble has no nodes", e.op)
 	}
-	for _, a := range []struct {
-		key string
-		n   int
-	}{{"nodes_featureids", len(v.featureIDs)}, {"nodes_splits", len(v.splits)}, {"nodes_truenodeids", len(v.trueIDs)},
-		{"nodes_falsenodeids", len(v.falseIDs)}, {"nodes_trueleafs", len(v.trueLeaf)}, {"nodes_falseleafs", len(v.falseLeaf)}} {
-		if a.n != n {
-			return nil, 0, onnxErr(name, "%s: %s has %d entries, nodes_modes has %d: one per node", e.op, a.key, a.n, n)
-		}
-	}
-	if v.missingTrue != nil && len(v.missingTrue) != n {
-		return nil, 0, onnxErr(name, "%s: nodes_missing_value_tracks_true has %d entries, nodes_modes has %d: one per node", e.op, len(v.missingTrue), n)
+	if err := e.perNode(name, "nodes_modes", n, v.missingTrue, []onnxLen{{"nodes_featureids", len(v.featureIDs)}, {"nodes_splits", len(v.splits)},
+		{"nodes_truenodeids", len(v.trueIDs)}, {"nodes_falsenodeids", len(v.falseIDs)}, {"nodes_trueleafs", len(v.trueLeaf)}, {"nodes_falseleafs", len(v.falseLeaf)}}); err != nil {
+		return nil, 0, err
 	}
 	if len(v.leafTargets) != len(v.leafWeights) {
 		return nil, 0, onnxErr(name, "%s: leaf_targetids has %d entries, leaf_weights %d: one per leaf", e.op, len(v.leafTargets), len(v.leafWeights))
@@ -246,26 +238,13 @@ func (e *onnxEnsemble) treesV5(name string, k int) ([]onnxTree, int, error) {
 			if int(m) >= len(onnxV5Modes) {
 				return nil, 0, onnxErr(name, "tree %d, node %d: unknown node mode %d", ti, i, m)
 			}
-			f := v.featureIDs[i]
-			if f < 0 || f >= 1<<24 {
-				return nil, 0, onnxErr(name, "tree %d, node %d: feature id %d is out of range", ti, i, f)
+			nd := onnxNode{id: i, mode: onnxV5Modes[m], value: v.splits[i], set: sets[int(i)]}
+			var err error
+			nd.feature, nd.missingTrue, err = onnxSplit(name, int64(ti), i, v.featureIDs[i], nd.value, m == 6, v.missingTrue, int(i))
+			if err != nil {
+				return nil, 0, err
 			}
-			maxFeature = max(maxFeature, int(f))
-			nd := onnxNode{id: i, mode: onnxV5Modes[m], feature: int(f), value: v.splits[i], set: sets[int(i)]}
-			if m != 6 {
-				if x := float64(nd.value); math.IsNaN(x) || math.IsInf(x, 0) {
-					return nil, 0, onnxErr(name, "tree %d, node %d: threshold is %v", ti, i, x)
-				}
-			}
-			if v.missingTrue != nil {
-				switch v.missingTrue[i] {
-				case 0:
-				case 1:
-					nd.missingTrue = true
-				default:
-					return nil, 0, onnxErr(name, "tree %d, node %d: nodes_missing_value_tracks_true is %d, not 0 or 1", ti, i, v.missingTrue[i])
-				}
-			}
+			maxFeature = max(maxFeature, nd.feature)
 			nd.trueChild = len(queue)
 			queue = append(queue, ref{v.trueLeaf[i] != 0, v.trueIDs[i]})
 			nd.falseChild = len(queue)

@@ -13,6 +13,7 @@ import (
 	"bytes"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strings"
 
@@ -186,6 +187,21 @@ func (o Options) rename(f *forest.Forest, name string) ([]string, error) {
 		notes = append(notes, "classes renamed from the command line")
 	}
 	return notes, nil
+}
+
+// missing32 applies Missing to a model that compares float32 inputs: the
+// value is rounded to float32 as the inputs are. It returns the note to show,
+// or "" when no value was given.
+func (o Options) missing32(f *forest.Forest, name string) (string, error) {
+	if o.Missing == nil {
+		return "", nil
+	}
+	v := *o.Missing
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "", fmt.Errorf("%s: --missing %v: give a finite number (NaN is always missing)", name, v)
+	}
+	f.HasMissingValue, f.MissingValue = true, forest.Round32(v)
+	return fmt.Sprintf("inputs equal to %v (as float32) count as missing", v), nil
 }
 
 // jsonObject reports whether data starts, after white space, with '{' and

@@ -595,14 +595,11 @@ func (m *xgbModel) forest(name, format string, o Options) (*Result, error) {
 		}
 		f.BaseScore = append(f.BaseScore, float64(z))
 	}
-	if o.Missing != nil {
-		v := *o.Missing
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, xgbErr(name, "--missing %v: give a finite number (NaN is always missing)", v)
-		}
-		// XGBoost compares float32 inputs with a float32 missing value.
-		f.HasMissingValue, f.MissingValue = true, forest.Round32(v)
-		notes = append(notes, fmt.Sprintf("inputs equal to %v (as float32) count as missing", v))
+	// XGBoost compares float32 inputs with a float32 missing value.
+	if note, err := o.missing32(f, name); err != nil {
+		return nil, err
+	} else if note != "" {
+		notes = append(notes, note)
 	}
 
 	nt := len(m.trees)
