@@ -914,6 +914,7 @@ func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*
 		f.Features = append(f.Features, "f"+strconv.Itoa(i))
 	}
 	notes = append(notes, "ONNX names no features: called f0, f1, ... in input order (--features names them)")
+	notes = append(notes, "ONNX Runtime adds the trees in float32: the model this file was converted from may score a little differently (float64 sums, thresholds the converter rounded to float32); sawmill reproduces the ONNX model")
 	if note, err := o.missing32(f, name); err != nil {
 		return nil, err
 	} else if note != "" {
