@@ -564,6 +564,7 @@ def hand_models():
     extra = (oh.make_node("Abs", ["Y"], ["Z"], name="absolute"), oh.make_tensor_value_info("Z", TP.FLOAT, [None, 1]))
     m = hand_model("TreeEnsembleRegressor", a, nf, 1, extra_nodes=[extra])
     save("hand-refuse-abs", m, hand_rows(m, nf, rng, 4), {"source": "onnx.helper", "error": "graph node 1 \"absolute\" (op Abs): not read"})
+    reg("hand-softmax-zero-1target", 1, post="SOFTMAX_ZERO", note="one target: ONNX Runtime does not apply SOFTMAX_ZERO")
 
 
 def build(out, seed=0, quiet=False):
