@@ -150,7 +150,7 @@ def thresholds(model):
     return sorted({(f, float(np.float32(v))) for f, m, v in zip(feats, modes, vals) if m != "LEAF"})
 
 
-def probe_rows(model, held, nf, limit=180):
+def probe_rows(model, held, nf, limit=120):
     """Rows at, just below and just above every threshold (as float32), and NaN."""
     ths = thresholds(model)
     rng = np.random.default_rng(7)
