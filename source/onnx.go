@@ -750,8 +750,8 @@ func (e *onnxEnsemble) forest(name string, nf int, fileSize int64, o Options) (*
 		}
 	}
 
-	// outs is the number of outputs; sign the factor of a weight of target 0
-	// per output in the binary case.
+	// outs is the number of outputs: k, but 1 in the binary case under
+	// LOGISTIC.
 	outs := k
 	switch e.post {
 	case "NONE", "LOGISTIC", "SOFTMAX", "SOFTMAX_ZERO", "PROBIT":
