@@ -101,6 +101,19 @@ func detectONNX(data []byte) bool {
 	return graph && bytes.Contains(data, []byte(onnxMLDomain)) && bytes.Contains(data, []byte("TreeEnsemble"))
 }
 
+// onnxIdent is a name from the file as a message shows it: as it is when it
+// is a short run of letters, digits, '_' and '.', else quoted (and clipped).
+func onnxIdent(s string) string {
+	ok := len(s) > 0 && len(s) <= 64
+	for _, r := range s {
+		ok = ok && (r == '_' || r == '.' || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z') || (r >= '0' && r <= '9'))
+	}
+	if ok {
+		return s
+	}
+	return strconv.Quote(clip([]byte(s)))
+}
+
 // onnxErr prefixes a message with the file's name.
 func onnxErr(name, format string, a ...any) error {
 	return fmt.Errorf("%s: %s", name, fmt.Sprintf(format, a...))
@@ -192,7 +205,7 @@ func onnxGraph(g *onnxpb.GraphProto, name string) (*onnxpb.NodeProto, *onnxpb.Va
 	// after holds the names of values computed from the ensemble's outputs.
 	after := map[string]bool{}
 	for i, n := range g.GetNode() {
-		at := fmt.Sprintf("graph node %d %q (op %s)", i, n.GetName(), n.GetOpType())
+		at := fmt.Sprintf("graph node %d %q (op %s)", i, n.GetName(), onnxIdent(n.GetOpType()))
 		dom := n.GetDomain()
 		switch {
 		case dom == onnxMLDomain && strings.HasPrefix(n.GetOpType(), "TreeEnsemble"):
@@ -244,7 +257,7 @@ func onnxGraph(g *onnxpb.GraphProto, name string) (*onnxpb.NodeProto, *onnxpb.Va
 	switch ens.GetOpType() {
 	case "TreeEnsembleRegressor", "TreeEnsembleClassifier", "TreeEnsemble":
 	default:
-		return nil, nil, onnxErr(name, "graph node %q: unknown operator %s", ens.GetName(), ens.GetOpType())
+		return nil, nil, onnxErr(name, "graph node %q: unknown operator %s", ens.GetName(), onnxIdent(ens.GetOpType()))
 	}
 	return ens, inputs[0], nil
 }
@@ -330,7 +343,7 @@ func onnxAttributes(n *onnxpb.NodeProto, name string) (*onnxEnsemble, error) {
 	for _, a := range n.GetAttribute() {
 		k := a.GetName()
 		if seen[k] {
-			return nil, onnxErr(name, "%s: attribute %s given twice", at, k)
+			return nil, onnxErr(name, "%s: attribute %s given twice", at, onnxIdent(k))
 		}
 		seen[k] = true
 		var err error
@@ -382,7 +395,7 @@ func onnxAttributes(n *onnxpb.NodeProto, name string) (*onnxEnsemble, error) {
 		case "classlabels_strings":
 			strLabels = a.GetStrings()
 		default:
-			return nil, onnxErr(name, "%s: attribute %s is not read; it may change the scores", at, k)
+			return nil, onnxErr(name, "%s: attribute %s is not read; it may change the scores", at, onnxIdent(k))
 		}
 		if err != nil {
 			return nil, onnxErr(name, "%s: attribute %s: %v", at, k, err)

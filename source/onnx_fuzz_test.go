@@ -4,6 +4,7 @@ import (
 	"os"
 	"path/filepath"
 	"testing"
+	"unicode/utf8"
 )
 
 // FuzzONNX holds the ONNX reader to its promise: whatever the bytes, no
@@ -29,6 +30,9 @@ func FuzzONNX(f *testing.F) {
 			// arrays, and an equality test on a non-integer copies a
 			// subtree (at most 4 nodes of output per node of input).
 			fuzzDecode(t, data, from, 512, 1<<21)
+			if _, err := Decode(data, "fuzz", from, Options{}); err != nil && !utf8.ValidString(err.Error()) {
+				t.Fatalf("%q: the error is not valid UTF-8: %q", from, err.Error())
+			}
 		}
 	})
 }

@@ -52,7 +52,7 @@ func onnxAttributesV5(n *onnxpb.NodeProto, e *onnxEnsemble, name, at string) err
 	for _, a := range n.GetAttribute() {
 		k := a.GetName()
 		if seen[k] {
-			return onnxErr(name, "%s: attribute %s given twice", at, k)
+			return onnxErr(name, "%s: attribute %s given twice", at, onnxIdent(k))
 		}
 		seen[k] = true
 		var err error
@@ -107,7 +107,7 @@ func onnxAttributesV5(n *onnxpb.NodeProto, e *onnxEnsemble, name, at string) err
 					at, i, e.post, onnxV5Transforms[3-i])
 			}
 		default:
-			return onnxErr(name, "%s: attribute %s is not read; it may change the scores", at, k)
+			return onnxErr(name, "%s: attribute %s is not read; it may change the scores", at, onnxIdent(k))
 		}
 		if err != nil {
 			return onnxErr(name, "%s: attribute %s: %v", at, k, err)
