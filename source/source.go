@@ -69,6 +69,7 @@ func Formats() []Format {
 		xgboostJSONFormat,
 		xgboostUBJSONFormat,
 		lightgbmFormat,
+		pmmlFormat,
 	}
 }
 
