@@ -1178,6 +1178,25 @@ func (r *pmmlReader) segments(seg *xel, weighted bool) ([]*xel, error) {
 	return out, nil
 }
 
+// segmentTree lays out the TreeModel of a Segment of seg. A tree that can
+// give no prediction is read only where the segmentation then gives none
+// either (missingPredictionTreatment returnMissing): with skipSegment or
+// continue the evaluator leaves that tree out of the sum or vote, which a
+// forest cannot do.
+func (r *pmmlReader) segmentTree(seg, tm *xel, mode leafMode, classes []string, s pschema) (forest.Tree, error) {
+	before := r.nulls
+	r.nulls = false
+	t, err := r.tree(tm, mode, classes, s, func(x float64) float64 { return x })
+	if err != nil {
+		return t, err
+	}
+	if mpt := seg.attrOr("missingPredictionTreatment", "continue"); r.nulls && mpt != "returnMissing" {
+		return t, r.errf(tm, "the tree can give no prediction (a missing value under nullPrediction, or no true child under returnNullPrediction), and the Segmentation's missingPredictionTreatment %q then leaves it out of the %s, which a forest cannot do\nhint: missingPredictionTreatment=\"returnMissing\", or missingValueStrategy lastPrediction or defaultChild in the tree", clip([]byte(mpt)), seg.attrOr("multipleModelMethod", ""))
+	}
+	r.nulls = r.nulls || before
+	return t, nil
+}
+
 // mining converts a MiningModel into fo (whose Task and Classes are set)
 // and reports whether the conversion is exact.
 func (r *pmmlReader) mining(mm *xel, fo *forest.Forest, s pschema) (bool, error) {
@@ -1215,7 +1234,7 @@ func (r *pmmlReader) mining(mm *xel, fo *forest.Forest, s pschema) (bool, error)
 		if fn := m.attrOr("functionName", ""); fn != string(fo.Task) {
 			return false, r.errf(m, "functionName %q inside a %s model", clip([]byte(fn)), fo.Task)
 		}
-		t, err := r.tree(m, mode, fo.Classes, s, func(x float64) float64 { return x })
+		t, err := r.segmentTree(seg, m, mode, fo.Classes, s)
 		if err != nil {
 			return false, err
 		}
@@ -1282,7 +1301,7 @@ func (r *pmmlReader) chain(mm *xel, seg *xel, fo *forest.Forest, s pschema) (boo
 			if tm.name != "TreeModel" || tm.attrOr("functionName", "") != "regression" {
 				return false, r.errf(tm, "a %s in a sum of trees; sawmill reads regression TreeModels there", tm.name)
 			}
-			t, err := r.tree(tm, leafScore, nil, ss, func(x float64) float64 { return x })
+			t, err := r.segmentTree(sg, tm, leafScore, nil, ss)
 			if err != nil {
 				return false, err
 			}
