@@ -210,7 +210,7 @@ def bound_of(est):
     if name.startswith("GradientBoosting"):
         # (c/f + sum)·f against sum·f + c, and for classifiers the
         # evaluator's own logistic and softmax formulas.
-        return 16
+        return 8
     return 0
 
 

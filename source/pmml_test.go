@@ -10,6 +10,7 @@ import (
 
 	"github.com/stretchr/testify/require"
 
+	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -57,6 +58,9 @@ func runPMMLFixtures(t *testing.T, root string) {
 			require.NoError(t, err)
 			require.Equal(t, "pmml", r.Format)
 			fo := r.Forest
+			// The compiled program scores every row as the interpreter does.
+			prog, _, err := compile.Compile(fo, compile.Options{})
+			require.NoError(t, err)
 			header, rows := readFloatCSV(t, filepath.Join(dir, "rows.csv"))
 			col := map[string]int{}
 			for j, h := range header {
@@ -67,6 +71,7 @@ func runPMMLFixtures(t *testing.T, root string) {
 			require.Len(t, want, len(rows))
 			x := make([]float64, len(fo.Features))
 			out := make([]float64, fo.NumOutputs())
+			compiled := make([]float64, fo.NumOutputs())
 			nulls, worst := 0, 0.0
 			for i, row := range rows {
 				for k, f := range fo.Features {
@@ -75,6 +80,10 @@ func runPMMLFixtures(t *testing.T, root string) {
 					x[k] = row[j]
 				}
 				fo.Predict(x, out)
+				compile.Eval(prog, x, compiled)
+				for k := range out {
+					require.Equal(t, math.Float64bits(out[k]), math.Float64bits(compiled[k]), "row %d: compiled output %d", i, k)
+				}
 				if math.IsNaN(want[i][0]) {
 					nulls++ // PMML gives no prediction
 					continue

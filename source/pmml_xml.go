@@ -31,7 +31,6 @@ type xel struct {
 	kids  []*xel
 	text  []byte // character data, kept for Array elements only
 	off   int64  // byte offset of the start tag
-	index int    // position among the parent's children of the same name, from 0
 }
 
 // get returns the attribute called key and whether it is present.
@@ -89,7 +88,6 @@ func parsePMMLXML(data []byte, name string) (*xel, error) {
 	// reference is an error of the tokenizer (d.Entity stays nil).
 	var root *xel
 	var stack []*xel
-	counts := []map[string]int{{}}
 	at := func() string { return fmt.Sprintf("%s:%d", name, lineOf(data, d.InputOffset())) }
 	for {
 		off := d.InputOffset()
@@ -106,7 +104,7 @@ func parsePMMLXML(data []byte, name string) (*xel, error) {
 		}
 		switch t := tok.(type) {
 		case xml.Directive:
-			return nil, fmt.Errorf("%s: the document has a type declaration (<!%s); PMML needs none, and sawmill reads no DTD or entity\nhint: remove the <!DOCTYPE ...> declaration", at(), clip(t))
+			return nil, fmt.Errorf("%s:%d: the document has a type declaration (<!%s ...>); PMML needs none, and sawmill reads no DTD and expands no entity\nhint: remove the declaration", name, lineOf(data, off), bytes.Fields(append([]byte(nil), t...))[0])
 		case xml.StartElement:
 			if len(stack) >= pmmlMaxDepth {
 				return nil, fmt.Errorf("%s: elements nested more than %d deep", at(), pmmlMaxDepth)
@@ -125,13 +123,9 @@ func parsePMMLXML(data []byte, name string) (*xel, error) {
 				root = e
 			} else {
 				p := stack[len(stack)-1]
-				c := counts[len(counts)-1]
-				e.index = c[e.name]
-				c[e.name]++
 				p.kids = append(p.kids, e)
 			}
 			stack = append(stack, e)
-			counts = append(counts, map[string]int{})
 		case xml.EndElement:
 			if len(stack) == 0 {
 				return nil, fmt.Errorf("%s: end tag </%s> with no element open", at(), qname(t.Name))
@@ -141,7 +135,6 @@ func parsePMMLXML(data []byte, name string) (*xel, error) {
 				return nil, fmt.Errorf("%s: end tag </%s> closes <%s>", at(), qname(t.Name), want)
 			}
 			stack = stack[:len(stack)-1]
-			counts = counts[:len(counts)-1]
 		case xml.CharData:
 			if len(stack) > 0 && stack[len(stack)-1].name == "Array" {
 				e := stack[len(stack)-1]
