@@ -84,7 +84,7 @@ type pfield struct {
 	dataType string // "float" or "double" (others are refused where read)
 	feature  int    // index among the forest's features; -1 when not an input
 	optype   string
-	alias    *pfield // the field a DerivedField refers to; nil for a DataField
+	alias    *pfield  // the field a DerivedField refers to; nil for a DataField
 	values   []string // the DataField's valid Values, in order
 	limited  bool     // the DataField restricts its values (Interval, or Values marked invalid or missing)
 }
