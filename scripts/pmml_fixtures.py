@@ -36,6 +36,7 @@ estimators are labelled 1.9.0 before conversion (see label_version).
 """
 
 import argparse
+import contextlib
 import csv
 import json
 import math
@@ -49,6 +50,28 @@ import tempfile
 import numpy as np
 
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
+
+
+@contextlib.contextmanager
+def silenced(quiet):
+    """Sends this process's (and Java's) standard output and error to
+    /dev/null while quiet: sklearn2pmml logs every conversion."""
+    if not quiet:
+        yield
+        return
+    sys.stdout.flush()
+    sys.stderr.flush()
+    saved = [os.dup(1), os.dup(2)]
+    null = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(null, 1)
+        os.dup2(null, 2)
+        yield
+    finally:
+        os.dup2(saved[0], 1)
+        os.dup2(saved[1], 2)
+        for fd in saved + [null]:
+            os.close(fd)
 
 
 def label_version():
@@ -186,10 +209,12 @@ def build_sklearn(out, seed, quiet):
         features = ["x%d" % (i + 1) for i in range(X.shape[1])]
         Xtr, Xte, ytr, _ = train_test_split(X, y, test_size=60, random_state=seed)
         p = PMMLPipeline([("model", est)])
-        p.fit(Xtr, ytr)
+        with silenced(quiet):
+            p.fit(Xtr, ytr)
         with tempfile.TemporaryDirectory() as tmp:
             path = os.path.join(tmp, "m.pmml")
-            sklearn2pmml(p, path)
+            with silenced(quiet):
+                sklearn2pmml(p, path)
             with open(path) as fh:
                 pmml = fh.read()
         # The timestamp would change every file on every run.
