@@ -1408,6 +1408,7 @@ func (r *pmmlReader) chain(mm *xel, seg *xel, fo *forest.Forest, s pschema) (boo
 	default:
 		return false, r.errf(rm, "normalizationMethod %q with %d tables for %d classes: sawmill reads logit over one score (two classes) and softmax over one score per class", clip([]byte(norm)), len(tables), len(fo.Classes))
 	}
+	r.notes = append(r.notes, fmt.Sprintf("the RegressionModel's %s normalization is the format's %s, whose formula may differ from the evaluator's in the last bits", norm, fo.Transform))
 	fo.Combine = forest.Sum
 	fo.TransformScale = scale
 	fo.BaseScore = make([]float64, len(fo.Classes))
