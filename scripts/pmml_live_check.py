@@ -22,15 +22,12 @@ computes is caught.
 
 import argparse
 import os
-import re
-import subprocess
 import sys
 import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import pmml_fixtures  # noqa: E402
-
-ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
+import live_check  # noqa: E402
 
 
 def main():
@@ -42,17 +39,7 @@ def main():
         out = a.keep or os.path.join(tmp, "models")
         pmml_fixtures.build(out, seed=a.seed, quiet=True)
         models = len([d for d in os.listdir(out) if os.path.isfile(os.path.join(out, d, "model.pmml"))])
-        env = dict(os.environ, SAWMILL_PMML_LIVE=os.path.abspath(out))
-        p = subprocess.run(
-            ["go", "test", "./source", "-count=1", "-run", "^TestPMMLLive$", "-v"],
-            cwd=ROOT, env=env, capture_output=True, text=True,
-        )
-    log = p.stdout + p.stderr
-    passed = len(re.findall(r"^\s+--- PASS: TestPMMLLive/", log, re.M))
-    failed = len(re.findall(r"^\s+--- FAIL: TestPMMLLive/", log, re.M))
-    if p.returncode != 0 or passed + failed != models:
-        sys.stdout.write(log)
-        failed = max(failed, models - passed)
+        passed, failed = live_check.go_test("TestPMMLLive", "SAWMILL_PMML_LIVE", out, models)
     import sklearn2pmml
     import jpmml_evaluator
     print(f"sklearn2pmml {sklearn2pmml.__version__}, jpmml_evaluator {jpmml_evaluator.__version__}: {passed} passed, {failed} failed")

@@ -330,18 +330,22 @@ func (r *pmmlReader) field(e *xel) (*pfield, error) {
 	if !ok {
 		return nil, r.errf(e, "field %q is not defined", clip([]byte(n)))
 	}
-	in := f.input()
-	if in.feature < 0 {
+	if f.input().feature < 0 {
 		return nil, r.errf(e, "field %q is not an active field of the model's MiningSchema", clip([]byte(n)))
 	}
+	return f, r.numeric(e, f)
+}
+
+// numeric checks that field f, read at e, holds numbers sawmill compares:
+// dataType float or double.
+func (r *pmmlReader) numeric(e *xel, f *pfield) error {
 	switch f.dataType {
 	case "float", "double":
+		return nil
 	case "string":
-		return nil, r.errf(e, "field %q holds strings; sawmill scores numeric inputs\nhint: encode the categories as numeric codes before exporting the model (a string-valued field has no number to compare)", clip([]byte(n)))
-	default:
-		return nil, r.errf(e, "field %q is of dataType %q; sawmill reads float and double fields", clip([]byte(n)), clip([]byte(f.dataType)))
+		return r.errf(e, "field %q holds strings; sawmill scores numeric inputs\nhint: encode the categories as numeric codes before exporting the model", clip([]byte(f.name)))
 	}
-	return f, nil
+	return r.errf(e, "field %q is of dataType %q; sawmill reads float and double fields", clip([]byte(f.name)), clip([]byte(f.dataType)))
 }
 
 // cont is a place a test can lead to: mk lays out a fresh copy of its
@@ -441,13 +445,7 @@ func (b *tbuild) prediction(n *xel) ([]float64, bool) {
 		if !hasScore {
 			return nil, false
 		}
-		k, ok := b.classes[strings.TrimSpace(score)]
-		if !ok {
-			b.fail(b.r.errf(n, "score %q is not one of the target's classes", clip([]byte(score))))
-		}
-		v := make([]float64, b.width)
-		v[k] = 1
-		return v, true
+		return b.oneHot(n, score), true
 	}
 	sds := n.children("ScoreDistribution")
 	if len(sds) == 0 {
@@ -456,13 +454,7 @@ func (b *tbuild) prediction(n *xel) ([]float64, bool) {
 		}
 		// A Node with a score and no distribution predicts its score with
 		// probability 1.
-		k, ok := b.classes[strings.TrimSpace(score)]
-		if !ok {
-			b.fail(b.r.errf(n, "score %q is not one of the target's classes", clip([]byte(score))))
-		}
-		v := make([]float64, b.width)
-		v[k] = 1
-		return v, true
+		return b.oneHot(n, score), true
 	}
 	counts := make([]float64, b.width)
 	probs := make([]float64, b.width)
@@ -513,6 +505,17 @@ func (b *tbuild) prediction(n *xel) ([]float64, bool) {
 		counts[k] /= total
 	}
 	return counts, true
+}
+
+// oneHot is the vector of Node n's class score: 1 for it, 0 for the rest.
+func (b *tbuild) oneHot(n *xel, score string) []float64 {
+	k, ok := b.classes[strings.TrimSpace(score)]
+	if !ok {
+		b.fail(b.r.errf(n, "score %q is not one of the target's classes", clip([]byte(score))))
+	}
+	v := make([]float64, b.width)
+	v[k] = 1
+	return v
 }
 
 // nodes lists n's child Nodes.
@@ -1053,12 +1056,8 @@ func (r *pmmlReader) read(model *xel, o Options) (*Result, error) {
 		if f.feature >= 0 {
 			return nil, r.errf(mf, "field %q is listed twice", clip([]byte(n)))
 		}
-		switch f.dataType {
-		case "float", "double":
-		case "string":
-			return nil, r.errf(mf, "field %q holds strings; sawmill scores numeric inputs\nhint: encode the categories as numeric codes before exporting the model", clip([]byte(n)))
-		default:
-			return nil, r.errf(mf, "field %q is of dataType %q; sawmill reads float and double fields", clip([]byte(n)), clip([]byte(f.dataType)))
+		if err := r.numeric(mf, f); err != nil {
+			return nil, err
 		}
 		if f.limited && mf.attrOr("invalidValueTreatment", "returnInvalid") != "asIs" {
 			return nil, r.errf(mf, "field %q restricts its values (Interval or Value elements in its DataField), and sawmill does not test them\nhint: invalidValueTreatment=\"asIs\" scores every value; remove the restriction or set that", clip([]byte(n)))
@@ -1361,47 +1360,41 @@ func (r *pmmlReader) chain(mm *xel, seg *xel, fo *forest.Forest, s pschema) (boo
 	for k, c := range fo.Classes {
 		classOf[c] = k
 	}
-	kOf := func(t *xel) (int, error) {
+	// entry returns a table's class and the sum it passes on (-1: none).
+	entry := func(t *xel) (k, i int, err error) {
 		k, ok := classOf[t.attrOr("targetCategory", "")]
 		if !ok {
-			return 0, r.errf(t, "targetCategory %q is not one of the target's classes", clip([]byte(t.attrOr("targetCategory", ""))))
+			return 0, 0, r.errf(t, "targetCategory %q is not one of the target's classes", clip([]byte(t.attrOr("targetCategory", ""))))
 		}
-		return k, nil
+		i, err = table(t)
+		return k, i, err
 	}
 	outputOf := make([]int, len(sums)) // sum i adds to output outputOf[i]
+	seenClass := make([]bool, len(fo.Classes))
+	seenSum := make([]bool, len(sums))
 	switch {
 	case norm == "logit" && len(fo.Classes) == 2 && len(tables) == 2 && len(sums) == 1:
-		var seen [2]bool
 		for _, t := range tables {
-			k, err := kOf(t)
+			k, i, err := entry(t)
 			if err != nil {
 				return false, err
 			}
-			i, err := table(t)
-			if err != nil {
-				return false, err
-			}
-			if (i >= 0) != (k == 1) || seen[k] {
+			if (i >= 0) != (k == 1) || seenClass[k] {
 				return false, r.errf(t, "sawmill reads a logit table for the second class and an empty one for the first")
 			}
-			seen[k] = true
+			seenClass[k] = true
 		}
 		fo.Transform = forest.Logistic
 	case norm == "softmax" && len(tables) == len(fo.Classes) && len(sums) == len(fo.Classes) && len(sums) > 2:
-		used := make([]bool, len(sums))
 		for _, t := range tables {
-			k, err := kOf(t)
+			k, i, err := entry(t)
 			if err != nil {
 				return false, err
 			}
-			i, err := table(t)
-			if err != nil {
-				return false, err
-			}
-			if i < 0 || used[i] {
+			if i < 0 || seenSum[i] || seenClass[k] {
 				return false, r.errf(t, "every class's table must pass on a score of its own")
 			}
-			used[i] = true
+			seenSum[i], seenClass[k] = true, true
 			outputOf[i] = k
 		}
 		fo.Transform = forest.Softmax

@@ -4,22 +4,9 @@ import (
 	"bytes"
 	"fmt"
 	"math/rand/v2"
-	"runtime"
 	"strconv"
-	"syscall"
 	"testing"
-	"time"
 )
-
-// cpuTime is the CPU time (user and system) the process has used: on a
-// shared machine it says what a read costs when wall time does not.
-func cpuTime() time.Duration {
-	var u syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &u); err != nil {
-		return 0
-	}
-	return time.Duration(u.Utime.Nano() + u.Stime.Nano())
-}
 
 // pmmlBigModel writes a PMML MiningModel that sums trees complete trees of
 // the given depth over 20 float fields, laid out as sklearn2pmml writes a
@@ -65,39 +52,9 @@ func pmmlBigModel(trees, depth int) []byte {
 }
 
 // BenchmarkPMMLImport reads a 1,000-tree depth-8 PMML model (511,000
-// nodes) and reports the heap in use after the read and the bytes
-// allocated per read, and the CPU time per read (user and system, over
-// every thread, the garbage collector's included):
+// nodes) with the figures benchmarkImport reports:
 //
 //	go test ./source -run '^$' -bench PMMLImport -benchtime 3x
 func BenchmarkPMMLImport(b *testing.B) {
-	data := pmmlBigModel(1000, 8)
-	b.SetBytes(int64(len(data)))
-	runtime.GC()
-	var m0 runtime.MemStats
-	runtime.ReadMemStats(&m0)
-	b.ResetTimer()
-	cpu0 := cpuTime()
-	var r *Result
-	for range b.N {
-		var err error
-		r, err = Decode(data, "big.pmml", "", Options{})
-		if err != nil {
-			b.Fatal(err)
-		}
-	}
-	b.StopTimer()
-	b.ReportMetric((cpuTime()-cpu0).Seconds()/float64(b.N), "cpu-s/op")
-	var m1 runtime.MemStats
-	runtime.ReadMemStats(&m1)
-	nodes := 0
-	for i := range r.Forest.Trees {
-		nodes += r.Forest.Trees[i].NumNodes()
-	}
-	b.ReportMetric(float64(nodes), "nodes")
-	b.ReportMetric(float64(m1.TotalAlloc-m0.TotalAlloc)/float64(b.N)/(1<<20), "alloc-MB/op")
-	runtime.GC()
-	runtime.ReadMemStats(&m1)
-	b.ReportMetric(float64(m1.HeapInuse)/(1<<20), "heap-MB-after")
-	b.ReportMetric(float64(len(data))/(1<<20), "file-MB")
+	benchmarkImport(b, pmmlBigModel(1000, 8), "big.pmml")
 }
