@@ -135,3 +135,48 @@ func TestPMMLLive(t *testing.T) {
 	}
 	runPMMLFixtures(t, dir)
 }
+
+// TestPMMLFloatFieldsMeasured shows that the fixtures measure how a field of
+// dataType float is compared: read as double fields (the input and the
+// predicate's value both as doubles), the sklearn2pmml decision tree scores
+// some of the probe rows beside its thresholds differently from
+// jpmml_evaluator, so the float32 comparison the reader uses is what the
+// evaluator does, not a choice the rows cannot tell apart.
+func TestPMMLFloatFieldsMeasured(t *testing.T) {
+	dir := filepath.Join("testdata", "pmml", "sk-dt-wine")
+	data, err := os.ReadFile(filepath.Join(dir, "model.pmml"))
+	require.NoError(t, err)
+	asDouble := []byte(strings.ReplaceAll(string(data), `dataType="float"`, `dataType="double"`))
+	header, rows := readFloatCSV(t, filepath.Join(dir, "rows.csv"))
+	_, want := readFloatCSV(t, filepath.Join(dir, "expected.csv"))
+	differ := map[string]int{}
+	for name, doc := range map[string][]byte{"float": data, "double": asDouble} {
+		r, err := Decode(doc, "model.pmml", "", Options{})
+		require.NoError(t, err)
+		fo := r.Forest
+		col := map[string]int{}
+		for j, h := range header {
+			col[h] = j
+		}
+		x := make([]float64, len(fo.Features))
+		out := make([]float64, fo.NumOutputs())
+		for i, row := range rows {
+			for k, f := range fo.Features {
+				x[k] = row[col[f]]
+			}
+			fo.Predict(x, out)
+			if math.IsNaN(want[i][0]) {
+				continue
+			}
+			for k := range out {
+				if out[k] != want[i][k] {
+					differ[name]++
+					break
+				}
+			}
+		}
+	}
+	require.Equal(t, 0, differ["float"])
+	require.Positive(t, differ["double"], "the probe rows do not tell float from double comparisons")
+	t.Logf("read as double fields, %d of %d rows differ from the evaluator", differ["double"], len(rows))
+}
