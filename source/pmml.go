@@ -533,24 +533,27 @@ func (b *tbuild) at(n *xel) cont {
 }
 
 // last returns the cont for "the prediction of Node n": its score, or,
-// where it has none (PMML's null prediction), its last child.
-func (b *tbuild) last(n *xel) cont {
-	if _, ok := b.prediction(n); !ok {
-		b.r.nulls = true
-		kids := nodes(n)
-		if len(kids) == 0 {
-			b.fail(b.r.errf(n, "a leaf Node without a score"))
-		}
-		return b.at(kids[len(kids)-1])
-	}
+// where it has none (PMML's null prediction), its last child. null says
+// that PMML gives no prediction there in any case; it is noted when the
+// leaf is laid out, so a place no row reaches notes nothing.
+func (b *tbuild) last(n *xel, null bool) cont {
 	id, ok := b.lastIDs[n]
 	if !ok {
 		id = b.id()
 		b.lastIDs[n] = id
 	}
 	return cont{id: id, mk: func() int {
-		v, _ := b.prediction(n)
-		return b.leaf(v)
+		v, ok := b.prediction(n)
+		if ok {
+			b.r.nulls = b.r.nulls || null
+			return b.leaf(v)
+		}
+		b.r.nulls = true
+		kids := nodes(n)
+		if len(kids) == 0 {
+			b.fail(b.r.errf(n, "a leaf Node without a score"))
+		}
+		return b.at(kids[len(kids)-1]).mk()
 	}}
 }
 
@@ -569,9 +572,9 @@ func (b *tbuild) node(n *xel) int {
 	switch b.strategy {
 	case "none":
 	case "nullPrediction":
-		b.r.nulls = true
+		// As none; known notes it where a comparison can be unknown.
 	case "lastPrediction":
-		c := b.last(n)
+		c := b.last(n, false)
 		unknown = &c
 	case "defaultChild":
 		d, ok := n.get("defaultChild")
@@ -592,10 +595,7 @@ func (b *tbuild) node(n *xel) int {
 	var chain func(i int) cont
 	chain = func(i int) cont {
 		if i == len(kids) {
-			if b.noTrue == "returnNullPrediction" {
-				b.r.nulls = true
-			}
-			return b.last(n)
+			return b.last(n, b.noTrue == "returnNullPrediction")
 		}
 		k := kids[i]
 		return cont{id: b.id(), mk: func() int {
@@ -756,6 +756,9 @@ func (b *tbuild) known(fl *pfield, u cont, rep func(x float64) cont) cont {
 			x = forest.Round32(x)
 		}
 		return rep(x)
+	}
+	if b.strategy == "nullPrediction" {
+		b.r.nulls = true // a missing value gives no prediction in PMML
 	}
 	return u
 }

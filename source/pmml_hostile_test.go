@@ -185,3 +185,27 @@ func TestPMMLFloatThreshold(t *testing.T) {
 	require.Equal(t, upper64(0.1), r.Forest.Trees[0].Threshold[0])
 	require.Equal(t, "float64", string(r.Forest.InputPrecision))
 }
+
+// TestPMMLAccepts: documents the reader takes, checked against what the
+// specification says they compute (PMML 4.4, Multiple Models: a segment
+// whose tree always predicts needs no missingPredictionTreatment; Tree
+// Models: the first true child wins; Targets on a sum).
+func TestPMMLAccepts(t *testing.T) {
+	seg := func(score string) string {
+		return `<Segment><True/><TreeModel functionName="regression" missingValueStrategy="none">` + pmmlSchemaAB +
+			`<Node score="0"><True/><Node score="` + score + `"><SimplePredicate field="a" operator="lessThan" value="2"/></Node>` +
+			`<Node score="7"><SimplePredicate field="a" operator="lessThan" value="3"/></Node><Node score="100"><True/></Node></Node></TreeModel></Segment>`
+	}
+	doc := pmmlDoc(`<MiningModel functionName="regression">` + pmmlSchemaAB + `<Targets><Target rescaleFactor="2"/></Targets>` +
+		`<Segmentation multipleModelMethod="sum">` + seg("1") + seg("10") + `</Segmentation></MiningModel>`)
+	r, err := Decode(doc, "m.pmml", "", Options{})
+	require.NoError(t, err)
+	require.Empty(t, r.Notes, "every row gets a prediction and the rescaling is exact")
+	for _, c := range []struct{ a, want float64 }{
+		{1, 22}, {math.Nextafter(2, 0), 22}, {2, 28}, {2.5, 28}, {3, 400}, {math.NaN(), 400}, // a missing value: both tests false
+	} {
+		out := []float64{0}
+		r.Forest.Predict([]float64{c.a, 0}, out)
+		require.Equal(t, c.want, out[0], "a=%v", c.a)
+	}
+}
