@@ -638,6 +638,9 @@ func (b *tbuild) test(p *xel, t, f, u cont) int {
 	case "SimpleSetPredicate":
 		return b.set(p, t, f, u)
 	}
+	if p.name != "CompoundPredicate" {
+		b.fail(b.r.errf(p, "not a predicate (PMML 4.4 has SimplePredicate, CompoundPredicate, SimpleSetPredicate, True and False)"))
+	}
 	// CompoundPredicate (PMML 4.4, Predicates: the truth tables of and, or,
 	// xor and surrogate over true, false and unknown).
 	var parts []*xel

@@ -126,6 +126,8 @@ func TestPMMLRefuses(t *testing.T) {
 			"m.pmml:9: Node: missingValueStrategy defaultChild, but the Node has no defaultChild"},
 		{"blow-up", tree(``, `<Node score="1">`+pred+`</Node>`), "the tree grows past 1152 binary nodes"},
 		{"skipped segment", bytes.Replace(vote, []byte(` missingPredictionTreatment="returnMissing"`), nil, 1), "the Segmentation's missingPredictionTreatment \"continue\" then leaves it out of the majorityVote"},
+		{"not a predicate", tree(``, `<Node score="1"><CompoundPredicate booleanOperator="or"><Predicate/><True/></CompoundPredicate></Node>`),
+			"m.pmml:9: Predicate: not a predicate (PMML 4.4 has SimplePredicate, CompoundPredicate, SimpleSetPredicate, True and False)"},
 		{"penalty", tree(`missingValuePenalty="0.5"`, `<Node score="1"><True/></Node>`), "missingValuePenalty 0.5 is not supported"},
 		{"selectFirst", pmmlDoc(`<MiningModel functionName="regression">` + pmmlSchemaAB + `<Segmentation multipleModelMethod="selectFirst"><Segment><True/><TreeModel functionName="regression">` + pmmlSchemaAB + `<Node score="1"><True/></Node></TreeModel></Segment></Segmentation></MiningModel>`),
 			"multipleModelMethod \"selectFirst\" for a regression model is not supported\nhint:"},
