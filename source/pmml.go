@@ -16,8 +16,8 @@ package source
 //     a compound predicate becomes a small decision graph over its parts
 //     (and, or, xor, surrogate with the specification's truth tables), laid
 //     out as a tree: a subtree reached by two paths is copied, and a tree
-//     that grows past 64 times its Node count (or past the node budget) is
-//     refused, naming the Node.
+//     that grows past 64 binary nodes per Node plus 1,024 (or past the node
+//     budget) is refused, naming the Node.
 //   - Comparisons: x <= v is a split at v; x < v a split at the value just
 //     below v; greater tests swap the children; equality is a set split when
 //     v is an integer (category_match exact: PMML compares values, so 2.5 is
@@ -37,7 +37,11 @@ package source
 //     missingValueTreatment returnInvalid. A forest always scores, so there
 //     sawmill goes on as if the unknown predicate were false and, where no
 //     child is true, gives the Node's own score or else follows its last
-//     child. Rows PMML scores are scored exactly; the note says so.
+//     child. Rows PMML scores are scored exactly; the note says so. In a
+//     Segmentation, a tree that can give no prediction is read only under
+//     missingPredictionTreatment returnMissing (the whole model then gives
+//     none); skipSegment and continue leave the tree out, which a forest
+//     cannot do.
 //   - MiningSchema missingValueReplacement replaces a missing input before
 //     any predicate reads it: each split sends a missing value where the
 //     replacement goes.
@@ -55,6 +59,19 @@ package source
 //   - Classification leaves hold the ScoreDistribution's probabilities: the
 //     probability attribute when given, else recordCount divided by the sum
 //     of the Node's recordCounts.
+//   - On the fixtures, trees, forests and votes score bit for bit as the
+//     evaluator does; sklearn2pmml's gradient boosting (Targets after a sum,
+//     logit and softmax) within 4 ulps of the largest output (the tests
+//     allow 8).
+//   - Refused, each with an error naming the element: string and integer
+//     fields (a hint says to encode categories as numeric codes), set
+//     members that are not integers in [0, 2^31) or that would need a float
+//     field rounded in a double model, DataField Interval and non-valid
+//     Value restrictions unless invalidValueTreatment is asIs, outliers
+//     other than asIs, Target min, max and castInteger, missingValuePenalty,
+//     weights other than 1, segment predicates other than True, derived
+//     fields other than a rename or a cast to float, and every other model
+//     element and multipleModelMethod.
 
 import (
 	"fmt"
