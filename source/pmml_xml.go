@@ -1,14 +1,15 @@
 package source
 
-// The XML layer of the PMML reader: one streaming pass over the document
-// that keeps only the elements (their names,
-// attributes and, for Array, their text) and refuses what could make a
-// small file cost much: a document type declaration (so no entity of any
-// kind, internal or external, is ever defined, let alone expanded: the
-// "billion laughs" and external-entity attacks stop at the <!DOCTYPE),
-// nesting deeper than pmmlMaxDepth, and text beyond what an Array needs.
-// Memory stays in proportion to the file: an element costs at least four
-// bytes of input ("<a/>") and a bounded number of bytes of memory.
+// The XML layer of the PMML reader: one pass over the document that keeps
+// only the elements (their names, attributes and, for Array, their text)
+// and refuses what could make a small file cost much: a document type
+// declaration (so no entity of any kind, internal or external, is ever
+// defined, let alone expanded: the "billion laughs" and external-entity
+// attacks stop at the <!DOCTYPE), entity references other than XML's five
+// and numeric ones, and nesting deeper than pmmlMaxDepth. Memory stays in
+// proportion to the file: an element costs at least four bytes of input
+// ("<a/>") and a bounded number of bytes of memory. (encoding/xml supplies
+// only the Attr type.)
 
 import (
 	"bytes"
