@@ -71,6 +71,7 @@ func Formats() []Format {
 		xgboostUBJSONFormat,
 		lightgbmFormat,
 		onnxFormat,
+		pmmlFormat,
 	}
 }
 

@@ -442,3 +442,36 @@ func TestFloat32AccumulationSource(t *testing.T) {
 	require.ErrorContains(t, err, "hint: emit double C")
 	require.Error(t, FitsFloat(compiled(t, g, true)))
 }
+
+// A model whose only set splits list no category (a test for a missing
+// value, as the PMML reader writes isMissing) gets no set tables and no
+// NAME_member in nested code, which never calls it there (gcc's
+// -Werror=unused-function failed the build); the table layout keeps them.
+func TestEmptySetSplitNested(t *testing.T) {
+	f := &forest.Forest{Task: forest.Regression, Combine: forest.Sum, Transform: forest.NoTransform,
+		InputPrecision: forest.Float64, BaseScore: []float64{0}, Features: []string{"a"},
+		CategoryMatch: forest.MatchExact,
+		Trees: []forest.Tree{{
+			Feature: []int{0, -1, -1}, Threshold: []float64{0, 0, 0}, Left: []int{1, -1, -1}, Right: []int{2, -1, -1},
+			MissingLeft: []bool{true, false, false}, Value: []float64{0, 1, 2},
+			Categories: [][]int32{{}, nil, nil},
+		}}}
+	require.NoError(t, f.Validate("m"))
+	p := compiled(t, f, false)
+	for _, layout := range []string{emit.Nested, emit.Table} {
+		files, err := Emit(p, Options{Name: "m", Layout: layout})
+		require.NoError(t, err)
+		var src string
+		for _, fl := range files {
+			if strings.HasSuffix(fl.Name, ".c") {
+				src = string(fl.Data)
+			}
+		}
+		calls := strings.Count(src, "m_member(")
+		if layout == emit.Nested {
+			require.Zero(t, calls, "nested code defines or calls m_member:\n%s", src)
+		} else {
+			require.GreaterOrEqual(t, calls, 2, "the table layout defines and calls m_member")
+		}
+	}
+}
