@@ -23,7 +23,9 @@ import (
 func (g *gen) nested(w *printer) {
 	p := g.p
 	k := p.NumOutputs
-	g.writeSets(w)
+	if g.sets.anyMembers() { // a split of no members is the constant 0 here (see member)
+		g.writeSets(w)
+	}
 	var rows *leafRows
 	if g.anyFullTree() && k > 1 {
 		rows = g.distinctLeaves()

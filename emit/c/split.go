@@ -145,6 +145,18 @@ func (st *setTable) of(n *compile.Node) int {
 	return s
 }
 
+// anyMembers reports whether some set split lists a category: splits of
+// empty lists alone need neither the tables nor NAME_member in the nested
+// layout, and an unused static function fails -Werror=unused-function.
+func (st *setTable) anyMembers() bool {
+	for _, c := range st.sets {
+		if len(c.cats) > 0 {
+			return true
+		}
+	}
+	return false
+}
+
 // writeSets writes the set tables and NAME_member, when p has set splits.
 func (g *gen) writeSets(w *printer) {
 	st := g.sets
