@@ -388,9 +388,12 @@ def _hgb_categories(est):
 
     scikit-learn 1.2 (no preprocessor) bins the raw values themselves (integers
     in [0, max_bins)), and its predictor (ensemble/_hist_gradient_boosting/
-    _predictor.pyx) casts the input to uint8 before looking it up; by the
-    measurements in scripts/sklearn_live_check.py, -0.5 is category 0 there and
-    values of -1 and below count as unknown, which is "truncate"."""
+    _predictor.pyx) sends a negative value the missing way and casts any other
+    to uint8 before looking it up: measured, -5e-324 and -0.5 go the missing
+    way, 3.5 is category 3 and 259 is category 3. That is "floor" below 256;
+    codes of 256 and more, which fit() never accepts, sawmill sends the
+    missing way, as unknown categories go (a C cast past uint8's range has
+    no value to reproduce)."""
     n = int(est.n_features_in_)
     pre = getattr(est, "_preprocessor", None)
     if pre is not None:
@@ -434,7 +437,7 @@ def _hgb_categories(est):
         for f in np.flatnonzero(is_cat):
             known = set(_bits(known_bitsets[f_idx_map[f]]))
             info[f] = (int(f), list(range(256)), known)
-    return info, list(range(n)), "truncate"
+    return info, list(range(n)), "floor"
 
 
 def _hgb_tree(pred, info, remap):
