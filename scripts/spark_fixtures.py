@@ -81,6 +81,7 @@ def session():
         SparkSession.builder.master("local[2]")
         .appName("sawmill-fixtures")
         .config("spark.ui.enabled", "false")
+        .config("spark.ui.showConsoleProgress", "false")
         .config("spark.sql.shuffle.partitions", "2")
         .getOrCreate()
     )

@@ -98,6 +98,10 @@ const (
 // constant columns in next to nothing, so the file size alone does not.
 const sparkMaxNodes = 1 << 24
 
+// sparkMaxFeatures bounds numFeatures: 2^20, four times HashingTF's default
+// of 2^18 (Spark ML's documentation; from memory).
+const sparkMaxFeatures = 1 << 20
+
 // sparkMeta is metadata/part-00000.
 type sparkMeta struct {
 	Class           string                     `json:"class"`
@@ -328,7 +332,7 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 	default:
 		return nil, nil, fmt.Errorf("%s: %s is not a tree model sawmill reads\nhint: sawmill reads DecisionTree, RandomForest and GBT classification and regression models", name, meta.Class)
 	}
-	if meta.NumFeatures == nil || *meta.NumFeatures < 1 || *meta.NumFeatures > 1<<20 {
+	if meta.NumFeatures == nil || *meta.NumFeatures < 1 || *meta.NumFeatures > sparkMaxFeatures {
 		return nil, nil, fmt.Errorf("%s: metadata: numFeatures is missing or out of range", name)
 	}
 	nf := *meta.NumFeatures
