@@ -6,6 +6,7 @@ require (
 	github.com/dave/jennifer v1.7.1
 	github.com/duckdb/duckdb-go/v2 v2.10506.0
 	github.com/jackc/pgx/v5 v5.12.0
+	github.com/parquet-go/parquet-go v0.32.1
 	github.com/spf13/cobra v1.10.2
 	github.com/stretchr/testify v1.12.1
 	gonum.org/v1/plot v0.17.0
@@ -16,7 +17,6 @@ require (
 	github.com/andybalholm/brotli v1.3.0 // indirect
 	github.com/parquet-go/bitpack v1.0.3 // indirect
 	github.com/parquet-go/jsonlite v1.5.5 // indirect
-	github.com/parquet-go/parquet-go v0.32.1 // indirect
 	github.com/twpayne/go-geom v1.6.1 // indirect
 	google.golang.org/protobuf v1.36.12 // indirect
 )
