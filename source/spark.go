@@ -438,6 +438,9 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 	if meta.Class == sparkGBTC || meta.Class == sparkGBTR {
 		notes = append(notes, "GBT: Spark adds the weighted trees with BLAS ddot; with a native BLAS its margin can differ from the ordered sum sawmill computes by a few ulps")
 	}
+	if meta.Class == sparkGBTC {
+		notes = append(notes, "GBT: the probability is the logistic of 2·margin; Spark's 1-1/(1+exp(2·margin)) can differ from it by a few ulps")
+	}
 	return f, notes, nil
 }
 
