@@ -99,6 +99,16 @@ func TestSparkLive(t *testing.T) {
 // margin through exp, within 4 ulps of 1 plus that.
 const sparkGBTBound = 1.0
 
+// sparkGBTTerms returns the sum of the magnitudes of the weighted tree
+// outputs for row x, and the bound on the margin's distance from Spark's.
+func sparkGBTTerms(f *forest.Forest, x []float64) (terms, bound float64) {
+	for ti := range f.Trees {
+		tr := &f.Trees[ti]
+		terms += math.Abs(tr.Leaf(f.LeafIndex(tr, x), 1)[0])
+	}
+	return terms, sparkGBTBound * float64(len(f.Trees)) * terms * 0x1p-52
+}
+
 func sparkCheck(t *testing.T, fx sparkFixture) {
 	r := loadSparkFixture(t, fx)
 	f := r.Forest
@@ -119,12 +129,7 @@ func sparkCheck(t *testing.T, fx sparkFixture) {
 			if !classifier {
 				m = w[0]
 			}
-			terms := 0.0
-			for ti := range f.Trees {
-				tr := &f.Trees[ti]
-				terms += math.Abs(tr.Leaf(f.LeafIndex(tr, x), k)[0])
-			}
-			bound := sparkGBTBound * float64(len(f.Trees)) * terms * 0x1p-52
+			terms, bound := sparkGBTTerms(f, x)
 			d := math.Abs(raw[0] - m)
 			require.LessOrEqual(t, d, bound, "line %d: margin %v, Spark %v", line, raw[0], m)
 			if d == 0 {

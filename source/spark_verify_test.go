@@ -2,7 +2,6 @@ package source
 
 import (
 	"context"
-	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -46,12 +45,8 @@ func TestSparkVerify(t *testing.T) {
 					expected = append(expected, w[0])
 				}
 				if gbt {
-					terms := 0.0
-					for ti := range f.Trees {
-						tr := &f.Trees[ti]
-						terms += math.Abs(tr.Leaf(f.LeafIndex(tr, x), k)[0])
-					}
-					tol = max(tol, 2*sparkGBTBound*float64(len(f.Trees))*terms*0x1p-52+4*0x1p-53)
+					_, bound := sparkGBTTerms(f, x)
+					tol = max(tol, 2*bound+4*0x1p-53)
 				}
 			}
 			rep, err := golden.Verify(context.Background(), f, rows, golden.VerifyOptions{
