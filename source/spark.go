@@ -373,7 +373,7 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 			return nil, nil, fmt.Errorf("%s: metadata: numTrees is missing or out of range", name)
 		}
 		numTrees = *meta.NumTrees
-		rows, err := readSparkParquet[sparkEnsembleNode](fsys, name, "data")
+		rows, err := readSparkParquet[sparkEnsembleNode](fsys, name, "data", "treeID", "nodeData")
 		if err != nil {
 			return nil, nil, err
 		}
@@ -387,7 +387,7 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 			}
 			trees[r.TreeID] = append(trees[r.TreeID], *r.NodeData)
 		}
-		tm, err := readSparkParquet[sparkTreeMeta](fsys, name, "treesMetadata")
+		tm, err := readSparkParquet[sparkTreeMeta](fsys, name, "treesMetadata", "treeID", "weights")
 		if err != nil {
 			return nil, nil, err
 		}
@@ -406,7 +406,7 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 			return nil, nil, fmt.Errorf("%s: treesMetadata: no weight for tree %d", name, i)
 		}
 	} else {
-		rows, err := readSparkParquet[sparkNode](fsys, name, "data")
+		rows, err := readSparkParquet[sparkNode](fsys, name, "data", "id", "prediction", "leftChild", "rightChild", "split")
 		if err != nil {
 			return nil, nil, err
 		}
@@ -607,9 +607,10 @@ func sparkLeaf(nd *sparkNode, class string, weight float64, out []float64) error
 }
 
 // readSparkParquet reads every row of dir/part-*.parquet (in name order)
-// as T. Parquet readers can panic on corrupt files; that is turned into an
-// error naming the file.
-func readSparkParquet[T any](fsys fs.FS, name, dir string) ([]T, error) {
+// as T; each file must have the top-level columns named in cols. Parquet
+// readers can panic on corrupt files; that is turned into an error naming
+// the file.
+func readSparkParquet[T any](fsys fs.FS, name, dir string, cols ...string) ([]T, error) {
 	parts, err := fs.Glob(fsys, dir+"/part-*")
 	if err != nil || len(parts) == 0 {
 		return nil, fmt.Errorf("%s: no %s/part-*.parquet file", name, dir)
@@ -619,7 +620,7 @@ func readSparkParquet[T any](fsys fs.FS, name, dir string) ([]T, error) {
 		if strings.HasSuffix(p, ".crc") {
 			continue
 		}
-		rows, err := readParquetFile[T](fsys, p, sparkMaxNodes-len(all))
+		rows, err := readParquetFile[T](fsys, p, sparkMaxNodes-len(all), cols)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %v", path.Join(name, p), err)
 		}
@@ -628,8 +629,9 @@ func readSparkParquet[T any](fsys fs.FS, name, dir string) ([]T, error) {
 	return all, nil
 }
 
-// readParquetFile reads at most limit rows of one parquet file.
-func readParquetFile[T any](fsys fs.FS, p string, limit int) (rows []T, err error) {
+// readParquetFile reads at most limit rows of one parquet file that has
+// the top-level columns cols.
+func readParquetFile[T any](fsys fs.FS, p string, limit int, cols []string) (rows []T, err error) {
 	data, err := fs.ReadFile(fsys, p)
 	if err != nil {
 		return nil, err
@@ -642,6 +644,15 @@ func readParquetFile[T any](fsys fs.FS, p string, limit int) (rows []T, err erro
 	pf, err := parquet.OpenFile(bytes.NewReader(data), int64(len(data)))
 	if err != nil {
 		return nil, fmt.Errorf("not a parquet file: %v", err)
+	}
+	var have []string
+	for _, fl := range pf.Schema().Fields() {
+		have = append(have, fl.Name())
+	}
+	for _, c := range cols {
+		if !slices.Contains(have, c) {
+			return nil, fmt.Errorf("no column %q (the file has %s; want %s)", c, strings.Join(have, ", "), strings.Join(cols, ", "))
+		}
 	}
 	if pf.NumRows() > int64(limit) {
 		return nil, fmt.Errorf("%d rows, more than the %d nodes sawmill reads", pf.NumRows(), sparkMaxNodes)

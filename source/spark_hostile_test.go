@@ -168,6 +168,13 @@ func TestSparkHostile(t *testing.T) {
 		{"weight missing", "gbt_cancer", func(m fstest.MapFS) {
 			m["treesMetadata/part-00000.parquet"].Data = writeParquet(t, []sparkTreeMeta{{TreeID: 0, Weights: 1}})
 		}, "m: treesMetadata: no weight for tree 1"},
+		{"forest metadata over a single tree's data", "dt_diabetes_cat", func(m fstest.MapFS) {
+			m["metadata/part-00000"].Data = []byte(`{"class":"org.apache.spark.ml.regression.RandomForestRegressionModel","numFeatures":10,"numTrees":1}`)
+			m["treesMetadata/part-00000.parquet"] = &fstest.MapFile{Data: writeParquet(t, []sparkTreeMeta{{TreeID: 0, Weights: 1}})}
+		}, `m/data/part-00000.parquet: no column "treeID" (the file has id, prediction, impurity, impurityStats, rawCount, gain, leftChild, rightChild, split; want treeID, nodeData)`},
+		{"single tree metadata over a forest's data", "rf_diabetes_cat", func(m fstest.MapFS) {
+			m["metadata/part-00000"].Data = []byte(`{"class":"org.apache.spark.ml.regression.DecisionTreeRegressionModel","numFeatures":10}`)
+		}, `m/data/part-00000.parquet: no column "id" (the file has treeID, nodeData; want id, prediction, leftChild, rightChild, split)`},
 		{"pipeline stage missing", "pipeline_rf_wine", func(m fstest.MapFS) {
 			for k := range m {
 				if strings.HasPrefix(k, "stages/1_") {
