@@ -19,15 +19,12 @@ LightGBM release that changes its file format or a formula is caught.
 
 import argparse
 import os
-import re
-import subprocess
 import sys
 import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import live_go_test  # noqa: E402
 import lightgbm_fixtures  # noqa: E402
-
-ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 
 
 def main():
@@ -38,21 +35,10 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         out = a.keep or os.path.join(tmp, "models")
         lightgbm_fixtures.build(out, seed=a.seed, quiet=True)
-        env = dict(os.environ, SAWMILL_LIGHTGBM_LIVE=os.path.abspath(out))
-        p = subprocess.run(
-            ["go", "test", "./source", "-count=1", "-run", "^TestLightGBMLive$", "-v"],
-            cwd=ROOT, env=env, capture_output=True, text=True,
-        )
-    log = p.stdout + p.stderr
-    passed = len(re.findall(r"^\s+--- PASS: TestLightGBMLive/", log, re.M))
-    failed = len(re.findall(r"^\s+--- FAIL: TestLightGBMLive/", log, re.M))
-    models = len(lightgbm_fixtures.MODELS)
-    if p.returncode != 0 or passed + failed != models:
-        sys.stdout.write(log)
-        failed = max(failed, models - passed)
-    import lightgbm
-    print(f"lightgbm {lightgbm.__version__}: {passed} passed, {failed} failed")
-    sys.exit(1 if failed else 0)
+        import lightgbm
+
+        label = f"lightgbm {lightgbm.__version__}"
+        sys.exit(live_go_test.run("TestLightGBMLive", "SAWMILL_LIGHTGBM_LIVE", out, len(lightgbm_fixtures.MODELS), label))
 
 
 if __name__ == "__main__":

@@ -21,15 +21,12 @@ release that changes its saved format or a formula is caught.
 
 import argparse
 import os
-import re
-import subprocess
 import sys
 import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import live_go_test  # noqa: E402
 import spark_fixtures  # noqa: E402
-
-ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 
 
 def main():
@@ -40,21 +37,10 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         out = a.keep or os.path.join(tmp, "models")
         spark_fixtures.build(out, seed=a.seed, quiet=True)
-        env = dict(os.environ, SAWMILL_SPARK_LIVE=os.path.abspath(out))
-        p = subprocess.run(
-            ["go", "test", "./source", "-count=1", "-run", "^TestSparkLive$", "-v"],
-            cwd=ROOT, env=env, capture_output=True, text=True,
-        )
-    log = p.stdout + p.stderr
-    passed = len(re.findall(r"^\s+--- PASS: TestSparkLive/", log, re.M))
-    failed = len(re.findall(r"^\s+--- FAIL: TestSparkLive/", log, re.M))
-    models = len(spark_fixtures.MODELS)
-    if p.returncode != 0 or passed + failed != models:
-        sys.stdout.write(log)
-        failed = max(failed, models - passed)
-    import pyspark
-    print(f"pyspark {pyspark.__version__}: {passed} passed, {failed} failed")
-    sys.exit(1 if failed else 0)
+        import pyspark
+
+        label = f"pyspark {pyspark.__version__}"
+        sys.exit(live_go_test.run("TestSparkLive", "SAWMILL_SPARK_LIVE", out, len(spark_fixtures.MODELS), label))
 
 
 if __name__ == "__main__":
