@@ -77,6 +77,10 @@ MODELS = [
 def session():
     from pyspark.sql import SparkSession
 
+    # Spark's Python workers run "python3" from the PATH unless told: use
+    # this interpreter, whose packages (numpy, pyspark) they need.
+    os.environ.setdefault("PYSPARK_PYTHON", sys.executable)
+
     s = (
         SparkSession.builder.master("local[2]")
         .appName("sawmill-fixtures")
