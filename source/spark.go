@@ -154,6 +154,31 @@ type sparkTreeMeta struct {
 	Weights float64 `parquet:"weights"`
 }
 
+// sparkTreeTuple is a row of treesMetadata as Spark 4.3.0 writes it
+// (measured): the same (treeID, metadata, weight) tuple, with the column
+// names Scala gives a tuple.
+type sparkTreeTuple struct {
+	TreeID  int32   `parquet:"_1"`
+	Weights float64 `parquet:"_3"`
+}
+
+// readSparkTreeWeights reads treesMetadata/ in either form.
+func readSparkTreeWeights(fsys fs.FS, name string) ([]sparkTreeMeta, error) {
+	tm, err := readSparkParquet[sparkTreeMeta](fsys, name, "treesMetadata", "treeID", "weights")
+	if err == nil {
+		return tm, nil
+	}
+	tt, err2 := readSparkParquet[sparkTreeTuple](fsys, name, "treesMetadata", "_1", "_2", "_3")
+	if err2 != nil {
+		return nil, err
+	}
+	tm = make([]sparkTreeMeta, len(tt))
+	for i, t := range tt {
+		tm[i] = sparkTreeMeta(t)
+	}
+	return tm, nil
+}
+
 // isSparkFolder reports whether fsys holds metadata/part-* (a saved model or
 // pipeline).
 func isSparkFolder(fsys fs.FS) bool {
@@ -387,7 +412,7 @@ func readSparkModel(fsys fs.FS, name string, meta *sparkMeta) (*forest.Forest, [
 			}
 			trees[r.TreeID] = append(trees[r.TreeID], *r.NodeData)
 		}
-		tm, err := readSparkParquet[sparkTreeMeta](fsys, name, "treesMetadata", "treeID", "weights")
+		tm, err := readSparkTreeWeights(fsys, name)
 		if err != nil {
 			return nil, nil, err
 		}

@@ -216,3 +216,32 @@ func TestSparkLoadPaths(t *testing.T) {
 	_, err = Load(filepath.Join(dir, "metadata", "part-00000"), "spark", Options{})
 	require.ErrorContains(t, err, "a Spark ML model is a folder")
 }
+
+// TestSparkTreesMetadataTuple: Spark 4.3.0 writes treesMetadata as an
+// unnamed tuple (_1 treeID, _2 metadata, _3 weight; measured with
+// scripts/spark_live_check.py); the reader takes both forms alike.
+func TestSparkTreesMetadataTuple(t *testing.T) {
+	type tuple struct {
+		T1 int32   `parquet:"_1"`
+		T2 string  `parquet:"_2"`
+		T3 float64 `parquet:"_3"`
+	}
+	m := sparkFS(t, "gbt_cancer")
+	want, err := readSpark(m, "m", Options{})
+	require.NoError(t, err)
+	named, err := readSparkParquet[sparkTreeMeta](m, "m", "treesMetadata", "treeID", "weights")
+	require.NoError(t, err)
+	var rows []tuple
+	for i := len(named) - 1; i >= 0; i-- { // out of order, as partitions may be
+		rows = append(rows, tuple{named[i].TreeID, "{}", named[i].Weights})
+	}
+	m["treesMetadata/part-00000.parquet"].Data = writeParquet(t, rows)
+	got, err := readSpark(m, "m", Options{})
+	require.NoError(t, err)
+	require.Equal(t, want.Forest, got.Forest)
+	rows[0].T3 = 0.5
+	m["treesMetadata/part-00000.parquet"].Data = writeParquet(t, rows)
+	got, err = readSpark(m, "m", Options{})
+	require.NoError(t, err)
+	require.NotEqual(t, want.Forest, got.Forest)
+}
