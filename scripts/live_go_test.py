@@ -32,3 +32,23 @@ def run(test, env_var, folder, models, label):
         failed = max(failed, models - passed)
     print(f"{label}: {passed} passed, {failed} failed")
     return 1 if failed else 0
+
+
+def main(doc, fixtures, test, env_var, library):
+    """The whole live check: parses --seed and --keep, trains the models of
+    the fixtures module (its build(out, seed, quiet) and MODELS) with a seed
+    other than the committed fixtures', and runs the Go test over them;
+    library names the Python module whose version the result line gives."""
+    import argparse
+    import importlib
+    import tempfile
+
+    ap = argparse.ArgumentParser(description=doc.splitlines()[0])
+    ap.add_argument("--seed", type=int, default=11, help="training seed (the committed fixtures use 7)")
+    ap.add_argument("--keep", help="write the models here and keep them")
+    a = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        out = a.keep or os.path.join(tmp, "models")
+        fixtures.build(out, seed=a.seed, quiet=True)
+        version = importlib.import_module(library).__version__
+        sys.exit(run(test, env_var, out, len(fixtures.MODELS), f"{library} {version}"))

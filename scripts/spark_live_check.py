@@ -19,29 +19,12 @@ or within the stated bound (GBT) against what this Spark predicted. It prints
 release that changes its saved format or a formula is caught.
 """
 
-import argparse
 import os
 import sys
-import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import live_go_test  # noqa: E402
 import spark_fixtures  # noqa: E402
 
-
-def main():
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--seed", type=int, default=11, help="training seed (the committed fixtures use 7)")
-    ap.add_argument("--keep", help="write the models here and keep them")
-    a = ap.parse_args()
-    with tempfile.TemporaryDirectory() as tmp:
-        out = a.keep or os.path.join(tmp, "models")
-        spark_fixtures.build(out, seed=a.seed, quiet=True)
-        import pyspark
-
-        label = f"pyspark {pyspark.__version__}"
-        sys.exit(live_go_test.run("TestSparkLive", "SAWMILL_SPARK_LIVE", out, len(spark_fixtures.MODELS), label))
-
-
 if __name__ == "__main__":
-    main()
+    live_go_test.main(__doc__, spark_fixtures, "TestSparkLive", "SAWMILL_SPARK_LIVE", "pyspark")
