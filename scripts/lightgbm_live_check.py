@@ -17,29 +17,12 @@ within the stated bound, against what this lightgbm predicted. It prints
 LightGBM release that changes its file format or a formula is caught.
 """
 
-import argparse
 import os
 import sys
-import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import live_go_test  # noqa: E402
 import lightgbm_fixtures  # noqa: E402
-import live_check  # noqa: E402
-
-
-def main():
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--seed", type=int, default=11, help="training seed (the committed fixtures use 7)")
-    ap.add_argument("--keep", help="write the models here and keep them")
-    a = ap.parse_args()
-    with tempfile.TemporaryDirectory() as tmp:
-        out = a.keep or os.path.join(tmp, "models")
-        lightgbm_fixtures.build(out, seed=a.seed, quiet=True)
-        passed, failed = live_check.go_test("TestLightGBMLive", "SAWMILL_LIGHTGBM_LIVE", out, len(lightgbm_fixtures.MODELS))
-    import lightgbm
-    print(f"lightgbm {lightgbm.__version__}: {passed} passed, {failed} failed")
-    sys.exit(1 if failed else 0)
-
 
 if __name__ == "__main__":
-    main()
+    live_go_test.main(__doc__, lightgbm_fixtures, "TestLightGBMLive", "SAWMILL_LIGHTGBM_LIVE", "lightgbm")

@@ -27,7 +27,7 @@ import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import pmml_fixtures  # noqa: E402
-import live_check  # noqa: E402
+import live_go_test  # noqa: E402
 
 
 def main():
@@ -39,12 +39,10 @@ def main():
         out = a.keep or os.path.join(tmp, "models")
         pmml_fixtures.build(out, seed=a.seed, quiet=True)
         models = len([d for d in os.listdir(out) if os.path.isfile(os.path.join(out, d, "model.pmml"))])
-        passed, failed = live_check.go_test("TestPMMLLive", "SAWMILL_PMML_LIVE", out, models)
-    import sklearn2pmml
-    import jpmml_evaluator
-    print(f"sklearn2pmml {sklearn2pmml.__version__}, jpmml_evaluator {jpmml_evaluator.__version__}: {passed} passed, {failed} failed")
-    sys.exit(1 if failed else 0)
-
+        import sklearn2pmml
+        import jpmml_evaluator
+        label = f"sklearn2pmml {sklearn2pmml.__version__}, jpmml_evaluator {jpmml_evaluator.__version__}"
+        sys.exit(live_go_test.run("TestPMMLLive", "SAWMILL_PMML_LIVE", out, models, label))
 
 if __name__ == "__main__":
     main()

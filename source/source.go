@@ -61,6 +61,11 @@ type Format struct {
 	Detect func(data []byte) bool
 	// Read converts the file's bytes; name is used in messages.
 	Read func(data []byte, name string, o Options) (*Result, error)
+	// DetectDir and ReadDir are set for formats whose models are folders
+	// (Spark ML): DetectDir reports whether the folder looks like one, cheaply;
+	// ReadDir reads it, with the folder's path in messages.
+	DetectDir func(dir string) bool
+	ReadDir   func(dir string, o Options) (*Result, error)
 }
 
 // Formats is every reader, in the order Detect tries them.
@@ -72,6 +77,7 @@ func Formats() []Format {
 		lightgbmFormat,
 		onnxFormat,
 		pmmlFormat,
+		sparkFormat,
 	}
 }
 
@@ -105,12 +111,16 @@ func Detect(data []byte, name string) (Format, error) {
 }
 
 // Load reads the model file at path. from names the format ("" detects it).
+// A folder is read by a format that reads folders (LoadDir).
 func Load(path, from string, o Options) (*Result, error) {
 	fh, err := os.Open(path)
 	if err != nil {
 		return nil, err
 	}
 	defer fh.Close()
+	if st, err := fh.Stat(); err == nil && st.IsDir() {
+		return LoadDir(path, from, o)
+	}
 	max := o.Read.MaxBytes
 	if max <= 0 {
 		max = forest.DefaultMaxFileBytes
@@ -123,6 +133,42 @@ func Load(path, from string, o Options) (*Result, error) {
 		return nil, fmt.Errorf("%s: file is larger than the limit of %d bytes\nhint: raise the limit if the model is meant to be this large", path, max)
 	}
 	return Decode(data, path, from, o)
+}
+
+// LoadDir reads the model folder at dir. from names the format ("" detects
+// it among the formats whose models are folders).
+func LoadDir(dir, from string, o Options) (*Result, error) {
+	var f Format
+	if from != "" {
+		var err error
+		if f, err = Lookup(from); err != nil {
+			return nil, err
+		}
+		if f.ReadDir == nil {
+			return nil, fmt.Errorf("%s: is a folder; a %s model is a file", dir, f.Name)
+		}
+	} else {
+		var names []string
+		for _, g := range Formats() {
+			if g.DetectDir == nil {
+				continue
+			}
+			names = append(names, g.Name)
+			if g.DetectDir(dir) {
+				f = g
+				break
+			}
+		}
+		if f.ReadDir == nil {
+			return nil, fmt.Errorf("%s: a folder that holds no model this reader knows\nhint: folders read: %s (a Spark ML model folder holds metadata/ and data/)", dir, strings.Join(names, ", "))
+		}
+	}
+	r, err := f.ReadDir(dir, o)
+	if err != nil {
+		return nil, err
+	}
+	r.Format = f.Name
+	return r, nil
 }
 
 // Decode is Load for a file already in memory.
