@@ -50,6 +50,9 @@ func Check(p *Program) error {
 	if p.CategoryRound32 && p.Compare != Double {
 		return fmt.Errorf("set splits round to float32 in a %v program", p.Compare)
 	}
+	if err := checkMidpoints32(p); err != nil {
+		return err
+	}
 	if p.HasMissingValue {
 		lo, hi := p.MissingLo, p.MissingHi
 		if math.IsNaN(lo) || math.IsNaN(hi) || lo > hi {
@@ -162,3 +165,34 @@ func Check(p *Program) error {
 
 // isFloat32 reports whether v is exactly a float32 value (±Inf included).
 func isFloat32(v float64) bool { return float64(float32(v)) == v }
+
+// checkMidpoints32 holds Program.Midpoints32 to the splits: when set, the
+// program is in the Double form, has a numeric split, and every numeric
+// split is the midpoint comparison of the finite float32 below it.
+func checkMidpoints32(p *Program) error {
+	if !p.Midpoints32 {
+		return nil
+	}
+	if p.Compare != Double {
+		return fmt.Errorf("midpoints of float32 thresholds in a %v program", p.Compare)
+	}
+	numeric := false
+	for ti := range p.Trees {
+		for i := range p.Trees[ti].Nodes {
+			n := &p.Trees[ti].Nodes[i]
+			if n.IsLeaf() || n.IsSetSplit() {
+				continue
+			}
+			numeric = true
+			t32 := Floor32(n.Threshold)
+			if op, m := Midpoint32(n.Threshold); math.IsInf(float64(t32), 0) || op != n.Op || m != n.Threshold {
+				return fmt.Errorf("tree %d, node %d: x %v %v is not the midpoint test of a finite float32, but the program says every split is",
+					p.Trees[ti].Source, n.ID, n.Op, n.Threshold)
+			}
+		}
+	}
+	if !numeric {
+		return fmt.Errorf("midpoints of float32 thresholds, but no numeric split")
+	}
+	return nil
+}

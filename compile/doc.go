@@ -56,7 +56,9 @@
 //	          missing band and the zero bound), or, for float32 targets,
 //	          with float32 thresholds (Single32); set splits of a float32
 //	          model keep their lists and, for float64 inputs, are marked
-//	          CategoryRound32
+//	          CategoryRound32; Midpoints32 records that every numeric
+//	          split is the midpoint test of a finite float32, which a
+//	          target may store as that float32
 //	used      features no split tests are marked unused
 //
 // The text form (Format, Parse) has one line per node, so pass tests are

@@ -35,6 +35,7 @@ import "math"
 func float32Compare(p *Program) {
 	switch {
 	case p.Compare == Round32 && !p.SingleInputs:
+		numeric, finite := false, true
 		for ti := range p.Trees {
 			for i := range p.Trees[ti].Nodes {
 				n := &p.Trees[ti].Nodes[i]
@@ -42,10 +43,13 @@ func float32Compare(p *Program) {
 				case n.IsSetSplit():
 					p.CategoryRound32 = true
 				case !n.IsLeaf():
+					numeric = true
+					finite = finite && !math.IsInf(float64(Floor32(n.Threshold)), 0)
 					n.Op, n.Threshold = Midpoint32(n.Threshold)
 				}
 			}
 		}
+		p.Midpoints32 = numeric && finite
 		if lo, hi, ok := band32(p); ok {
 			p.MissingLo, _ = Round32Range(lo)
 			_, p.MissingHi = Round32Range(hi)
@@ -66,6 +70,7 @@ func float32Compare(p *Program) {
 		}
 		p.ZeroBound = float64(Floor32(p.ZeroBound))
 		p.CategoryRound32 = false // a float32 input is its own rounding
+		p.Midpoints32 = false
 		p.Compare = Single
 	}
 }

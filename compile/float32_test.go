@@ -227,3 +227,85 @@ func TestFloat32RewriteRoutesExhaustive(t *testing.T) {
 	}
 	t.Logf("%d inputs route alike", checked)
 }
+
+// TestMidpoints32 holds the float32 pass's record of what it wrote: a
+// float32 model compiled for float64 inputs says Midpoints32 exactly when
+// it has a numeric split and every threshold's float32 below is finite, and
+// every such split then reads back as round32(x) <= t32 with t32 =
+// Floor32(m); a float64 model, the float32-input form, a model of set
+// splits only and one threshold below -MaxFloat32 do not say it.
+func TestMidpoints32(t *testing.T) {
+	rng := rand.New(rand.NewPCG(32, 0))
+	set := 0
+	for range 300 {
+		f := randomForest(rng)
+		for _, single := range []bool{false, true} {
+			p, _, err := Compile(f, Options{SingleInputs: single})
+			require.NoError(t, err)
+			numeric, finite := false, true
+			for _, tr := range Lower(f).Trees {
+				for _, n := range tr.Nodes {
+					if !n.IsLeaf() && !n.IsSetSplit() {
+						numeric = true
+						finite = finite && !math.IsInf(float64(Floor32(n.Threshold)), 0)
+					}
+				}
+			}
+			want := f.InputPrecision == forest.Float32 && !single && numeric && finite
+			// pruning and folding may remove splits, never add them, so a
+			// program that says it still has one numeric split
+			if p.Midpoints32 != want && !(want && !p.Midpoints32 && noNumeric(p)) {
+				t.Fatalf("input %s, single %v: Midpoints32 %v, want %v\n%s", f.InputPrecision, single, p.Midpoints32, want, p)
+			}
+			if p.Midpoints32 {
+				set++
+				for _, tr := range p.Trees {
+					for _, n := range tr.Nodes {
+						if n.IsLeaf() || n.IsSetSplit() {
+							continue
+						}
+						t32 := Floor32(n.Threshold)
+						for _, x := range walk64(float64(t32), 2) {
+							for _, y := range []float64{x, float64(t32)/2 + float64(math.Nextafter32(t32, float32(math.Inf(1))))/2} {
+								if got := n.Op == LE && y <= n.Threshold || n.Op == LT && y < n.Threshold; got != (float32(y) <= t32) {
+									t.Fatalf("x=%v: x %v %v is %v, round32(x) <= %v is not", y, n.Op, n.Threshold, got, t32)
+								}
+							}
+						}
+					}
+				}
+			}
+		}
+	}
+	require.Greater(t, set, 10, "random float32 models must exercise Midpoints32")
+
+	f := &forest.Forest{Task: forest.Regression, Features: []string{"x"}, InputPrecision: forest.Float32,
+		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0},
+		Trees: []forest.Tree{{Feature: []int{0, -1, -1}, Threshold: []float64{-1e39, 0, 0},
+			Left: []int{1, -1, -1}, Right: []int{2, -1, -1}, MissingLeft: []bool{false, false, false}, Value: []float64{0, 1, 2}}}}
+	require.NoError(t, f.Validate("below"))
+	p, _, err := Compile(f, Options{})
+	require.NoError(t, err)
+	require.False(t, p.Midpoints32, "a threshold below -MaxFloat32 has no finite float32 below it")
+
+	f.Trees[0].Threshold[0] = 0.1
+	p, _, err = Compile(f, Options{})
+	require.NoError(t, err)
+	require.True(t, p.Midpoints32)
+	back, err := Parse(p.String())
+	require.NoError(t, err)
+	require.True(t, back.Midpoints32, "the text form keeps it")
+	p.Trees[0].Nodes[0].Threshold = 0.1 // no longer a midpoint
+	require.ErrorContains(t, Check(p), "not the midpoint test of a finite float32")
+}
+
+func noNumeric(p *Program) bool {
+	for _, tr := range p.Trees {
+		for _, n := range tr.Nodes {
+			if !n.IsLeaf() && !n.IsSetSplit() {
+				return false
+			}
+		}
+	}
+	return true
+}

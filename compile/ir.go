@@ -91,6 +91,14 @@ type Program struct {
 	// it is false in every other form (under Round32 every test already sees
 	// round32(x), under Single the input is a float32).
 	CategoryRound32 bool
+	// Midpoints32 says that every numeric split is x op m with
+	// (op, m) = Midpoint32(t32) for a finite float32 t32 = Floor32(m), so
+	// that x op m holds exactly when round32(x) <= t32: a target may store
+	// t32 in a float and compare the input rounded to float with it. Only
+	// the float32 pass sets it, when it rewrites a float32 model with
+	// numeric splits into the Double form and no t32 is an infinity; it
+	// is false in every other program (Check holds it to the splits).
+	Midpoints32 bool
 	// HasMissingValue says that a non-NaN input x also counts as missing, at
 	// every split, when MissingLo <= x <= MissingHi, x being what the split
 	// sees of the input under Compare. The bounds are not NaN and

@@ -23,6 +23,7 @@ import (
 //
 // Version 2 adds, only where they differ from the defaults, the program
 // keys accumulate=float32, scale=S, match=truncate|exact, catround32=true,
+// midpoints32=true,
 // missing=LO,HI (the missing band) and zero=Z (the zero bound, default
 // forest.ZeroMissingBound); "tree 4 output=2" for a tree of one output; set
 // splits "x1 in {0,3,7}" in place of "x1 <= t"; and "missing=left+zero" on
@@ -47,6 +48,9 @@ func Format(w io.Writer, p *Program) error {
 	}
 	if p.CategoryRound32 {
 		fmt.Fprintf(bw, " catround32=true")
+	}
+	if p.Midpoints32 {
+		fmt.Fprintf(bw, " midpoints32=true")
 	}
 	if p.HasMissingValue {
 		fmt.Fprintf(bw, " missing=%s,%s", fmtFloat(p.MissingLo), fmtFloat(p.MissingHi))
@@ -181,6 +185,8 @@ func Parse(text string) (*Program, error) {
 					p.CategoryMatch = forest.CategoryMatch(v)
 				case "catround32":
 					p.CategoryRound32 = v == "true"
+				case "midpoints32":
+					p.Midpoints32 = v == "true"
 				case "missing":
 					b, err := parseFloats(v)
 					if err != nil || len(b) != 2 {

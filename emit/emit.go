@@ -16,9 +16,24 @@ import (
 	"unicode"
 )
 
-// Version is the sawmill version emitted in every generated header. Golden
-// tests pin it (SetVersion) so a release does not rewrite every golden file.
-var Version = "0.1.0"
+// Version is the sawmill version a generated header names when the
+// target's Options.Version is empty. Golden tests set Options.Version to
+// "test" so that a release does not rewrite every snapshot.
+const Version = "0.1.0"
+
+// HeaderVersion is the version a header names: v, or Version when v is
+// empty.
+func HeaderVersion(v string) string {
+	if v == "" {
+		return Version
+	}
+	return v
+}
+
+// Ownership is the line every generated file's header carries after the
+// generated-code line: the output is the user's, and sawmill's licence
+// (Apache 2.0, which covers sawmill's own source) puts no terms on it.
+const Ownership = "The generated code is yours: it carries no licence terms of sawmill's."
 
 // File is one generated file: a name relative to the output folder, and its
 // bytes.

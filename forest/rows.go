@@ -1,7 +1,6 @@
 package forest
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -65,12 +64,11 @@ func ReadRows(r io.Reader, name string, features []string, o RowOptions) (*Rows,
 // RowReader reads a row file a chunk of rows at a time, for files of any
 // size: what ReadRows does, with memory bounded by the chunk.
 type RowReader struct {
-	cr       *csv.Reader
+	cr       *CSVReader
 	name     string
 	features []string
 	idx      []int // the column of each feature
 	keep     []int // the column of each kept column
-	width    int   // cells in the header
 	done     bool
 }
 
@@ -78,15 +76,11 @@ type RowReader struct {
 // features and to o.Keep; a problem with the header is an error naming
 // every missing column.
 func NewRowReader(r io.Reader, name string, features []string, o RowOptions) (*RowReader, error) {
-	cr := csv.NewReader(r)
-	cr.ReuseRecord = true
-	header, err := cr.Read()
-	if err == io.EOF {
-		return nil, fmt.Errorf("%s: empty file: expected a header line naming the columns", name)
-	}
+	cr, err := NewCSVReader(r, name)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %s", name, csvError(err))
+		return nil, err
 	}
+	header := cr.Header
 	cols := make(map[string]int, len(header))
 	// exact holds the header cells as written, so that a name with leading
 	// or trailing spaces (the format allows any text) still finds its column.
@@ -134,7 +128,7 @@ func NewRowReader(r io.Reader, name string, features []string, o RowOptions) (*R
 	if p.Len() > 0 {
 		return nil, p.Err()
 	}
-	return &RowReader{cr: cr, name: name, features: features, idx: idx, keep: keep, width: len(header)}, nil
+	return &RowReader{cr: cr, name: name, features: features, idx: idx, keep: keep}, nil
 }
 
 // Next reads up to max rows (at least one). It returns io.EOF when no row
@@ -147,26 +141,11 @@ func (rr *RowReader) Next(max int) (*Rows, error) {
 	var p Problems
 	rows := &Rows{Features: rr.features}
 	for rows.Len() < max {
-		rec, err := rr.cr.Read()
-		if err == io.EOF {
-			rr.done = true
+		rec, line, ok := rr.cr.Next(&p)
+		if !ok {
+			rr.done = true // the end, or a problem that stops the read
 			break
 		}
-		if err != nil {
-			var pe *csv.ParseError
-			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
-				p.Add("%s:%d: has %d cells, the header has %d", rr.name, pe.StartLine, len(rec), rr.width)
-				if p.Full() {
-					break
-				}
-				continue
-			}
-			p.Add("%s: %s", rr.name, csvError(err))
-			break
-		}
-		// Only after a successful read: FieldPos panics on a record that
-		// failed with no fields (an unterminated quote).
-		line, _ := rr.cr.FieldPos(0)
 		for i, c := range rr.idx {
 			v, msg := ParseCell(rec[c])
 			if msg != "" {
@@ -218,12 +197,4 @@ func ParseCell(s string) (v float64, msg string) {
 		return math.NaN(), ""
 	}
 	return v, ""
-}
-
-func csvError(err error) string {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		return fmt.Sprintf("line %d, column %d: %v", pe.Line, pe.Column, pe.Err)
-	}
-	return err.Error()
 }

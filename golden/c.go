@@ -123,7 +123,9 @@ func (cRunner) options(layout, variant string) cemit.Options {
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
-	files, err := cemit.Emit(p, r.options(layout, variant))
+	o := r.options(layout, variant)
+	o.Version = SnapshotVersion
+	files, err := cemit.Emit(p, o)
 	return files, declined(err)
 }
 

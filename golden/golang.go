@@ -50,7 +50,7 @@ func (goRunner) Tolerance(string, *compile.Program) (bool, float64) { return tru
 const goPackage = "forestmodel"
 
 func (goRunner) Emit(p *compile.Program, layout, _ string) ([]emit.File, error) {
-	return golang.Emit(p, golang.Options{Package: goPackage, Layout: layout})
+	return golang.Emit(p, golang.Options{Package: goPackage, Layout: layout, Version: SnapshotVersion})
 }
 
 // goDriver is a test beside the emitted package's own: it scores the rows

@@ -14,14 +14,12 @@ import (
 	"testing"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	"github.com/sawmill-dev/sawmill/emit"
 )
 
 var update = flag.Bool("update", false, "rewrite snapshot files that differ")
 
 func TestMain(m *testing.M) {
 	flag.Parse()
-	emit.Version = "test" // pinned so a release does not rewrite every snapshot
 	os.Exit(m.Run())
 }
 

@@ -76,8 +76,12 @@ type BatchResult struct {
 	Err    error
 }
 
+// SnapshotVersion is the sawmill version an Emitter's files name in their
+// headers, pinned so that a release does not rewrite every snapshot.
+const SnapshotVersion = "test"
+
 // Emitter is implemented by runners whose generated source can be kept as
-// a snapshot.
+// a snapshot; the files name SnapshotVersion.
 type Emitter interface {
 	Emit(p *compile.Program, layout, variant string) ([]emit.File, error)
 }

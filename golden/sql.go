@@ -138,6 +138,7 @@ func (r sqliteRunner) Emit(p *compile.Program, layout, variant string) ([]emit.F
 	if err != nil {
 		return nil, err
 	}
+	o.Version = SnapshotVersion
 	return sqlemit.Emit(p, o)
 }
 

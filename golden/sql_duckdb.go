@@ -1,4 +1,4 @@
-//go:build cgo
+//go:build cgo && duckdb
 
 package golden
 
@@ -9,6 +9,9 @@ import (
 
 	"github.com/duckdb/duckdb-go/v2" // database/sql driver "duckdb"; cgo, bundles the library
 )
+
+// duckDBLinked says this build carries the DuckDB driver.
+const duckDBLinked = true
 
 func openDuckDB(ctx context.Context) (*sqlDB, error) {
 	db, err := dbsql.Open("duckdb", "") // a fresh in-memory database

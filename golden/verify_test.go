@@ -182,6 +182,7 @@ var plantedFaults = []plantedFault{
 		} else {
 			n.Threshold = math.Nextafter(n.Threshold, math.Inf(-1))
 		}
+		p.Midpoints32 = false // the split is no longer a float32's midpoint test
 		return true
 	}},
 	{"leaf", func(p *compile.Program, i int) bool {

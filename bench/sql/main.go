@@ -5,8 +5,8 @@
 // Mangasarian, UCI Machine Learning Repository, 1995, as shipped with
 // scikit-learn), resampled with noise to the number of rows asked.
 //
-//	go run ./bench/sql -trees 100 -rows 100000
-//	go run ./bench/sql -trees 500 -rows 100000 -layouts auto
+//	go run -tags duckdb ./bench/sql -trees 100 -rows 100000
+//	go run -tags duckdb ./bench/sql -trees 500 -rows 100000 -layouts auto
 //
 // Every run is checked against the interpreter before its figures count.
 package main

@@ -138,7 +138,6 @@ func compiled(t *testing.T, f *forest.Forest, single bool) *compile.Program {
 }
 
 func TestEmitIsDeterministicAndNamed(t *testing.T) {
-	emit.Version = "test"
 	p := compiled(t, pumpForest(t, forest.Float64), false)
 	ps := compiled(t, pumpForest(t, forest.Float64), true)
 	for _, layout := range []string{emit.Auto, emit.Nested, emit.Table} {
@@ -147,7 +146,7 @@ func TestEmitIsDeterministicAndNamed(t *testing.T) {
 			if fl {
 				prog = ps
 			}
-			o := Options{Name: "pump_health", Layout: layout, Float: fl}
+			o := Options{Name: "pump_health", Layout: layout, Float: fl, Version: "test"}
 			a, err := Emit(prog, o)
 			require.NoError(t, err)
 			b, err := Emit(prog, o)
@@ -159,6 +158,9 @@ func TestEmitIsDeterministicAndNamed(t *testing.T) {
 			h := string(a[0].Data)
 			require.Contains(t, h, p.Hash)
 			require.Contains(t, h, "sawmill test")
+			for _, f := range a {
+				require.Contains(t, string(f.Data), emit.Ownership, "%s says the code is the user's", f.Name)
+			}
 			require.Contains(t, h, "#define PUMP_HEALTH_NUM_FEATURES 5")
 			require.Contains(t, h, "#define PUMP_HEALTH_NUM_OUTPUTS 4")
 			require.Contains(t, h, "#define PUMP_HEALTH_F_SUCTION_PRESSURE_KPA 4")

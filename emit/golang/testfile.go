@@ -8,6 +8,7 @@ import (
 	"github.com/dave/jennifer/jen"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -38,7 +39,8 @@ type testRow struct {
 func (g *gen) testSource() ([]byte, error) {
 	rows := g.testRows()
 	f := jen.NewFile(g.pkg)
-	f.HeaderComment(generatedLine())
+	f.HeaderComment(g.generatedLine())
+	f.HeaderComment(emit.Ownership)
 	cls := g.p.IsClassifier()
 	fields := []jen.Code{
 		jen.Id("note").String(),

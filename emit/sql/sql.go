@@ -71,6 +71,9 @@ type Options struct {
 	Columns []string
 	// Outputs, when set, names the output columns instead of OutputNames.
 	Outputs []string
+	// Version is the sawmill version the header names; emit.Version when
+	// empty.
+	Version string
 }
 
 // ErrNames is wrapped by every error about a name the dialect cannot use

@@ -1,7 +1,6 @@
 package train
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -72,15 +71,11 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 	default:
 		return nil, fmt.Errorf("task %q is unknown: use classification or regression", o.Task)
 	}
-	cr := csv.NewReader(r)
-	cr.ReuseRecord = true
-	header, err := cr.Read()
-	if err == io.EOF {
-		return nil, fmt.Errorf("%s: empty file: expected a header line naming the columns", name)
-	}
+	cr, err := forest.NewCSVReader(r, name)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %s", name, csvError(err))
+		return nil, err
 	}
+	header := cr.Header
 	var p forest.Problems
 	cols := make(map[string]int, len(header))
 	names := make([]string, len(header))
@@ -134,23 +129,10 @@ func ReadCSV(r io.Reader, name string, o ReadOptions) (*Data, error) {
 	const perColumn = 3
 	badCells := make([]int, len(feat))
 	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
+		rec, line, ok := cr.Next(&p)
+		if !ok {
 			break
 		}
-		if err != nil {
-			var pe *csv.ParseError
-			if errors.As(err, &pe) && errors.Is(pe.Err, csv.ErrFieldCount) {
-				p.Add("%s:%d: has %d cells, the header has %d", name, pe.StartLine, len(rec), len(header))
-				if p.Full() {
-					break
-				}
-				continue
-			}
-			p.Add("%s: %s", name, csvError(err))
-			break
-		}
-		line, _ := cr.FieldPos(0)
 		for j, c := range feat {
 			v, msg := forest.ParseCell(rec[c])
 			switch {
@@ -341,14 +323,6 @@ func quoteList(s []string) string {
 		q[i] = strconv.Quote(x)
 	}
 	return strings.Join(q, ", ")
-}
-
-func csvError(err error) string {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		return fmt.Sprintf("line %d, column %d: %v", pe.Line, pe.Column, pe.Err)
-	}
-	return err.Error()
 }
 
 // check verifies that d is a usable table before training.
