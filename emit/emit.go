@@ -1,7 +1,7 @@
 // Package emit holds what every target shares: the File type emitters
 // return, the sawmill version named in headers, layout names, and the
-// identifier and number helpers. Each target is a sub-package (emit/golang,
-// emit/c, emit/sql) with a pure function
+// identifier and number helpers. Each target is a sub-package (emit/gotarget,
+// emit/ctarget, emit/sqltarget) with a pure function
 //
 //	Emit(p *compile.Program, o Options) ([]emit.File, error)
 //

@@ -13,7 +13,7 @@ import (
 	"sync"
 	"time"
 
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 )
 
 // ScoreBatch implements BatchScorer for the registered runner's
@@ -42,14 +42,14 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 	var names, fts, models, alone []string
 	for i, j := range jobs {
 		if j.Variant == "float" {
-			if err := cemit.FitsFloat(j.Program); err != nil {
+			if err := ctarget.FitsFloat(j.Program); err != nil {
 				res[i].Err = fmt.Errorf("%w: float C: %v", ErrDeclined, err)
 				continue
 			}
 		}
 		o := r.options(j.Layout, j.Variant)
 		o.Name = fmt.Sprintf("m%d", i)
-		files, err := cemit.Emit(j.Program, o)
+		files, err := ctarget.Emit(j.Program, o)
 		if err != nil {
 			res[i].Err = declined(err)
 			continue

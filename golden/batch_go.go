@@ -13,7 +13,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -39,7 +39,7 @@ func (r goRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Bat
 	var built, vet []int
 	for i, j := range jobs {
 		pkg := fmt.Sprintf("%s%d", goPackage, i)
-		files, err := golang.Emit(j.Program, golang.Options{Package: pkg, Layout: j.Layout})
+		files, err := gotarget.Emit(j.Program, gotarget.Options{Package: pkg, Layout: j.Layout})
 		if err != nil {
 			res[i].Err = err
 			continue
@@ -57,7 +57,7 @@ func (r goRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Bat
 				}
 			}
 			name := f.Name
-			if name == golang.TestFile {
+			if name == gotarget.TestFile {
 				name = "model_check.go"
 			}
 			if err := os.WriteFile(filepath.Join(pkgDir, name), f.Data, 0o644); err != nil {

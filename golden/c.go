@@ -18,7 +18,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -111,19 +111,19 @@ func (cRunner) CompileOptions(variant string) compile.Options {
 func (cRunner) Float32Inputs(variant string) bool { return variant == "float" }
 
 // Tolerance: double C is bit-exact except that the transforms call the C
-// library's exp; float C differs by float rounding. cemit.ErrorBound derives
+// library's exp; float C differs by float rounding. ctarget.ErrorBound derives
 // both bounds.
 func (cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
-	b := cemit.ErrorBound(p, variant == "float")
+	b := ctarget.ErrorBound(p, variant == "float")
 	return b == 0, b
 }
 
-func (cRunner) options(layout, variant string) cemit.Options {
-	return cemit.Options{Name: cName, Layout: layout, Float: variant == "float"}
+func (cRunner) options(layout, variant string) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float"}
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
-	files, err := cemit.Emit(p, r.options(layout, variant))
+	files, err := ctarget.Emit(p, r.options(layout, variant))
 	return files, declined(err)
 }
 
@@ -209,7 +209,7 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 		return nil, err
 	}
 	if variant == "float" {
-		if err := cemit.FitsFloat(p); err != nil {
+		if err := ctarget.FitsFloat(p); err != nil {
 			return nil, fmt.Errorf("%w: float C: %v", ErrDeclined, err)
 		}
 	}
@@ -226,8 +226,8 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 // score emits p, builds it in every configuration of matrix (and checks the
 // header as C++ when cxx is set), runs each build over rows, requires every
 // build to print the same bytes, and parses the output.
-func (r cRunner) score(ctx context.Context, p *compile.Program, o cemit.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
-	files, err := cemit.Emit(p, o)
+func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
+	files, err := ctarget.Emit(p, o)
 	if err != nil {
 		return nil, declined(err)
 	}

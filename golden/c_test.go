@@ -15,7 +15,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -149,7 +149,7 @@ func checkC(t *testing.T, f *forest.Forest, rows *forest.Rows) {
 				p, _, err := compile.Compile(f, r.CompileOptions(variant))
 				require.NoError(t, err)
 				res, err := r.Score(context.Background(), p, layout, variant, rows, t.TempDir())
-				if variant == "float" && cemit.FitsFloat(p) != nil {
+				if variant == "float" && ctarget.FitsFloat(p) != nil {
 					require.ErrorIs(t, err, ErrDeclined, "float C must decline what it cannot bound")
 					return
 				}
@@ -239,9 +239,9 @@ func TestCDeepTree(t *testing.T) {
 	}
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
-	require.Greater(t, p.MaxDepth(), cemit.MaxNesting, "the tree must be deeper than the nesting bound")
+	require.Greater(t, p.MaxDepth(), ctarget.MaxNesting, "the tree must be deeper than the nesting bound")
 	checkC(t, f, rows)
-	layout, _, err := cemit.Resolve(p, cemit.Options{})
+	layout, _, err := ctarget.Resolve(p, ctarget.Options{})
 	require.NoError(t, err)
 	res, err := cRunner{}.Score(context.Background(), p, emit.Auto, "double", rows, t.TempDir())
 	require.NoError(t, err, "auto (%s)", layout)
@@ -271,7 +271,7 @@ func TestCHostileNames(t *testing.T) {
 
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
-	files, err := cemit.Emit(p, cemit.Options{Name: cName})
+	files, err := ctarget.Emit(p, ctarget.Options{Name: cName})
 	require.NoError(t, err)
 	for _, file := range files {
 		for i, c := range file.Data {
@@ -311,7 +311,7 @@ func TestCGoldenCasesFullMatrix(t *testing.T) {
 					p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
 					require.NoError(t, err)
 					res, err := r.Score(context.Background(), p, layout, variant, c.Rows, t.TempDir())
-					if variant == "float" && cemit.FitsFloat(p) != nil {
+					if variant == "float" && ctarget.FitsFloat(p) != nil {
 						require.ErrorIs(t, err, ErrDeclined, "float C must decline what it cannot bound")
 						return
 					}
@@ -399,9 +399,9 @@ func TestCMillionNodes(t *testing.T) {
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
 	require.GreaterOrEqual(t, p.NumNodes(), 1_000_000)
-	layout, why, err := cemit.Resolve(p, cemit.Options{})
+	layout, why, err := ctarget.Resolve(p, ctarget.Options{})
 	require.NoError(t, err)
-	res, err := cRunner{}.score(context.Background(), p, cemit.Options{Name: cName, Layout: emit.Auto}, rows, t.TempDir(), cMatrix[:1], false)
+	res, err := cRunner{}.score(context.Background(), p, ctarget.Options{Name: cName, Layout: emit.Auto}, rows, t.TempDir(), cMatrix[:1], false)
 	require.NoError(t, err)
 	t.Logf("%d nodes: auto chose %s (%s); gcc -O2 build %v, %d rows in %v", p.NumNodes(), layout, why, res.Build.Round(time.Millisecond), rows.Len(), res.Run.Round(time.Millisecond))
 	require.Less(t, res.Build, 60*time.Second)

@@ -10,7 +10,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -229,7 +229,7 @@ func TestCThousandsOfCategories(t *testing.T) {
 	checkC(t, f, rows)
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
-	files, err := cemit.Emit(p, cemit.Options{Name: cName})
+	files, err := ctarget.Emit(p, ctarget.Options{Name: cName})
 	require.NoError(t, err)
 	src := string(files[1].Data)
 	require.Contains(t, src, cName+"_set_bits[313]", "the dense split is a bitset")
@@ -237,7 +237,7 @@ func TestCThousandsOfCategories(t *testing.T) {
 }
 
 // Eighty set splits: nested code keeps the membership test out of line
-// (cemit's noinlineSites), which every compiler must still build and run.
+// (ctarget's noinlineSites), which every compiler must still build and run.
 func TestCV2ManySetSplits(t *testing.T) {
 	rng := rand.New(rand.NewPCG(80, 3))
 	var trees []forest.Tree
@@ -262,7 +262,7 @@ func TestCV2ManySetSplits(t *testing.T) {
 		BaseScore: []float64{0}, Trees: trees})
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
-	files, err := cemit.Emit(p, cemit.Options{Name: cName, Layout: "nested"})
+	files, err := ctarget.Emit(p, ctarget.Options{Name: cName, Layout: "nested"})
 	require.NoError(t, err)
 	require.Contains(t, string(files[1].Data), "__attribute__((noinline))")
 	checkC(t, f, categoryRows(f))

@@ -17,7 +17,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -50,7 +50,7 @@ func (goRunner) Tolerance(string, *compile.Program) (bool, float64) { return tru
 const goPackage = "forestmodel"
 
 func (goRunner) Emit(p *compile.Program, layout, _ string) ([]emit.File, error) {
-	return golang.Emit(p, golang.Options{Package: goPackage, Layout: layout})
+	return gotarget.Emit(p, gotarget.Options{Package: goPackage, Layout: layout})
 }
 
 // goDriver is a test beside the emitted package's own: it scores the rows
@@ -135,7 +135,7 @@ func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ strin
 	if err != nil {
 		return nil, err
 	}
-	files, err := golang.Emit(p, golang.Options{Package: goPackage, Layout: layout})
+	files, err := gotarget.Emit(p, gotarget.Options{Package: goPackage, Layout: layout})
 	if err != nil {
 		return nil, err
 	}

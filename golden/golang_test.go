@@ -10,7 +10,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -279,7 +279,7 @@ func TestGoEmittedHeader(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, layout := range (goRunner{}).Layouts() {
-		files, err := golang.Emit(p, golang.Options{Layout: layout})
+		files, err := gotarget.Emit(p, gotarget.Options{Layout: layout})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -21,7 +21,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -57,18 +57,18 @@ func (sqlRunner) Variants() []string { return []string{"", "ansi"} }
 
 func (sqlRunner) CompileOptions(string) compile.Options { return compile.Options{} }
 
-// Tolerance is sqlemit.Tolerance: bit for bit without a transform, within
+// Tolerance is sqltarget.Tolerance: bit for bit without a transform, within
 // (k+4)·2^-52 under logistic or softmax (the engine's EXP).
 func (sqlRunner) Tolerance(_ string, p *compile.Program) (bool, float64) {
-	b := sqlemit.Tolerance(p)
+	b := sqltarget.Tolerance(p)
 	return b == 0, b
 }
 
-func (r sqlRunner) dialect(variant string) sqlemit.Dialect {
+func (r sqlRunner) dialect(variant string) sqltarget.Dialect {
 	if variant == "ansi" || variant == "ansi-shell" {
-		return sqlemit.ANSI
+		return sqltarget.ANSI
 	}
-	return map[string]sqlemit.Dialect{"sqlite": sqlemit.SQLite, "duckdb": sqlemit.DuckDB, "postgres": sqlemit.Postgres}[r.engine]
+	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres}[r.engine]
 }
 
 // sqlTable is the table the runners create; its name needs quoting.
@@ -77,29 +77,29 @@ const sqlTable = `rows "in" 'test'`
 // options are the emit options a runner uses for p: the table, the row
 // number kept, and, when the model's names cannot be SQL identifiers in
 // this dialect, column names made from them.
-func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (sqlemit.Options, error) {
-	o := sqlemit.Options{Dialect: r.dialect(variant), Table: sqlTable, Schema: schema, Layout: layout, MaxNest: r.maxNest}
+func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (sqltarget.Options, error) {
+	o := sqltarget.Options{Dialect: r.dialect(variant), Table: sqlTable, Schema: schema, Layout: layout, MaxNest: r.maxNest}
 	o.Keep = []string{rowColumn(p)}
 	// The engine's own rules for names hold whatever dialect the text is
 	// written in (ANSI text run on PostgreSQL still has its identifiers
 	// cut to 63 bytes), so names are checked under both.
 	check := o
 	check.Dialect = r.dialect("")
-	_, err := sqlemit.Layout(p, o) // Emit's checks, without writing the statement
+	_, err := sqltarget.Layout(p, o) // Emit's checks, without writing the statement
 	if err == nil && check.Dialect != o.Dialect {
-		_, err = sqlemit.Layout(p, check)
+		_, err = sqltarget.Layout(p, check)
 	}
-	if errors.Is(err, sqlemit.ErrNames) {
+	if errors.Is(err, sqltarget.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
 		for i, f := range p.Features {
 			o.Columns[i] = "c" + strconv.Itoa(i) + " " + strings.ReplaceAll(f.Name, "\x00", "")
 		}
-		for j, n := range sqlemit.OutputNames(p) {
+		for j, n := range sqltarget.OutputNames(p) {
 			o.Outputs = append(o.Outputs, "o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""))
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
-		if _, err := sqlemit.Layout(p, o); errors.Is(err, sqlemit.ErrNames) {
+		if _, err := sqltarget.Layout(p, o); errors.Is(err, sqltarget.ErrNames) {
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
 		}
 	} else if err != nil {
@@ -138,7 +138,7 @@ func (r sqliteRunner) Emit(p *compile.Program, layout, variant string) ([]emit.F
 	if err != nil {
 		return nil, err
 	}
-	return sqlemit.Emit(p, o)
+	return sqltarget.Emit(p, o)
 }
 
 // sqlDB is an open engine session for one Score.
@@ -272,8 +272,8 @@ func quoteIdent(s string) string { return `"` + strings.ReplaceAll(s, `"`, `""`)
 // engine stores NaN (nanTwins), each row holding a missing value is loaded a
 // second time after all the rows, numbered from rows.Len() on, with NaN
 // stored instead of NULL: the statement must score a stored NaN exactly as
-// NULL (emit/sql's featureInput), which run checks bit for bit.
-func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqlemit.Options, rows *forest.Rows) error {
+// NULL (emit/sqltarget's featureInput), which run checks bit for bit.
+func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqltarget.Options, rows *forest.Rows) error {
 	ref := quoteIdent(o.Table)
 	if o.Schema != "" {
 		ref = quoteIdent(o.Schema) + "." + ref
@@ -393,7 +393,7 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 	if err := r.declines(p, layout, variant); err != nil {
 		return nil, err
 	}
-	return r.score(ctx, p, rows, dir, isShell(variant), func(schema string) (sqlemit.Options, error) {
+	return r.score(ctx, p, rows, dir, isShell(variant), func(schema string) (sqltarget.Options, error) {
 		o, err := r.options(p, layout, variant, schema)
 		if err == nil && isShell(variant) {
 			o = shellOutputs(p, o)
@@ -408,10 +408,10 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 // select printf('%!.17g', "false") from (select 5.0 as "false") prints
 // 0.0, and qualifying the name finds no column). The embedded engine runs
 // the statement with the names as they are.
-func shellOutputs(p *compile.Program, o sqlemit.Options) sqlemit.Options {
+func shellOutputs(p *compile.Program, o sqltarget.Options) sqltarget.Options {
 	outs := o.Outputs
 	if outs == nil {
-		outs = sqlemit.OutputNames(p)
+		outs = sqltarget.OutputNames(p)
 	}
 	for _, n := range outs {
 		if strings.EqualFold(n, "true") || strings.EqualFold(n, "false") {
@@ -440,10 +440,10 @@ const (
 // takes the table layout for it).
 func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
 	d := r.dialect(variant)
-	if nest := cmp.Or(r.maxNest, sqlemit.DefaultMaxNest[d]); layout == emit.Nested && p.MaxDepth() > nest {
+	if nest := cmp.Or(r.maxNest, sqltarget.DefaultMaxNest[d]); layout == emit.Nested && p.MaxDepth() > nest {
 		return fmt.Errorf("%w: nested layout of a tree %d splits deep, past the %d levels of CASE %s text may nest", ErrDeclined, p.MaxDepth(), nest, d)
 	}
-	n, err := sqlemit.Stages(p, sqlemit.Options{Dialect: d, Layout: layout, MaxNest: r.maxNest})
+	n, err := sqltarget.Stages(p, sqltarget.Options{Dialect: d, Layout: layout, MaxNest: r.maxNest})
 	if err != nil {
 		return nil // Score reports it
 	}
@@ -461,7 +461,7 @@ func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
 //
 // With shell (SQLite only), the rows go into a database file and the
 // system sqlite3 shell runs the statement (shellRun).
-func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, shell bool, opts func(schema string) (sqlemit.Options, error)) (*Result, error) {
+func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, shell bool, opts func(schema string) (sqltarget.Options, error)) (*Result, error) {
 	file := ""
 	if shell {
 		if _, _, err := SQLiteShell(); err != nil {
@@ -488,7 +488,7 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	if err != nil {
 		return nil, err
 	}
-	files, err := sqlemit.Emit(p, o)
+	files, err := sqltarget.Emit(p, o)
 	if err != nil {
 		return nil, err
 	}

@@ -12,7 +12,7 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -105,7 +105,7 @@ func round32Sample(n int) []float64 {
 }
 
 // TestSQLRound32 runs the round32 expression that float32 models use in
-// SQL (emit/sql's r32) in every engine, in the engine's own dialect and in
+// SQL (emit/sqltarget's r32) in every engine, in the engine's own dialect and in
 // ANSI text, over the edges of float32 rounding and random doubles (a
 // million in SQLite, 100,000 in the others), and holds each result to Go's
 // float32 conversion bit for bit (IEEE 754 round to nearest, ties to even;
@@ -125,11 +125,11 @@ func TestSQLRound32(t *testing.T) {
 				xs := round32Sample(n)
 				if r.engine == "sqlite" {
 					// SQLite stores -0 in a REAL column as the integer 0;
-					// TestRound32 in emit/sql covers -0.
+					// TestRound32 in emit/sqltarget covers -0.
 					xs = slices.DeleteFunc(xs, func(x float64) bool { return x == 0 && math.Signbit(x) })
 				}
 				table := loadValues(t, db, xs)
-				q := "SELECT i, " + sqlemit.Round32SQL(r.dialect(variant), "x") + " FROM " + table
+				q := "SELECT i, " + sqltarget.Round32SQL(r.dialect(variant), "x") + " FROM " + table
 				rows, err := db.conn.QueryContext(context.Background(), q)
 				if err != nil {
 					t.Fatalf("%v\n%s", err, q)
@@ -163,10 +163,10 @@ func TestFloat32Engines(t *testing.T) {
 				x, y float32
 			}{{16777216, 1}, {a, b}, {1e38, 3e38}, {0x1p-149, 0x1p-149}} {
 				q := fmt.Sprintf("SELECT CAST(CAST(%s AS %s) + CAST(%s AS %s) AS DOUBLE PRECISION)",
-					sqlemit.Postgres.Literal(float64(c.x)), real, sqlemit.Postgres.Literal(float64(c.y)), real)
+					sqltarget.Postgres.Literal(float64(c.x)), real, sqltarget.Postgres.Literal(float64(c.y)), real)
 				if r.engine == "duckdb" {
 					q = fmt.Sprintf("SELECT CAST(CAST(%s AS FLOAT) + CAST(%s AS FLOAT) AS DOUBLE)",
-						sqlemit.DuckDB.Literal(float64(c.x)), sqlemit.DuckDB.Literal(float64(c.y)))
+						sqltarget.DuckDB.Literal(float64(c.x)), sqltarget.DuckDB.Literal(float64(c.y)))
 				}
 				var got float64
 				err := db.conn.QueryRowContext(context.Background(), q).Scan(&got)
@@ -224,7 +224,7 @@ func TestSQLSetSplit5000(t *testing.T) {
 				t.Run(fmt.Sprintf("%s/%s/%s", m, r.engine, variant), func(t *testing.T) {
 					db := sqlSession(t, r)
 					loadValues(t, db, xs)
-					files, err := sqlemit.Emit(p, sqlemit.Options{Dialect: r.dialect(variant), Table: "r32", Schema: db.schema, Keep: []string{"i"}})
+					files, err := sqltarget.Emit(p, sqltarget.Options{Dialect: r.dialect(variant), Table: "r32", Schema: db.schema, Keep: []string{"i"}})
 					if err != nil {
 						t.Fatal(err)
 					}

@@ -1,20 +1,20 @@
 package golden
 
 import (
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // SelftestProbes is what sql.Selftest takes for f (and what `sawmill
 // compile --selftest` hands it): the rows Verify generates (ProbeRows, at
 // most DefaultMaxRows), each with the interpreter's outputs and class.
-func SelftestProbes(f *forest.Forest) []sqlemit.Probe {
+func SelftestProbes(f *forest.Forest) []sqltarget.Probe {
 	leaves, thresholds, _ := ProbeRows(f, DefaultMaxRows)
-	var out []sqlemit.Probe
+	var out []sqltarget.Probe
 	for _, x := range append(leaves, thresholds...) {
 		want := make([]float64, f.NumOutputs())
 		f.Predict(x, want)
-		pr := sqlemit.Probe{X: x, Want: want, Class: -1}
+		pr := sqltarget.Probe{X: x, Want: want, Class: -1}
 		if f.IsClassifier() {
 			pr.Class = f.ClassOf(want)
 		}

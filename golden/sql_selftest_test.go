@@ -12,7 +12,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 )
 
 // splitScript cuts a script into statements at semicolons outside string
@@ -125,7 +125,7 @@ func TestSQLSelftest(t *testing.T) {
 					continue
 				}
 				t.Run(name+"/"+r.engine+"-"+variant, func(t *testing.T) {
-					f, err := sqlemit.Selftest(p, sqlemit.Options{Dialect: r.dialect(variant), Layout: emit.Nested}, probes)
+					f, err := sqltarget.Selftest(p, sqltarget.Options{Dialect: r.dialect(variant), Layout: emit.Nested}, probes)
 					if err != nil {
 						t.Fatal(err)
 					}

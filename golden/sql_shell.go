@@ -15,7 +15,7 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 )
 
 // The system sqlite3 shell. Most SQLite users run the stock build (the
@@ -84,7 +84,7 @@ var negZero = func() float64 { z := 0.0; return -z }()
 // shellRun runs the statement text in the sqlite3 shell on the database
 // file path (which load filled) and reads the result as run does. A view
 // statement is run, then read.
-func shellRun(ctx context.Context, p *compile.Program, o sqlemit.Options, text, path string, n int) (*Result, error) {
+func shellRun(ctx context.Context, p *compile.Program, o sqltarget.Options, text, path string, n int) (*Result, error) {
 	shell, version, err := SQLiteShell()
 	if err != nil {
 		return nil, err
@@ -94,7 +94,7 @@ func shellRun(ctx context.Context, p *compile.Program, o sqlemit.Options, text, 
 	cols = append(cols, quoteIdent(o.Keep[0]))
 	outs := o.Outputs
 	if outs == nil {
-		outs = sqlemit.OutputNames(p)
+		outs = sqltarget.OutputNames(p)
 	}
 	for _, c := range outs {
 		cols = append(cols, shellFormat(quoteIdent(c)))

@@ -11,7 +11,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -68,7 +68,7 @@ func TestSQLLiterals(t *testing.T) {
 		t.Run(r.engine, func(t *testing.T) {
 			db := sqlSession(t, r)
 			ctx := context.Background()
-			for _, d := range []sqlemit.Dialect{r.dialect(""), sqlemit.ANSI} {
+			for _, d := range []sqltarget.Dialect{r.dialect(""), sqltarget.ANSI} {
 				bad := 0
 				for _, v := range hardDoubles {
 					lit := d.Literal(v)
@@ -233,7 +233,7 @@ func sqlProgram(t *testing.T, f *forest.Forest) *compile.Program {
 // sqlCheck scores p's rows in every engine, in each dialect (the engine's
 // own and ANSI) with o's other settings, and holds every output against the
 // interpreter.
-func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlemit.Options) {
+func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options) {
 	t.Helper()
 	sqlCheckVariants(t, f, rows, o, allSQLVariants)
 }
@@ -242,7 +242,7 @@ func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlemit.Optio
 // sqlite3 shell (by the sqlite runner alone).
 var allSQLVariants = []string{"", "ansi", "shell", "ansi-shell"}
 
-func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlemit.Options, variants []string) {
+func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string) {
 	t.Helper()
 	p := sqlProgram(t, f)
 	c := &Case{Model: f, Rows: rows}
@@ -257,7 +257,7 @@ func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlem
 				name += "-" + variant
 			}
 			t.Run(name, func(t *testing.T) {
-				res, err := r.score(context.Background(), p, rows, t.TempDir(), isShell(variant), func(schema string) (sqlemit.Options, error) {
+				res, err := r.score(context.Background(), p, rows, t.TempDir(), isShell(variant), func(schema string) (sqltarget.Options, error) {
 					oo := o
 					oo.Dialect = r.dialect(variant)
 					oo.Table, oo.Schema = sqlTable, schema
@@ -303,27 +303,27 @@ func TestSQLDeepTree(t *testing.T) {
 	}
 	f, rows := deep(600)
 	p := sqlProgram(t, f)
-	for _, d := range sqlemit.Dialects {
-		if l, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: d}); l != emit.Table {
+	for _, d := range sqltarget.Dialects {
+		if l, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: d}); l != emit.Table {
 			t.Fatalf("%s: auto picked %s for a 600-deep tree", d, l)
 		}
 	}
-	_, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: emit.Nested})
+	_, err := sqltarget.Emit(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: emit.Nested})
 	if err == nil || !strings.Contains(err.Error(), "600 splits deep") || !strings.Contains(err.Error(), "hint:") {
 		t.Fatalf("nested layout of a 600-deep tree: error %v", err)
 	}
-	t.Run("auto", func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{}) })
+	t.Run("auto", func(t *testing.T) { sqlCheck(t, f, rows, sqltarget.Options{}) })
 	// 150 descent stages: in ANSI text, which cannot ask for MATERIALIZED,
 	// SQLite counts the fenced sub-queries into its expression depth limit
 	// (1000) and refuses, so only the engines' own dialects run this.
 	t.Run("table-nest5", func(t *testing.T) {
-		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Table, MaxNest: 5}, []string{"", "shell"})
+		sqlCheckVariants(t, f, rows, sqltarget.Options{Layout: emit.Table, MaxNest: 5}, []string{"", "shell"})
 	})
 	f, rows = deep(300)
 	// Not in the stock sqlite3 shell, whose parser stops near 15
 	// (TestSQLiteShellLimits).
 	t.Run("nested400", func(t *testing.T) {
-		sqlCheckVariants(t, f, rows, sqlemit.Options{Layout: emit.Nested, MaxNest: 400}, []string{"", "ansi"})
+		sqlCheckVariants(t, f, rows, sqltarget.Options{Layout: emit.Nested, MaxNest: 400}, []string{"", "ansi"})
 	})
 }
 
@@ -349,7 +349,7 @@ func TestSQLStages(t *testing.T) {
 		f := models[name]
 		f.Features, f.InputPrecision = features, forest.Float64
 		rows := RandomRows(7, f, 120)
-		for _, o := range []sqlemit.Options{
+		for _, o := range []sqltarget.Options{
 			{Layout: emit.Nested, TreesPerStage: 2},
 			{Layout: emit.Table, TreesPerStage: 2, MaxNest: 2},
 			{Layout: emit.Table, TreesPerStage: 4, MaxNest: 3},
@@ -371,7 +371,7 @@ func TestSQLNegativeZero(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{nz}, Trees: []forest.Tree{tr, tr}}
 	rows := RandomRows(5, f, 30)
 	for _, l := range []string{emit.Nested, emit.Table} {
-		t.Run(l, func(t *testing.T) { sqlCheck(t, f, rows, sqlemit.Options{Layout: l}) })
+		t.Run(l, func(t *testing.T) { sqlCheck(t, f, rows, sqltarget.Options{Layout: l}) })
 	}
 }
 
@@ -383,7 +383,7 @@ func TestSQLViewAndKeep(t *testing.T) {
 		Transform: forest.NoTransform, BaseScore: []float64{0, 0, 0},
 		Trees: []forest.Tree{balancedTree(3, 3, 3, 1), balancedTree(2, 3, 3, 2)}}
 	rows := RandomRows(9, f, 50)
-	sqlCheck(t, f, rows, sqlemit.Options{View: `v'); DROP VIEW x; --"`, Keep: []string{`"`, "DROP TABLE t;--"}})
+	sqlCheck(t, f, rows, sqltarget.Options{View: `v'); DROP VIEW x; --"`, Keep: []string{`"`, "DROP TABLE t;--"}})
 }
 
 // TestSQLNameErrors: names no engine can hold are refused with a message
@@ -395,26 +395,26 @@ func TestSQLNameErrors(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0},
 		Trees: []forest.Tree{balancedTree(3, 2, 1, 4)}}
 	p := sqlProgram(t, f)
-	for _, d := range sqlemit.Dialects {
-		_, err := sqlemit.Emit(p, sqlemit.Options{Dialect: d})
-		folds := d == sqlemit.SQLite || d == sqlemit.DuckDB
-		if folds != (err != nil) || err != nil && (!errors.Is(err, sqlemit.ErrNames) || !strings.Contains(err.Error(), "same column")) {
+	for _, d := range sqltarget.Dialects {
+		_, err := sqltarget.Emit(p, sqltarget.Options{Dialect: d})
+		folds := d == sqltarget.SQLite || d == sqltarget.DuckDB
+		if folds != (err != nil) || err != nil && (!errors.Is(err, sqltarget.ErrNames) || !strings.Contains(err.Error(), "same column")) {
 			t.Errorf("%s: features a and A: error %v", d, err)
 		}
 	}
 	f.Features = []string{"nul\x00byte", "b"}
 	p = sqlProgram(t, f)
-	_, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.Postgres})
-	if err == nil || !errors.Is(err, sqlemit.ErrNames) || !strings.Contains(err.Error(), "NUL byte") {
+	_, err := sqltarget.Emit(p, sqltarget.Options{Dialect: sqltarget.Postgres})
+	if err == nil || !errors.Is(err, sqltarget.ErrNames) || !strings.Contains(err.Error(), "NUL byte") {
 		t.Errorf("feature with a NUL byte: error %v", err)
 	}
 	f.Features = []string{"a", "b"}
 	p = sqlProgram(t, f)
-	_, err = sqlemit.Emit(p, sqlemit.Options{Keep: []string{"prediction"}})
+	_, err = sqltarget.Emit(p, sqltarget.Options{Keep: []string{"prediction"}})
 	if err == nil || !strings.Contains(err.Error(), "clash") {
 		t.Errorf("kept column named like the output: error %v", err)
 	}
-	if _, err := sqlemit.Emit(p, sqlemit.Options{Dialect: "oracle"}); err == nil || !strings.Contains(err.Error(), "hint:") {
+	if _, err := sqltarget.Emit(p, sqltarget.Options{Dialect: "oracle"}); err == nil || !strings.Contains(err.Error(), "hint:") {
 		t.Errorf("unknown dialect: error %v", err)
 	}
 }
@@ -447,5 +447,5 @@ func TestSQLBigForest(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
 	rows := RandomRows(11, f, 200)
 	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
-	sqlCheckVariants(t, f, rows, sqlemit.Options{}, []string{"", "shell"})
+	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"})
 }

@@ -24,7 +24,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
 	"github.com/sawmill-dev/sawmill/golden"
@@ -108,9 +108,9 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 			if m := golden.Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound); !m.OK() {
 				return fmt.Errorf("%s %s: %s", e, l, m)
 			}
-			dialect, _ := sqlemit.ParseDialect(map[string]string{"sqlite": "sqlite", "duckdb": "duckdb", "postgres": "postgres"}[e])
-			files, _ := sqlemit.Emit(p, sqlemit.Options{Dialect: dialect, Layout: l, Keep: []string{"sawmill_row"}})
-			lay, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: dialect, Layout: l})
+			dialect, _ := sqltarget.ParseDialect(map[string]string{"sqlite": "sqlite", "duckdb": "duckdb", "postgres": "postgres"}[e])
+			files, _ := sqltarget.Emit(p, sqltarget.Options{Dialect: dialect, Layout: l, Keep: []string{"sawmill_row"}})
+			lay, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: dialect, Layout: l})
 			extra := fmt.Sprintf("   (%s; end to end with load %v", lay, total.Round(time.Millisecond))
 			if goRun > 0 {
 				extra += fmt.Sprintf("; run %.1f× go, %.1f× interpreter", res.Run.Seconds()/goRun.Seconds(), res.Run.Seconds()/interp.Seconds())

@@ -18,9 +18,9 @@ import (
 	"github.com/sawmill-dev/sawmill/chart"
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
-	"github.com/sawmill-dev/sawmill/emit/golang"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
 	"github.com/sawmill-dev/sawmill/golden"
@@ -412,16 +412,16 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, error) {
 	switch target {
 	case "go":
-		return golang.ChooseLayout(p), nil
+		return gotarget.ChooseLayout(p), nil
 	case "c":
-		l, _, err := cemit.Resolve(p, cemit.Options{Layout: fl.layout})
+		l, _, err := ctarget.Resolve(p, ctarget.Options{Layout: fl.layout})
 		return l, err
 	case "sql":
-		d, err := sqlemit.ParseDialect(fl.dialect)
+		d, err := sqltarget.ParseDialect(fl.dialect)
 		if err != nil {
 			return "", err
 		}
-		return sqlemit.Layout(p, sqlemit.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+		return sqltarget.Layout(p, sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
 	}
 	return "", fmt.Errorf("no layout for target %s", target)
 }

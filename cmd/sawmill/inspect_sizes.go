@@ -8,7 +8,7 @@ import (
 	"text/tabwriter"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
@@ -24,11 +24,11 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}
-		o := cemit.Options{Float: float}
-		sizes, err := cemit.MeasureARM(ctx, p, o)
-		if errors.Is(err, cemit.ErrNoARM) {
+		o := ctarget.Options{Float: float}
+		sizes, err := ctarget.MeasureARM(ctx, p, o)
+		if errors.Is(err, ctarget.ErrNoARM) {
 			noARM = true
-			sizes, err = cemit.Sizes(p, o)
+			sizes, err = ctarget.Sizes(p, o)
 		}
 		if err != nil {
 			return err
@@ -47,7 +47,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	}
 	tw.Flush()
 	if noARM {
-		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", cemit.ARMCompiler)
+		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", ctarget.ARMCompiler)
 	}
 	return nil
 }

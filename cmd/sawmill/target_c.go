@@ -3,10 +3,10 @@ package main
 import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 )
 
-// cTarget emits NAME.h and NAME.c through emit/c. --float compiles the
+// cTarget emits NAME.h and NAME.c through emit/ctarget. --float compiles the
 // comparisons for float inputs (exact for every float input).
 func cTarget() target {
 	return target{
@@ -19,7 +19,7 @@ func cTarget() target {
 			if name == "" {
 				name = "model"
 			}
-			return cemit.Emit(p, cemit.Options{Name: name, Layout: fl.layout, Float: fl.float})
+			return ctarget.Emit(p, ctarget.Options{Name: name, Layout: fl.layout, Float: fl.float})
 		},
 	}
 }

@@ -3,17 +3,17 @@ package main
 import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
-// goTarget emits a Go package through emit/golang.
+// goTarget emits a Go package through emit/gotarget.
 func goTarget() target {
 	return target{
 		name:    "go",
 		options: func(*compileFlags) compile.Options { return compile.Options{} },
 		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-			o := golang.Options{Package: fl.pkg, Layout: fl.layout, Tables: fl.tables}
+			o := gotarget.Options{Package: fl.pkg, Layout: fl.layout, Tables: fl.tables}
 			if fl.sample != "" {
 				names := make([]string, len(p.Features))
 				for i, f := range p.Features {
@@ -27,7 +27,7 @@ func goTarget() target {
 					o.Sample = append(o.Sample, rows.Row(i))
 				}
 			}
-			return golang.Emit(p, o)
+			return gotarget.Emit(p, o)
 		},
 	}
 }

@@ -6,18 +6,18 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	"github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/golden"
 )
 
-// sqlTarget emits one statement through emit/sql and, with --selftest, the
+// sqlTarget emits one statement through emit/sqltarget and, with --selftest, the
 // self-test script beside it.
 func sqlTarget() target {
 	return target{
 		name:    "sql",
 		options: func(*compileFlags) compile.Options { return compile.Options{} },
 		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-			d, err := sql.ParseDialect(fl.dialect)
+			d, err := sqltarget.ParseDialect(fl.dialect)
 			if err != nil {
 				return nil, err
 			}
@@ -28,14 +28,14 @@ func sqlTarget() target {
 			if err != nil {
 				return nil, err
 			}
-			o := sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
-			files, err := sql.Emit(p, o)
+			o := sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
+			files, err := sqltarget.Emit(p, o)
 			files = sqlFileName(files, fl.name)
 			if err != nil || !fl.selftest {
 				return files, err
 			}
 			probes := golden.SelftestProbes(fl.model)
-			st, err := sql.Selftest(p, o, probes)
+			st, err := sqltarget.Selftest(p, o, probes)
 			if err != nil {
 				return nil, fmt.Errorf("selftest: %v", err)
 			}
@@ -44,7 +44,7 @@ func sqlTarget() target {
 	}
 }
 
-// columnMap turns --columns feature=column pairs into sql.Options.Columns:
+// columnMap turns --columns feature=column pairs into sqltarget.Options.Columns:
 // the column of every feature, its own name where no pair names it.
 func columnMap(p *compile.Program, pairs []string) ([]string, error) {
 	if len(pairs) == 0 {
@@ -79,7 +79,7 @@ func columnMap(p *compile.Program, pairs []string) ([]string, error) {
 // the file keeps the emitter's name (score.sql).
 func sqlFileName(files []emit.File, name string) []emit.File {
 	for i := range files {
-		if name != "" && files[i].Name == sql.FileName {
+		if name != "" && files[i].Name == sqltarget.FileName {
 			files[i].Name = name + ".sql"
 		}
 	}

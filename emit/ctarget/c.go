@@ -1,4 +1,4 @@
-// Package cemit emits a compiled forest as C99: NAME.h, declaring the API and
+// Package ctarget emits a compiled forest as C99: NAME.h, declaring the API and
 // documenting the model, and NAME.c, the scorer. The code needs no heap, no
 // recursion and nothing beyond the C standard library (math.h only when a
 // transform needs exp); every table is static const.
@@ -34,7 +34,7 @@
 //     of the distinct values;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else table.
-package cemit
+package ctarget
 
 import (
 	"bytes"
@@ -118,7 +118,7 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 			return nil, err
 		}
 	default:
-		panic("BUG: cemit: layout " + g.layout)
+		panic("BUG: ctarget: layout " + g.layout)
 	}
 	g.finish(&body)
 	g.writeBatch(&body)
@@ -175,7 +175,7 @@ func (t Table) Bytes() int { return t.Len * t.ElemBytes }
 func newGen(p *compile.Program, o Options) (*gen, error) {
 	switch p.Compare {
 	case compile.Round32:
-		return nil, fmt.Errorf("BUG: cemit: program still has round32 comparisons; the float32 pass must run first")
+		return nil, fmt.Errorf("BUG: ctarget: program still has round32 comparisons; the float32 pass must run first")
 	case compile.Single:
 		if !o.Float {
 			return nil, fmt.Errorf("program compiled for float32 inputs cannot be emitted as double C\nhint: compile without SingleInputs, or emit with the float option")
@@ -186,10 +186,10 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		}
 	}
 	if p.Combine != forest.Sum && p.Combine != forest.Average {
-		return nil, fmt.Errorf("BUG: cemit: combine %q reached the emitter; the vote pass lowers it", p.Combine)
+		return nil, fmt.Errorf("BUG: ctarget: combine %q reached the emitter; the vote pass lowers it", p.Combine)
 	}
 	if len(p.Trees) == 0 || p.NumOutputs < 1 || len(p.BaseScore) != p.NumOutputs {
-		return nil, fmt.Errorf("BUG: cemit: program with %d trees, %d outputs, %d base scores", len(p.Trees), p.NumOutputs, len(p.BaseScore))
+		return nil, fmt.Errorf("BUG: ctarget: program with %d trees, %d outputs, %d base scores", len(p.Trees), p.NumOutputs, len(p.BaseScore))
 	}
 	name := o.Name
 	if name == "" {
@@ -398,7 +398,7 @@ func doubleConst(v float64) string {
 
 func doubleLit(v float64) string {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
-		panic(fmt.Sprintf("BUG: cemit: %v has no C literal", v))
+		panic(fmt.Sprintf("BUG: ctarget: %v has no C literal", v))
 	}
 	s := strconv.FormatFloat(v, 'g', -1, 64)
 	if !strings.ContainsAny(s, ".e") {
@@ -410,7 +410,7 @@ func doubleLit(v float64) string {
 func floatLit(v float64) string {
 	f := float32(v)
 	if float64(f) != v || math.IsNaN(v) || math.IsInf(v, 0) {
-		panic(fmt.Sprintf("BUG: cemit: %v is not a finite float value", v))
+		panic(fmt.Sprintf("BUG: ctarget: %v is not a finite float value", v))
 	}
 	s := strconv.FormatFloat(v, 'g', -1, 32)
 	if !strings.ContainsAny(s, ".e") {

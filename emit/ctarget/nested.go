@@ -1,4 +1,4 @@
-package cemit
+package ctarget
 
 import (
 	"fmt"
@@ -287,7 +287,7 @@ type leafRows struct {
 func (r *leafRows) row(v []float64) int {
 	i, ok := r.index[vecKey(v)]
 	if !ok {
-		panic("BUG: cemit: leaf vector not in the table")
+		panic("BUG: ctarget: leaf vector not in the table")
 	}
 	return i
 }

@@ -1,4 +1,4 @@
-package cemit
+package ctarget
 
 import (
 	"bytes"

@@ -1,4 +1,4 @@
-package cemit
+package ctarget
 
 import (
 	"fmt"
@@ -140,7 +140,7 @@ func newSetTable(p *compile.Program) *setTable {
 func (st *setTable) of(n *compile.Node) int {
 	s, ok := st.index[catKey(n.Categories)]
 	if !ok {
-		panic("BUG: cemit: set split without a set")
+		panic("BUG: ctarget: set split without a set")
 	}
 	return s
 }

@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"bytes"
@@ -26,7 +26,7 @@ import (
 // benchmark table (bench/train/synth, 20,000 rows of 20 features), scored on
 // 20,000 fresh rows of the same table:
 //
-//	go test ./emit/golang -run '^$' -bench Layouts -benchtime 1x
+//	go test ./emit/gotarget -run '^$' -bench Layouts -benchtime 1x
 //
 // Each size builds one module with a package per layout and a driver that
 // checks every output against the interpreter's bits, then times 7 passes

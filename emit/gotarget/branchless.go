@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"github.com/dave/jennifer/jen"

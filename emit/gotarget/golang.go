@@ -1,4 +1,4 @@
-// Package golang emits a compiled forest as a dependency-free Go package.
+// Package gotarget emits a compiled forest as a dependency-free Go package.
 //
 // The package holds
 //
@@ -21,7 +21,7 @@
 // Format version 2 (set splits, zero_missing, a missing value, trees of one
 // output, float32 accumulation with an emitted copy of glibc's expf, the
 // scale and the new transforms) is written in every layout; v2.go says how.
-package golang
+package gotarget
 
 import (
 	"bytes"

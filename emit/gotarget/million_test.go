@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"bufio"
@@ -24,7 +24,7 @@ import (
 // result, each under GNU time -v for wall time and peak RSS. It runs only
 // when SAWMILL_GO_MILLION=1:
 //
-//	SAWMILL_GO_MILLION=1 go test ./emit/golang -run MillionNodes -v
+//	SAWMILL_GO_MILLION=1 go test ./emit/gotarget -run MillionNodes -v
 //
 // It fails when either side passes its memory budget (1 GB for sawmill,
 // 2 GB for the largest go build process) and reports the times.

@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"fmt"
@@ -16,7 +16,7 @@ import (
 // non-members inside and around the range), for lists of 3, 64 dense, 1,000
 // dense and 1,000 sparse categories:
 //
-//	go test ./emit/golang -run '^$' -bench SetMembership -benchtime 1x
+//	go test ./emit/gotarget -run '^$' -bench SetMembership -benchtime 1x
 //
 // It writes one Go program with, per list, a range check then a bitset
 // word (as member does), a range check then a binary search of the sorted

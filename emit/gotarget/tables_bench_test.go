@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"fmt"
@@ -20,7 +20,7 @@ import (
 // CPU seconds and the peak RSS of its largest process; CPU seconds are the
 // figure to read on a shared machine. MaxLiteralNodes is set from it:
 //
-//	go test ./emit/golang -run '^$' -bench TableBuild -benchtime 1x
+//	go test ./emit/gotarget -run '^$' -bench TableBuild -benchtime 1x
 //
 // On 2026-12-03, 2 vCPUs shared with other work (load average 13 to 16, so
 // wall times are several times the CPU times and not worth reading), Go

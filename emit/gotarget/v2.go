@@ -1,4 +1,4 @@
-package golang
+package gotarget
 
 import (
 	"fmt"
@@ -102,7 +102,7 @@ func (g *gen) acc(v jen.Code) jen.Code {
 // descriptor: the bounds of MemberRange, the first category, and either a
 // bitset (one bit per category from the first to the last, in uint64
 // words) or the sorted list, searched by halves. BenchmarkSetMembership
-// (go test ./emit/golang -run '^$' -bench SetMembership -benchtime 1x, on
+// (go test ./emit/gotarget -run '^$' -bench SetMembership -benchtime 1x, on
 // the shared two-core machine) measured a range check and a bitset word at
 // 5 to 12 ns a test for 3 to 1,000 categories, the binary search at 26 to
 // 137 ns and a Go switch at 6 to 80 ns; so the bitset is used whenever it

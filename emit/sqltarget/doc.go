@@ -1,4 +1,4 @@
-// Package sql emits a tree ensemble as one SQL statement: a SELECT (or, with
+// Package sqltarget emits a tree ensemble as one SQL statement: a SELECT (or, with
 // Options.View, CREATE VIEW ... AS SELECT) that reads a table whose columns
 // are named like the features and yields, in order, the kept columns, one
 // column per output (class labels for a classifier; for a logistic binary
@@ -138,4 +138,4 @@
 // 0.6 s, but its JIT compiles a large statement for minutes: run SET jit =
 // off in the session first (the postgres header says so; a statement cannot
 // say it itself).
-package sql
+package sqltarget
