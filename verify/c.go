@@ -1,4 +1,4 @@
-package golden
+package verify
 
 import (
 	"bufio"
@@ -540,20 +540,4 @@ func parseHexFloat(s string) (float64, error) {
 // receives.
 type Float32Inputs interface {
 	Float32Inputs(variant string) bool
-}
-
-// ReferenceFor is Reference for runner r's variant: on the rows rounded to
-// float32 when the variant takes float32 inputs.
-func (c *Case) ReferenceFor(r Runner, variant string) (outputs []float64, classes []int) {
-	if fi, ok := r.(Float32Inputs); !ok || !fi.Float32Inputs(variant) {
-		return c.Reference()
-	}
-	rows := *c.Rows
-	rows.Values = make([]float64, len(c.Rows.Values))
-	for i, v := range c.Rows.Values {
-		rows.Values[i] = float64(float32(v))
-	}
-	rounded := *c
-	rounded.Rows = &rows
-	return rounded.Reference()
 }

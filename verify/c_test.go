@@ -1,8 +1,9 @@
-package golden
+package verify
 
 import (
 	"context"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
 	"math"
 	"math/bits"
 	"math/rand/v2"
@@ -131,7 +132,7 @@ func cReference(f *forest.Forest, rows *forest.Rows, float bool) ([]float64, []i
 			r.Values[i] = float64(float32(v))
 		}
 	}
-	c := &Case{Model: f, Rows: r}
+	c := &goldencase.Case{Model: f, Rows: r}
 	return c.Reference()
 }
 
@@ -290,7 +291,7 @@ func TestCGoldenCasesFullMatrix(t *testing.T) {
 	if err := cTools(); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
-	cases, err := Cases("testdata")
+	cases, err := goldencase.Cases(goldenCases)
 	require.NoError(t, err)
 	r := cRunner{Full: true}
 	sklearn := 0
@@ -322,7 +323,7 @@ func TestCGoldenCasesFullMatrix(t *testing.T) {
 					require.True(t, m.OK(), "%s", m)
 					t.Logf("%s (bound %g)", m, bound)
 					if c.Sklearn != nil && variant == "double" {
-						checkAgainst(t, c, res.Outputs, "emitted C "+layout)
+						c.CheckSklearn(t, res.Outputs, "emitted C "+layout)
 					}
 				})
 			}

@@ -1,4 +1,4 @@
-package golden
+package verify
 
 import (
 	"math"
@@ -31,3 +31,7 @@ func TestCompare(t *testing.T) {
 	m = Compare([]float64{0.5, 0.5 + 1e-12}, []float64{0.5, 0.5}, []int{1}, []int{0}, 2, false, 1e-9)
 	assert.True(t, m.OK(), m.String())
 }
+
+// goldenCases is the golden package's folder of cases, which the runners'
+// tests and the differential test read and write.
+const goldenCases = "../golden/testdata"

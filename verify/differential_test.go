@@ -1,10 +1,11 @@
-package golden
+package verify
 
 import (
-	"bytes"
 	"context"
 	"errors"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"path/filepath"
@@ -49,22 +50,6 @@ const diffDefaultBatch = 64
 
 // scoreTimeout bounds one build and run, so that a hang is a failure.
 const scoreTimeout = 3 * time.Minute
-
-// diffGenOptions keeps default models small: building emitted code per
-// model is the cost, and small models reach the same corners.
-var diffGenOptions = GenOptions{MaxTrees: 5, MaxFeatures: 5, MaxDepth: 7, MaxChain: 24, MaxNodes: 120, Garbage: true}
-
-func envInt(t *testing.T, name string, def uint64) uint64 {
-	s := os.Getenv(name)
-	if s == "" {
-		return def
-	}
-	v, err := strconv.ParseUint(s, 10, 64)
-	if err != nil {
-		t.Fatalf("%s=%q: want a non-negative integer", name, s)
-	}
-	return v
-}
 
 // target is one runner, variant and layout.
 type target struct {
@@ -157,7 +142,7 @@ func judge(tg target, f *forest.Forest, rows *forest.Rows, p *compile.Program, r
 	if err != nil {
 		return outcome{err: err, took: took}
 	}
-	c := &Case{Model: f, Rows: rows}
+	c := &goldencase.Case{Model: f, Rows: rows}
 	want, wantCls := c.ReferenceFor(tg.r, tg.variant)
 	exact, bound := tg.r.Tolerance(tg.variant, p)
 	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), exact, bound)
@@ -233,13 +218,13 @@ func (st *diffStats) add(tg target, o outcome) {
 // target, and holds every output against the interpreter. A failing model is
 // shrunk and written as a golden case folder, named in the failure.
 func TestDifferential(t *testing.T) {
-	n := envInt(t, "SAWMILL_DIFF_MODELS", diffDefaultModels)
-	first := envInt(t, "SAWMILL_DIFF_SEED", 1)
-	nrows := int(envInt(t, "SAWMILL_DIFF_ROWS", 48))
-	batch := max(1, envInt(t, "SAWMILL_DIFF_BATCH", diffDefaultBatch))
+	n := randmodel.EnvInt(t, "SAWMILL_DIFF_MODELS", diffDefaultModels)
+	first := randmodel.EnvInt(t, "SAWMILL_DIFF_SEED", 1)
+	nrows := int(randmodel.EnvInt(t, "SAWMILL_DIFF_ROWS", 48))
+	batch := max(1, randmodel.EnvInt(t, "SAWMILL_DIFF_BATCH", diffDefaultBatch))
 	keep := os.Getenv("SAWMILL_DIFF_KEEP")
 	if keep == "" {
-		keep = "testdata"
+		keep = goldenCases
 	}
 	targets := allTargets()
 	if len(targets) == 0 {
@@ -280,9 +265,9 @@ func TestDifferential(t *testing.T) {
 func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []target, keep string, st *diffStats) {
 	var models []diffModel
 	for seed := lo; seed < hi; seed++ {
-		f := RandomForest(seed, diffGenOptions)
-		rows := RandomRows(seed, f, nrows)
-		if err := checkRowsRoundTrip(f, rows); err != nil {
+		f := randmodel.RandomForest(seed, randmodel.Small)
+		rows := randmodel.RandomRows(seed, f, nrows)
+		if err := randmodel.CheckRowsRoundTrip(f, rows); err != nil {
 			t.Errorf("seed %d: %v", seed, err)
 			continue
 		}
@@ -320,12 +305,12 @@ func diffBatch(t *testing.T, lo, hi uint64, nrows int, batched bool, targets []t
 				}
 				kept = dir
 				small, srows := shrinkFor(tg, dm.f, dm.rows, o)
-				if err := WriteCase(dir, small, srows); err != nil {
+				if err := randmodel.WriteCase(dir, small, srows); err != nil {
 					t.Errorf("seed %d: %s: %s; writing the shrunk case: %v", dm.seed, tg, o, err)
 					continue
 				}
 				again := runTarget(context.Background(), tg, small, srows, t.TempDir())
-				t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s\nagain: SAWMILL_DIFF_SEED=%d SAWMILL_DIFF_MODELS=1 go test ./golden -run Differential",
+				t.Errorf("seed %d: %s: %s\nshrunk to %d trees, %d nodes, %d rows (%s): %s\nagain: SAWMILL_DIFF_SEED=%d SAWMILL_DIFF_MODELS=1 go test ./verify -run Differential",
 					dm.seed, tg, o, len(small.Trees), nodeCount(small), srows.Len(), dir, again, dm.seed)
 			}
 		})
@@ -484,7 +469,7 @@ func shrinkFor(tg target, f *forest.Forest, rows *forest.Rows, first outcome) (*
 		}
 		return o.mismatch != nil
 	}
-	return Shrink(f, rows, fails, 1000)
+	return randmodel.Shrink(f, rows, fails, 1000)
 }
 
 func nodeCount(f *forest.Forest) int {
@@ -493,24 +478,6 @@ func nodeCount(f *forest.Forest) int {
 		n += f.Trees[i].NumNodes()
 	}
 	return n
-}
-
-// checkRowsRoundTrip makes sure that a case written from rows reads back bit
-// for bit, so a kept failing case fails the same way.
-func checkRowsRoundTrip(f *forest.Forest, rows *forest.Rows) error {
-	back, err := forest.ReadRows(bytes.NewReader(EncodeRows(rows)), "rows.csv", f.Features, forest.RowOptions{})
-	if err != nil {
-		return fmt.Errorf("rows do not read back: %v", err)
-	}
-	if back.Len() != rows.Len() {
-		return fmt.Errorf("rows read back: %d rows, wrote %d", back.Len(), rows.Len())
-	}
-	for i, v := range rows.Values {
-		if math.Float64bits(v) != math.Float64bits(back.Values[i]) && !(math.IsNaN(v) && math.IsNaN(back.Values[i])) {
-			return fmt.Errorf("rows read back: value %d is %v, wrote %v", i, back.Values[i], v)
-		}
-	}
-	return nil
 }
 
 // buggyRunner scores with compile.Eval but sends a value equal to a
@@ -553,18 +520,18 @@ func (buggyRunner) Score(_ context.Context, p *compile.Program, _, _ string, row
 func TestDifferentialFindsPlantedBug(t *testing.T) {
 	tg := target{r: buggyRunner{}, layout: "nested"}
 	for seed := uint64(1); seed <= 50; seed++ {
-		f := RandomForest(seed, diffGenOptions)
-		rows := RandomRows(seed, f, 48)
+		f := randmodel.RandomForest(seed, randmodel.Small)
+		rows := randmodel.RandomRows(seed, f, 48)
 		o := runTarget(context.Background(), tg, f, rows, "")
 		if !o.failed() {
 			continue
 		}
 		small, srows := shrinkFor(tg, f, rows, o)
 		dir := filepath.Join(t.TempDir(), fmt.Sprintf("diff-seed%d", seed))
-		if err := WriteCase(dir, small, srows); err != nil {
+		if err := randmodel.WriteCase(dir, small, srows); err != nil {
 			t.Fatal(err)
 		}
-		c, err := LoadCase(dir, "diff-seed")
+		c, err := goldencase.LoadCase(dir, "diff-seed")
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -627,8 +594,8 @@ func TestDifferentialBatchFallback(t *testing.T) {
 	targets := []target{{r: brittleRunner{}, layout: "nested"}}
 	var models []diffModel
 	for seed := uint64(1); seed <= 16; seed++ {
-		f := RandomForest(seed, diffGenOptions)
-		models = append(models, diffModel{seed, f, RandomRows(seed, f, 16)})
+		f := randmodel.RandomForest(seed, randmodel.Small)
+		models = append(models, diffModel{seed, f, randmodel.RandomRows(seed, f, 16)})
 	}
 	var broken, clean []diffModel
 	for _, m := range models {

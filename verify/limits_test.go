@@ -1,8 +1,9 @@
-package golden
+package verify
 
 import (
 	"context"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"slices"
@@ -154,7 +155,7 @@ func TestWideModel(t *testing.T) {
 	if err := f.Validate("wide"); err != nil {
 		t.Fatal(err)
 	}
-	rows := RandomRows(5, f, 12)
+	rows := randmodel.RandomRows(5, f, 12)
 	if err := checkEval(f, rows); err != nil {
 		t.Fatal(err)
 	}
@@ -165,7 +166,7 @@ func TestWideModel(t *testing.T) {
 // evaluate exactly, and (SAWMILL_LIMIT_TARGETS) run through every target.
 func TestLongName(t *testing.T) {
 	long := strings.Repeat("x", 1<<20)
-	f := RandomForest(11, GenOptions{PlainNames: true, MaxFeatures: 3, MaxTrees: 3, NoHuge: true})
+	f := randmodel.RandomForest(11, randmodel.GenOptions{PlainNames: true, MaxFeatures: 3, MaxTrees: 3, NoHuge: true})
 	f.Features[0] = long
 	if f.IsClassifier() {
 		f.Classes[0] = long
@@ -173,11 +174,11 @@ func TestLongName(t *testing.T) {
 	if err := f.Validate("long"); err != nil {
 		t.Fatal(err)
 	}
-	rows := RandomRows(11, f, 12)
+	rows := randmodel.RandomRows(11, f, 12)
 	if err := checkEval(f, rows); err != nil {
 		t.Fatal(err)
 	}
-	if err := checkRowsRoundTrip(f, rows); err != nil {
+	if err := randmodel.CheckRowsRoundTrip(f, rows); err != nil {
 		t.Fatal(err)
 	}
 	limitTargets(t, "a name of 1 MB", f, rows)

@@ -1,30 +1,19 @@
-// Package golden is sawmill's equivalence harness: it builds emitted code
-// with its real toolchain or engine, runs it over rows, and compares every
-// output with the reference interpreter.
+// Package verify proves that emitted code scores like the model: it builds
+// the code each target emits with that target's real toolchain or engine,
+// runs it over rows, and compares every output with the reference
+// interpreter (forest.Predict). Verify runs every target's Runner and
+// returns a Report; Runners lists them, one per target.
 //
-// A case is a folder under testdata holding model.json and rows.csv, found by
-// walking for model.json, so a new case is a new folder. Optional files:
-//
-//	case.json    flags: {"snapshot": true} keeps the generated source under
-//	             want/<runner>/<layout>[-<variant>]/ and compares it;
-//	             {"runners": ["go"]} limits the runners; {"skip_layouts": [...]}
-//	sklearn.csv  reference outputs from scikit-learn, one row per rows.csv row:
-//	             id, one column per class, sklearn_class; checked within 1e-12
-//	stderr.txt   the case must fail to load, with this message
-package golden
+// The defaults suit a user's machine: C needs one working compiler, warnings
+// are not errors, and PostgreSQL is tried only at the address Options or
+// SAWMILL_POSTGRES_DSN give. A test suite asks for more through Strict.
+package verify
 
 import (
 	"context"
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"io/fs"
 	"math"
-	"os"
-	"path/filepath"
-	"slices"
-	"strconv"
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
@@ -98,140 +87,12 @@ type Result struct {
 // Runners lists every target's runner. A new target adds one line here.
 func Runners() []Runner {
 	return []Runner{
-		// one line per target runner, e.g. goRunner{},
 		goRunner{},
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
 		sqlRunner{engine: "postgres"},
 		cRunner{},
 	}
-}
-
-// Case is one golden case.
-type Case struct {
-	Name    string
-	Dir     string
-	Flags   Flags
-	Model   *forest.Forest
-	Rows    *forest.Rows
-	Sklearn [][]float64 // per row, per class; nil when the case has none
-	// WantErr is the expected load error (stderr.txt), "" for a normal case.
-	WantErr string
-	LoadErr error
-}
-
-// Flags are a case's options from case.json.
-type Flags struct {
-	Snapshot    bool     `json:"snapshot"`
-	Runners     []string `json:"runners"`
-	SkipLayouts []string `json:"skip_layouts"`
-	// Slow marks a big case that only runs outside -short.
-	Slow bool `json:"slow"`
-}
-
-// Cases finds every case under root, in path order.
-func Cases(root string) ([]*Case, error) {
-	var cases []*Case
-	err := filepath.WalkDir(root, func(path string, d fs.DirEntry, err error) error {
-		if err != nil {
-			return err
-		}
-		if d.IsDir() && d.Name() == "want" {
-			return filepath.SkipDir
-		}
-		if d.IsDir() || d.Name() != "model.json" {
-			return nil
-		}
-		dir := filepath.Dir(path)
-		name, _ := filepath.Rel(root, dir)
-		c, err := LoadCase(dir, filepath.ToSlash(name))
-		if err != nil {
-			return err
-		}
-		cases = append(cases, c)
-		return nil
-	})
-	return cases, err
-}
-
-// LoadCase reads one case folder. A model that fails to load is returned
-// with LoadErr set, so that cases holding stderr.txt can check the message.
-func LoadCase(dir, name string) (*Case, error) {
-	c := &Case{Name: name, Dir: dir}
-	if b, err := os.ReadFile(filepath.Join(dir, "case.json")); err == nil {
-		if err := json.Unmarshal(b, &c.Flags); err != nil {
-			return nil, fmt.Errorf("%s: %v", filepath.Join(dir, "case.json"), err)
-		}
-	}
-	if b, err := os.ReadFile(filepath.Join(dir, "stderr.txt")); err == nil {
-		c.WantErr = string(b)
-	}
-	c.Model, c.LoadErr = forest.ReadFile(filepath.Join(dir, "model.json"))
-	if c.LoadErr != nil {
-		if c.WantErr == "" {
-			return nil, c.LoadErr
-		}
-		return c, nil
-	}
-	rows, err := forest.ReadRowsFile(filepath.Join(dir, "rows.csv"), c.Model.Features, forest.RowOptions{})
-	if err != nil {
-		return nil, err
-	}
-	c.Rows = rows
-	sk := filepath.Join(dir, "sklearn.csv")
-	if _, err := os.Stat(sk); err == nil {
-		c.Sklearn, err = readSklearn(sk, c.Model, rows.Len())
-		if err != nil {
-			return nil, err
-		}
-	}
-	return c, nil
-}
-
-// readSklearn reads recorded reference probabilities: a header of id, the
-// class labels in model order, sklearn_class.
-func readSklearn(path string, f *forest.Forest, n int) ([][]float64, error) {
-	fh, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer fh.Close()
-	recs, err := csv.NewReader(fh).ReadAll()
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	if len(recs) != n+1 {
-		return nil, fmt.Errorf("%s: %d rows, rows.csv has %d", path, len(recs)-1, n)
-	}
-	if want := append(append([]string{"id"}, f.Classes...), "sklearn_class"); !slices.Equal(recs[0], want) {
-		return nil, fmt.Errorf("%s: header %v, want %v", path, recs[0], want)
-	}
-	out := make([][]float64, n)
-	for i, r := range recs[1:] {
-		out[i] = make([]float64, len(f.Classes))
-		for j := range f.Classes {
-			v, err := strconv.ParseFloat(r[1+j], 64)
-			if err != nil {
-				return nil, fmt.Errorf("%s:%d: %v", path, i+2, err)
-			}
-			out[i][j] = v
-		}
-	}
-	return out, nil
-}
-
-// Reference scores every row of c with the interpreter.
-func (c *Case) Reference() (outputs []float64, classes []int) {
-	k := c.Model.NumOutputs()
-	outputs = make([]float64, c.Rows.Len()*k)
-	for i := 0; i < c.Rows.Len(); i++ {
-		o := outputs[i*k : (i+1)*k]
-		c.Model.Predict(c.Rows.Row(i), o)
-		if c.Model.IsClassifier() {
-			classes = append(classes, c.Model.ClassOf(o))
-		}
-	}
-	return outputs, classes
 }
 
 // Mismatch describes the first disagreement between a run and the

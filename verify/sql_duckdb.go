@@ -1,6 +1,6 @@
 //go:build cgo
 
-package golden
+package verify
 
 import (
 	"context"

@@ -1,4 +1,4 @@
-package golden
+package verify
 
 import (
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"

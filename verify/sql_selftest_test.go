@@ -1,8 +1,9 @@
-package golden
+package verify
 
 import (
 	"context"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -109,7 +110,7 @@ var plantedLeaf = regexp.MustCompile(`ELSE (.+?) -- leaf \d+`)
 // is changed by hand, and the rows reaching that leaf must come back.
 func TestSQLSelftest(t *testing.T) {
 	for _, name := range []string{"edge-nan-routing", "edge-logistic", "trained-wine"} {
-		c, err := LoadCase(filepath.Join("testdata", name), name)
+		c, err := goldencase.LoadCase(filepath.Join(goldenCases, name), name)
 		if err != nil {
 			t.Fatal(err)
 		}

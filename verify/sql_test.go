@@ -1,9 +1,11 @@
-package golden
+package verify
 
 import (
 	"context"
 	"errors"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"strings"
@@ -245,7 +247,7 @@ var allSQLVariants = []string{"", "ansi", "shell", "ansi-shell"}
 func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string) {
 	t.Helper()
 	p := sqlProgram(t, f)
-	c := &Case{Model: f, Rows: rows}
+	c := &goldencase.Case{Model: f, Rows: rows}
 	want, wantCls := c.Reference()
 	for _, r := range sqlEngineRunners {
 		for _, variant := range variants {
@@ -294,7 +296,7 @@ func TestSQLDeepTree(t *testing.T) {
 		f := &forest.Forest{Task: forest.Regression, Features: []string{"depth"}, InputPrecision: forest.Float64,
 			Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.25},
 			Trees: []forest.Tree{chainTree(d, 0), chainTree(7, 0)}}
-		rows := RandomRows(3, f, 40)
+		rows := randmodel.RandomRows(3, f, 40)
 		for i := 0; i < d+10; i += 3 { // every third leaf, and the thresholds themselves
 			rows.Values = append(rows.Values, float64(i)-0.5, float64(i))
 			rows.Line = append(rows.Line, 0, 0)
@@ -348,7 +350,7 @@ func TestSQLStages(t *testing.T) {
 	for _, name := range []string{"sum-regression", "average-4", "softmax-4", "logistic"} {
 		f := models[name]
 		f.Features, f.InputPrecision = features, forest.Float64
-		rows := RandomRows(7, f, 120)
+		rows := randmodel.RandomRows(7, f, 120)
 		for _, o := range []sqltarget.Options{
 			{Layout: emit.Nested, TreesPerStage: 2},
 			{Layout: emit.Table, TreesPerStage: 2, MaxNest: 2},
@@ -369,7 +371,7 @@ func TestSQLNegativeZero(t *testing.T) {
 		MissingLeft: []bool{true, false, false}, Value: []float64{0, nz, nz}}
 	f := &forest.Forest{Task: forest.Regression, Features: []string{"x"}, InputPrecision: forest.Float64,
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{nz}, Trees: []forest.Tree{tr, tr}}
-	rows := RandomRows(5, f, 30)
+	rows := randmodel.RandomRows(5, f, 30)
 	for _, l := range []string{emit.Nested, emit.Table} {
 		t.Run(l, func(t *testing.T) { sqlCheck(t, f, rows, sqltarget.Options{Layout: l}) })
 	}
@@ -382,7 +384,7 @@ func TestSQLViewAndKeep(t *testing.T) {
 		Classes: []string{"it's", `say "x"`, `a\b`}, InputPrecision: forest.Float64, Combine: forest.Average,
 		Transform: forest.NoTransform, BaseScore: []float64{0, 0, 0},
 		Trees: []forest.Tree{balancedTree(3, 3, 3, 1), balancedTree(2, 3, 3, 2)}}
-	rows := RandomRows(9, f, 50)
+	rows := randmodel.RandomRows(9, f, 50)
 	sqlCheck(t, f, rows, sqltarget.Options{View: `v'); DROP VIEW x; --"`, Keep: []string{`"`, "DROP TABLE t;--"}})
 }
 
@@ -445,7 +447,7 @@ func TestSQLBigForest(t *testing.T) {
 	trees = append(trees, chainTree(300, 0))
 	f := &forest.Forest{Task: forest.Regression, Features: features, InputPrecision: forest.Float64,
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
-	rows := RandomRows(11, f, 200)
+	rows := randmodel.RandomRows(11, f, 200)
 	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
 	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"})
 }

@@ -1,4 +1,4 @@
-package golden
+package verify
 
 import (
 	"context"
@@ -472,7 +472,7 @@ const thresholdBase = -1 << 40
 // both with Probes.
 func verifyRows(f *forest.Forest, given *forest.Rows, o VerifyOptions, rep *Report) (*forest.Rows, error) {
 	if given != nil && !slices.Equal(given.Features, f.Features) {
-		return nil, fmt.Errorf("BUG: golden.Verify: rows are for features %v, the model has %v", given.Features, f.Features)
+		return nil, fmt.Errorf("BUG: verify.Verify: rows are for features %v, the model has %v", given.Features, f.Features)
 	}
 	if given != nil {
 		rep.Given = given.Len()

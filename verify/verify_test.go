@@ -1,4 +1,4 @@
-package golden
+package verify
 
 import (
 	"context"
@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 	"time"
@@ -64,7 +65,7 @@ func evalClassOf(out []float64) int {
 
 func verifyWine(t *testing.T) *forest.Forest {
 	t.Helper()
-	f, err := forest.ReadFile("testdata/sklearn-wine/model.json")
+	f, err := forest.ReadFile(filepath.Join(goldenCases, "sklearn-wine", "model.json"))
 	require.NoError(t, err)
 	return f
 }
@@ -367,7 +368,7 @@ func TestReportJSON(t *testing.T) {
 // it. It uses each runner's first layout and variants to keep CI time down.
 func TestVerifyTargetsCatchPlantedFaults(t *testing.T) {
 	if len(Runners()) == 0 {
-		t.Skip("no target runner is registered in golden.Runners yet")
+		t.Skip("no target runner is registered in verify.Runners yet")
 	}
 	f := verifyWine(t)
 	rows := verifyProbeRows(f)

@@ -16,7 +16,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 var runTime = regexp.MustCompile(`Run Time: real ([0-9.]+) user ([0-9.]+) sys ([0-9.]+)`)
@@ -135,9 +135,9 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if err := q.Err(); err != nil {
 		return "", err
 	}
-	r, _ := golden.SQLRunner("sqlite")
+	r, _ := verify.SQLRunner("sqlite")
 	exact, bound := r.Tolerance("", p)
-	if m := golden.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
+	if m := verify.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
 		return "", fmt.Errorf("sqlite3 shell %s: %s", layout, m)
 	}
 	lay, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: layout})

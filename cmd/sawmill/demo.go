@@ -23,7 +23,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // Demo defaults: the seed is part of the demo's stated result.
@@ -231,10 +231,10 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	st.begin("verifying every target against the model: %d readings and rows generated from the model", rows.Len())
 	// Room for a row at every leaf (about 5,000 with the defaults) and some
 	// thousands at thresholds: leaf rows get up to three quarters of it.
-	o := golden.VerifyOptions{Probes: true, MaxRows: 8000}
-	o.Done = func(ch *golden.Check) {
+	o := verify.VerifyOptions{Probes: true, MaxRows: 8000}
+	o.Done = func(ch *verify.Check) {
 		line := fmt.Sprintf("      %-22s %s", ch.Name(), ch.Status)
-		if ch.Status == golden.Agree {
+		if ch.Status == verify.Agree {
 			line += fmt.Sprintf(" (%d rows, build %s, score %s)", ch.Rows, seconds(time.Duration(ch.Build)), seconds(time.Duration(ch.Run)))
 		} else if ch.Reason != "" {
 			line += ": " + firstLine(ch.Reason)
@@ -257,7 +257,7 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	if err := put(demoVerifyJSN, append(vj, '\n')); err != nil {
 		return err
 	}
-	st.done("%d of %d checks ran, %d agree; report in %s", len(rep.Checks)-rep.Count(golden.NotRun), len(rep.Checks), rep.Count(golden.Agree), demoVerifyTxt)
+	st.done("%d of %d checks ran, %d agree; report in %s", len(rep.Checks)-rep.Count(verify.NotRun), len(rep.Checks), rep.Count(verify.Agree), demoVerifyTxt)
 
 	// 6. Predictions and README.
 	st.begin("writing predictions and the README")
@@ -287,22 +287,22 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 // the layout each was written in (C in double, as written), each SQL
 // engine's own file in its layout, and the portable (ANSI) file on every
 // engine, since it claims to run on each.
-func demoVerify(f *forest.Forest, rows *forest.Rows, o golden.VerifyOptions, wrote []demoWrote) (*golden.Report, error) {
-	var rep *golden.Report
+func demoVerify(f *forest.Forest, rows *forest.Rows, o verify.VerifyOptions, wrote []demoWrote) (*verify.Report, error) {
+	var rep *verify.Report
 	for _, w := range wrote {
 		v := o
 		v.Layouts = []string{w.layout}
 		switch {
 		case w.target == "c":
 			v.Targets, v.Variants = []string{"c"}, []string{"double"}
-		case w.target == "sql" && w.dialect == golden.AnsiDialect:
-			v.Targets, v.Dialects = []string{"sql"}, []string{golden.AnsiDialect}
+		case w.target == "sql" && w.dialect == verify.AnsiDialect:
+			v.Targets, v.Dialects = []string{"sql"}, []string{verify.AnsiDialect}
 		case w.target == "sql":
 			v.Targets, v.Dialects = []string{w.dialect}, []string{w.dialect}
 		default:
 			v.Targets = []string{w.target}
 		}
-		r, err := golden.Verify(context.Background(), f, rows, v)
+		r, err := verify.Verify(context.Background(), f, rows, v)
 		if err != nil {
 			return nil, fmt.Errorf("BUG: demo: verify: %v", err)
 		}
@@ -427,7 +427,7 @@ func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, er
 }
 
 // demoReadme says what the folder holds and how to use each piece.
-func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Report, files map[string][]byte) []byte {
+func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *verify.Report, files map[string][]byte) []byte {
 	var b bytes.Buffer
 	p := func(format string, a ...any) { fmt.Fprintf(&b, format, a...) }
 	f := res.Forest
@@ -509,7 +509,7 @@ func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Rep
 			name += "/" + ch.Variant
 		}
 		res := string(ch.Status)
-		if ch.Status == golden.NotRun {
+		if ch.Status == verify.NotRun {
 			res += ": " + firstLine(ch.Reason)
 		}
 		layout := ch.Layout

@@ -7,7 +7,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // sqlTarget emits one statement through emit/sqltarget and, with --selftest, the
@@ -34,7 +34,7 @@ func sqlTarget() target {
 			if err != nil || !fl.selftest {
 				return files, err
 			}
-			probes := golden.SelftestProbes(fl.model)
+			probes := verify.SelftestProbes(fl.model)
 			st, err := sqltarget.Selftest(p, o, probes)
 			if err != nil {
 				return nil, fmt.Errorf("selftest: %v", err)

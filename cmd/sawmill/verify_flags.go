@@ -5,14 +5,14 @@ import (
 	"slices"
 	"strings"
 
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // checkVerifyFlags refuses --layout and --variant values that none of the
 // chosen targets has, and --variant or --dialect given for targets that
 // have none, naming the valid values: a typo must not quietly check
 // everything, or nothing.
-func checkVerifyFlags(fl *verifyFlags, runners []golden.Runner) error {
+func checkVerifyFlags(fl *verifyFlags, runners []verify.Runner) error {
 	chosen := chosenRunners(fl.targets, runners)
 	var layouts, variants []string
 	sql := false
@@ -55,12 +55,12 @@ func checkVerifyFlags(fl *verifyFlags, runners []golden.Runner) error {
 }
 
 // chosenRunners are the runners --target names (all without it); unknown
-// names are left to golden.Verify, which names the valid ones.
-func chosenRunners(targets []string, runners []golden.Runner) []golden.Runner {
+// names are left to verify.Verify, which names the valid ones.
+func chosenRunners(targets []string, runners []verify.Runner) []verify.Runner {
 	if len(targets) == 0 {
 		return runners
 	}
-	var out []golden.Runner
+	var out []verify.Runner
 	for _, r := range runners {
 		for _, t := range targets {
 			t = strings.ToLower(strings.TrimSpace(t))

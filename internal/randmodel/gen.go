@@ -1,4 +1,4 @@
-package golden
+package randmodel
 
 import (
 	"bytes"
@@ -11,6 +11,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"testing"
 
 	"github.com/sawmill-dev/sawmill/forest"
 )
@@ -142,10 +143,10 @@ func RandomForest(seed uint64, o GenOptions) *forest.Forest {
 		g.version2(f)
 	}
 	if rng.IntN(4) == 0 {
-		f.Provenance = []byte(`{"generator":"golden.RandomForest","seed":` + strconv.FormatUint(seed, 10) + `}`)
+		f.Provenance = []byte(`{"generator":"randmodel.RandomForest","seed":` + strconv.FormatUint(seed, 10) + `}`)
 	}
 	if err := f.Validate(fmt.Sprintf("random forest %d", seed)); err != nil {
-		panic("BUG: golden.RandomForest drew an invalid forest: " + err.Error())
+		panic("BUG: randmodel.RandomForest drew an invalid forest: " + err.Error())
 	}
 	return f
 }
@@ -678,4 +679,41 @@ func WriteCase(dir string, f *forest.Forest, rows *forest.Rows) error {
 		return err
 	}
 	return forest.WriteFileAtomic(filepath.Join(dir, "rows.csv"), EncodeRows(rows), 0o644)
+}
+
+// CheckRowsRoundTrip makes sure that a case written from rows reads back bit
+// for bit, so a kept failing case fails the same way.
+func CheckRowsRoundTrip(f *forest.Forest, rows *forest.Rows) error {
+	back, err := forest.ReadRows(bytes.NewReader(EncodeRows(rows)), "rows.csv", f.Features, forest.RowOptions{})
+	if err != nil {
+		return fmt.Errorf("rows do not read back: %v", err)
+	}
+	if back.Len() != rows.Len() {
+		return fmt.Errorf("rows read back: %d rows, wrote %d", back.Len(), rows.Len())
+	}
+	for i, v := range rows.Values {
+		if math.Float64bits(v) != math.Float64bits(back.Values[i]) && !(math.IsNaN(v) && math.IsNaN(back.Values[i])) {
+			return fmt.Errorf("rows read back: value %d is %v, wrote %v", i, back.Values[i], v)
+		}
+	}
+	return nil
+}
+
+// Small keeps the differential test's models small: building emitted code
+// per model is the cost, and small models reach the same corners.
+var Small = GenOptions{MaxTrees: 5, MaxFeatures: 5, MaxDepth: 7, MaxChain: 24, MaxNodes: 120, Garbage: true}
+
+// EnvInt is the non-negative integer in the environment variable name
+// (SAWMILL_DIFF_MODELS, SAWMILL_DIFF_SEED, ...), def when it is unset; t
+// fails on anything else.
+func EnvInt(t testing.TB, name string, def uint64) uint64 {
+	s := os.Getenv(name)
+	if s == "" {
+		return def
+	}
+	v, err := strconv.ParseUint(s, 10, 64)
+	if err != nil {
+		t.Fatalf("%s=%q: want a non-negative integer", name, s)
+	}
+	return v
 }

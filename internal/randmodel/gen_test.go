@@ -1,8 +1,10 @@
-package golden
+package randmodel
 
 import (
 	"bytes"
 	"fmt"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/verify"
 	"math"
 	"os"
 	"path/filepath"
@@ -41,7 +43,7 @@ func TestRandomForestReproducible(t *testing.T) {
 		if !slices.EqualFunc(ra.Values, rb.Values, func(x, y float64) bool { return math.Float64bits(x) == math.Float64bits(y) }) {
 			t.Fatalf("seed %d: two row draws differ", seed)
 		}
-		if err := checkRowsRoundTrip(back, ra); err != nil {
+		if err := CheckRowsRoundTrip(back, ra); err != nil {
 			t.Fatalf("seed %d: %v", seed, err)
 		}
 	}
@@ -261,7 +263,7 @@ func TestShrink(t *testing.T) {
 	if err := WriteCase(dir, small, srows); err != nil {
 		t.Fatal(err)
 	}
-	c, err := LoadCase(dir, "diff-seed7")
+	c, err := goldencase.LoadCase(dir, "diff-seed7")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -280,33 +282,33 @@ func TestShrink(t *testing.T) {
 // SAWMILL_DIFF_MODELS, as in TestDifferential).
 func TestWriteRandomCases(t *testing.T) {
 	out := os.Getenv("SAWMILL_GEN_OUT")
-	n := envInt(t, "SAWMILL_DIFF_MODELS", 4)
+	n := EnvInt(t, "SAWMILL_DIFF_MODELS", 4)
 	if out == "" {
 		out = t.TempDir()
 		n = min(n, 4)
 	}
-	first := envInt(t, "SAWMILL_DIFF_SEED", 1)
+	first := EnvInt(t, "SAWMILL_DIFF_SEED", 1)
 	for seed := first; seed < first+n; seed++ {
-		f := RandomForest(seed, diffGenOptions)
-		rows := RandomRows(seed, f, int(envInt(t, "SAWMILL_DIFF_ROWS", 48)))
+		f := RandomForest(seed, Small)
+		rows := RandomRows(seed, f, int(EnvInt(t, "SAWMILL_DIFF_ROWS", 48)))
 		name := fmt.Sprintf("diff-seed%d", seed)
 		dir := filepath.Join(out, name)
 		if err := WriteCase(dir, f, rows); err != nil {
 			t.Fatal(err)
 		}
-		c, err := LoadCase(dir, name)
+		c, err := goldencase.LoadCase(dir, name)
 		if err != nil {
 			t.Fatal(err)
 		}
 		if !bytes.Equal(encode(t, c.Model), encode(t, f)) {
 			t.Fatalf("%s: model reads back differently", dir)
 		}
-		if err := checkRowsRoundTrip(c.Model, rows); err != nil {
+		if err := CheckRowsRoundTrip(c.Model, rows); err != nil {
 			t.Fatalf("%s: %v", dir, err)
 		}
-		want, _ := (&Case{Model: f, Rows: rows}).Reference()
+		want, _ := (&goldencase.Case{Model: f, Rows: rows}).Reference()
 		got, _ := c.Reference()
-		if m := Compare(want, got, nil, nil, f.NumOutputs(), true, 0); !m.OK() {
+		if m := verify.Compare(want, got, nil, nil, f.NumOutputs(), true, 0); !m.OK() {
 			t.Fatalf("%s: the written case scores differently: %s", dir, m)
 		}
 	}
