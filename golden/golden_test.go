@@ -54,7 +54,7 @@ func TestGolden(t *testing.T) {
 				t.Skip("slow case: runs without -short")
 			}
 			checkSklearnReference(t, c)
-			for _, r := range verify.Runners() {
+			for _, r := range verify.RunnersWith(runnerConfig) {
 				if len(c.Flags.Runners) > 0 && !slices.Contains(c.Flags.Runners, r.Name()) {
 					continue
 				}
@@ -206,3 +206,8 @@ func lineDiff(want, got string) string {
 	}
 	return s.String()
 }
+
+// runnerConfig holds the runners to more than a user's machine needs:
+// generated C must build without a warning, and in CI
+// (SAWMILL_REQUIRE_ENGINES) with gcc, clang and g++ all present.
+var runnerConfig = verify.Config{Werror: true, AllCompilers: os.Getenv("SAWMILL_REQUIRE_ENGINES") != ""}

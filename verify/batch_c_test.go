@@ -24,7 +24,7 @@ import (
 // in every build, whose outputs must be the same bytes. With Full set it
 // scores the jobs one at a time with Score.
 func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]BatchResult, error) {
-	if err := cTools(); err != nil {
+	if err := cTools(r.AllCompilers); err != nil {
 		return nil, err
 	}
 	res := make([]BatchResult, len(jobs))
@@ -103,7 +103,7 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 		sources, objs = append(sources, fmt.Sprintf("unity%d.c", c)), append(objs, fmt.Sprintf("unity%d.o", c))
 	}
 	flags := func(b cBuild) []string {
-		f := append([]string{"-std=" + b.std}, cWarnings...)
+		f := append([]string{"-std=" + b.std}, r.warnings()...)
 		f = append(f, "-"+b.opt)
 		if b.sanitize {
 			f = append(f, "-g", "-fsanitize=address,undefined", "-fno-sanitize-recover=all", "-fno-omit-frame-pointer")

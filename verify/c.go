@@ -26,8 +26,8 @@ import (
 // builds the program with a small driver that reads rows as float64 bit
 // patterns and prints outputs with %a (exact), with several toolchains, each
 // with -Wall -Wextra -Wpedantic -Wshadow -Wconversion -Wdouble-promotion
-// -Wstrict-prototypes -Wmissing-prototypes -Werror; every build must print
-// the same bytes. The registered runner uses cQuickMatrix (gcc -std=c99 -O2
+// -Wstrict-prototypes -Wmissing-prototypes (and -Werror with Werror); every
+// build must print the same bytes. The registered runner uses cQuickMatrix (gcc -std=c99 -O2
 // and clang -std=c11 -O0), which keeps the differential test cheap; with
 // Full set (c_test.go runs every golden case so) it uses cMatrix, gcc and
 // clang at -std=c99 and -std=c11 and -O0 and -O2 plus a gcc build with
@@ -36,6 +36,8 @@ import (
 // builds are done with that one (cBuilds), and Result.Toolchain says which.
 type cRunner struct {
 	Full bool
+	// Werror and AllCompilers are Config's.
+	Werror, AllCompilers bool
 }
 
 // cName is the --name used in tests; not the default, so that a missed
@@ -89,7 +91,16 @@ var cBigMatrix = []cBuild{
 
 // cWarnings are the warning flags of every build.
 var cWarnings = []string{"-Wall", "-Wextra", "-Wpedantic", "-Wshadow", "-Wconversion", "-Wdouble-promotion",
-	"-Wstrict-prototypes", "-Wmissing-prototypes", "-Werror"}
+	"-Wstrict-prototypes", "-Wmissing-prototypes"}
+
+// warnings are the warning flags of r's builds: cWarnings, and -Werror when
+// r asks for it.
+func (r cRunner) warnings() []string {
+	if r.Werror {
+		return append(slices.Clone(cWarnings), "-Werror")
+	}
+	return cWarnings
+}
 
 // cJobs bounds the compilers and drivers running at once, over all Score
 // calls of the process.
@@ -129,17 +140,17 @@ func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, 
 
 var cToolsOnce struct {
 	sync.Once
-	err     error
 	version map[string]string // compiler on PATH -> first line of its --version
+	missing []string          // of gcc, clang, cc and g++
 }
 
 // cTools checks that a C compiler is installed: any one of gcc, clang and
 // cc is enough (the builds of the matrices that need another are done with
 // it instead, see cBuilds), and g++, which checks the header as C++, is
-// used when present. With SAWMILL_REQUIRE_ENGINES set (CI), gcc, clang and
-// g++ must all be there, so the full matrix never shrinks unseen. ErrSkip
-// when there is no compiler.
-func cTools() error {
+// used when present. With all set (Config.AllCompilers), gcc, clang and g++
+// must all be there, so the full matrix never shrinks unseen. ErrSkip when
+// there is no compiler.
+func cTools(all bool) error {
 	cToolsOnce.Do(func() {
 		cToolsOnce.version = map[string]string{}
 		var missing []string
@@ -153,18 +164,16 @@ func cTools() error {
 			v, _, _ := strings.Cut(string(out), "\n")
 			cToolsOnce.version[t] = strings.TrimSpace(v)
 		}
-		_, gcc := cToolsOnce.version["gcc"]
-		_, clang := cToolsOnce.version["clang"]
-		_, cc := cToolsOnce.version["cc"]
-		_, cxx := cToolsOnce.version["g++"]
-		switch {
-		case os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" && !(gcc && clang && cxx):
-			cToolsOnce.err = fmt.Errorf("SAWMILL_REQUIRE_ENGINES is set and the full C matrix needs gcc, clang and g++; missing: %s", strings.Join(missing, ", "))
-		case !gcc && !clang && !cc:
-			cToolsOnce.err = fmt.Errorf("%w: no C compiler on PATH (tried gcc, clang, cc)", ErrSkip)
-		}
+		cToolsOnce.missing = missing
 	})
-	return cToolsOnce.err
+	have := func(t string) bool { _, ok := cToolsOnce.version[t]; return ok }
+	switch {
+	case all && !(have("gcc") && have("clang") && have("g++")):
+		return fmt.Errorf("the full C matrix needs gcc, clang and g++; missing: %s", strings.Join(cToolsOnce.missing, ", "))
+	case !have("gcc") && !have("clang") && !have("cc"):
+		return fmt.Errorf("%w: no C compiler on PATH (tried gcc, clang, cc)", ErrSkip)
+	}
+	return nil
 }
 
 // cBuilds is matrix with the compilers this machine has: builds whose
@@ -205,7 +214,7 @@ func firstPresent(have map[string]string, names ...string) string {
 func cxxPresent() bool { _, ok := cToolsOnce.version["g++"]; return ok }
 
 func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
-	if err := cTools(); err != nil {
+	if err := cTools(r.AllCompilers); err != nil {
 		return nil, err
 	}
 	if variant == "float" {
@@ -273,7 +282,7 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Option
 			defer wg.Done()
 			cJobs <- struct{}{}
 			defer func() { <-cJobs }()
-			args := append([]string{"-std=" + j.b.std}, cWarnings...)
+			args := append([]string{"-std=" + j.b.std}, r.warnings()...)
 			args = append(args, "-"+j.b.opt)
 			if j.b.sanitize {
 				args = append(args, "-g", "-fsanitize=address,undefined", "-fno-sanitize-recover=all", "-fno-omit-frame-pointer")

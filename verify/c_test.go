@@ -139,10 +139,11 @@ func cReference(f *forest.Forest, rows *forest.Rows, float bool) ([]float64, []i
 // checkC scores f in every layout and variant and compares.
 func checkC(t *testing.T, f *forest.Forest, rows *forest.Rows) {
 	t.Helper()
-	if err := cTools(); err != nil {
+	if err := cTools(testConfig.AllCompilers); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
-	r := cRunner{Full: true}
+	r := testCRunner()
+	r.Full = true
 	for _, variant := range r.Variants() {
 		for _, layout := range r.Layouts() {
 			t.Run(layout+"-"+variant, func(t *testing.T) {
@@ -244,7 +245,7 @@ func TestCDeepTree(t *testing.T) {
 	checkC(t, f, rows)
 	layout, _, err := ctarget.Resolve(p, ctarget.Options{})
 	require.NoError(t, err)
-	res, err := cRunner{}.Score(context.Background(), p, emit.Auto, "double", rows, t.TempDir())
+	res, err := testCRunner().Score(context.Background(), p, emit.Auto, "double", rows, t.TempDir())
 	require.NoError(t, err, "auto (%s)", layout)
 	want, _ := cReference(f, rows, false)
 	m := Compare(want, res.Outputs, nil, nil, 1, true, 0)
@@ -288,12 +289,13 @@ func TestCHostileNames(t *testing.T) {
 // also score every row within 1e-12 of scikit-learn 1.2.1's recorded
 // predict_proba.
 func TestCGoldenCasesFullMatrix(t *testing.T) {
-	if err := cTools(); err != nil {
+	if err := cTools(testConfig.AllCompilers); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
 	cases, err := goldencase.Cases(goldenCases)
 	require.NoError(t, err)
-	r := cRunner{Full: true}
+	r := testCRunner()
+	r.Full = true
 	sklearn := 0
 	for _, c := range cases {
 		if c.WantErr != "" || len(c.Flags.Runners) > 0 && !slices.Contains(c.Flags.Runners, r.Name()) {
@@ -355,7 +357,7 @@ func TestCMillionNodes(t *testing.T) {
 	if os.Getenv("SAWMILL_C_BIG") == "" {
 		t.Skip("slow: set SAWMILL_C_BIG=1 to build a 1M-node forest")
 	}
-	if err := cTools(); err != nil {
+	if err := cTools(testConfig.AllCompilers); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
 	const trees, depth, nf = 2000, 8, 20
@@ -402,7 +404,7 @@ func TestCMillionNodes(t *testing.T) {
 	require.GreaterOrEqual(t, p.NumNodes(), 1_000_000)
 	layout, why, err := ctarget.Resolve(p, ctarget.Options{})
 	require.NoError(t, err)
-	res, err := cRunner{}.score(context.Background(), p, ctarget.Options{Name: cName, Layout: emit.Auto}, rows, t.TempDir(), cMatrix[:1], false)
+	res, err := testCRunner().score(context.Background(), p, ctarget.Options{Name: cName, Layout: emit.Auto}, rows, t.TempDir(), cMatrix[:1], false)
 	require.NoError(t, err)
 	t.Logf("%d nodes: auto chose %s (%s); gcc -O2 build %v, %d rows in %v", p.NumNodes(), layout, why, res.Build.Round(time.Millisecond), rows.Len(), res.Run.Round(time.Millisecond))
 	require.Less(t, res.Build, 60*time.Second)
@@ -415,7 +417,7 @@ func TestCMillionNodes(t *testing.T) {
 // every matrix is done with it (the sanitizer build only by clang, else
 // dropped), so C is verified with any one of gcc, clang and cc.
 func TestCBuildsOneCompiler(t *testing.T) {
-	if err := cTools(); err != nil {
+	if err := cTools(testConfig.AllCompilers); err != nil {
 		t.Skipf("C compilers: %v", err)
 	}
 	saved := cToolsOnce.version

@@ -2,6 +2,7 @@ package verify
 
 import (
 	"math"
+	"os"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
@@ -35,3 +36,19 @@ func TestCompare(t *testing.T) {
 // goldenCases is the golden package's folder of cases, which the runners'
 // tests and the differential test read and write.
 const goldenCases = "../golden/testdata"
+
+// requireEngines is set in CI (SAWMILL_REQUIRE_ENGINES): a runner whose
+// toolchain or engine is missing fails there instead of skipping.
+var requireEngines = os.Getenv("SAWMILL_REQUIRE_ENGINES") != ""
+
+// testConfig holds the runners to more than a user's machine needs:
+// generated C must build without a warning, and in CI with every compiler.
+var testConfig = Config{Werror: true, AllCompilers: requireEngines}
+
+// testRunners are the registered runners under testConfig.
+func testRunners() []Runner { return RunnersWith(testConfig) }
+
+// testCRunner is the C runner under testConfig.
+func testCRunner() cRunner {
+	return cRunner{Werror: testConfig.Werror, AllCompilers: testConfig.AllCompilers}
+}

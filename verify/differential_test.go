@@ -82,7 +82,7 @@ func lightSeed(seed uint64) bool { return seed%4 != 0 }
 
 func allTargets() []target {
 	var ts []target
-	for _, r := range Runners() {
+	for _, r := range testRunners() {
 		for _, v := range r.Variants() {
 			for _, l := range r.Layouts() {
 				ts = append(ts, target{r, v, l})

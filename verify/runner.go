@@ -84,14 +84,36 @@ type Result struct {
 	Toolchain string
 }
 
-// Runners lists every target's runner. A new target adds one line here.
-func Runners() []Runner {
+// Config is how the runners build and where they connect. The zero Config
+// suits a user's machine: C needs one working compiler and its warnings are
+// not errors, and PostgreSQL is looked for where SAWMILL_POSTGRES_DSN or
+// PostgreSQL's own defaults say (see PostgresDSN). A test suite asks for
+// more.
+type Config struct {
+	// PostgresDSN is the server the postgres runner uses; "" means
+	// PostgresDSN().
+	PostgresDSN string
+	// Werror builds C with -Werror besides the warning flags, so generated
+	// C that draws a warning fails.
+	Werror bool
+	// AllCompilers requires gcc, clang and g++ for C, so the matrix of C
+	// builds never shrinks unseen; without it any one of gcc, clang and cc
+	// does every build.
+	AllCompilers bool
+}
+
+// Runners lists every target's runner with the zero Config.
+func Runners() []Runner { return RunnersWith(Config{}) }
+
+// RunnersWith lists every target's runner, configured by c. A new target
+// adds one line here.
+func RunnersWith(c Config) []Runner {
 	return []Runner{
 		goRunner{},
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
-		sqlRunner{engine: "postgres"},
-		cRunner{},
+		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
+		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
 }
 

@@ -35,6 +35,7 @@ import (
 type sqlRunner struct {
 	engine  string // "sqlite", "duckdb" or "postgres"
 	maxNest int    // Options.MaxNest of every statement; 0: the dialect's default
+	dsn     string // postgres: the server (Config.PostgresDSN); "" for PostgresDSN()
 }
 
 // sqliteRunner is the SQLite runner; it also keeps snapshots of the emitted
@@ -183,19 +184,32 @@ func (r sqlRunner) open(ctx context.Context, file string) (*sqlDB, error) {
 	case "duckdb":
 		return openDuckDB(ctx)
 	case "postgres":
-		return openPostgres(ctx)
+		return openPostgres(ctx, r.dsn)
 	}
 	panic("BUG: unknown SQL engine " + r.engine)
 }
 
-// PostgresDSN is where the postgres runner connects: $SAWMILL_POSTGRES_DSN,
-// else a local server with trust authentication.
-func PostgresDSN() (dsn string, fromEnv bool) {
+// DefaultPostgresDSN leaves every connection setting to PostgreSQL's own
+// defaults as libpq defines them, which the pgx driver follows (the PGHOST,
+// PGPORT, PGUSER, PGDATABASE, PGPASSWORD variables; else the local server,
+// port 5432, the login user's name as user and database; "Connection
+// Strings" and "Environment Variables" in the PostgreSQL manual), with a
+// 5-second connect timeout.
+const DefaultPostgresDSN = "connect_timeout=5"
+
+// PostgresDSN is where the postgres runner connects when no Config names a
+// server: $SAWMILL_POSTGRES_DSN, else DefaultPostgresDSN. chosen reports
+// whether the variable named it: a server that does not answer at the
+// default leaves postgres not run, one that was chosen fails.
+func PostgresDSN() (dsn string, chosen bool) {
 	if s := os.Getenv("SAWMILL_POSTGRES_DSN"); s != "" {
 		return s, true
 	}
-	return "postgres://postgres@127.0.0.1:5432/test?sslmode=disable&connect_timeout=5", false
+	return DefaultPostgresDSN, false
 }
+
+// WithDSN points the postgres runner at the server dsn names.
+func (r sqlRunner) WithDSN(dsn string) Runner { r.dsn = dsn; return r }
 
 // redactDSN hides a password in a connection string for messages.
 func redactDSN(dsn string) string {
@@ -226,16 +240,19 @@ func pgHint(err error, dsn string) string {
 
 var pgSchemas atomic.Int64
 
-func openPostgres(ctx context.Context) (*sqlDB, error) {
-	dsn, fromEnv := PostgresDSN()
+func openPostgres(ctx context.Context, dsn string) (*sqlDB, error) {
+	chosen := dsn != ""
+	if !chosen {
+		dsn, chosen = PostgresDSN()
+	}
 	db, err := dbsql.Open("pgx", dsn)
 	if err != nil {
 		return nil, err
 	}
 	fail := func(err error) (*sqlDB, error) {
 		db.Close()
-		if !fromEnv {
-			return nil, fmt.Errorf("%w: no PostgreSQL server answers at the default %s (%v); set SAWMILL_POSTGRES_DSN", ErrSkip, dsn, err)
+		if !chosen {
+			return nil, fmt.Errorf("%w: no PostgreSQL server answers at PostgreSQL's defaults (%v); set SAWMILL_POSTGRES_DSN", ErrSkip, err)
 		}
 		return nil, fmt.Errorf("PostgreSQL at %s: %v%s", redactDSN(dsn), err, pgHint(err, dsn))
 	}

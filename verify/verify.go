@@ -37,7 +37,7 @@ type VerifyOptions struct {
 	// (run on every selected engine). Engines are chosen with Targets.
 	Dialects []string
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
-	// to the runner (SAWMILL_POSTGRES_DSN).
+	// to the runner (Config.PostgresDSN, else PostgresDSN()).
 	PostgresDSN string
 	// MaxNest is the CASE nesting the SQL runners' statements may use
 	// (sql.Options.MaxNest); 0 leaves each dialect's default.
@@ -284,7 +284,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 		}
 	}
 	for _, r := range sel {
-		r, restore := usePostgres(r, o.PostgresDSN)
+		r = usePostgres(r, o.PostgresDSN)
 		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
 			r = m.WithMaxNest(o.MaxNest)
 		}
@@ -306,7 +306,6 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 			var compileErr error
 			for _, layout := range layouts {
 				if err := ctx.Err(); err != nil {
-					restore()
 					return rep, err
 				}
 				ch := &Check{Target: r.Name(), Variant: variant, Layout: layout, Rows: rows.Len()}
@@ -337,7 +336,6 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 				}
 			}
 		}
-		restore()
 	}
 	slices.SortStableFunc(rep.Checks, func(a, b *Check) int { return targetRank(a.Target) - targetRank(b.Target) })
 	return rep, nil
@@ -687,25 +685,11 @@ type DSNRunner interface {
 	WithDSN(dsn string) Runner
 }
 
-// usePostgres points the postgres runner at dsn for the duration of its
-// checks: through WithDSN when the runner has it, else through the
-// SAWMILL_POSTGRES_DSN variable the runner reads. It returns the runner to
-// use and the undo.
-func usePostgres(r Runner, dsn string) (Runner, func()) {
-	if dsn == "" || r.Name() != "postgres" {
-		return r, func() {}
+// usePostgres points the postgres runner at dsn through WithDSN; "" leaves
+// the runner as it is.
+func usePostgres(r Runner, dsn string) Runner {
+	if d, ok := r.(DSNRunner); ok && dsn != "" && r.Name() == "postgres" {
+		return d.WithDSN(dsn)
 	}
-	if d, ok := r.(DSNRunner); ok {
-		return d.WithDSN(dsn), func() {}
-	}
-	const env = "SAWMILL_POSTGRES_DSN"
-	old, had := os.LookupEnv(env)
-	os.Setenv(env, dsn)
-	return r, func() {
-		if had {
-			os.Setenv(env, old)
-		} else {
-			os.Unsetenv(env)
-		}
-	}
+	return r
 }

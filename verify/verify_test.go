@@ -372,7 +372,7 @@ func TestVerifyTargetsCatchPlantedFaults(t *testing.T) {
 	}
 	f := verifyWine(t)
 	rows := verifyProbeRows(f)
-	for _, r := range Runners() {
+	for _, r := range testRunners() {
 		for _, variant := range r.Variants() {
 			layout := r.Layouts()[0]
 			for _, fl := range plantedFaults {
