@@ -35,6 +35,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 func main() {
@@ -226,10 +227,10 @@ func printSizes(modelPath string) error {
 		if err != nil {
 			return err
 		}
-		sizes, err := ctarget.MeasureARM(context.Background(), p, ctarget.Options{Float: fl})
-		if errors.Is(err, ctarget.ErrNoARM) {
+		sizes, err := verify.MeasureARM(context.Background(), p, ctarget.Options{Float: fl})
+		if errors.Is(err, verify.ErrNoARM) {
 			fmt.Println("arm-none-eabi-gcc is not on PATH: tables only")
-			sizes, err = ctarget.Sizes(p, ctarget.Options{Float: fl})
+			sizes, err = verify.CSizes(p, ctarget.Options{Float: fl})
 		}
 		if err != nil {
 			return err
@@ -242,7 +243,7 @@ func printSizes(modelPath string) error {
 				fmt.Printf("    %-20s %8d x %d = %9d\n", t.Name, t.Len, t.ElemBytes, t.Bytes())
 			}
 			if s.ARM != nil {
-				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB; .data+.bss %d)\n", ctarget.ARMCompiler, s.ARM.Flags,
+				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB; .data+.bss %d)\n", verify.ARMCompiler, s.ARM.Flags,
 					s.ARM.Text, s.ARM.Rodata, s.ARM.Text+s.ARM.Rodata, float64(s.ARM.Text+s.ARM.Rodata)/1024, s.ARM.Data)
 			}
 		}

@@ -10,6 +10,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // printCSizes reports, for C in double and in float, each layout's static
@@ -25,10 +26,10 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 			return fmt.Errorf("%s: %v", path, err)
 		}
 		o := ctarget.Options{Float: float}
-		sizes, err := ctarget.MeasureARM(ctx, p, o)
-		if errors.Is(err, ctarget.ErrNoARM) {
+		sizes, err := verify.MeasureARM(ctx, p, o)
+		if errors.Is(err, verify.ErrNoARM) {
 			noARM = true
-			sizes, err = ctarget.Sizes(p, o)
+			sizes, err = verify.CSizes(p, o)
 		}
 		if err != nil {
 			return err
@@ -47,7 +48,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	}
 	tw.Flush()
 	if noARM {
-		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", ctarget.ARMCompiler)
+		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", verify.ARMCompiler)
 	}
 	return nil
 }

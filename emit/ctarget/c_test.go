@@ -1,8 +1,6 @@
 package ctarget
 
 import (
-	"context"
-	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -255,22 +253,6 @@ func TestTableBytesPerNode(t *testing.T) {
 		files, err := Emit(p, Options{Layout: emit.Table, Float: fl})
 		require.NoError(t, err)
 		require.Contains(t, string(files[0].Data), "total "+strconv.Itoa(tab.TableBytes)+" bytes")
-	}
-}
-
-func TestMeasureARM(t *testing.T) {
-	p := compiled(t, pumpForest(t, forest.Float64), true)
-	sizes, err := MeasureARM(context.Background(), p, Options{Float: true})
-	if errors.Is(err, ErrNoARM) {
-		t.Skip("arm-none-eabi-gcc is not on PATH: no Cortex-M4 sizes")
-	}
-	require.NoError(t, err)
-	for _, s := range sizes {
-		require.NotNil(t, s.ARM, s.Layout)
-		t.Logf("%s: tables %d bytes; Cortex-M4 -Os object: .text %d, .rodata %d, .data+.bss %d", s.Layout, s.TableBytes, s.ARM.Text, s.ARM.Rodata, s.ARM.Data)
-		require.Greater(t, s.ARM.Text, 0)
-		require.GreaterOrEqual(t, s.ARM.Rodata, s.TableBytes, "the tables are in .rodata")
-		require.Zero(t, s.ARM.Data, "generated code has no writable data")
 	}
 }
 
