@@ -192,7 +192,7 @@ func TestTestRowsReachTheirLeaves(t *testing.T) {
 		if !p.Trees[0].Nodes[leaf].IsLeaf() {
 			continue
 		}
-		x, ok := rowReaching(&p.Trees[0], int32(leaf), 1)
+		x, ok := rowReaching(p, &p.Trees[0], int32(leaf))
 		if !ok {
 			t.Errorf("no row found for leaf %d", leaf)
 			continue
@@ -212,7 +212,7 @@ tree 0
   3 #3 leaf 2
   4 #4 leaf 3
 `)
-	x, ok := rowReaching(&q.Trees[0], 3, 1)
+	x, ok := rowReaching(q, &q.Trees[0], 3)
 	if !ok || !math.IsNaN(x[0]) {
 		t.Errorf("leaf reachable only by NaN: row %v, %v", x, ok)
 	}

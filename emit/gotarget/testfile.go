@@ -136,7 +136,7 @@ func (g *gen) testRows() []testRow {
 		for i := 0; i < len(leaves) && len(rows) < limit; i += step {
 			l := leaves[i]
 			t := &p.Trees[l.tree]
-			x, ok := rowReaching(t, l.node, len(p.Features))
+			x, ok := rowReaching(p, t, l.node)
 			if !ok {
 				continue
 			}
@@ -209,47 +209,13 @@ func (b *bound) pick() (float64, bool) {
 }
 
 // rowReaching builds a row that reaches leaf in t from the comparisons on
-// its path, and checks that it does.
-func rowReaching(t *compile.Tree, leaf int32, nf int) ([]float64, bool) {
-	parent := make([]int32, len(t.Nodes))
-	parent[0] = -1
-	for i := range t.Nodes {
-		if n := &t.Nodes[i]; !n.IsLeaf() {
-			parent[n.Left], parent[n.Right] = int32(i), int32(i)
-		}
-	}
-	bounds := map[int]*bound{}
-	for c := leaf; parent[c] >= 0; c = parent[c] {
-		n := &t.Nodes[parent[c]]
-		left := n.Left == c
-		b := bounds[n.Feature]
-		if b == nil {
-			b = &bound{lo: math.Inf(-1), hi: math.Inf(1), loClosed: true, hiClosed: true, nanOK: true}
-			bounds[n.Feature] = b
-		}
-		b.nanOK = b.nanOK && n.MissingLeft == left
-		th := n.Threshold
-		switch {
-		case left && n.Op == compile.LE: // x <= t
-			if th < b.hi || th == b.hi && b.hiClosed {
-				b.hi, b.hiClosed = th, true
-			}
-		case left: // x < t
-			if th <= b.hi {
-				b.hi, b.hiClosed = th, false
-			}
-		case n.Op == compile.LE: // x > t
-			if th >= b.lo {
-				b.lo, b.loClosed = th, false
-			}
-		default: // x >= t
-			if th > b.lo || th == b.lo && b.loClosed {
-				b.lo, b.loClosed = th, true
-			}
-		}
-	}
-	x := make([]float64, nf)
-	for f, b := range bounds { // each feature written once: order does not matter
+// its path (compile.LeafBox, comparisons only, as reached walks), and
+// checks that it does.
+func rowReaching(p *compile.Program, t *compile.Tree, leaf int32) ([]float64, bool) {
+	box := compile.LeafBox(p, t, leaf, true)
+	x := make([]float64, len(box))
+	for f, in := range box {
+		b := bound{lo: in.Lo, hi: in.Hi, loClosed: !in.LoOpen, hiClosed: !in.HiOpen, nanOK: in.NaN}
 		v, ok := b.pick()
 		if !ok {
 			return nil, false
