@@ -14,6 +14,8 @@ import (
 	"strconv"
 	"strings"
 	"unicode"
+
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // Version is the sawmill version emitted in every generated header. Golden
@@ -119,4 +121,35 @@ func CommentSafe(s string) string {
 	s = strings.ReplaceAll(s, "--", "- -")
 	s = strings.ReplaceAll(s, "??", "? ?") // C trigraphs
 	return s
+}
+
+// Target is what the command line and the verifier know of every target,
+// the same for each; the registry (emit/targets) lists one per target
+// package, and each package's Emit, Resolve and Options do the rest.
+type Target struct {
+	// Name is the --target value and the name in reports ("go", "c",
+	// "sql").
+	Name string
+	// Layouts are the layouts Emit writes besides Auto.
+	Layouts []string
+	// Float reports whether the target has a build for float32 inputs
+	// (C's float API), for which the program is compiled with
+	// SingleInputs.
+	Float bool
+	// Engines name the verifier's runners that run the target's code when
+	// they are not named like the target (SQL's sqlite, duckdb and
+	// postgres); nil means one runner named Name.
+	Engines []string
+}
+
+// CompileOptions are the compile.Options a build of t needs: SingleInputs
+// for its float32-input build (float set, and t.Float), none otherwise.
+func (t Target) CompileOptions(float bool) compile.Options {
+	return compile.Options{SingleInputs: t.Float && float}
+}
+
+// UnknownLayout is the error every target gives for a layout it does not
+// have.
+func UnknownLayout(target, layout string, layouts []string) error {
+	return fmt.Errorf("%s: layout %q is unknown\nhint: use %s", target, layout, strings.Join(append([]string{Auto}, layouts...), ", "))
 }

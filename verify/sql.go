@@ -86,9 +86,9 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 	// cut to 63 bytes), so names are checked under both.
 	check := o
 	check.Dialect = r.dialect("")
-	_, err := sqltarget.Layout(p, o) // Emit's checks, without writing the statement
+	_, _, err := sqltarget.Resolve(p, o) // Emit's checks, without writing the statement
 	if err == nil && check.Dialect != o.Dialect {
-		_, err = sqltarget.Layout(p, check)
+		_, _, err = sqltarget.Resolve(p, check)
 	}
 	if errors.Is(err, sqltarget.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
@@ -100,7 +100,7 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
-		if _, err := sqltarget.Layout(p, o); errors.Is(err, sqltarget.ErrNames) {
+		if _, _, err := sqltarget.Resolve(p, o); errors.Is(err, sqltarget.ErrNames) {
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
 		}
 	} else if err != nil {

@@ -306,7 +306,7 @@ func TestSQLDeepTree(t *testing.T) {
 	f, rows := deep(600)
 	p := sqlProgram(t, f)
 	for _, d := range sqltarget.Dialects {
-		if l, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: d}); l != emit.Table {
+		if l, _, _ := sqltarget.Resolve(p, sqltarget.Options{Dialect: d}); l != emit.Table {
 			t.Fatalf("%s: auto picked %s for a 600-deep tree", d, l)
 		}
 	}

@@ -140,7 +140,7 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if m := verify.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
 		return "", fmt.Errorf("sqlite3 shell %s: %s", layout, m)
 	}
-	lay, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: layout})
+	lay, _, _ := sqltarget.Resolve(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: layout})
 	n := float64(rows.Len())
 	return fmt.Sprintf("%-22s %12.0f %10s %10s %12d   (%s, CASE nested at most %d; %.0f rows/s of CPU time, user %.2fs)",
 		"sqlite3 shell "+layout, n/real, time.Duration(prep*float64(time.Second)).Round(time.Millisecond),

@@ -111,7 +111,7 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 			}
 			dialect, _ := sqltarget.ParseDialect(map[string]string{"sqlite": "sqlite", "duckdb": "duckdb", "postgres": "postgres"}[e])
 			files, _ := sqltarget.Emit(p, sqltarget.Options{Dialect: dialect, Layout: l, Keep: []string{"sawmill_row"}})
-			lay, _ := sqltarget.Layout(p, sqltarget.Options{Dialect: dialect, Layout: l})
+			lay, _, _ := sqltarget.Resolve(p, sqltarget.Options{Dialect: dialect, Layout: l})
 			extra := fmt.Sprintf("   (%s; end to end with load %v", lay, total.Round(time.Millisecond))
 			if goRun > 0 {
 				extra += fmt.Sprintf("; run %.1f× go, %.1f× interpreter", res.Run.Seconds()/goRun.Seconds(), res.Run.Seconds()/interp.Seconds())

@@ -412,7 +412,8 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, error) {
 	switch target {
 	case "go":
-		return gotarget.ChooseLayout(p), nil
+		l, _, err := gotarget.Resolve(p, gotarget.Options{Layout: fl.layout})
+		return l, err
 	case "c":
 		l, _, err := ctarget.Resolve(p, ctarget.Options{Layout: fl.layout})
 		return l, err
@@ -421,7 +422,8 @@ func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, er
 		if err != nil {
 			return "", err
 		}
-		return sqltarget.Layout(p, sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+		l, _, err := sqltarget.Resolve(p, sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+		return l, err
 	}
 	return "", fmt.Errorf("no layout for target %s", target)
 }

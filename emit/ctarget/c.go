@@ -60,6 +60,10 @@ type Options struct {
 	// Float makes the API and the arithmetic float instead of double. The
 	// program must have been compiled with compile.Options{SingleInputs: true}.
 	Float bool
+	// Comments is the comment knob (emit.NodeComments): 0 writes a comment
+	// per node for programs of at most emit.CommentNodes nodes, 1 always,
+	// -1 never.
+	Comments int
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -78,11 +82,14 @@ const AutoNestedTreeNodes = 20000
 // default bracket depth is 256.
 const MaxNesting = 100
 
-// commentNodes is the largest forest, in nodes, whose code carries a comment
-// with the model's node id at every node.
-const commentNodes = 5000
+// Name is the target's name on the command line and in reports.
+const Name = "c"
 
-// Resolve returns the layout Emit uses for p under o, and why.
+// Target is the C target's entry in the registry (emit/targets): its float
+// build takes float32 inputs.
+var Target = emit.Target{Name: Name, Layouts: Layouts(), Float: true}
+
+// Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
 	case emit.Nested, emit.Table:
@@ -100,7 +107,7 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 		}
 		return emit.Table, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes), nil
 	}
-	return "", "", fmt.Errorf("layout %q: unknown\nhint: use %s, %s or %s", o.Layout, emit.Auto, emit.Nested, emit.Table)
+	return "", "", emit.UnknownLayout(Name, o.Layout, Layouts())
 }
 
 // Emit returns NAME.h and NAME.c for p.
@@ -173,23 +180,8 @@ type Table struct {
 func (t Table) Bytes() int { return t.Len * t.ElemBytes }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
-	switch p.Compare {
-	case compile.Round32:
-		return nil, fmt.Errorf("BUG: ctarget: program still has round32 comparisons; the float32 pass must run first")
-	case compile.Single:
-		if !o.Float {
-			return nil, fmt.Errorf("program compiled for float32 inputs cannot be emitted as double C\nhint: compile without SingleInputs, or emit with the float option")
-		}
-	case compile.Double:
-		if o.Float {
-			return nil, fmt.Errorf("float C needs a program compiled for float32 inputs\nhint: compile with compile.Options{SingleInputs: true}")
-		}
-	}
-	if p.Combine != forest.Sum && p.Combine != forest.Average {
-		return nil, fmt.Errorf("BUG: ctarget: combine %q reached the emitter; the vote pass lowers it", p.Combine)
-	}
-	if len(p.Trees) == 0 || p.NumOutputs < 1 || len(p.BaseScore) != p.NumOutputs {
-		return nil, fmt.Errorf("BUG: ctarget: program with %d trees, %d outputs, %d base scores", len(p.Trees), p.NumOutputs, len(p.BaseScore))
+	if err := emit.CheckProgram(Target, p, o.Float); err != nil {
+		return nil, err
 	}
 	name := o.Name
 	if name == "" {
@@ -203,7 +195,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		return nil, err
 	}
 	g := &gen{p: p, o: o, name: name, upper: upperASCII(name), layout: layout, why: why, ft: "double", at: "double",
-		f32: p.Float32Accumulate(), comments: p.NumNodes() <= commentNodes}
+		f32: p.Float32Accumulate(), comments: emit.NodeComments(o.Comments, p)}
 	if o.Float {
 		g.ft = "float"
 	}

@@ -185,7 +185,7 @@ func TestEmitRejects(t *testing.T) {
 	_, err = Emit(compiled(t, f, false), Options{Float: true})
 	require.ErrorContains(t, err, "SingleInputs")
 	_, err = Emit(compiled(t, f, true), Options{})
-	require.ErrorContains(t, err, "float option")
+	require.ErrorContains(t, err, "or emit the float build")
 	_, err = Emit(compiled(t, f, false), Options{Layout: "sideways"})
 	require.ErrorContains(t, err, `layout "sideways"`)
 	_, err = Emit(compiled(t, f, false), Options{Name: "2fast"})

@@ -17,7 +17,7 @@ type Size struct {
 // BytesPerNode is TableBytes over the number of nodes, leaves included.
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
-// Layouts lists the layouts Emit can be asked for besides auto.
+// Layouts are the layouts Emit writes besides emit.Auto.
 func Layouts() []string { return []string{emit.Nested, emit.Table} }
 
 // Sizes reports the static tables of every layout of p (o.Layout is

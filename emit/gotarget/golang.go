@@ -53,9 +53,10 @@ type Options struct {
 	MaxTestRows int
 	// NoTest leaves out model_test.go.
 	NoTest bool
-	// CommentNodes is the largest forest, in nodes, that gets one comment
-	// per node; 0 means 5000, < 0 never.
-	CommentNodes int
+	// Comments is the comment knob (emit.NodeComments): 0 writes a comment
+	// per node for programs of at most emit.CommentNodes nodes, 1 always,
+	// -1 never.
+	Comments int
 	// Tables says how the table layout writes its arrays: TablesAuto
 	// (when empty), TablesLiteral or TablesBase64.
 	Tables string
@@ -88,7 +89,7 @@ const (
 
 // Emit turns p into the files of one Go package.
 func Emit(p *compile.Program, o Options) ([]emit.File, error) {
-	if err := checkProgram(p); err != nil {
+	if err := emit.CheckProgram(Target, p, false); err != nil {
 		return nil, err
 	}
 	pkg := o.Package
@@ -98,13 +99,9 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	if err := CheckPackageName(pkg); err != nil {
 		return nil, err
 	}
-	layout := o.Layout
-	switch layout {
-	case "", emit.Auto:
-		layout = ChooseLayout(p)
-	case emit.Nested, emit.Table, emit.Branchless:
-	default:
-		return nil, fmt.Errorf("unknown layout %q\nhint: use auto, nested, table or branchless", o.Layout)
+	layout, _, err := Resolve(p, o)
+	if err != nil {
+		return nil, err
 	}
 	for i, r := range o.Sample {
 		if len(r) != len(p.Features) {
@@ -140,16 +137,31 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	return files, nil
 }
 
-// ChooseLayout is the layout Auto picks for p: nested, the readable form,
-// for small forests of a few trees (up to MaxNestedTrees trees and
-// MaxNestedNodes nodes), where it is also the fastest; else the table,
-// which was the fastest layout on every larger forest measured, and builds
-// in seconds at any size and any depth.
-func ChooseLayout(p *compile.Program) string {
-	if len(p.Trees) <= MaxNestedTrees && p.NumNodes() <= MaxNestedNodes {
-		return emit.Nested
+// Name is the target's name on the command line and in reports.
+const Name = "go"
+
+// Layouts are the layouts Emit writes besides emit.Auto.
+func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Branchless} }
+
+// Target is the Go target's entry in the registry (emit/targets).
+var Target = emit.Target{Name: Name, Layouts: Layouts()}
+
+// Resolve returns the layout Emit writes p in under o, and why. Auto picks
+// nested, the readable form, for small forests of a few trees (up to
+// MaxNestedTrees trees and MaxNestedNodes nodes), where it is also the
+// fastest; else the table, which was the fastest layout on every larger
+// forest measured, and builds in seconds at any size and any depth.
+func Resolve(p *compile.Program, o Options) (layout, why string, err error) {
+	switch o.Layout {
+	case emit.Nested, emit.Table, emit.Branchless:
+		return o.Layout, "asked for", nil
+	case "", emit.Auto:
+		if len(p.Trees) <= MaxNestedTrees && p.NumNodes() <= MaxNestedNodes {
+			return emit.Nested, fmt.Sprintf("%d trees and %d nodes, at most %d and %d: nested code is readable and fastest", len(p.Trees), p.NumNodes(), MaxNestedTrees, MaxNestedNodes), nil
+		}
+		return emit.Table, fmt.Sprintf("%d trees and %d nodes, more than %d or %d: the table walk is fastest and builds in seconds", len(p.Trees), p.NumNodes(), MaxNestedTrees, MaxNestedNodes), nil
 	}
-	return emit.Table
+	return "", "", emit.UnknownLayout(Name, o.Layout, Layouts())
 }
 
 // CheckPackageName reports whether name can name the emitted package.
@@ -159,28 +171,6 @@ func CheckPackageName(name string) error {
 		return fmt.Errorf("package name %q is not a Go identifier\nhint: use letters, digits and underscores, not starting with a digit", name)
 	case name == "main" || name == "_":
 		return fmt.Errorf("package name %q cannot name a library package\nhint: choose another name, such as model", name)
-	}
-	return nil
-}
-
-func checkProgram(p *compile.Program) error {
-	switch p.Compare {
-	case compile.Double:
-	case compile.Round32:
-		return fmt.Errorf("BUG: golang.Emit: program still compares round32(x); the float32 pass did not run")
-	case compile.Single:
-		return fmt.Errorf("the Go target scores float64 inputs, but the program was compiled for float32 inputs\nhint: compile without SingleInputs")
-	default:
-		return fmt.Errorf("BUG: golang.Emit: unknown comparison %v", p.Compare)
-	}
-	if p.Combine != forest.Sum && p.Combine != forest.Average {
-		return fmt.Errorf("BUG: golang.Emit: combine %q reached the emitter; the vote pass did not run", p.Combine)
-	}
-	if len(p.Trees) == 0 || len(p.Features) == 0 || p.NumOutputs < 1 {
-		return fmt.Errorf("BUG: golang.Emit: program has %d trees, %d features, %d outputs", len(p.Trees), len(p.Features), p.NumOutputs)
-	}
-	if err := compile.Check(p); err != nil {
-		return fmt.Errorf("BUG: golang.Emit: %v", err)
 	}
 	return nil
 }
@@ -205,11 +195,7 @@ type gen struct {
 }
 
 func newGen(p *compile.Program, o Options, pkg, layout string) *gen {
-	limit := o.CommentNodes
-	if limit == 0 {
-		limit = 5000
-	}
-	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: p.NumNodes() <= limit,
+	return &gen{p: p, o: o, pkg: pkg, layout: layout, k: p.NumOutputs, comments: emit.NodeComments(o.Comments, p),
 		v2: usesV2(p), zero: zeroMissing(p), perOut: perOutput(p)}
 }
 

@@ -149,20 +149,20 @@ func chainProgram(depth int) *compile.Program {
 }
 
 func TestChooseLayout(t *testing.T) {
-	if l := ChooseLayout(program(t, small)); l != emit.Nested {
+	if l := layoutOf(program(t, small)); l != emit.Nested {
 		t.Errorf("one small tree: %s, want nested", l)
 	}
-	if l := ChooseLayout(chainProgram(100)); l != emit.Nested {
+	if l := layoutOf(chainProgram(100)); l != emit.Nested {
 		t.Errorf("100-deep chain: %s, want nested", l)
 	}
-	if l := ChooseLayout(chainProgram(100_000)); l != emit.Table {
+	if l := layoutOf(chainProgram(100_000)); l != emit.Table {
 		t.Errorf("100,000-deep chain: %s, want table", l)
 	}
 	p := chainProgram(10)
 	for range 4 {
 		p.Trees = append(p.Trees, p.Trees[0])
 	}
-	if l := ChooseLayout(p); l != emit.Table {
+	if l := layoutOf(p); l != emit.Table {
 		t.Errorf("five trees: %s, want table", l)
 	}
 }
@@ -227,4 +227,13 @@ func TestTableNarrowTypes(t *testing.T) {
 	if d.farType != "uint32" {
 		t.Errorf("far offsets up to 80,000: %s, want uint32", d.farType)
 	}
+}
+
+// layoutOf is the layout auto picks for p.
+func layoutOf(p *compile.Program) string {
+	l, _, err := Resolve(p, Options{})
+	if err != nil {
+		panic(err)
+	}
+	return l
 }

@@ -109,7 +109,7 @@ func emitMillion(t *testing.T, dir string) {
 			t.Fatal(err)
 		}
 	}
-	if err := os.WriteFile(filepath.Join(dir, "layout"), []byte(ChooseLayout(p)), 0o644); err != nil {
+	if err := os.WriteFile(filepath.Join(dir, "layout"), []byte(layoutOf(p)), 0o644); err != nil {
 		t.Fatal(err)
 	}
 }

@@ -61,8 +61,9 @@ type Options struct {
 	// TreesPerStage is how many trees one sub-query adds to the running
 	// sums; 0 means 100.
 	TreesPerStage int
-	// Comments forces node-id comments on (1) or off (-1); 0 writes them
-	// for programs of at most 5,000 nodes.
+	// Comments is the comment knob (emit.NodeComments): 0 writes a comment
+	// per node for programs of at most emit.CommentNodes nodes, 1 always,
+	// -1 never.
 	Comments int
 	// Columns, when set, names the table column of each feature (one entry
 	// per feature, in model order) instead of the feature's own name: for
@@ -151,13 +152,24 @@ func (g *gen) checkSize() error {
 	return nil
 }
 
-// Layout returns the layout Emit uses for p under o (resolving Auto).
-func Layout(p *compile.Program, o Options) (string, error) {
+// Name is the target's name on the command line and in reports.
+const Name = "sql"
+
+// Layouts are the layouts Emit writes besides emit.Auto.
+func Layouts() []string { return []string{emit.Nested, emit.Table} }
+
+// Target is the SQL target's entry in the registry (emit/targets): its code
+// runs in the engines of the dialects named like them.
+var Target = emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres)}}
+
+// Resolve returns the layout Emit writes p in under o, and why. It makes
+// every check Emit makes but writes no statement.
+func Resolve(p *compile.Program, o Options) (layout, why string, err error) {
 	g, err := newGen(p, o)
 	if err != nil {
-		return "", err
+		return "", "", err
 	}
-	return g.layout, nil
+	return g.layout, g.why, nil
 }
 
 type gen struct {
@@ -165,8 +177,9 @@ type gen struct {
 	d        Dialect
 	o        Options
 	layout   string
-	nest     int // CASE nesting budget
-	chunk    int // trees per accumulation stage
+	why      string // why the layout (Resolve)
+	nest     int    // CASE nesting budget
+	chunk    int    // trees per accumulation stage
 	comments bool
 	// unfactor writes SQLite thresholds as coalesce(t, x); see unfactorAbove.
 	unfactor bool
@@ -191,15 +204,8 @@ type gen struct {
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
-	switch p.Compare {
-	case compile.Double:
-	case compile.Single:
-		return nil, fmt.Errorf("sql: the program was compiled for float32 inputs (SingleInputs), but SQL engines compare doubles\nhint: compile without SingleInputs")
-	default:
-		return nil, fmt.Errorf("BUG: sql.Emit: program comparison is %v; the float32 pass must run first", p.Compare)
-	}
-	if p.Combine != forest.Sum && p.Combine != forest.Average {
-		return nil, fmt.Errorf("BUG: sql.Emit: combine %q reached an emitter", p.Combine)
+	if err := emit.CheckProgram(Target, p, false); err != nil {
+		return nil, err
 	}
 	g := &gen{p: p, o: o, d: o.Dialect}
 	if g.d == "" {
@@ -225,12 +231,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	if p.Float32Accumulate() && !g.native32() {
 		g.chunk = 1 // one float32 addition a stage: see sumStart
 	}
-	switch o.Comments {
-	case 0:
-		g.comments = p.NumNodes() <= 5000
-	default:
-		g.comments = o.Comments > 0
-	}
+	g.comments = emit.NodeComments(o.Comments, p)
 	if err := g.checkNames(); err != nil {
 		return nil, err
 	}
@@ -280,7 +281,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	}
 	switch o.Layout {
 	case "", emit.Auto:
-		g.layout = g.auto(maxDepth)
+		g.layout, g.why = g.auto(maxDepth)
 	case emit.Nested:
 		if maxDepth > g.nest {
 			for ti := range p.Trees {
@@ -289,11 +290,11 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 				}
 			}
 		}
-		g.layout = emit.Nested
+		g.layout, g.why = emit.Nested, "asked for"
 	case emit.Table:
-		g.layout = emit.Table
+		g.layout, g.why = emit.Table, "asked for"
 	default:
-		return nil, fmt.Errorf("sql: unknown layout %q\nhint: use auto, nested or table", o.Layout)
+		return nil, emit.UnknownLayout(Name, o.Layout, Layouts())
 	}
 	return g, nil
 }
@@ -306,11 +307,16 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 // trees deeper than the nesting budget, and for models of more than two
 // outputs (where nested repeats each tree once per output); nested
 // otherwise.
-func (g *gen) auto(maxDepth int) string {
-	if g.d == DuckDB || maxDepth > g.nest || g.p.NumOutputs > 2 {
-		return emit.Table
+func (g *gen) auto(maxDepth int) (layout, why string) {
+	switch {
+	case g.d == DuckDB:
+		return emit.Table, "DuckDB's vectorised CASE pays for every nested branch"
+	case maxDepth > g.nest:
+		return emit.Table, fmt.Sprintf("a tree %d splits deep, and %s nests CASE at most %d deep", maxDepth, g.d, g.nest)
+	case g.p.NumOutputs > 2:
+		return emit.Table, fmt.Sprintf("%d outputs, for which nested code repeats each tree once per output", g.p.NumOutputs)
 	}
-	return emit.Nested
+	return emit.Nested, "nested CASE is readable and fits the dialect's nesting"
 }
 
 // checkNames validates every name that reaches the statement and the
