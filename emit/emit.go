@@ -140,6 +140,24 @@ type Target struct {
 	// they are not named like the target (SQL's sqlite, duckdb and
 	// postgres); nil means one runner named Name.
 	Engines []string
+	// Emit is the package's Emit with the settings every target
+	// understands; a caller that needs a target's own options (Go's sample
+	// rows, SQL's dialect) calls the package.
+	Emit func(p *compile.Program, s Settings) ([]File, error)
+}
+
+// Settings are the options every target understands, for callers that
+// treat targets alike.
+type Settings struct {
+	// Layout is Auto ("" too) or one of the target's Layouts.
+	Layout string
+	// Name names what is emitted: Go's package, C's NAME.h, NAME.c and
+	// NAME_ prefix, SQL's NAME.sql; "" leaves the target's default.
+	Name string
+	// Float asks for the float32-input build of a target that has one.
+	Float bool
+	// Comments is the comment knob (NodeComments).
+	Comments int
 }
 
 // CompileOptions are the compile.Options a build of t needs: SingleInputs

@@ -106,15 +106,15 @@ func (r cRunner) warnings() []string {
 // calls of the process.
 var cJobs = make(chan struct{}, runtime.NumCPU())
 
-func (cRunner) Name() string { return "c" }
+func (cRunner) Name() string { return ctarget.Name }
 
-func (cRunner) Layouts() []string { return []string{emit.Nested, emit.Table} }
+func (cRunner) Layouts() []string { return ctarget.Layouts() }
 
 // Variants: double (bit-exact) and float (float API and arithmetic).
 func (cRunner) Variants() []string { return []string{"double", "float"} }
 
 func (cRunner) CompileOptions(variant string) compile.Options {
-	return compile.Options{SingleInputs: variant == "float"}
+	return ctarget.Target().CompileOptions(variant == "float")
 }
 
 // Float32Inputs: the float variant takes float inputs, so its reference is

@@ -33,9 +33,9 @@ type goRunner struct {
 	NoChecks bool
 }
 
-func (goRunner) Name() string { return "go" }
+func (goRunner) Name() string { return gotarget.Name }
 
-func (goRunner) Layouts() []string { return []string{emit.Nested, emit.Table, emit.Branchless} }
+func (goRunner) Layouts() []string { return gotarget.Layouts() }
 
 func (goRunner) Variants() []string { return []string{""} }
 

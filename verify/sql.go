@@ -52,7 +52,7 @@ func isShell(variant string) bool { return variant == "shell" || variant == "ans
 
 func (r sqlRunner) Name() string { return r.engine }
 
-func (sqlRunner) Layouts() []string { return []string{emit.Nested, emit.Table} }
+func (sqlRunner) Layouts() []string { return sqltarget.Layouts() }
 
 func (sqlRunner) Variants() []string { return []string{"", "ansi"} }
 

@@ -12,19 +12,22 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
+	"github.com/sawmill-dev/sawmill/emit/targets"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
 // DefaultMaxRows caps the rows Verify generates when none are given.
 const DefaultMaxRows = 20000
 
-// Target groups: "sql" stands for every SQL engine runner.
-var sqlEngines = []string{"sqlite", "duckdb", "postgres"}
+// A target with Engines (SQL) stands for every runner it lists; the engines'
+// variants are dialects, chosen with VerifyOptions.Dialects.
 
 // VerifyOptions selects what Verify checks. Empty lists mean "all".
 type VerifyOptions struct {
-	// Targets are "go", "c", "sql" (every SQL engine) or runner names
-	// ("sqlite", "duckdb", "postgres").
+	// Targets are target names (targets.Names: "go", "c", "sql", which
+	// stands for every SQL engine) or runner names ("sqlite", "duckdb",
+	// "postgres").
 	Targets []string
 	// Layouts limits the layouts to these (each runner's Layouts()
 	// otherwise); a layout a runner does not have is left out for it.
@@ -289,7 +292,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 			r = m.WithMaxNest(o.MaxNest)
 		}
 		variants, layouts := runnerVariants(r, o.Variants), selectNames(r.Layouts(), o.Layouts)
-		if isSQLEngine(r.Name()) {
+		if isEngine(r.Name()) {
 			variants = sqlVariants(r, o)
 		}
 		if len(variants) == 0 || len(layouts) == 0 {
@@ -341,9 +344,10 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	return rep, nil
 }
 
-// targetRank orders checks in a report: go, c, the SQL engines, then others.
+// targetRank orders checks in a report: by the registry's order of runners
+// (go, c, the SQL engines), then others.
 func targetRank(name string) int {
-	if i := slices.Index(append([]string{"go", "c"}, sqlEngines...), name); i >= 0 {
+	if i := slices.Index(targets.Runners(), name); i >= 0 {
 		return i
 	}
 	return 100
@@ -556,9 +560,9 @@ func probeKey(x []float64) string {
 // selectRunners applies the target and dialect choices. missing lists
 // targets asked for by name that no registered runner serves.
 func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []string, err error) {
-	known := map[string]bool{"go": true, "c": true, "sql": true}
-	for _, e := range sqlEngines {
-		known[e] = true
+	known := map[string]bool{}
+	for _, n := range append(targets.Names(), targets.Runners()...) {
+		known[n] = true
 	}
 	for _, r := range all {
 		known[r.Name()] = true
@@ -579,7 +583,7 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 		}
 		want[t] = true
 	}
-	dialects := append(slices.Clone(sqlEngines), AnsiDialect)
+	dialects := append(slices.Clone(sqltarget.Target().Engines), AnsiDialect)
 	for _, d := range o.Dialects {
 		if !hasFold(dialects, d) {
 			return nil, nil, fmt.Errorf("dialect %q is unknown: use one of %s", d, strings.Join(dialects, ", "))
@@ -588,8 +592,9 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 	served := map[string]bool{}
 	for _, r := range all {
 		n := r.Name()
-		ok := len(want) == 0 || want[n] || want["sql"] && isSQLEngine(n)
-		if ok && isSQLEngine(n) && len(sqlVariants(r, o)) == 0 {
+		t, _ := targets.Runs(n)
+		ok := len(want) == 0 || want[n] || want[t.Name]
+		if ok && isEngine(n) && len(sqlVariants(r, o)) == 0 {
 			ok = false // none of the dialects asked for
 		}
 		if ok {
@@ -601,17 +606,18 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 	// target by leaving it out.
 	ask := o.Targets
 	if len(ask) == 0 {
-		ask = []string{"go", "c", "sql"}
+		ask = targets.Names()
 	}
 	for _, t := range ask {
 		t = strings.ToLower(strings.TrimSpace(t))
-		if t != "sql" {
+		tg, _ := targets.Find(t)
+		if tg.Engines == nil {
 			if !served[t] && !slices.Contains(missing, t) {
 				missing = append(missing, t)
 			}
 			continue
 		}
-		for _, e := range sqlEngines {
+		for _, e := range tg.Engines {
 			// An engine is expected when no dialect is named, or when its
 			// own dialect or the portable one is.
 			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect)
@@ -637,7 +643,12 @@ func runnerVariants(r Runner, only []string) []string {
 // runner runs beside its own dialect (variant "").
 const AnsiDialect = "ansi"
 
-func isSQLEngine(name string) bool { return slices.Contains(sqlEngines, name) }
+// isEngine reports whether the runner name is one of a target's Engines
+// (SQL's), whose variants are dialects.
+func isEngine(name string) bool {
+	t, ok := targets.Runs(name)
+	return ok && slices.Contains(t.Engines, name)
+}
 
 // sqlVariants are the variants of an SQL engine runner whose dialect is
 // asked for: variant "" is the engine's own dialect, named like the engine.

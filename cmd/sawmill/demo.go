@@ -21,6 +21,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
+	"github.com/sawmill-dev/sawmill/emit/targets"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
 	"github.com/sawmill-dev/sawmill/verify"
@@ -292,13 +293,14 @@ func demoVerify(f *forest.Forest, rows *forest.Rows, o verify.VerifyOptions, wro
 	for _, w := range wrote {
 		v := o
 		v.Layouts = []string{w.layout}
+		tg, _ := targets.Find(w.target)
 		switch {
-		case w.target == "c":
-			v.Targets, v.Variants = []string{"c"}, []string{"double"}
-		case w.target == "sql" && w.dialect == verify.AnsiDialect:
-			v.Targets, v.Dialects = []string{"sql"}, []string{verify.AnsiDialect}
-		case w.target == "sql":
+		case tg.Engines != nil && w.dialect == verify.AnsiDialect:
+			v.Targets, v.Dialects = []string{tg.Name}, []string{verify.AnsiDialect}
+		case tg.Engines != nil:
 			v.Targets, v.Dialects = []string{w.dialect}, []string{w.dialect}
+		case tg.Float:
+			v.Targets, v.Variants = []string{tg.Name}, []string{"double"} // the float build was not written
 		default:
 			v.Targets = []string{w.target}
 		}
@@ -350,7 +352,7 @@ type demoWrote struct {
 func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []demoWrote, error) {
 	var said []string
 	var wrote []demoWrote
-	for _, name := range []string{"go", "c", "sql"} {
+	for _, name := range targets.Names() {
 		t, ok := findTarget(name)
 		if !ok {
 			said = append(said, name+": not in this build, skipped")
@@ -361,9 +363,9 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 			table: demoSQLTable, keep: []string{"pump_id", "timestamp"}, dialect: "ansi"}
 		dir := name
 		switch name {
-		case "go":
-			dir = "go/" + demoGoPackage
-		case "sql":
+		case gotarget.Name:
+			dir = name + "/" + demoGoPackage
+		case sqltarget.Name:
 			for _, d := range []string{"ansi", "sqlite", "postgres", "duckdb"} {
 				v := base
 				v.dialect = d
@@ -388,13 +390,13 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 				return nil, nil, fmt.Errorf("BUG: demo: layout of %s: %v", name, err)
 			}
 			w := demoWrote{target: name, layout: layout}
-			if name == "sql" {
+			if name == sqltarget.Name {
 				w.dialect = fl.dialect
 			}
 			wrote = append(wrote, w)
 			for _, file := range out {
 				fname := file.Name
-				if name == "sql" {
+				if name == sqltarget.Name {
 					fname = demoCName + "." + fl.dialect + filepath.Ext(file.Name)
 				}
 				if err := put(dir+"/"+fname, file.Data); err != nil {
@@ -411,13 +413,13 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 // demoLayout is the layout the auto layout chose for a target's files.
 func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, error) {
 	switch target {
-	case "go":
+	case gotarget.Name:
 		l, _, err := gotarget.Resolve(p, gotarget.Options{Layout: fl.layout})
 		return l, err
-	case "c":
+	case ctarget.Name:
 		l, _, err := ctarget.Resolve(p, ctarget.Options{Layout: fl.layout})
 		return l, err
-	case "sql":
+	case sqltarget.Name:
 		d, err := sqltarget.ParseDialect(fl.dialect)
 		if err != nil {
 			return "", err

@@ -21,7 +21,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tCortex-M4 .text\t.rodata\tflash\t")
 	noARM := false
 	for _, float := range []bool{false, true} {
-		p, _, err := compile.Compile(f, compile.Options{SingleInputs: float})
+		p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(float))
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}

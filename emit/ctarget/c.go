@@ -87,7 +87,11 @@ const Name = "c"
 
 // Target is the C target's entry in the registry (emit/targets): its float
 // build takes float32 inputs.
-var Target = emit.Target{Name: Name, Layouts: Layouts(), Float: true}
+func Target() emit.Target {
+	return emit.Target{Name: Name, Layouts: Layouts(), Float: true, Emit: func(p *compile.Program, s emit.Settings) ([]emit.File, error) {
+		return Emit(p, Options{Name: s.Name, Layout: s.Layout, Float: s.Float, Comments: s.Comments})
+	}}
+}
 
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
@@ -180,7 +184,7 @@ type Table struct {
 func (t Table) Bytes() int { return t.Len * t.ElemBytes }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
-	if err := emit.CheckProgram(Target, p, o.Float); err != nil {
+	if err := emit.CheckProgram(Target(), p, o.Float); err != nil {
 		return nil, err
 	}
 	name := o.Name

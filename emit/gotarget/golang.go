@@ -89,7 +89,7 @@ const (
 
 // Emit turns p into the files of one Go package.
 func Emit(p *compile.Program, o Options) ([]emit.File, error) {
-	if err := emit.CheckProgram(Target, p, false); err != nil {
+	if err := emit.CheckProgram(Target(), p, false); err != nil {
 		return nil, err
 	}
 	pkg := o.Package
@@ -144,7 +144,11 @@ const Name = "go"
 func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Branchless} }
 
 // Target is the Go target's entry in the registry (emit/targets).
-var Target = emit.Target{Name: Name, Layouts: Layouts()}
+func Target() emit.Target {
+	return emit.Target{Name: Name, Layouts: Layouts(), Emit: func(p *compile.Program, s emit.Settings) ([]emit.File, error) {
+		return Emit(p, Options{Package: s.Name, Layout: s.Layout, Comments: s.Comments})
+	}}
+}
 
 // Resolve returns the layout Emit writes p in under o, and why. Auto picks
 // nested, the readable form, for small forests of a few trees (up to

@@ -160,7 +160,24 @@ func Layouts() []string { return []string{emit.Nested, emit.Table} }
 
 // Target is the SQL target's entry in the registry (emit/targets): its code
 // runs in the engines of the dialects named like them.
-var Target = emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres)}}
+func Target() emit.Target {
+	return emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres)},
+		Emit: func(p *compile.Program, s emit.Settings) ([]emit.File, error) {
+			files, err := Emit(p, Options{Layout: s.Layout, Comments: s.Comments})
+			return Named(files, s.Name), err
+		}}
+}
+
+// Named names the statement's file NAME.sql; with name "" the file keeps
+// FileName.
+func Named(files []emit.File, name string) []emit.File {
+	for i := range files {
+		if name != "" && files[i].Name == FileName {
+			files[i].Name = name + ".sql"
+		}
+	}
+	return files
+}
 
 // Resolve returns the layout Emit writes p in under o, and why. It makes
 // every check Emit makes but writes no statement.
@@ -204,7 +221,7 @@ type gen struct {
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
-	if err := emit.CheckProgram(Target, p, false); err != nil {
+	if err := emit.CheckProgram(Target(), p, false); err != nil {
 		return nil, err
 	}
 	g := &gen{p: p, o: o, d: o.Dialect}
