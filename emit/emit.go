@@ -18,8 +18,9 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 )
 
-// Version is the sawmill version emitted in every generated header. Golden
-// tests pin it (SetVersion) so a release does not rewrite every golden file.
+// Version is the sawmill version emitted in every generated header. Tests
+// that compare generated files set it to "test" (golden/golden_test.go's
+// TestMain), so a release does not rewrite every golden file.
 var Version = "0.1.0"
 
 // File is one generated file: a name relative to the output folder, and its

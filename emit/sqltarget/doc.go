@@ -23,7 +23,7 @@
 // run the ANSI text on all three engines too).
 //
 // Identifiers are always delimited ("" doubles a double quote) and labels are
-// character string literals (” doubles a single quote); nothing else is
+// character string literals ('' doubles a single quote); nothing else is
 // special inside either in any dialect, so names such as DROP TABLE t;--,
 // quotes and backslashes stay names. PostgreSQL reads backslashes plainly only
 // with standard_conforming_strings on (its default since 9.1); the header of
