@@ -22,8 +22,9 @@
 // and ansi (ISO/IEC 9075:2016 with no engine extension: the golden runners
 // run the ANSI text on all three engines too).
 //
-// Identifiers are always delimited ("" doubles a double quote) and labels are
-// character string literals ('' doubles a single quote); nothing else is
+// Identifiers are always delimited (a double quote inside is written twice)
+// and labels are character string literals (a single quote inside is
+// written twice); nothing else is
 // special inside either in any dialect, so names such as DROP TABLE t;--,
 // quotes and backslashes stay names. PostgreSQL reads backslashes plainly only
 // with standard_conforming_strings on (its default since 9.1); the header of
