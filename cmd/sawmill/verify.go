@@ -92,7 +92,7 @@ fail the run, unless --require is given.`,
 	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless); default each target's own")
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
 	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres; default all")
-	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN)")
+	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN, else PostgreSQL's own PGHOST, PGUSER, ... defaults)")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
 	f.IntVar(&fl.maxRows, "max-rows", verify.DefaultMaxRows, "most rows to generate (0: no cap)")
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
