@@ -29,7 +29,7 @@ import (
 //	SAWMILL_DIFF_ROWS=R     rows per model (default 48)
 //	SAWMILL_DIFF_BATCH=B    models sharing one build (default diffDefaultBatch);
 //	                        1 builds and scores every model alone
-//	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default testdata)
+//	SAWMILL_DIFF_KEEP=dir   where shrunk failing cases go (default ../golden/testdata)
 //	SAWMILL_DIFF_SHRINK=D   time spent shrinking one failure (default 3m)
 //
 // A build costs far more than scoring a small model, so runners that are
