@@ -23,7 +23,12 @@ func LeafRows(f *forest.Forest, limit int) [][]float64 {
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
 		src := &f.Trees[t.Source]
-		walkBoxes(t.Nodes, len(p.Features), rulesOf(p), func(leaf int, box []span) bool {
+		st := make([]span, len(p.Features))
+		for j := range st {
+			st[j] = fullSpan()
+		}
+		both := func(*Node) (bool, bool) { return true, true }
+		walkPaths(t.Nodes, st, rulesOf(p), both, func(leaf int32, box []span) bool {
 			x := make([]float64, len(box))
 			for j, s := range box {
 				x[j] = s.pick(f32)
@@ -79,50 +84,6 @@ func (s span) pick(f32 bool) float64 {
 		}
 	}
 	return math.NaN()
-}
-
-// walkBoxes visits every leaf reachable under the path facts with the box
-// of spans, one per feature, valid during the call. visit returns false to
-// stop. The walk is depth-first with an undo log, no recursion.
-func walkBoxes(nodes []Node, nf int, r rules, visit func(leaf int, box []span) bool) {
-	st := make([]span, nf)
-	for i := range st {
-		st[i] = fullSpan()
-	}
-	type undo struct {
-		f   int
-		old span
-	}
-	type item struct {
-		node, from int32
-		mark       int
-		left       bool
-	}
-	var log []undo
-	stack := []item{{node: 0, from: -1}}
-	for len(stack) > 0 {
-		it := stack[len(stack)-1]
-		stack = stack[:len(stack)-1]
-		for len(log) > it.mark {
-			u := log[len(log)-1]
-			st[u.f] = u.old
-			log = log[:len(log)-1]
-		}
-		if it.from >= 0 {
-			n := &nodes[it.from]
-			log = append(log, undo{n.Feature, st[n.Feature]})
-			r.narrow(&st[n.Feature], n, it.left)
-		}
-		n := &nodes[it.node]
-		if n.IsLeaf() {
-			if !visit(int(it.node), st) {
-				return
-			}
-			continue
-		}
-		mark := len(log)
-		stack = append(stack, item{n.Right, it.node, mark, false}, item{n.Left, it.node, mark, true})
-	}
 }
 
 // ThresholdRows returns, for every reachable split of f, rows that put its

@@ -28,8 +28,7 @@ import (
 // and one that is not empty holds hi itself, so every split left can go
 // both ways.
 //
-// The walk is one depth-first traversal with an undo log, O(nodes) in time
-// and O(features + depth) in memory, with no recursion.
+// The walk is one depth-first traversal (walkPaths).
 func prune(p *Program) {
 	nf := len(p.Features)
 	st := make([]span, nf)
@@ -119,6 +118,10 @@ type rules struct {
 	hasBand        bool
 	bandLo, bandHi float64
 	zeroLo, zeroHi float64
+	// comparisons: every split is its comparison with its threshold and its
+	// NaN routing alone (set splits and the bands are not looked at), the
+	// facts of a reader that walks trees so (see LeafBox).
+	comparisons bool
 }
 
 func rulesOf(p *Program) rules {
@@ -132,6 +135,9 @@ func rulesOf(p *Program) rules {
 // in the zero band, as one hull (possibly empty).
 func (r rules) bands(s span, n *Node) span {
 	out := span{lo: math.Inf(1), hi: math.Inf(-1)}
+	if r.comparisons {
+		return out
+	}
 	if r.hasBand && s.meets(r.bandLo, r.bandHi) {
 		out = out.hull(s.clip(r.bandLo, false, r.bandHi, false))
 	}
@@ -203,10 +209,11 @@ func (r rules) allMembers(s span, n *Node) bool {
 // narrow applies to s the fact that the value went left (or right) at n.
 func (r rules) narrow(s *span, n *Node, left bool) {
 	var num span // the non-missing values of s that go this way
+	set := n.IsSetSplit() && !r.comparisons
 	switch {
-	case n.IsSetSplit() && (r.catRound32 || !left):
+	case set && (r.catRound32 || !left):
 		num = *s
-	case n.IsSetSplit():
+	case set:
 		num = r.members(*s, n)
 	case left:
 		open := n.Op == LT
@@ -236,54 +243,17 @@ func effective(t float64, round32 bool) float64 {
 }
 
 func pruneTree(nodes []Node, st []span, r rules) {
-	type undo struct {
-		f   int
-		old span
-	}
-	type visit struct {
-		node int32
-		mark int   // undo log length to return to before applying the fact
-		f    int   // feature of the fact, -1 for the root
-		from int32 // the split the fact comes from
-		left bool
-	}
-	var log []undo
-	stack := []visit{{node: 0, f: -1}}
-	for len(stack) > 0 {
-		v := stack[len(stack)-1]
-		stack = stack[:len(stack)-1]
-		for len(log) > v.mark {
-			u := log[len(log)-1]
-			st[u.f] = u.old
-			log = log[:len(log)-1]
+	walkPaths(nodes, st, r, func(n *Node) (bool, bool) {
+		canLeft, canRight := r.routes(st[n.Feature], n)
+		switch {
+		case canLeft && canRight:
+			return true, true
+		case canRight:
+			n.decided = goRight
+			return false, true
+		default: // only left, or (on a path no input takes) neither
+			n.decided = goLeft
+			return true, false
 		}
-		if v.f >= 0 {
-			log = append(log, undo{v.f, st[v.f]})
-			r.narrow(&st[v.f], &nodes[v.from], v.left)
-		}
-		i := v.node
-		for {
-			n := &nodes[i]
-			if n.IsLeaf() {
-				break
-			}
-			canLeft, canRight := r.routes(st[n.Feature], n)
-			switch {
-			case canLeft && canRight:
-				mark := len(log)
-				stack = append(stack,
-					visit{node: n.Right, mark: mark, f: n.Feature, from: i, left: false},
-					visit{node: n.Left, mark: mark, f: n.Feature, from: i, left: true})
-			case canRight:
-				n.decided = goRight
-				i = n.Right
-				continue
-			default: // only left, or (on a path no input takes) neither
-				n.decided = goLeft
-				i = n.Left
-				continue
-			}
-			break
-		}
-	}
+	}, func(int32, []span) bool { return true })
 }

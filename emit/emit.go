@@ -1,7 +1,7 @@
 // Package emit holds what every target shares: the File type emitters
 // return, the sawmill version named in headers, layout names, and the
-// identifier and number helpers. Each target is a sub-package (emit/golang,
-// emit/c, emit/sql) with a pure function
+// identifier and number helpers. Each target is a sub-package (emit/gotarget,
+// emit/ctarget, emit/sqltarget) with a pure function
 //
 //	Emit(p *compile.Program, o Options) ([]emit.File, error)
 //
@@ -14,6 +14,8 @@ import (
 	"strconv"
 	"strings"
 	"unicode"
+
+	"github.com/sawmill-dev/sawmill/compile"
 )
 
 // Version is the sawmill version a generated header names when the
@@ -134,4 +136,53 @@ func CommentSafe(s string) string {
 	s = strings.ReplaceAll(s, "--", "- -")
 	s = strings.ReplaceAll(s, "??", "? ?") // C trigraphs
 	return s
+}
+
+// Target is what the command line and the verifier know of every target,
+// the same for each; the registry (emit/targets) lists one per target
+// package, and each package's Emit, Resolve and Options do the rest.
+type Target struct {
+	// Name is the --target value and the name in reports ("go", "c",
+	// "sql").
+	Name string
+	// Layouts are the layouts Emit writes besides Auto.
+	Layouts []string
+	// Float reports whether the target has a build for float32 inputs
+	// (C's float API), for which the program is compiled with
+	// SingleInputs.
+	Float bool
+	// Engines name the verifier's runners that run the target's code when
+	// they are not named like the target (SQL's sqlite, duckdb and
+	// postgres); nil means one runner named Name.
+	Engines []string
+	// Emit is the package's Emit with the settings every target
+	// understands; a caller that needs a target's own options (Go's sample
+	// rows, SQL's dialect) calls the package.
+	Emit func(p *compile.Program, s Settings) ([]File, error)
+}
+
+// Settings are the options every target understands, for callers that
+// treat targets alike.
+type Settings struct {
+	// Layout is Auto ("" too) or one of the target's Layouts.
+	Layout string
+	// Name names what is emitted: Go's package, C's NAME.h, NAME.c and
+	// NAME_ prefix, SQL's NAME.sql; "" leaves the target's default.
+	Name string
+	// Float asks for the float32-input build of a target that has one.
+	Float bool
+	// Comments is the comment knob (NodeComments).
+	Comments int
+}
+
+// CompileOptions are the compile.Options a build of t needs: SingleInputs
+// for its float32-input build (float set, and t.Float), none otherwise.
+func (t Target) CompileOptions(float bool) compile.Options {
+	return compile.Options{SingleInputs: t.Float && float}
+}
+
+// UnknownLayout is the error every target gives for a layout it does not
+// have.
+func UnknownLayout(target, layout string, layouts []string) error {
+	return fmt.Errorf("%s: layout %q is unknown\nhint: use %s", target, layout, strings.Join(append([]string{Auto}, layouts...), ", "))
 }

@@ -6,7 +6,8 @@ import (
 	"errors"
 	"flag"
 	"fmt"
-	"math"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/verify"
 	"os"
 	"path/filepath"
 	"slices"
@@ -27,7 +28,7 @@ func TestMain(m *testing.M) {
 // holds each row against the interpreter, and against scikit-learn's
 // recorded outputs where the case has them.
 func TestGolden(t *testing.T) {
-	cases, err := Cases("testdata")
+	cases, err := goldencase.Cases("testdata")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -51,7 +52,7 @@ func TestGolden(t *testing.T) {
 				t.Skip("slow case: runs without -short")
 			}
 			checkSklearnReference(t, c)
-			for _, r := range Runners() {
+			for _, r := range verify.RunnersWith(runnerConfig) {
 				if len(c.Flags.Runners) > 0 && !slices.Contains(c.Flags.Runners, r.Name()) {
 					continue
 				}
@@ -75,19 +76,19 @@ func TestGolden(t *testing.T) {
 	checkOrphanSnapshots(t, cases, wantFiles)
 }
 
-func runOne(t *testing.T, c *Case, r Runner, layout, variant string, wantFiles map[string]bool) {
+func runOne(t *testing.T, c *goldencase.Case, r verify.Runner, layout, variant string, wantFiles map[string]bool) {
 	p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
 	if err != nil {
 		t.Fatalf("compile: %v", err)
 	}
-	if c.Flags.Snapshot && !isShell(variant) { // the shell runs the text the embedded engine's snapshot keeps
-		if e, ok := r.(Emitter); ok {
+	if c.Flags.Snapshot && !strings.HasSuffix(variant, "shell") { // the sqlite3 shell variants run the text the embedded engine's snapshot keeps
+		if e, ok := r.(verify.Emitter); ok {
 			checkSnapshot(t, c, e, p, r.Name(), layout, variant, wantFiles)
 		}
 	}
 	res, err := r.Score(context.Background(), p, layout, variant, c.Rows, t.TempDir())
-	if errors.Is(err, ErrSkip) {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" && !errors.Is(err, ErrDeclined) {
+	if errors.Is(err, verify.ErrSkip) {
+		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" && !errors.Is(err, verify.ErrDeclined) {
 			t.Fatalf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", r.Name(), err)
 		}
 		t.Skipf("skipped: %s: %v", r.Name(), err)
@@ -97,48 +98,28 @@ func runOne(t *testing.T, c *Case, r Runner, layout, variant string, wantFiles m
 	}
 	want, wantCls := c.ReferenceFor(r, variant)
 	exact, bound := r.Tolerance(variant, p)
-	m := Compare(want, res.Outputs, wantCls, res.Classes, c.Model.NumOutputs(), exact, bound)
+	m := verify.Compare(want, res.Outputs, wantCls, res.Classes, c.Model.NumOutputs(), exact, bound)
 	if !m.OK() {
 		t.Fatalf("%s %s %s: %s", r.Name(), layout, variant, m)
 	}
 	t.Logf("%s; build %v, run %v", m, res.Build.Round(1e6), res.Run.Round(1e6))
 	if c.Sklearn != nil && exact {
-		checkAgainst(t, c, res.Outputs, "emitted "+r.Name())
+		c.CheckSklearn(t, res.Outputs, "emitted "+r.Name())
 	}
 }
 
 // checkSklearnReference holds the interpreter against scikit-learn's
 // recorded predict_proba (scikit-learn 1.2.1, Debian python3-sklearn),
 // within 1e-12.
-func checkSklearnReference(t *testing.T, c *Case) {
+func checkSklearnReference(t *testing.T, c *goldencase.Case) {
 	if c.Sklearn == nil {
 		return
 	}
 	want, _ := c.Reference()
-	checkAgainst(t, c, want, "interpreter")
+	c.CheckSklearn(t, want, "interpreter")
 }
 
-func checkAgainst(t *testing.T, c *Case, got []float64, who string) {
-	t.Helper()
-	k := c.Model.NumOutputs()
-	worst := 0.0
-	for i, ref := range c.Sklearn {
-		probs := got[i*k : (i+1)*k]
-		if k == 1 { // logistic: p(class 1)
-			probs = []float64{1 - got[i], got[i]}
-		}
-		for j, v := range ref {
-			d := math.Abs(probs[j] - v)
-			worst = max(worst, d)
-			if !(d <= 1e-12) {
-				t.Fatalf("%s, row %d, class %q: %v, scikit-learn recorded %v", who, i, c.Model.Classes[j], probs[j], v)
-			}
-		}
-	}
-	t.Logf("%s vs scikit-learn: %d rows, max |diff| %g", who, len(c.Sklearn), worst)
-}
-
-func snapshotDir(c *Case, runner, layout, variant string) string {
+func snapshotDir(c *goldencase.Case, runner, layout, variant string) string {
 	d := layout
 	if variant != "" {
 		d += "-" + variant
@@ -148,9 +129,9 @@ func snapshotDir(c *Case, runner, layout, variant string) string {
 
 // checkSnapshot compares the generated files with the kept ones, rewriting
 // only those that differ under -update.
-func checkSnapshot(t *testing.T, c *Case, e Emitter, p *compile.Program, runner, layout, variant string, wantFiles map[string]bool) {
+func checkSnapshot(t *testing.T, c *goldencase.Case, e verify.Emitter, p *compile.Program, runner, layout, variant string, wantFiles map[string]bool) {
 	files, err := e.Emit(p, layout, variant)
-	if errors.Is(err, ErrDeclined) {
+	if errors.Is(err, verify.ErrDeclined) {
 		return // Score says why
 	}
 	if err != nil {
@@ -183,7 +164,7 @@ func checkSnapshot(t *testing.T, c *Case, e Emitter, p *compile.Program, runner,
 }
 
 // checkOrphanSnapshots fails on kept files that no case produced.
-func checkOrphanSnapshots(t *testing.T, cases []*Case, produced map[string]bool) {
+func checkOrphanSnapshots(t *testing.T, cases []*goldencase.Case, produced map[string]bool) {
 	if t.Failed() || testing.Short() || flag.Lookup("test.run").Value.String() != "" {
 		return // a failed, short or filtered run produces only part of the files
 	}
@@ -223,3 +204,8 @@ func lineDiff(want, got string) string {
 	}
 	return s.String()
 }
+
+// runnerConfig holds the runners to more than a user's machine needs:
+// generated C must build without a warning, and in CI
+// (SAWMILL_REQUIRE_ENGINES) with gcc, clang and g++ all present.
+var runnerConfig = verify.Config{Werror: true, AllCompilers: os.Getenv("SAWMILL_REQUIRE_ENGINES") != ""}

@@ -10,11 +10,11 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // TestSparkVerify compiles every Spark fixture to Go, C and SQL, builds and
-// runs each with its real toolchain or engine (golden.Verify, with rows
+// runs each with its real toolchain or engine (verify.Verify, with rows
 // generated at every leaf and threshold added to the fixture's), and holds
 // every target to the interpreter and, on the fixture's rows, to Spark's
 // own outputs: bit for bit for decision trees and random forests, within
@@ -49,7 +49,7 @@ func TestSparkVerify(t *testing.T) {
 					tol = max(tol, 2*bound+4*0x1p-53)
 				}
 			}
-			rep, err := golden.Verify(context.Background(), f, rows, golden.VerifyOptions{
+			rep, err := verify.Verify(context.Background(), f, rows, verify.VerifyOptions{
 				Targets:           []string{"go", "c", "sql"},
 				Variants:          []string{"double"}, // float C declines float64 models with normalize: no bound
 				Probes:            true,
@@ -62,14 +62,14 @@ func TestSparkVerify(t *testing.T) {
 			require.True(t, rep.Expected.OK(), "interpreter against Spark: %+v", rep.Expected.First)
 			ran := 0
 			for _, c := range rep.Checks {
-				if c.Status == golden.NotRun {
+				if c.Status == verify.NotRun {
 					if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
 						t.Fatalf("%s could not run, and SAWMILL_REQUIRE_ENGINES is set: %s", c.Name(), c.Reason)
 					}
 					t.Logf("%s not run here: %s", c.Name(), c.Reason)
 					continue
 				}
-				require.Equal(t, golden.Agree, c.Status, "%s: %s", c.Name(), c.Reason)
+				require.Equal(t, verify.Agree, c.Status, "%s: %s", c.Name(), c.Reason)
 				require.True(t, c.Expected.OK(), "%s against Spark: %+v", c.Name(), c.Expected.First)
 				ran++
 			}

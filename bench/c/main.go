@@ -32,9 +32,10 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
-	"github.com/sawmill-dev/sawmill/emit/golang"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 func main() {
@@ -226,10 +227,10 @@ func printSizes(modelPath string) error {
 		if err != nil {
 			return err
 		}
-		sizes, err := cemit.MeasureARM(context.Background(), p, cemit.Options{Float: fl})
-		if errors.Is(err, cemit.ErrNoARM) {
+		sizes, err := verify.MeasureARM(context.Background(), p, ctarget.Options{Float: fl})
+		if errors.Is(err, verify.ErrNoARM) {
 			fmt.Println("arm-none-eabi-gcc is not on PATH: tables only")
-			sizes, err = cemit.Sizes(p, cemit.Options{Float: fl})
+			sizes, err = verify.CSizes(p, ctarget.Options{Float: fl})
 		}
 		if err != nil {
 			return err
@@ -242,7 +243,7 @@ func printSizes(modelPath string) error {
 				fmt.Printf("    %-20s %8d x %d = %9d\n", t.Name, t.Len, t.ElemBytes, t.Bytes())
 			}
 			if s.ARM != nil {
-				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB; .data+.bss %d)\n", cemit.ARMCompiler, s.ARM.Flags,
+				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB; .data+.bss %d)\n", verify.ARMCompiler, s.ARM.Flags,
 					s.ARM.Text, s.ARM.Rodata, s.ARM.Text+s.ARM.Rodata, float64(s.ARM.Text+s.ARM.Rodata)/1024, s.ARM.Data)
 			}
 		}
@@ -425,7 +426,7 @@ func buildC(dir string, p *compile.Program, layout string, float bool, threads i
 	if err := os.Mkdir(sub, 0o755); err != nil {
 		return nil, err
 	}
-	files, err := cemit.Emit(p, cemit.Options{Layout: layout, Float: float})
+	files, err := ctarget.Emit(p, ctarget.Options{Layout: layout, Float: float})
 	if err != nil {
 		return nil, err
 	}
@@ -505,7 +506,7 @@ func buildGo(dir string, p *compile.Program, layout string, n, reps int) (*side,
 	if err := os.MkdirAll(filepath.Join(sub, "model"), 0o755); err != nil {
 		return nil, err
 	}
-	files, err := golang.Emit(p, golang.Options{Layout: layout, NoTest: true})
+	files, err := gotarget.Emit(p, gotarget.Options{Layout: layout, NoTest: true})
 	if err != nil {
 		return nil, err
 	}

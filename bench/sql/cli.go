@@ -14,9 +14,9 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 var runTime = regexp.MustCompile(`Run Time: real ([0-9.]+) user ([0-9.]+) sys ([0-9.]+)`)
@@ -71,7 +71,7 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if err := tx.Commit(); err != nil {
 		return "", err
 	}
-	files, err := sqlemit.Emit(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout, Keep: []string{"sawmill_row"}})
+	files, err := sqltarget.Emit(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: layout, Keep: []string{"sawmill_row"}})
 	if err != nil {
 		return "", err
 	}
@@ -135,16 +135,16 @@ func cliSide(ctx context.Context, cli string, p *compile.Program, layout string,
 	if err := q.Err(); err != nil {
 		return "", err
 	}
-	r, _ := golden.SQLRunner("sqlite")
+	r, _ := verify.SQLRunner("sqlite")
 	exact, bound := r.Tolerance("", p)
-	if m := golden.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
+	if m := verify.Compare(want, got, wantCls, gotCls, k, exact, bound); !m.OK() {
 		return "", fmt.Errorf("sqlite3 shell %s: %s", layout, m)
 	}
-	lay, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: sqlemit.SQLite, Layout: layout})
+	lay, _, _ := sqltarget.Resolve(p, sqltarget.Options{Dialect: sqltarget.SQLite, Layout: layout})
 	n := float64(rows.Len())
 	return fmt.Sprintf("%-22s %12.0f %10s %10s %12d   (%s, CASE nested at most %d; %.0f rows/s of CPU time, user %.2fs)",
 		"sqlite3 shell "+layout, n/real, time.Duration(prep*float64(time.Second)).Round(time.Millisecond),
-		time.Duration(real*float64(time.Second)).Round(time.Millisecond), len(files[0].Data), lay, sqlemit.DefaultMaxNest[sqlemit.SQLite], n/user, user), nil
+		time.Duration(real*float64(time.Second)).Round(time.Millisecond), len(files[0].Data), lay, sqltarget.DefaultMaxNest[sqltarget.SQLite], n/user, user), nil
 }
 
 func quote(s string) string { return `"` + strings.ReplaceAll(s, `"`, `""`) + `"` }

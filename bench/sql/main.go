@@ -24,10 +24,11 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 func main() {
@@ -64,7 +65,7 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 		return err
 	}
 	fmt.Printf("forest: %d trees, %d nodes, depth %d; %d rows of %d features\n", len(p.Trees), p.NumNodes(), p.MaxDepth(), rows.Len(), len(f.Features))
-	c := &golden.Case{Model: f, Rows: rows}
+	c := &goldencase.Case{Model: f, Rows: rows}
 	start := time.Now()
 	want, wantCls := c.Reference()
 	interp := time.Since(start)
@@ -72,7 +73,7 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 	fmt.Printf("%-22s %12.0f %10s %10s %12s\n", "interpreter", float64(n)/interp.Seconds(), "-", interp.Round(time.Millisecond), "-")
 	goRun := time.Duration(0)
 	if withGo {
-		for _, r := range golden.Runners() {
+		for _, r := range verify.Runners() {
 			if r.Name() != "go" {
 				continue
 			}
@@ -82,7 +83,7 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 			if err != nil {
 				return err
 			}
-			if m := golden.Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, true, 0); !m.OK() {
+			if m := verify.Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, true, 0); !m.OK() {
 				return fmt.Errorf("go: %s", m)
 			}
 			goRun = res.Run
@@ -90,7 +91,7 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 		}
 	}
 	for _, e := range engines {
-		r, err := golden.SQLRunner(e)
+		r, err := verify.SQLRunner(e)
 		if err != nil {
 			return err
 		}
@@ -105,12 +106,12 @@ func run(path string, trees, n int, engines, layouts []string, withGo bool) erro
 				continue
 			}
 			exact, bound := r.Tolerance("", p)
-			if m := golden.Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound); !m.OK() {
+			if m := verify.Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound); !m.OK() {
 				return fmt.Errorf("%s %s: %s", e, l, m)
 			}
-			dialect, _ := sqlemit.ParseDialect(map[string]string{"sqlite": "sqlite", "duckdb": "duckdb", "postgres": "postgres"}[e])
-			files, _ := sqlemit.Emit(p, sqlemit.Options{Dialect: dialect, Layout: l, Keep: []string{"sawmill_row"}})
-			lay, _ := sqlemit.Layout(p, sqlemit.Options{Dialect: dialect, Layout: l})
+			dialect, _ := sqltarget.ParseDialect(map[string]string{"sqlite": "sqlite", "duckdb": "duckdb", "postgres": "postgres"}[e])
+			files, _ := sqltarget.Emit(p, sqltarget.Options{Dialect: dialect, Layout: l, Keep: []string{"sawmill_row"}})
+			lay, _, _ := sqltarget.Resolve(p, sqltarget.Options{Dialect: dialect, Layout: l})
 			extra := fmt.Sprintf("   (%s; end to end with load %v", lay, total.Round(time.Millisecond))
 			if goRun > 0 {
 				extra += fmt.Sprintf("; run %.1f× go, %.1f× interpreter", res.Run.Seconds()/goRun.Seconds(), res.Run.Seconds()/interp.Seconds())

@@ -12,34 +12,54 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
+	"github.com/sawmill-dev/sawmill/emit/targets"
 	"github.com/sawmill-dev/sawmill/forest"
 )
 
-// target is one --target value: the compile options it needs and how it
-// turns a Program into files.
+// target is one --target value: its entry in the registry (emit/targets)
+// and, for a target with flags beyond emit.Settings, how they become its
+// own options.
 type target struct {
-	name    string
-	options func(fl *compileFlags) compile.Options
-	emit    func(p *compile.Program, fl *compileFlags) ([]emit.File, error)
+	emit.Target
+	ownFlags func(p *compile.Program, fl *compileFlags) ([]emit.File, error)
 }
 
-// allTargets lists every emitter the command line knows, each defined in its
-// target_*.go file; a new target adds one line here.
+// ownFlags are the emitters of the targets whose flags go beyond
+// emit.Settings (--package, --sample, --tables; --dialect, --table, ...),
+// each in its target_*.go file. Every other target emits through its
+// registry entry.
+var ownFlags = map[string]func(p *compile.Program, fl *compileFlags) ([]emit.File, error){
+	gotarget.Name:  emitGo,
+	sqltarget.Name: emitSQL,
+}
+
+// allTargets lists every target of the registry.
 func allTargets() []target {
-	return []target{
-		goTarget(),
-		cTarget(),
-		sqlTarget(),
+	var out []target
+	for _, t := range targets.All() {
+		out = append(out, target{Target: t, ownFlags: ownFlags[t.Name]})
 	}
+	return out
 }
 
 func findTarget(name string) (target, bool) {
-	for _, t := range allTargets() {
-		if t.name == name {
-			return t, true
-		}
+	t, ok := targets.Find(name)
+	return target{Target: t, ownFlags: ownFlags[name]}, ok
+}
+
+// options are the compile options the flags ask of t: --float compiles a
+// target's float build for float32 inputs.
+func (t target) options(fl *compileFlags) compile.Options { return t.CompileOptions(fl.float) }
+
+// emit writes p with t's own flags, or with the settings every target
+// understands.
+func (t target) emit(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
+	if t.ownFlags != nil {
+		return t.ownFlags(p, fl)
 	}
-	return target{}, false
+	return t.Target.Emit(p, emit.Settings{Layout: fl.layout, Name: fl.name, Float: fl.float})
 }
 
 type compileFlags struct {
@@ -121,7 +141,7 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if fl.out == "" {
 		return usageError{fmt.Errorf("sawmill compile: -o DIR is required\nhint: see 'sawmill compile -h'")}
 	}
-	if err := targetFlags(c, t.name); err != nil {
+	if err := targetFlags(c, t.Name); err != nil {
 		return err
 	}
 	if err := outputFolder(fl.out); err != nil {
@@ -160,13 +180,7 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	return nil
 }
 
-func targetNames() string {
-	var names []string
-	for _, t := range allTargets() {
-		names = append(names, t.name)
-	}
-	return strings.Join(names, ", ")
-}
+func targetNames() string { return strings.Join(targets.Names(), ", ") }
 
 func printPassStats(w io.Writer, stats []compile.Stat) {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)

@@ -18,12 +18,13 @@ import (
 	"github.com/sawmill-dev/sawmill/chart"
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
-	"github.com/sawmill-dev/sawmill/emit/golang"
-	sqlemit "github.com/sawmill-dev/sawmill/emit/sql"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
+	"github.com/sawmill-dev/sawmill/emit/targets"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // Demo defaults: the seed is part of the demo's stated result.
@@ -231,10 +232,10 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	st.begin("verifying every target against the model: %d readings and rows generated from the model", rows.Len())
 	// Room for a row at every leaf (about 5,000 with the defaults) and some
 	// thousands at thresholds: leaf rows get up to three quarters of it.
-	o := golden.VerifyOptions{Probes: true, MaxRows: 8000}
-	o.Done = func(ch *golden.Check) {
+	o := verify.VerifyOptions{Probes: true, MaxRows: 8000}
+	o.Done = func(ch *verify.Check) {
 		line := fmt.Sprintf("      %-22s %s", ch.Name(), ch.Status)
-		if ch.Status == golden.Agree {
+		if ch.Status == verify.Agree {
 			line += fmt.Sprintf(" (%d rows, build %s, score %s)", ch.Rows, seconds(time.Duration(ch.Build)), seconds(time.Duration(ch.Run)))
 		} else if ch.Reason != "" {
 			line += ": " + firstLine(ch.Reason)
@@ -257,7 +258,7 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 	if err := put(demoVerifyJSN, append(vj, '\n')); err != nil {
 		return err
 	}
-	st.done("%d of %d checks ran, %d agree; report in %s", len(rep.Checks)-rep.Count(golden.NotRun), len(rep.Checks), rep.Count(golden.Agree), demoVerifyTxt)
+	st.done("%d of %d checks ran, %d agree; report in %s", len(rep.Checks)-rep.Count(verify.NotRun), len(rep.Checks), rep.Count(verify.Agree), demoVerifyTxt)
 
 	// 6. Predictions and README.
 	st.begin("writing predictions and the README")
@@ -287,22 +288,23 @@ func runDemo(c *cobra.Command, fl *demoFlags) error {
 // the layout each was written in (C in double, as written), each SQL
 // engine's own file in its layout, and the portable (ANSI) file on every
 // engine, since it claims to run on each.
-func demoVerify(f *forest.Forest, rows *forest.Rows, o golden.VerifyOptions, wrote []demoWrote) (*golden.Report, error) {
-	var rep *golden.Report
+func demoVerify(f *forest.Forest, rows *forest.Rows, o verify.VerifyOptions, wrote []demoWrote) (*verify.Report, error) {
+	var rep *verify.Report
 	for _, w := range wrote {
 		v := o
 		v.Layouts = []string{w.layout}
+		tg, _ := targets.Find(w.target)
 		switch {
-		case w.target == "c":
-			v.Targets, v.Variants = []string{"c"}, []string{"double"}
-		case w.target == "sql" && w.dialect == golden.AnsiDialect:
-			v.Targets, v.Dialects = []string{"sql"}, []string{golden.AnsiDialect}
-		case w.target == "sql":
+		case tg.Engines != nil && w.dialect == verify.AnsiDialect:
+			v.Targets, v.Dialects = []string{tg.Name}, []string{verify.AnsiDialect}
+		case tg.Engines != nil:
 			v.Targets, v.Dialects = []string{w.dialect}, []string{w.dialect}
+		case tg.Float:
+			v.Targets, v.Variants = []string{tg.Name}, []string{"double"} // the float build was not written
 		default:
 			v.Targets = []string{w.target}
 		}
-		r, err := golden.Verify(context.Background(), f, rows, v)
+		r, err := verify.Verify(context.Background(), f, rows, v)
 		if err != nil {
 			return nil, fmt.Errorf("BUG: demo: verify: %v", err)
 		}
@@ -350,7 +352,7 @@ type demoWrote struct {
 func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []demoWrote, error) {
 	var said []string
 	var wrote []demoWrote
-	for _, name := range []string{"go", "c", "sql"} {
+	for _, name := range targets.Names() {
 		t, ok := findTarget(name)
 		if !ok {
 			said = append(said, name+": not in this build, skipped")
@@ -361,9 +363,9 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 			table: demoSQLTable, keep: []string{"pump_id", "timestamp"}, dialect: "ansi"}
 		dir := name
 		switch name {
-		case "go":
-			dir = "go/" + demoGoPackage
-		case "sql":
+		case gotarget.Name:
+			dir = name + "/" + demoGoPackage
+		case sqltarget.Name:
 			for _, d := range []string{"ansi", "sqlite", "postgres", "duckdb"} {
 				v := base
 				v.dialect = d
@@ -388,13 +390,13 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 				return nil, nil, fmt.Errorf("BUG: demo: layout of %s: %v", name, err)
 			}
 			w := demoWrote{target: name, layout: layout}
-			if name == "sql" {
+			if name == sqltarget.Name {
 				w.dialect = fl.dialect
 			}
 			wrote = append(wrote, w)
 			for _, file := range out {
 				fname := file.Name
-				if name == "sql" {
+				if name == sqltarget.Name {
 					fname = demoCName + "." + fl.dialect + filepath.Ext(file.Name)
 				}
 				if err := put(dir+"/"+fname, file.Data); err != nil {
@@ -411,23 +413,25 @@ func demoCompile(f *forest.Forest, put func(string, []byte) error) ([]string, []
 // demoLayout is the layout the auto layout chose for a target's files.
 func demoLayout(target string, p *compile.Program, fl *compileFlags) (string, error) {
 	switch target {
-	case "go":
-		return golang.ChooseLayout(p), nil
-	case "c":
-		l, _, err := cemit.Resolve(p, cemit.Options{Layout: fl.layout})
+	case gotarget.Name:
+		l, _, err := gotarget.Resolve(p, gotarget.Options{Layout: fl.layout})
 		return l, err
-	case "sql":
-		d, err := sqlemit.ParseDialect(fl.dialect)
+	case ctarget.Name:
+		l, _, err := ctarget.Resolve(p, ctarget.Options{Layout: fl.layout})
+		return l, err
+	case sqltarget.Name:
+		d, err := sqltarget.ParseDialect(fl.dialect)
 		if err != nil {
 			return "", err
 		}
-		return sqlemit.Layout(p, sqlemit.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+		l, _, err := sqltarget.Resolve(p, sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, Layout: fl.layout})
+		return l, err
 	}
 	return "", fmt.Errorf("no layout for target %s", target)
 }
 
 // demoReadme says what the folder holds and how to use each piece.
-func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Report, files map[string][]byte) []byte {
+func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *verify.Report, files map[string][]byte) []byte {
 	var b bytes.Buffer
 	p := func(format string, a ...any) { fmt.Fprintf(&b, format, a...) }
 	f := res.Forest
@@ -509,7 +513,7 @@ func demoReadme(fl *demoFlags, d *train.Data, res *train.Result, rep *golden.Rep
 			name += "/" + ch.Variant
 		}
 		res := string(ch.Status)
-		if ch.Status == golden.NotRun {
+		if ch.Status == verify.NotRun {
 			res += ": " + firstLine(ch.Reason)
 		}
 		layout := ch.Layout

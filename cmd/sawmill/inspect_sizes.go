@@ -8,8 +8,9 @@ import (
 	"text/tabwriter"
 
 	"github.com/sawmill-dev/sawmill/compile"
-	cemit "github.com/sawmill-dev/sawmill/emit/c"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // printCSizes reports, for C in double and in float, each layout's static
@@ -20,15 +21,15 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tCortex-M4 .text\t.rodata\tflash\t")
 	noARM := false
 	for _, float := range []bool{false, true} {
-		p, _, err := compile.Compile(f, compile.Options{SingleInputs: float})
+		p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(float))
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}
-		o := cemit.Options{Float: float}
-		sizes, err := cemit.MeasureARM(ctx, p, o)
-		if errors.Is(err, cemit.ErrNoARM) {
+		o := ctarget.Options{Float: float}
+		sizes, err := verify.MeasureARM(ctx, p, o)
+		if errors.Is(err, verify.ErrNoARM) {
 			noARM = true
-			sizes, err = cemit.Sizes(p, o)
+			sizes, err = verify.CSizes(p, o)
 		}
 		if err != nil {
 			return err
@@ -47,7 +48,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	}
 	tw.Flush()
 	if noARM {
-		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", cemit.ARMCompiler)
+		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", verify.ARMCompiler)
 	}
 	return nil
 }

@@ -15,7 +15,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // copyFile copies testdata into dir and returns the copy's path.
@@ -204,13 +204,13 @@ func TestTyposRefused(t *testing.T) {
 
 // Defect 2: a verify in which no check ran verified nothing, and fails.
 func TestVerifyNothingRanFails(t *testing.T) {
-	rep := &golden.Report{Checks: []*golden.Check{
-		{Target: "c", Variant: "double", Layout: "nested", Status: golden.NotRun, Reason: "gcc not on PATH"},
+	rep := &verify.Report{Checks: []*verify.Check{
+		{Target: "c", Variant: "double", Layout: "nested", Status: verify.NotRun, Reason: "gcc not on PATH"},
 	}}
 	err := verifyVerdict(rep, "", false)
 	require.Error(t, err)
 	assert.Contains(t, err.Error(), "no check ran, so nothing was verified")
-	rep.Checks = append(rep.Checks, &golden.Check{Target: "go", Layout: "nested", Status: golden.Agree})
+	rep.Checks = append(rep.Checks, &verify.Check{Target: "go", Layout: "nested", Status: verify.Agree})
 	assert.NoError(t, verifyVerdict(rep, "", false), "one check that agreed is a pass")
 }
 

@@ -6,45 +6,39 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
-	"github.com/sawmill-dev/sawmill/emit/sql"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/emit/sqltarget"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
-// sqlTarget emits one statement through emit/sql and, with --selftest, the
-// self-test script beside it.
-func sqlTarget() target {
-	return target{
-		name:    "sql",
-		options: func(*compileFlags) compile.Options { return compile.Options{} },
-		emit: func(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-			d, err := sql.ParseDialect(fl.dialect)
-			if err != nil {
-				return nil, err
-			}
-			if fl.maxNest < 0 || fl.maxNest == 1 {
-				return nil, fmt.Errorf("--max-nest %d: must be 2 or more (0: the dialect's default)", fl.maxNest)
-			}
-			cols, err := columnMap(p, fl.columns)
-			if err != nil {
-				return nil, err
-			}
-			o := sql.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
-			files, err := sql.Emit(p, o)
-			files = sqlFileName(files, fl.name)
-			if err != nil || !fl.selftest {
-				return files, err
-			}
-			probes := golden.SelftestProbes(fl.model)
-			st, err := sql.Selftest(p, o, probes)
-			if err != nil {
-				return nil, fmt.Errorf("selftest: %v", err)
-			}
-			return append(files, st), nil
-		},
+// emitSQL emits one statement through emit/sqltarget and, with --selftest,
+// the self-test script beside it.
+func emitSQL(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
+	d, err := sqltarget.ParseDialect(fl.dialect)
+	if err != nil {
+		return nil, err
 	}
+	if fl.maxNest < 0 || fl.maxNest == 1 {
+		return nil, fmt.Errorf("--max-nest %d: must be 2 or more (0: the dialect's default)", fl.maxNest)
+	}
+	cols, err := columnMap(p, fl.columns)
+	if err != nil {
+		return nil, err
+	}
+	o := sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
+	files, err := sqltarget.Emit(p, o)
+	files = sqltarget.Named(files, fl.name)
+	if err != nil || !fl.selftest {
+		return files, err
+	}
+	probes := verify.SelftestProbes(fl.model)
+	st, err := sqltarget.Selftest(p, o, probes)
+	if err != nil {
+		return nil, fmt.Errorf("selftest: %v", err)
+	}
+	return append(files, st), nil
 }
 
-// columnMap turns --columns feature=column pairs into sql.Options.Columns:
+// columnMap turns --columns feature=column pairs into sqltarget.Options.Columns:
 // the column of every feature, its own name where no pair names it.
 func columnMap(p *compile.Program, pairs []string) ([]string, error) {
 	if len(pairs) == 0 {
@@ -73,15 +67,4 @@ func columnMap(p *compile.Program, pairs []string) ([]string, error) {
 		cols[i] = col
 	}
 	return cols, nil
-}
-
-// sqlFileName names the statement's file NAME.sql after --name; without it
-// the file keeps the emitter's name (score.sql).
-func sqlFileName(files []emit.File, name string) []emit.File {
-	for i := range files {
-		if name != "" && files[i].Name == sql.FileName {
-			files[i].Name = name + ".sql"
-		}
-	}
-	return files
 }

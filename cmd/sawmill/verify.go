@@ -16,7 +16,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 type verifyFlags struct {
@@ -92,9 +92,9 @@ fail the run, unless --require is given.`,
 	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless); default each target's own")
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
 	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres; default all")
-	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN)")
+	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN, else PostgreSQL's own PGHOST, PGUSER, ... defaults)")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
-	f.IntVar(&fl.maxRows, "max-rows", golden.DefaultMaxRows, "most rows to generate (0: no cap)")
+	f.IntVar(&fl.maxRows, "max-rows", verify.DefaultMaxRows, "most rows to generate (0: no cap)")
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
 	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
 	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
@@ -110,7 +110,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
-	if err := checkVerifyFlags(fl, golden.Runners()); err != nil {
+	if err := checkVerifyFlags(fl, verify.Runners()); err != nil {
 		return err
 	}
 	if err := checkExpectedFlags(fl); err != nil {
@@ -139,7 +139,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 		}
 		defer closer.Close()
 	}
-	o := golden.VerifyOptions{
+	o := verify.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
 		PostgresDSN: fl.postgres, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
 	}
@@ -148,7 +148,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	}
 	stderr := c.ErrOrStderr()
 	if isTerminal(stderr) {
-		o.Done = func(ch *golden.Check) { fmt.Fprintf(stderr, "verify: %s: %s\n", ch.Name(), ch.Status) }
+		o.Done = func(ch *verify.Check) { fmt.Fprintf(stderr, "verify: %s: %s\n", ch.Name(), ch.Status) }
 	}
 	o.ExpectedSource, o.ExpectedTolerance = fl.expected, fl.tolerance
 	rep, err := verifyStream(context.Background(), f, rr, ex, fl.data, o)
@@ -183,15 +183,15 @@ func checkExpectedFlags(fl *verifyFlags) error {
 
 // verifyVerdict is the command's error: nil when every check that ran
 // agreed (and, with require, every check ran).
-func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
+func verifyVerdict(rep *verify.Report, dataPath string, require bool) error {
 	var bad []string
 	for _, ch := range rep.Checks {
 		switch {
-		case ch.Status == golden.Differ:
+		case ch.Status == verify.Differ:
 			bad = append(bad, fmt.Sprintf("%s differs at %s", ch.Name(), rowPlace(ch.First, dataPath)))
-		case ch.Status == golden.Failed:
+		case ch.Status == verify.Failed:
 			bad = append(bad, fmt.Sprintf("%s failed: %s", ch.Name(), firstLine(ch.Reason)))
-		case ch.Status == golden.NotRun && require:
+		case ch.Status == verify.NotRun && require:
 			bad = append(bad, fmt.Sprintf("%s could not run (--require): %s", ch.Name(), firstLine(ch.Reason)))
 		}
 	}
@@ -209,7 +209,7 @@ func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
 		return fmt.Errorf("verify: %s", strings.Join(off, "\n  "))
 	}
 	bad = append(bad, off...)
-	if ran := len(rep.Checks) - rep.Count(golden.NotRun); ran == 0 && len(bad) == 0 {
+	if ran := len(rep.Checks) - rep.Count(verify.NotRun); ran == 0 && len(bad) == 0 {
 		return fmt.Errorf("verify: no check ran, so nothing was verified\nhint: install a toolchain named under \"not run\", or choose other --target values")
 	}
 	if len(bad) == 0 {
@@ -220,7 +220,7 @@ func verifyVerdict(rep *golden.Report, dataPath string, require bool) error {
 
 // rowPlace names a mismatching row for a person: the file and line for a
 // given row, else the generated row's origin, with its index.
-func rowPlace(r *golden.Row, dataPath string) string {
+func rowPlace(r *verify.Row, dataPath string) string {
 	if r == nil {
 		return "no row (output count differs)"
 	}
@@ -237,7 +237,7 @@ func firstLine(s string) string {
 	return s
 }
 
-func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
+func printVerify(w io.Writer, modelPath, dataPath string, rep *verify.Report) {
 	fmt.Fprintf(w, "model     %s (sha256 %s)\n", modelPath, shortHash(rep.Model))
 	switch {
 	case rep.Given > 0 && rep.LeafRows+rep.ThresholdRows > 0:
@@ -269,7 +269,7 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 			layout = "-"
 		}
 		switch ch.Status {
-		case golden.NotRun, golden.Failed:
+		case verify.NotRun, verify.Failed:
 			// Every cell, even empty, keeps the columns aligned.
 			fmt.Fprintf(tw, "%s\t%s\t%s\t\t\t\t\t\t\t\n", name, layout, ch.Status)
 			continue
@@ -297,25 +297,25 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 	printExpected(w, rep, dataPath)
 	for _, ch := range rep.Checks {
 		switch ch.Status {
-		case golden.Failed:
+		case verify.Failed:
 			fmt.Fprintf(w, "\n%s: failed: %s\n", ch.Name(), strings.TrimRight(ch.Reason, "\n"))
-		case golden.Differ:
+		case verify.Differ:
 			printMismatch(w, ch, dataPath)
 		}
 	}
-	if rep.Count(golden.NotRun) > 0 {
+	if rep.Count(verify.NotRun) > 0 {
 		fmt.Fprintln(w, "\nnot run (does not fail verify without --require):")
 		tw = tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
 		for _, ch := range rep.Checks {
-			if ch.Status == golden.NotRun {
+			if ch.Status == verify.NotRun {
 				fmt.Fprintf(tw, "  %s\t%s\n", ch.Name(), firstLine(ch.Reason))
 			}
 		}
 		tw.Flush()
 	}
-	ran := len(rep.Checks) - rep.Count(golden.NotRun)
-	fmt.Fprintf(w, "\n%d of %d checks ran; %d agree", ran, len(rep.Checks), rep.Count(golden.Agree))
-	if n := rep.Count(golden.Differ) + rep.Count(golden.Failed); n > 0 {
+	ran := len(rep.Checks) - rep.Count(verify.NotRun)
+	fmt.Fprintf(w, "\n%d of %d checks ran; %d agree", ran, len(rep.Checks), rep.Count(verify.Agree))
+	if n := rep.Count(verify.Differ) + rep.Count(verify.Failed); n > 0 {
 		fmt.Fprintf(w, ", %d did not", n)
 	}
 	fmt.Fprintln(w)
@@ -323,7 +323,7 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *golden.Report) {
 
 // printToolchains names the compilers (and versions) that built each
 // target, once per target and variant.
-func printToolchains(w io.Writer, rep *golden.Report) {
+func printToolchains(w io.Writer, rep *verify.Report) {
 	var lines [][2]string
 	for _, ch := range rep.Checks {
 		if ch.Toolchain == "" {
@@ -348,7 +348,7 @@ func printToolchains(w io.Writer, rep *golden.Report) {
 	tw.Flush()
 }
 
-func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
+func printMismatch(w io.Writer, ch *verify.Check, dataPath string) {
 	r := ch.First
 	fmt.Fprintf(w, "\n%s: first mismatch at %s\n", ch.Name(), rowPlace(r, dataPath))
 	if r == nil {
@@ -381,7 +381,7 @@ func printMismatch(w io.Writer, ch *golden.Check, dataPath string) {
 }
 
 // cells prints outputs as cell does, tab-separated for a tabwriter.
-func cells(v []golden.Num) string {
+func cells(v []verify.Num) string {
 	s := make([]string, len(v))
 	for i, x := range v {
 		s[i] = cell(float64(x))

@@ -10,7 +10,7 @@ import (
 	"text/tabwriter"
 
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // DefaultTolerance is verify --tolerance's default: the bound within which
@@ -154,14 +154,14 @@ func openExpected(path string, f *forest.Forest) (*expectedReader, io.Closer, er
 
 // printExpected shows how the interpreter and every check agree with the
 // recorded outputs, and the first row that differs for each, in full.
-func printExpected(w io.Writer, rep *golden.Report, dataPath string) {
+func printExpected(w io.Writer, rep *verify.Report, dataPath string) {
 	e := rep.Expected
 	if e == nil {
 		return
 	}
 	fmt.Fprintf(w, "\nrecorded outputs %s, within %.3g (plus a target's own bound where it is not bit-exact)\n", e.Source, float64(e.Tolerance))
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', 0)
-	line := func(name string, a *golden.Agreement) {
+	line := func(name string, a *verify.Agreement) {
 		verdict := "agree"
 		if !a.OK() {
 			verdict = "differ"
@@ -175,7 +175,7 @@ func printExpected(w io.Writer, rep *golden.Report, dataPath string) {
 		}
 	}
 	tw.Flush()
-	show := func(name string, a *golden.Agreement) {
+	show := func(name string, a *verify.Agreement) {
 		if a.OK() || a.First == nil {
 			return
 		}

@@ -5,14 +5,15 @@ import (
 	"slices"
 	"strings"
 
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/emit/targets"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // checkVerifyFlags refuses --layout and --variant values that none of the
 // chosen targets has, and --variant or --dialect given for targets that
 // have none, naming the valid values: a typo must not quietly check
 // everything, or nothing.
-func checkVerifyFlags(fl *verifyFlags, runners []golden.Runner) error {
+func checkVerifyFlags(fl *verifyFlags, runners []verify.Runner) error {
 	chosen := chosenRunners(fl.targets, runners)
 	var layouts, variants []string
 	sql := false
@@ -55,16 +56,16 @@ func checkVerifyFlags(fl *verifyFlags, runners []golden.Runner) error {
 }
 
 // chosenRunners are the runners --target names (all without it); unknown
-// names are left to golden.Verify, which names the valid ones.
-func chosenRunners(targets []string, runners []golden.Runner) []golden.Runner {
-	if len(targets) == 0 {
+// names are left to verify.Verify, which names the valid ones.
+func chosenRunners(names []string, runners []verify.Runner) []verify.Runner {
+	if len(names) == 0 {
 		return runners
 	}
-	var out []golden.Runner
+	var out []verify.Runner
 	for _, r := range runners {
-		for _, t := range targets {
+		for _, t := range names {
 			t = strings.ToLower(strings.TrimSpace(t))
-			if t == r.Name() || t == "sql" && isSQLRunner(r.Name()) {
+			if tg, _ := targets.Runs(r.Name()); t == r.Name() || t == tg.Name {
 				out = append(out, r)
 				break
 			}
@@ -73,8 +74,11 @@ func chosenRunners(targets []string, runners []golden.Runner) []golden.Runner {
 	return out
 }
 
+// isSQLRunner reports whether the runner runs a target of several engines
+// (SQL's), whose variants are dialects.
 func isSQLRunner(name string) bool {
-	return name == "sqlite" || name == "duckdb" || name == "postgres"
+	tg, _ := targets.Runs(name)
+	return tg.Engines != nil
 }
 
 func hasFoldName(list []string, s string) bool {

@@ -8,7 +8,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // verifyChunk is the most rows of --data verify holds at once. A file
@@ -18,18 +18,18 @@ import (
 // bounded by the chunk whatever the file's size. A variable for tests.
 var verifyChunk = 1 << 20
 
-// verifyStream runs golden.Verify over the rows rr reads (none when rr is
+// verifyStream runs verify.Verify over the rows rr reads (none when rr is
 // nil), a chunk at a time, and merges the reports into one, as if every
 // row had been checked at once: counts add up, the largest difference and
 // the first mismatching row are over all rows, and the coverage is that of
 // all the rows (kept exact by holding one row per leaf first reached).
 // ex, when set, gives the recorded outputs of each chunk's rows.
-func verifyStream(ctx context.Context, f *forest.Forest, rr *forest.RowReader, ex *expectedReader, dataPath string, o golden.VerifyOptions) (*golden.Report, error) {
+func verifyStream(ctx context.Context, f *forest.Forest, rr *forest.RowReader, ex *expectedReader, dataPath string, o verify.VerifyOptions) (*verify.Report, error) {
 	if rr == nil {
-		rep, err := golden.Verify(ctx, f, nil, o)
+		rep, err := verify.Verify(ctx, f, nil, o)
 		return rep, optionsError(err)
 	}
-	var total *golden.Report
+	var total *verify.Report
 	seen := 0 // rows read before this chunk
 	cov := newCoverRows(f)
 	rows, err := rr.Next(verifyChunk)
@@ -46,7 +46,7 @@ func verifyStream(ctx context.Context, f *forest.Forest, rr *forest.RowReader, e
 				return nil, err
 			}
 		}
-		rep, verr := golden.Verify(ctx, f, rows, co)
+		rep, verr := verify.Verify(ctx, f, rows, co)
 		if verr != nil {
 			return nil, optionsError(verr)
 		}
@@ -62,16 +62,16 @@ func verifyStream(ctx context.Context, f *forest.Forest, rr *forest.RowReader, e
 		if n == 0 && o.Probes {
 			limit := o.MaxRows
 			if limit == 0 {
-				limit = golden.DefaultMaxRows
+				limit = verify.DefaultMaxRows
 			}
-			leaves, thresholds, _ := golden.ProbeRows(f, limit)
+			leaves, thresholds, _ := verify.ProbeRows(f, limit)
 			cov.addAll(leaves)
 			cov.addAll(thresholds)
 		}
 		total = mergeReports(total, rep)
 		if nerr == io.EOF {
 			c := compile.Cover(f, cov.rows)
-			total.Coverage = golden.Coverage{Leaves: c.Leaves, LeavesHit: c.LeavesHit, Branches: c.Branches, BranchesHit: c.BranchesHit}
+			total.Coverage = verify.Coverage{Leaves: c.Leaves, LeavesHit: c.LeavesHit, Branches: c.Branches, BranchesHit: c.BranchesHit}
 			break
 		}
 		seen += rows.Len()
@@ -88,7 +88,7 @@ func verifyStream(ctx context.Context, f *forest.Forest, rr *forest.RowReader, e
 	return total, nil
 }
 
-// optionsError is golden.Verify's error, which is about the options asked
+// optionsError is verify.Verify's error, which is about the options asked
 // for (an unknown target, say), as a usage error.
 func optionsError(err error) error {
 	if err == nil {
@@ -140,7 +140,7 @@ func (c *coverRows) addRow(x []float64) {
 
 // mergeReports adds the report of the next chunk to total (nil for the
 // first), check by check.
-func mergeReports(total, rep *golden.Report) *golden.Report {
+func mergeReports(total, rep *verify.Report) *verify.Report {
 	if total == nil {
 		return rep
 	}
@@ -148,7 +148,7 @@ func mergeReports(total, rep *golden.Report) *golden.Report {
 	total.Rows += rep.Rows
 	total.Given += rep.Given
 	total.Expected = mergeAgreement(total.Expected, rep.Expected, offset)
-	byName := map[string]*golden.Check{}
+	byName := map[string]*verify.Check{}
 	for _, ch := range total.Checks {
 		byName[ch.Target+"|"+ch.Name()] = ch
 	}
@@ -161,7 +161,7 @@ func mergeReports(total, rep *golden.Report) *golden.Report {
 		t.Rows += ch.Rows
 		t.Matches += ch.Matches
 		t.LabelMismatches += ch.LabelMismatches
-		t.MaxAbsDiff = golden.Num(math.Max(float64(t.MaxAbsDiff), float64(ch.MaxAbsDiff)))
+		t.MaxAbsDiff = verify.Num(math.Max(float64(t.MaxAbsDiff), float64(ch.MaxAbsDiff)))
 		t.Build += ch.Build
 		t.Run += ch.Run
 		if t.First == nil && ch.First != nil {
@@ -170,17 +170,17 @@ func mergeReports(total, rep *golden.Report) *golden.Report {
 		}
 		t.Expected = mergeAgreement(t.Expected, ch.Expected, offset)
 		switch {
-		case t.Status == golden.Failed:
-		case ch.Status == golden.Failed:
+		case t.Status == verify.Failed:
+		case ch.Status == verify.Failed:
 			t.Status, t.Reason = ch.Status, ch.Reason
-		case ch.Status == golden.Differ:
-			t.Status = golden.Differ
+		case ch.Status == verify.Differ:
+			t.Status = verify.Differ
 		}
 	}
 	return total
 }
 
-func mergeAgreement(a, b *golden.Agreement, offset int) *golden.Agreement {
+func mergeAgreement(a, b *verify.Agreement, offset int) *verify.Agreement {
 	if a == nil || b == nil {
 		if a == nil {
 			return b
@@ -189,7 +189,7 @@ func mergeAgreement(a, b *golden.Agreement, offset int) *golden.Agreement {
 	}
 	a.Rows += b.Rows
 	a.Matches += b.Matches
-	a.MaxAbsDiff = golden.Num(math.Max(float64(a.MaxAbsDiff), float64(b.MaxAbsDiff)))
+	a.MaxAbsDiff = verify.Num(math.Max(float64(a.MaxAbsDiff), float64(b.MaxAbsDiff)))
 	if a.First == nil && b.First != nil {
 		b.First.Index += offset
 		a.First = b.First

@@ -12,17 +12,17 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
-	"github.com/sawmill-dev/sawmill/golden"
+	"github.com/sawmill-dev/sawmill/verify"
 )
 
 // registeredTargets are the runner names verify can use in this build.
 func registeredTargets(t *testing.T) []string {
 	var names []string
-	for _, r := range golden.Runners() {
+	for _, r := range verify.Runners() {
 		names = append(names, r.Name())
 	}
 	if len(names) == 0 {
-		t.Skip("no target runner is registered in golden.Runners yet")
+		t.Skip("no target runner is registered in verify.Runners yet")
 	}
 	return names
 }
@@ -152,16 +152,16 @@ func TestVerifyJSON(t *testing.T) {
 // Without --require a target that could not run is printed and does not
 // fail; with it, it does.
 func TestVerifyVerdict(t *testing.T) {
-	rep := &golden.Report{Checks: []*golden.Check{
-		{Target: "go", Layout: "nested", Status: golden.Agree},
-		{Target: "postgres", Layout: "nested", Status: golden.NotRun, Reason: "no server at 127.0.0.1:5432: connection refused"},
+	rep := &verify.Report{Checks: []*verify.Check{
+		{Target: "go", Layout: "nested", Status: verify.Agree},
+		{Target: "postgres", Layout: "nested", Status: verify.NotRun, Reason: "no server at 127.0.0.1:5432: connection refused"},
 	}}
 	require.NoError(t, verifyVerdict(rep, "", false))
 	err := verifyVerdict(rep, "", true)
 	require.ErrorContains(t, err, "postgres nested could not run (--require): no server at 127.0.0.1:5432")
 
-	rep.Checks = append(rep.Checks, &golden.Check{Target: "c", Variant: "float", Layout: "table", Status: golden.Differ,
-		First: &golden.Row{Index: 4, Line: 6, Origin: "line 6"}})
+	rep.Checks = append(rep.Checks, &verify.Check{Target: "c", Variant: "float", Layout: "table", Status: verify.Differ,
+		First: &verify.Row{Index: 4, Line: 6, Origin: "line 6"}})
 	err = verifyVerdict(rep, "readings.csv", false)
 	require.ErrorContains(t, err, "c/float table differs at readings.csv:6")
 }

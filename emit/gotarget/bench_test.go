@@ -1,0 +1,292 @@
+package gotarget
+
+import (
+	"bytes"
+	"encoding/binary"
+	"fmt"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/sawmill-dev/sawmill/bench/train/synth"
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/forest/train"
+)
+
+// BenchmarkLayouts holds the emitted Go of every layout against the
+// interpreter on forests grown by sawmill's trainer on the invented
+// benchmark table (bench/train/synth, 20,000 rows of 20 features), scored on
+// 20,000 fresh rows of the same table:
+//
+//	go test ./emit/gotarget -run '^$' -bench Layouts -benchtime 1x
+//
+// Each size builds one module with a package per layout and a driver that
+// checks every output against the interpreter's bits, then times 7 passes
+// over the rows per contender, interleaved; the interpreter is timed the
+// same way in this process before and after. It prints ns/row, ns per split
+// visited and the speedup over the interpreter.
+func BenchmarkLayouts(b *testing.B) {
+	if _, err := exec.LookPath("go"); err != nil {
+		b.Skip("no go command on PATH: the benchmark builds the emitted code")
+	}
+	x, y := synth.Table(20000, 1)
+	yf := make([]float64, len(y))
+	for i, v := range y {
+		yf[i] = float64(v)
+	}
+	data := &train.Data{Features: synth.Names(), X: x, Task: forest.Classification, Classes: []string{"a", "b"}, Y: yf, Label: "label"}
+	rows, _ := synth.Table(20000, 2)
+	series := []struct {
+		name     string
+		maxDepth int
+		trees    []int
+	}{
+		{"full", 0, []int{2, 12, 24, 48}},
+		{"depth8", 8, []int{25, 125, 250}},
+	}
+	for _, s := range series {
+		res, err := train.Train(data, train.Settings{Trees: slices.Max(s.trees), Seed: 1, SkipImportance: true, MaxDepth: s.maxDepth})
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, nt := range s.trees {
+			f := *res.Forest
+			f.Trees = f.Trees[:nt]
+			b.Run(fmt.Sprintf("%s/trees=%d", s.name, nt), func(b *testing.B) {
+				benchForest(b, &f, rows)
+			})
+		}
+	}
+}
+
+func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
+	p, _, err := compile.Compile(f, compile.Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	nf, k := len(f.Features), f.NumOutputs()
+	n := len(rows) / nf
+	want := f.PredictBatch(rows)
+	visits := 0
+	for r := 0; r < n; r++ {
+		for ti := range f.Trees {
+			t := &f.Trees[ti]
+			for i := 0; t.Left[i] != -1; visits++ {
+				if rows[r*nf+t.Feature[i]] <= t.Threshold[i] {
+					i = t.Left[i]
+				} else {
+					i = t.Right[i]
+				}
+			}
+		}
+	}
+	perRow := float64(visits) / float64(n)
+
+	dir := b.TempDir()
+	layouts := []string{emit.Nested, emit.Table, emit.Branchless}
+	for _, l := range layouts {
+		files, err := Emit(p, Options{Package: l, Layout: l, NoTest: true})
+		if err != nil {
+			b.Fatal(err)
+		}
+		if err := os.MkdirAll(filepath.Join(dir, l), 0o755); err != nil {
+			b.Fatal(err)
+		}
+		for _, fl := range files {
+			if err := os.WriteFile(filepath.Join(dir, l, fl.Name), fl.Data, 0o644); err != nil {
+				b.Fatal(err)
+			}
+		}
+	}
+	writeFloats(b, filepath.Join(dir, "rows.bin"), rows)
+	writeFloats(b, filepath.Join(dir, "want.bin"), want)
+	// The driver imports sawmill/forest from this checkout, so that the
+	// interpreter is timed in the same process, interleaved with the layouts.
+	root, err := filepath.Abs(filepath.Join("..", ".."))
+	if err != nil {
+		b.Fatal(err)
+	}
+	mod := fmt.Sprintf("module bench\n\ngo 1.21\n\nrequire github.com/sawmill-dev/sawmill v0.0.0\n\nreplace github.com/sawmill-dev/sawmill => %s\n", root)
+	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte(mod), 0o644); err != nil {
+		b.Fatal(err)
+	}
+	sum, err := os.ReadFile(filepath.Join(root, "go.sum"))
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "go.sum"), sum, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	model, err := forestJSON(f)
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "model.json"), model, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "main.go"), []byte(benchDriver(layouts, nf, k)), 0o644); err != nil {
+		b.Fatal(err)
+	}
+	start := time.Now()
+	build := exec.Command("go", "build", "-o", "bench", ".")
+	build.Dir = dir
+	build.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=-mod=mod", "GOTOOLCHAIN=local", "GOPROXY=off", "CGO_ENABLED=0")
+	if out, err := build.CombinedOutput(); err != nil {
+		b.Fatalf("go build: %v\n%s", err, out)
+	}
+	buildTime := time.Since(start)
+
+	run := exec.Command("./bench")
+	run.Dir = dir
+	out, err := run.CombinedOutput()
+	if err != nil {
+		b.Fatalf("bench driver: %v\n%s", err, out)
+	}
+	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
+	var interpNs float64
+	if fs := strings.Fields(lines[0]); len(fs) != 2 || fs[0] != "interpreter" {
+		b.Fatalf("bench driver printed %q", lines[0])
+	} else if interpNs, err = strconv.ParseFloat(fs[1], 64); err != nil {
+		b.Fatal(err)
+	}
+	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v",
+		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond))
+	b.Logf("%-12s %10.0f ns/row %6.2f ns/split", "interpreter", interpNs, interpNs/perRow)
+	b.ReportMetric(interpNs, "interp-ns/row")
+	for _, line := range lines[1:] {
+		fs := strings.Fields(line)
+		ns, err := strconv.ParseFloat(fs[1], 64)
+		if err != nil {
+			b.Fatalf("bench driver printed %q", line)
+		}
+		b.Logf("%-12s %10.0f ns/row %6.2f ns/split %5.2fx the interpreter", fs[0], ns, ns/perRow, interpNs/ns)
+		b.ReportMetric(ns, fs[0]+"-ns/row")
+		b.ReportMetric(interpNs/ns, fs[0]+"-speedup")
+	}
+}
+
+func writeFloats(b *testing.B, path string, v []float64) {
+	buf := make([]byte, 0, 8*len(v))
+	for _, x := range v {
+		buf = binary.LittleEndian.AppendUint64(buf, math.Float64bits(x))
+	}
+	if err := os.WriteFile(path, buf, 0o644); err != nil {
+		b.Fatal(err)
+	}
+}
+
+func median(v []float64) float64 {
+	s := slices.Clone(v)
+	slices.Sort(s)
+	return s[len(s)/2]
+}
+
+// benchDriver is the main of the benchmark module.
+func benchDriver(layouts []string, nf, k int) string {
+	var b bytes.Buffer
+	fmt.Fprintf(&b, `package main
+
+import (
+	"encoding/binary"
+	"fmt"
+	"math"
+	"os"
+	"slices"
+	"time"
+
+	"github.com/sawmill-dev/sawmill/forest"
+`)
+	for _, l := range layouts {
+		fmt.Fprintf(&b, "\t%q\n", "bench/"+l)
+	}
+	fmt.Fprintf(&b, `)
+
+func floats(path string) []float64 {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		panic(err)
+	}
+	v := make([]float64, len(b)/8)
+	for i := range v {
+		v[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
+	}
+	return v
+}
+
+type scorer struct {
+	name    string
+	predict func(*[%[1]d]float64) [%[2]d]float64
+}
+
+func main() {
+	flat, want := floats("rows.bin"), floats("want.bin")
+	rows := make([][%[1]d]float64, len(flat)/%[1]d)
+	for r := range rows {
+		copy(rows[r][:], flat[r*%[1]d:])
+	}
+	f, err := forest.ReadFile("model.json")
+	if err != nil {
+		panic(err)
+	}
+	out := make([]float64, %[2]d)
+	scorers := []scorer{
+		{"interpreter", func(x *[%[1]d]float64) [%[2]d]float64 {
+			f.Predict(x[:], out)
+			return [%[2]d]float64(out)
+		}},
+`, nf, k)
+	for _, l := range layouts {
+		fmt.Fprintf(&b, "\t\t{%q, %s.Predict},\n", l, l)
+	}
+	fmt.Fprintf(&b, `	}
+	for _, s := range scorers {
+		for r := range rows {
+			out := s.predict(&rows[r])
+			for j, v := range out {
+				if math.Float64bits(v) != math.Float64bits(want[r*%[1]d+j]) {
+					fmt.Fprintf(os.Stderr, "%%s: row %%d output %%d: %%v, interpreter %%v\n", s.name, r, j, v, want[r*%[1]d+j])
+					os.Exit(1)
+				}
+			}
+		}
+	}
+	times := make([][]float64, len(scorers))
+	sink := 0.0
+	for rep := 0; rep < 7; rep++ {
+		for i, s := range scorers {
+			start := time.Now()
+			done := 0
+			for time.Since(start) < 50*time.Millisecond {
+				for r := range rows {
+					sink += s.predict(&rows[r])[0]
+				}
+				done += len(rows)
+			}
+			times[i] = append(times[i], float64(time.Since(start).Nanoseconds())/float64(done))
+		}
+	}
+	for i, s := range scorers {
+		slices.Sort(times[i])
+		fmt.Println(s.name, times[i][len(times[i])/2])
+	}
+	if sink == 12345.678 {
+		fmt.Println(sink)
+	}
+}
+`, k)
+	return b.String()
+}
+
+func forestJSON(f *forest.Forest) ([]byte, error) {
+	var b bytes.Buffer
+	err := f.Encode(&b)
+	return b.Bytes(), err
+}

@@ -1,0 +1,110 @@
+package sqltarget
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"unicode/utf8"
+)
+
+// checkText rejects text that no engine can hold in an identifier or a
+// string literal: NUL bytes, invalid UTF-8 and the empty string.
+func checkText(what, s string) error {
+	switch {
+	case s == "":
+		return fmt.Errorf("%s is empty: SQL has no empty identifier", what)
+	case strings.IndexByte(s, 0) >= 0:
+		return fmt.Errorf("%s %q holds a NUL byte, which no SQL engine accepts in identifiers or strings\nhint: rename it in the model or the options", what, s)
+	case !utf8.ValidString(s):
+		return fmt.Errorf("%s %q is not valid UTF-8", what, s)
+	}
+	return nil
+}
+
+// ident quotes s as a delimited identifier (ISO/IEC 9075 <delimited
+// identifier>): inside double quotes a double quote is doubled and every
+// other character, backslash included, stands for itself, in all four
+// dialects. s must have passed checkText.
+func ident(s string) string {
+	return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
+}
+
+// str quotes s as a character string literal: inside single quotes a single
+// quote is doubled and nothing else is special. This holds in SQLite and
+// DuckDB, in ANSI SQL, and in PostgreSQL with standard_conforming_strings on
+// (its default since 9.1); with it off, PostgreSQL would read backslashes as
+// escapes, so the header of every postgres file says so.
+func str(s string) string {
+	return "'" + strings.ReplaceAll(s, "'", "''") + "'"
+}
+
+// num (Literal) spells a finite float64 so that the dialect reads back exactly the same
+// double, with the type double precision (never an exact numeric):
+//
+//   - sqlite, duckdb: the shortest round-trip decimal in exponent form,
+//     "1.5e+00". SQLite reads any literal with an exponent as REAL (an
+//     integer-looking literal would be INTEGER and add in integer
+//     arithmetic); DuckDB reads a literal with an exponent as DOUBLE, while
+//     "0.1" without one would be DECIMAL(1,1) and add exactly. Both keep -0
+//     ("-0e+00").
+//   - postgres: the same digits cast, "1.5e+00::float8". PostgreSQL types
+//     every literal with a point or exponent as numeric, and numeric sums are
+//     exact; the cast goes through float8in (correctly rounded). numeric has
+//     no -0, so -0 is written -(0e+00::float8), a float8 negation.
+//   - ansi: CAST(1.5E+00 AS DOUBLE PRECISION). ISO/IEC 9075 leaves the
+//     precision of an approximate numeric literal to the implementation, so
+//     the cast pins it. -0 is CAST('-0E+00' AS DOUBLE PRECISION), a cast from
+//     text: SQLite turns -CAST(0E+00 AS ...) into +0, PostgreSQL reads -0E+00
+//     as numeric, which has no -0.
+func (d Dialect) num(v float64) string { return d.Literal(v) }
+
+// Literal spells a finite float64 as the dialect's double literal (see num).
+func (d Dialect) Literal(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		panic(fmt.Sprintf("BUG: sql literal %v is not finite", v))
+	}
+	s := strconv.FormatFloat(v, 'e', -1, 64)
+	negZero := v == 0 && math.Signbit(v)
+	switch d {
+	case Postgres:
+		if negZero {
+			return "-(0e+00::float8)"
+		}
+		return s + "::float8"
+	case ANSI:
+		s = strings.ToUpper(s)
+		if negZero {
+			return "CAST('-0E+00' AS DOUBLE PRECISION)"
+		}
+		return "CAST(" + s + " AS DOUBLE PRECISION)"
+	}
+	return s
+}
+
+// foldName is the form under which the dialect compares identifiers:
+// SQLite and DuckDB match even quoted identifiers without regard to ASCII
+// case; PostgreSQL keeps case but truncates identifiers to 63 bytes
+// (NAMEDATALEN-1); ANSI compares delimited identifiers as written.
+func (d Dialect) foldName(s string) string {
+	switch d {
+	case SQLite, DuckDB:
+		b := []byte(s)
+		for i, c := range b {
+			if 'A' <= c && c <= 'Z' {
+				b[i] = c + 'a' - 'A'
+			}
+		}
+		return string(b)
+	case Postgres:
+		if len(s) <= 63 {
+			return s
+		}
+		n := 63
+		for n > 0 && !utf8.RuneStart(s[n]) {
+			n--
+		}
+		return s[:n]
+	}
+	return s
+}

@@ -1,0 +1,34 @@
+package verify
+
+import (
+	"context"
+	"errors"
+	"path/filepath"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/forest"
+)
+
+func TestMeasureARM(t *testing.T) {
+	f, err := forest.ReadFile(filepath.Join(goldenCases, "trained-wine", "model.json"))
+	require.NoError(t, err)
+	p, _, err := compile.Compile(f, compile.Options{SingleInputs: true})
+	require.NoError(t, err)
+	sizes, err := MeasureARM(context.Background(), p, ctarget.Options{Float: true})
+	if errors.Is(err, ErrNoARM) {
+		t.Skip("arm-none-eabi-gcc is not on PATH: no Cortex-M4 sizes")
+	}
+	require.NoError(t, err)
+	require.Len(t, sizes, len(ctarget.Layouts()))
+	for _, s := range sizes {
+		require.NotNil(t, s.ARM, s.Layout)
+		t.Logf("%s: tables %d bytes; Cortex-M4 -Os object: .text %d, .rodata %d, .data+.bss %d", s.Layout, s.TableBytes, s.ARM.Text, s.ARM.Rodata, s.ARM.Data)
+		require.Greater(t, s.ARM.Text, 0)
+		require.GreaterOrEqual(t, s.ARM.Rodata, s.TableBytes, "the tables are in .rodata")
+		require.Zero(t, s.ARM.Data, "generated code has no writable data")
+	}
+}

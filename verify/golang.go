@@ -1,0 +1,284 @@
+package verify
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"fmt"
+	"go/format"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/gotarget"
+	"github.com/sawmill-dev/sawmill/forest"
+)
+
+// goRunner builds emitted Go with the real toolchain. The package goes into
+// a temporary module (module sawmilltest) with one more test file, a driver
+// that reads rows as float64 bit patterns and writes outputs the same way,
+// so nothing is lost to decimal formatting. One go test run then vets the
+// package and its tests with every go vet check, builds them, runs the
+// package's own model_test.go and scores the rows; the files are also
+// checked to be gofmt-clean.
+type goRunner struct {
+	// NoChecks skips vet and gofmt (benchmarks).
+	NoChecks bool
+}
+
+func (goRunner) Name() string { return gotarget.Name }
+
+func (goRunner) Layouts() []string { return gotarget.Layouts() }
+
+func (goRunner) Variants() []string { return []string{""} }
+
+func (goRunner) CompileOptions(string) compile.Options { return compile.Options{} }
+
+// Tolerance: Go scores float64 with the same operations as the interpreter
+// (and the same math.Exp), so every output must be bit-identical.
+func (goRunner) Tolerance(string, *compile.Program) (bool, float64) { return true, 0 }
+
+// goPackage is the package name used in the test module; a name that is
+// not "model" checks that Options.Package reaches every file.
+const goPackage = "forestmodel"
+
+func (goRunner) Emit(p *compile.Program, layout, _ string) ([]emit.File, error) {
+	return gotarget.Emit(p, gotarget.Options{Package: goPackage, Layout: layout, Version: SnapshotVersion})
+}
+
+// goDriver is a test beside the emitted package's own: it scores the rows
+// in $SAWMILL_ROWS (space-separated hex bit patterns, one row a line) into
+// $SAWMILL_OUT (the outputs, then the class or -1), after a first line
+// holding the scoring time in nanoseconds.
+const goDriver = `package ` + goPackage + `
+
+import (
+	"bufio"
+	"fmt"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+)
+
+func TestSawmillScore(t *testing.T) {
+	rows := os.Getenv("SAWMILL_ROWS")
+	if rows == "" {
+		t.Skip("SAWMILL_ROWS is not set: no rows to score")
+	}
+	data, err := os.ReadFile(rows)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(strings.TrimSuffix(string(data), "\n"), "\n")
+	if len(data) == 0 {
+		lines = nil
+	}
+	xs := make([][NumFeatures]float64, len(lines))
+	for r, line := range lines {
+		for i, f := range strings.Fields(line) {
+			b, err := strconv.ParseUint(f, 16, 64)
+			if err != nil {
+				t.Fatal(err)
+			}
+			xs[r][i] = math.Float64frombits(b)
+		}
+	}
+	outs := make([][NumOutputs]float64, len(xs))
+	classes := make([]int, len(xs))
+	start := time.Now()
+	for r := range xs {
+		outs[r] = Predict(&xs[r])
+		classes[r] = class(&xs[r])
+	}
+	elapsed := time.Since(start)
+	fh, err := os.Create(os.Getenv("SAWMILL_OUT"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := bufio.NewWriter(fh)
+	fmt.Fprintln(w, elapsed.Nanoseconds())
+	for r := range outs {
+		for _, v := range outs[r] {
+			fmt.Fprintf(w, "%x ", math.Float64bits(v))
+		}
+		fmt.Fprintln(w, classes[r])
+	}
+	if err := w.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	if err := fh.Close(); err != nil {
+		t.Fatal(err)
+	}
+}
+`
+
+const goClassifierTail = `
+func class(x *[NumFeatures]float64) int { return PredictClass(x) }
+`
+
+const goRegressorTail = `
+func class(*[NumFeatures]float64) int { return -1 }
+`
+
+func (r goRunner) Score(ctx context.Context, p *compile.Program, layout, _ string, rows *forest.Rows, dir string) (*Result, error) {
+	env, err := goEnv()
+	if err != nil {
+		return nil, err
+	}
+	files, err := gotarget.Emit(p, gotarget.Options{Package: goPackage, Layout: layout})
+	if err != nil {
+		return nil, err
+	}
+	pkgDir := filepath.Join(dir, goPackage)
+	if err := os.MkdirAll(pkgDir, 0o755); err != nil {
+		return nil, err
+	}
+	for _, f := range files {
+		if !r.NoChecks {
+			if formatted, err := format.Source(f.Data); err != nil || !bytes.Equal(formatted, f.Data) {
+				return nil, fmt.Errorf("%s: generated file is not gofmt-clean (%v)", f.Name, err)
+			}
+		}
+		if err := os.WriteFile(filepath.Join(pkgDir, f.Name), f.Data, 0o644); err != nil {
+			return nil, err
+		}
+	}
+	driver := goDriver + goRegressorTail
+	if p.IsClassifier() {
+		driver = goDriver + goClassifierTail
+	}
+	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte("module sawmilltest\n\ngo 1.21\n"), 0o644); err != nil {
+		return nil, err
+	}
+	if err := os.WriteFile(filepath.Join(pkgDir, "sawmill_driver_test.go"), []byte(driver), 0o644); err != nil {
+		return nil, err
+	}
+	var in bytes.Buffer
+	for i := 0; i < rows.Len(); i++ {
+		for j, v := range rows.Row(i) {
+			if j > 0 {
+				in.WriteByte(' ')
+			}
+			in.WriteString(strconv.FormatUint(math.Float64bits(v), 16))
+		}
+		in.WriteByte('\n')
+	}
+	rowsFile, outFile := filepath.Join(dir, "rows.txt"), filepath.Join(dir, "out.txt")
+	if err := os.WriteFile(rowsFile, in.Bytes(), 0o644); err != nil {
+		return nil, err
+	}
+	vet := "-vet=all"
+	if r.NoChecks {
+		vet = "-vet=off"
+	}
+	start := time.Now()
+	env = append(env[:len(env):len(env)], "SAWMILL_ROWS="+rowsFile, "SAWMILL_OUT="+outFile)
+	if err := goTool(ctx, env, dir, "go", "test", "-count=1", vet, "./"+goPackage); err != nil {
+		return nil, err
+	}
+	total := time.Since(start)
+	out, err := os.ReadFile(outFile)
+	if err != nil {
+		return nil, fmt.Errorf("go test ran but wrote no outputs: %v", err)
+	}
+	res := &Result{}
+	if err := parseGoOutput(bytes.NewBuffer(out), p, rows.Len(), res); err != nil {
+		return nil, err
+	}
+	res.Build = total - res.Run
+	res.Toolchain = strings.TrimSpace(goEnvOnce.version + " test " + vet)
+	return res, nil
+}
+
+func parseGoOutput(out *bytes.Buffer, p *compile.Program, n int, res *Result) error {
+	sc := bufio.NewScanner(out)
+	sc.Buffer(make([]byte, 1<<20), 1<<30)
+	k := p.NumOutputs
+	if !sc.Scan() {
+		return fmt.Errorf("go driver output is empty")
+	}
+	ns, err := strconv.ParseInt(sc.Text(), 10, 64)
+	if err != nil {
+		return fmt.Errorf("go driver output line 1: %v", err)
+	}
+	res.Run = time.Duration(ns)
+	line := 0
+	for sc.Scan() {
+		line++
+		f := strings.Fields(sc.Text())
+		if len(f) != k+1 {
+			return fmt.Errorf("go driver output line %d: %d fields, want %d", line, len(f), k+1)
+		}
+		for _, s := range f[:k] {
+			b, err := strconv.ParseUint(s, 16, 64)
+			if err != nil {
+				return fmt.Errorf("go driver output line %d: %v", line, err)
+			}
+			res.Outputs = append(res.Outputs, math.Float64frombits(b))
+		}
+		if p.IsClassifier() {
+			c, err := strconv.Atoi(f[k])
+			if err != nil {
+				return fmt.Errorf("go driver output line %d: %v", line, err)
+			}
+			res.Classes = append(res.Classes, c)
+		}
+	}
+	if line != n {
+		return fmt.Errorf("go driver printed %d rows, want %d", line, n)
+	}
+	return nil
+}
+
+var goEnvOnce struct {
+	sync.Once
+	env     []string
+	version string // "go1.26.8", as go env GOVERSION says
+	err     error
+}
+
+// goEnv is the environment for the go command: the user's build cache
+// (so repeated builds of the standard library are free), no workspace, no
+// network, no toolchain switch. It is ErrSkip when no go command is found.
+func goEnv() ([]string, error) {
+	goEnvOnce.Do(func() {
+		if _, err := exec.LookPath("go"); err != nil {
+			goEnvOnce.err = ErrSkip
+			return
+		}
+		env := os.Environ()
+		env = append(env, "GOWORK=off", "GOFLAGS=", "GOTOOLCHAIN=local", "GOPROXY=off", "GO111MODULE=on", "CGO_ENABLED=0")
+		out, err := exec.Command("go", "env", "GOCACHE").Output()
+		if c := strings.TrimSpace(string(out)); err != nil || c == "" || c == "off" {
+			env = append(env, "GOCACHE="+filepath.Join(os.TempDir(), "sawmill-gocache"))
+		}
+		goEnvOnce.env = env
+		if v, err := exec.Command("go", "env", "GOVERSION").Output(); err == nil {
+			goEnvOnce.version = strings.TrimSpace(string(v))
+		}
+	})
+	return goEnvOnce.env, goEnvOnce.err
+}
+
+// goTool runs one go command in dir and returns its output in the error
+// when it fails.
+func goTool(ctx context.Context, env []string, dir string, name string, args ...string) error {
+	cmd := exec.CommandContext(ctx, name, args...)
+	cmd.Dir = dir
+	cmd.Env = env
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		return fmt.Errorf("%s %s: %v\n%s", name, strings.Join(args, " "), err, out)
+	}
+	return nil
+}
