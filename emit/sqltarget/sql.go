@@ -278,6 +278,18 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	if s := p.Scale(); p.Float32Accumulate() && s != 1 && math.IsInf(float64(float32(s)), 0) {
 		return nil, &emit.Unsupported{Target: "sql", Construct: fmt.Sprintf("a transform scale of %v, which float32 rounds to an infinity", s)}
 	}
+	// A float32 sum, or the sum times the scale, that can reach float32's
+	// range turns into an infinity in the interpreter (and NaN through
+	// softmax or normalize), where the SQL engines' emulation of float32
+	// rounding stays finite or fails: refused, never scored differently
+	// (differential seed 1094: a leaf of 3.4028234663852886e+38 and a scale
+	// of 1.0000001).
+	if p.Float32Accumulate() {
+		leaves, base := p.Magnitudes()
+		if bound := (leaves + base) * max(1, math.Abs(p.Scale())); bound >= math.MaxFloat32 {
+			return nil, &emit.Unsupported{Target: "sql", Construct: fmt.Sprintf("float32 sums that can reach float32's range (leaves and base score up to %v in size)", bound)}
+		}
+	}
 	if g.d == SQLite {
 		seen := map[float64]bool{}
 		for ti := range p.Trees {
