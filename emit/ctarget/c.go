@@ -99,7 +99,7 @@ func Target() emit.Target {
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
-	case emit.Nested, emit.Table:
+	case emit.Nested, emit.Table, emit.Binned:
 		return o.Layout, "asked for", nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
@@ -129,6 +129,10 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		g.nested(&body)
 	case emit.Table:
 		if err := g.table(&body); err != nil {
+			return nil, err
+		}
+	case emit.Binned:
+		if err := g.binned(&body); err != nil {
 			return nil, err
 		}
 	default:
@@ -765,8 +769,11 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == emit.Binned || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
+	}
+	if g.layout == emit.Binned {
+		w.line("#include <string.h>")
 	}
 	if g.f32 {
 		w.line("")

@@ -18,7 +18,7 @@ type Size struct {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table} }
+func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned} }
 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored). It emits each layout, so it costs what Emit costs.
@@ -37,6 +37,10 @@ func Sizes(p *compile.Program, o Options) ([]Size, error) {
 		case emit.Table:
 			if err := g.table(&body); err != nil {
 				return nil, err
+			}
+		case emit.Binned:
+			if err := g.binned(&body); err != nil {
+				continue // set splits, or too many cuts: no binned row
 			}
 		}
 		s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables}
