@@ -5,6 +5,11 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
@@ -137,5 +142,85 @@ func checkBinned(t *testing.T, f *forest.Forest, rows *forest.Rows) {
 		m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), exact, bound)
 		require.True(t, m.OK(), "%s: %s", variant, m)
 		t.Logf("%s: %d rows, %s", variant, len(rows.Line), m)
+	}
+}
+
+// softFloat matches the ARM EABI run-time routines of floating-point
+// arithmetic, comparison and conversion, and softFloatCompare those that
+// compare (ARM IHI 0043, "Run-time ABI for the ARM Architecture", section
+// 4.1.2), which an FPU-less core calls for every such operation.
+var (
+	softFloat        = regexp.MustCompile(`__aeabi_(c?[df](add|sub|rsub|mul|div|neg|cmp\w*)|[df]2\w+|u?[il]2[df]|ul2[df])`)
+	softFloatCompare = regexp.MustCompile(`__aeabi_c?[df]cmp\w*`)
+)
+
+// armCalls compiles the C file for an ARMv6-M core (Cortex-M0: no FPU),
+// every function kept out of line, and returns per function the run-time
+// routines it calls.
+func armCalls(t *testing.T, files []emit.File, layout string) map[string][]string {
+	for _, tool := range []string{"arm-none-eabi-gcc", "arm-none-eabi-objdump"} {
+		if _, err := exec.LookPath(tool); err != nil {
+			if requireEngines {
+				t.Fatalf("%s is not on PATH, and SAWMILL_REQUIRE_ENGINES is set", tool)
+			}
+			t.Skipf("%s is not on PATH: no ARMv6-M build", tool)
+		}
+	}
+	dir := t.TempDir()
+	for _, f := range files {
+		require.NoError(t, os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644))
+	}
+	obj := filepath.Join(dir, layout+".o")
+	out, err := exec.Command("arm-none-eabi-gcc", "-std=c99", "-Os", "-mcpu=cortex-m0", "-mthumb", "-fno-inline", "-ffunction-sections",
+		"-Wall", "-Werror", "-c", filepath.Join(dir, cName+".c"), "-o", obj).CombinedOutput()
+	require.NoError(t, err, "%s", out)
+	dump, err := exec.Command("arm-none-eabi-objdump", "-dr", obj).Output()
+	require.NoError(t, err)
+	calls := map[string][]string{}
+	fn := ""
+	for _, line := range strings.Split(string(dump), "\n") {
+		if strings.HasSuffix(line, ">:") {
+			fn = line[strings.Index(line, "<")+1 : len(line)-2]
+		}
+		if i := strings.Index(line, "R_ARM_"); i >= 0 {
+			fs := strings.Fields(line[i:])
+			calls[fn] = append(calls[fn], fs[len(fs)-1])
+		}
+	}
+	return calls
+}
+
+// On an ARMv6-M core the binned layout's mapping of a row to bins calls no
+// soft-float routine and its tree walk no soft-float comparison: only the
+// leaf sums (the float leaves widened, added, averaged) are floating point. The table
+// layout, which compares doubles, does call one, so the check can fail.
+func TestCBinnedNoSoftFloatCompare(t *testing.T) {
+	f, err := forest.ReadFile(filepath.Join(goldenCases, "sklearn-breast-cancer", "model.json"))
+	require.NoError(t, err)
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	for _, layout := range []string{emit.Binned, emit.Table} {
+		files, err := ctarget.Emit(p, ctarget.Options{Name: cName, Layout: layout})
+		require.NoError(t, err)
+		calls := armCalls(t, files, layout)
+		var hits []string
+		for _, fn := range []string{cName + "_predict", cName + "_bins", cName + "_key", cName + "_is_nan", cName + "_bits"} {
+			re := softFloat // the mapping: no floating point at all
+			if fn == cName+"_predict" {
+				re = softFloatCompare // the walk, beside the leaf sums
+			}
+			for _, c := range calls[fn] {
+				if re.MatchString(c) {
+					hits = append(hits, fn+": "+c)
+				}
+			}
+		}
+		t.Logf("%s: %v", layout, calls[cName+"_predict"])
+		if layout == emit.Binned {
+			require.Empty(t, hits, "the binned walk must not compare floating point")
+			require.Contains(t, calls, cName+"_bins")
+		} else {
+			require.NotEmpty(t, hits, "the table layout compares doubles: the check must see it")
+		}
 	}
 }
