@@ -32,8 +32,16 @@
 //     (their preorder position is counted on the way down) and index a table
 //     of the distinct leaf vectors; thresholds come from per-feature tables
 //     of the distinct values;
+//   - binned: the table layout's walk over integers. Each used feature's
+//     input is mapped once per row to a bin (a binary search on the IEEE
+//     bits, as integers, of the distinct thresholds it is compared with),
+//     and the splits compare bins: no floating-point operation before the
+//     leaves, exact for every input, split words of the fewest bytes
+//     (24-bit words as a uint16_t and a uint8_t array); see binned.go. Set
+//     splits are refused (emit.Unsupported);
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
-//     tree, else table.
+//     tree, else binned where its tables are smaller than table's (thresholds
+//     that repeat, as with train --max-bins), else table.
 package ctarget
 
 import (
@@ -107,12 +115,12 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 			biggest = max(biggest, len(p.Trees[i].Nodes))
 		}
 		if biggest > AutoNestedTreeNodes {
-			return emit.Table, fmt.Sprintf("a tree of %d nodes, more than %d: one function that size builds slowly", biggest, AutoNestedTreeNodes), nil
+			return tableOrBinned(p, o, fmt.Sprintf("a tree of %d nodes, more than %d: one function that size builds slowly", biggest, AutoNestedTreeNodes))
 		}
 		if n <= AutoNestedNodes {
 			return emit.Nested, fmt.Sprintf("%d nodes, at most %d: nested code is fastest and builds quickly", n, AutoNestedNodes), nil
 		}
-		return emit.Table, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes), nil
+		return tableOrBinned(p, o, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes))
 	}
 	return "", "", emit.UnknownLayout(Name, o.Layout, Layouts())
 }
