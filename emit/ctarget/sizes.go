@@ -73,7 +73,9 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 // 230,856 bytes binned against 252,658 as a table (double C; the split
 // words shrink from 4 bytes to 3); trained without bins, 375,180 against
 // 375,138 (the split words are 4 bytes either way), so table stays (the
-// figures of bench/c/m4.sh, with MAX_BINS=255 for the first).
+// figures of bench/c/m4.sh, with MAX_BINS=255 for the first). The price
+// is speed on a desktop core: its one-lane walk took 1.72 times the table
+// layout's time on the first forest (x86-64, gcc -O2, bench/c/binned.sh).
 func tableOrBinned(p *compile.Program, o Options, why string) (string, string, error) {
 	t, err := sizeOf(p, o, emit.Table)
 	if err != nil {
