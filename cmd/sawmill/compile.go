@@ -83,6 +83,7 @@ type compileFlags struct {
 	selftest  bool     // SQL: also write the self-test script
 	model     *forest.Forest
 	tables    string
+	budget    budgetFlags
 }
 
 func newCompileCmd() *cobra.Command {
@@ -127,6 +128,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep (default: what the dialect's stock engine parses, e.g. 12 for sqlite)")
 	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
+	fl.budget.add(f)
 	return c
 }
 
@@ -163,6 +165,11 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	}
 	if fl.verbose {
 		printPassStats(c.ErrOrStderr(), stats)
+	}
+	if fl.budget.set() {
+		if err := fitBudget(c.Context(), c.OutOrStdout(), p, fl); err != nil {
+			return fmt.Errorf("%s: %v", modelPath, err)
+		}
 	}
 	files, err := t.emit(p, fl)
 	if err != nil {
