@@ -286,3 +286,39 @@ func TestCBinnedNoSoftFloatCompare(t *testing.T) {
 		}
 	}
 }
+
+// With every feature declared integer (forest.WithIntegerFeatures), the
+// binned C build of the floored model scores integer rows, at and around
+// every floored threshold and at the ends of the int32 range, bit for bit
+// as the interpreter scores the original model; the floored integer cuts
+// are floats, so the double build stores 4-byte keys.
+func TestCBinnedIntegerFeatures(t *testing.T) {
+	if err := cTools(testConfig.AllCompilers); err != nil {
+		t.Skipf("C compilers: %v", err)
+	}
+	rng := rand.New(rand.NewPCG(5, 14))
+	var ts []float64
+	for i := 0; i < 40; i++ {
+		ts = append(ts, float64(rng.IntN(2000)-1000)+[]float64{0, 0.5, 0.999, 0.001}[rng.IntN(4)])
+	}
+	f := binnedForest(t, rng, ts, forest.Float64, false, nil)
+	g, changed, err := f.WithIntegerFeatures(f.Features)
+	require.NoError(t, err)
+	require.Positive(t, changed)
+	vals := []float64{math.NaN(), 0, -1, 1, math.MinInt32, math.MaxInt32, -1 << 40, 1 << 40}
+	for _, th := range ts {
+		k := math.Floor(th)
+		vals = append(vals, k-1, k, k+1)
+	}
+	rows := valueRows(f, vals, 7)
+	requireRound(t, g, "up")
+	r := testCRunner()
+	p, _, err := compile.Compile(g, r.CompileOptions("double"))
+	require.NoError(t, err)
+	res, err := r.Score(context.Background(), p, emit.Binned, "double", rows, t.TempDir())
+	require.NoError(t, err)
+	want, wantCls := cReference(f, rows, false) // the original model
+	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), true, 0)
+	require.True(t, m.OK(), "%s", m)
+	t.Logf("%d integer rows, %s", len(rows.Line), m)
+}

@@ -4,11 +4,13 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"strings"
 
 	"github.com/spf13/pflag"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/verify"
 )
 
@@ -58,4 +60,19 @@ func budgetLine(r verify.BudgetRow, chosen bool) string {
 		s += "  <- chosen"
 	}
 	return s
+}
+
+// intFeatures floors the thresholds of the features named by
+// --int-features (forest.WithIntegerFeatures) and says how many changed.
+func intFeatures(w io.Writer, f *forest.Forest, names []string) (*forest.Forest, error) {
+	if len(names) == 0 {
+		return f, nil
+	}
+	g, n, err := f.WithIntegerFeatures(names)
+	if err != nil {
+		return nil, err
+	}
+	fmt.Fprintf(w, "integer features %s: %d thresholds floored (exact for integer inputs; a fraction scores as its ceiling)\n",
+		strings.Join(names, ", "), n)
+	return g, nil
 }

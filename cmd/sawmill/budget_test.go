@@ -104,3 +104,15 @@ func TestBudgetNotForGo(t *testing.T) {
 	require.Equal(t, 2, code)
 	require.Contains(t, errOut, "--flash-budget (c only)")
 }
+
+// --int-features floors the named features' thresholds and says how many;
+// an unknown name is an error naming it.
+func TestCompileIntFeatures(t *testing.T) {
+	dir := t.TempDir()
+	code, out, errOut := sawmill(t, "compile", breastCancer, "--target", "c", "--layout", "binned", "-o", dir, "--int-features", "mean_radius,mean_texture")
+	require.Equal(t, 0, code, errOut)
+	require.Regexp(t, `integer features mean_radius, mean_texture: [1-9]\d* thresholds floored`, out)
+	code, _, errOut = sawmill(t, "compile", breastCancer, "--target", "c", "-o", t.TempDir(), "--int-features", "nope")
+	require.Equal(t, 1, code)
+	require.Contains(t, errOut, `integer feature "nope" is not one of the model's 30 features`)
+}

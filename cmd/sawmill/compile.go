@@ -84,6 +84,7 @@ type compileFlags struct {
 	model     *forest.Forest
 	tables    string
 	budget    budgetFlags
+	intFeats  []string // features that arrive as integers
 }
 
 func newCompileCmd() *cobra.Command {
@@ -129,6 +130,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
 	fl.budget.add(f)
+	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
 	return c
 }
 
@@ -151,6 +153,9 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	}
 	f, err := readModel(modelPath)
 	if err != nil {
+		return located(modelPath, err)
+	}
+	if f, err = intFeatures(c.OutOrStdout(), f, fl.intFeats); err != nil {
 		return located(modelPath, err)
 	}
 	fl.model = f
