@@ -21,6 +21,8 @@ type ObjectSize struct {
 	Text   int    // executable sections
 	Rodata int    // read-only data (the static const tables, name strings)
 	Data   int    // writable data and bss; generated code has none
+	// Stack is the sum of every function's frame (-fstack-usage).
+	Stack int
 }
 
 // Flash is what the object puts in flash: .text + .rodata (+ .data's
@@ -95,7 +97,7 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 				src = f.Name
 			}
 		}
-		args := append(append([]string{}, ARMFlags...), "-c", "-o", "model.o", src)
+		args := append(append([]string{}, ARMFlags...), "-fstack-usage", "-c", "-o", "model.o", src)
 		cmd := exec.CommandContext(ctx, ARMCompiler, args...)
 		cmd.Dir = sub
 		var stderr bytes.Buffer
@@ -108,6 +110,9 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 			return nil, err
 		}
 		obj.Flags = strings.Join(ARMFlags, " ")
+		if obj.Stack, err = stackUsage(sub); err != nil {
+			return nil, err
+		}
 		sizes[i].ARM = obj
 	}
 	return sizes, nil

@@ -98,6 +98,32 @@ func walk(x float64, n int) []float64 {
 	return out
 }
 
+// binnedCuts are the kinds of thresholds a double model's binned build
+// stores as 32-bit keys, with the rounding each takes (the double build's
+// NAME_round32), beside "any", which keeps 64-bit keys.
+var binnedCuts = []struct{ name, round string }{{"any", ""}, {"float", "up"}, {"below-float", "down"}}
+
+// cutsOf turns ts into thresholds of the kind named: float values, or the
+// double just below one (the x <= t form of x < float).
+func cutsOf(ts []float64, kind string) []float64 {
+	if kind == "any" {
+		return ts
+	}
+	var out []float64
+	for _, t := range ts {
+		f := float32(t)
+		if math.IsInf(float64(f), 0) {
+			continue
+		}
+		if kind == "below-float" {
+			out = append(out, math.Nextafter(float64(f), math.Inf(-1)))
+		} else {
+			out = append(out, float64(f))
+		}
+	}
+	return out
+}
+
 func TestCBinnedNeighbours(t *testing.T) {
 	if err := cTools(testConfig.AllCompilers); err != nil {
 		t.Skipf("C compilers: %v", err)
@@ -106,21 +132,56 @@ func TestCBinnedNeighbours(t *testing.T) {
 	for seed := uint64(1); seed <= 2; seed++ {
 		for _, prec := range []forest.Precision{forest.Float64, forest.Float32} {
 			for _, v2 := range []bool{false, true} {
-				rng := rand.New(rand.NewPCG(seed, 14))
-				ts := binnedThresholds(rng)
-				var missing *float64
-				if v2 {
-					missing = &mv
+				for _, kind := range binnedCuts {
+					if prec == forest.Float32 && kind.name == "below-float" {
+						continue // a float32 model's double build rounds to nearest, or keeps 64 bits
+					}
+					rng := rand.New(rand.NewPCG(seed, 14))
+					ts := cutsOf(binnedThresholds(rng), kind.name)
+					var missing *float64
+					if v2 {
+						missing = &mv
+					}
+					f := binnedForest(t, rng, ts, prec, v2, missing)
+					rows := binnedRows(f, ts)
+					round := kind.round
+					if prec == forest.Float32 {
+						round = "nearest" // when the float32 pass made midpoints
+					}
+					t.Run(fmt.Sprintf("seed%d-%s-v2=%v-%s", seed, prec, v2, kind.name), func(t *testing.T) {
+						t.Parallel()
+						requireRound(t, f, round)
+						checkBinned(t, f, rows)
+					})
 				}
-				f := binnedForest(t, rng, ts, prec, v2, missing)
-				rows := binnedRows(f, ts)
-				t.Run(fmt.Sprintf("seed%d-%s-v2=%v", seed, prec, v2), func(t *testing.T) {
-					t.Parallel()
-					checkBinned(t, f, rows)
-				})
 			}
 		}
 	}
+}
+
+// requireRound checks that f's double build of the binned layout rounds
+// its inputs to floats as round says ("" for 64-bit keys), so the
+// neighbour walk tests the 32-bit keys it means to.
+func requireRound(t *testing.T, f *forest.Forest, round string) {
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	if round == "nearest" && !p.Midpoints32 {
+		round = "" // thresholds past float range: no midpoints, 64-bit keys
+	}
+	files, err := ctarget.Emit(p, ctarget.Options{Name: cName, Layout: emit.Binned})
+	require.NoError(t, err)
+	src := string(files[len(files)-1].Data)
+	for _, f := range files {
+		if f.Name == cName+".c" {
+			src = string(f.Data)
+		}
+	}
+	if round == "" {
+		require.False(t, strings.Contains(src, "_round32("), "64-bit keys expected")
+		return
+	}
+	want := "rounded " + map[string]string{"up": "up", "down": "down", "nearest": "to nearest"}[round]
+	require.True(t, strings.Contains(src, want), "the C does not say %q", want)
 }
 
 // checkBinned scores f in the binned layout, double and float builds, and
@@ -204,7 +265,7 @@ func TestCBinnedNoSoftFloatCompare(t *testing.T) {
 		require.NoError(t, err)
 		calls := armCalls(t, files, layout)
 		var hits []string
-		for _, fn := range []string{cName + "_predict", cName + "_bins", cName + "_key", cName + "_is_nan", cName + "_bits"} {
+		for _, fn := range []string{cName + "_predict", cName + "_bins", cName + "_key", cName + "_is_nan", cName + "_bits", cName + "_round32", cName + "_key32"} {
 			re := softFloat // the mapping: no floating point at all
 			if fn == cName+"_predict" {
 				re = softFloatCompare // the walk, beside the leaf sums
@@ -219,8 +280,45 @@ func TestCBinnedNoSoftFloatCompare(t *testing.T) {
 		if layout == emit.Binned {
 			require.Empty(t, hits, "the binned walk must not compare floating point")
 			require.Contains(t, calls, cName+"_bins")
+			require.Contains(t, calls, cName+"_round32", "a float32 model's double build rounds on the bits")
 		} else {
 			require.NotEmpty(t, hits, "the table layout compares doubles: the check must see it")
 		}
 	}
+}
+
+// With every feature declared integer (forest.WithIntegerFeatures), the
+// binned C build of the floored model scores integer rows, at and around
+// every floored threshold and at the ends of the int32 range, bit for bit
+// as the interpreter scores the original model; the floored integer cuts
+// are floats, so the double build stores 4-byte keys.
+func TestCBinnedIntegerFeatures(t *testing.T) {
+	if err := cTools(testConfig.AllCompilers); err != nil {
+		t.Skipf("C compilers: %v", err)
+	}
+	rng := rand.New(rand.NewPCG(5, 14))
+	var ts []float64
+	for i := 0; i < 40; i++ {
+		ts = append(ts, float64(rng.IntN(2000)-1000)+[]float64{0, 0.5, 0.999, 0.001}[rng.IntN(4)])
+	}
+	f := binnedForest(t, rng, ts, forest.Float64, false, nil)
+	g, changed, err := f.WithIntegerFeatures(f.Features)
+	require.NoError(t, err)
+	require.Positive(t, changed)
+	vals := []float64{math.NaN(), 0, -1, 1, math.MinInt32, math.MaxInt32, -1 << 40, 1 << 40}
+	for _, th := range ts {
+		k := math.Floor(th)
+		vals = append(vals, k-1, k, k+1)
+	}
+	rows := valueRows(f, vals, 7)
+	requireRound(t, g, "up")
+	r := testCRunner()
+	p, _, err := compile.Compile(g, r.CompileOptions("double"))
+	require.NoError(t, err)
+	res, err := r.Score(context.Background(), p, emit.Binned, "double", rows, t.TempDir())
+	require.NoError(t, err)
+	want, wantCls := cReference(f, rows, false) // the original model
+	m := Compare(want, res.Outputs, wantCls, res.Classes, f.NumOutputs(), true, 0)
+	require.True(t, m.OK(), "%s", m)
+	t.Logf("%d integer rows, %s", len(rows.Line), m)
 }

@@ -83,6 +83,8 @@ type compileFlags struct {
 	selftest  bool     // SQL: also write the self-test script
 	model     *forest.Forest
 	tables    string
+	budget    budgetFlags
+	intFeats  []string // features that arrive as integers
 }
 
 func newCompileCmd() *cobra.Command {
@@ -127,6 +129,8 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep (default: what the dialect's stock engine parses, e.g. 12 for sqlite)")
 	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
+	fl.budget.add(f)
+	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
 	return c
 }
 
@@ -151,6 +155,9 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	if err != nil {
 		return located(modelPath, err)
 	}
+	if f, err = intFeatures(c.OutOrStdout(), f, fl.intFeats); err != nil {
+		return located(modelPath, err)
+	}
 	fl.model = f
 	o := t.options(fl)
 	o.Lossy = fl.lossy
@@ -163,6 +170,11 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	}
 	if fl.verbose {
 		printPassStats(c.ErrOrStderr(), stats)
+	}
+	if fl.budget.set() {
+		if err := fitBudget(c.Context(), c.OutOrStdout(), p, fl); err != nil {
+			return fmt.Errorf("%s: %v", modelPath, err)
+		}
 	}
 	files, err := t.emit(p, fl)
 	if err != nil {

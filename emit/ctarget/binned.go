@@ -24,7 +24,9 @@ import (
 // unsigned keys (the sign bit set for positives, every bit inverted for
 // negatives, −0 read as +0), so neither the mapping nor the walk needs a
 // floating-point operation: an FPU-less core links no soft-float routine
-// for them. NaN and the program's missing band give the bin MISS, all ones
+// for them. A double build whose cuts all meet floats stores 4-byte float
+// keys and rounds each input to a float on its bits first (binned32.go).
+// NaN and the program's missing band give the bin MISS, all ones
 // of the bin's type; a split whose missing values go left compares
 // (bin+1) mod 2^bits with k+1, where MISS becomes 0 and goes left, and
 // one whose missing values go right compares bin with k, where MISS is
@@ -50,7 +52,10 @@ type binnedLayout struct {
 	// cutBase[f] is where feature f's start in the concatenation.
 	cuts    [][]uint64
 	cutBase []int
-	keyBits int // 64 (double inputs) or 32 (float inputs)
+	keyBits int // 64 (double inputs) or 32 (float inputs, or double inputs rounded)
+	// round is how a double input is rounded to a float before its key is
+	// taken (binned32.go), or roundNone.
+	round string
 	// binBytes is the bin's type (1 or 2 bytes); miss its all-ones value.
 	binBytes int
 	miss     uint64
@@ -98,9 +103,18 @@ func key32(v float32) uint32 {
 	return b | 1<<31
 }
 
-// key is the key of v in the target's input type.
+// key is the key of cut v in the type the cuts are stored in.
 func (bl *binnedLayout) key(v float64) uint64 {
 	if bl.keyBits == 32 {
+		return uint64(key32(cut32(v, bl.round)))
+	}
+	return key64(v)
+}
+
+// bandKey is the key of a band's edge v in the input's type: double
+// inputs are tested on their 64-bit key before they are rounded.
+func (bl *binnedLayout) bandKey(g *gen, v float64) uint64 {
+	if g.o.Float {
 		return uint64(key32(float32(v)))
 	}
 	return key64(v)
@@ -128,11 +142,16 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	}
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
-	splits, _ := g.tableSplits(tl) // tl.round32 is false: thresholds in the input's type
+	// A float32 model's double build has its cuts as floats (tl.round32)
+	// and rounds its inputs to nearest; otherwise thresholds are in the
+	// input's type.
+	tl.round32 = !g.o.Float && g.p.Midpoints32
+	splits, _ := g.tableSplits(tl)
 	tl.scanSplits(splits)
 	tl.leafFloat = tl.leafValuesFloat()
 	bl := &binnedLayout{tl: tl, keyBits: 64, hasML: tl.hasML, hasZM: tl.hasZM}
-	if g.o.Float {
+	bl.chooseRound(g, splits)
+	if g.o.Float || bl.round != roundNone {
 		bl.keyBits = 32
 	}
 	index, err := bl.cutTables(g, splits)
@@ -145,7 +164,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	bl.pack(splits, index)
 	tl.words = bl.words // the tree starts count them
 	g.binnedLeaves(tl)
-	bl.bands(g.p)
+	bl.bands(g)
 	return bl, nil
 }
 
@@ -293,12 +312,13 @@ func (g *gen) binnedLeaves(tl *tableLayout) {
 }
 
 // bands turns the missing band and the zero band into keys.
-func (bl *binnedLayout) bands(p *compile.Program) {
+func (bl *binnedLayout) bands(g *gen) {
+	p := g.p
 	if p.HasMissingValue {
-		bl.kLo, bl.kHi = bl.key(p.MissingLo), bl.key(p.MissingHi)
+		bl.kLo, bl.kHi = bl.bandKey(g, p.MissingLo), bl.bandKey(g, p.MissingHi)
 	}
 	if bl.hasZM {
-		bl.zLo, bl.zHi = bl.key(-p.ZeroBound), bl.key(p.ZeroBound)
+		bl.zLo, bl.zHi = bl.bandKey(g, -p.ZeroBound), bl.bandKey(g, p.ZeroBound)
 	}
 }
 
@@ -385,8 +405,11 @@ func (bl *binnedLayout) writeCuts(g *gen, w *printer) {
 }
 
 // keyLit is a key as a C constant of the key type.
-func (bl *binnedLayout) keyLit(k uint64) string {
-	if bl.keyBits == 64 {
+func (bl *binnedLayout) keyLit(k uint64) string { return bitsLit(k, bl.keyBits) }
+
+// bitsLit is k as a C constant of uint<bits>_t.
+func bitsLit(k uint64, bits int) string {
+	if bits == 64 {
 		return fmt.Sprintf("0x%016xull", k)
 	}
 	return fmt.Sprintf("0x%08xu", k)
@@ -395,9 +418,9 @@ func (bl *binnedLayout) keyLit(k uint64) string {
 // writeKey writes NAME_key, the key of an input that is not NaN, and
 // NAME_is_nan; both read the input's bits, never compare it as a float.
 func (bl *binnedLayout) writeKey(g *gen, w *printer) {
-	kt := fmt.Sprintf("uint%d_t", bl.keyBits)
+	kt := fmt.Sprintf("uint%d_t", bl.inBits(g))
 	sign, abs, inf := "0x8000000000000000ull", "0x7fffffffffffffffull", "0x7ff0000000000000ull"
-	if bl.keyBits == 32 {
+	if bl.inBits(g) == 32 {
 		sign, abs, inf = "0x80000000u", "0x7fffffffu", "0x7f800000u"
 	}
 	w.line("/* The bits of v: memcpy is the conversion C defines (no floating-point operation). */")
@@ -414,6 +437,11 @@ func (bl *binnedLayout) writeKey(g *gen, w *printer) {
 	w.line("\treturn (b & %s) > %s;", abs, inf)
 	w.line("}")
 	w.line("")
+	if !bl.needKey(g) {
+		bl.writeRound32(g, w)
+		bl.writeKey32(g, w)
+		return
+	}
 	w.line("/* The key of bits b that are not a NaN: keys order as the values do. */")
 	w.line("static %s %s_key(%s b)", kt, g.name, kt)
 	w.line("{")
@@ -423,6 +451,24 @@ func (bl *binnedLayout) writeKey(g *gen, w *printer) {
 	w.line("\treturn (b & %s) != 0 ? ~b : b | %s;", sign, sign)
 	w.line("}")
 	w.line("")
+	if bl.round != roundNone {
+		bl.writeRound32(g, w)
+		bl.writeKey32(g, w)
+	}
+}
+
+// needKey reports whether NAME_bins takes the key of the input's own
+// bits: always, but for a rounded double build without bands.
+func (bl *binnedLayout) needKey(g *gen) bool {
+	return bl.round == roundNone || g.p.HasMissingValue || bl.hasZM
+}
+
+// inBits is the width of the input's bits: 64 for double, 32 for float.
+func (bl *binnedLayout) inBits(g *gen) int {
+	if g.o.Float {
+		return 32
+	}
+	return 64
 }
 
 // binType is the C type of a bin.
@@ -432,7 +478,7 @@ func (bl *binnedLayout) binType() string { return uintType(bl.binBytes) }
 // row, by one binary search per feature with cuts.
 func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 	p := g.p
-	kt := fmt.Sprintf("uint%d_t", bl.keyBits)
+	kt := fmt.Sprintf("uint%d_t", bl.inBits(g))
 	zm := ""
 	if bl.hasZM {
 		zm = ", uint8_t *zero"
@@ -447,7 +493,10 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 	w.in()
 	w.line("uint32_t lo = %s_cut_base[f], hi = %s_cut_base[f + 1u];", g.name, g.name)
 	w.line("const uint32_t first = lo;")
-	w.line("%s k = %s_bits(&x[f]);", kt, g.name)
+	w.line("const %s b = %s_bits(&x[f]);", kt, g.name)
+	if bl.needKey(g) {
+		w.line("%s k;", kt)
+	}
 	if bl.hasZM {
 		w.line("zero[f] = 0;")
 	}
@@ -455,23 +504,30 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 	w.line("\tbin[f] = 0; /* no split reads it */")
 	w.line("\tcontinue;")
 	w.line("}")
-	w.line("if (%s_is_nan(k)) {", g.name)
+	w.line("if (%s_is_nan(b)) {", g.name)
 	w.line("\tbin[f] = %s;", hexLit(bl.miss))
 	w.line("\tcontinue;")
 	w.line("}")
-	w.line("k = %s_key(k);", g.name)
+	if bl.needKey(g) {
+		w.line("k = %s_key(b);", g.name)
+	}
 	if p.HasMissingValue {
-		w.line("if (k >= %s && k <= %s) { /* the missing band */", bl.keyLit(bl.kLo), bl.keyLit(bl.kHi))
+		w.line("if (k >= %s && k <= %s) { /* the missing band */", bitsLit(bl.kLo, bl.inBits(g)), bitsLit(bl.kHi, bl.inBits(g)))
 		w.line("\tbin[f] = %s;", hexLit(bl.miss))
 		w.line("\tcontinue;")
 		w.line("}")
 	}
 	if bl.hasZM {
-		w.line("zero[f] = (uint8_t)(k >= %s && k <= %s);", bl.keyLit(bl.zLo), bl.keyLit(bl.zHi))
+		w.line("zero[f] = (uint8_t)(k >= %s && k <= %s);", bitsLit(bl.zLo, bl.inBits(g)), bitsLit(bl.zHi, bl.inBits(g)))
+	}
+	ck := "k"
+	if bl.round != roundNone {
+		w.line("const uint32_t k32 = %s_key32(%s_round32(b));", g.name, g.name)
+		ck = "k32"
 	}
 	w.line("while (lo < hi) { /* the first cut not below k */")
 	w.line("\tconst uint32_t mid = lo + ((hi - lo) >> 1);")
-	w.line("\tif (%s_cut[mid] < k) {", g.name)
+	w.line("\tif (%s_cut[mid] < %s) {", g.name, ck)
 	w.line("\t\tlo = mid + 1u;")
 	w.line("\t} else {")
 	w.line("\t\thi = mid;")

@@ -70,8 +70,8 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 // binned when the model can be binned and its tables are smaller than the
 // table layout's, else table. Binned tables are smaller when thresholds
 // repeat: a 100-tree depth-8 forest trained with --max-bins 255 takes
-// 230,856 bytes binned against 252,658 as a table (double C; the split
-// words shrink from 4 bytes to 3); trained without bins, 375,180 against
+// 212,584 bytes binned against 234,386 as a table (double C; the split
+// words shrink from 4 bytes to 3, the edges are floats so the cuts take 4); trained without bins, 375,180 against
 // 375,138 (the split words are 4 bytes either way), so table stays (the
 // figures of bench/c/m4.sh, with MAX_BINS=255 for the first). The price
 // is speed on a desktop core: its one-lane walk took 1.72 times the table

@@ -1,6 +1,7 @@
 package train
 
 import (
+	"math"
 	"slices"
 	"sort"
 )
@@ -15,6 +16,12 @@ import (
 // few values: the binned C layout then needs at most MaxBins−1 cuts per
 // feature (uint8 bins for MaxBins <= 255). A column with at most MaxBins
 // distinct values keeps every split the unbinned forest could make.
+// The edge is the largest float not above the midpoint (edgeIn): it
+// parts the training rows exactly as the midpoint does, so the forest
+// grown is the same, and a binned C build then stores each cut as a
+// 4-byte float key, not an 8-byte double. Two values closer than a float
+// apart have no float between them: no edge is put there (their bins
+// merge), so every threshold is a float.
 
 // binEdges returns the sorted distinct edges of column c for maxBins bins.
 func binEdges(c []float64, maxBins int) []float64 {
@@ -32,12 +39,25 @@ func binEdges(c []float64, maxBins int) []float64 {
 		if j == n {
 			break // a is the largest value: no edge above it
 		}
-		e := midpoint(a, s[j])
-		if len(edges) == 0 || e > edges[len(edges)-1] {
+		e, ok := edgeIn(a, s[j])
+		if ok && (len(edges) == 0 || e > edges[len(edges)-1]) {
 			edges = append(edges, e)
 		}
 	}
 	return edges
+}
+
+// edgeIn is the edge between distinct values a < b: the largest float
+// not above their midpoint, when it is at least a (x <= e then parts them
+// as x <= midpoint does); false when no finite float lies in [a, b).
+func edgeIn(a, b float64) (float64, bool) {
+	m := midpoint(a, b)
+	f := float32(m)
+	if float64(f) > m {
+		f = math.Nextafter32(f, float32(math.Inf(-1)))
+	}
+	e := float64(f)
+	return e, e >= a && e < b && !math.IsInf(e, 0)
 }
 
 // binColumns sets t.edges and t.bins: per feature its edges and per row

@@ -481,6 +481,8 @@ func TestMaxBins(t *testing.T) {
 				if tr.Left[i] != -1 {
 					seen[f][tr.Threshold[i]] = true
 					splits++
+					th := tr.Threshold[i] // a float where the gap holds one (edgeIn)
+					require.Equal(t, th, float64(float32(th)), "bins %d: threshold %v is not a float value", bins, th)
 				}
 			}
 		}

@@ -38,10 +38,10 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_node0: split words, bits 0-7, 16 x 1 = 16 bytes
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
- *   pumpmodel_cut: cut keys, 16 x 8 = 128 bytes
+ *   pumpmodel_cut: cut keys, 16 x 4 = 64 bytes
  *   pumpmodel_cut_base: first cut per feature, 17 x 1 = 17 bytes
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
- *   total 299 bytes (9.06 bytes per node; code not counted)
+ *   total 235 bytes (7.12 bytes per node; code not counted)
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

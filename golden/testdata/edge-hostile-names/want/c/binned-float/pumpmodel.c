@@ -106,16 +106,17 @@ static void pumpmodel_bins(const float *x, uint8_t *bin)
 	for (f = 0; f < PUMPMODEL_NUM_FEATURES; f++) {
 		uint32_t lo = pumpmodel_cut_base[f], hi = pumpmodel_cut_base[f + 1u];
 		const uint32_t first = lo;
-		uint32_t k = pumpmodel_bits(&x[f]);
+		const uint32_t b = pumpmodel_bits(&x[f]);
+		uint32_t k;
 		if (lo == hi) {
 			bin[f] = 0; /* no split reads it */
 			continue;
 		}
-		if (pumpmodel_is_nan(k)) {
+		if (pumpmodel_is_nan(b)) {
 			bin[f] = 0xffu;
 			continue;
 		}
-		k = pumpmodel_key(k);
+		k = pumpmodel_key(b);
 		while (lo < hi) { /* the first cut not below k */
 			const uint32_t mid = lo + ((hi - lo) >> 1);
 			if (pumpmodel_cut[mid] < k) {

@@ -40,8 +40,8 @@ static const uint8_t pumpmodel_start[4] = {
 /* Cuts, by feature, as ascending keys: the IEEE bits of the double, the sign bit
  * set when it is clear and every bit inverted when it is set (so keys order as
  * the values do), -0 read as +0. */
-static const uint64_t pumpmodel_cut[4] = {
-	0xc024000000000000ull, 0xc028800000000000ull, 0xc04ec00000000000ull, 0xc051800000000000ull,
+static const uint32_t pumpmodel_cut[4] = {
+	0xc1200000u, 0xc1440000u, 0xc2760000u, 0xc28c0000u,
 };
 
 /* First cut of each feature; feature f has cuts cut_base[f] to cut_base[f+1]-1. */
@@ -68,13 +68,50 @@ static int pumpmodel_is_nan(uint64_t b)
 	return (b & 0x7fffffffffffffffull) > 0x7ff0000000000000ull;
 }
 
-/* The key of bits b that are not a NaN: keys order as the values do. */
-static uint64_t pumpmodel_key(uint64_t b)
+/* The float bits of the double with bits b (not a NaN), rounded up (towards +infinity)
+ * with integer operations only: the cuts are floats, and comparing the rounded
+ * input with them decides every split as comparing the double would. */
+static uint32_t pumpmodel_round32(uint64_t b)
 {
-	if (b == 0x8000000000000000ull) {
+	const uint32_t neg = (uint32_t)(b >> 63);
+	const uint32_t e = (uint32_t)(b >> 52) & 0x7ffu;
+	uint64_t sig = b & 0x000fffffffffffffull;
+	uint64_t rest;
+	uint32_t m;
+	if (e == 0x7ffu) {
+		return (neg << 31) | 0x7f800000u; /* an infinity */
+	}
+	if (e >= 1151u) { /* |x| >= 2^128 */
+		m = 0x7f7fffffu;
+		rest = 2u;
+	} else if (e >= 897u) { /* a normal float: 23 of the 52 fraction bits kept */
+		m = ((e - 896u) << 23) | (uint32_t)(sig >> 29);
+		rest = sig & 0x1fffffffu;
+	} else { /* a float subnormal, or zero: units of 2^-149 */
+		uint32_t sh = 925u;
+		if (e != 0u) {
+			sig |= 0x0010000000000000ull;
+			sh = 926u - e;
+		}
+		if (sh >= 54u) {
+			m = 0u;
+			rest = sig != 0u;
+		} else {
+			m = (uint32_t)(sig >> sh);
+			rest = sig & ((1ull << sh) - 1u);
+		}
+	}
+	m += (uint32_t)(rest != 0u && neg == 0u);
+	return (neg << 31) | m; /* a carry into the exponent is the next float up */
+}
+
+/* The key of float bits b (not a NaN): keys order as the floats do. */
+static uint32_t pumpmodel_key32(uint32_t b)
+{
+	if (b == 0x80000000u) {
 		b = 0; /* -0 is +0 to every comparison */
 	}
-	return (b & 0x8000000000000000ull) != 0 ? ~b : b | 0x8000000000000000ull;
+	return (b & 0x80000000u) != 0 ? ~b : b | 0x80000000u;
 }
 
 /* The bin of each feature of x: the number of its cuts below x[f], or 0xffu
@@ -85,19 +122,19 @@ static void pumpmodel_bins(const double *x, uint8_t *bin)
 	for (f = 0; f < PUMPMODEL_NUM_FEATURES; f++) {
 		uint32_t lo = pumpmodel_cut_base[f], hi = pumpmodel_cut_base[f + 1u];
 		const uint32_t first = lo;
-		uint64_t k = pumpmodel_bits(&x[f]);
+		const uint64_t b = pumpmodel_bits(&x[f]);
 		if (lo == hi) {
 			bin[f] = 0; /* no split reads it */
 			continue;
 		}
-		if (pumpmodel_is_nan(k)) {
+		if (pumpmodel_is_nan(b)) {
 			bin[f] = 0xffu;
 			continue;
 		}
-		k = pumpmodel_key(k);
+		const uint32_t k32 = pumpmodel_key32(pumpmodel_round32(b));
 		while (lo < hi) { /* the first cut not below k */
 			const uint32_t mid = lo + ((hi - lo) >> 1);
-			if (pumpmodel_cut[mid] < k) {
+			if (pumpmodel_cut[mid] < k32) {
 				lo = mid + 1u;
 			} else {
 				hi = mid;

@@ -23,10 +23,10 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_node0: split words, bits 0-7, 4 x 1 = 4 bytes
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
- *   pumpmodel_cut: cut keys, 4 x 8 = 32 bytes
+ *   pumpmodel_cut: cut keys, 4 x 4 = 16 bytes
  *   pumpmodel_cut_base: first cut per feature, 3 x 1 = 3 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
- *   total 99 bytes (9.00 bytes per node; code not counted)
+ *   total 83 bytes (7.55 bytes per node; code not counted)
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -19,10 +19,10 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_node0: split words, bits 0-7, 1 x 1 = 1 bytes
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
- *   pumpmodel_cut: cut keys, 1 x 8 = 8 bytes
+ *   pumpmodel_cut: cut keys, 1 x 4 = 4 bytes
  *   pumpmodel_cut_base: first cut per feature, 2 x 1 = 2 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
- *   total 17 bytes (17.00 bytes per node; code not counted)
+ *   total 13 bytes (13.00 bytes per node; code not counted)
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -1,0 +1,143 @@
+package verify
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+)
+
+// Budget is what a C build may take on the board, in bytes; 0 is no limit.
+type Budget struct {
+	Flash int // .text + .rodata + .data of NAME.c
+	RAM   int // .data and .bss, plus the stack of a prediction
+}
+
+// BudgetRow is one C layout measured for a budget.
+type BudgetRow struct {
+	Layout string
+	// Flash is the Cortex-M4 object's flash (MeasureARM) when Measured,
+	// else the static tables alone (ctarget.Sizes: code not counted, so a
+	// lower bound).
+	Flash int
+	// RAM is the object's .data and .bss plus the sum of every function's
+	// stack frame as -fstack-usage reports it (no function of NAME.c
+	// recurses, so the sum bounds the deepest call chain); -1 when not
+	// measured.
+	RAM      int
+	Measured bool
+}
+
+// Miss is by how many bytes r misses b's flash and RAM (0 when it fits;
+// RAM is 0 when not measured).
+func (r BudgetRow) Miss(b Budget) (flash, ram int) {
+	if b.Flash > 0 && r.Flash > b.Flash {
+		flash = r.Flash - b.Flash
+	}
+	if b.RAM > 0 && r.RAM > b.RAM {
+		ram = r.RAM - b.RAM
+	}
+	return flash, ram
+}
+
+// BudgetError is FitBudget's failure: no layout fits; Rows says by how
+// much each misses.
+type BudgetError struct {
+	Budget Budget
+	Rows   []BudgetRow
+}
+
+func (e *BudgetError) Error() string {
+	var parts []string
+	for _, r := range e.Rows {
+		fm, rm := r.Miss(e.Budget)
+		var why []string
+		if fm > 0 {
+			why = append(why, fmt.Sprintf("flash by %d bytes (%d of %d%s)", fm, r.Flash, e.Budget.Flash, map[bool]string{false: ", tables alone"}[r.Measured]))
+		}
+		if rm > 0 {
+			why = append(why, fmt.Sprintf("RAM by %d bytes (%d of %d)", rm, r.RAM, e.Budget.RAM))
+		}
+		parts = append(parts, fmt.Sprintf("  %s misses %s", r.Layout, strings.Join(why, " and ")))
+	}
+	return "no exact C layout fits the budget:\n" + strings.Join(parts, "\n") +
+		"\nhint: train with fewer or shallower trees, or --max-bins, or compile --float"
+}
+
+// ErrRAMUnmeasured is FitBudget's error for a RAM budget without
+// arm-none-eabi-gcc, which measures the stack.
+var ErrRAMUnmeasured = errors.New("a RAM budget needs " + ARMCompiler + " on PATH (the stack comes from its -fstack-usage)")
+
+// FitBudget measures the layouts (o.Layout alone when it names one, every
+// exact layout for emit.Auto or "") and returns the one of least flash
+// that fits b, with every row measured. Flash is the Cortex-M4 object's
+// where arm-none-eabi-gcc is on PATH, else the static tables alone. A
+// layout the model cannot take (binned with set splits) is left out.
+func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Budget) (string, []BudgetRow, error) {
+	sizes, err := MeasureARM(ctx, p, o)
+	measured := err == nil
+	if errors.Is(err, ErrNoARM) {
+		if b.RAM > 0 {
+			return "", nil, ErrRAMUnmeasured
+		}
+		sizes, err = CSizes(p, o)
+	}
+	if err != nil {
+		return "", nil, err
+	}
+	var rows []BudgetRow
+	for _, s := range sizes {
+		if o.Layout != "" && o.Layout != "auto" && s.Layout != o.Layout {
+			continue
+		}
+		r := BudgetRow{Layout: s.Layout, Flash: s.TableBytes, RAM: -1, Measured: measured}
+		if s.ARM != nil {
+			r.Flash, r.RAM = s.ARM.Flash(), s.ARM.Data+s.ARM.Stack
+		}
+		rows = append(rows, r)
+	}
+	best := -1
+	for i, r := range rows {
+		if fm, rm := r.Miss(b); fm == 0 && rm == 0 && (best < 0 || r.Flash < rows[best].Flash) {
+			best = i
+		}
+	}
+	if best < 0 {
+		return "", rows, &BudgetError{Budget: b, Rows: rows}
+	}
+	return rows[best].Layout, rows, nil
+}
+
+// stackUsage sums the frames of the .su files gcc's -fstack-usage wrote in
+// dir: each line is "file:line:col:function<TAB>bytes<TAB>qualifiers".
+func stackUsage(dir string) (int, error) {
+	files, err := filepath.Glob(filepath.Join(dir, "*.su"))
+	if err != nil || len(files) == 0 {
+		return 0, fmt.Errorf("%s wrote no .su file in %s", ARMCompiler, dir)
+	}
+	total := 0
+	for _, f := range files {
+		data, err := os.ReadFile(f)
+		if err != nil {
+			return 0, err
+		}
+		for _, line := range strings.Split(strings.TrimSpace(string(data)), "\n") {
+			fs := strings.Split(line, "\t")
+			if len(fs) < 2 {
+				return 0, fmt.Errorf("%s: cannot read %q", f, line)
+			}
+			n, err := strconv.Atoi(fs[1])
+			if err != nil {
+				return 0, fmt.Errorf("%s: cannot read %q: %v", f, line, err)
+			}
+			total += n
+		}
+	}
+	return total, nil
+}
