@@ -42,6 +42,9 @@ type VerifyOptions struct {
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
 	// to the runner (Config.PostgresDSN, else PostgresDSN()).
 	PostgresDSN string
+	// MySQLDSN is the MySQL or MariaDB server of the mysql runner; ""
+	// leaves it to the runner (Config.MySQLDSN, else $SAWMILL_MYSQL_DSN).
+	MySQLDSN string
 	// MaxNest is the CASE nesting the SQL runners' statements may use
 	// (sql.Options.MaxNest); 0 leaves each dialect's default.
 	MaxNest int
@@ -288,6 +291,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 	for _, r := range sel {
 		r = usePostgres(r, o.PostgresDSN)
+		r = useDSN(r, "mysql", o.MySQLDSN)
 		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
 			r = m.WithMaxNest(o.MaxNest)
 		}
@@ -698,8 +702,12 @@ type DSNRunner interface {
 
 // usePostgres points the postgres runner at dsn through WithDSN; "" leaves
 // the runner as it is.
-func usePostgres(r Runner, dsn string) Runner {
-	if d, ok := r.(DSNRunner); ok && dsn != "" && r.Name() == "postgres" {
+func usePostgres(r Runner, dsn string) Runner { return useDSN(r, "postgres", dsn) }
+
+// useDSN points runner engine at dsn through WithDSN; "" leaves the
+// runner as it is.
+func useDSN(r Runner, engine, dsn string) Runner {
+	if d, ok := r.(DSNRunner); ok && dsn != "" && r.Name() == engine {
 		return d.WithDSN(dsn)
 	}
 	return r
