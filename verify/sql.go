@@ -109,10 +109,10 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 	if errors.Is(err, sqltarget.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
 		for i, f := range p.Features {
-			o.Columns[i] = "c" + strconv.Itoa(i) + " " + strings.ReplaceAll(f.Name, "\x00", "")
+			o.Columns[i] = r.shortName("c"+strconv.Itoa(i)+" "+strings.ReplaceAll(f.Name, "\x00", ""), 64)
 		}
 		for j, n := range sqltarget.OutputNames(p) {
-			o.Outputs = append(o.Outputs, "o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""))
+			o.Outputs = append(o.Outputs, r.shortName("o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""), 256))
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
@@ -123,6 +123,19 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 		return o, declined(err)
 	}
 	return o, nil
+}
+
+// shortName cuts a made-up column name to limit characters, and keeps it
+// from ending in a space, for MySQL (see sqltarget's checkLength); other
+// engines take it whole.
+func (r sqlRunner) shortName(s string, limit int) string {
+	if r.engine != "mysql" {
+		return s
+	}
+	if rs := []rune(s); len(rs) > limit {
+		s = string(rs[:limit])
+	}
+	return strings.TrimRight(s, " ")
 }
 
 // rowColumn is the kept row-number column: "sawmill_row", with more

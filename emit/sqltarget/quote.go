@@ -107,6 +107,25 @@ func (d Dialect) Literal(v float64) string {
 	return s
 }
 
+// checkLength refuses, in mysql text, a name longer than limit characters
+// (64 for tables and columns, 256 for a column alias) or ending in a
+// space, which MySQL and MariaDB refuse (MySQL 8.0 manual, 11.2 "Schema
+// Object Names"; measured on MariaDB 10.11: error 1059, "Identifier name
+// ... is too long"). Other dialects have no such rule here (PostgreSQL's
+// truncation is foldName's).
+func (d Dialect) checkLength(what, s string, limit int) error {
+	if d != MySQL {
+		return nil
+	}
+	if n := utf8.RuneCountInString(s); n > limit {
+		return fmt.Errorf("%s %q is %d characters long, and MySQL allows %d", what, s, n, limit)
+	}
+	if strings.HasSuffix(s, " ") {
+		return fmt.Errorf("%s %q ends with a space, which MySQL does not allow in a name", what, s)
+	}
+	return nil
+}
+
 // foldName is the form under which the dialect compares identifiers:
 // SQLite and DuckDB match even quoted identifiers without regard to ASCII
 // case; PostgreSQL keeps case but truncates identifiers to 63 bytes

@@ -110,8 +110,9 @@ var ErrNames = errors.New("name not usable in SQL")
 // in ansi, which must run wherever SQL runs.
 //
 // MariaDB 10.11 (Debian's 10.11.19, default thread_stack of 299,008 bytes)
-// refuses CASE nested past its stack guard; mysqlMaxNest holds the
-// measurement (TestMySQLLimits), and the default keeps half of it.
+// fails with "Thread stack overrun" past 538 levels of CASE in the worst
+// shape as a query and 527 in the function form (TestMySQLLimits); the
+// default keeps less than half of that.
 var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10, MySQL: 250}
 
 // Limits of stock SQLite other than the parser stack that a statement can
@@ -435,6 +436,9 @@ func (g *gen) checkNames() error {
 	if err := checkText("table", g.o.Table); err != nil {
 		return bad(err)
 	}
+	if err := g.d.checkLength("table", g.o.Table, 64); err != nil {
+		return bad(err)
+	}
 	if g.o.Schema != "" {
 		if err := checkText("schema", g.o.Schema); err != nil {
 			return bad(err)
@@ -451,6 +455,9 @@ func (g *gen) checkNames() error {
 		if err := checkText("feature column", n); err != nil {
 			return bad(err)
 		}
+		if err := g.d.checkLength("feature column", n, 64); err != nil {
+			return bad(err)
+		}
 		f := g.d.foldName(n)
 		if prev, ok := seen[f]; ok {
 			return bad(fmt.Errorf("features %q and %q name the same column in %s\nhint: rename one of them in the model, or map them to other columns (sawmill compile --columns feature=column,...; Options.Columns)", prev, n, g.d))
@@ -460,6 +467,9 @@ func (g *gen) checkNames() error {
 	seen = map[string]string{}
 	for _, c := range g.resultColumns() {
 		if err := checkText("result column", c); err != nil {
+			return bad(err)
+		}
+		if err := g.d.checkLength("result column", c, 256); err != nil {
 			return bad(err)
 		}
 		f := g.d.foldName(c)
