@@ -114,7 +114,6 @@ func TestMySQLFacts(t *testing.T) {
 	}
 }
 
-
 // TestMySQLLimits finds by bisection the deepest CASE nesting of the worst
 // chain (worstChain, nested layout) that MariaDB runs in mysql text, as a
 // query and in the function form, and holds DefaultMaxNest to at most half
