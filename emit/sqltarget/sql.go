@@ -241,6 +241,9 @@ type gen struct {
 	// and the statements written.
 	dollar string
 	stmts  []string
+	// stageItems are the items of every stage, in order, without fences:
+	// the mysql function form assigns them to variables.
+	stageItems [][]string
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {

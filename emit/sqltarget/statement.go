@@ -196,6 +196,7 @@ func (g *gen) cte(items []string, materialize bool) {
 		b.WriteString(" AS (\n")
 	}
 	b.WriteString("  SELECT\n")
+	g.stageItems = append(g.stageItems, items)
 	if materialize && g.fenced() {
 		// ISO/IEC 9075 cannot ask for materialization, but engines do not
 		// inline a sub-query that computes a window function (SQLite's
