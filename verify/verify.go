@@ -660,7 +660,8 @@ func sqlVariants(r Runner, o VerifyOptions) []string {
 	var out []string
 	for _, v := range runnerVariants(r, o.Variants) {
 		d := strings.TrimSuffix(strings.TrimSuffix(v, "shell"), "-") // "shell" runs the engine's own text, "ansi-shell" ANSI
-		if d == "" || d == functionVariant {                         // the function form is the engine's own dialect
+		// The function form is the engine's own dialect.
+		if d == "" || d == functionVariant {
 			d = r.Name()
 		}
 		if len(o.Dialects) == 0 || hasFold(o.Dialects, d) {
