@@ -125,13 +125,20 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 	return o, nil
 }
 
-// shortName cuts a made-up column name to limit characters, and keeps it
-// from ending in a space, for MySQL (see sqltarget's checkLength); other
+// shortName cuts a made-up column name to limit characters, keeps it
+// from ending in a space and drops characters outside the Basic
+// Multilingual Plane, for MySQL (see sqltarget's checkLength); other
 // engines take it whole.
 func (r sqlRunner) shortName(s string, limit int) string {
 	if r.engine != "mysql" {
 		return s
 	}
+	s = strings.Map(func(c rune) rune {
+		if c > 0xFFFF {
+			return -1
+		}
+		return c
+	}, s)
 	if rs := []rune(s); len(rs) > limit {
 		s = string(rs[:limit])
 	}

@@ -82,6 +82,8 @@ func TestMySQLQuoting(t *testing.T) {
 	require.NoError(t, err)
 	_, err = Emit(p, Options{Dialect: MySQL, Columns: []string{"x "}})
 	require.ErrorContains(t, err, "ends with a space")
+	_, err = Emit(p, Options{Dialect: MySQL, Columns: []string{"t\U0001F321"}})
+	require.ErrorContains(t, err, "outside the Basic Multilingual Plane")
 	_, err = Emit(p, Options{Dialect: MySQL, Columns: []string{"X"}, Keep: []string{"x"}})
 	require.NoError(t, err, "a kept column may share a feature's column")
 }

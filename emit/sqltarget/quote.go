@@ -108,11 +108,14 @@ func (d Dialect) Literal(v float64) string {
 }
 
 // checkLength refuses, in mysql text, a name longer than limit characters
-// (64 for tables and columns, 256 for a column alias) or ending in a
-// space, which MySQL and MariaDB refuse (MySQL 8.0 manual, 11.2 "Schema
-// Object Names"; measured on MariaDB 10.11: error 1059, "Identifier name
-// ... is too long"). Other dialects have no such rule here (PostgreSQL's
-// truncation is foldName's).
+// (64 for tables and columns, 256 for a column alias), ending in a space,
+// or holding a character outside the Basic Multilingual Plane, which MySQL
+// and MariaDB refuse (MySQL 8.0 manual, 11.2 "Schema Object Names";
+// measured on MariaDB 10.11: error 1059, "Identifier name ... is too
+// long", and error 1300, "Invalid utf8mb4 character string", for an emoji,
+// found by the differential test, golden case diff-mysql-astral-names).
+// Other dialects have no such rule here (PostgreSQL's truncation is
+// foldName's).
 func (d Dialect) checkLength(what, s string, limit int) error {
 	if d != MySQL {
 		return nil
@@ -122,6 +125,11 @@ func (d Dialect) checkLength(what, s string, limit int) error {
 	}
 	if strings.HasSuffix(s, " ") {
 		return fmt.Errorf("%s %q ends with a space, which MySQL does not allow in a name", what, s)
+	}
+	for _, r := range s {
+		if r > 0xFFFF {
+			return fmt.Errorf("%s %q holds %q, outside the Basic Multilingual Plane, which MySQL does not allow in a name", what, s, r)
+		}
 	}
 	return nil
 }
