@@ -142,7 +142,7 @@ func (r sqlRunner) shortName(s string, limit int) string {
 	if rs := []rune(s); len(rs) > limit {
 		s = string(rs[:limit])
 	}
-	return strings.TrimRight(s, " ")
+	return strings.TrimRight(s, " \t\n\v\f\r")
 }
 
 // rowColumn is the kept row-number column: "sawmill_row", with more

@@ -107,8 +107,13 @@ func (d Dialect) Literal(v float64) string {
 	return s
 }
 
+// mysqlSpace is the white space MySQL does not allow at the end of a name.
+const mysqlSpace = " \t\n\v\f\r"
+
 // checkLength refuses, in mysql text, a name longer than limit characters
-// (64 for tables and columns, 256 for a column alias), ending in a space,
+// (64 for tables and columns, 256 for a column alias), ending in white
+// space (error 1166, "Incorrect column name", for a tab and a vertical
+// tab: golden cases diff-mysql-trailing-tab, diff-mysql-vertical-tab),
 // or holding a character outside the Basic Multilingual Plane, which MySQL
 // and MariaDB refuse (MySQL 8.0 manual, 11.2 "Schema Object Names";
 // measured on MariaDB 10.11: error 1059, "Identifier name ... is too
@@ -123,8 +128,8 @@ func (d Dialect) checkLength(what, s string, limit int) error {
 	if n := utf8.RuneCountInString(s); n > limit {
 		return fmt.Errorf("%s %q is %d characters long, and MySQL allows %d", what, s, n, limit)
 	}
-	if strings.HasSuffix(s, " ") {
-		return fmt.Errorf("%s %q ends with a space, which MySQL does not allow in a name", what, s)
+	if strings.TrimRight(s, mysqlSpace) != s {
+		return fmt.Errorf("%s %q ends with white space, which MySQL does not allow in a name", what, s)
 	}
 	for _, r := range s {
 		if r > 0xFFFF {
