@@ -110,7 +110,9 @@
 //   - auto: table for DuckDB (2.8 times faster than nested on a 100-tree
 //     forest, measured; about even for binary votes, and faster to prepare),
 //     for trees deeper than MaxNest and for models of more than two outputs;
-//     nested otherwise.
+//     nested otherwise, and for the mysql function form, where each stage
+//     is a statement the stored program runs per call (nested 1.8 s, table
+//     6.5 s in MariaDB 10.11 on golden case sklearn-breast-cancer).
 //
 // A fully flat form (one CASE per tree with a WHEN per leaf holding the whole
 // root-to-leaf conjunction) is not offered: measured on SQLite it is 17 to
