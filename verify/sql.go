@@ -116,8 +116,12 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
-		if _, _, err := sqltarget.Resolve(p, o); errors.Is(err, sqltarget.ErrNames) {
+		_, _, err := sqltarget.Resolve(p, o)
+		if errors.Is(err, sqltarget.ErrNames) {
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
+		}
+		if err != nil { // a refusal past the names (found with mysql names: diff-seed184)
+			return o, declined(err)
 		}
 	} else if err != nil {
 		return o, declined(err)
