@@ -467,15 +467,6 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 	if err := r.declines(p, layout, variant); err != nil {
 		return nil, err
 	}
-	if r.engine == "mysql" {
-		clamp, err := mysqlInfinities(p, rows)
-		if err != nil {
-			return nil, err
-		}
-		if clamp {
-			rows = clampInfinities(rows)
-		}
-	}
 	if variant == functionVariant {
 		return r.scoreFunction(ctx, p, layout, rows, dir)
 	}
@@ -548,6 +539,10 @@ func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
 // With shell (SQLite only), the rows go into a database file and the
 // system sqlite3 shell runs the statement (shellRun).
 func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, shell bool, opts func(schema string) (sqltarget.Options, error)) (*Result, error) {
+	rows, err := r.loadable(p, rows)
+	if err != nil {
+		return nil, err
+	}
 	file := ""
 	if shell {
 		if _, _, err := SQLiteShell(); err != nil {
@@ -586,6 +581,11 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	}
 	if err := db.load(ctx, p, o, rows); err != nil {
 		return nil, fmt.Errorf("%s: %v", r.engine, err)
+	}
+	if r.engine == "mysql" {
+		if err := mysqlFits(ctx, db.conn, len(text)); err != nil {
+			return nil, err
+		}
 	}
 	if shell {
 		db.close()

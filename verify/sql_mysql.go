@@ -143,6 +143,22 @@ func mysqlInfinities(p *compile.Program, rows *forest.Rows) (clamp bool, err err
 	return true, nil
 }
 
+// mysqlFits fails, naming the setting, for a statement longer than the
+// server's max_allowed_packet (16 MiB by default in MariaDB 10.11), which
+// the server answers by closing the connection ("bad connection"): the
+// 515,069-node forest of TestSQLBigForest is a statement of tens of MB.
+// .ci/setup raises the limit to 1 GiB.
+func mysqlFits(ctx context.Context, conn *dbsql.Conn, n int) error {
+	var limit int64
+	if err := conn.QueryRowContext(ctx, "SELECT @@max_allowed_packet").Scan(&limit); err != nil {
+		return fmt.Errorf("mysql: max_allowed_packet: %v", err)
+	}
+	if int64(n) > limit-1024 {
+		return fmt.Errorf("mysql: the statement is %d bytes, and the server's max_allowed_packet is %d\nhint: raise it (SET GLOBAL max_allowed_packet = 1073741824, or max_allowed_packet = 1G in the server's configuration)", n, limit)
+	}
+	return nil
+}
+
 // mysqlToolchain names the server's version.
 func mysqlToolchain(ctx context.Context, conn *dbsql.Conn) string {
 	var v string
@@ -162,6 +178,10 @@ const functionVariant = "function"
 func (r sqlRunner) scoreFunction(ctx context.Context, p *compile.Program, layout string, rows *forest.Rows, dir string) (*Result, error) {
 	if p.NumOutputs > sqltarget.MaxFunctionOutputs {
 		return nil, fmt.Errorf("%w: the function form takes at most %d outputs, and the model has %d", ErrDeclined, sqltarget.MaxFunctionOutputs, p.NumOutputs)
+	}
+	rows, err := r.loadable(p, rows)
+	if err != nil {
+		return nil, err
 	}
 	db, err := r.open(ctx, "")
 	if err != nil {
@@ -207,6 +227,9 @@ func (r sqlRunner) scoreFunction(ctx context.Context, p *compile.Program, layout
 	}
 	start := time.Now()
 	for _, s := range stmts {
+		if err := mysqlFits(ctx, db.conn, len(s)); err != nil {
+			return nil, err
+		}
 		if _, err := db.conn.ExecContext(ctx, s); err != nil {
 			return nil, fmt.Errorf("%s: create function: %v", r.engine, shorten(err))
 		}
@@ -254,6 +277,20 @@ func (r sqlRunner) functionQuery(p *compile.Program, o, fo sqltarget.Options, na
 		ref = quote(o.Schema) + "." + ref
 	}
 	return "SELECT " + strings.Join(items, ", ") + " FROM " + ref
+}
+
+// loadable returns the rows as the engine can hold them: for MySQL, ±Inf
+// as ±MaxFloat64 where that takes the same branches, else the decline
+// mysqlInfinities gives; other engines take the rows as they are.
+func (r sqlRunner) loadable(p *compile.Program, rows *forest.Rows) (*forest.Rows, error) {
+	if r.engine != "mysql" {
+		return rows, nil
+	}
+	clamp, err := mysqlInfinities(p, rows)
+	if err != nil || !clamp {
+		return rows, err
+	}
+	return clampInfinities(rows), nil
 }
 
 // clampInfinities is a copy of rows with ±Inf replaced by ±MaxFloat64

@@ -8,6 +8,7 @@ import (
 	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 
@@ -245,12 +246,12 @@ func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Opt
 // sqlite3 shell (by the sqlite runner alone).
 var allSQLVariants = []string{"", "ansi", "shell", "ansi-shell"}
 
-func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string) {
+func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string, extra ...sqlRunner) {
 	t.Helper()
 	p := sqlProgram(t, f)
 	c := &goldencase.Case{Model: f, Rows: rows}
 	want, wantCls := c.Reference()
-	for _, r := range sqlEngineRunners {
+	for _, r := range append(slices.Clone(sqlEngineRunners), extra...) {
 		for _, variant := range variants {
 			if isShell(variant) && r.engine != "sqlite" {
 				continue
@@ -450,5 +451,5 @@ func TestSQLBigForest(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
 	rows := randmodel.RandomRows(11, f, 200)
 	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
-	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"})
+	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"}, sqlRunner{engine: "mysql"})
 }
