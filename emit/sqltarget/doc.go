@@ -140,18 +140,18 @@
 // for a missing value. PostgreSQL gets CREATE FUNCTION ... LANGUAGE sql
 // IMMUTABLE, DuckDB a scalar macro (both a scalar sub-query of the
 // stages), MySQL and MariaDB a DETERMINISTIC stored function whose body
-// assigns each stage to local variables and returns the result (2.5 times
-// faster in MariaDB than a sub-query, which builds a temporary table per
-// stage and call; in the mysql client the file switches DELIMITER around
+// assigns each stage to local variables and returns the result (three
+// times faster in MariaDB than a sub-query, which builds a temporary table
+// per stage and call; in the mysql client the file switches DELIMITER around
 // it). SQLite and ANSI SQL have no SQL-bodied scalar functions: the option
 // is refused there, with a hint to emit the query. A function returns one
 // value, so a model of one regression output gets NAME, and any other
 // NAME_0, NAME_1, ... per output and, for a classifier, NAME for the
 // label (FunctionNames). Each function walks every tree, so the form
 // takes at most MaxFunctionOutputs (16) outputs. Per-row calls cost more
-// than the query: in MariaDB 10.11 about 0.7 ms a call for a 100-tree
-// forest (golden case sklearn-breast-cancer), where the query scores
-// thousands of rows a second; verify's "function" variant runs the form
+// than the query: in MariaDB 10.11 about 0.6 ms a call for the 30-tree
+// forest of golden case sklearn-breast-cancer (1.8 ms as a sub-query),
+// where the query scores its 953 rows in 40 ms; verify's "function" variant runs the form
 // in PostgreSQL, DuckDB and MariaDB.
 //
 // # Stored NaN
