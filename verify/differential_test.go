@@ -76,6 +76,17 @@ func (tg target) lighter(seed uint64) target {
 	return tg
 }
 
+// functionSeed reports whether a seed's model runs through the SQL
+// function form too: every eighth. Scored a row per call, the form cost
+// 2.8 s a model in MariaDB and 0.9 s in PostgreSQL over the 48 rows
+// (measured on 16 seeds: 58 s of the 141 s of target time, DuckDB not
+// counted); the golden cases run it in full.
+func functionSeed(seed uint64) bool { return seed%8 == 0 }
+
+// errFunctionSeed is the outcome of the function form for other seeds: a
+// decline, which is no failure.
+var errFunctionSeed = fmt.Errorf("%w: the function form runs for every eighth seed", ErrDeclined)
+
 // lightSeed reports whether a seed's model skips the costlier checks: all
 // but every fourth (Job.Light in a batch).
 func lightSeed(seed uint64) bool { return seed%4 != 0 }
@@ -328,6 +339,10 @@ func diffOutcomes(t *testing.T, models []diffModel, targets []target, batched bo
 		outs[i] = make([]outcome, len(targets))
 	}
 	single := func(m, k int) {
+		if targets[k].variant == functionVariant && !functionSeed(models[m].seed) {
+			outs[m][k] = outcome{skipped: errFunctionSeed}
+			return
+		}
 		outs[m][k] = runTarget(context.Background(), targets[k].lighter(models[m].seed), models[m].f, models[m].rows, t.TempDir())
 	}
 	var wg sync.WaitGroup

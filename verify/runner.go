@@ -68,6 +68,10 @@ type Config struct {
 	// PostgresDSN is the server the postgres runner uses; "" means
 	// PostgresDSN().
 	PostgresDSN string
+	// MySQLDSN is the MySQL or MariaDB server the mysql runner uses
+	// (github.com/go-sql-driver/mysql's form, user@tcp(host:port)/db); ""
+	// means MySQLDSN(), and with neither the runner is skipped.
+	MySQLDSN string
 	// Werror builds C with -Werror besides the warning flags, so generated
 	// C that draws a warning fails.
 	Werror bool
@@ -88,6 +92,7 @@ func RunnersWith(c Config) []Runner {
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
 		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
+		sqlRunner{engine: "mysql", dsn: c.MySQLDSN},
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
 }

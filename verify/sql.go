@@ -33,9 +33,9 @@ import (
 // Variants: "" is the engine's own dialect; "ansi" runs the portable ANSI
 // text on the same engine.
 type sqlRunner struct {
-	engine  string // "sqlite", "duckdb" or "postgres"
+	engine  string // "sqlite", "duckdb", "postgres" or "mysql"
 	maxNest int    // Options.MaxNest of every statement; 0: the dialect's default
-	dsn     string // postgres: the server (Config.PostgresDSN); "" for PostgresDSN()
+	dsn     string // postgres, mysql: the server (Config); "" for PostgresDSN(), MySQLDSN()
 }
 
 // sqliteRunner is the SQLite runner; it also keeps snapshots of the emitted
@@ -54,14 +54,30 @@ func (r sqlRunner) Name() string { return r.engine }
 
 func (sqlRunner) Layouts() []string { return sqltarget.Layouts() }
 
-func (sqlRunner) Variants() []string { return []string{"", "ansi"} }
+// Variants: "" is the engine's own dialect, "ansi" the portable text
+// (not in MySQL, which reads double quotes as strings), "function" the
+// function form (not in SQLite, which has no SQL-bodied functions).
+func (r sqlRunner) Variants() []string {
+	if r.engine == "mysql" {
+		return []string{"", functionVariant}
+	}
+	return []string{"", "ansi", functionVariant}
+}
 
 func (sqlRunner) CompileOptions(string) compile.Options { return compile.Options{} }
 
 // Tolerance is sqltarget.Tolerance: bit for bit without a transform, within
 // (k+4)·2^-52 under logistic or softmax (the engine's EXP).
-func (sqlRunner) Tolerance(_ string, p *compile.Program) (bool, float64) {
+//
+// MySQL and MariaDB return -0 as +0 (measured on MariaDB 10.11, see
+// TestMySQLFacts), so for them alone the runner compares within the bound
+// (0 without a transform), under which -0 and +0 agree and every other
+// value must still be the same double.
+func (r sqlRunner) Tolerance(_ string, p *compile.Program) (bool, float64) {
 	b := sqltarget.Tolerance(p)
+	if r.engine == "mysql" {
+		return false, b
+	}
 	return b == 0, b
 }
 
@@ -69,7 +85,7 @@ func (r sqlRunner) dialect(variant string) sqltarget.Dialect {
 	if variant == "ansi" || variant == "ansi-shell" {
 		return sqltarget.ANSI
 	}
-	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres}[r.engine]
+	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres, "mysql": sqltarget.MySQL}[r.engine]
 }
 
 // sqlTable is the table the runners create; its name needs quoting.
@@ -93,20 +109,44 @@ func (r sqlRunner) options(p *compile.Program, layout, variant, schema string) (
 	if errors.Is(err, sqltarget.ErrNames) {
 		o.Columns = make([]string, len(p.Features))
 		for i, f := range p.Features {
-			o.Columns[i] = "c" + strconv.Itoa(i) + " " + strings.ReplaceAll(f.Name, "\x00", "")
+			o.Columns[i] = r.shortName("c"+strconv.Itoa(i)+" "+strings.ReplaceAll(f.Name, "\x00", ""), 64)
 		}
 		for j, n := range sqltarget.OutputNames(p) {
-			o.Outputs = append(o.Outputs, "o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""))
+			o.Outputs = append(o.Outputs, r.shortName("o"+strconv.Itoa(j)+" "+strings.ReplaceAll(n, "\x00", ""), 256))
 		}
 		// What renaming cannot mend (a class label with a NUL byte, which
 		// the class column must spell) is beyond SQL.
-		if _, _, err := sqltarget.Resolve(p, o); errors.Is(err, sqltarget.ErrNames) {
+		_, _, err := sqltarget.Resolve(p, o)
+		if errors.Is(err, sqltarget.ErrNames) {
 			return o, fmt.Errorf("%w: %v", ErrDeclined, err)
+		}
+		if err != nil { // a refusal past the names (found with mysql names: diff-seed184)
+			return o, declined(err)
 		}
 	} else if err != nil {
 		return o, declined(err)
 	}
 	return o, nil
+}
+
+// shortName cuts a made-up column name to limit characters, keeps it
+// from ending in a space and drops characters outside the Basic
+// Multilingual Plane, for MySQL (see sqltarget's checkLength); other
+// engines take it whole.
+func (r sqlRunner) shortName(s string, limit int) string {
+	if r.engine != "mysql" {
+		return s
+	}
+	s = strings.Map(func(c rune) rune {
+		if c > 0xFFFF {
+			return -1
+		}
+		return c
+	}, s)
+	if rs := []rune(s); len(rs) > limit {
+		s = string(rs[:limit])
+	}
+	return strings.TrimRight(s, " \t\n\v\f\r")
 }
 
 // rowColumn is the kept row-number column: "sawmill_row", with more
@@ -150,6 +190,10 @@ type sqlDB struct {
 	param   func(i int) string
 	colType string
 	close   func()
+	// quote quotes an identifier (nil: double quotes); createTable opens
+	// the load's CREATE TABLE (nil: "CREATE TABLE").
+	quote       func(string) string
+	createTable string
 	// nanTwins: the engine stores NaN, so load adds, after the rows, a
 	// copy of each row holding a missing value with NaN stored in place of
 	// NULL, and run holds its outputs to the row's (see load).
@@ -186,6 +230,8 @@ func (r sqlRunner) open(ctx context.Context, file string) (*sqlDB, error) {
 		return openDuckDB(ctx)
 	case "postgres":
 		return openPostgres(ctx, r.dsn)
+	case "mysql":
+		return openMySQL(ctx, r.dsn)
 	}
 	panic("BUG: unknown SQL engine " + r.engine)
 }
@@ -286,12 +332,21 @@ func openPostgres(ctx context.Context, dsn string) (*sqlDB, error) {
 
 func quoteIdent(s string) string { return `"` + strings.ReplaceAll(s, `"`, `""`) + `"` }
 
+// quoteFn is the session's identifier quoting.
+func (db *sqlDB) quoteFn() func(string) string {
+	if db.quote != nil {
+		return db.quote
+	}
+	return quoteIdent
+}
+
 // load creates the table and inserts every row, NULL for NaN. Where the
 // engine stores NaN (nanTwins), each row holding a missing value is loaded a
 // second time after all the rows, numbered from rows.Len() on, with NaN
 // stored instead of NULL: the statement must score a stored NaN exactly as
 // NULL (emit/sqltarget's featureInput), which run checks bit for bit.
 func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqltarget.Options, rows *forest.Rows) error {
+	quoteIdent := db.quoteFn()
 	ref := quoteIdent(o.Table)
 	if o.Schema != "" {
 		ref = quoteIdent(o.Schema) + "." + ref
@@ -339,7 +394,8 @@ func (db *sqlDB) load(ctx context.Context, p *compile.Program, o sqltarget.Optio
 		cols = append(cols, quoteIdent(name))
 		defs = append(defs, quoteIdent(name)+" "+db.colType)
 	}
-	if _, err := db.conn.ExecContext(ctx, "CREATE TABLE "+ref+" ("+strings.Join(defs, ", ")+")"); err != nil {
+	create := cmp.Or(db.createTable, "CREATE TABLE")
+	if _, err := db.conn.ExecContext(ctx, create+" "+ref+" ("+strings.Join(defs, ", ")+")"); err != nil {
 		return fmt.Errorf("create table: %v", err)
 	}
 	if db.appendRows != nil {
@@ -411,6 +467,9 @@ func (r sqlRunner) Score(ctx context.Context, p *compile.Program, layout, varian
 	if err := r.declines(p, layout, variant); err != nil {
 		return nil, err
 	}
+	if variant == functionVariant {
+		return r.scoreFunction(ctx, p, layout, rows, dir)
+	}
 	return r.score(ctx, p, rows, dir, isShell(variant), func(schema string) (sqltarget.Options, error) {
 		o, err := r.options(p, layout, variant, schema)
 		if err == nil && isShell(variant) {
@@ -480,6 +539,10 @@ func (r sqlRunner) declines(p *compile.Program, layout, variant string) error {
 // With shell (SQLite only), the rows go into a database file and the
 // system sqlite3 shell runs the statement (shellRun).
 func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.Rows, dir string, shell bool, opts func(schema string) (sqltarget.Options, error)) (*Result, error) {
+	rows, err := r.loadable(p, rows)
+	if err != nil {
+		return nil, err
+	}
 	file := ""
 	if shell {
 		if _, _, err := SQLiteShell(); err != nil {
@@ -519,6 +582,11 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 	if err := db.load(ctx, p, o, rows); err != nil {
 		return nil, fmt.Errorf("%s: %v", r.engine, err)
 	}
+	if r.engine == "mysql" {
+		if err := mysqlFits(ctx, db.conn, len(text)); err != nil {
+			return nil, err
+		}
+	}
 	if shell {
 		db.close()
 		closed = true
@@ -534,6 +602,9 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 		}
 	}
 	res, err := db.run(ctx, p, text, rows.Len(), len(o.Keep)-1, r.engine)
+	if err == nil && r.engine == "mysql" {
+		res.Toolchain = mysqlToolchain(ctx, db.conn)
+	}
 	if err == nil && r.engine == "sqlite" {
 		var v string
 		if db.conn.QueryRowContext(ctx, "SELECT sqlite_version()").Scan(&v) == nil {
@@ -550,6 +621,9 @@ func (r sqlRunner) score(ctx context.Context, p *compile.Program, rows *forest.R
 // cannot score on these rows, declined with the reason, never a number
 // that differs.
 func runError(p *compile.Program, engine string, err error) error {
+	if d := mysqlError(err); engine == "mysql" && d != nil {
+		return d
+	}
 	if p.Float32Accumulate() && strings.Contains(err.Error(), "value out of range: overflow") {
 		return fmt.Errorf("%w: %s raises overflow where a float32 sum passes float32's range: %v", ErrDeclined, engine, shorten(err))
 	}
@@ -706,8 +780,8 @@ func SQLRunner(engine string) (Runner, error) {
 	switch engine {
 	case "sqlite":
 		return sqliteRunner{sqlRunner{engine: engine}}, nil
-	case "duckdb", "postgres":
+	case "duckdb", "postgres", "mysql":
 		return sqlRunner{engine: engine}, nil
 	}
-	return nil, fmt.Errorf("unknown SQL engine %q\nhint: use sqlite, duckdb or postgres", engine)
+	return nil, fmt.Errorf("unknown SQL engine %q\nhint: use sqlite, duckdb, postgres or mysql", engine)
 }

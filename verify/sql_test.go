@@ -8,6 +8,7 @@ import (
 	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 
@@ -111,13 +112,14 @@ func TestSQLLiterals(t *testing.T) {
 
 // TestSQLExp measures each engine's EXP against Go's math.Exp, the
 // interpreter's: they must agree within one ulp (the runner's tolerance
-// for transformed outputs rests on it).
+// for transformed outputs rests on it). MySQL/MariaDB included (its EXP
+// raises an error past 709.78, outside the arguments here).
 func TestSQLExp(t *testing.T) {
 	var xs []float64
 	for i := -2000; i <= 2000; i++ {
 		xs = append(xs, float64(i)*0.0173, float64(i)*0.35+0.001)
 	}
-	for _, r := range sqlEngineRunners {
+	for _, r := range append(sqlEngineRunners, sqlRunner{engine: "mysql"}) {
 		t.Run(r.engine, func(t *testing.T) {
 			db := sqlSession(t, r)
 			d := r.dialect("")
@@ -244,12 +246,12 @@ func sqlCheck(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Opt
 // sqlite3 shell (by the sqlite runner alone).
 var allSQLVariants = []string{"", "ansi", "shell", "ansi-shell"}
 
-func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string) {
+func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqltarget.Options, variants []string, extra ...sqlRunner) {
 	t.Helper()
 	p := sqlProgram(t, f)
 	c := &goldencase.Case{Model: f, Rows: rows}
 	want, wantCls := c.Reference()
-	for _, r := range sqlEngineRunners {
+	for _, r := range append(slices.Clone(sqlEngineRunners), extra...) {
 		for _, variant := range variants {
 			if isShell(variant) && r.engine != "sqlite" {
 				continue
@@ -390,7 +392,7 @@ func TestSQLViewAndKeep(t *testing.T) {
 
 // TestSQLNameErrors: names no engine can hold are refused with a message
 // that says why, wrapping ErrNames; names that differ only in case are
-// refused where the dialect folds case (SQLite, DuckDB) and accepted where
+// refused where the dialect folds case (SQLite, DuckDB, MySQL) and accepted where
 // it does not (PostgreSQL, ANSI).
 func TestSQLNameErrors(t *testing.T) {
 	f := &forest.Forest{Task: forest.Regression, Features: []string{"a", "A"}, InputPrecision: forest.Float64,
@@ -399,7 +401,7 @@ func TestSQLNameErrors(t *testing.T) {
 	p := sqlProgram(t, f)
 	for _, d := range sqltarget.Dialects {
 		_, err := sqltarget.Emit(p, sqltarget.Options{Dialect: d})
-		folds := d == sqltarget.SQLite || d == sqltarget.DuckDB
+		folds := d == sqltarget.SQLite || d == sqltarget.DuckDB || d == sqltarget.MySQL
 		if folds != (err != nil) || err != nil && (!errors.Is(err, sqltarget.ErrNames) || !strings.Contains(err.Error(), "same column")) {
 			t.Errorf("%s: features a and A: error %v", d, err)
 		}
@@ -449,5 +451,5 @@ func TestSQLBigForest(t *testing.T) {
 		Combine: forest.Sum, Transform: forest.NoTransform, BaseScore: []float64{0.5}, Trees: trees}
 	rows := randmodel.RandomRows(11, f, 200)
 	t.Logf("%d trees, %d nodes", len(trees), sqlProgram(t, f).NumNodes())
-	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"})
+	sqlCheckVariants(t, f, rows, sqltarget.Options{}, []string{"", "shell"}, sqlRunner{engine: "mysql"})
 }

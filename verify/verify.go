@@ -42,6 +42,9 @@ type VerifyOptions struct {
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
 	// to the runner (Config.PostgresDSN, else PostgresDSN()).
 	PostgresDSN string
+	// MySQLDSN is the MySQL or MariaDB server of the mysql runner; ""
+	// leaves it to the runner (Config.MySQLDSN, else $SAWMILL_MYSQL_DSN).
+	MySQLDSN string
 	// MaxNest is the CASE nesting the SQL runners' statements may use
 	// (sql.Options.MaxNest); 0 leaves each dialect's default.
 	MaxNest int
@@ -288,6 +291,7 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 	for _, r := range sel {
 		r = usePostgres(r, o.PostgresDSN)
+		r = useDSN(r, "mysql", o.MySQLDSN)
 		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
 			r = m.WithMaxNest(o.MaxNest)
 		}
@@ -620,7 +624,8 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 		for _, e := range tg.Engines {
 			// An engine is expected when no dialect is named, or when its
 			// own dialect or the portable one is.
-			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect)
+			// MySQL reads double quotes as strings and runs no ANSI text.
+			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect) && e != string(sqltarget.MySQL)
 			if expected && !served[e] && !slices.Contains(missing, e) {
 				missing = append(missing, e)
 			}
@@ -656,7 +661,8 @@ func sqlVariants(r Runner, o VerifyOptions) []string {
 	var out []string
 	for _, v := range runnerVariants(r, o.Variants) {
 		d := strings.TrimSuffix(strings.TrimSuffix(v, "shell"), "-") // "shell" runs the engine's own text, "ansi-shell" ANSI
-		if d == "" {
+		// The function form is the engine's own dialect.
+		if d == "" || d == functionVariant {
 			d = r.Name()
 		}
 		if len(o.Dialects) == 0 || hasFold(o.Dialects, d) {
@@ -698,8 +704,12 @@ type DSNRunner interface {
 
 // usePostgres points the postgres runner at dsn through WithDSN; "" leaves
 // the runner as it is.
-func usePostgres(r Runner, dsn string) Runner {
-	if d, ok := r.(DSNRunner); ok && dsn != "" && r.Name() == "postgres" {
+func usePostgres(r Runner, dsn string) Runner { return useDSN(r, "postgres", dsn) }
+
+// useDSN points runner engine at dsn through WithDSN; "" leaves the
+// runner as it is.
+func useDSN(r Runner, engine, dsn string) Runner {
+	if d, ok := r.(DSNRunner); ok && dsn != "" && r.Name() == engine {
 		return d.WithDSN(dsn)
 	}
 	return r

@@ -73,6 +73,7 @@ type compileFlags struct {
 	table     string
 	keep      []string
 	view      string
+	function  string
 	sample    string
 	lossy     []string
 	dumpAfter string
@@ -116,10 +117,11 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
 	f.StringVar(&fl.name, "name", "", "C: base name of NAME.h, NAME.c and the NAME_ prefix (default model); SQL: the file NAME.sql (default score)")
 	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
-	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb or ansi")
+	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb, ansi or mysql (MySQL 8, MariaDB 10.11)")
 	f.StringVar(&fl.table, "table", "input", "SQL: the relation to read; its columns are named like the features")
 	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
 	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")
+	f.StringVar(&fl.function, "function", "", "SQL: write functions NAME(feature, ...) (NAME_0, ... per output for several) instead of a query: postgres, duckdb, mysql")
 	f.StringVar(&fl.sample, "sample", "", "Go: rows (CSV) to check in the emitted test besides rows built from leaves")
 	f.StringVar(&fl.tables, "tables", "auto", "Go: the table layout's arrays as literal (one line per node), base64 (a blob, builds fast at any size) or auto (literal up to 50,000 nodes)")
 	f.StringSliceVar(&fl.lossy, "lossy", nil, "lossy passes to run (changes outputs; verify measures by how much)")

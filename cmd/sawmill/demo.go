@@ -298,7 +298,9 @@ func demoVerify(f *forest.Forest, rows *forest.Rows, o verify.VerifyOptions, wro
 		case tg.Engines != nil && w.dialect == verify.AnsiDialect:
 			v.Targets, v.Dialects = []string{tg.Name}, []string{verify.AnsiDialect}
 		case tg.Engines != nil:
-			v.Targets, v.Dialects = []string{w.dialect}, []string{w.dialect}
+			// The query the demo wrote, in the engine and (SQLite) its
+			// shell; not the function form, which it did not write.
+			v.Targets, v.Dialects, v.Variants = []string{w.dialect}, []string{w.dialect}, []string{"", "shell"}
 		case tg.Float:
 			v.Targets, v.Variants = []string{tg.Name}, []string{"double"} // the float build was not written
 		default:

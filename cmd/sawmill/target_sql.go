@@ -24,7 +24,10 @@ func emitSQL(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
 	if err != nil {
 		return nil, err
 	}
-	o := sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols}
+	o := sqltarget.Options{Dialect: d, Table: fl.table, Keep: fl.keep, View: fl.view, Layout: fl.layout, MaxNest: fl.maxNest, Columns: cols, Function: fl.function}
+	if fl.function != "" && fl.selftest {
+		return nil, fmt.Errorf("--selftest checks the query form: leave out --function, or --selftest (sawmill verify --dialect %s runs the functions)", d)
+	}
 	files, err := sqltarget.Emit(p, o)
 	files = sqltarget.Named(files, fl.name)
 	if err != nil || !fl.selftest {

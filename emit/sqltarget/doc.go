@@ -19,30 +19,44 @@
 // modernc.org/sqlite v1.62.0, which has EXP, and the system sqlite3 shell,
 // Debian's 3.40.1), postgres (PostgreSQL 12 or
 // later; tested on 15), duckdb (tested on 1.5.6 through duckdb-go v2.10506.0)
-// and ansi (ISO/IEC 9075:2016 with no engine extension: the golden runners
-// run the ANSI text on all three engines too).
+// ansi (ISO/IEC 9075:2016 with no engine extension: the golden runners
+// run the ANSI text on all three engines too) and mysql (MySQL 8.0 and
+// MariaDB 10.2 or later; only MariaDB 10.11, Debian's 10.11.19, is run
+// here: MySQL itself is not).
 //
-// Identifiers are always delimited (a double quote inside is written twice)
-// and labels are character string literals (a single quote inside is
-// written twice); nothing else is
+// Identifiers are always delimited (a double quote inside is written twice;
+// in mysql text backquotes, a backquote inside written twice, since
+// ANSI_QUOTES is not assumed) and labels are character string literals (a
+// single quote inside is written twice; in mysql text a backslash is
+// CHAR(92 USING utf8mb4), which reads the same with or without
+// NO_BACKSLASH_ESCAPES); nothing else is
 // special inside either in any dialect, so names such as DROP TABLE t;--,
 // quotes and backslashes stay names. PostgreSQL reads backslashes plainly only
 // with standard_conforming_strings on (its default since 9.1); the header of
 // postgres files says so. NUL bytes, invalid UTF-8 and empty names are
 // refused (ErrNames); so are names that the dialect would take for the same
 // column (SQLite and DuckDB ignore ASCII case even in delimited identifiers,
-// PostgreSQL truncates to 63 bytes). Options.Columns and Options.Outputs
+// PostgreSQL truncates to 63 bytes, MySQL ignores case and refuses column
+// names over 64 characters or ending in a space). Options.Columns and Options.Outputs
 // rename the columns when a model's names cannot be used.
 //
 // # Numbers
 //
 // Every threshold and leaf is spelled so that the engine reads back the same
 // double and types it double precision (see Dialect.Literal): exponent form
-// in SQLite and DuckDB (DuckDB reads 0.1 as DECIMAL, SQLite reads 3 as
-// INTEGER), ::float8 casts in PostgreSQL (which reads every literal with a
+// in SQLite, DuckDB and MySQL (DuckDB and MySQL read 0.1 as DECIMAL, SQLite
+// reads 3 as INTEGER; TestMySQLFacts reads 211 doubles back bit for bit
+// from MariaDB), ::float8 casts in PostgreSQL (which reads every literal with a
 // point or exponent as numeric), CAST(... AS DOUBLE PRECISION) in ANSI.
 // -0 is kept in every dialect (it matters only in a sum whose every term is
-// -0). Sums run in the interpreter's order: the base score (Sum) or zero
+// -0), but MariaDB returns -0 as +0 (measured), so verify compares the two
+// as equal for mysql alone. MySQL has neither NaN nor infinities: a DOUBLE
+// column refuses them (load a missing value as NULL), EXP raises "DOUBLE
+// value is out of range" past 709.78 and a sum past the largest double
+// raises it too (verify declines such rows, naming the reason); a model
+// whose exp transform could overflow is refused in mysql text, and the
+// float32 logistic, whose expf may overflow, uses 1e300 for the infinity
+// (1/(1+1e300) rounds to the same float32 0). Sums run in the interpreter's order: the base score (Sum) or zero
 // (Average) plus each tree in tree order, left to right, never regrouped;
 // Average divides by the number of trees, then adds the base score. Inputs
 // are compared as doubles: the float32 pass has already turned float32-model
@@ -62,9 +76,10 @@
 // sums z0, z1, ... carried as columns; then the transform; then the final
 // SELECT naming the result columns. Stages after the first are MATERIALIZED
 // (sqlite, postgres, duckdb) so that no engine inlines the chain into one
-// expression again; ANSI has no such word, and its stages carry a
-// ROW_NUMBER() OVER () column instead, which keeps SQLite and PostgreSQL
-// from inlining them. Splitting the sum over stages keeps its order (each
+// expression again; ANSI, MySQL and MariaDB have no such word, and their
+// stages carry a ROW_NUMBER() OVER () column instead, which keeps SQLite
+// and PostgreSQL from inlining them and makes MySQL and MariaDB
+// materialize a derived table rather than merge it. Splitting the sum over stages keeps its order (each
 // stage starts from the last one's partial sums) and keeps SQLite's
 // expression depth limit (1000: a left-deep sum of more than about 990 trees
 // fails) and DuckDB's (1000) away.
@@ -95,14 +110,18 @@
 //   - auto: table for DuckDB (2.8 times faster than nested on a 100-tree
 //     forest, measured; about even for binary votes, and faster to prepare),
 //     for trees deeper than MaxNest and for models of more than two outputs;
-//     nested otherwise.
+//     nested otherwise, and for the mysql function form, where each stage
+//     is a statement the stored program runs per call (nested 1.8 s, table
+//     6.5 s in MariaDB 10.11 on golden case sklearn-breast-cancer).
 //
 // A fully flat form (one CASE per tree with a WHEN per leaf holding the whole
 // root-to-leaf conjunction) is not offered: measured on SQLite it is 17 to
 // 100 times slower than nested and prepares more slowly still.
 //
 // MaxNest defaults (DefaultMaxNest): sqlite 12, ansi 10, postgres 500,
-// duckdb 400. sqlite and ansi text must run in stock SQLite (Debian's
+// duckdb 400, mysql 250 (MariaDB 10.11 fails with "Thread stack overrun"
+// past 538 levels at its default thread_stack, TestMySQLLimits; the table
+// layout's lookup is a binary-search CASE, MariaDB having no arrays). sqlite and ansi text must run in stock SQLite (Debian's
 // sqlite3 3.40.1, Python's sqlite3 module, Android, iOS), whose fixed
 // 100-entry parser stack fails with "parser stack overflow" past 15 levels
 // of CASE in sqlite text and 14 in ansi text in the worst shape written
@@ -112,6 +131,28 @@
 // memory). Stock SQLite's other limits a statement can meet are checked
 // too: 2,000 columns a sub-query and 1,000,000,000 bytes are refused with
 // an error naming the limit.
+//
+// # Functions
+//
+// With Options.Function (sawmill compile --function NAME) the stages
+// become the body of SQL-bodied functions, so that a query reads SELECT
+// id, NAME(a, b, c) FROM t: one argument per feature in model order, NULL
+// for a missing value. PostgreSQL gets CREATE FUNCTION ... LANGUAGE sql
+// IMMUTABLE, DuckDB a scalar macro (both a scalar sub-query of the
+// stages), MySQL and MariaDB a DETERMINISTIC stored function whose body
+// assigns each stage to local variables and returns the result (three
+// times faster in MariaDB than a sub-query, which builds a temporary table
+// per stage and call; in the mysql client the file switches DELIMITER around
+// it). SQLite and ANSI SQL have no SQL-bodied scalar functions: the option
+// is refused there, with a hint to emit the query. A function returns one
+// value, so a model of one regression output gets NAME, and any other
+// NAME_0, NAME_1, ... per output and, for a classifier, NAME for the
+// label (FunctionNames). Each function walks every tree, so the form
+// takes at most MaxFunctionOutputs (16) outputs. Per-row calls cost more
+// than the query: in MariaDB 10.11 about 0.6 ms a call for the 30-tree
+// forest of golden case sklearn-breast-cancer (1.8 ms as a sub-query),
+// where the query scores its 953 rows in 40 ms; verify's "function" variant runs the form
+// in PostgreSQL, DuckDB and MariaDB.
 //
 // # Stored NaN
 //

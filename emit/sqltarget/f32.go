@@ -134,6 +134,12 @@ func (g *gen) infTimes(x string) string {
 		return "'Infinity'::float8 * " + x
 	case DuckDB:
 		return "'Infinity'::DOUBLE * " + x
+	case MySQL:
+		// No infinity: ±1e300 stands in. newGen refuses models whose
+		// outputs could be infinite, so only the float32 logistic meets it,
+		// as expf(-z) overflowing, where round32(1/round32(1 + 1e300)) is
+		// +0 as round32(1/(1 + Inf)) is.
+		return fmt.Sprintf("CASE WHEN %s > %s THEN %s ELSE %s END", x, g.d.num(0), g.d.num(1e300), g.d.num(-1e300))
 	}
 	inf := "CAST('Infinity' AS DOUBLE PRECISION)"
 	big := g.d.num(1e308)

@@ -24,9 +24,15 @@ func checkText(what, s string) error {
 
 // ident quotes s as a delimited identifier (ISO/IEC 9075 <delimited
 // identifier>): inside double quotes a double quote is doubled and every
-// other character, backslash included, stands for itself, in all four
-// dialects. s must have passed checkText.
-func ident(s string) string {
+// other character, backslash included, stands for itself. MySQL and
+// MariaDB read double quotes as strings unless sql_mode has ANSI_QUOTES,
+// which is not assumed: mysql text quotes in backquotes, a backquote inside
+// doubled, every other character itself (MySQL 8.0 manual, 11.2 "Schema
+// Object Names"). s must have passed checkText.
+func (d Dialect) ident(s string) string {
+	if d == MySQL {
+		return "`" + strings.ReplaceAll(s, "`", "``") + "`"
+	}
 	return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
 }
 
@@ -35,8 +41,27 @@ func ident(s string) string {
 // DuckDB, in ANSI SQL, and in PostgreSQL with standard_conforming_strings on
 // (its default since 9.1); with it off, PostgreSQL would read backslashes as
 // escapes, so the header of every postgres file says so.
-func str(s string) string {
-	return "'" + strings.ReplaceAll(s, "'", "''") + "'"
+//
+// MySQL and MariaDB read a backslash in a string as an escape unless
+// sql_mode has NO_BACKSLASH_ESCAPES; mysql text spells each backslash as
+// CHAR(92 USING utf8mb4) joined by CONCAT, which reads the same under
+// either mode.
+func (d Dialect) str(s string) string {
+	q := func(s string) string { return "'" + strings.ReplaceAll(s, "'", "''") + "'" }
+	if d != MySQL || !strings.Contains(s, `\`) {
+		return q(s)
+	}
+	parts := strings.Split(s, `\`)
+	var out []string
+	for i, part := range parts {
+		if i > 0 {
+			out = append(out, "CHAR(92 USING utf8mb4)")
+		}
+		if part != "" {
+			out = append(out, q(part))
+		}
+	}
+	return "CONCAT(" + strings.Join(out, ", ") + ")"
 }
 
 // num (Literal) spells a finite float64 so that the dialect reads back exactly the same
@@ -82,12 +107,49 @@ func (d Dialect) Literal(v float64) string {
 	return s
 }
 
+// mysqlSpace is the white space MySQL does not allow at the end of a name.
+const mysqlSpace = " \t\n\v\f\r"
+
+// checkLength refuses, in mysql text, a name longer than limit characters
+// (64 for tables and columns, 256 for a column alias), ending in white
+// space (error 1166, "Incorrect column name", for a tab and a vertical
+// tab: golden cases diff-mysql-trailing-tab, diff-mysql-vertical-tab),
+// or holding a character outside the Basic Multilingual Plane, which MySQL
+// and MariaDB refuse (MySQL 8.0 manual, 11.2 "Schema Object Names";
+// measured on MariaDB 10.11: error 1059, "Identifier name ... is too
+// long", and error 1300, "Invalid utf8mb4 character string", for an emoji,
+// found by the differential test, golden case diff-mysql-astral-names).
+// Other dialects have no such rule here (PostgreSQL's truncation is
+// foldName's).
+func (d Dialect) checkLength(what, s string, limit int) error {
+	if d != MySQL {
+		return nil
+	}
+	if n := utf8.RuneCountInString(s); n > limit {
+		return fmt.Errorf("%s %q is %d characters long, and MySQL allows %d", what, s, n, limit)
+	}
+	if strings.TrimRight(s, mysqlSpace) != s {
+		return fmt.Errorf("%s %q ends with white space, which MySQL does not allow in a name", what, s)
+	}
+	for _, r := range s {
+		if r > 0xFFFF {
+			return fmt.Errorf("%s %q holds %q, outside the Basic Multilingual Plane, which MySQL does not allow in a name", what, s, r)
+		}
+	}
+	return nil
+}
+
 // foldName is the form under which the dialect compares identifiers:
 // SQLite and DuckDB match even quoted identifiers without regard to ASCII
 // case; PostgreSQL keeps case but truncates identifiers to 63 bytes
 // (NAMEDATALEN-1); ANSI compares delimited identifiers as written.
 func (d Dialect) foldName(s string) string {
 	switch d {
+	case MySQL:
+		// Column names compare without regard to case and accents
+		// (MySQL 8.0 manual, 11.2.3 "Identifier Case Sensitivity"); lower
+		// case covers case, and accents are left to the engine's error.
+		return strings.ToLower(s)
 	case SQLite, DuckDB:
 		b := []byte(s)
 		for i, c := range b {

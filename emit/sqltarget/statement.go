@@ -39,6 +39,10 @@ func (g *gen) statement() {
 	} else {
 		g.transformStages()
 	}
+	if g.o.Function != "" {
+		g.functions()
+		return
+	}
 	g.final()
 }
 
@@ -102,17 +106,26 @@ func (g *gen) header() {
 	fmt.Fprintf(w, "-- %s\n", emit.Ownership)
 	fmt.Fprintf(w, "-- Dialect %s, layout %s. Trees: %d, nodes: %d, outputs: %d.\n", g.d, g.layout, len(p.Trees), p.NumNodes(), p.NumOutputs)
 	missing := "NULL is a missing value"
-	if g.d != SQLite {
+	if g.d != SQLite && g.d != MySQL {
 		missing = "NULL and a stored NaN are missing values"
 	}
-	fmt.Fprintf(w, "-- Reads %s, one double precision column per feature named as below; %s.\n", emit.CommentSafe(g.tableRef()), missing)
-	w.WriteString("-- Features used:")
+	if g.o.Function != "" {
+		fmt.Fprintf(w, "-- Functions of one double precision argument per feature, in this order; %s.\n", missing)
+		w.WriteString("-- Arguments:")
+		for _, f := range g.cols {
+			w.WriteString(" " + emit.CommentSafe(g.d.ident(f)))
+		}
+		w.WriteString("\n-- Features used:")
+	} else {
+		fmt.Fprintf(w, "-- Reads %s, one double precision column per feature named as below; %s.\n", emit.CommentSafe(g.tableRef()), missing)
+		w.WriteString("-- Features used:")
+	}
 	for _, i := range g.used {
-		w.WriteString(" " + emit.CommentSafe(ident(g.cols[i])))
+		w.WriteString(" " + emit.CommentSafe(g.d.ident(g.cols[i])))
 	}
 	w.WriteString("\n-- Result columns:")
 	for _, c := range g.resultColumns() {
-		w.WriteString(" " + emit.CommentSafe(ident(c)))
+		w.WriteString(" " + emit.CommentSafe(g.d.ident(c)))
 	}
 	w.WriteString("\n")
 	if p.Float32Accumulate() {
@@ -133,14 +146,17 @@ func (g *gen) header() {
 		w.WriteString("-- SQLite 3.35 or later (MATERIALIZED); EXP needs the math functions (SQLITE_ENABLE_MATH_FUNCTIONS).\n")
 	case ANSI:
 		w.WriteString("-- ISO/IEC 9075:2016 (SQL:2016): WITH (T121), EXP (T622), CASE, CAST; no engine extensions.\n")
+	case MySQL:
+		w.WriteString("-- MySQL 8.0 or MariaDB 10.2 or later (WITH, ROW_NUMBER); tested on MariaDB 10.11 only. A DOUBLE\n")
+		w.WriteString("-- column cannot hold NaN: load a missing value as NULL. MariaDB returns -0 as 0.\n")
 	}
 }
 
 func (g *gen) tableRef() string {
 	if g.o.Schema != "" {
-		return ident(g.o.Schema) + "." + ident(g.o.Table)
+		return g.d.ident(g.o.Schema) + "." + g.d.ident(g.o.Table)
 	}
-	return ident(g.o.Table)
+	return g.d.ident(g.o.Table)
 }
 
 func keepCol(i int) string { return "k" + strconv.Itoa(i) }
@@ -174,13 +190,14 @@ func (g *gen) cte(items []string, materialize bool) {
 	name := g.prefix + strconv.Itoa(g.stage)
 	var b strings.Builder
 	b.WriteString(name)
-	if materialize && g.d != ANSI {
+	if materialize && !g.fenced() {
 		b.WriteString(" AS MATERIALIZED (\n")
 	} else {
 		b.WriteString(" AS (\n")
 	}
 	b.WriteString("  SELECT\n")
-	if materialize && g.d == ANSI {
+	g.stageItems = append(g.stageItems, items)
+	if materialize && g.fenced() {
 		// ISO/IEC 9075 cannot ask for materialization, but engines do not
 		// inline a sub-query that computes a window function (SQLite's
 		// flattener and PostgreSQL's subquery pull-up both refuse, from
@@ -196,9 +213,12 @@ func (g *gen) cte(items []string, materialize bool) {
 		}
 		b.WriteString("\n")
 	}
-	if g.last == "" {
+	switch {
+	case g.last == "" && g.o.Function != "":
+		b.WriteString(")") // the arguments, no table
+	case g.last == "":
 		b.WriteString("  FROM " + g.tableRef() + "\n)")
-	} else {
+	default:
 		b.WriteString("  FROM " + g.last + "\n)")
 	}
 	g.ctes = append(g.ctes, b.String())
@@ -211,10 +231,14 @@ func (g *gen) cte(items []string, materialize bool) {
 func (g *gen) inputStage() {
 	var items []string
 	for i, k := range g.o.Keep {
-		items = append(items, ident(k)+" AS "+keepCol(i))
+		items = append(items, g.d.ident(k)+" AS "+keepCol(i))
 	}
 	for _, i := range g.used {
-		items = append(items, g.featureInput(ident(g.cols[i]))+" AS "+featCol(i))
+		col := g.d.ident(g.cols[i])
+		if g.o.Function != "" {
+			col = argName(i)
+		}
+		items = append(items, g.featureInput(col)+" AS "+featCol(i))
 	}
 	if len(items) == 0 { // a model of single leaves reading nothing
 		items = append(items, "1 AS "+g.prefix+"row")
@@ -244,7 +268,7 @@ func (g *gen) featureInput(col string) string {
 	case ANSI:
 		return "CASE WHEN " + col + " > 0 AND " + col + " <= -" + col + " THEN NULL ELSE " + col + " END"
 	}
-	return col
+	return col // sqlite and mysql: a DOUBLE column cannot hold NaN
 }
 
 // sumStart is the running sum of output j before trees [a, ...): the base
@@ -716,39 +740,25 @@ func firstMax(cols []string, val func(i int) string) string {
 func (g *gen) final() {
 	w := &g.out
 	// The label first: with many classes it adds stages of its own.
-	label := ""
-	if g.p.IsClassifier() {
-		if g.p.NumOutputs == 1 {
-			label = fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), str(g.p.Classes[1]), str(g.p.Classes[0]))
-		} else {
-			label = g.classOf()
-		}
-	}
+	label := g.label()
 	if g.o.View != "" {
-		v := ident(g.o.View)
+		v := g.d.ident(g.o.View)
 		if g.o.Schema != "" {
-			v = ident(g.o.Schema) + "." + v
+			v = g.d.ident(g.o.Schema) + "." + v
 		}
 		fmt.Fprintf(w, "CREATE VIEW %s AS\n", v)
 	}
-	w.WriteString("WITH\n")
-	for i, c := range g.ctes {
-		w.WriteString(c)
-		if i < len(g.ctes)-1 {
-			w.WriteString(",")
-		}
-		w.WriteString("\n")
-	}
+	g.writeWith(w)
 	var items []string
 	for i, k := range g.o.Keep {
-		items = append(items, keepCol(i)+" AS "+ident(k))
+		items = append(items, keepCol(i)+" AS "+g.d.ident(k))
 	}
 	names := g.outs
 	for j, n := range names {
-		items = append(items, outCol(j)+" AS "+ident(n))
+		items = append(items, outCol(j)+" AS "+g.d.ident(n))
 	}
 	if label != "" {
-		items = append(items, label+" AS "+ident("class"))
+		items = append(items, label+" AS "+g.d.ident("class"))
 	}
 	w.WriteString("SELECT\n")
 	for i, it := range items {
@@ -761,11 +771,45 @@ func (g *gen) final() {
 	w.WriteString("FROM " + g.last + ";\n")
 }
 
+// label is the expression of the class label for a classifier ("" for a
+// regression); with many classes it adds stages of its own, so it comes
+// before the WITH list is written.
+func (g *gen) label() string {
+	if !g.p.IsClassifier() {
+		return ""
+	}
+	if g.p.NumOutputs == 1 {
+		return fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), g.d.str(g.p.Classes[1]), g.d.str(g.p.Classes[0]))
+	}
+	return g.classOf()
+}
+
+// writeWith writes the WITH list of every stage.
+func (g *gen) writeWith(w interface{ WriteString(string) (int, error) }) {
+	w.WriteString("WITH\n")
+	for i, c := range g.ctes {
+		w.WriteString(c)
+		if i < len(g.ctes)-1 {
+			w.WriteString(",")
+		}
+		w.WriteString("\n")
+	}
+}
+
+// fenced reports whether stages are kept apart by a window function
+// rather than MATERIALIZED: ANSI has no such word, nor have MySQL and
+// MariaDB, which merge a derived table or common table expression into
+// the query that reads it unless it computes a window function (MariaDB
+// knowledge base, "Derived Table Merge Optimization"; MySQL 8.0 manual,
+// 10.2.2.4), and so would copy each stage's expressions into every
+// reference.
+func (g *gen) fenced() bool { return g.d == ANSI || g.d == MySQL }
+
 // classOf is the label of the largest output, ties to the lowest class.
 func (g *gen) classOf() string {
 	zs := outCols(g.p.NumOutputs)
 	if len(zs) <= groupSize {
-		return firstMax(zs, func(i int) string { return str(g.p.Classes[i]) })
+		return firstMax(zs, func(i int) string { return g.d.str(g.p.Classes[i]) })
 	}
 	_, pos := g.largest(zs, true)
 	items := append(g.carry(false), zs...)
@@ -773,7 +817,7 @@ func (g *gen) classOf() string {
 	var b strings.Builder
 	b.WriteString("CASE c")
 	for i, c := range g.p.Classes {
-		fmt.Fprintf(&b, " WHEN %d THEN %s", i, str(c))
+		fmt.Fprintf(&b, " WHEN %d THEN %s", i, g.d.str(c))
 	}
 	b.WriteString(" END")
 	return b.String()
