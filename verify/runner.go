@@ -75,6 +75,11 @@ type Config struct {
 	// builds never shrinks unseen; without it any one of gcc, clang and cc
 	// does every build.
 	AllCompilers bool
+	// Boards adds the runners that build emitted C for Cortex-M4, Cortex-M0,
+	// RV32 and AArch64 and run it under QEMU (BoardRunnerName), and emitted
+	// Go for arm64 under qemu-aarch64 (GoArchRunner); a run costs a cross
+	// build and an emulator start per check.
+	Boards bool
 }
 
 // Runners lists every target's runner with the zero Config.
@@ -83,13 +88,17 @@ func Runners() []Runner { return RunnersWith(Config{}) }
 // RunnersWith lists every target's runner, configured by c. A new target
 // adds one line here.
 func RunnersWith(c Config) []Runner {
-	return []Runner{
+	rs := []Runner{
 		goRunner{},
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
 		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
+	if c.Boards {
+		rs = append(rs, boardRunner{Werror: c.Werror}, goRunner{Arch: "arm64"})
+	}
+	return rs
 }
 
 // Mismatch describes the first disagreement between a run and the

@@ -578,6 +578,7 @@ func (g *gen) header() []byte {
 	w.line(" * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations")
 	w.line(" * or flush-to-zero: missing values are NaN and signed zeros and subnormals")
 	w.line(" * must be kept.")
+	g.fpHeaderDoc(&w)
 	w.line(" */")
 	w.line("#ifndef %s_H", u)
 	w.line("#define %s_H", u)
@@ -626,6 +627,7 @@ func (g *gen) header() []byte {
 		}
 		w.line("int %s_predict_class(const %s *x);", g.name, ft)
 	}
+	g.fpHeaderDecl(&w)
 	w.line("")
 	w.line("/* The model's feature names, in input order (UTF-8). */")
 	w.line("extern const char *const %s_feature_names[%s_NUM_FEATURES];", g.name, u)
@@ -759,22 +761,14 @@ func (g *gen) source(body []byte) []byte {
 	w.line("")
 	w.line(`#include "%s.h"`, g.name)
 	w.line("")
-	if g.f32 {
-		w.line("#include <float.h>")
-	}
+	w.line("#include <float.h>")
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
 	if g.layout == emit.Table || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
 	}
-	if g.f32 {
-		w.line("")
-		w.line("/* Float operations must round to float each time (see %s.h). */", g.name)
-		w.line("#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD != 0")
-		w.line("#error \"float32 accumulation needs FLT_EVAL_METHOD 0: build with SSE (-msse2 -mfpmath=sse) or another IEEE float unit\"")
-		w.line("#endif")
-	}
+	g.fpSourceChecks(&w)
 	w.line("")
 	w.line("/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc")
 	w.line(" * ignores the pragma and contracts in its GNU modes; the code keeps a")
@@ -798,6 +792,7 @@ func (g *gen) source(body []byte) []byte {
 	}
 	w.line("")
 	w.buf.Write(body)
+	g.fpCheckFunc(&w)
 	return w.bytes()
 }
 
