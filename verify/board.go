@@ -167,6 +167,13 @@ func (r boardRunner) Score(ctx context.Context, p *compile.Program, layout, vari
 	if err != nil {
 		return nil, err
 	}
+	st, err := ctarget.Selftest(p, o, boardProbes(p, rows, b.float))
+	if err != nil {
+		return nil, err
+	}
+	if err := os.WriteFile(filepath.Join(dir, st.Name), st.Data, 0o644); err != nil {
+		return nil, err
+	}
 	driver, input := boardDriver(o.Name, ft, p.IsClassifier(), len(p.Features), p.NumOutputs), boardRows(rows)
 	if b.linux {
 		driver, input = cDriver(o.Name, ft, p.IsClassifier()), cRows(rows)
@@ -187,7 +194,7 @@ func (r boardRunner) buildAndRun(ctx context.Context, p *compile.Program, b boar
 	defer func() { <-cJobs }()
 	args := append(slices.Clone(b.flags), "-std=c99")
 	args = append(args, cRunner{Werror: r.Werror}.warnings()...)
-	args = append(args, "-o", "model.elf", "driver.c", name+".c")
+	args = append(args, "-o", "model.elf", "driver.c", name+".c", ctarget.SelftestFile(name))
 	args = append(args, b.link...)
 	start := time.Now()
 	if err := cCommand(ctx, dir, nil, nil, b.cc, args...); err != nil {
@@ -230,6 +237,38 @@ func (r boardRunner) buildAndRun(ctx context.Context, p *compile.Program, b boar
 
 // overflowRE finds the linker's word that an image does not fit.
 var overflowRE = regexp.MustCompile("region `[a-z]+' overflowed by [0-9]+ bytes")
+
+// boardSelftestRows is how many of the rows a board run also hands to
+// NAME_selftest.c, which the driver runs after scoring them.
+const boardSelftestRows = 32
+
+// boardProbes are the first boardSelftestRows rows (rounded to float for
+// float C) with the program's own outputs (compile.Eval, which the
+// pipeline's tests hold bit for bit to the interpreter) and classes.
+func boardProbes(p *compile.Program, rows *forest.Rows, float bool) []ctarget.Probe {
+	var out []ctarget.Probe
+	for i := 0; i < min(rows.Len(), boardSelftestRows); i++ {
+		x := slices.Clone(rows.Row(i))
+		if float {
+			for j, v := range x {
+				x[j] = float64(float32(v))
+			}
+		}
+		want := make([]float64, p.NumOutputs)
+		compile.Eval(p, x, want)
+		pr := ctarget.Probe{X: x, Want: want, Class: -1}
+		switch {
+		case p.IsClassifier() && p.NumOutputs == 1 && want[0] > 0.5:
+			pr.Class = 1
+		case p.IsClassifier() && p.NumOutputs == 1:
+			pr.Class = 0
+		case p.IsClassifier():
+			pr.Class = forest.Argmax(want)
+		}
+		out = append(out, pr)
+	}
+	return out
+}
 
 // boardTimeout bounds one run under QEMU: a fault ends in picolibc's
 // handler, which reports it and exits, but a wild jump may loop.

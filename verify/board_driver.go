@@ -16,7 +16,8 @@ const boardRowsFile = "rows.in"
 // output's float64 bit pattern in hex and the class (-1 for a regressor);
 // each chunk is scored again with NAME_predict_batch, which must give the
 // same bits. It exits through SYS_EXIT_EXTENDED with 0, or 2 for bad
-// input, 3 when the batch differs, 4 when NAME_fp_check finds the
+// input, 3 when the batch differs, 5 when NAME_selftest (NAME_selftest.c,
+// built from the first rows) finds a row that differs, 4 when NAME_fp_check finds the
 // floating-point unit (or its emulation) flushing subnormals or not
 // rounding to nearest.
 func boardDriver(name, ft string, classifier bool, features, outputs int) string {
@@ -43,6 +44,8 @@ const boardDriverSource = `#include <stdint.h>
 #include <semihost.h>
 
 #include "NAME.h"
+
+int NAME_selftest(void);
 
 #define NF UPNF
 #define NO UPNO
@@ -151,6 +154,9 @@ int main(void)
 	}
 	sys_semihost_close(in);
 	sys_semihost_close(out);
+	if (NAME_selftest() != 0) {
+		stop("NAME_selftest() is not 0", 5);
+	}
 	sys_semihost_exit_extended(0);
 }
 `
