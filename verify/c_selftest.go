@@ -28,13 +28,8 @@ func CSelftestProbes(f *forest.Forest, float32Inputs bool) []ctarget.Probe {
 			}
 			x = r
 		}
-		want := make([]float64, f.NumOutputs())
-		f.Predict(x, want)
-		pr := ctarget.Probe{X: x, Want: want, Class: -1}
-		if f.IsClassifier() {
-			pr.Class = f.ClassOf(want)
-		}
-		out = append(out, pr)
+		want, class := interpret(f, x)
+		out = append(out, ctarget.Probe{X: x, Want: want, Class: class})
 	}
 	return out
 }
