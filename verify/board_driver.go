@@ -21,16 +21,54 @@ const boardRowsFile = "rows.in"
 // floating-point unit (or its emulation) flushing subnormals or not
 // rounding to nearest.
 func boardDriver(name, ft string, classifier bool, features, outputs int) string {
+	return boardDriverWith(name, ft, classifier, features, outputs, false)
+}
+
+// boardDriverWith is boardDriver, or with count the driver of
+// CountInstructions: it calls sawmill_mark twice at start-up and before
+// and after each NAME_predict, and leaves out the batch and the self-test.
+func boardDriverWith(name, ft string, classifier bool, features, outputs int, count bool) string {
 	chunk := boardChunk(features, outputs)
 	up := strings.ToUpper(name)
 	class := "-1"
 	if classifier {
 		class = name + "_predict_class(xs + k * NF)"
 	}
-	r := strings.NewReplacer("NAME", name, "UPNF", up+"_NUM_FEATURES", "UPNO", up+"_NUM_OUTPUTS", "FT", ft, "CLASS", class,
+	mark, base, batch, selftest := "", "", boardBatch, boardSelftest
+	if count {
+		mark, base, batch, selftest = "sawmill_mark();\n\t\t", "sawmill_mark();\n\tsawmill_mark();\n\t", "", ""
+	}
+	r := strings.NewReplacer("MARK_BASE", base, "MARK", mark, "BATCH", batch, "SELFTEST", selftest)
+	src := r.Replace(boardDriverSource)
+	if count {
+		src = strings.Replace(src, "int main(void)", countMarker+"\nint main(void)", 1)
+	}
+	r = strings.NewReplacer("NAME", name, "UPNF", up+"_NUM_FEATURES", "UPNO", up+"_NUM_OUTPUTS", "FT", ft, "CLASS", class,
 		"CHUNKROWS", fmt.Sprint(chunk))
-	return r.Replace(boardDriverSource)
+	return r.Replace(src)
 }
+
+// boardBatch scores a chunk again with NAME_predict_batch.
+const boardBatch = `	NAME_predict_batch(xs, n, yb);
+	if (memcmp(ys, yb, sizeof(FT) * n * NO) != 0) {
+		stop("NAME_predict_batch differs from NAME_predict", 3);
+	}
+`
+
+// boardSelftest runs NAME_selftest.
+const boardSelftest = `	if (NAME_selftest() != 0) {
+		stop("NAME_selftest() is not 0", 5);
+	}
+`
+
+// countMarker is the counting driver's marker, a function QEMU's log
+// names.
+const countMarker = `void sawmill_mark(void);
+__attribute__((noinline)) void sawmill_mark(void)
+{
+	__asm__ volatile("" ::: "memory");
+}
+`
 
 // boardChunk is how many rows the bare-metal driver holds at once: four,
 // or fewer where their inputs and two copies of their outputs (as doubles)
@@ -109,7 +147,8 @@ static void score_chunk(int out, uint32_t n)
 	}
 	for (k = 0; k < n; k++) {
 		char *p = line;
-		NAME_predict(xs + k * NF, ys + k * NO);
+		MARKNAME_predict(xs + k * NF, ys + k * NO);
+		MARK/* scored */
 		for (j = 0; j < NO; j++) {
 			double v = (double)ys[k * NO + (uint32_t)j];
 			uint64_t bits;
@@ -125,18 +164,14 @@ static void score_chunk(int out, uint32_t n)
 		*p++ = '\n';
 		flush(out, line, p);
 	}
-	NAME_predict_batch(xs, n, yb);
-	if (memcmp(ys, yb, sizeof(FT) * n * NO) != 0) {
-		stop("NAME_predict_batch differs from NAME_predict", 3);
-	}
-}
+BATCH}
 
 int main(void)
 {
 	uint32_t head[2], r, n;
 	int in = sys_semihost_open("rows.in", SH_OPEN_R_B);
 	int out = sys_semihost_open("out.txt", SH_OPEN_W);
-	if (NAME_fp_check() != 0) {
+	MARK_BASEif (NAME_fp_check() != 0) {
 		stop("NAME_fp_check() is not 0: the floating-point unit breaks exactness", 4);
 	}
 	if (in < 0 || out < 0) {
@@ -154,9 +189,6 @@ int main(void)
 	}
 	sys_semihost_close(in);
 	sys_semihost_close(out);
-	if (NAME_selftest() != 0) {
-		stop("NAME_selftest() is not 0", 5);
-	}
-	sys_semihost_exit_extended(0);
+SELFTEST	sys_semihost_exit_extended(0);
 }
 `

@@ -542,6 +542,7 @@ func (g *gen) header() []byte {
 		total += t.Bytes()
 	}
 	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
+	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
 	w.line(" *")
 	switch {
 	case g.f32:

@@ -38,6 +38,7 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_leaf: distinct leaf vectors, 32 x 8 = 256 bytes
  *   total 256 bytes (7.76 bytes per node; code not counted)
+ * At most 16 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

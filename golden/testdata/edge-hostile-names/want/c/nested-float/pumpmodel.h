@@ -38,6 +38,7 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_leaf: distinct leaf vectors, 32 x 4 = 128 bytes
  *   total 128 bytes (3.88 bytes per node; code not counted)
+ * At most 16 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

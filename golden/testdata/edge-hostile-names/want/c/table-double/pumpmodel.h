@@ -41,6 +41,7 @@
  *   pumpmodel_thr: distinct thresholds, 16 x 4 = 64 bytes
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
  *   total 234 bytes (7.09 bytes per node; code not counted)
+ * At most 16 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -41,6 +41,7 @@
  *   pumpmodel_thr: distinct thresholds, 16 x 4 = 64 bytes
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
  *   total 234 bytes (7.09 bytes per node; code not counted)
+ * At most 16 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

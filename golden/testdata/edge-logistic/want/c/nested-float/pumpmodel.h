@@ -22,6 +22,7 @@
  *
  * Static tables in pumpmodel.c:
  *   total 0 bytes (0.00 bytes per node; code not counted)
+ * At most 4 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

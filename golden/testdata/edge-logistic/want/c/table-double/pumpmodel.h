@@ -26,6 +26,7 @@
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
  *   total 84 bytes (7.64 bytes per node; code not counted)
+ * At most 4 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

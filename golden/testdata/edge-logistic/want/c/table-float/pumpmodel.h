@@ -26,6 +26,7 @@
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 4 = 28 bytes
  *   total 56 bytes (5.09 bytes per node; code not counted)
+ * At most 4 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

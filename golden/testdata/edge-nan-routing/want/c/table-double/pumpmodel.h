@@ -23,6 +23,7 @@
  *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
  *   total 65 bytes (8.12 bytes per node; code not counted)
+ * At most 3 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

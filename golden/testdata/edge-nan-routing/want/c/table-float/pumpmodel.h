@@ -23,6 +23,7 @@
  *   pumpmodel_thr: distinct thresholds, 2 x 4 = 8 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 4 = 16 bytes
  *   total 33 bytes (4.12 bytes per node; code not counted)
+ * At most 3 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

@@ -22,6 +22,7 @@
  *   pumpmodel_thr: distinct thresholds, 1 x 4 = 4 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
  *   total 12 bytes (12.00 bytes per node; code not counted)
+ * At most 0 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,
