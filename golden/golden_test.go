@@ -58,7 +58,7 @@ func TestGolden(t *testing.T) {
 					continue
 				}
 				for _, variant := range r.Variants() {
-					for _, layout := range r.Layouts() {
+					for _, layout := range verify.LayoutsOf(r, variant) {
 						if slices.Contains(c.Flags.SkipLayouts, layout) {
 							continue
 						}

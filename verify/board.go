@@ -39,6 +39,22 @@ const BoardRunnerName = "c-board"
 type boardRunner struct {
 	// Werror is Config's.
 	Werror bool
+	// Quick runs each board in one layout (LayoutsFor), to keep CI short.
+	Quick bool
+}
+
+// boardQuickLayouts is the layout each board runs in when Quick: the
+// table layout (packed words, which an ARMv6-M core must read with aligned
+// loads) on the Cortex-M0, the float M4 and AArch64, nested on the others.
+var boardQuickLayouts = map[string]string{"m4": "nested", "m4-float": "table", "m0": "table", "rv32": "nested", "arm64": "table"}
+
+// LayoutsFor is the layouts variant runs in: every C layout, or with Quick
+// the one of boardQuickLayouts.
+func (r boardRunner) LayoutsFor(variant string) []string {
+	if r.Quick {
+		return []string{boardQuickLayouts[variant]}
+	}
+	return r.Layouts()
 }
 
 // board is one processor the runner builds for.

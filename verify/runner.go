@@ -78,7 +78,8 @@ type Config struct {
 	// Boards adds the runners that build emitted C for Cortex-M4, Cortex-M0,
 	// RV32 and AArch64 and run it under QEMU (BoardRunnerName), and emitted
 	// Go for arm64 under qemu-aarch64 (GoArchRunner); a run costs a cross
-	// build and an emulator start per check.
+	// build and an emulator start per check, so each board runs one layout
+	// (see LayoutsFor).
 	Boards bool
 }
 
@@ -96,9 +97,24 @@ func RunnersWith(c Config) []Runner {
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
 	if c.Boards {
-		rs = append(rs, boardRunner{Werror: c.Werror}, goRunner{Arch: "arm64"})
+		rs = append(rs, boardRunner{Werror: c.Werror, Quick: true}, goRunner{Arch: "arm64"})
 	}
 	return rs
+}
+
+// LayoutsFor is implemented by runners that run some variants in fewer
+// layouts than Layouts lists; callers that iterate variants and layouts
+// use LayoutsOf.
+type LayoutsFor interface {
+	LayoutsFor(variant string) []string
+}
+
+// LayoutsOf is the layouts r runs variant in: LayoutsFor's, else Layouts.
+func LayoutsOf(r Runner, variant string) []string {
+	if l, ok := r.(LayoutsFor); ok {
+		return l.LayoutsFor(variant)
+	}
+	return r.Layouts()
 }
 
 // Mismatch describes the first disagreement between a run and the
