@@ -221,6 +221,9 @@ func (r boardRunner) buildAndRun(ctx context.Context, p *compile.Program, b boar
 	}
 	res := &Result{Build: time.Since(start)}
 	res.Toolchain = fmt.Sprintf("%s: %s %s", b.what, ccVersion(b.cc), strings.Join(b.flags, " "))
+	if !b.linux {
+		res.Toolchain += ", picolibc, semihosting"
+	}
 	runCtx, cancel := context.WithTimeout(ctx, boardTimeout)
 	defer cancel()
 	var stdout bytes.Buffer
