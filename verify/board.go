@@ -157,13 +157,22 @@ func (boardRunner) options(layout, variant string) ctarget.Options {
 	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float}
 }
 
-// boardTools reports the first of b's tools that is not on PATH, as
-// ErrSkip naming the Debian packages.
+// boardTools reports the first of b's tools that is not on PATH, or a
+// bare-metal compiler without picolibc, as ErrSkip naming the Debian
+// packages.
 func boardTools(b board) error {
 	for _, t := range []string{b.cc, b.qemu[0]} {
 		if _, err := exec.LookPath(t); err != nil {
 			return fmt.Errorf("%w: %s is not on PATH (Debian packages %s)", ErrSkip, t, b.pkgs)
 		}
+	}
+	if b.linux {
+		return nil
+	}
+	// gcc prints the name alone when it finds no such file.
+	out, err := exec.Command(b.cc, "-print-file-name=picolibc.specs").Output()
+	if err != nil || strings.TrimSpace(string(out)) == "picolibc.specs" {
+		return fmt.Errorf("%w: %s has no picolibc.specs (Debian packages %s)", ErrSkip, b.cc, b.pkgs)
 	}
 	return nil
 }
