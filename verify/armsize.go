@@ -21,7 +21,11 @@ type ObjectSize struct {
 	Text   int    // executable sections
 	Rodata int    // read-only data (the static const tables, name strings)
 	Data   int    // writable data and bss; generated code has none
-	// Stack is the sum of every function's frame (-fstack-usage).
+	// Stack is the stack NAME_predict needs, from gcc's -fstack-usage: its
+	// own frame plus the largest frame of another function of NAME.c (the
+	// tree functions it calls one at a time); the C library's exp and
+	// libgcc's float routines are not counted. -1 when gcc gave no figure
+	// or a frame of dynamic size.
 	Stack int
 }
 
@@ -34,6 +38,9 @@ func (o ObjectSize) Flash() int { return o.Text + o.Rodata + o.Data }
 const ARMCompiler = "arm-none-eabi-gcc"
 
 var ARMFlags = []string{"-std=c99", "-Os", "-mcpu=cortex-m4", "-mthumb"}
+
+// stackFlag asks gcc for each function's frame, in model.su.
+const stackFlag = "-fstack-usage"
 
 // ErrNoARM is returned by MeasureARM when arm-none-eabi-gcc is not on PATH.
 var ErrNoARM = errors.New(ARMCompiler + " is not on PATH")
@@ -97,7 +104,7 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 				src = f.Name
 			}
 		}
-		args := append(append([]string{}, ARMFlags...), "-fstack-usage", "-c", "-o", "model.o", src)
+		args := append(append([]string{}, ARMFlags...), stackFlag, "-c", "-o", "model.o", src)
 		cmd := exec.CommandContext(ctx, ARMCompiler, args...)
 		cmd.Dir = sub
 		var stderr bytes.Buffer
@@ -110,9 +117,7 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 			return nil, err
 		}
 		obj.Flags = strings.Join(ARMFlags, " ")
-		if obj.Stack, err = stackUsage(sub); err != nil {
-			return nil, err
-		}
+		obj.Stack = stackUsage(filepath.Join(sub, "model.su"), ctargetName(o)+"_predict")
 		sizes[i].ARM = obj
 	}
 	return sizes, nil
@@ -141,4 +146,41 @@ func ObjectSizes(path string) (*ObjectSize, error) {
 		}
 	}
 	return &s, nil
+}
+
+func ctargetName(o ctarget.Options) string {
+	if o.Name == "" {
+		return "model"
+	}
+	return o.Name
+}
+
+// stackUsage reads gcc's -fstack-usage file ("file:line:col:function
+// bytes qualifier" per line) and returns predict's frame plus the largest
+// other one, -1 when predict is missing or a frame is dynamic.
+func stackUsage(path, predict string) int {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return -1
+	}
+	own, other := -1, 0
+	for _, line := range strings.Split(strings.TrimSpace(string(data)), "\n") {
+		f := strings.Split(line, "\t")
+		if len(f) != 3 || !strings.HasPrefix(f[2], "static") {
+			return -1
+		}
+		var n int
+		if _, err := fmt.Sscan(f[1], &n); err != nil {
+			return -1
+		}
+		if fn := f[0][strings.LastIndex(f[0], ":")+1:]; fn == predict {
+			own = n
+		} else {
+			other = max(other, n)
+		}
+	}
+	if own < 0 {
+		return -1
+	}
+	return own + other
 }

@@ -26,9 +26,11 @@ func TestMeasureARM(t *testing.T) {
 	require.Len(t, sizes, len(ctarget.Layouts()))
 	for _, s := range sizes {
 		require.NotNil(t, s.ARM, s.Layout)
-		t.Logf("%s: tables %d bytes; Cortex-M4 -Os object: .text %d, .rodata %d, .data+.bss %d", s.Layout, s.TableBytes, s.ARM.Text, s.ARM.Rodata, s.ARM.Data)
+		t.Logf("%s: tables %d bytes; Cortex-M4 -Os object: .text %d, .rodata %d, .data+.bss %d, stack %d; at most %d splits", s.Layout, s.TableBytes, s.ARM.Text, s.ARM.Rodata, s.ARM.Data, s.ARM.Stack, s.WorstSplits)
 		require.Greater(t, s.ARM.Text, 0)
 		require.GreaterOrEqual(t, s.ARM.Rodata, s.TableBytes, "the tables are in .rodata")
 		require.Zero(t, s.ARM.Data, "generated code has no writable data")
+		require.Greater(t, s.ARM.Stack, 0, "gcc -fstack-usage gives predict's frame")
+		require.Greater(t, s.WorstSplits, 0)
 	}
 }

@@ -4,9 +4,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"os"
-	"path/filepath"
-	"strconv"
 	"strings"
 
 	"github.com/sawmill-dev/sawmill/compile"
@@ -26,16 +23,15 @@ type BudgetRow struct {
 	// else the static tables alone (ctarget.Sizes: code not counted, so a
 	// lower bound).
 	Flash int
-	// RAM is the object's .data and .bss plus the sum of every function's
-	// stack frame as -fstack-usage reports it (no function of NAME.c
-	// recurses, so the sum bounds the deepest call chain); -1 when not
-	// measured.
+	// RAM is the object's .data and .bss plus the stack of a prediction
+	// (ObjectSize.Stack: NAME_predict's frame and the largest frame it
+	// calls; nothing in NAME.c recurses); -1 when not measured.
 	RAM      int
 	Measured bool
 }
 
 // Miss is by how many bytes r misses b's flash and RAM (0 when it fits;
-// RAM is 0 when not measured).
+// RAM is 0 when not measured: see Fits).
 func (r BudgetRow) Miss(b Budget) (flash, ram int) {
 	if b.Flash > 0 && r.Flash > b.Flash {
 		flash = r.Flash - b.Flash
@@ -44,6 +40,13 @@ func (r BudgetRow) Miss(b Budget) (flash, ram int) {
 		ram = r.RAM - b.RAM
 	}
 	return flash, ram
+}
+
+// Fits reports whether r is within b: it misses neither, and its RAM is
+// known wherever b bounds RAM.
+func (r BudgetRow) Fits(b Budget) bool {
+	fm, rm := r.Miss(b)
+	return fm == 0 && rm == 0 && (b.RAM == 0 || r.RAM >= 0)
 }
 
 // BudgetError is FitBudget's failure: no layout fits; Rows says by how
@@ -63,6 +66,9 @@ func (e *BudgetError) Error() string {
 		}
 		if rm > 0 {
 			why = append(why, fmt.Sprintf("RAM by %d bytes (%d of %d)", rm, r.RAM, e.Budget.RAM))
+		}
+		if e.Budget.RAM > 0 && r.RAM < 0 {
+			why = append(why, "RAM unknown (gcc gave no static stack figure)")
 		}
 		parts = append(parts, fmt.Sprintf("  %s misses %s", r.Layout, strings.Join(why, " and ")))
 	}
@@ -98,13 +104,16 @@ func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Bud
 		}
 		r := BudgetRow{Layout: s.Layout, Flash: s.TableBytes, RAM: -1, Measured: measured}
 		if s.ARM != nil {
-			r.Flash, r.RAM = s.ARM.Flash(), s.ARM.Data+s.ARM.Stack
+			r.Flash = s.ARM.Flash()
+			if s.ARM.Stack >= 0 {
+				r.RAM = s.ARM.Data + s.ARM.Stack
+			}
 		}
 		rows = append(rows, r)
 	}
 	best := -1
 	for i, r := range rows {
-		if fm, rm := r.Miss(b); fm == 0 && rm == 0 && (best < 0 || r.Flash < rows[best].Flash) {
+		if r.Fits(b) && (best < 0 || r.Flash < rows[best].Flash) {
 			best = i
 		}
 	}
@@ -112,32 +121,4 @@ func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Bud
 		return "", rows, &BudgetError{Budget: b, Rows: rows}
 	}
 	return rows[best].Layout, rows, nil
-}
-
-// stackUsage sums the frames of the .su files gcc's -fstack-usage wrote in
-// dir: each line is "file:line:col:function<TAB>bytes<TAB>qualifiers".
-func stackUsage(dir string) (int, error) {
-	files, err := filepath.Glob(filepath.Join(dir, "*.su"))
-	if err != nil || len(files) == 0 {
-		return 0, fmt.Errorf("%s wrote no .su file in %s", ARMCompiler, dir)
-	}
-	total := 0
-	for _, f := range files {
-		data, err := os.ReadFile(f)
-		if err != nil {
-			return 0, err
-		}
-		for _, line := range strings.Split(strings.TrimSpace(string(data)), "\n") {
-			fs := strings.Split(line, "\t")
-			if len(fs) < 2 {
-				return 0, fmt.Errorf("%s: cannot read %q", f, line)
-			}
-			n, err := strconv.Atoi(fs[1])
-			if err != nil {
-				return 0, fmt.Errorf("%s: cannot read %q: %v", f, line, err)
-			}
-			total += n
-		}
-	}
-	return total, nil
 }

@@ -238,18 +238,9 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 // header as C++ when cxx is set), runs each build over rows, requires every
 // build to print the same bytes, and parses the output.
 func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
-	files, err := ctarget.Emit(p, o)
+	ft, err := writeC(p, o, dir)
 	if err != nil {
-		return nil, declined(err)
-	}
-	for _, f := range files {
-		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
-			return nil, err
-		}
-	}
-	ft := "double"
-	if o.Float {
-		ft = "float"
+		return nil, err
 	}
 	if err := os.WriteFile(filepath.Join(dir, "driver.c"), []byte(cDriver(o.Name, ft, p.IsClassifier())), 0o644); err != nil {
 		return nil, err
@@ -338,6 +329,24 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Option
 		return nil, err
 	}
 	return res, nil
+}
+
+// writeC emits p under o into dir and returns the API's type, "double" or
+// "float"; a construct the target cannot write is ErrDeclined.
+func writeC(p *compile.Program, o ctarget.Options, dir string) (string, error) {
+	files, err := ctarget.Emit(p, o)
+	if err != nil {
+		return "", declined(err)
+	}
+	for _, f := range files {
+		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
+			return "", err
+		}
+	}
+	if o.Float {
+		return "float", nil
+	}
+	return "double", nil
 }
 
 var ccVersions sync.Map // compiler name → "gcc 12.2.0"
@@ -437,7 +446,8 @@ int main(int argc, char **argv)
 // cScoreFunc is a driver's static score_NAME(FILE *in): it reads the rows
 // (as cRows writes them), narrows each value to the API's type, prints per
 // row the outputs with %a and the predicted class (-1 for a regressor),
-// then scores all rows again with NAME_predict_batch and fails (status 3)
+// after NAME_fp_check has found the floating-point unit fit (status 4
+// otherwise), then scores all rows again with NAME_predict_batch and fails (status 3)
 // unless every output has the same bits as NAME_predict's.
 func cScoreFunc(name, ft string, classifier bool) string {
 	up := strings.ToUpper(name)
@@ -453,6 +463,10 @@ static int score_` + name + `(FILE *in)
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
 	` + ft + ` *xs, *ys, *yb;
+	if (` + name + `_fp_check() != 0) {
+		fprintf(stderr, "` + name + `_fp_check() is %d: the floating-point unit breaks exactness\n", ` + name + `_fp_check());
+		return 4;
+	}
 	if (fscanf(in, "%lu %lu", &rows, &cols) != 2 || cols != ` + up + `_NUM_FEATURES) {
 		fprintf(stderr, "bad header\n");
 		return 2;

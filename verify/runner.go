@@ -79,6 +79,12 @@ type Config struct {
 	// builds never shrinks unseen; without it any one of gcc, clang and cc
 	// does every build.
 	AllCompilers bool
+	// Boards adds the runners that build emitted C for Cortex-M4, Cortex-M0,
+	// RV32 and AArch64 and run it under QEMU (BoardRunnerName), and emitted
+	// Go for arm64 under qemu-aarch64 (GoArchRunner); a run costs a cross
+	// build and an emulator start per check, so each board runs one layout
+	// (see LayoutsFor).
+	Boards bool
 }
 
 // Runners lists every target's runner with the zero Config.
@@ -87,7 +93,7 @@ func Runners() []Runner { return RunnersWith(Config{}) }
 // RunnersWith lists every target's runner, configured by c. A new target
 // adds one line here.
 func RunnersWith(c Config) []Runner {
-	return []Runner{
+	rs := []Runner{
 		goRunner{},
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
@@ -95,6 +101,25 @@ func RunnersWith(c Config) []Runner {
 		sqlRunner{engine: "mysql", dsn: c.MySQLDSN},
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
+	if c.Boards {
+		rs = append(rs, boardRunner{Werror: c.Werror, Quick: true}, goRunner{Arch: "arm64"})
+	}
+	return rs
+}
+
+// LayoutsFor is implemented by runners that run some variants in fewer
+// layouts than Layouts lists; callers that iterate variants and layouts
+// use LayoutsOf.
+type LayoutsFor interface {
+	LayoutsFor(variant string) []string
+}
+
+// LayoutsOf is the layouts r runs variant in: LayoutsFor's, else Layouts.
+func LayoutsOf(r Runner, variant string) []string {
+	if l, ok := r.(LayoutsFor); ok {
+		return l.LayoutsFor(variant)
+	}
+	return r.Layouts()
 }
 
 // Mismatch describes the first disagreement between a run and the

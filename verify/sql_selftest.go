@@ -12,13 +12,19 @@ func SelftestProbes(f *forest.Forest) []sqltarget.Probe {
 	leaves, thresholds, _ := ProbeRows(f, DefaultMaxRows)
 	var out []sqltarget.Probe
 	for _, x := range append(leaves, thresholds...) {
-		want := make([]float64, f.NumOutputs())
-		f.Predict(x, want)
-		pr := sqltarget.Probe{X: x, Want: want, Class: -1}
-		if f.IsClassifier() {
-			pr.Class = f.ClassOf(want)
-		}
-		out = append(out, pr)
+		want, class := interpret(f, x)
+		out = append(out, sqltarget.Probe{X: x, Want: want, Class: class})
 	}
 	return out
+}
+
+// interpret is the interpreter's outputs for x and, for a classifier, its
+// class (-1 otherwise).
+func interpret(f *forest.Forest, x []float64) ([]float64, int) {
+	want := make([]float64, f.NumOutputs())
+	f.Predict(x, want)
+	if f.IsClassifier() {
+		return want, f.ClassOf(want)
+	}
+	return want, -1
 }

@@ -12,6 +12,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/emit/targets"
@@ -32,6 +33,7 @@ type target struct {
 // registry entry.
 var ownFlags = map[string]func(p *compile.Program, fl *compileFlags) ([]emit.File, error){
 	gotarget.Name:  emitGo,
+	ctarget.Name:   emitC,
 	sqltarget.Name: emitSQL,
 }
 
@@ -81,7 +83,7 @@ type compileFlags struct {
 	force     bool
 	maxNest   int      // SQL: CASE nesting bound, 0 for the dialect's default
 	columns   []string // SQL: feature=column pairs
-	selftest  bool     // SQL: also write the self-test script
+	selftest  bool     // SQL and C: also write the self-test
 	model     *forest.Forest
 	tables    string
 	budget    budgetFlags
@@ -130,7 +132,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.BoolVar(&fl.force, "force", false, "overwrite files in DIR even if sawmill did not generate them")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep (default: what the dialect's stock engine parses, e.g. 12 for sqlite)")
 	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
-	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
+	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ; C: also write NAME_selftest.c, whose NAME_selftest() returns 0 or the first probe row that differs")
 	fl.budget.add(f)
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
 	return c

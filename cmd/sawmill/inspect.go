@@ -57,7 +57,7 @@ Only nodes reachable from a tree's root are counted.`,
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
-	c.Flags().BoolVar(&cSizes, "c-sizes", false, "also print the C tables' bytes per layout and, with arm-none-eabi-gcc, Cortex-M4 flash")
+	c.Flags().BoolVar(&cSizes, "c-sizes", false, "also print per C layout the tables' bytes, the most splits a prediction tests and, with arm-none-eabi-gcc, Cortex-M4 flash and stack, and with QEMU instructions per prediction on a Cortex-M4 and M0")
 	return c
 }
 

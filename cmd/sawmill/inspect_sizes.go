@@ -13,13 +13,21 @@ import (
 	"github.com/sawmill-dev/sawmill/verify"
 )
 
+// countRows is how many probe rows inspect --c-sizes runs under QEMU to
+// count instructions per prediction.
+const countRows = 32
+
 // printCSizes reports, for C in double and in float, each layout's static
-// tables in bytes and, when arm-none-eabi-gcc is on PATH, the flash the
-// object takes on a Cortex-M4 (.text + .rodata, compiled -Os -mthumb).
+// tables in bytes, the most splits a prediction tests and, when
+// arm-none-eabi-gcc is on PATH, the flash the object takes on a Cortex-M4
+// (.text + .rodata, compiled -Os -mthumb) and predict's stack; and when
+// QEMU is there too, instructions per prediction on the Cortex-M4 and (for
+// double) the Cortex-M0, mean and worst over the first probe rows.
 func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest) error {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tCortex-M4 .text\t.rodata\tflash\t")
-	noARM := false
+	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tsplits\tCortex-M4 .text\t.rodata\tflash\tstack\tM4 instr mean\tworst\tM0 instr mean\tworst\t")
+	rows := countingRows(f)
+	var notes []string
 	for _, float := range []bool{false, true} {
 		p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(float))
 		if err != nil {
@@ -28,27 +36,66 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		o := ctarget.Options{Float: float}
 		sizes, err := verify.MeasureARM(ctx, p, o)
 		if errors.Is(err, verify.ErrNoARM) {
-			noARM = true
+			notes = appendOnce(notes, fmt.Sprintf("(%s is not on PATH: no Cortex-M4 sizes)", verify.ARMCompiler))
 			sizes, err = verify.CSizes(p, o)
 		}
 		if err != nil {
 			return err
 		}
-		kind := "double"
+		kind, boards := "double", []string{"m4", "m0"}
 		if float {
-			kind = "float"
+			kind, boards = "float", []string{"m4-float"}
 		}
 		for _, s := range sizes {
-			arm := "\t\t"
+			arm := "\t\t\t"
 			if s.ARM != nil {
-				arm = fmt.Sprintf("%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash())
+				arm = fmt.Sprintf("%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack)
 			}
-			fmt.Fprintf(tw, "%s\t%s\t%d\t%.2f\t%s\t\n", kind, s.Layout, s.TableBytes, s.BytesPerNode(), arm)
+			counts := ""
+			for _, b := range boards {
+				in, err := verify.CountInstructions(ctx, p, s.Layout, b, rows)
+				switch {
+				case errors.Is(err, verify.ErrSkip):
+					notes = appendOnce(notes, fmt.Sprintf("(no instruction counts: %v)", err))
+					counts += "\t\t"
+				case err != nil:
+					return err
+				default:
+					counts += fmt.Sprintf("%.0f\t%d\t", in.Mean, in.Worst)
+				}
+			}
+			if float {
+				counts += "\t\t"
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%d\t%.2f\t%d\t%s\t%s\n", kind, s.Layout, s.TableBytes, s.BytesPerNode(), s.WorstSplits, arm, counts)
 		}
 	}
 	tw.Flush()
-	if noARM {
-		fmt.Fprintf(w, "(%s is not on PATH: no Cortex-M4 sizes)\n", verify.ARMCompiler)
+	fmt.Fprintf(w, "splits: the most one prediction tests (the sum of the trees' depths); stack: predict's bytes from gcc -fstack-usage, the C library not counted;\n")
+	fmt.Fprintf(w, "instructions: per prediction under QEMU (Cortex-M4F mps2-an386, Cortex-M0 microbit), exp and float routines included, over %d probe rows\n", rows.Len())
+	for _, n := range notes {
+		fmt.Fprintln(w, n)
 	}
 	return nil
+}
+
+// countingRows are the first countRows probe rows verify generates (leaf
+// rows first, so each reaches a different leaf).
+func countingRows(f *forest.Forest) *forest.Rows {
+	leaves, thresholds, _ := verify.ProbeRows(f, countRows)
+	rows := &forest.Rows{Features: f.Features}
+	for _, x := range append(leaves, thresholds...) {
+		rows.Values = append(rows.Values, x...)
+		rows.Line = append(rows.Line, 0)
+	}
+	return rows
+}
+
+func appendOnce(list []string, s string) []string {
+	for _, x := range list {
+		if x == s {
+			return list
+		}
+	}
+	return append(list, s)
 }

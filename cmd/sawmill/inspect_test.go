@@ -75,12 +75,15 @@ func TestInspectCSizes(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
 	}
-	for _, want := range []string{"double  nested", "double   table", "float   table", "bytes/node"} {
+	for _, want := range []string{"double  nested", "double   table", "float   table", "bytes/node", "splits", "stack"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("missing %q in:\n%s", want, out)
 		}
 	}
 	if _, err := exec.LookPath("arm-none-eabi-gcc"); err == nil && strings.Contains(out, "not on PATH") {
 		t.Errorf("arm-none-eabi-gcc is installed but no flash sizes were printed:\n%s", out)
+	}
+	if _, err := exec.LookPath("qemu-system-arm"); err == nil && strings.Contains(out, "no instruction counts") {
+		t.Errorf("qemu-system-arm is installed but no instruction counts were printed:\n%s", out)
 	}
 }

@@ -80,3 +80,29 @@ func TestVerifySQLMaxNest(t *testing.T) {
 	assert.Contains(t, out, "past the 4 levels of CASE")
 	assert.Regexp(t, `sqlite\s+table\s+agree`, out)
 }
+
+// --target c --selftest writes NAME_selftest.c beside NAME.h and NAME.c;
+// gcc builds the three with a main that returns NAME_selftest(), which is
+// 0 (verify's TestCSelftest changes a leaf and sees the row).
+func TestCompileCSelftest(t *testing.T) {
+	dir := t.TempDir()
+	code, _, errOut := sawmill(t, "compile", pumpModel, "--target", "c", "--name", "pump", "--selftest", "-o", dir)
+	require.Equal(t, 0, code, errOut)
+	src, err := os.ReadFile(filepath.Join(dir, "pump_selftest.c"))
+	require.NoError(t, err)
+	assert.Contains(t, string(src), "int pump_selftest(void)")
+	if _, err := exec.LookPath("gcc"); err != nil {
+		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
+			t.Fatal("no gcc, and SAWMILL_REQUIRE_ENGINES is set")
+		}
+		t.Skip("skipped: no gcc on PATH")
+	}
+	main := "int pump_selftest(void);\nint main(void) { return pump_selftest(); }\n"
+	require.NoError(t, os.WriteFile(filepath.Join(dir, "main.c"), []byte(main), 0o644))
+	build := exec.Command("gcc", "-std=c99", "-O2", "-o", "st", "main.c", "pump.c", "pump_selftest.c", "-lm")
+	build.Dir = dir
+	out, err := build.CombinedOutput()
+	require.NoError(t, err, "%s", out)
+	out, err = exec.Command(filepath.Join(dir, "st")).CombinedOutput()
+	require.NoError(t, err, "pump_selftest() is not 0: %s", out)
+}

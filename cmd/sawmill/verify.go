@@ -32,6 +32,7 @@ type verifyFlags struct {
 	probes    bool
 	require   bool
 	asJSON    bool
+	boards    bool // add the QEMU runners (verify.Config.Boards)
 	expected  string
 	tolerance float64
 }
@@ -100,6 +101,7 @@ fail the run, unless --require is given.`,
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
 	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
 	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
+	f.BoolVar(&fl.boards, "boards", false, "also run the C on boards under QEMU (target c-board: variants m4, m4-float, m0, rv32, arm64) and the Go on arm64 (go-arm64)")
 	f.StringVar(&fl.expected, "expected", "", "outputs the training library recorded for the --data rows (CSV: columns named like predict's, or one per output), to hold the model and every target against")
 	f.Float64Var(&fl.tolerance, "tolerance", DefaultTolerance, "with --expected, the largest |difference| from a recorded output that still agrees")
 	return c
@@ -112,7 +114,11 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
-	if err := checkVerifyFlags(fl, verify.Runners()); err != nil {
+	runners := verify.Runners()
+	if fl.boards {
+		runners = verify.RunnersWith(verify.Config{Boards: true})
+	}
+	if err := checkVerifyFlags(fl, runners); err != nil {
 		return err
 	}
 	if err := checkExpectedFlags(fl); err != nil {
@@ -144,6 +150,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	o := verify.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
 		PostgresDSN: fl.postgres, MySQLDSN: fl.mysql, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
+		Runners: runners,
 	}
 	if fl.maxRows == 0 {
 		o.MaxRows = -1

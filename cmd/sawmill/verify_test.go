@@ -177,3 +177,21 @@ func TestVerifyUsage(t *testing.T) {
 	require.Equal(t, 1, code)
 	require.Contains(t, errs, "testdata/nope.json: no such file or directory")
 }
+
+// verify --boards runs the C on a board under QEMU: the Cortex-M0 in the
+// table layout agrees bit for bit on the generated rows.
+func TestVerifyBoards(t *testing.T) {
+	if testing.Short() {
+		t.Skip("QEMU: without -short")
+	}
+	code, out, errOut := sawmill(t, "verify", pumpModel, "--boards", "--target", "c-board", "--variant", "m0", "--layout", "table")
+	skipIfNotRun(t, "c-board", out)
+	if code != 0 {
+		t.Fatalf("exit %d: %s%s", code, out, errOut)
+	}
+	for _, want := range []string{"c-board/m0", "bit for bit", "Cortex-M0", "1 of 1 checks ran; 1 agree"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("missing %q in:\n%s", want, out)
+		}
+	}
+}

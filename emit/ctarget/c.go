@@ -554,6 +554,7 @@ func (g *gen) header() []byte {
 		total += t.Bytes()
 	}
 	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
+	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
 	w.line(" *")
 	switch {
 	case g.f32:
@@ -590,6 +591,7 @@ func (g *gen) header() []byte {
 	w.line(" * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations")
 	w.line(" * or flush-to-zero: missing values are NaN and signed zeros and subnormals")
 	w.line(" * must be kept.")
+	g.fpHeaderDoc(&w)
 	w.line(" */")
 	w.line("#ifndef %s_H", u)
 	w.line("#define %s_H", u)
@@ -638,6 +640,7 @@ func (g *gen) header() []byte {
 		}
 		w.line("int %s_predict_class(const %s *x);", g.name, ft)
 	}
+	g.fpHeaderDecl(&w)
 	w.line("")
 	w.line("/* The model's feature names, in input order (UTF-8). */")
 	w.line("extern const char *const %s_feature_names[%s_NUM_FEATURES];", g.name, u)
@@ -771,9 +774,7 @@ func (g *gen) source(body []byte) []byte {
 	w.line("")
 	w.line(`#include "%s.h"`, g.name)
 	w.line("")
-	if g.f32 {
-		w.line("#include <float.h>")
-	}
+	w.line("#include <float.h>")
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
@@ -783,13 +784,7 @@ func (g *gen) source(body []byte) []byte {
 	if g.layout == emit.Binned {
 		w.line("#include <string.h>")
 	}
-	if g.f32 {
-		w.line("")
-		w.line("/* Float operations must round to float each time (see %s.h). */", g.name)
-		w.line("#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD != 0")
-		w.line("#error \"float32 accumulation needs FLT_EVAL_METHOD 0: build with SSE (-msse2 -mfpmath=sse) or another IEEE float unit\"")
-		w.line("#endif")
-	}
+	g.fpSourceChecks(&w)
 	w.line("")
 	w.line("/* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc")
 	w.line(" * ignores the pragma and contracts in its GNU modes; the code keeps a")
@@ -813,6 +808,7 @@ func (g *gen) source(body []byte) []byte {
 	}
 	w.line("")
 	w.buf.Write(body)
+	g.fpCheckFunc(&w)
 	return w.bytes()
 }
 

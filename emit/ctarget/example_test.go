@@ -46,4 +46,5 @@ func ExampleEmit() {
 	// void pump_health_predict(const double *x, double *out);
 	// void pump_health_predict_batch(const double *x, size_t n, double *out);
 	// int pump_health_predict_class(const double *x);
+	// int pump_health_fp_check(void);
 }

@@ -14,6 +14,20 @@ type Size struct {
 	Tables []Table // the static model tables of NAME.c
 	// TableBytes is the sum of Tables (name strings and code not counted).
 	TableBytes int
+	// WorstSplits is the most splits one prediction tests (WorstSplits).
+	WorstSplits int
+}
+
+// WorstSplits is the most splits one prediction tests, exactly: the sum of
+// the trees' depths, each tree walked once from its root to a leaf, one
+// test a split (a missing-value test and the comparison count as one, as
+// does a set split's lookup). Every layout walks the same splits.
+func WorstSplits(p *compile.Program) int {
+	n := 0
+	for i := range p.Trees {
+		n += p.Trees[i].Depth()
+	}
+	return n
 }
 
 // BytesPerNode is TableBytes over the number of nodes, leaves included.
@@ -59,7 +73,7 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 	if err != nil {
 		return Size{}, err
 	}
-	s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables}
+	s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables, WorstSplits: WorstSplits(p)}
 	for _, t := range g.tables {
 		s.TableBytes += t.Bytes()
 	}

@@ -438,7 +438,7 @@ func wrap(items []jen.Code) []jen.Code {
 //		s := 0.5         // base score (sum) or 0.0 (average)
 //		s += tree0(x)
 //		…
-//		s = s/numTrees + base   // average only
+//		s = float64(s/numTrees) + base   // average only
 //		return [NumOutputs]float64{sigmoid(s)}
 //	}
 //
@@ -468,7 +468,7 @@ func (g *gen) predict() jen.Code {
 //
 //	s := base (sum) or 0.0 (average)
 //	… additions in tree order …
-//	s = s/numTrees + base   // average
+//	s = float64(s/numTrees) + base   // average (the conversion stops fusion)
 //	return [NumOutputs]float64{transform(s)}
 func (g *gen) scalarStart() jen.Code {
 	start := 0.0
@@ -481,7 +481,11 @@ func (g *gen) scalarStart() jen.Code {
 func (g *gen) scalarFinish() []jen.Code {
 	var out []jen.Code
 	if g.p.Combine == forest.Average {
-		out = append(out, jen.Id("s").Op("=").Id("s").Op("/").Id("numTrees").Op("+").Add(g.float(g.p.BaseScore[0])))
+		// The conversion keeps the quotient, which the compiler makes a
+		// product by 1/numTrees when that is exact, from fusing with the
+		// addition (arm64 has a fused multiply-add; the Go spec allows
+		// fusion unless an explicit conversion rounds).
+		out = append(out, jen.Id("s").Op("=").Float64().Parens(jen.Id("s").Op("/").Id("numTrees")).Op("+").Add(g.float(g.p.BaseScore[0])))
 	}
 	res := jen.Code(jen.Id("s"))
 	switch g.p.Transform {
@@ -507,7 +511,7 @@ func (g *gen) vectorStart() jen.Code {
 // vectorFinish divides (average), then applies the transform:
 //
 //	for j := range acc {
-//		acc[j] = acc[j]/numTrees + baseScore[j]
+//		acc[j] = float64(acc[j]/numTrees) + baseScore[j]
 //	}
 //	softmax(&acc)
 //	return acc
@@ -515,7 +519,7 @@ func (g *gen) vectorFinish() []jen.Code {
 	var out []jen.Code
 	if g.p.Combine == forest.Average {
 		out = append(out, jen.For(jen.Id("j").Op(":=").Range().Id("acc")).Block(
-			jen.Id("acc").Index(jen.Id("j")).Op("=").Id("acc").Index(jen.Id("j")).Op("/").Id("numTrees").
+			jen.Id("acc").Index(jen.Id("j")).Op("=").Float64().Parens(jen.Id("acc").Index(jen.Id("j")).Op("/").Id("numTrees")).
 				Op("+").Id("baseScore").Index(jen.Id("j")),
 		))
 	}

@@ -490,7 +490,7 @@ func (g *gen) addV2(t jen.Code, treeConst int, v jen.Code) jen.Code {
 // finishV2 divides (average), scales, transforms and returns float64s:
 //
 //	for j := range acc {
-//		acc[j] = acc[j]/numTrees + baseScore[j]
+//		acc[j] = float64(acc[j]/numTrees) + baseScore[j] // float32 under float32 accumulation
 //	}
 //	for j, v := range acc {
 //		acc[j] = float32(v * float32(transformScale))
@@ -510,8 +510,9 @@ func (g *gen) finishV2() []jen.Code {
 			div = jen.Id("divisor").Index(jen.Id("j"))
 		}
 		out = append(out, jen.For(jen.Id("j").Op(":=").Range().Id("acc")).Block(
-			jen.Id("acc").Index(jen.Id("j")).Op("=").Id("acc").Index(jen.Id("j")).Op("/").Add(div).
-				Op("+").Id("baseScore").Index(jen.Id("j")),
+			jen.Id("acc").Index(jen.Id("j")).Op("=").Add(g.accType()).Parens(jen.Id("acc").Index(jen.Id("j")).Op("/").Add(div)).
+				Op("+").Id("baseScore").Index(jen.Id("j")).
+				Comment("the conversion keeps the quotient from fusing with the addition"),
 		))
 	}
 	if p.Scale() != 1 {

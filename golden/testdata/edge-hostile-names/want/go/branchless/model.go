@@ -90,7 +90,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 		addLeaf(&acc, int(leafOff[t])+heapLeaf(&xx, int(treeOff[t]), int(d)))
 	}
 	for j := range acc {
-		acc[j] = acc[j]/numTrees + baseScore[j]
+		acc[j] = float64(acc[j]/numTrees) + baseScore[j]
 	}
 	return acc
 }

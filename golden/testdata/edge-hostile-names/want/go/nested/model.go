@@ -73,7 +73,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	var acc [NumOutputs]float64
 	addLeaf(&acc, tree0(x))
 	for j := range acc {
-		acc[j] = acc[j]/numTrees + baseScore[j]
+		acc[j] = float64(acc[j]/numTrees) + baseScore[j]
 	}
 	return acc
 }

@@ -89,7 +89,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
 	addLeaf(&acc, int(thr[a]))
 	for j := range acc {
-		acc[j] = acc[j]/numTrees + baseScore[j]
+		acc[j] = float64(acc[j]/numTrees) + baseScore[j]
 	}
 	return acc
 }

@@ -45,7 +45,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	for t, d := range treeDepth {
 		s += hLeaf[int(leafOff[t])+heapLeaf(&xx, int(treeOff[t]), int(d))]
 	}
-	s = s/numTrees + 0.0
+	s = float64(s/numTrees) + 0.0
 	return [NumOutputs]float64{s}
 }
 

@@ -32,7 +32,7 @@ var FeatureNames = [NumFeatures]string{"x"}
 func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	s := 0.0
 	s += tree0(x)
-	s = s/numTrees + 0.0
+	s = float64(s/numTrees) + 0.0
 	return [NumOutputs]float64{s}
 }
 

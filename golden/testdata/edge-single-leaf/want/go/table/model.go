@@ -48,7 +48,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	}
 	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
 	s += thr[a]
-	s = s/numTrees + 0.0
+	s = float64(s/numTrees) + 0.0
 	return [NumOutputs]float64{s}
 }
 
