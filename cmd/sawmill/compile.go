@@ -12,6 +12,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/emit/targets"
@@ -27,12 +28,13 @@ type target struct {
 }
 
 // ownFlags are the emitters of the targets whose flags go beyond
-// emit.Settings (--package, --sample, --tables; --dialect, --table, ...),
+// emit.Settings (--package, --sample, --tables; --dialect, --table, ...; --threads),
 // each in its target_*.go file. Every other target emits through its
 // registry entry.
 var ownFlags = map[string]func(p *compile.Program, fl *compileFlags) ([]emit.File, error){
 	gotarget.Name:  emitGo,
 	sqltarget.Name: emitSQL,
+	ctarget.Name:   emitC,
 }
 
 // allTargets lists every target of the registry.
@@ -81,6 +83,7 @@ type compileFlags struct {
 	maxNest   int      // SQL: CASE nesting bound, 0 for the dialect's default
 	columns   []string // SQL: feature=column pairs
 	selftest  bool     // SQL: also write the self-test script
+	threads   bool     // C: also write NAME_threads.h and NAME_threads.c
 	model     *forest.Forest
 	tables    string
 }
@@ -126,6 +129,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.BoolVar(&fl.force, "force", false, "overwrite files in DIR even if sawmill did not generate them")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep (default: what the dialect's stock engine parses, e.g. 12 for sqlite)")
 	f.StringSliceVar(&fl.columns, "columns", nil, "SQL: read a feature from another column, feature=column,... (quote a pair holding a comma)")
+	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ")
 	return c
 }

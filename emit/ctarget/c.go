@@ -67,6 +67,10 @@ type Options struct {
 	// per node for programs of at most emit.CommentNodes nodes, 1 always,
 	// -1 never.
 	Comments int
+	// Threads also writes NAME_threads.h and NAME_threads.c:
+	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
+	// files of their own that a build without threads leaves out.
+	Threads bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -136,10 +140,14 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	}
 	g.finish(&body)
 	g.writeBatch(&body)
-	return []emit.File{
+	files := []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
 		{Name: g.name + ".c", Data: g.source(body.bytes())},
-	}, nil
+	}
+	if o.Threads {
+		files = append(files, g.threadsFiles()...)
+	}
+	return files, nil
 }
 
 // gen carries what every part of the output needs.
