@@ -10,7 +10,11 @@
 // rows pass, where NAME_predict walks every tree for one row; each row's
 // leaves are still added in tree order, so the outputs are NAME_predict's
 // bit for bit (the golden drivers check it on every case).
-// In the nested layout it is a loop over NAME_predict.
+// In the nested layout it is a loop over NAME_predict. With Options.Threads,
+// NAME_threads.h and NAME_threads.c add NAME_predict_batch_threads, which
+// hands contiguous parts of the rows to NAME_predict_batch on POSIX threads;
+// NAME.h and NAME.c are the same with or without it, so a build without
+// threads leaves the two files out.
 //
 // Two arithmetic modes exist. Double (the default) takes and returns double
 // and is bit-exact with the forest interpreter: the same comparisons, the same
