@@ -23,6 +23,9 @@ type side struct {
 	name string
 	bin  string
 	c    bool
+	// bound is what an output may differ from the interpreter's by: 0
+	// (bit for bit) but for C with a transform (ctarget.ErrorBound).
+	bound float64
 }
 
 // result is one driver run: ns per row by (threads, batch), and every
@@ -81,7 +84,7 @@ func buildC(p *compile.Program, layout, dir string) (*side, error) {
 	if out, err := cmd.CombinedOutput(); err != nil {
 		return nil, fmt.Errorf("gcc: %v\n%s", err, out)
 	}
-	return &side{name: "c/" + layout, bin: filepath.Join(sub, "bench"), c: true}, nil
+	return &side{name: "c/" + layout, bin: filepath.Join(sub, "bench"), c: true, bound: ctarget.ErrorBound(p, false)}, nil
 }
 
 // buildGo writes the Go package auto chooses and the driver into a module
