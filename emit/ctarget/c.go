@@ -36,6 +36,12 @@
 //     (their preorder position is counted on the way down) and index a table
 //     of the distinct leaf vectors; thresholds come from per-feature tables
 //     of the distinct values;
+//   - bitvector: QuickScorer's bit-vector traversal (Lucchese et al., SIGIR
+//     2015; see Bitvector), for trees of up to 64 leaves; asked for only
+//     (auto does not choose it yet), and where bitvectorFits refuses the
+//     model (set splits, missing bands, trees of one output among several,
+//     bigger trees) the table layout is written instead, the header saying
+//     why;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else table.
 package ctarget
@@ -109,6 +115,11 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
 	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
+	case Bitvector:
+		if err := bitvectorFits(p); err != nil {
+			return emit.Table, fmt.Sprintf("bitvector asked for, but %v: the table layout instead", err), nil
+		}
+		return Bitvector, "asked for", nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
 		for i := range p.Trees {
@@ -139,6 +150,8 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		if err := g.table(&body); err != nil {
 			return nil, err
 		}
+	case Bitvector:
+		g.bitvector(&body)
 	default:
 		panic("BUG: ctarget: layout " + g.layout)
 	}
@@ -777,7 +790,7 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == Bitvector || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
 	}
 	if g.f32 {

@@ -18,7 +18,7 @@ type Size struct {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table} }
+func Layouts() []string { return []string{emit.Nested, emit.Table, Bitvector} }
 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored). It emits each layout, so it costs what Emit costs.
@@ -31,13 +31,15 @@ func Sizes(p *compile.Program, o Options) ([]Size, error) {
 			return nil, err
 		}
 		var body printer
-		switch l {
+		switch g.layout { // bitvector falls back to table where it cannot be written
 		case emit.Nested:
 			g.nested(&body)
 		case emit.Table:
 			if err := g.table(&body); err != nil {
 				return nil, err
 			}
+		case Bitvector:
+			g.bitvector(&body)
 		}
 		s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables}
 		for _, t := range g.tables {
