@@ -33,6 +33,7 @@ import argparse
 import os
 import sys
 import time
+import warnings
 
 import numpy as np
 
@@ -145,6 +146,9 @@ def time_one(fn, X, batch, reps, single_rows):
 
 
 def main():
+    # scikit-learn 1.9.1 warns on every predict_proba of a forest whose n_jobs
+    # was set after fitting (its joblib configuration): noise, not a fault.
+    warnings.filterwarnings("ignore", message=".*sklearn.utils.parallel.delayed.*")
     ap = argparse.ArgumentParser()
     ap.add_argument("data")
     ap.add_argument("outdir")
