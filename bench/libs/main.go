@@ -104,15 +104,15 @@ func run(c config) error {
 	for k, v := range libTimes {
 		times[k] = v
 	}
-	var reports []*modelReport
 	for _, m := range c.models {
 		r, err := benchModel(c, m, x, work, times)
 		if err != nil {
 			return fmt.Errorf("%s: %w", m, err)
 		}
-		reports = append(reports, r)
+		printModel(c, r, times, floor[0]) // as each model ends: a long run shows its first tables early
 	}
-	printTable(c, reports, times, floor[0])
+	fmt.Println("\nns/row at 2 threads is wall time per row (both threads working); sawmill ns/tree/row is per thread")
+	fmt.Println("(wall ns/row x threads / trees). Ratios come from one run, both sides on this machine.")
 	return nil
 }
 
@@ -321,75 +321,72 @@ func readLibTimes(path string) (map[key]float64, string, error) {
 	return out, versions, sc.Err()
 }
 
-// printTable prints, per model, batch and thread count, every side's ns per
-// row, and the ratio of the fastest library to the fastest sawmill side.
-func printTable(c config, reports []*modelReport, times map[key]float64, floor float64) {
+// printModel prints, per batch and thread count, every side's ns per row
+// on model r, and the ratio of the fastest library to the fastest sawmill
+// side.
+func printModel(c config, r *modelReport, times map[key]float64, floor float64) {
 	libs := []string{"xgboost", "lightgbm", "sklearn", "onnx"}
-	for _, r := range reports {
-		fmt.Printf("\n%s: %d trees, %d nodes\n", r.name, r.trees, r.nodes)
-		for _, l := range r.checks {
-			fmt.Println("  " + l)
-		}
-		fmt.Println("  every output of every sawmill side below = the interpreter's, bit for bit (C: or within")
-		fmt.Printf("  ctarget.ErrorBound %.3g, the C library's exp against Go's; %d of %d rows differed)\n", r.bound, r.differ, r.rows)
-		var cols []string
-		for _, l := range libs {
-			if _, ok := times[key{r.name, l, c.threads[0], c.batches[0]}]; ok {
-				cols = append(cols, l)
-			}
-		}
-		cols = append(cols, r.sides...)
-		fmt.Printf("  %-8s %-7s", "threads", "batch")
-		for _, s := range cols {
-			fmt.Printf(" %14s", s)
-		}
-		fmt.Printf(" %14s %14s %12s\n", "best lib/best", "sawmill ns/", "x branch")
-		fmt.Printf("  %-8s %-7s", "", "")
-		for range cols {
-			fmt.Printf(" %14s", "ns/row")
-		}
-		fmt.Printf(" %14s %14s %12s\n", "sawmill", "tree/row", "floor")
-		for _, t := range c.threads {
-			for _, b := range c.batches {
-				bestLib, bestOurs := math.Inf(1), math.Inf(1)
-				fmt.Printf("  %-8d %-7d", t, b)
-				for _, s := range cols {
-					v, ok := times[key{r.name, s, t, b}]
-					if !ok {
-						fmt.Printf(" %14s", "-")
-						continue
-					}
-					fmt.Printf(" %14.0f", v)
-					if contains(libs, s) {
-						bestLib = math.Min(bestLib, v)
-					} else {
-						bestOurs = math.Min(bestOurs, v)
-					}
-				}
-				perTree := bestOurs * float64(t) / float64(r.trees)
-				ratio := "-"
-				if !math.IsInf(bestLib, 1) && !math.IsInf(bestOurs, 1) {
-					ratio = fmt.Sprintf("%.2fx", bestLib/bestOurs)
-				}
-				fmt.Printf(" %14s %14.2f %11.1fx\n", ratio, perTree, perTree/floor)
-			}
-		}
-		for _, l := range r.latency {
-			fmt.Println("  " + l)
-		}
-		if len(r.instrPerRow) > 0 {
-			names := make([]string, 0, len(r.instrPerRow))
-			for s := range r.instrPerRow {
-				names = append(names, s)
-			}
-			sort.Strings(names)
-			for _, s := range names {
-				fmt.Printf("  callgrind: %s: %.0f instructions per row (%.1f per tree)\n", s, r.instrPerRow[s], r.instrPerRow[s]/float64(r.trees))
-			}
+	fmt.Printf("\n%s: %d trees, %d nodes\n", r.name, r.trees, r.nodes)
+	for _, l := range r.checks {
+		fmt.Println("  " + l)
+	}
+	fmt.Println("  every output of every sawmill side below = the interpreter's, bit for bit (C: or within")
+	fmt.Printf("  ctarget.ErrorBound %.3g, the C library's exp against Go's; %d of %d rows differed)\n", r.bound, r.differ, r.rows)
+	var cols []string
+	for _, l := range libs {
+		if _, ok := times[key{r.name, l, c.threads[0], c.batches[0]}]; ok {
+			cols = append(cols, l)
 		}
 	}
-	fmt.Println("\nns/row at 2 threads is wall time per row (both threads working); sawmill ns/tree/row is per thread")
-	fmt.Println("(wall ns/row x threads / trees). Ratios come from one run, both sides on this machine.")
+	cols = append(cols, r.sides...)
+	fmt.Printf("  %-8s %-7s", "threads", "batch")
+	for _, s := range cols {
+		fmt.Printf(" %14s", s)
+	}
+	fmt.Printf(" %14s %14s %12s\n", "best lib/best", "sawmill ns/", "x branch")
+	fmt.Printf("  %-8s %-7s", "", "")
+	for range cols {
+		fmt.Printf(" %14s", "ns/row")
+	}
+	fmt.Printf(" %14s %14s %12s\n", "sawmill", "tree/row", "floor")
+	for _, t := range c.threads {
+		for _, b := range c.batches {
+			bestLib, bestOurs := math.Inf(1), math.Inf(1)
+			fmt.Printf("  %-8d %-7d", t, b)
+			for _, s := range cols {
+				v, ok := times[key{r.name, s, t, b}]
+				if !ok {
+					fmt.Printf(" %14s", "-")
+					continue
+				}
+				fmt.Printf(" %14.0f", v)
+				if contains(libs, s) {
+					bestLib = math.Min(bestLib, v)
+				} else {
+					bestOurs = math.Min(bestOurs, v)
+				}
+			}
+			perTree := bestOurs * float64(t) / float64(r.trees)
+			ratio := "-"
+			if !math.IsInf(bestLib, 1) && !math.IsInf(bestOurs, 1) {
+				ratio = fmt.Sprintf("%.2fx", bestLib/bestOurs)
+			}
+			fmt.Printf(" %14s %14.2f %11.1fx\n", ratio, perTree, perTree/floor)
+		}
+	}
+	for _, l := range r.latency {
+		fmt.Println("  " + l)
+	}
+	if len(r.instrPerRow) > 0 {
+		names := make([]string, 0, len(r.instrPerRow))
+		for s := range r.instrPerRow {
+			names = append(names, s)
+		}
+		sort.Strings(names)
+		for _, s := range names {
+			fmt.Printf("  callgrind: %s: %.0f instructions per row (%.1f per tree)\n", s, r.instrPerRow[s], r.instrPerRow[s]/float64(r.trees))
+		}
+	}
 }
 
 func contains(s []string, v string) bool {
