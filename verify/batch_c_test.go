@@ -49,6 +49,7 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 		}
 		o := r.options(j.Layout, j.Variant)
 		o.Name = fmt.Sprintf("m%d", i)
+		o.Threads = true
 		files, err := ctarget.Emit(j.Program, o)
 		if err != nil {
 			res[i].Err = declined(err)
@@ -68,9 +69,9 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 		}
 		built = append(built, i)
 		names, fts = append(names, o.Name), append(fts, ft)
-		models = append(models, o.Name+".c")
+		models = append(models, o.Name+".c", o.Name+"_threads.c")
 		if !j.Light {
-			alone = append(alone, o.Name+".c")
+			alone = append(alone, o.Name+".c", o.Name+"_threads.c")
 		}
 	}
 	if len(built) == 0 {
@@ -155,7 +156,7 @@ func (r cRunner) ScoreBatch(ctx context.Context, jobs []Job, dir string) ([]Batc
 			cJobs <- struct{}{}
 			defer func() { <-cJobs }()
 			args := append(append(flags(b), "-o", "score"), objs...)
-			if err := cCommand(ctx, obj, nil, nil, b.cc, append(args, "-lm")...); err != nil {
+			if err := cCommand(ctx, obj, nil, nil, b.cc, append(args, "-pthread", "-lm")...); err != nil {
 				errs[k] = fmt.Errorf("%s: %v", b, err)
 			}
 		}(k, b)
@@ -229,7 +230,7 @@ func cBatchDriver(jobs []Job, built []int, names, fts []string) string {
 	var b strings.Builder
 	b.WriteString("#include <stdio.h>\n#include <stdlib.h>\n#include <string.h>\n\n")
 	for _, name := range names {
-		fmt.Fprintf(&b, "#include \"%s.h\"\n", name)
+		fmt.Fprintf(&b, "#include \"%s.h\"\n#include \"%s_threads.h\"\n", name, name)
 	}
 	for k, i := range built {
 		b.WriteString(cScoreFunc(names[k], fts[k], jobs[i].Program.IsClassifier()))

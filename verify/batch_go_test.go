@@ -162,14 +162,14 @@ import (
 	for _, i := range built {
 		fmt.Fprintf(&b, "\n\tm%d \"sawmilltest/%s%d\"", i, goPackage, i)
 	}
-	b.WriteString("\n)\n\nvar jobs = []struct {\n\tid    int\n\tname  string\n\tcheck func(*testing.T)\n\tscore func([]float64) ([]float64, int)\n}{\n")
+	b.WriteString("\n)\n\nvar jobs = []struct {\n\tid    int\n\tname  string\n\tcheck func(*testing.T)\n\tscore func([]float64) ([]float64, int)\n\tbatch func([][]float64, []float64, int) error\n}{\n")
 	for _, i := range built {
 		class := "-1"
 		if jobs[i].Program.IsClassifier() {
 			class = fmt.Sprintf("m%d.PredictClass(&a)", i)
 		}
-		fmt.Fprintf(&b, "\t{%d, %q, m%d.TestPredict, func(x []float64) ([]float64, int) {\n\t\tvar a [m%d.NumFeatures]float64\n\t\tcopy(a[:], x)\n\t\ty := m%d.Predict(&a)\n\t\treturn y[:], %s\n\t}},\n",
-			i, fmt.Sprintf("%s%d", goPackage, i), i, i, i, class)
+		fmt.Fprintf(&b, "\t{%d, %q, m%d.TestPredict, func(x []float64) ([]float64, int) {\n\t\tvar a [m%d.NumFeatures]float64\n\t\tcopy(a[:], x)\n\t\ty := m%d.Predict(&a)\n\t\treturn y[:], %s\n\t}, m%d.PredictBatchWorkers},\n",
+			i, fmt.Sprintf("%s%d", goPackage, i), i, i, i, class, i)
 	}
 	b.WriteString(`}
 
@@ -182,7 +182,7 @@ func TestSawmillBatch(t *testing.T) {
 		if !t.Run(j.name, j.check) {
 			continue
 		}
-		if err := score(dir, j.id, j.score); err != nil {
+		if err := score(dir, j.id, j.score, j.batch); err != nil {
 			t.Errorf("%s: %v", j.name, err)
 		}
 	}
@@ -191,7 +191,7 @@ func TestSawmillBatch(t *testing.T) {
 	}
 }
 
-func score(dir string, id int, predict func([]float64) ([]float64, int)) error {
+func score(dir string, id int, predict func([]float64) ([]float64, int), batch func([][]float64, []float64, int) error) error {
 	data, err := os.ReadFile(filepath.Join(dir, fmt.Sprintf("rows%d.txt", id)))
 	if err != nil {
 		return err
@@ -217,6 +217,9 @@ func score(dir string, id int, predict func([]float64) ([]float64, int)) error {
 		outs[r], classes[r] = predict(xs[r])
 	}
 	elapsed := time.Since(start)
+	if err := checkBatch(xs, outs, batch); err != nil {
+		return err
+	}
 	var w strings.Builder
 	fmt.Fprintln(&w, elapsed.Nanoseconds())
 	for r := range outs {
@@ -230,6 +233,33 @@ func score(dir string, id int, predict func([]float64) ([]float64, int)) error {
 		return err
 	}
 	return os.Rename(tmp, filepath.Join(dir, fmt.Sprintf("out%d.txt", id)))
+}
+
+// checkBatch repeats the rows to 200 and holds PredictBatchWorkers, on one
+// goroutine and on three, to Predict's outputs bit for bit.
+func checkBatch(xs, outs [][]float64, batch func([][]float64, []float64, int) error) error {
+	if len(xs) == 0 {
+		return nil
+	}
+	k := len(outs[0])
+	rows := make([][]float64, 200)
+	for r := range rows {
+		rows[r] = xs[r%len(xs)]
+	}
+	for _, workers := range []int{1, 3} {
+		got := make([]float64, len(rows)*k)
+		if err := batch(rows, got, workers); err != nil {
+			return err
+		}
+		for r := range rows {
+			for j, v := range outs[r%len(xs)] {
+				if math.Float64bits(got[r*k+j]) != math.Float64bits(v) {
+					return fmt.Errorf("row %d, output %d: PredictBatchWorkers(%d) gives %v, Predict %v", r%len(xs), j, workers, got[r*k+j], v)
+				}
+			}
+		}
+	}
+	return nil
 }
 `)
 	return []byte(b.String())

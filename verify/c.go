@@ -238,6 +238,7 @@ func (r cRunner) Score(ctx context.Context, p *compile.Program, layout, variant 
 // header as C++ when cxx is set), runs each build over rows, requires every
 // build to print the same bytes, and parses the output.
 func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Options, rows *forest.Rows, dir string, matrix []cBuild, cxx bool) (*Result, error) {
+	o.Threads = true // the driver checks NAME_predict_batch_threads too
 	ft, err := writeC(p, o, dir)
 	if err != nil {
 		return nil, err
@@ -280,7 +281,7 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Option
 			if j.b.sanitize {
 				args = append(args, "-g", "-fsanitize=address,undefined", "-fno-sanitize-recover=all", "-fno-omit-frame-pointer")
 			}
-			args = append(args, "-o", j.bin, "driver.c", o.Name+".c", "-lm")
+			args = append(args, "-o", j.bin, "driver.c", o.Name+".c", o.Name+"_threads.c", "-pthread", "-lm")
 			if j.err = cCommand(ctx, dir, nil, nil, j.b.cc, args...); j.err != nil {
 				return
 			}
@@ -427,6 +428,7 @@ func cDriver(name, ft string, classifier bool) string {
 #include <string.h>
 
 #include "` + name + `.h"
+#include "` + name + `_threads.h"
 ` + cScoreFunc(name, ft, classifier) + `
 int main(int argc, char **argv)
 {
@@ -455,11 +457,11 @@ func cScoreFunc(name, ft string, classifier bool) string {
 	if classifier {
 		class = name + "_predict_class(x)"
 	}
-	return `
+	return cThreadsFunc(name, ft) + `
 static int score_` + name + `(FILE *in)
 {
 	unsigned long rows, cols, r, i;
-	int j;
+	int j, rc;
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
 	` + ft + ` *xs, *ys, *yb;
@@ -504,9 +506,53 @@ static int score_` + name + `(FILE *in)
 			return 3;
 		}
 	}
+	free(yb);
+	rc = check_threads_` + name + `(xs, ys, rows);
 	free(xs);
 	free(ys);
-	free(yb);
+	return rc;
+}
+`
+}
+
+// cThreadsFunc is a driver's static check_threads_NAME(xs, ys, rows): it
+// repeats the rows xs (whose NAME_predict outputs are ys) to enough rows for
+// three threads of NAME_predict_batch_threads, scores them so, and fails
+// (status 3) unless every output has the same bits as NAME_predict's, or
+// the rows were not split in three.
+func cThreadsFunc(name, ft string) string {
+	up := strings.ToUpper(name)
+	return `
+static int check_threads_` + name + `(const ` + ft + ` *xs, const ` + ft + ` *ys, unsigned long rows)
+{
+	unsigned long m = 3u * ` + up + `_THREADS_MIN_ROWS, r;
+	` + ft + ` *xm, *ym;
+	int parts;
+	if (rows == 0) {
+		return 0;
+	}
+	xm = malloc(sizeof(` + ft + `) * m * ` + up + `_NUM_FEATURES);
+	ym = malloc(sizeof(` + ft + `) * m * ` + up + `_NUM_OUTPUTS);
+	if (xm == NULL || ym == NULL) {
+		fprintf(stderr, "out of memory\n");
+		return 2;
+	}
+	for (r = 0; r < m; r++) {
+		memcpy(xm + r * ` + up + `_NUM_FEATURES, xs + (r % rows) * ` + up + `_NUM_FEATURES, sizeof(` + ft + `) * ` + up + `_NUM_FEATURES);
+	}
+	parts = ` + name + `_predict_batch_threads(xm, (size_t)m, ym, 3);
+	if (parts != 3) {
+		fprintf(stderr, "` + name + `_predict_batch_threads split %lu rows in %d parts, want 3\n", m, parts);
+		return 3;
+	}
+	for (r = 0; r < m; r++) {
+		if (memcmp(ys + (r % rows) * ` + up + `_NUM_OUTPUTS, ym + r * ` + up + `_NUM_OUTPUTS, sizeof(` + ft + `) * ` + up + `_NUM_OUTPUTS) != 0) {
+			fprintf(stderr, "row %lu: ` + name + `_predict_batch_threads differs from ` + name + `_predict\n", r % rows);
+			return 3;
+		}
+	}
+	free(xm);
+	free(ym);
 	return 0;
 }
 `

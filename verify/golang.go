@@ -136,6 +136,7 @@ func TestSawmillScore(t *testing.T) {
 		classes[r] = class(&xs[r])
 	}
 	elapsed := time.Since(start)
+	checkBatch(t, xs, outs)
 	fh, err := os.Create(os.Getenv("SAWMILL_OUT"))
 	if err != nil {
 		t.Fatal(err)
@@ -153,6 +154,37 @@ func TestSawmillScore(t *testing.T) {
 	}
 	if err := fh.Close(); err != nil {
 		t.Fatal(err)
+	}
+}
+
+// checkBatch repeats the rows to enough for three goroutines and holds
+// PredictBatch and PredictBatchWorkers to Predict's outputs bit for bit.
+func checkBatch(t *testing.T, xs [][NumFeatures]float64, outs [][NumOutputs]float64) {
+	if len(xs) == 0 {
+		return
+	}
+	rows := make([][]float64, 3*BatchMinRows+1)
+	for r := range rows {
+		rows[r] = xs[r%len(xs)][:]
+	}
+	for _, workers := range []int{1, 3} {
+		got := make([]float64, len(rows)*NumOutputs)
+		if err := PredictBatchWorkers(rows, got, workers); err != nil {
+			t.Fatal(err)
+		}
+		for r := range rows {
+			for j, v := range outs[r%len(xs)] {
+				if math.Float64bits(got[r*NumOutputs+j]) != math.Float64bits(v) {
+					t.Fatalf("row %d, output %d: PredictBatchWorkers(%d) gives %v, Predict %v", r%len(xs), j, workers, got[r*NumOutputs+j], v)
+				}
+			}
+		}
+	}
+	if err := PredictBatch(rows[:1], make([]float64, NumOutputs)); err != nil {
+		t.Fatal(err)
+	}
+	if err := PredictBatch([][]float64{make([]float64, NumFeatures+1)}, make([]float64, NumOutputs)); err == nil {
+		t.Fatal("PredictBatch took a row of NumFeatures+1 values")
 	}
 }
 `

@@ -28,7 +28,7 @@ type target struct {
 }
 
 // ownFlags are the emitters of the targets whose flags go beyond
-// emit.Settings (--package, --sample, --tables; --dialect, --table, ...),
+// emit.Settings (--package, --sample, --tables; --dialect, --table, ...; --threads),
 // each in its target_*.go file. Every other target emits through its
 // registry entry.
 var ownFlags = map[string]func(p *compile.Program, fl *compileFlags) ([]emit.File, error){
@@ -84,6 +84,7 @@ type compileFlags struct {
 	maxNest   int      // SQL: CASE nesting bound, 0 for the dialect's default
 	columns   []string // SQL: feature=column pairs
 	selftest  bool     // SQL and C: also write the self-test
+	threads   bool     // C: also write NAME_threads.h and NAME_threads.c
 	model     *forest.Forest
 	tables    string
 	budget    budgetFlags
@@ -115,7 +116,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f := c.Flags()
 	f.StringVar(&fl.target, "target", "", "go, c or sql (required)")
 	f.StringVarP(&fl.out, "output", "o", "", "output folder (required; created if missing)")
-	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table, branchless (go) or binned (c)")
+	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table, branchless (go), binned or bitvector (c; bitvector falls back to table where it cannot be written)")
 	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
 	f.StringVar(&fl.name, "name", "", "C: base name of NAME.h, NAME.c and the NAME_ prefix (default model); SQL: the file NAME.sql (default score)")
 	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
@@ -135,6 +136,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ; C: also write NAME_selftest.c, whose NAME_selftest() returns 0 or the first probe row that differs")
 	fl.budget.add(f)
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
+	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	return c
 }
 

@@ -9,10 +9,11 @@ import (
 	"github.com/sawmill-dev/sawmill/verify"
 )
 
-// emitC emits NAME.h and NAME.c through emit/ctarget and, with --selftest,
-// NAME_selftest.c beside them.
+// emitC emits NAME.h and NAME.c through emit/ctarget, with --threads
+// NAME_threads.h and NAME_threads.c, and with --selftest NAME_selftest.c
+// beside them.
 func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float}
+	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads}
 	files, err := ctarget.Emit(p, o)
 	if err != nil || !fl.selftest {
 		return files, err

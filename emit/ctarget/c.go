@@ -10,7 +10,11 @@
 // rows pass, where NAME_predict walks every tree for one row; each row's
 // leaves are still added in tree order, so the outputs are NAME_predict's
 // bit for bit (the golden drivers check it on every case).
-// In the nested layout it is a loop over NAME_predict.
+// In the nested layout it is a loop over NAME_predict. With Options.Threads,
+// NAME_threads.h and NAME_threads.c add NAME_predict_batch_threads, which
+// hands contiguous parts of the rows to NAME_predict_batch on POSIX threads;
+// NAME.h and NAME.c are the same with or without it, so a build without
+// threads leaves the two files out.
 //
 // Two arithmetic modes exist. Double (the default) takes and returns double
 // and is bit-exact with the forest interpreter: the same comparisons, the same
@@ -39,6 +43,12 @@
 //     leaves, exact for every input, split words of the fewest bytes
 //     (24-bit words as a uint16_t and a uint8_t array); see binned.go. Set
 //     splits are refused (emit.Unsupported);
+//   - bitvector: QuickScorer's bit-vector traversal (Lucchese et al., SIGIR
+//     2015; see Bitvector), for trees of up to 64 leaves; asked for only
+//     (auto does not choose it yet), and where bitvectorFits refuses the
+//     model (set splits, missing bands, trees of one output among several,
+//     bigger trees) the table layout is written instead, the header saying
+//     why;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
@@ -75,6 +85,10 @@ type Options struct {
 	// per node for programs of at most emit.CommentNodes nodes, 1 always,
 	// -1 never.
 	Comments int
+	// Threads also writes NAME_threads.h and NAME_threads.c:
+	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
+	// files of their own that a build without threads leaves out.
+	Threads bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -109,6 +123,11 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
 	case emit.Nested, emit.Table, emit.Binned:
 		return o.Layout, "asked for", nil
+	case Bitvector:
+		if err := bitvectorFits(p); err != nil {
+			return emit.Table, fmt.Sprintf("bitvector asked for, but %v: the table layout instead", err), nil
+		}
+		return Bitvector, "asked for", nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
 		for i := range p.Trees {
@@ -143,15 +162,21 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		if err := g.binned(&body); err != nil {
 			return nil, err
 		}
+	case Bitvector:
+		g.bitvector(&body)
 	default:
 		panic("BUG: ctarget: layout " + g.layout)
 	}
 	g.finish(&body)
 	g.writeBatch(&body)
-	return []emit.File{
+	files := []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
 		{Name: g.name + ".c", Data: g.source(body.bytes())},
-	}, nil
+	}
+	if o.Threads {
+		files = append(files, g.threadsFiles()...)
+	}
+	return files, nil
 }
 
 // gen carries what every part of the output needs.
@@ -778,7 +803,7 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || g.layout == emit.Binned || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
 	}
 	if g.layout == emit.Binned {

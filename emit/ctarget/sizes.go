@@ -34,16 +34,17 @@ func WorstSplits(p *compile.Program) int {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned} }
+func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned, Bitvector} }
 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored); a model the binned layout refuses (set splits, too many cuts)
-// has no binned row. It emits each layout, so it costs what Emit costs.
+// has no binned row, and one the bitvector layout cannot write (see
+// bitvectorFits) no bitvector row. It emits each layout, so it costs what Emit costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	var out []Size
 	for _, l := range Layouts() {
 		s, err := sizeOf(p, o, l)
-		if err != nil && l == emit.Binned {
+		if err != nil && (l == emit.Binned || l == Bitvector) {
 			continue
 		}
 		if err != nil {
@@ -61,6 +62,9 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 	if err != nil {
 		return Size{}, err
 	}
+	if g.layout != l {
+		return Size{}, fmt.Errorf("%s: %s", l, g.why) // bitvector written as table
+	}
 	var body printer
 	switch l {
 	case emit.Nested:
@@ -69,6 +73,8 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 		err = g.table(&body)
 	case emit.Binned:
 		err = g.binned(&body)
+	case Bitvector:
+		g.bitvector(&body)
 	}
 	if err != nil {
 		return Size{}, err

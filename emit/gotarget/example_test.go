@@ -10,8 +10,8 @@ import (
 )
 
 // Read a model, compile it and emit a Go package: model.go with Predict
-// and PredictClass, and model_test.go, which checks rows recorded at emit
-// time. Emit writes nothing to disk; the caller writes the files.
+// and PredictClass, batch.go with PredictBatch and PredictBatchWorkers, and
+// model_test.go, which checks rows recorded at emit time. Emit writes nothing to disk; the caller writes the files.
 func ExampleEmit() {
 	// a small classifier of the invented pump-health scenario (the demo's)
 	f, err := forest.ReadFile("../testdata/pump-health.json")
@@ -39,6 +39,7 @@ func ExampleEmit() {
 	}
 	// Output:
 	// model.go true
+	// batch.go true
 	// model_test.go true
 	// package pumphealth
 	// func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {

@@ -7,6 +7,12 @@
 //	func Predict(x *[NumFeatures]float64) [NumOutputs]float64
 //	func PredictClass(x *[NumFeatures]float64) int   // classifiers
 //
+// in model.go, and in batch.go
+//
+//	func PredictBatch(rows [][]float64, out []float64) error
+//	func PredictBatchWorkers(rows [][]float64, out []float64, workers int) error
+//
+// (each row scored by Predict, on one goroutine or several),
 // and scores exactly like the interpreter: comparisons as the Program states
 // them, NaN routed by each split's missing side without a NaN test, tree
 // outputs added in tree order, the transform computed with the same
@@ -129,7 +135,11 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	if err != nil {
 		return nil, err
 	}
-	files := []emit.File{{Name: SourceFile, Data: src}}
+	batch, err := g.batchSource()
+	if err != nil {
+		return nil, err
+	}
+	files := []emit.File{{Name: SourceFile, Data: src}, {Name: BatchFile, Data: batch}}
 	if !o.NoTest {
 		t, err := g.testSource()
 		if err != nil {

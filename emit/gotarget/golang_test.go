@@ -49,7 +49,7 @@ func TestEmitDeterministicAndFormatted(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if len(a) != 2 || a[0].Name != SourceFile || a[1].Name != TestFile {
+		if len(a) != 3 || a[0].Name != SourceFile || a[1].Name != BatchFile || a[2].Name != TestFile {
 			t.Fatalf("%s: files %v", l, names(a))
 		}
 		for i := range a {

@@ -1,0 +1,47 @@
+#!/usr/bin/env bash
+# sawmill's emitted C and Go batch paths against the libraries users would
+# otherwise call, on the same models and rows, side by side, with ratios.
+#
+# bench/libs/libs.py (the Python of .venv, pinned by python/requirements.txt)
+# trains on the invented table of bench/train/synth (ROWS x 20 features, two
+# classes, seeded; it stands for no real measurement): XGBoost (500 rounds,
+# depth 6), LightGBM (500 rounds, 63 leaves), a 100-tree fully grown
+# scikit-learn forest and a BIG_TREES-tree forest (fully grown, or of at most
+# BIG_LEAVES leaves per tree) meant not to fit the cache; saves each in its
+# library's format and as ONNX; writes each library's predictions; and times
+# XGBoost's inplace_predict, LightGBM's predict, scikit-learn's predict_proba
+# and ONNX Runtime at 1 and 2 threads in batches of 1, 100 and 10,000 rows.
+# bench/libs (Go) then imports each model as `sawmill import` does, checks
+# the interpreter against the library's predictions (bench/libs/main.go,
+# tolerance), emits C (auto's layout and table) and Go (auto's layout), holds
+# every output to the interpreter bit for bit, times NAME_predict_batch /
+# NAME_predict_batch_threads and PredictBatch / PredictBatchWorkers the same
+# way, and prints the table: ns per row per side, the fastest library over
+# the fastest sawmill side, sawmill's ns per tree per row, and this
+# machine's branch floor.
+#
+# Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
+#   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
+#   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
+#   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
+#   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
+#   KEEP=DIR keeps the models, rows and predictions in DIR
+set -euo pipefail
+cd "$(dirname "$0")/../.."
+reps=${1:-5}
+py=${PYTHON:-.venv/bin/python}
+tmp=${KEEP:-$(mktemp -d)}
+mkdir -p "$tmp"
+[ -n "${KEEP:-}" ] || trap 'rm -rf "$tmp"' EXIT
+
+go build -o "$tmp/train-bench" ./bench/train
+go build -o "$tmp/libs-bench" ./bench/libs
+"$tmp/train-bench" -gen "$tmp/data.csv" -rows "${ROWS:-20000}" -seed 1
+"$py" bench/libs/libs.py "$tmp/data.csv" "$tmp" --reps "$reps" --only "${MODELS:-xgb,lgbm,rf,rfbig}" \
+	--batches "${BATCHES:-1,100,10000}" --threads "${THREADS:-1,2}" --single-rows "${SINGLE_ROWS:-1000}" \
+	--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs.txt"
+"$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs.txt" -models "${MODELS:-xgb,lgbm,rf,rfbig}" -reps "$reps" \
+	-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
+	-callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
+	-xgboost-lib "$("$py" -c 'import os, xgboost; print(os.path.join(os.path.dirname(xgboost.__file__), "lib", "libxgboost.so"))')" \
+	-lightgbm-lib "$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(lightgbm.__file__), "lib", "lib_lightgbm.so"))')"
