@@ -75,6 +75,9 @@ type Config struct {
 	// builds never shrinks unseen; without it any one of gcc, clang and cc
 	// does every build.
 	AllCompilers bool
+	// SparkPython is the Python (with pyspark) the spark runner starts; ""
+	// means SparkPython().
+	SparkPython string
 }
 
 // Runners lists every target's runner with the zero Config.
@@ -88,6 +91,7 @@ func RunnersWith(c Config) []Runner {
 		sqliteRunner{sqlRunner{engine: "sqlite"}},
 		sqlRunner{engine: "duckdb"},
 		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
+		sparkRunner{sqlRunner: sqlRunner{engine: "spark"}, python: c.SparkPython},
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
 }

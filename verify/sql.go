@@ -69,7 +69,7 @@ func (r sqlRunner) dialect(variant string) sqltarget.Dialect {
 	if variant == "ansi" || variant == "ansi-shell" {
 		return sqltarget.ANSI
 	}
-	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres}[r.engine]
+	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres, "spark": sqltarget.Spark}[r.engine]
 }
 
 // sqlTable is the table the runners create; its name needs quoting.

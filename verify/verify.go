@@ -42,6 +42,9 @@ type VerifyOptions struct {
 	// PostgresDSN is the server the postgres runner talks to; "" leaves it
 	// to the runner (Config.PostgresDSN, else PostgresDSN()).
 	PostgresDSN string
+	// SparkPython is the Python (with pyspark) the spark runner starts; ""
+	// leaves it to the runner (Config.SparkPython, else SparkPython()).
+	SparkPython string
 	// MaxNest is the CASE nesting the SQL runners' statements may use
 	// (sql.Options.MaxNest); 0 leaves each dialect's default.
 	MaxNest int
@@ -288,6 +291,9 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	}
 	for _, r := range sel {
 		r = usePostgres(r, o.PostgresDSN)
+		if sp, ok := r.(interface{ WithPython(string) Runner }); ok && o.SparkPython != "" {
+			r = sp.WithPython(o.SparkPython)
+		}
 		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
 			r = m.WithMaxNest(o.MaxNest)
 		}

@@ -134,6 +134,8 @@ func (g *gen) infTimes(x string) string {
 		return "'Infinity'::float8 * " + x
 	case DuckDB:
 		return "'Infinity'::DOUBLE * " + x
+	case Spark:
+		return "CAST('Infinity' AS DOUBLE) * " + x
 	}
 	inf := "CAST('Infinity' AS DOUBLE PRECISION)"
 	big := g.d.num(1e308)

@@ -23,10 +23,11 @@ const (
 	Postgres Dialect = "postgres"
 	DuckDB   Dialect = "duckdb"
 	ANSI     Dialect = "ansi" // ISO/IEC 9075:2016, no engine's extensions
+	Spark    Dialect = "spark" // Spark SQL 4
 )
 
 // Dialects lists every dialect, in the order help texts show them.
-var Dialects = []Dialect{SQLite, Postgres, DuckDB, ANSI}
+var Dialects = []Dialect{SQLite, Postgres, DuckDB, ANSI, Spark}
 
 // ParseDialect returns the dialect named s.
 func ParseDialect(s string) (Dialect, error) {
@@ -35,7 +36,11 @@ func ParseDialect(s string) (Dialect, error) {
 			return d, nil
 		}
 	}
-	return "", fmt.Errorf("unknown SQL dialect %q\nhint: use one of sqlite, postgres, duckdb, ansi", s)
+	names := make([]string, len(Dialects))
+	for i, d := range Dialects {
+		names[i] = string(d)
+	}
+	return "", fmt.Errorf("unknown SQL dialect %q\nhint: use one of %s", s, strings.Join(names, ", "))
 }
 
 // Options controls the statement.
@@ -97,7 +102,7 @@ var ErrNames = errors.New("name not usable in SQL")
 // embedded driver's) grows its stack and accepts about 498. The defaults
 // keep three levels (about 18 stack entries) of margin in sqlite and four
 // in ansi, which must run wherever SQL runs.
-var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10}
+var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10, Spark: sparkMaxNest}
 
 // Limits of stock SQLite other than the parser stack that a statement can
 // meet, measured with Debian's sqlite3 3.40.1 (".limit" prints them, and
@@ -164,7 +169,7 @@ func Layouts() []string { return []string{emit.Nested, emit.Table} }
 // Target is the SQL target's entry in the registry (emit/targets): its code
 // runs in the engines of the dialects named like them.
 func Target() emit.Target {
-	return emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres)},
+	return emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres), string(Spark)},
 		Emit: func(p *compile.Program, s emit.Settings) ([]emit.File, error) {
 			files, err := Emit(p, Options{Layout: s.Layout, Comments: s.Comments})
 			return Named(files, s.Name), err
@@ -245,6 +250,9 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		return nil, fmt.Errorf("sql: MaxNest %d is too small: the table layout needs at least 2", g.nest)
 	}
 	g.chunk = o.TreesPerStage
+	if g.chunk <= 0 && g.d == Spark {
+		g.chunk = sparkTreesPerStage
+	}
 	if g.chunk <= 0 {
 		g.chunk = 100
 	}
@@ -343,6 +351,8 @@ func (g *gen) auto(maxDepth int) (layout, why string) {
 	switch {
 	case g.d == DuckDB:
 		return emit.Table, "DuckDB's vectorised CASE pays for every nested branch"
+	case g.d == Spark:
+		return emit.Table, sparkAutoWhy
 	case maxDepth > g.nest:
 		return emit.Table, fmt.Sprintf("a tree %d splits deep, and %s nests CASE at most %d deep", maxDepth, g.d, g.nest)
 	case g.p.NumOutputs > 2:

@@ -108,11 +108,11 @@ func (g *gen) header() {
 	fmt.Fprintf(w, "-- Reads %s, one double precision column per feature named as below; %s.\n", emit.CommentSafe(g.tableRef()), missing)
 	w.WriteString("-- Features used:")
 	for _, i := range g.used {
-		w.WriteString(" " + emit.CommentSafe(ident(g.cols[i])))
+		w.WriteString(" " + emit.CommentSafe(g.d.ident(g.cols[i])))
 	}
 	w.WriteString("\n-- Result columns:")
 	for _, c := range g.resultColumns() {
-		w.WriteString(" " + emit.CommentSafe(ident(c)))
+		w.WriteString(" " + emit.CommentSafe(g.d.ident(c)))
 	}
 	w.WriteString("\n")
 	if p.Float32Accumulate() {
@@ -133,14 +133,16 @@ func (g *gen) header() {
 		w.WriteString("-- SQLite 3.35 or later (MATERIALIZED); EXP needs the math functions (SQLITE_ENABLE_MATH_FUNCTIONS).\n")
 	case ANSI:
 		w.WriteString("-- ISO/IEC 9075:2016 (SQL:2016): WITH (T121), EXP (T622), CASE, CAST; no engine extensions.\n")
+	case Spark:
+		w.WriteString("-- Spark SQL 4 (tested on 4.0.1), exact with spark.sql.ansi.enabled on or off.\n")
 	}
 }
 
 func (g *gen) tableRef() string {
 	if g.o.Schema != "" {
-		return ident(g.o.Schema) + "." + ident(g.o.Table)
+		return g.d.ident(g.o.Schema) + "." + g.d.ident(g.o.Table)
 	}
-	return ident(g.o.Table)
+	return g.d.ident(g.o.Table)
 }
 
 func keepCol(i int) string { return "k" + strconv.Itoa(i) }
@@ -174,7 +176,7 @@ func (g *gen) cte(items []string, materialize bool) {
 	name := g.prefix + strconv.Itoa(g.stage)
 	var b strings.Builder
 	b.WriteString(name)
-	if materialize && g.d != ANSI {
+	if materialize && g.d != ANSI && g.d != Spark {
 		b.WriteString(" AS MATERIALIZED (\n")
 	} else {
 		b.WriteString(" AS (\n")
@@ -211,10 +213,10 @@ func (g *gen) cte(items []string, materialize bool) {
 func (g *gen) inputStage() {
 	var items []string
 	for i, k := range g.o.Keep {
-		items = append(items, ident(k)+" AS "+keepCol(i))
+		items = append(items, g.d.ident(k)+" AS "+keepCol(i))
 	}
 	for _, i := range g.used {
-		items = append(items, g.featureInput(ident(g.cols[i]))+" AS "+featCol(i))
+		items = append(items, g.featureInput(g.d.ident(g.cols[i]))+" AS "+featCol(i))
 	}
 	if len(items) == 0 { // a model of single leaves reading nothing
 		items = append(items, "1 AS "+g.prefix+"row")
@@ -241,6 +243,8 @@ func (g *gen) featureInput(col string) string {
 		return "NULLIF(" + col + ", 'NaN'::float8)"
 	case DuckDB:
 		return "NULLIF(" + col + ", 'NaN'::DOUBLE)"
+	case Spark:
+		return "CASE WHEN isnan(" + col + ") THEN NULL ELSE " + col + " END"
 	case ANSI:
 		return "CASE WHEN " + col + " > 0 AND " + col + " <= -" + col + " THEN NULL ELSE " + col + " END"
 	}
@@ -719,15 +723,15 @@ func (g *gen) final() {
 	label := ""
 	if g.p.IsClassifier() {
 		if g.p.NumOutputs == 1 {
-			label = fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), str(g.p.Classes[1]), str(g.p.Classes[0]))
+			label = fmt.Sprintf("CASE WHEN z0 > %s THEN %s ELSE %s END", g.d.num(0.5), g.d.str(g.p.Classes[1]), g.d.str(g.p.Classes[0]))
 		} else {
 			label = g.classOf()
 		}
 	}
 	if g.o.View != "" {
-		v := ident(g.o.View)
+		v := g.d.ident(g.o.View)
 		if g.o.Schema != "" {
-			v = ident(g.o.Schema) + "." + v
+			v = g.d.ident(g.o.Schema) + "." + v
 		}
 		fmt.Fprintf(w, "CREATE VIEW %s AS\n", v)
 	}
@@ -741,14 +745,14 @@ func (g *gen) final() {
 	}
 	var items []string
 	for i, k := range g.o.Keep {
-		items = append(items, keepCol(i)+" AS "+ident(k))
+		items = append(items, keepCol(i)+" AS "+g.d.ident(k))
 	}
 	names := g.outs
 	for j, n := range names {
-		items = append(items, outCol(j)+" AS "+ident(n))
+		items = append(items, outCol(j)+" AS "+g.d.ident(n))
 	}
 	if label != "" {
-		items = append(items, label+" AS "+ident("class"))
+		items = append(items, label+" AS "+g.d.ident("class"))
 	}
 	w.WriteString("SELECT\n")
 	for i, it := range items {
@@ -765,7 +769,7 @@ func (g *gen) final() {
 func (g *gen) classOf() string {
 	zs := outCols(g.p.NumOutputs)
 	if len(zs) <= groupSize {
-		return firstMax(zs, func(i int) string { return str(g.p.Classes[i]) })
+		return firstMax(zs, func(i int) string { return g.d.str(g.p.Classes[i]) })
 	}
 	_, pos := g.largest(zs, true)
 	items := append(g.carry(false), zs...)
@@ -773,7 +777,7 @@ func (g *gen) classOf() string {
 	var b strings.Builder
 	b.WriteString("CASE c")
 	for i, c := range g.p.Classes {
-		fmt.Fprintf(&b, " WHEN %d THEN %s", i, str(c))
+		fmt.Fprintf(&b, " WHEN %d THEN %s", i, g.d.str(c))
 	}
 	b.WriteString(" END")
 	return b.String()
