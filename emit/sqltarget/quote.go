@@ -45,7 +45,7 @@ func (d Dialect) ident(s string) string {
 // escapes, so the header of every postgres file says so.
 //
 // Spark SQL has no doubled quote (two adjacent literals are concatenated,
-// so 'a''b' is "ab") and reads backslash escapes unless
+// so 'a”b' is "ab") and reads backslash escapes unless
 // spark.sql.parser.escapedStringLiterals is on: a label holding a quote or
 // a backslash is written as its UTF-8 bytes, CAST(X'...' AS STRING), which
 // reads the same under either setting (measured in TestSparkStrings).

@@ -22,7 +22,7 @@ const (
 	SQLite   Dialect = "sqlite"
 	Postgres Dialect = "postgres"
 	DuckDB   Dialect = "duckdb"
-	ANSI     Dialect = "ansi" // ISO/IEC 9075:2016, no engine's extensions
+	ANSI     Dialect = "ansi"  // ISO/IEC 9075:2016, no engine's extensions
 	Spark    Dialect = "spark" // Spark SQL 4
 )
 
