@@ -26,6 +26,7 @@ type verifyFlags struct {
 	variants  []string
 	dialects  []string
 	postgres  string
+	spark     string
 	maxNest   int
 	maxRows   int
 	probes    bool
@@ -88,11 +89,12 @@ fail the run, unless --require is given.`,
 	}
 	f := c.Flags()
 	f.StringVar(&fl.data, "data", "", "rows to check (CSV with a header naming the features); default: rows generated from the model")
-	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres); default all")
+	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres, spark); default all")
 	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless); default each target's own")
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
-	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres; default all")
+	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres, spark; default all")
 	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN, else PostgreSQL's own PGHOST, PGUSER, ... defaults)")
+	f.StringVar(&fl.spark, "spark-python", "", "Python with pyspark for the spark engine (default $SAWMILL_SPARK_PYTHON, else python3 when it imports pyspark)")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
 	f.IntVar(&fl.maxRows, "max-rows", verify.DefaultMaxRows, "most rows to generate (0: no cap)")
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
@@ -141,7 +143,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	}
 	o := verify.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
-		PostgresDSN: fl.postgres, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
+		PostgresDSN: fl.postgres, SparkPython: fl.spark, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
 	}
 	if fl.maxRows == 0 {
 		o.MaxRows = -1
