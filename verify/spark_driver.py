@@ -126,7 +126,10 @@ def main():
             req = json.loads(line)
             ans = execute(spark, req) if req.get("op") == "exec" else score(spark, req)
         except Exception as e:  # the answer carries the engine's message
-            ans = {"ok": False, "error": str(e).split("\n\tat ")[0][:4000]}
+            msg = str(e).split("\n\tat ")[0]
+            # Janino's message quotes a whole method signature first; the
+            # reason is at the end.
+            ans = {"ok": False, "error": msg if len(msg) <= 4000 else msg[:1500] + " … " + msg[-2000:]}
         print(json.dumps(ans), flush=True)
     spark.stop()
 

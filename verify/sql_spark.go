@@ -337,7 +337,7 @@ func (r sparkRunner) Score(ctx context.Context, p *compile.Program, layout, vari
 		return nil, err
 	}
 	if !a.OK {
-		return nil, fmt.Errorf("spark: run: %v", shorten(errors.New(a.Error)))
+		return nil, fmt.Errorf("spark: run: %v", errors.New(a.Error))
 	}
 	if err := checkCodegen(a); err != nil {
 		return nil, err
@@ -467,7 +467,7 @@ func SparkExec(ctx context.Context, python string, setup []string, query string)
 		return nil, err
 	}
 	if !a.OK {
-		return nil, fmt.Errorf("spark: %v", shorten(errors.New(a.Error)))
+		return nil, fmt.Errorf("spark: %v", errors.New(a.Error))
 	}
 	ms := func(v float64) time.Duration { return time.Duration(v * float64(time.Millisecond)) }
 	return &SparkRun{Rows: a.Rows, Setup: ms(a.SetupMS), Plan: ms(a.PlanMS), Run: ms(a.RunMS), Version: version, MaxMethod: a.MaxMethod, HugeLimit: a.HugeLimit}, nil

@@ -625,8 +625,10 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 		}
 		for _, e := range tg.Engines {
 			// An engine is expected when no dialect is named, or when its
-			// own dialect or the portable one is.
-			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect)
+			// own dialect or the portable one is (Spark, which reads
+			// double-quoted names as strings, runs its own only).
+			ansi := hasFold(o.Dialects, AnsiDialect) && e != string(sqltarget.Spark)
+			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || ansi
 			if expected && !served[e] && !slices.Contains(missing, e) {
 				missing = append(missing, e)
 			}

@@ -310,7 +310,7 @@ func (g *generator) value(i int64, j int) float64 {
 func (g *generator) columns(d sqltarget.Dialect, id string) string {
 	var items []string
 	for j, name := range g.names {
-		q := fmt.Sprintf("CAST(((%s * %d + %d) %% %d) AS DOUBLE PRECISION) / %s", id, g.mult(j), g.add(j), genMod, d.Literal(genMod))
+		q := fmt.Sprintf("CAST(((CAST(%s AS BIGINT) * %d + %d) %% %d) AS DOUBLE PRECISION) / %s", id, g.mult(j), g.add(j), genMod, d.Literal(genMod))
 		quoted := `"` + name + `"`
 		if d == sqltarget.Spark {
 			q = strings.ReplaceAll(q, "DOUBLE PRECISION", "DOUBLE")
