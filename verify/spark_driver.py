@@ -126,7 +126,11 @@ def main():
             req = json.loads(line)
             ans = execute(spark, req) if req.get("op") == "exec" else score(spark, req)
         except Exception as e:  # the answer carries the engine's message
-            msg = str(e).split("\n\tat ")[0]
+            text = str(e)
+            msg = text.split("\n\tat ")[0]
+            causes = [l.strip() for l in text.split("\n") if l.strip().startswith("Caused by:")]
+            if causes:  # the root cause says why (a method past 64 KB, ...)
+                msg = msg[:1500] + "\n" + causes[-1][:2000]
             # Janino's message quotes a whole method signature first; the
             # reason is at the end.
             ans = {"ok": False, "error": msg if len(msg) <= 4000 else msg[:1500] + " … " + msg[-2000:]}

@@ -124,7 +124,7 @@
 //
 // Spark text quotes names with backquotes, writes every double with a D
 // suffix (1.5e+00D, DOUBLE whatever spark.sql.legacy.exponentLiteralAsDecimal
-// says; 411 values, random bits and hard cases, read back bit for bit under
+// says; 237 values, random bits and hard cases, read back bit for bit under
 // ANSI mode on and off: TestSparkLiterals), writes a label holding a quote
 // or a backslash as its bytes, CAST(X'...' AS STRING) (Spark joins
 // adjacent literals, so a doubled quote reads as nothing, and reads

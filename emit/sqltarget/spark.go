@@ -8,7 +8,7 @@ const (
 	// sparkMaxNest is the CASE nesting of spark text.
 	sparkMaxNest = 100
 	// sparkTreesPerStage is how many trees one stage of spark text adds.
-	sparkTreesPerStage = 100
+	sparkTreesPerStage = 10
 )
 
 // sparkArrayLookup writes the table layout's lookup for Spark: a constant
