@@ -133,7 +133,7 @@ func TestSparkEngineFacts(t *testing.T) {
 	}
 }
 
-// TestSparkStrings: Spark reads 'a''b' as "ab" (adjacent literals are
+// TestSparkStrings: Spark reads 'a”b' as "ab" (adjacent literals are
 // concatenated), so labels with a quote or a backslash are written as
 // bytes; they come back as written under ANSI mode on and off.
 func TestSparkStrings(t *testing.T) {
