@@ -221,6 +221,9 @@ type sparkAnswer struct {
 	Version   string  `json:"version"`
 	HugeLimit int     `json:"huge_method_limit"`
 	SetupMS   float64 `json:"setup_ms"`
+	// WSCGOff is why whole-stage code generation failed to compile the
+	// plan, which then ran with it off ("" when it ran with it).
+	WSCGOff string `json:"wscg_off"`
 }
 
 // ask sends req to the session under python, starting it when needed, and
@@ -292,10 +295,14 @@ func checkCodegen(a *sparkAnswer) error {
 	return nil
 }
 
-// codegenNote says how large the largest generated method was, and that
-// HotSpot interprets it when it passes jvmHugeMethod.
+// codegenNote says how large the largest generated method was, that
+// HotSpot interprets it when it passes jvmHugeMethod, or that whole-stage
+// code generation failed and the plan ran without it.
 func codegenNote(a *sparkAnswer) string {
-	if a.MaxMethod > jvmHugeMethod {
+	switch {
+	case a.WSCGOff != "":
+		return "; whole-stage code generation failed (" + a.WSCGOff + "): ran with spark.sql.codegen.wholeStage=false, each expression compiled alone"
+	case a.MaxMethod > jvmHugeMethod:
 		return fmt.Sprintf("; largest generated method %d bytes, past HotSpot's %d-byte JIT limit: it runs interpreted", a.MaxMethod, jvmHugeMethod)
 	}
 	return fmt.Sprintf("; largest generated method %d bytes", a.MaxMethod)
@@ -449,6 +456,8 @@ type SparkRun struct {
 	Setup, Plan, Run     time.Duration
 	Version              string
 	MaxMethod, HugeLimit int
+	// Note says how Spark generated code (see codegenNote).
+	Note string
 }
 
 // SparkExec runs setup statements and then query in the spark runner's
@@ -470,5 +479,5 @@ func SparkExec(ctx context.Context, python string, setup []string, query string)
 		return nil, fmt.Errorf("spark: %v", errors.New(a.Error))
 	}
 	ms := func(v float64) time.Duration { return time.Duration(v * float64(time.Millisecond)) }
-	return &SparkRun{Rows: a.Rows, Setup: ms(a.SetupMS), Plan: ms(a.PlanMS), Run: ms(a.RunMS), Version: version, MaxMethod: a.MaxMethod, HugeLimit: a.HugeLimit}, nil
+	return &SparkRun{Rows: a.Rows, Setup: ms(a.SetupMS), Plan: ms(a.PlanMS), Run: ms(a.RunMS), Version: version, MaxMethod: a.MaxMethod, HugeLimit: a.HugeLimit, Note: codegenNote(a)}, nil
 }

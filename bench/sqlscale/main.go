@@ -176,7 +176,7 @@ func runSpark(p *compile.Program, g *generator, n int) (*bench, error) {
 		return nil, err
 	}
 	b := &bench{load: r.Setup, plan: r.Plan, run: r.Run,
-		note: fmt.Sprintf("Spark %s local mode, largest generated method %d bytes", r.Version, r.MaxMethod)}
+		note: fmt.Sprintf("Spark %s local mode%s", r.Version, r.Note)}
 	for _, v := range r.Rows[0] {
 		b.agg = append(b.agg, anyFloat(v))
 	}
