@@ -143,32 +143,44 @@
 // Spark has no MATERIALIZED: it inlines every common table expression and
 // its optimizer merges adjacent projections (CollapseProject) wherever no
 // costly column would be computed twice, and whole-stage code generation
-// writes the plan's projections into one Java method. The limits, measured
-// with PySpark 4.0.1, local[2], on the 30-tree, 654-node sklearn-wine forest
-// (golden/testdata), 562 rows:
+// writes the merged projections into one Java method. The limits, measured
+// with PySpark 4.0.1, local[2], on a machine at load 10 to 24 (see
+// docs/spark-limits.md for the commands):
 //
-//   - Generated code: the table layout's largest method was 32.5 KB of
+//   - Generated code: on the 30-tree, 654-node sklearn-wine forest
+//     (golden/testdata) the table layout's largest method was 32.5 KB of
 //     bytecode, the nested layout's 48.7 KB, whatever the trees per stage
-//     (2 to 100; stages kept apart by a nondeterministic fence column gave
-//     the same sizes: Spark splits an operator's code into a method of its
-//     own only when its parent reads every input column twice or more).
-//     Past spark.sql.codegen.hugeMethodLimit (65,535 bytes) Spark drops
-//     whole-stage code generation for the plan with an INFO log line only;
-//     past HotSpot's 8,000-byte HugeMethodLimit the method is never
-//     JIT-compiled. The verify runner reads the generated code's largest
-//     method for every statement (codegenStringSeq), fails above the first
-//     limit and names the size in its report line above the second, and
-//     sets spark.sql.codegen.fallback=false so code that fails to compile
-//     fails the query instead of being interpreted unseen.
-//   - Planning: 1.4 to 2.8 s for the table layout, 2.6 to 5.6 s for
-//     nested (analysis, optimisation and physical planning, on a loaded
-//     machine); the 1,000-class diff-sqlite-1000-classes case took 36 s.
-//   - Nesting: the parser took CASE nested MaxNest deep (sparkMaxNest, 100).
+//     (2 to 100). A 50-tree, 2,112-node forest (bench/sqlscale) passes the
+//     JVM's 64 KB limit on a method, at 50 trees a stage and at 10, and
+//     with stages kept apart by a nondeterministic fence column (tried and
+//     left out: it changed neither size nor speed). Spark then runs the
+//     plan without whole-stage code generation, each expression compiled
+//     alone, with a warning in its log (spark.sql.codegen.fallback, on by
+//     default). Past spark.sql.codegen.hugeMethodLimit (65,535 bytes)
+//     Spark drops whole-stage code generation with an INFO line only; past
+//     HotSpot's 8,000-byte HugeMethodLimit a method is never JIT-compiled.
+//     The verify runner reads the largest generated method of every
+//     statement (codegenStringSeq) and fails above the first limit, sets
+//     spark.sql.codegen.fallback=false and factoryMode CODEGEN_ONLY so no
+//     code is interpreted unseen, and when whole-stage code generation
+//     cannot compile, runs without it and says so in its report line.
+//   - Speed: that fallback is slow: the 50-tree forest scored 2,300 to
+//     2,500 rows a second where DuckDB scored 136,000 and PostgreSQL
+//     80,000 (bench/sqlscale, 100,000 rows).
+//   - Planning: 1.4 to 2.8 s for the 30-tree forest in the table layout,
+//     2.6 to 5.6 s nested, 9 to 11 s for the 50-tree forest; the
+//     1,000-class diff-sqlite-1000-classes case took 36 s.
+//   - Nesting: CASE nested 100 and 200 deep parses, 300 and 400 are
+//     refused (FAILED_TO_PARSE_TOO_COMPLEX), 1,000 overflows the parser's
+//     stack: MaxNest is 100 (sparkMaxNest).
+//   - Stages: the analyzer resolves a chain of common table expressions in
+//     at most spark.sql.analyzer.maxIterations (100) passes; a 500-tree
+//     forest at 10 trees a stage failed there, so stages hold 100 trees.
 //
-// auto therefore writes the table layout (see sparkAutoWhy); the leaf
-// value lookup indexes a constant array, array(...)[-n - 1], which Spark
-// folds into one constant. The same statement runs unchanged on a cluster:
-// only the partitions of the table differ.
+// auto writes the table layout (see sparkAutoWhy); the
+// leaf value lookup indexes a constant array, array(...)[-n - 1], which
+// Spark folds into one constant. The same statement runs unchanged on a
+// cluster: only the partitions of the table differ.
 //
 // # Self-test
 //
