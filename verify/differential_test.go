@@ -264,7 +264,11 @@ func TestDifferential(t *testing.T) {
 				t.Logf("%s: skipped: %v", tg, err)
 			}
 		}
-		t.Logf("%s: %d models, %d declined as beyond the target, %d left out (SAWMILL_DIFF_SPARK_MODELS)", tg, st.runs[name], st.declined[name], st.omitted[name])
+		left := ""
+		if n := st.omitted[name]; n > 0 {
+			left = fmt.Sprintf(", %d left out (SAWMILL_DIFF_SPARK_MODELS)", n)
+		}
+		t.Logf("%s: %d models, %d declined as beyond the target%s", tg, st.runs[name], st.declined[name], left)
 	}
 	t.Logf("seeds %d to %d: %d models, %d rows each, %d targets, batches of %d; wall %v (%v per model), target time %v",
 		first, first+n-1, n, nrows, len(targets), batch, wall.Round(time.Millisecond),
