@@ -50,6 +50,7 @@ const (
 	Nested     = "nested"     // if/else (or CASE) per tree
 	Table      = "table"      // constant arrays walked by one loop
 	Branchless = "branchless" // implicit-heap descent for bounded depth
+	Binned     = "binned"     // inputs mapped to integer bins once, trees compare integers
 )
 
 // Float formats a finite float64 as the shortest decimal that reads back as

@@ -14,12 +14,18 @@ type Unsupported struct {
 	Target    string // the target, as its --target name
 	Construct string // what it cannot write, named as the model file does
 	Where     string // its first use ("tree 3, node 17"), or "" for the model as a whole
+	// Hint replaces the default hint (another target) when a layout of
+	// the same target can write the construct.
+	Hint string
 }
 
 func (e *Unsupported) Error() string {
 	msg := fmt.Sprintf("the %s target cannot write %s yet", e.Target, e.Construct)
 	if e.Where != "" {
 		msg = e.Where + ": " + msg
+	}
+	if e.Hint != "" {
+		return msg + "\nhint: " + e.Hint
 	}
 	return msg + "\nhint: compile this model for the go target"
 }

@@ -6,6 +6,7 @@
 # -mcpu=cortex-m4 -mthumb (.text + .rodata), against 256 KiB of flash.
 #
 # Usage: bench/c/m4.sh [ROWS] [TREES] [DEPTH]      (defaults 20000 100 8)
+#   MAX_BINS=N   train with --max-bins N (splits at N-1 quantile edges per feature)
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 rows=${1:-20000}
@@ -17,5 +18,5 @@ go build -o "$tmp/train-bench" ./bench/train
 go build -o "$tmp/c-bench" ./bench/c
 go build -o "$tmp/sawmill" ./cmd/sawmill
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "$rows" -seed 1
-"$tmp/sawmill" train "$tmp/data.csv" --label label --task classification --trees "$trees" --max-depth "$depth" --seed 1 -o "$tmp/model.json" >/dev/null
+"$tmp/sawmill" train "$tmp/data.csv" --label label --task classification --trees "$trees" --max-depth "$depth" --seed 1 ${MAX_BINS:+--max-bins "$MAX_BINS"} -o "$tmp/model.json" >/dev/null
 "$tmp/c-bench" -model "$tmp/model.json" -sizes

@@ -182,8 +182,8 @@ func TestTyposRefused(t *testing.T) {
 		args []string
 		want string
 	}{
-		{[]string{"verify", model, "--layout", "foo"}, `--layout "foo" is unknown for the targets: use nested, table, branchless`},
-		{[]string{"verify", model, "--target", "c", "--layout", "branchless"}, `--layout "branchless" is unknown for --target c: use nested, table`},
+		{[]string{"verify", model, "--layout", "foo"}, `--layout "foo" is unknown for the targets: use nested, table, branchless, binned`},
+		{[]string{"verify", model, "--target", "c", "--layout", "branchless"}, `--layout "branchless" is unknown for --target c: use nested, table, binned`},
 		{[]string{"verify", model, "--variant", "flaot"}, `--variant "flaot" is unknown for the targets: use double, float`},
 		{[]string{"verify", model, "--target", "go", "--variant", "float"}, `--variant "float": --target go has no variants`},
 		{[]string{"verify", model, "--target", "go,c", "--dialect", "postgres"}, `--dialect is for SQL targets, and --target go,c has none`},

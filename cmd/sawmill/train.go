@@ -45,6 +45,7 @@ type trainFlags struct {
 	ignore              []string
 	trees, mtry         int
 	minLeaf, maxDepth   int
+	maxBins             int
 	fraction            float64
 	seed                uint64
 	threads             int
@@ -70,7 +71,12 @@ Each tree grows on a bootstrap sample, fully grown unless --max-depth or
 classification, max(1, ⌊p/3⌋) for regression). The out-of-bag error, its
 curve over the trees and the permutation importance of each feature are
 stored in the model's provenance. The same seed gives the same model, byte
-for byte, whatever --threads says.`,
+for byte, whatever --threads says.
+
+--max-bins N puts every split on one of at most N-1 quantile edges of its
+feature's column (as histogram-based boosting does), so thresholds repeat
+across trees and the C target's binned layout (--layout binned) needs
+8-bit bins when N <= 255.`,
 		Example: `  # pumps.csv: vibration_rms,bearing_temp_c,motor_current_a,flow_m3h,suction_pressure_kpa,pump_id,state
   sawmill train pumps.csv --label state --ignore pump_id -o pump-health.json
 
@@ -87,6 +93,7 @@ for byte, whatever --threads says.`,
 	f.IntVar(&fl.mtry, "mtry", 0, "features tried at each node (default ⌊√p⌋, regression max(1, ⌊p/3⌋))")
 	f.IntVar(&fl.minLeaf, "min-leaf", 0, "least bootstrap draws in a leaf (default 1, regression 5)")
 	f.IntVar(&fl.maxDepth, "max-depth", 0, "deepest node, the root being depth 0 (0: unlimited)")
+	f.IntVar(&fl.maxBins, "max-bins", 0, "split only at N-1 quantile edges per feature, so thresholds repeat (for the binned C layout; 0: anywhere)")
 	f.Float64Var(&fl.fraction, "sample-fraction", 1, "bootstrap draws per tree as a share of the rows")
 	f.Uint64Var(&fl.seed, "seed", 1, "random seed")
 	f.IntVar(&fl.threads, "threads", 0, "parallel workers (0: one per core)")
@@ -140,7 +147,7 @@ func runTrain(c *cobra.Command, dataPath string, fl *trainFlags, outputs []train
 		return located(dataPath, err)
 	}
 	s := train.Settings{
-		Trees: fl.trees, Mtry: fl.mtry, MinLeaf: fl.minLeaf, MaxDepth: fl.maxDepth,
+		Trees: fl.trees, Mtry: fl.mtry, MinLeaf: fl.minLeaf, MaxDepth: fl.maxDepth, MaxBins: fl.maxBins,
 		SampleFraction: fl.fraction, Seed: fl.seed, Threads: fl.threads,
 		SkipImportance: !fl.importance,
 	}

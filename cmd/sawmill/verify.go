@@ -90,7 +90,7 @@ fail the run, unless --require is given.`,
 	f := c.Flags()
 	f.StringVar(&fl.data, "data", "", "rows to check (CSV with a header naming the features); default: rows generated from the model")
 	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres, spark); default all")
-	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless); default each target's own")
+	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless, binned); default each target's own")
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
 	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres, spark; default all")
 	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN, else PostgreSQL's own PGHOST, PGUSER, ... defaults)")

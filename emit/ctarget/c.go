@@ -32,8 +32,16 @@
 //     (their preorder position is counted on the way down) and index a table
 //     of the distinct leaf vectors; thresholds come from per-feature tables
 //     of the distinct values;
+//   - binned: the table layout's walk over integers. Each used feature's
+//     input is mapped once per row to a bin (a binary search on the IEEE
+//     bits, as integers, of the distinct thresholds it is compared with),
+//     and the splits compare bins: no floating-point operation before the
+//     leaves, exact for every input, split words of the fewest bytes
+//     (24-bit words as a uint16_t and a uint8_t array); see binned.go. Set
+//     splits are refused (emit.Unsupported);
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
-//     tree, else table.
+//     tree, else binned where its tables are smaller than table's (thresholds
+//     that repeat, as with train --max-bins), else table.
 package ctarget
 
 import (
@@ -99,7 +107,7 @@ func Target() emit.Target {
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
-	case emit.Nested, emit.Table:
+	case emit.Nested, emit.Table, emit.Binned:
 		return o.Layout, "asked for", nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
@@ -107,12 +115,12 @@ func Resolve(p *compile.Program, o Options) (string, string, error) {
 			biggest = max(biggest, len(p.Trees[i].Nodes))
 		}
 		if biggest > AutoNestedTreeNodes {
-			return emit.Table, fmt.Sprintf("a tree of %d nodes, more than %d: one function that size builds slowly", biggest, AutoNestedTreeNodes), nil
+			return tableOrBinned(p, o, fmt.Sprintf("a tree of %d nodes, more than %d: one function that size builds slowly", biggest, AutoNestedTreeNodes))
 		}
 		if n <= AutoNestedNodes {
 			return emit.Nested, fmt.Sprintf("%d nodes, at most %d: nested code is fastest and builds quickly", n, AutoNestedNodes), nil
 		}
-		return emit.Table, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes), nil
+		return tableOrBinned(p, o, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes))
 	}
 	return "", "", emit.UnknownLayout(Name, o.Layout, Layouts())
 }
@@ -129,6 +137,10 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		g.nested(&body)
 	case emit.Table:
 		if err := g.table(&body); err != nil {
+			return nil, err
+		}
+	case emit.Binned:
+		if err := g.binned(&body); err != nil {
 			return nil, err
 		}
 	default:
@@ -765,8 +777,11 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == emit.Binned || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
+	}
+	if g.layout == emit.Binned {
+		w.line("#include <string.h>")
 	}
 	if g.f32 {
 		w.line("")

@@ -224,7 +224,27 @@ func TestResolveAuto(t *testing.T) {
 	}
 	l, why, err = Resolve(p, Options{Layout: emit.Auto})
 	require.NoError(t, err)
+	sizes, err := Sizes(p, Options{})
+	require.NoError(t, err)
+	require.Len(t, sizes, 3)
+	want := emit.Table
+	if sizes[2].TableBytes < sizes[1].TableBytes {
+		want = emit.Binned
+	}
+	require.Equal(t, want, l, "%s (table %d bytes, binned %d)", why, sizes[1].TableBytes, sizes[2].TableBytes)
+	// Set splits cannot be binned: auto keeps table, asking for binned fails.
+	sp := compiled(t, setSplitForest(t), false)
+	for sp.NumNodes() <= AutoNestedNodes {
+		sp.Trees = append(sp.Trees, sp.Trees...)
+	}
+	l, why, err = Resolve(sp, Options{})
+	require.NoError(t, err)
 	require.Equal(t, emit.Table, l, why)
+	_, err = Emit(sp, Options{Layout: emit.Binned})
+	var u *emit.Unsupported
+	require.ErrorAs(t, err, &u)
+	require.ErrorContains(t, err, "set splits")
+	require.ErrorContains(t, err, "hint: use --layout table")
 }
 
 // The table layout of a two-class forest: the scikit-learn breast-cancer
@@ -239,7 +259,7 @@ func TestTableBytesPerNode(t *testing.T) {
 		p := compiled(t, f, fl)
 		sizes, err := Sizes(p, Options{Float: fl})
 		require.NoError(t, err)
-		require.Len(t, sizes, 2)
+		require.Len(t, sizes, 3)
 		tab := sizes[1]
 		require.Equal(t, emit.Table, tab.Layout)
 		limit := 8.0

@@ -1,6 +1,8 @@
 package ctarget
 
 import (
+	"fmt"
+
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 )
@@ -18,32 +20,70 @@ type Size struct {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table} }
+func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned} }
 
 // Sizes reports the static tables of every layout of p (o.Layout is
-// ignored). It emits each layout, so it costs what Emit costs.
+// ignored); a model the binned layout refuses (set splits, too many cuts)
+// has no binned row. It emits each layout, so it costs what Emit costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	var out []Size
 	for _, l := range Layouts() {
-		o.Layout = l
-		g, err := newGen(p, o)
+		s, err := sizeOf(p, o, l)
+		if err != nil && l == emit.Binned {
+			continue
+		}
 		if err != nil {
 			return nil, err
-		}
-		var body printer
-		switch l {
-		case emit.Nested:
-			g.nested(&body)
-		case emit.Table:
-			if err := g.table(&body); err != nil {
-				return nil, err
-			}
-		}
-		s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables}
-		for _, t := range g.tables {
-			s.TableBytes += t.Bytes()
 		}
 		out = append(out, s)
 	}
 	return out, nil
+}
+
+// sizeOf emits p in layout l and sums its tables.
+func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
+	o.Layout = l
+	g, err := newGen(p, o)
+	if err != nil {
+		return Size{}, err
+	}
+	var body printer
+	switch l {
+	case emit.Nested:
+		g.nested(&body)
+	case emit.Table:
+		err = g.table(&body)
+	case emit.Binned:
+		err = g.binned(&body)
+	}
+	if err != nil {
+		return Size{}, err
+	}
+	s := Size{Layout: l, Nodes: p.NumNodes(), Tables: g.tables}
+	for _, t := range g.tables {
+		s.TableBytes += t.Bytes()
+	}
+	return s, nil
+}
+
+// tableOrBinned is auto's choice where nested code is too big to build:
+// binned when the model can be binned and its tables are smaller than the
+// table layout's, else table. Binned tables are smaller when thresholds
+// repeat: a 100-tree depth-8 forest trained with --max-bins 255 takes
+// 230,856 bytes binned against 252,658 as a table (double C; the split
+// words shrink from 4 bytes to 3); trained without bins, 375,180 against
+// 375,138 (the split words are 4 bytes either way), so table stays (the
+// figures of bench/c/m4.sh, with MAX_BINS=255 for the first). The price
+// is speed on a desktop core: its one-lane walk took 1.72 times the table
+// layout's time on the first forest (x86-64, gcc -O2, bench/c/binned.sh).
+func tableOrBinned(p *compile.Program, o Options, why string) (string, string, error) {
+	t, err := sizeOf(p, o, emit.Table)
+	if err != nil {
+		return emit.Table, why, nil // Emit reports it
+	}
+	b, err := sizeOf(p, o, emit.Binned)
+	if err != nil || b.TableBytes >= t.TableBytes {
+		return emit.Table, why, nil
+	}
+	return emit.Binned, fmt.Sprintf("%s; binned tables take %d bytes, the table layout's %d", why, b.TableBytes, t.TableBytes), nil
 }

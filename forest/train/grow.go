@@ -18,6 +18,10 @@ type table struct {
 	class []int32     // classification: class index per row
 	y     []float64   // regression: target per row
 	order [][]int32   // order[f]: rows sorted by cols[f], ties by row
+	// edges[f] are feature f's bin edges and bins[f][r] row r's bin, with
+	// Settings.MaxBins; both nil without (see bins.go).
+	edges [][]float64
+	bins  [][]int32
 }
 
 func newTable(d *Data) *table {
@@ -159,7 +163,7 @@ func (g *grower) grow(rng *rand.Rand) forest.Tree {
 		if !pure && weight >= 2*s.minLeaf && (s.maxDepth == 0 || fr.depth < s.maxDepth) {
 			if sp, ok := g.findSplit(rng, fr.lo, fr.hi, weight); ok {
 				tr.Feature[id] = sp.feature
-				tr.Threshold[id] = midpoint(sp.lo, sp.hi)
+				tr.Threshold[id] = g.threshold(sp)
 				g.partition(sp, fr.lo, fr.hi)
 				mid := fr.lo + sp.pos
 				// Right pushed first so that the left child is grown next:
@@ -234,8 +238,8 @@ func (g *grower) findSplit(rng *rand.Rand, lo, hi int, weight float64) (split, b
 		f := g.feats[i]
 		rows := g.lists[f*m+lo : f*m+hi]
 		x := t.cols[f]
-		if x[rows[0]] == x[rows[len(rows)-1]] {
-			continue // constant in this node
+		if x[rows[0]] == x[rows[len(rows)-1]] || t.sameBin(f, rows[0], rows[len(rows)-1]) {
+			continue // constant in this node, or in one bin
 		}
 		scanned++
 		if t.k > 0 {
@@ -272,7 +276,7 @@ func (g *grower) scanClass(f int, rows []int32, weight float64, best *split) {
 		lc[c] = l + wr
 		wl += wr
 		xv, xn := x[r], x[rows[i+1]]
-		if xv == xn || wl < minLeaf || weight-wl < minLeaf {
+		if xv == xn || wl < minLeaf || weight-wl < minLeaf || t.sameBin(f, r, rows[i+1]) {
 			continue
 		}
 		if score := sqL/wl + sqR/(weight-wl); score > best.score {
@@ -298,7 +302,7 @@ func (g *grower) scanReg(f int, rows []int32, weight float64, best *split) {
 		sl += wr * t.y[r]
 		wl += wr
 		xv, xn := x[r], x[rows[i+1]]
-		if xv == xn || wl < minLeaf || weight-wl < minLeaf {
+		if xv == xn || wl < minLeaf || weight-wl < minLeaf || t.sameBin(f, r, rows[i+1]) {
 			continue
 		}
 		sr := total - sl

@@ -27,6 +27,11 @@ type Settings struct {
 	// for classification and 5 for regression (common practice).
 	MinLeaf  int
 	MaxDepth int // deepest node depth, the root being 0; 0 = unlimited
+	// MaxBins, when not 0, puts every split on one of at most MaxBins−1
+	// quantile edges of its feature's training column (see bins.go), so
+	// that thresholds repeat and the binned C layout stays small; at
+	// least 2.
+	MaxBins int
 	// SampleFraction scales the bootstrap: each tree draws
 	// round(SampleFraction·n) rows with replacement; default 1.
 	SampleFraction float64
@@ -95,6 +100,7 @@ func (e *SettingError) Error() string { return e.Name + " " + e.Value + ": " + e
 // resolved are the settings with defaults applied and checked.
 type resolved struct {
 	trees, mtry, maxDepth, draws, threads int
+	maxBins                               int
 	minLeaf                               float64
 	fraction                              float64
 	minLeafInt                            int
@@ -102,7 +108,7 @@ type resolved struct {
 
 func resolve(d *Data, s Settings) (*resolved, error) {
 	p, n := len(d.Features), d.Len()
-	r := &resolved{trees: s.Trees, mtry: s.Mtry, maxDepth: s.MaxDepth, threads: s.Threads, fraction: s.SampleFraction, minLeafInt: s.MinLeaf}
+	r := &resolved{trees: s.Trees, mtry: s.Mtry, maxDepth: s.MaxDepth, maxBins: s.MaxBins, threads: s.Threads, fraction: s.SampleFraction, minLeafInt: s.MinLeaf}
 	if r.trees == 0 {
 		r.trees = DefaultTrees
 	}
@@ -130,6 +136,8 @@ func resolve(d *Data, s Settings) (*resolved, error) {
 		return nil, bad("min-leaf", s.MinLeaf, "must be at least 1")
 	case r.maxDepth < 0:
 		return nil, bad("max-depth", s.MaxDepth, "must be 0 (unlimited) or more")
+	case r.maxBins < 0 || r.maxBins == 1:
+		return nil, bad("max-bins", s.MaxBins, "must be 0 (no bins) or at least 2")
 	case !(r.fraction > 0) || math.IsInf(r.fraction, 0):
 		return nil, bad("sample-fraction", s.SampleFraction, "must be a number above 0")
 	case r.threads < 1:
@@ -179,6 +187,9 @@ func Train(d *Data, s Settings) (*Result, error) {
 		return nil, err
 	}
 	t := newTable(d)
+	if rs.maxBins > 0 {
+		t.binColumns(rs.maxBins)
+	}
 	acc := newOOBAcc(t, rs.trees, !s.SkipImportance)
 
 	trees := make([]forest.Tree, rs.trees)
@@ -436,6 +447,7 @@ type provSettings struct {
 	Mtry           int         `json:"mtry"`
 	MinLeaf        int         `json:"min_leaf"`
 	MaxDepth       int         `json:"max_depth"`
+	MaxBins        int         `json:"max_bins,omitempty"`
 	SampleFraction float64     `json:"sample_fraction"`
 	Seed           uint64      `json:"seed"`
 }
@@ -503,7 +515,7 @@ func provenanceJSON(d *Data, rs *resolved, seed uint64, o *OOB) json.RawMessage 
 		Trainer: "sawmill train",
 		Settings: provSettings{
 			Task: d.Task, Label: d.Label, Trees: rs.trees, Mtry: rs.mtry, MinLeaf: rs.minLeafInt,
-			MaxDepth: rs.maxDepth, SampleFraction: rs.fraction, Seed: seed,
+			MaxDepth: rs.maxDepth, MaxBins: rs.maxBins, SampleFraction: rs.fraction, Seed: seed,
 		},
 		Rows:     d.Len(),
 		OOBRows:  o.Rows,

@@ -302,6 +302,7 @@ func TestSettingsErrors(t *testing.T) {
 		{Settings{Trees: -3}, "trees -3"},
 		{Settings{MinLeaf: -1}, "min-leaf -1"},
 		{Settings{MaxDepth: -1}, "max-depth -1"},
+		{Settings{MaxBins: 1}, "max-bins 1: must be 0 (no bins) or at least 2"},
 		{Settings{SampleFraction: -0.5}, "sample-fraction -0.5"},
 		{Settings{SampleFraction: math.NaN()}, "sample-fraction NaN"},
 	} {
@@ -458,4 +459,51 @@ func TestOOBMatchesScikitLearn(t *testing.T) {
 			assert.InDelta(t, ref.Mean, mean, 0.02)
 		})
 	}
+}
+
+// With MaxBins every threshold of a feature is one of at most MaxBins−1
+// values, and a column with no more distinct values than bins keeps every
+// split the unbinned forest makes: the same trees and leaves, thresholds
+// aside (an edge lies midway to the next value of the whole column, a
+// plain split midway to the next value in its node).
+func TestMaxBins(t *testing.T) {
+	d := pumpData(400, 3)
+	for _, bins := range []int{2, 16} {
+		res, err := Train(d, Settings{Trees: 20, Seed: 4, MaxBins: bins, SkipImportance: true})
+		require.NoError(t, err)
+		seen := make([]map[float64]bool, len(d.Features))
+		for i := range seen {
+			seen[i] = map[float64]bool{}
+		}
+		splits := 0
+		for _, tr := range res.Forest.Trees {
+			for i, f := range tr.Feature {
+				if tr.Left[i] != -1 {
+					seen[f][tr.Threshold[i]] = true
+					splits++
+				}
+			}
+		}
+		require.Greater(t, splits, 20, "bins %d", bins)
+		for f, s := range seen {
+			require.LessOrEqual(t, len(s), bins-1, "bins %d, feature %d", bins, f)
+		}
+	}
+	plain, err := Train(d, Settings{Trees: 5, Seed: 4, SkipImportance: true})
+	require.NoError(t, err)
+	wide, err := Train(d, Settings{Trees: 5, Seed: 4, MaxBins: 4 * d.Len(), SkipImportance: true})
+	require.NoError(t, err)
+	for i := range plain.Forest.Trees {
+		a, b := plain.Forest.Trees[i], wide.Forest.Trees[i]
+		require.Equal(t, a.Feature, b.Feature, "tree %d", i)
+		require.Equal(t, a.Left, b.Left, "tree %d", i)
+		require.Equal(t, a.Value, b.Value, "tree %d", i)
+	}
+}
+
+func TestBinEdges(t *testing.T) {
+	c := []float64{5, 1, 1, 1, 2, 3, 3, 4, 4, 4}
+	require.Equal(t, []float64{1.5, 3.5}, binEdges(c, 3)) // positions 3 and 6: after 1 and after 3
+	require.Equal(t, []float64{1.5, 2.5, 3.5, 4.5}, binEdges(c, 100))
+	require.Empty(t, binEdges([]float64{7, 7, 7}, 4))
 }
