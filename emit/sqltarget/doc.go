@@ -166,7 +166,8 @@
 //     cannot compile, runs without it and says so in its report line.
 //   - Speed: that fallback is slow: the 50-tree forest scored 2,300 to
 //     2,500 rows a second where DuckDB scored 136,000 and PostgreSQL
-//     80,000 (bench/sqlscale, 100,000 rows).
+//     80,000 (bench/sqlscale, 100,000 rows); a 500-tree, 21,138-node
+//     forest ran the local driver out of memory (2 GB and 6 GB heaps).
 //   - Planning: 1.4 to 2.8 s for the 30-tree forest in the table layout,
 //     2.6 to 5.6 s nested, 9 to 11 s for the 50-tree forest; the
 //     1,000-class diff-sqlite-1000-classes case took 36 s.
