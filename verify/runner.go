@@ -85,6 +85,9 @@ type Config struct {
 	// build and an emulator start per check, so each board runs one layout
 	// (see LayoutsFor).
 	Boards bool
+	// SparkPython is the Python (with pyspark) the spark runner starts; ""
+	// means SparkPython().
+	SparkPython string
 }
 
 // Runners lists every target's runner with the zero Config.
@@ -99,6 +102,7 @@ func RunnersWith(c Config) []Runner {
 		sqlRunner{engine: "duckdb"},
 		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
 		sqlRunner{engine: "mysql", dsn: c.MySQLDSN},
+		sparkRunner{sqlRunner: sqlRunner{engine: "spark"}, python: c.SparkPython},
 		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers},
 	}
 	if c.Boards {

@@ -85,7 +85,7 @@ func (r sqlRunner) dialect(variant string) sqltarget.Dialect {
 	if variant == "ansi" || variant == "ansi-shell" {
 		return sqltarget.ANSI
 	}
-	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres, "mysql": sqltarget.MySQL}[r.engine]
+	return map[string]sqltarget.Dialect{"sqlite": sqltarget.SQLite, "duckdb": sqltarget.DuckDB, "postgres": sqltarget.Postgres, "mysql": sqltarget.MySQL, "spark": sqltarget.Spark}[r.engine]
 }
 
 // sqlTable is the table the runners create; its name needs quoting.

@@ -392,7 +392,7 @@ func TestSQLViewAndKeep(t *testing.T) {
 
 // TestSQLNameErrors: names no engine can hold are refused with a message
 // that says why, wrapping ErrNames; names that differ only in case are
-// refused where the dialect folds case (SQLite, DuckDB, MySQL) and accepted where
+// refused where the dialect folds case (SQLite, DuckDB, MySQL, Spark) and accepted where
 // it does not (PostgreSQL, ANSI).
 func TestSQLNameErrors(t *testing.T) {
 	f := &forest.Forest{Task: forest.Regression, Features: []string{"a", "A"}, InputPrecision: forest.Float64,
@@ -401,7 +401,7 @@ func TestSQLNameErrors(t *testing.T) {
 	p := sqlProgram(t, f)
 	for _, d := range sqltarget.Dialects {
 		_, err := sqltarget.Emit(p, sqltarget.Options{Dialect: d})
-		folds := d == sqltarget.SQLite || d == sqltarget.DuckDB || d == sqltarget.MySQL
+		folds := d == sqltarget.SQLite || d == sqltarget.DuckDB || d == sqltarget.MySQL || d == sqltarget.Spark
 		if folds != (err != nil) || err != nil && (!errors.Is(err, sqltarget.ErrNames) || !strings.Contains(err.Error(), "same column")) {
 			t.Errorf("%s: features a and A: error %v", d, err)
 		}

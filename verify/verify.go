@@ -45,6 +45,9 @@ type VerifyOptions struct {
 	// MySQLDSN is the MySQL or MariaDB server of the mysql runner; ""
 	// leaves it to the runner (Config.MySQLDSN, else $SAWMILL_MYSQL_DSN).
 	MySQLDSN string
+	// SparkPython is the Python (with pyspark) the spark runner starts; ""
+	// leaves it to the runner (Config.SparkPython, else SparkPython()).
+	SparkPython string
 	// MaxNest is the CASE nesting the SQL runners' statements may use
 	// (sql.Options.MaxNest); 0 leaves each dialect's default.
 	MaxNest int
@@ -292,6 +295,9 @@ func Verify(ctx context.Context, f *forest.Forest, rows *forest.Rows, o VerifyOp
 	for _, r := range sel {
 		r = usePostgres(r, o.PostgresDSN)
 		r = useDSN(r, "mysql", o.MySQLDSN)
+		if sp, ok := r.(interface{ WithPython(string) Runner }); ok && o.SparkPython != "" {
+			r = sp.WithPython(o.SparkPython)
+		}
 		if m, ok := r.(interface{ WithMaxNest(int) Runner }); ok && o.MaxNest > 0 {
 			r = m.WithMaxNest(o.MaxNest)
 		}
@@ -623,9 +629,10 @@ func selectRunners(all []Runner, o VerifyOptions) (sel []Runner, missing []strin
 		}
 		for _, e := range tg.Engines {
 			// An engine is expected when no dialect is named, or when its
-			// own dialect or the portable one is.
-			// MySQL reads double quotes as strings and runs no ANSI text.
-			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || hasFold(o.Dialects, AnsiDialect) && e != string(sqltarget.MySQL)
+			// own dialect or the portable one is. MySQL and Spark read double-quoted
+			// names as strings and run no ANSI text.
+			ansi := hasFold(o.Dialects, AnsiDialect) && e != string(sqltarget.MySQL) && e != string(sqltarget.Spark)
+			expected := len(o.Dialects) == 0 || hasFold(o.Dialects, e) || ansi
 			if expected && !served[e] && !slices.Contains(missing, e) {
 				missing = append(missing, e)
 			}

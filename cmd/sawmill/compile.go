@@ -120,7 +120,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
 	f.StringVar(&fl.name, "name", "", "C: base name of NAME.h, NAME.c and the NAME_ prefix (default model); SQL: the file NAME.sql (default score)")
 	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
-	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb, ansi or mysql (MySQL 8, MariaDB 10.11)")
+	f.StringVar(&fl.dialect, "dialect", "ansi", "SQL: sqlite, postgres, duckdb, ansi, mysql (MySQL 8, MariaDB 10.11) or spark (Spark SQL 4)")
 	f.StringVar(&fl.table, "table", "input", "SQL: the relation to read; its columns are named like the features")
 	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
 	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")

@@ -27,6 +27,7 @@ type verifyFlags struct {
 	dialects  []string
 	postgres  string
 	mysql     string
+	spark     string
 	maxNest   int
 	maxRows   int
 	probes    bool
@@ -90,12 +91,13 @@ fail the run, unless --require is given.`,
 	}
 	f := c.Flags()
 	f.StringVar(&fl.data, "data", "", "rows to check (CSV with a header naming the features); default: rows generated from the model")
-	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres, mysql); default all")
+	f.StringSliceVar(&fl.targets, "target", nil, "targets, comma-separated: go, c, sql, or an engine (sqlite, duckdb, postgres, mysql, spark); default all")
 	f.StringSliceVar(&fl.layouts, "layout", nil, "layouts to check (nested, table, branchless, binned); default each target's own")
 	f.StringSliceVar(&fl.variants, "variant", nil, "variants to check, e.g. double,float for C; default all")
-	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres, mysql; default all")
+	f.StringSliceVar(&fl.dialects, "dialect", nil, "SQL engines to check: sqlite, duckdb, postgres, mysql, spark; default all")
 	f.StringVar(&fl.postgres, "postgres", "", "PostgreSQL connection string (default $SAWMILL_POSTGRES_DSN, else PostgreSQL's own PGHOST, PGUSER, ... defaults)")
 	f.StringVar(&fl.mysql, "mysql", "", "MySQL or MariaDB server, user[:password]@tcp(host:port)/database (default $SAWMILL_MYSQL_DSN; with neither, mysql is skipped)")
+	f.StringVar(&fl.spark, "spark-python", "", "Python with pyspark for the spark engine (default $SAWMILL_SPARK_PYTHON, else python3 when it imports pyspark)")
 	f.IntVar(&fl.maxNest, "max-nest", 0, "SQL: nest CASE at most N deep, as compile --max-nest (default: each dialect's)")
 	f.IntVar(&fl.maxRows, "max-rows", verify.DefaultMaxRows, "most rows to generate (0: no cap)")
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
@@ -149,7 +151,7 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	}
 	o := verify.VerifyOptions{
 		Targets: fl.targets, Layouts: fl.layouts, Variants: fl.variants, Dialects: fl.dialects,
-		PostgresDSN: fl.postgres, MySQLDSN: fl.mysql, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
+		PostgresDSN: fl.postgres, MySQLDSN: fl.mysql, SparkPython: fl.spark, MaxNest: fl.maxNest, MaxRows: fl.maxRows, Probes: fl.probes, Tamper: verifyTamper,
 		Runners: runners,
 	}
 	if fl.maxRows == 0 {

@@ -20,9 +20,10 @@
 // Debian's 3.40.1), postgres (PostgreSQL 12 or
 // later; tested on 15), duckdb (tested on 1.5.6 through duckdb-go v2.10506.0)
 // ansi (ISO/IEC 9075:2016 with no engine extension: the golden runners
-// run the ANSI text on all three engines too) and mysql (MySQL 8.0 and
+// run the ANSI text on all three engines too), mysql (MySQL 8.0 and
 // MariaDB 10.2 or later; only MariaDB 10.11, Debian's 10.11.19, is run
-// here: MySQL itself is not).
+// here: MySQL itself is not) and spark (Spark SQL 4; tested on PySpark
+// 4.0.1 in local mode, Java 17; see "Spark SQL" below).
 //
 // Identifiers are always delimited (a double quote inside is written twice;
 // in mysql text backquotes, a backquote inside written twice, since
@@ -159,6 +160,69 @@
 // PostgreSQL and DuckDB store the double NaN and rank it above every
 // number, so postgres, duckdb and ansi text turn a stored NaN into NULL in
 // the first stage (featureInput) and it goes wherever missing values go.
+//
+// # Spark SQL
+//
+// Spark text quotes names with backquotes, writes every double with a D
+// suffix (1.5e+00D, DOUBLE whatever spark.sql.legacy.exponentLiteralAsDecimal
+// says; 237 values, random bits and hard cases, read back bit for bit under
+// ANSI mode on and off: TestSparkLiterals), writes a label holding a quote
+// or a backslash as its bytes, CAST(X'...' AS STRING) (Spark joins
+// adjacent literals, so a doubled quote reads as nothing, and reads
+// backslashes as escapes), and turns a stored NaN into NULL in
+// the first stage (isnan), since Spark ranks NaN above every number and
+// holds NaN = NaN true. It is exact with spark.sql.ansi.enabled on (Spark
+// 4's default) and off: ANSI mode raises errors for integral and decimal
+// overflow and for division by zero, doubles included, and the statement
+// has no integral arithmetic and divides only by a tree count or a sum
+// that is tested first (normalize) or at least 1 (softmax); EXP of a large
+// argument is +Infinity and of a very negative one 0, no error, under both
+// (TestSparkEngineFacts). -0 is kept (-0e+00D). Spark's EXP is Java's
+// StrictMath or Math exp, within the Tolerance the other engines' C library
+// exp is held to.
+//
+// Spark has no MATERIALIZED: it inlines every common table expression and
+// its optimizer merges adjacent projections (CollapseProject) wherever no
+// costly column would be computed twice, and whole-stage code generation
+// writes the merged projections into one Java method. The limits, measured
+// with PySpark 4.0.1, local[2], on a machine at load 10 to 24 (see
+// docs/spark-limits.md for the commands):
+//
+//   - Generated code: on the 30-tree, 654-node sklearn-wine forest
+//     (golden/testdata) the table layout's largest method was 32.5 KB of
+//     bytecode, the nested layout's 48.7 KB, whatever the trees per stage
+//     (2 to 100). A 50-tree, 2,112-node forest (bench/sqlscale) passes the
+//     JVM's 64 KB limit on a method, at 50 trees a stage and at 10, and
+//     with stages kept apart by a nondeterministic fence column (tried and
+//     left out: it changed neither size nor speed). Spark then runs the
+//     plan without whole-stage code generation, each expression compiled
+//     alone, with a warning in its log (spark.sql.codegen.fallback, on by
+//     default). Past spark.sql.codegen.hugeMethodLimit (65,535 bytes)
+//     Spark drops whole-stage code generation with an INFO line only; past
+//     HotSpot's 8,000-byte HugeMethodLimit a method is never JIT-compiled.
+//     The verify runner reads the largest generated method of every
+//     statement (codegenStringSeq) and fails above the first limit, sets
+//     spark.sql.codegen.fallback=false and factoryMode CODEGEN_ONLY so no
+//     code is interpreted unseen, and when whole-stage code generation
+//     cannot compile, runs without it and says so in its report line.
+//   - Speed: that fallback is slow: the 50-tree forest scored 2,300 to
+//     2,500 rows a second where DuckDB scored 136,000 and PostgreSQL
+//     80,000 (bench/sqlscale, 100,000 rows); a 500-tree, 21,138-node
+//     forest ran the local driver out of memory (2 GB and 6 GB heaps).
+//   - Planning: 1.4 to 2.8 s for the 30-tree forest in the table layout,
+//     2.6 to 5.6 s nested, 9 to 11 s for the 50-tree forest; the
+//     1,000-class diff-sqlite-1000-classes case took 36 s.
+//   - Nesting: CASE nested 100 and 200 deep parses, 300 and 400 are
+//     refused (FAILED_TO_PARSE_TOO_COMPLEX), 1,000 overflows the parser's
+//     stack: MaxNest is 100 (sparkMaxNest).
+//   - Stages: the analyzer resolves a chain of common table expressions in
+//     at most spark.sql.analyzer.maxIterations (100) passes; a 500-tree
+//     forest at 10 trees a stage failed there, so stages hold 100 trees.
+//
+// auto writes the table layout (see sparkAutoWhy); the
+// leaf value lookup indexes a constant array, array(...)[-n - 1], which
+// Spark folds into one constant. The same statement runs unchanged on a
+// cluster: only the partitions of the table differ.
 //
 // # Self-test
 //

@@ -140,6 +140,8 @@ func (g *gen) infTimes(x string) string {
 		// as expf(-z) overflowing, where round32(1/round32(1 + 1e300)) is
 		// +0 as round32(1/(1 + Inf)) is.
 		return fmt.Sprintf("CASE WHEN %s > %s THEN %s ELSE %s END", x, g.d.num(0), g.d.num(1e300), g.d.num(-1e300))
+	case Spark:
+		return "CAST('Infinity' AS DOUBLE) * " + x
 	}
 	inf := "CAST('Infinity' AS DOUBLE PRECISION)"
 	big := g.d.num(1e308)

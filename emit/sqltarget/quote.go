@@ -5,6 +5,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"unicode"
 	"unicode/utf8"
 )
 
@@ -24,13 +25,16 @@ func checkText(what, s string) error {
 
 // ident quotes s as a delimited identifier (ISO/IEC 9075 <delimited
 // identifier>): inside double quotes a double quote is doubled and every
-// other character, backslash included, stands for itself. MySQL and
-// MariaDB read double quotes as strings unless sql_mode has ANSI_QUOTES,
-// which is not assumed: mysql text quotes in backquotes, a backquote inside
-// doubled, every other character itself (MySQL 8.0 manual, 11.2 "Schema
-// Object Names"). s must have passed checkText.
+// other character, backslash included, stands for itself, in sqlite,
+// postgres, duckdb and ansi. MySQL and MariaDB read double quotes as
+// strings unless sql_mode has ANSI_QUOTES, which is not assumed (MySQL 8.0
+// manual, 11.2 "Schema Object Names"); Spark SQL reads a double-quoted name
+// as a string unless spark.sql.ansi.doubleQuotedIdentifiers is on (Spark's
+// BACKQUOTED_IDENTIFIER token, SqlBaseLexer.g4). So mysql and spark text
+// quote in backquotes, a backquote inside doubled, every other character
+// itself. s must have passed checkText.
 func (d Dialect) ident(s string) string {
-	if d == MySQL {
+	if d == MySQL || d == Spark {
 		return "`" + strings.ReplaceAll(s, "`", "``") + "`"
 	}
 	return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
@@ -46,7 +50,16 @@ func (d Dialect) ident(s string) string {
 // sql_mode has NO_BACKSLASH_ESCAPES; mysql text spells each backslash as
 // CHAR(92 USING utf8mb4) joined by CONCAT, which reads the same under
 // either mode.
+//
+// Spark SQL has no doubled quote (two adjacent literals are concatenated,
+// so a quote written twice is no quote) and reads backslash escapes unless
+// spark.sql.parser.escapedStringLiterals is on: a label holding a quote or
+// a backslash is written as its UTF-8 bytes, CAST(X'...' AS STRING), which
+// reads the same under either setting (measured in TestSparkStrings).
 func (d Dialect) str(s string) string {
+	if d == Spark && strings.ContainsAny(s, `'\`) {
+		return fmt.Sprintf("CAST(X'%X' AS STRING)", s)
+	}
 	q := func(s string) string { return "'" + strings.ReplaceAll(s, "'", "''") + "'" }
 	if d != MySQL || !strings.Contains(s, `\`) {
 		return q(s)
@@ -77,6 +90,11 @@ func (d Dialect) str(s string) string {
 //     every literal with a point or exponent as numeric, and numeric sums are
 //     exact; the cast goes through float8in (correctly rounded). numeric has
 //     no -0, so -0 is written -(0e+00::float8), a float8 negation.
+//   - spark: "1.5e+00D". The D suffix types the literal DOUBLE whatever
+//     spark.sql.legacy.exponentLiteralAsDecimal.enabled says (Spark SQL
+//     reads an exponent literal as DOUBLE by default, a plain 0.1 as
+//     DECIMAL); Spark parses it with Java's Double.parseDouble (correctly
+//     rounded). -0 is "-0e+00D", the negation of a double zero.
 //   - ansi: CAST(1.5E+00 AS DOUBLE PRECISION). ISO/IEC 9075 leaves the
 //     precision of an approximate numeric literal to the implementation, so
 //     the cast pins it. -0 is CAST('-0E+00' AS DOUBLE PRECISION), a cast from
@@ -97,6 +115,8 @@ func (d Dialect) Literal(v float64) string {
 			return "-(0e+00::float8)"
 		}
 		return s + "::float8"
+	case Spark:
+		return s + "D"
 	case ANSI:
 		s = strings.ToUpper(s)
 		if negZero {
@@ -142,7 +162,11 @@ func (d Dialect) checkLength(what, s string, limit int) error {
 // foldName is the form under which the dialect compares identifiers:
 // SQLite and DuckDB match even quoted identifiers without regard to ASCII
 // case; PostgreSQL keeps case but truncates identifiers to 63 bytes
-// (NAMEDATALEN-1); ANSI compares delimited identifiers as written.
+// (NAMEDATALEN-1); ANSI compares delimited identifiers as written. Spark
+// resolves names without regard to case (spark.sql.caseSensitive is off by
+// default; its resolver compares with Java's equalsIgnoreCase, which folds
+// every letter, not ASCII only): each rune is folded to the least of its
+// Unicode simple case folding orbit.
 func (d Dialect) foldName(s string) string {
 	switch d {
 	case MySQL:
@@ -150,6 +174,8 @@ func (d Dialect) foldName(s string) string {
 		// (MySQL 8.0 manual, 11.2.3 "Identifier Case Sensitivity"); lower
 		// case covers case, and accents are left to the engine's error.
 		return strings.ToLower(s)
+	case Spark:
+		return strings.Map(foldRune, s)
 	case SQLite, DuckDB:
 		b := []byte(s)
 		for i, c := range b {
@@ -169,4 +195,14 @@ func (d Dialect) foldName(s string) string {
 		return s[:n]
 	}
 	return s
+}
+
+// foldRune maps r to the least rune of its simple case folding orbit, so
+// that runes equal without regard to case map to the same rune.
+func foldRune(r rune) rune {
+	least := r
+	for f := unicode.SimpleFold(r); f != r; f = unicode.SimpleFold(f) {
+		least = min(least, f)
+	}
+	return least
 }

@@ -24,10 +24,11 @@ const (
 	DuckDB   Dialect = "duckdb"
 	ANSI     Dialect = "ansi"  // ISO/IEC 9075:2016, no engine's extensions
 	MySQL    Dialect = "mysql" // MySQL 8 and MariaDB 10.11 (only MariaDB is run)
+	Spark    Dialect = "spark" // Spark SQL 4
 )
 
 // Dialects lists every dialect, in the order help texts show them.
-var Dialects = []Dialect{SQLite, Postgres, DuckDB, ANSI, MySQL}
+var Dialects = []Dialect{SQLite, Postgres, DuckDB, ANSI, MySQL, Spark}
 
 // ParseDialect returns the dialect named s.
 func ParseDialect(s string) (Dialect, error) {
@@ -113,7 +114,7 @@ var ErrNames = errors.New("name not usable in SQL")
 // fails with "Thread stack overrun" past 538 levels of CASE in the worst
 // shape as a query and 527 in the function form (TestMySQLLimits); the
 // default keeps less than half of that.
-var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10, MySQL: 250}
+var DefaultMaxNest = map[Dialect]int{SQLite: 12, Postgres: 500, DuckDB: 400, ANSI: 10, MySQL: 250, Spark: sparkMaxNest}
 
 // Limits of stock SQLite other than the parser stack that a statement can
 // meet, measured with Debian's sqlite3 3.40.1 (".limit" prints them, and
@@ -180,7 +181,7 @@ func Layouts() []string { return []string{emit.Nested, emit.Table} }
 // Target is the SQL target's entry in the registry (emit/targets): its code
 // runs in the engines of the dialects named like them.
 func Target() emit.Target {
-	return emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres), string(MySQL)},
+	return emit.Target{Name: Name, Layouts: Layouts(), Engines: []string{string(SQLite), string(DuckDB), string(Postgres), string(MySQL), string(Spark)},
 		Emit: func(p *compile.Program, s emit.Settings) ([]emit.File, error) {
 			files, err := Emit(p, Options{Layout: s.Layout, Comments: s.Comments})
 			return Named(files, s.Name), err
@@ -268,6 +269,9 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 		return nil, fmt.Errorf("sql: MaxNest %d is too small: the table layout needs at least 2", g.nest)
 	}
 	g.chunk = o.TreesPerStage
+	if g.chunk <= 0 && g.d == Spark {
+		g.chunk = sparkTreesPerStage
+	}
 	if g.chunk <= 0 {
 		g.chunk = 100
 	}
@@ -393,6 +397,8 @@ func (g *gen) auto(maxDepth int) (layout, why string) {
 	switch {
 	case g.d == DuckDB:
 		return emit.Table, "DuckDB's vectorised CASE pays for every nested branch"
+	case g.d == Spark:
+		return emit.Table, sparkAutoWhy
 	case maxDepth > g.nest:
 		return emit.Table, fmt.Sprintf("a tree %d splits deep, and %s nests CASE at most %d deep", maxDepth, g.d, g.nest)
 	case g.d == MySQL && g.o.Function != "":

@@ -149,6 +149,8 @@ func (g *gen) header() {
 	case MySQL:
 		w.WriteString("-- MySQL 8.0 or MariaDB 10.2 or later (WITH, ROW_NUMBER); tested on MariaDB 10.11 only. A DOUBLE\n")
 		w.WriteString("-- column cannot hold NaN: load a missing value as NULL. MariaDB returns -0 as 0.\n")
+	case Spark:
+		w.WriteString("-- Spark SQL 4 (tested on 4.0.1), exact with spark.sql.ansi.enabled on or off.\n")
 	}
 }
 
@@ -190,7 +192,7 @@ func (g *gen) cte(items []string, materialize bool) {
 	name := g.prefix + strconv.Itoa(g.stage)
 	var b strings.Builder
 	b.WriteString(name)
-	if materialize && !g.fenced() {
+	if materialize && !g.fenced() && g.d != Spark {
 		b.WriteString(" AS MATERIALIZED (\n")
 	} else {
 		b.WriteString(" AS (\n")
@@ -265,6 +267,8 @@ func (g *gen) featureInput(col string) string {
 		return "NULLIF(" + col + ", 'NaN'::float8)"
 	case DuckDB:
 		return "NULLIF(" + col + ", 'NaN'::DOUBLE)"
+	case Spark:
+		return "CASE WHEN isnan(" + col + ") THEN NULL ELSE " + col + " END"
 	case ANSI:
 		return "CASE WHEN " + col + " > 0 AND " + col + " <= -" + col + " THEN NULL ELSE " + col + " END"
 	}

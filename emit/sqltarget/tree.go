@@ -334,6 +334,10 @@ func (g *gen) writeLookup(b *strings.Builder, ti, j int) {
 	}
 	n := nodeCol(ti)
 	val := func(k int) string { return g.acc(g.leafValue(ti, leaves[k], j)) }
+	if len(leaves) > 2 && g.d == Spark {
+		g.sparkArrayLookup(b, n, len(leaves), func(k int) float64 { return g.leafValue(ti, leaves[k], j) })
+		return
+	}
 	if len(leaves) > 2 && (g.d == Postgres || g.d == DuckDB) {
 		g.writeArrayLookup(b, n, len(leaves), func(k int) float64 { return g.leafValue(ti, leaves[k], j) })
 		return
