@@ -43,8 +43,8 @@ import (
 // uint8_t array), so no access is unaligned on cores that fault on one.
 //
 // Not binned: set splits (a category test is not an interval test on
-// one cut), which the layout refuses with emit.Unsupported naming the
-// first; a feature with more than maxBinCuts cuts, or a word beyond 64
+// one cut): Resolve writes such a model in the table layout instead and
+// says so in the header, as bitvector does; a feature with more than maxBinCuts cuts, or a word beyond 64
 // bits, which it refuses with an error. Auto never picks binned then.
 type binnedLayout struct {
 	tl *tableLayout // the leaves, tree starts and splits, as the table layout collects them

@@ -56,6 +56,7 @@ package ctarget
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"math"
 	"strconv"
@@ -121,8 +122,14 @@ func Target() emit.Target {
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
-	case emit.Nested, emit.Table, emit.Binned:
+	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
+	case emit.Binned:
+		var u *emit.Unsupported
+		if errors.As(binnable(p), &u) {
+			return emit.Table, fmt.Sprintf("binned asked for, but %s is a set split, which no cut of one feature can test: the table layout instead", u.Where), nil
+		}
+		return emit.Binned, "asked for", nil
 	case Bitvector:
 		if err := bitvectorFits(p); err != nil {
 			return emit.Table, fmt.Sprintf("bitvector asked for, but %v: the table layout instead", err), nil

@@ -232,7 +232,8 @@ func TestResolveAuto(t *testing.T) {
 		want = emit.Binned
 	}
 	require.Equal(t, want, l, "%s (table %d bytes, binned %d)", why, sizes[1].TableBytes, sizes[2].TableBytes)
-	// Set splits cannot be binned: auto keeps table, asking for binned fails.
+	// Set splits cannot be binned: auto keeps table, and so does asking for
+	// binned, saying why.
 	sp := compiled(t, setSplitForest(t), false)
 	for sp.NumNodes() <= AutoNestedNodes {
 		sp.Trees = append(sp.Trees, sp.Trees...)
@@ -240,11 +241,13 @@ func TestResolveAuto(t *testing.T) {
 	l, why, err = Resolve(sp, Options{})
 	require.NoError(t, err)
 	require.Equal(t, emit.Table, l, why)
-	_, err = Emit(sp, Options{Layout: emit.Binned})
-	var u *emit.Unsupported
-	require.ErrorAs(t, err, &u)
-	require.ErrorContains(t, err, "set splits")
-	require.ErrorContains(t, err, "hint: use --layout table")
+	l, why, err = Resolve(sp, Options{Layout: emit.Binned})
+	require.NoError(t, err)
+	require.Equal(t, emit.Table, l, why)
+	require.Contains(t, why, "is a set split")
+	files, err := Emit(sp, Options{Layout: emit.Binned})
+	require.NoError(t, err)
+	require.Contains(t, string(files[0].Data), "the table layout instead")
 }
 
 // The table layout of a two-class forest: the scikit-learn breast-cancer
