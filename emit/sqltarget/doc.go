@@ -145,7 +145,9 @@
 // times faster in MariaDB than a sub-query, which builds a temporary table
 // per stage and call; in the mysql client the file switches DELIMITER around
 // it). SQLite and ANSI SQL have no SQL-bodied scalar functions: the option
-// is refused there, with a hint to emit the query. A function returns one
+// is refused there, with a hint to emit the query. Spark 4 has them
+// (CREATE FUNCTION ... RETURN expr), but sawmill does not write them for
+// Spark yet, and says so. A function returns one
 // value, so a model of one regression output gets NAME, and any other
 // NAME_0, NAME_1, ... per output and, for a classifier, NAME for the
 // label (FunctionNames). Each function walks every tree, so the form
