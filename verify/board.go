@@ -190,6 +190,7 @@ func (r boardRunner) Score(ctx context.Context, p *compile.Program, layout, vari
 		}
 	}
 	o := r.options(layout, variant)
+	o.Threads = b.linux // the host's driver checks NAME_predict_batch_threads too
 	ft, err := writeC(p, o, dir)
 	if err != nil {
 		return nil, err
@@ -222,6 +223,9 @@ func (r boardRunner) buildAndRun(ctx context.Context, p *compile.Program, b boar
 	args := append(slices.Clone(b.flags), "-std=c99")
 	args = append(args, cRunner{Werror: r.Werror}.warnings()...)
 	args = append(args, "-o", "model.elf", "driver.c", name+".c", ctarget.SelftestFile(name))
+	if b.linux {
+		args = append(args, name+"_threads.c", "-pthread")
+	}
 	args = append(args, b.link...)
 	start := time.Now()
 	if err := cCommand(ctx, dir, nil, nil, b.cc, args...); err != nil {

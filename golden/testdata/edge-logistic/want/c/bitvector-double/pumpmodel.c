@@ -4,8 +4,23 @@
 
 #include "pumpmodel.h"
 
+#include <float.h>
 #include <math.h>
 #include <stdint.h>
+
+/* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
+ * define PUMPMODEL_ALLOW_INEXACT_FP to build where these checks fail. */
+#ifndef PUMPMODEL_ALLOW_INEXACT_FP
+#if FLT_RADIX != 2
+#error "pumpmodel.c: FLT_RADIX is not 2: not binary floating point (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#if DBL_MANT_DIG != 53
+#error "pumpmodel.c: double is not IEEE 754 binary64 (DBL_MANT_DIG != 53): build with 64-bit doubles, e.g. avr-gcc -mdouble=64, or emit float C (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#if !defined(FLT_EVAL_METHOD) || (FLT_EVAL_METHOD != 0 && FLT_EVAL_METHOD != 1)
+#error "pumpmodel.c: double operations must round to double (FLT_EVAL_METHOD 0 or 1): with x87 build with -msse2 -mfpmath=sse (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#endif
 
 /* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
  * ignores the pragma and contracts in its GNU modes; the code keeps a
@@ -144,4 +159,26 @@ void pumpmodel_predict_batch(const double *x, size_t n, double *out)
 	for (r = 0; r < n; r++) {
 		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, out + r * PUMPMODEL_NUM_OUTPUTS);
 	}
+}
+
+int pumpmodel_fp_check(void)
+{
+	volatile double smallest = DBL_MIN, two = 2.0, one = 1.0;
+	volatile double up = DBL_EPSILON * 0.75, down = DBL_EPSILON * 0.25;
+	double half;
+	int bad = 0;
+	half = smallest / two; /* a subnormal; 0 when results flush to zero */
+	if (half == 0.0) {
+		bad |= PUMPMODEL_FP_FLUSHES_SUBNORMALS;
+	} else {
+		volatile double sub = half;
+		if (sub * two != smallest) { /* a subnormal operand read as 0 */
+			bad |= PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO;
+		}
+	}
+	/* To nearest, 1 + 3/4 ulp rounds up and 1 + 1/4 ulp down. */
+	if (one + up != one + DBL_EPSILON || one + down != one) {
+		bad |= PUMPMODEL_FP_NOT_NEAREST;
+	}
+	return bad;
 }

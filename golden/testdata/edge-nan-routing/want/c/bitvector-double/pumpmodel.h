@@ -29,6 +29,7 @@
  *   pumpmodel_bv_leaf_off: each tree's first leaf, 2 x 4 = 8 bytes
  *   pumpmodel_bv_leaf: leaf values, left to right per tree, 5 x 8 = 40 bytes
  *   total 149 bytes (18.62 bytes per node; code not counted)
+ * At most 3 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,
@@ -38,6 +39,12 @@
  * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations
  * or flush-to-zero: missing values are NaN and signed zeros and subnormals
  * must be kept.
+ * These assumptions are code: pumpmodel.c stops with #error where FLT_EVAL_METHOD,
+ * DBL_MANT_DIG or FLT_RADIX (float.h) break them; define PUMPMODEL_ALLOW_INEXACT_FP
+ * to build anyway. Call pumpmodel_fp_check() once at start-up: it is 0 where
+ * the floating-point unit keeps subnormals and rounds to nearest, else it
+ * says what is wrong (PUMPMODEL_FP_FLUSHES_SUBNORMALS, PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO,
+ * PUMPMODEL_FP_NOT_NEAREST), and outputs may then differ.
  */
 #ifndef PUMPMODEL_H
 #define PUMPMODEL_H
@@ -62,6 +69,15 @@ void pumpmodel_predict(const double *x, double *out);
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
  * Row by row. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
+
+/* Checks at run time what exact scoring needs of the floating-point unit:
+ * 0 when it holds, else a combination of these bits. Flush-to-zero and
+ * denormals-are-zero modes (set by some start-up code, or by -ffast-math's
+ * crtfastmath.o) and a rounding mode other than to nearest change outputs. */
+#define PUMPMODEL_FP_FLUSHES_SUBNORMALS 1
+#define PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO 2
+#define PUMPMODEL_FP_NOT_NEAREST 4
+int pumpmodel_fp_check(void);
 
 /* The model's feature names, in input order (UTF-8). */
 extern const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES];

@@ -4,7 +4,22 @@
 
 #include "pumpmodel.h"
 
+#include <float.h>
 #include <stdint.h>
+
+/* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
+ * define PUMPMODEL_ALLOW_INEXACT_FP to build where these checks fail. */
+#ifndef PUMPMODEL_ALLOW_INEXACT_FP
+#if FLT_RADIX != 2
+#error "pumpmodel.c: FLT_RADIX is not 2: not binary floating point (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#if FLT_MANT_DIG != 24
+#error "pumpmodel.c: float is not IEEE 754 binary32 (FLT_MANT_DIG != 24) (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#if !defined(FLT_EVAL_METHOD) || FLT_EVAL_METHOD < 0
+#error "pumpmodel.c: FLT_EVAL_METHOD is indeterminable (define PUMPMODEL_ALLOW_INEXACT_FP to build anyway)"
+#endif
+#endif
 
 /* No contraction of a*b+c into a fused multiply-add (C99 7.12.2). gcc
  * ignores the pragma and contracts in its GNU modes; the code keeps a
@@ -285,4 +300,26 @@ void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
 			}
 		}
 	}
+}
+
+int pumpmodel_fp_check(void)
+{
+	volatile float smallest = FLT_MIN, two = 2.0f, one = 1.0f;
+	volatile float up = FLT_EPSILON * 0.75f, down = FLT_EPSILON * 0.25f;
+	float half;
+	int bad = 0;
+	half = smallest / two; /* a subnormal; 0 when results flush to zero */
+	if (half == 0.0f) {
+		bad |= PUMPMODEL_FP_FLUSHES_SUBNORMALS;
+	} else {
+		volatile float sub = half;
+		if (sub * two != smallest) { /* a subnormal operand read as 0 */
+			bad |= PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO;
+		}
+	}
+	/* To nearest, 1 + 3/4 ulp rounds up and 1 + 1/4 ulp down. */
+	if (one + up != one + FLT_EPSILON || one + down != one) {
+		bad |= PUMPMODEL_FP_NOT_NEAREST;
+	}
+	return bad;
 }

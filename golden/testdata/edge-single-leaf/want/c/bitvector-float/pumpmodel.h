@@ -22,6 +22,7 @@
  *   pumpmodel_thr: distinct thresholds, 1 x 4 = 4 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
  *   total 12 bytes (12.00 bytes per node; code not counted)
+ * At most 0 splits are tested per prediction (the sum of the trees' depths).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces
@@ -32,6 +33,12 @@
  * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations
  * or flush-to-zero: missing values are NaN and signed zeros and subnormals
  * must be kept.
+ * These assumptions are code: pumpmodel.c stops with #error where FLT_EVAL_METHOD,
+ * FLT_MANT_DIG or FLT_RADIX (float.h) break them; define PUMPMODEL_ALLOW_INEXACT_FP
+ * to build anyway. Call pumpmodel_fp_check() once at start-up: it is 0 where
+ * the floating-point unit keeps subnormals and rounds to nearest, else it
+ * says what is wrong (PUMPMODEL_FP_FLUSHES_SUBNORMALS, PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO,
+ * PUMPMODEL_FP_NOT_NEAREST), and outputs may then differ.
  */
 #ifndef PUMPMODEL_H
 #define PUMPMODEL_H
@@ -55,6 +62,15 @@ void pumpmodel_predict(const float *x, float *out);
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
  * Tree by tree over all rows, so each tree's words stay in cache. */
 void pumpmodel_predict_batch(const float *x, size_t n, float *out);
+
+/* Checks at run time what exact scoring needs of the floating-point unit:
+ * 0 when it holds, else a combination of these bits. Flush-to-zero and
+ * denormals-are-zero modes (set by some start-up code, or by -ffast-math's
+ * crtfastmath.o) and a rounding mode other than to nearest change outputs. */
+#define PUMPMODEL_FP_FLUSHES_SUBNORMALS 1
+#define PUMPMODEL_FP_SUBNORMAL_INPUTS_ZERO 2
+#define PUMPMODEL_FP_NOT_NEAREST 4
+int pumpmodel_fp_check(void);
 
 /* The model's feature names, in input order (UTF-8). */
 extern const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES];
