@@ -13,12 +13,14 @@ require (
 	modernc.org/sqlite v1.62.0
 )
 
-require google.golang.org/protobuf v1.36.12
+require (
+	github.com/go-sql-driver/mysql v1.9.3
+	google.golang.org/protobuf v1.36.12
+)
 
 require (
 	filippo.io/edwards25519 v1.1.0 // indirect
 	github.com/andybalholm/brotli v1.3.0 // indirect
-	github.com/go-sql-driver/mysql v1.9.3 // indirect
 	github.com/parquet-go/bitpack v1.0.3 // indirect
 	github.com/parquet-go/jsonlite v1.5.5 // indirect
 	github.com/twpayne/go-geom v1.6.1 // indirect
