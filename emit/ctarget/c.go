@@ -90,6 +90,11 @@ type Options struct {
 	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
 	// files of their own that a build without threads leaves out.
 	Threads bool
+	// IntLeaves, 16 or 32, stores every leaf as a scaled integer of that
+	// many bits and sums them in integers (intleaves.go): lossy, within a
+	// bound derived from the model and written in the header. 0 keeps the
+	// exact floating-point leaves. Table and binned layouts only.
+	IntLeaves int
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -121,6 +126,14 @@ func Target() emit.Target {
 
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
+	if o.IntLeaves != 0 {
+		return resolveIntLeaves(p, o)
+	}
+	return resolveLayout(p, o)
+}
+
+// resolveLayout is Resolve for floating-point leaves.
+func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
 	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
@@ -174,7 +187,11 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	default:
 		panic("BUG: ctarget: layout " + g.layout)
 	}
-	g.finish(&body)
+	if g.il != nil {
+		g.finishScaled(&body)
+	} else {
+		g.finish(&body)
+	}
 	g.writeBatch(&body)
 	files := []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
@@ -217,6 +234,8 @@ type gen struct {
 	batch    func(w *printer)
 	featMac  []string // NAME_F_... macro per feature
 	classMac []string // NAME_C_... macro per class
+	// il is the integer leaves' scale and bound (Options.IntLeaves), or nil.
+	il *intLeaves
 }
 
 // Table is one static array of the generated code.
@@ -277,6 +296,11 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	}
 	if g.base, err = g.narrow(p.BaseScore); err != nil {
 		return nil, fmt.Errorf("base score %v", err)
+	}
+	if o.IntLeaves != 0 {
+		if g.il, err = g.newIntLeaves(o.IntLeaves); err != nil {
+			return nil, err
+		}
 	}
 	g.featMac = macroNames(g.upper+"_F_", featureNames(p))
 	if p.IsClassifier() {
@@ -620,6 +644,9 @@ func (g *gen) header() []byte {
 		w.line(" * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the")
 		w.line(" * last bit; comparisons stay exact.")
 	}
+	if g.il != nil {
+		g.intLeavesDoc(&w)
+	}
 	w.line(" * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations")
 	w.line(" * or flush-to-zero: missing values are NaN and signed zeros and subnormals")
 	w.line(" * must be kept.")
@@ -673,6 +700,9 @@ func (g *gen) header() []byte {
 		w.line("int %s_predict_class(const %s *x);", g.name, ft)
 	}
 	g.fpHeaderDecl(&w)
+	if g.il != nil {
+		g.intLeavesDecl(&w)
+	}
 	w.line("")
 	w.line("/* The model's feature names, in input order (UTF-8). */")
 	w.line("extern const char *const %s_feature_names[%s_NUM_FEATURES];", g.name, u)
@@ -1036,6 +1066,10 @@ func floatConst(v float64) string {
 // the base score for a sum, zero for an average.
 func (g *gen) predictStart(w *printer, locals ...string) {
 	p := g.p
+	if g.il != nil {
+		g.scaledStart(w, locals)
+		return
+	}
 	w.line("void %s_predict(const %s *x, %s *out)", g.name, g.ft, g.ft)
 	w.line("{")
 	w.in()

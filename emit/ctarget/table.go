@@ -420,6 +420,9 @@ func (tl *tableLayout) thrElemBytes(g *gen) int {
 }
 
 func (tl *tableLayout) leafElemBytes(g *gen) int {
+	if g.il != nil {
+		return g.il.bits / 8
+	}
 	if g.at == "float" || tl.leafFloat {
 		return 4
 	}
@@ -524,7 +527,9 @@ func (g *gen) table(w *printer) error {
 	t.outputsAndLeaves()
 	t.walkTests()
 	t.predict()
-	g.batch = t.predictBatch
+	if g.il == nil {
+		g.batch = t.predictBatch
+	}
 	return nil
 }
 
@@ -549,6 +554,10 @@ func newTableWriter(g *gen, tl *tableLayout, w *printer) *tableWriter {
 	t.exactNote = map[bool]string{true: " (all exact as float)"}[t.lt != g.at]
 	if t.lt != g.at {
 		t.conv = "(double)"
+	}
+	if g.il != nil {
+		t.lt, t.llit, t.conv = g.il.leafType(), g.il.leafLit, ""
+		t.exactNote = fmt.Sprintf(", scaled by 2^%d and rounded (%s_LEAF_SCALE)", g.il.shift, g.upper)
 	}
 	return t
 }
