@@ -613,6 +613,9 @@ func (g *gen) header() []byte {
 	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
 	w.line(" *")
 	switch {
+	case g.il != nil:
+		w.line(" * Arithmetic: comparisons are exact, the leaves are not (LOSSY, below); the")
+		w.line(" * sums are turned into %s and finished in %s.", g.at, g.at)
 	case g.f32:
 		w.line(" * Arithmetic: the model accumulates in float32, and so does this code: every")
 		w.line(" * addition, the division of an average, the scale and the transform are")

@@ -84,22 +84,36 @@ func (g *gen) newIntLeaves(bits int) (*intLeaves, error) {
 	if math.IsInf(biggest, 0) || math.IsNaN(biggest) {
 		return nil, fmt.Errorf("integer leaves: a leaf value is %v", biggest)
 	}
-	il.shift = scaleShift(biggest, limit)
+	lim := maxShift
+	if g.at == "float" {
+		lim = maxShiftFloat
+	}
+	il.shift = scaleShift(biggest, limit, lim)
 	il.scale = math.Ldexp(1, il.shift)
 	if err := il.sums(g); err != nil {
 		return nil, err
 	}
 	il.bound = il.derive(g)
+	for j, b := range il.bound {
+		if math.IsInf(b, 0) || math.IsNaN(b) {
+			return nil, &emit.Unsupported{Target: Name, Construct: fmt.Sprintf("integer leaves here: output %d has no finite error bound (%v)", j, b),
+				Hint: "emit without --int-leaves"}
+		}
+	}
 	il.chooseLabel(g)
 	return il, nil
 }
 
-// maxShift bounds the scale's exponent: 2^-120 to 2^120 are normal floats.
-const maxShift = 120
+// maxShift and maxShiftFloat bound the scale's exponent: 2^-1000 to
+// 2^1000 are normal doubles, 2^-120 to 2^120 normal floats.
+const (
+	maxShift      = 1000
+	maxShiftFloat = 120
+)
 
 // scaleShift is the largest k such that round(v * 2^k) stays within limit
 // for every |v| <= biggest (0 when every leaf is 0).
-func scaleShift(biggest, limit float64) int {
+func scaleShift(biggest, limit float64, maxShift int) int {
 	if biggest == 0 {
 		return 0
 	}
@@ -148,7 +162,7 @@ func (il *intLeaves) sums(g *gen) error {
 		q := il.q(v)
 		per[ti][j] = max(per[ti][j], q, -q)
 		if (q > limit || q < -limit) && wide == nil {
-			wide = fmt.Errorf("integer leaves: tree %d: leaf value %v does not fit int%d_t at the smallest scale, 2^-%d", p.Trees[ti].Source, v, il.bits, maxShift)
+			wide = fmt.Errorf("integer leaves: tree %d: leaf value %v does not fit int%d_t at the smallest scale", p.Trees[ti].Source, v, il.bits)
 		}
 	})
 	if wide != nil {
@@ -229,13 +243,50 @@ func (il *intLeaves) derive(g *gen) []float64 {
 		case forest.Softmax:
 			out[j] = top / 2
 		case forest.Exp:
-			out[j] = math.Exp(maxScore(p)) * math.Expm1(z)
+			// e^z moves by e^z |e^d - 1| <= e^ztop (e^E - 1), and the C
+			// library's exp errs by 2 ulp, a relative 2^-51 (ErrorBound).
+			top := math.Exp(zTop(g, j))
+			out[j] = top*math.Expm1(z) + 0x1p-51*top*math.Exp(z)
+			extra = 0
 		default:
 			out[j] = z
 		}
 		out[j] = out[j]*(1+0x1p-20) + extra // the bound's own roundings, upward
 	}
 	return out
+}
+
+// zTop is the largest z_j any row reaches, before the transform: the base
+// plus each tree's largest leaf for output j (divided by T_j for an
+// average), times the scale, or the smallest such sum for a negative scale.
+func zTop(g *gen, j int) float64 {
+	p := g.p
+	hi := make([]float64, len(p.Trees))
+	lo := make([]float64, len(p.Trees))
+	for ti := range hi {
+		hi[ti], lo[ti] = math.Inf(-1), math.Inf(1)
+	}
+	g.eachLeaf(func(ti, out int, v float64) {
+		if out == j {
+			hi[ti], lo[ti] = math.Max(hi[ti], v), math.Min(lo[ti], v)
+		}
+	})
+	var sHi, sLo float64
+	for ti := range hi {
+		if !math.IsInf(hi[ti], -1) {
+			sHi, sLo = sHi+hi[ti], sLo+lo[ti]
+		}
+	}
+	if p.Combine == forest.Average {
+		n := float64(max(p.TreesAddingTo(j), 1))
+		sHi, sLo = sHi/n, sLo/n
+	}
+	sHi, sLo = sHi+g.base[j], sLo+g.base[j]
+	// (1+2^-40) covers the sum's own roundings, and more.
+	if s := p.Scale(); s < 0 {
+		return s * sLo * (1 + 0x1p-40)
+	}
+	return p.Scale() * sHi * (1 + 0x1p-40)
 }
 
 // chooseLabel decides whether NAME_predict_class can decide on the sums
