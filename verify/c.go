@@ -345,6 +345,9 @@ func writeC(p *compile.Program, o ctarget.Options, dir string) (string, error) {
 		return "", declined(err)
 	}
 	for _, f := range files {
+		if cEdit != nil {
+			f.Data = cEdit(f.Name, f.Data)
+		}
 		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
 			return "", err
 		}
@@ -354,6 +357,10 @@ func writeC(p *compile.Program, o ctarget.Options, dir string) (string, error) {
 	}
 	return "double", nil
 }
+
+// cEdit, set only by tests, rewrites each emitted file before it is built,
+// to plant a fault no program edit can (a wrong scale of integer leaves).
+var cEdit func(name string, data []byte) []byte
 
 var ccVersions sync.Map // compiler name → "gcc 12.2.0"
 
