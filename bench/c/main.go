@@ -226,7 +226,7 @@ func printSizes(modelPath string, intLeaves int) error {
 	}
 	builds := []ctarget.Options{{}, {Float: true}}
 	if intLeaves != 0 {
-		builds = append(builds, ctarget.Options{IntLeaves: intLeaves})
+		builds = append(builds, ctarget.Options{IntLeaves: intLeaves}, ctarget.Options{IntLeaves: intLeaves, Float: true})
 	}
 	for _, o := range builds {
 		fl := o.Float
@@ -244,7 +244,7 @@ func printSizes(modelPath string, intLeaves int) error {
 		}
 		ft := map[bool]string{false: "double", true: "float"}[fl]
 		if o.IntLeaves != 0 {
-			ft = fmt.Sprintf("double, int%d leaves", o.IntLeaves)
+			ft += fmt.Sprintf(", int%d leaves", o.IntLeaves)
 		}
 		fmt.Printf("%s: %d trees, %d nodes (%d leaves), depth %d\n", ft, len(p.Trees), p.NumNodes(), p.NumLeaves(), p.MaxDepth())
 		for _, s := range sizes {

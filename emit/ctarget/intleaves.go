@@ -101,7 +101,27 @@ func (g *gen) newIntLeaves(bits int) (*intLeaves, error) {
 		}
 	}
 	il.chooseLabel(g)
+	il.dequantize(g)
 	return il, nil
+}
+
+// dequantize replaces every leaf value of g by the value its integer
+// stands for, q/2^shift (exact), once the bound is derived from the
+// originals: leaves that round to the same integers are then one row of
+// the leaf tables, and leafLit gives back q.
+func (il *intLeaves) dequantize(g *gen) {
+	for ti := range g.leaves {
+		for ni, vec := range g.leaves[ti] {
+			if vec == nil {
+				continue
+			}
+			d := make([]float64, len(vec))
+			for c, v := range vec {
+				d[c] = math.Ldexp(float64(il.q(v)), -il.shift)
+			}
+			g.leaves[ti][ni] = d
+		}
+	}
 }
 
 // maxShift and maxShiftFloat bound the scale's exponent: 2^-1000 to

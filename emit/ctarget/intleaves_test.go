@@ -54,15 +54,22 @@ func TestIntLeavesScale(t *testing.T) {
 			}
 			il, limit := g.il, int64(1)<<(bits-1)-1
 			var most int64
-			g.eachLeaf(func(ti, _ int, v float64) {
-				q := il.q(v)
-				most = max(most, q, -q)
-				d := new(big.Float).SetFloat64(math.Ldexp(v, il.shift))
-				d.Sub(d, new(big.Float).SetInt64(q)).Abs(d)
-				if d.Cmp(big.NewFloat(0.5)) > 0 {
-					t.Errorf("%s int%d: tree %d: leaf %v scales to %d, %v away", name, bits, ti, v, q, d)
+			for ti := range p.Trees { // the model's own leaves, not g's dequantized ones
+				for ni, n := range p.Trees[ti].Nodes {
+					for c, v := range n.Value {
+						q := il.q(v)
+						most = max(most, q, -q)
+						d := new(big.Float).SetFloat64(math.Ldexp(v, il.shift))
+						d.Sub(d, new(big.Float).SetInt64(q)).Abs(d)
+						if d.Cmp(big.NewFloat(0.5)) > 0 {
+							t.Errorf("%s int%d: tree %d: leaf %v scales to %d, %v away", name, bits, ti, v, q, d)
+						}
+						if n.IsLeaf() && il.q(v) != il.q(g.leaves[ti][ni][c]) {
+							t.Errorf("%s int%d: tree %d: stored leaf differs", name, bits, ti)
+						}
+					}
 				}
-			})
+			}
 			if most > limit || most <= limit/2 {
 				t.Errorf("%s int%d: largest scaled leaf %d, want in (%d, %d]", name, bits, most, limit/2, limit)
 			}
