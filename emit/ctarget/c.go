@@ -52,6 +52,13 @@
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
+//
+// One option is lossy, and only on request: Options.IntLeaves (16 or 32)
+// stores each leaf as a scaled integer, sums them in integers
+// (NAME_predict_scaled) and derives, prints in the header and hands verify
+// a bound on every output's error (intleaves.go); with the binned layout
+// the class label then needs no floating point at all. Tables and binned
+// only: auto picks binned.
 package ctarget
 
 import (
