@@ -272,6 +272,9 @@ func (il *intLeaves) derive(g *gen) []float64 {
 			out[j] = z
 		}
 		out[j] = out[j]*(1+0x1p-20) + extra // the bound's own roundings, upward
+		if p.Transform == forest.Logistic || p.Transform == forest.LogisticEach || p.Transform == forest.Softmax {
+			out[j] = math.Min(out[j], 1) // both outputs lie in [0, 1]
+		}
 	}
 	return out
 }
