@@ -16,6 +16,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // intLeafGolden are golden cases the integer-leaf builds are verified on:
@@ -47,12 +48,7 @@ func intLeafVerify(t *testing.T, f *forest.Forest, rows *forest.Rows, r Runner, 
 
 func requireC(t *testing.T) {
 	t.Helper()
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		if requireEngines {
-			t.Fatalf("C compilers: %v, and SAWMILL_REQUIRE_ENGINES is set", err)
-		}
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 }
 
 // Integer-leaf C (int16 leaves binned in double and float, int32 leaves in
@@ -136,10 +132,7 @@ func TestCIntLeavesNoSoftFloatLabel(t *testing.T) {
 		require.NoError(t, err)
 		calls, err := FloatCalls(context.Background(), p, ctarget.Options{Name: cName, Layout: emit.Binned, IntLeaves: 16})
 		if errors.Is(err, ErrNoARM) {
-			if requireEngines {
-				t.Fatal("arm-none-eabi-gcc is not on PATH, and SAWMILL_REQUIRE_ENGINES is set")
-			}
-			t.Skip("skipped: arm-none-eabi-gcc is not on PATH")
+			testenv.Need(t, errors.New("arm-none-eabi-gcc is not on PATH (Debian package gcc-arm-none-eabi)"))
 		}
 		require.NoError(t, err)
 		t.Logf("%s: %v", name, calls)
@@ -150,20 +143,16 @@ func TestCIntLeavesNoSoftFloatLabel(t *testing.T) {
 	}
 }
 
-// Under QEMU on the Cortex-M0 (binned, no FPU) and the Cortex-M4 with
-// integer leaves, the golden rows score within the bound. Cost: two
-// cross builds and emulator runs per case, a few seconds.
+// Under QEMU on the Cortex-M0 and the RV32 core (binned, no FPU) and the
+// Cortex-M4 (table) with integer leaves, the golden rows score within the
+// bound. Cost: a cross build and an emulator run per board and case, about
+// 10 s.
 func TestBoardIntLeaves(t *testing.T) {
 	if testing.Short() {
 		t.Skip("board runs: without -short")
 	}
-	for _, variant := range []string{"m0", "m4"} {
-		if err := boardTools(findBoard(variant)); err != nil {
-			if requireEngines {
-				t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-			}
-			t.Skipf("skipped: %v", err)
-		}
+	for _, variant := range []string{"m0", "rv32", "m4"} {
+		testenv.Need(t, boardTools(findBoard(variant)))
 		r := boardRunner{Werror: true, Quick: true, IntLeaves: 16}
 		for _, name := range []string{"edge-logistic", "sklearn-breast-cancer"} {
 			f, rows := intLeafRows(t, name)
