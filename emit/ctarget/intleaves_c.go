@@ -62,7 +62,11 @@ func (g *gen) finishScaled(w *printer) {
 	w.line("int j;")
 	w.line("%s_predict_scaled(x, sums);", g.name)
 	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-	w.line("\tacc[j] = (%s)sums[j]; /* exact below 2^53 (2^24 in float) */", g.at)
+	if g.at == "float" {
+		w.line("\tacc[j] = (float)sums[j]; /* rounded once past 2^24: within the bound */")
+	} else {
+		w.line("\tacc[j] = (double)sums[j]; /* exact: |sums| < 2^53 */")
+	}
 	w.line("\tacc[j] = acc[j] / %s; /* a power of two: exact */", g.alit(il.scale))
 	w.line("}")
 	if p.Combine != forest.Average {
