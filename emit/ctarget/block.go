@@ -35,6 +35,13 @@ const BlockRows = 16
 // child words (a node number shifted left by one) fit 32 bits.
 const blockMaxNodes = 1 << 30
 
+// blockEarlyDepth is the deepest forest whose blocks take every step of
+// every tree: deeper, a block stops a tree once no lane moved, which cost
+// 15% more instructions a row on a 500-tree depth-6 XGBoost model (79,181
+// against 68,368) and saved 6% on a 100-tree fully grown scikit-learn forest
+// of depth 24 to 37 (64,508 against 68,822; callgrind, gcc 12 -O2, x86-64).
+const blockEarlyDepth = 12
+
 // blockFits says why p cannot be written in the block layout, or nil. The
 // layout handles numeric splits (<= and <, NaN to either side), float32
 // sums, any number of outputs and every transform; it leaves to the table
@@ -82,6 +89,9 @@ type blockForest struct {
 	rows  *leafRows // the distinct leaf vectors, several outputs
 	root  []int     // per tree: its root
 	steps []int     // per tree: its depth, the steps every row takes
+	// early: some tree is deeper than blockEarlyDepth, and a block stops
+	// walking a tree once no lane moved in a step.
+	early bool
 }
 
 // buildBlock numbers each tree's nodes breadth first, the two children of a
@@ -114,6 +124,7 @@ func (g *gen) buildBlock() *blockForest {
 			order = append(order, n.Left, n.Right)
 		}
 		b.steps = append(b.steps, deepest)
+		b.early = b.early || deepest > blockEarlyDepth
 		for _, ni := range order {
 			g.blockNode(b, ti, ni, num)
 		}
@@ -175,17 +186,36 @@ func (g *gen) blockTables(w *printer, b *blockForest) {
 		}
 		return g.lit(b.thr[i])
 	}
-	n := len(b.feat)
-	g.bvArray(w, "uint32_t", "bk_feat", "block walk: each node's feature (0 at a leaf)", n, func(i int) string { return fmt.Sprint(b.feat[i]) })
-	g.bvArray(w, g.ft, "bk_thr", "block walk: x goes right when x > this (+inf at a leaf)", n, thr)
-	g.bvArray(w, "uint32_t", "bk_kid", "block walk: left child << 1 | NaN goes right (a leaf: itself << 1)", n, func(i int) string { return fmt.Sprintf("%du", b.kid[i]) })
+	g.blockNodes(w, b, thr)
 	if b.rows == nil {
-		g.bvArray(w, g.at, "bk_val", "block walk: each node's leaf value (0 at a split)", n, func(i int) string { return g.alit(b.val[i]) })
+		g.bvArray(w, g.at, "bk_val", "block walk: each node's leaf value (0 at a split)", len(b.val), func(i int) string { return g.alit(b.val[i]) })
 	} else {
 		g.blockLeaves(w, b)
 	}
 	g.bvArray(w, "uint32_t", "bk_root", "block walk: each tree's root", len(b.root), func(i int) string { return fmt.Sprintf("%du", b.root[i]) })
 	g.bvArray(w, "uint32_t", "bk_steps", "block walk: each tree's depth", len(b.steps), func(i int) string { return fmt.Sprintf("%du", b.steps[i]) })
+}
+
+// blockNodes writes the nodes, one struct each (a threshold and two words:
+// 16 bytes in double, 12 in float, so that a node is one load of one cache
+// line), and a check of that size, which the AVX2 gathers count on.
+func (g *gen) blockNodes(w *printer, b *blockForest, thr func(int) string) {
+	size := map[string]int{"double": 16, "float": 12}[g.ft]
+	w.line("/* block walk: per node, x goes right when x > thr (+inf at a leaf); feat,")
+	w.line(" * the feature (0 at a leaf); kid, the left child << 1 | NaN goes right (a")
+	w.line(" * leaf: itself << 1). */")
+	w.line("struct %s_bk_node {", g.name)
+	w.line("	%s thr;", g.ft)
+	w.line("	uint32_t feat, kid;")
+	w.line("};")
+	w.line("typedef char %s_bk_node_is_%d_bytes[sizeof(struct %s_bk_node) == %d ? 1 : -1];", g.name, size, g.name, size)
+	w.line("static const struct %s_bk_node %s_bk_nodes[%d] = {", g.name, g.name, len(b.feat))
+	for i := range b.feat {
+		w.line("	{%s, %d, %du}%s", thr(i), b.feat[i], b.kid[i], comma(i, len(b.feat)))
+	}
+	w.line("};")
+	w.line("")
+	g.tables = append(g.tables, Table{Name: g.name + "_bk_nodes", What: "block walk: threshold, feature, child word", Len: len(b.feat), ElemBytes: size})
 }
 
 // blockLeaves writes the distinct leaf vectors and each node's row of them.
@@ -233,9 +263,13 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	w.line("\tnode[lane] = %s_bk_root[tree];", g.name)
 	w.line("}")
 	w.line("for (step = 0; step < steps; step++) {")
-	w.in()
-	w.line("%s_step(x, off, node);", g.name)
-	w.out()
+	if b.early {
+		w.line("\tif (%s_step(x, off, node) == 0u) {", g.name)
+		w.line("\t\tbreak; /* every lane is on a leaf */")
+		w.line("\t}")
+	} else {
+		w.line("\t(void)%s_step(x, off, node); /* shallow trees: every step, no test */", g.name)
+	}
 	w.line("}")
 	g.blockAdd(w, b)
 	w.out()
@@ -256,9 +290,15 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
 	w.line("{")
 	w.line("\tsize_t r;")
-	w.line("\tfor (r = 0; r < n; r += %s_BLOCK) {", g.upper)
-	w.line("\t\tconst size_t count = n - r < %s_BLOCK ? n - r : %s_BLOCK;", g.upper, g.upper)
-	w.line("\t\t%s_block(x + r * %s, count, outs + r * %s);", g.name, nf, no)
+	w.line("\tfor (r = 0; r + %s_BLOCK <= n; r += %s_BLOCK) {", g.upper, g.upper)
+	w.line("\t\t%s_block(x + r * %s, %s_BLOCK, outs + r * %s);", g.name, nf, g.upper, no)
+	w.line("\t}")
+	w.line("\tif (n - r >= %s_BLOCK / 4u) { /* a part block, its idle lanes on row 0 */", g.upper)
+	w.line("\t\t%s_block(x + r * %s, n - r, outs + r * %s);", g.name, nf, no)
+	w.line("\t\treturn;")
+	w.line("\t}")
+	w.line("\tfor (; r < n; r++) { /* under a quarter block: one by one, the same bits */")
+	w.line("\t\t%s_predict(x + r * %s, outs + r * %s);", g.name, nf, no)
 	w.line("\t}")
 	w.line("}")
 }
@@ -281,8 +321,15 @@ func (g *gen) blockAdd(w *printer, b *blockForest) {
 // __AVX2__, else a scalar loop; both compute the same node numbers.
 func (g *gen) blockSimd(w *printer) {
 	ft := g.ft
-	w.line("/* One step of every lane: node = child + (goes right). */")
-	w.line("static void %s_step(const %s *x, const uint32_t *off, uint32_t *node)", g.name, ft)
+	w.line("/* One step of every lane: node = child + (goes right); nonzero when a lane")
+	w.line(" * moved, so that a block whose lanes all reached leaves stops early. Kept out of line")
+	w.line(" * (GNU C), which leaves it the registers it needs: inlined into the block")
+	w.line(" * loop, gcc 12 -O2 spilled them to the stack (68,368 instructions a row")
+	w.line(" * against 105,966 on a 500-tree depth-6 model). */")
+	w.line("#if defined(__GNUC__)")
+	w.line("__attribute__((noinline))")
+	w.line("#endif")
+	w.line("static uint32_t %s_step(const %s *x, const uint32_t *off, uint32_t *node)", g.name, ft)
 	w.line("{")
 	w.line("#if defined(__AVX2__)")
 	w.in()
@@ -294,15 +341,18 @@ func (g *gen) blockSimd(w *printer) {
 	w.out()
 	w.line("#else")
 	w.in()
-	w.line("uint32_t l;")
+	w.line("uint32_t l, moved = 0u;")
 	w.line("for (l = 0; l < %s_BLOCK; l++) {", g.upper)
 	w.in()
-	w.line("const uint32_t i = node[l], k = %s_bk_kid[i];", g.name)
-	w.line("const %s v = x[off[l] + %s_bk_feat[i]];", ft, g.name)
-	w.line("const uint32_t right = (uint32_t)(v > %s_bk_thr[i]) | ((uint32_t)(v != v) & k);", g.name)
-	w.line("node[l] = (k >> 1) + (right & 1u);")
+	w.line("const struct %s_bk_node *const nd = &%s_bk_nodes[node[l]];", g.name, g.name)
+	w.line("const %s v = x[off[l] + nd->feat];", ft)
+	w.line("const uint32_t right = (uint32_t)(v > nd->thr) | ((uint32_t)(v != v) & nd->kid);")
+	w.line("const uint32_t next = (nd->kid >> 1) + (right & 1u);")
+	w.line("moved |= next ^ node[l];")
+	w.line("node[l] = next;")
 	w.out()
 	w.line("}")
+	w.line("return moved;")
 	w.out()
 	w.line("#endif")
 	w.line("}")
@@ -312,47 +362,58 @@ func (g *gen) blockSimd(w *printer) {
 // blockAVX2Double writes the AVX2 step for doubles: four lanes a vector,
 // node numbers and offsets widened to 64 bits for the gathers.
 func (g *gen) blockAVX2Double(w *printer) {
-	w.line("const __m256i one = _mm256_set1_epi64x(1);")
+	w.line("const __m256i one = _mm256_set1_epi64x(1), two = _mm256_set1_epi64x(2), three = _mm256_set1_epi64x(3);")
+	w.line("const int *const words = (const int *)(const void *)%s_bk_nodes;", g.name)
+	w.line("__m256i moved = _mm256_setzero_si256();")
 	w.line("uint32_t v;")
 	w.line("for (v = 0; v < %s_BLOCK; v += 4u) {", g.upper)
 	w.in()
 	w.line("const __m256i nd = _mm256_cvtepu32_epi64(_mm_loadu_si128((const __m128i *)(const void *)(node + v)));")
 	w.line("const __m256i of = _mm256_cvtepu32_epi64(_mm_loadu_si128((const __m128i *)(const void *)(off + v)));")
-	w.line("const __m256i k = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32((const int *)(const void *)%s_bk_kid, nd, 4));", g.name)
-	w.line("const __m256i f = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32((const int *)(const void *)%s_bk_feat, nd, 4));", g.name)
+	w.line("const __m256i n4 = _mm256_slli_epi64(nd, 2); /* the node's first int */")
+	w.line("const __m256i k = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32(words, _mm256_add_epi64(n4, three), 4));")
+	w.line("const __m256i f = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32(words, _mm256_add_epi64(n4, two), 4));")
 	w.line("const __m256d xv = _mm256_i64gather_pd(x, _mm256_add_epi64(of, f), 8);")
-	w.line("const __m256d th = _mm256_i64gather_pd(%s_bk_thr, nd, 8);", g.name)
+	w.line("const __m256d th = _mm256_i64gather_pd((const double *)(const void *)%s_bk_nodes, _mm256_slli_epi64(nd, 1), 8);", g.name)
 	w.line("const __m256i gt = _mm256_castpd_si256(_mm256_cmp_pd(xv, th, _CMP_GT_OQ));")
 	w.line("const __m256i un = _mm256_castpd_si256(_mm256_cmp_pd(xv, xv, _CMP_UNORD_Q));")
 	w.line("const __m256i nr = _mm256_sub_epi64(_mm256_setzero_si256(), _mm256_and_si256(k, one));")
 	w.line("const __m256i right = _mm256_or_si256(gt, _mm256_and_si256(un, nr));")
 	w.line("const __m256i next = _mm256_sub_epi64(_mm256_srli_epi64(k, 1), right);")
+	w.line("moved = _mm256_or_si256(moved, _mm256_xor_si256(next, nd));")
 	w.line("/* the low 32 bits of each 64-bit lane, in order */")
 	w.line("const __m256i packed = _mm256_permutevar8x32_epi32(next, _mm256_setr_epi32(0, 2, 4, 6, 0, 2, 4, 6));")
 	w.line("_mm_storeu_si128((__m128i *)(void *)(node + v), _mm256_castsi256_si128(packed));")
 	w.out()
 	w.line("}")
+	w.line("return (uint32_t)(_mm256_testz_si256(moved, moved) == 0);")
 }
 
 // blockAVX2Float writes the AVX2 step for floats: eight lanes a vector.
 func (g *gen) blockAVX2Float(w *printer) {
-	w.line("const __m256i one = _mm256_set1_epi32(1);")
+	w.line("const __m256i one = _mm256_set1_epi32(1), two = _mm256_set1_epi32(2);")
+	w.line("const int *const words = (const int *)(const void *)%s_bk_nodes;", g.name)
+	w.line("__m256i moved = _mm256_setzero_si256();")
 	w.line("uint32_t v;")
 	w.line("for (v = 0; v < %s_BLOCK; v += 8u) {", g.upper)
 	w.in()
 	w.line("const __m256i nd = _mm256_loadu_si256((const __m256i *)(const void *)(node + v));")
 	w.line("const __m256i of = _mm256_loadu_si256((const __m256i *)(const void *)(off + v));")
-	w.line("const __m256i k = _mm256_i32gather_epi32((const int *)(const void *)%s_bk_kid, nd, 4);", g.name)
-	w.line("const __m256i f = _mm256_i32gather_epi32((const int *)(const void *)%s_bk_feat, nd, 4);", g.name)
+	w.line("const __m256i n3 = _mm256_add_epi32(_mm256_slli_epi32(nd, 1), nd); /* the node's first word */")
+	w.line("const __m256i k = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, two), 4);")
+	w.line("const __m256i f = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, one), 4);")
 	w.line("const __m256 xv = _mm256_i32gather_ps(x, _mm256_add_epi32(of, f), 4);")
-	w.line("const __m256 th = _mm256_i32gather_ps(%s_bk_thr, nd, 4);", g.name)
+	w.line("const __m256 th = _mm256_i32gather_ps((const float *)(const void *)%s_bk_nodes, n3, 4);", g.name)
 	w.line("const __m256i gt = _mm256_castps_si256(_mm256_cmp_ps(xv, th, _CMP_GT_OQ));")
 	w.line("const __m256i un = _mm256_castps_si256(_mm256_cmp_ps(xv, xv, _CMP_UNORD_Q));")
 	w.line("const __m256i nr = _mm256_sub_epi32(_mm256_setzero_si256(), _mm256_and_si256(k, one));")
 	w.line("const __m256i right = _mm256_or_si256(gt, _mm256_and_si256(un, nr));")
-	w.line("_mm256_storeu_si256((__m256i *)(void *)(node + v), _mm256_sub_epi32(_mm256_srli_epi32(k, 1), right));")
+	w.line("const __m256i next = _mm256_sub_epi32(_mm256_srli_epi32(k, 1), right);")
+	w.line("moved = _mm256_or_si256(moved, _mm256_xor_si256(next, nd));")
+	w.line("_mm256_storeu_si256((__m256i *)(void *)(node + v), next);")
 	w.out()
 	w.line("}")
+	w.line("return (uint32_t)(_mm256_testz_si256(moved, moved) == 0);")
 }
 
 // blockResolve is Resolve's answer when the block layout is asked for.

@@ -40,9 +40,7 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_thr: distinct thresholds, 16 x 4 = 64 bytes
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
- *   pumpmodel_bk_feat: block walk: each node's feature (0 at a leaf), 33 x 4 = 132 bytes
- *   pumpmodel_bk_thr: block walk: x goes right when x > this (+inf at a leaf), 33 x 4 = 132 bytes
- *   pumpmodel_bk_kid: block walk: left child << 1 | NaN goes right (a leaf: itself << 1), 33 x 4 = 132 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 33 x 12 = 396 bytes
  *   pumpmodel_bk_leaf: block walk: distinct leaf vectors, 32 x 4 = 128 bytes
  *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 4 = 132 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes

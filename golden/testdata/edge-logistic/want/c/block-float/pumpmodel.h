@@ -25,9 +25,7 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 4 = 28 bytes
- *   pumpmodel_bk_feat: block walk: each node's feature (0 at a leaf), 11 x 4 = 44 bytes
- *   pumpmodel_bk_thr: block walk: x goes right when x > this (+inf at a leaf), 11 x 4 = 44 bytes
- *   pumpmodel_bk_kid: block walk: left child << 1 | NaN goes right (a leaf: itself << 1), 11 x 4 = 44 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 11 x 12 = 132 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 11 x 4 = 44 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 3 x 4 = 12 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes

@@ -22,9 +22,7 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 2 x 4 = 8 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 4 = 16 bytes
- *   pumpmodel_bk_feat: block walk: each node's feature (0 at a leaf), 8 x 4 = 32 bytes
- *   pumpmodel_bk_thr: block walk: x goes right when x > this (+inf at a leaf), 8 x 4 = 32 bytes
- *   pumpmodel_bk_kid: block walk: left child << 1 | NaN goes right (a leaf: itself << 1), 8 x 4 = 32 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 8 x 12 = 96 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 8 x 4 = 32 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 2 x 4 = 8 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 2 x 4 = 8 bytes

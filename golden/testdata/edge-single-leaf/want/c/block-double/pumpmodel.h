@@ -21,9 +21,7 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_thr: distinct thresholds, 1 x 4 = 4 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
- *   pumpmodel_bk_feat: block walk: each node's feature (0 at a leaf), 1 x 4 = 4 bytes
- *   pumpmodel_bk_thr: block walk: x goes right when x > this (+inf at a leaf), 1 x 8 = 8 bytes
- *   pumpmodel_bk_kid: block walk: left child << 1 | NaN goes right (a leaf: itself << 1), 1 x 4 = 4 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 1 x 16 = 16 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 1 x 8 = 8 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
