@@ -286,6 +286,13 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	w.line("}")
 	w.out()
 	w.line("}")
+	g.blockLoop(w)
+}
+
+// blockLoop writes NAME_predict_batch: whole blocks, then the rest as one
+// part block, or through NAME_predict when under a quarter block.
+func (g *gen) blockLoop(w *printer) {
+	ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
 	w.line("")
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
 	w.line("{")
