@@ -51,7 +51,7 @@ const cFullMatrixNodes = 3000
 
 // cBuild is one toolchain configuration.
 type cBuild struct {
-	cc, std, opt string
+	cc, std, opt string // opt: the optimisation level and any target flags, "O2 -mavx2"
 	sanitize     bool
 }
 
@@ -282,7 +282,7 @@ func (r cRunner) score(ctx context.Context, p *compile.Program, o ctarget.Option
 			cJobs <- struct{}{}
 			defer func() { <-cJobs }()
 			args := append([]string{"-std=" + j.b.std}, r.warnings()...)
-			args = append(args, "-"+j.b.opt)
+			args = append(args, strings.Fields("-"+j.b.opt)...) // opt may carry a target flag: "O2 -mavx2"
 			if j.b.sanitize {
 				args = append(args, "-g", "-fsanitize=address,undefined", "-fno-sanitize-recover=all", "-fno-omit-frame-pointer")
 			}

@@ -36,20 +36,26 @@ type result struct {
 }
 
 // buildSides emits and builds the C layouts c asks for (auto resolved, each
-// layout once) and the Go package auto chooses.
+// layout once) and the Go package auto chooses. A layout written
+// LAYOUT+avx2 is built with -mavx2 as well (the block layout's AVX2 lanes).
 func buildSides(c config, p *compile.Program, dir string) ([]*side, error) {
 	var sides []*side
 	seen := map[string]bool{}
 	for _, l := range c.cLayouts {
+		l, avx2 := strings.CutSuffix(l, "+avx2")
 		layout, _, err := ctarget.Resolve(p, ctarget.Options{Layout: l})
 		if err != nil {
 			return nil, err
+		}
+		var flags []string
+		if avx2 {
+			layout, flags = layout+"+avx2", []string{"-mavx2"}
 		}
 		if seen[layout] {
 			continue
 		}
 		seen[layout] = true
-		s, err := buildC(p, layout, dir)
+		s, err := buildC(p, layout, dir, flags...)
 		if err != nil {
 			return nil, err
 		}
@@ -63,13 +69,14 @@ func buildSides(c config, p *compile.Program, dir string) ([]*side, error) {
 }
 
 // buildC writes model.c, model_threads.c and the driver into a folder of
-// their own and builds them with gcc -O2, as a user would.
-func buildC(p *compile.Program, layout, dir string) (*side, error) {
+// their own and builds them with gcc -O2, as a user would, and any flags
+// (layout's "+avx2" suffix is a name only).
+func buildC(p *compile.Program, layout, dir string, flags ...string) (*side, error) {
 	sub := filepath.Join(dir, "c-"+layout)
 	if err := os.Mkdir(sub, 0o755); err != nil {
 		return nil, err
 	}
-	files, err := ctarget.Emit(p, ctarget.Options{Layout: layout, Threads: true})
+	files, err := ctarget.Emit(p, ctarget.Options{Layout: strings.TrimSuffix(layout, "+avx2"), Threads: true})
 	if err != nil {
 		return nil, err
 	}
@@ -79,7 +86,8 @@ func buildC(p *compile.Program, layout, dir string) (*side, error) {
 			return nil, err
 		}
 	}
-	cmd := exec.Command("gcc", "-std=gnu99", "-O2", "-g", "-o", "bench", "bench.c", "model.c", "model_threads.c", "-pthread", "-lm")
+	args := append([]string{"-std=gnu99", "-O2", "-g"}, flags...)
+	cmd := exec.Command("gcc", append(args, "-o", "bench", "bench.c", "model.c", "model_threads.c", "-pthread", "-lm")...)
 	cmd.Dir = sub
 	if out, err := cmd.CombinedOutput(); err != nil {
 		return nil, fmt.Errorf("gcc: %v\n%s", err, out)

@@ -49,6 +49,14 @@
 //     model (set splits, missing bands, trees of one output among several,
 //     bigger trees) the table layout is written instead, the header saying
 //     why;
+//   - block: the table layout's NAME_predict, and a NAME_predict_batch that
+//     walks blocks of rows in lock-step without branches on the data
+//     (Asadi, Lin & de Vries, IEEE TKDE 2014; see Block), with AVX2 lanes
+//     under __AVX2__ and a scalar path giving the same bits; asked for only
+//     (see docs/batch-layouts.md for why auto does not choose it), and where
+//     blockFits refuses the model (set splits, missing bands, zero as
+//     missing, more than one output) the table layout is written instead,
+//     the header saying why;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
@@ -155,6 +163,9 @@ func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 			return emit.Table, fmt.Sprintf("bitvector asked for, but %v: the table layout instead", err), nil
 		}
 		return Bitvector, "asked for", nil
+	case Block:
+		l, why := blockResolve(p, o)
+		return l, why, nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
 		for i := range p.Trees {
@@ -191,6 +202,10 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		}
 	case Bitvector:
 		g.bitvector(&body)
+	case Block:
+		if err := g.block(&body); err != nil {
+			return nil, err
+		}
 	default:
 		panic("BUG: ctarget: layout " + g.layout)
 	}
@@ -694,9 +709,13 @@ func (g *gen) header() []byte {
 	w.line("")
 	w.line("/* Scores n rows, x row after row (n * %s_NUM_FEATURES values), into out", u)
 	w.line(" * (n * %s_NUM_OUTPUTS values): each row exactly as %s_predict scores it.", u, g.name)
-	if g.layout == emit.Table {
+	switch g.layout {
+	case emit.Table:
 		w.line(" * Tree by tree over all rows, so each tree's words stay in cache. */")
-	} else {
+	case Block:
+		w.line(" * Blocks of %d rows walk each tree in lock-step, without branches on the", BlockRows)
+		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
+	default:
 		w.line(" * Row by row. */")
 	}
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *out);", g.name, ft, ft)
@@ -850,8 +869,13 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || g.layout == Block || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
+	}
+	if g.layout == Block {
+		w.line("#if defined(__AVX2__)")
+		w.line("#include <immintrin.h>")
+		w.line("#endif")
 	}
 	if g.layout == emit.Binned {
 		w.line("#include <string.h>")

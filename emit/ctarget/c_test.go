@@ -226,7 +226,7 @@ func TestResolveAuto(t *testing.T) {
 	require.NoError(t, err)
 	sizes, err := Sizes(p, Options{})
 	require.NoError(t, err)
-	require.Len(t, sizes, 3) // no bitvector row: 16,385 trees, more than BitvectorMaxTrees
+	require.Len(t, sizes, 4) // no bitvector row: 16,385 trees, more than BitvectorMaxTrees; a block row
 	want := emit.Table
 	if sizes[2].TableBytes < sizes[1].TableBytes {
 		want = emit.Binned

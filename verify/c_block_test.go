@@ -1,0 +1,88 @@
+package verify
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+)
+
+// blockCases are golden cases the block layout writes (none falls back):
+// NaN to both sides, two outputs averaged (a fully grown scikit-learn
+// forest), float32 sums, softmax, a float32 model's midpoints, a trained
+// regression.
+var blockCases = []string{"edge-nan-routing", "sklearn-breast-cancer", "v2-accumulate32-sum",
+	"edge-softmax", "edge-float32", "trained-regression", "v2-multi-output-regression"}
+
+// TestCBlockLanes builds the block layout with and without -mavx2 (the AVX2
+// gathers and the scalar step) and requires every build to print the same
+// bytes (score checks it) and those to be the interpreter's, in double and
+// float, NAME_predict_batch being checked against NAME_predict by the
+// driver. Cost: 7 cases x 2 variants x 3 builds, about 20 s of gcc/clang.
+func TestCBlockLanes(t *testing.T) {
+	if err := cTools(true); err != nil {
+		t.Skipf("C compilers: %v", err)
+	}
+	if err := hasAVX2(); err != nil {
+		if requireEngines && runtime.GOARCH == "amd64" {
+			t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
+		}
+		t.Skipf("only the scalar path can run here: %v", err)
+	}
+	cases, err := goldencase.Cases(filepath.Join("..", "golden", "testdata"))
+	require.NoError(t, err)
+	byName := map[string]*goldencase.Case{}
+	for _, c := range cases {
+		byName[c.Name] = c
+	}
+	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", "O2 -mavx2", false}, {"clang", "c11", "O1 -mavx2", false}}
+	r := testCRunner()
+	for _, name := range blockCases {
+		c := byName[name]
+		require.NotNil(t, c, name)
+		for _, variant := range r.Variants() {
+			t.Run(name+"/"+variant, func(t *testing.T) {
+				t.Parallel()
+				p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
+				require.NoError(t, err)
+				if variant == "float" && ctarget.FitsFloat(p) != nil {
+					t.Skip("float C declines this model (its error bound); the double run covers it")
+				}
+				layout, why, err := ctarget.Resolve(p, r.options(ctarget.Block, variant))
+				require.NoError(t, err)
+				require.Equal(t, ctarget.Block, layout, why)
+				res, err := r.score(context.Background(), p, r.options(ctarget.Block, variant), c.Rows, t.TempDir(), matrix, false)
+				require.NoError(t, err)
+				want, wantCls := c.ReferenceFor(r, variant)
+				exact, bound := r.Tolerance(variant, p)
+				m := Compare(want, res.Outputs, wantCls, res.Classes, c.Model.NumOutputs(), exact, bound)
+				require.True(t, m.OK(), "%s", m)
+			})
+		}
+	}
+}
+
+// hasAVX2 says why this machine cannot run AVX2 code, or nil: the CPU's
+// flags in /proc/cpuinfo (Linux).
+func hasAVX2() error {
+	if runtime.GOARCH != "amd64" {
+		return fmt.Errorf("not an x86-64 machine (%s)", runtime.GOARCH)
+	}
+	b, err := os.ReadFile("/proc/cpuinfo")
+	if err != nil {
+		return err
+	}
+	if !strings.Contains(string(b), " avx2") {
+		return fmt.Errorf("the CPU has no AVX2 (/proc/cpuinfo)")
+	}
+	return nil
+}
