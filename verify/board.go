@@ -41,6 +41,8 @@ type boardRunner struct {
 	Werror bool
 	// Quick runs each board in one layout (LayoutsFor), to keep CI short.
 	Quick bool
+	// ConstantTime emits with ctarget.Options.ConstantTime.
+	ConstantTime bool
 }
 
 // boardQuickLayouts is the layout each board runs in when Quick: the
@@ -155,8 +157,8 @@ func (boardRunner) Tolerance(variant string, p *compile.Program) (bool, float64)
 	return cRunner{}.Tolerance(map[bool]string{true: "float", false: "double"}[findBoard(variant).float], p)
 }
 
-func (boardRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float}
+func (r boardRunner) options(layout, variant string) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float, ConstantTime: r.ConstantTime}
 }
 
 // boardTools reports the first of b's tools that is not on PATH, or a

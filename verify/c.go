@@ -38,6 +38,8 @@ type cRunner struct {
 	Full bool
 	// Werror and AllCompilers are Config's.
 	Werror, AllCompilers bool
+	// ConstantTime emits with ctarget.Options.ConstantTime.
+	ConstantTime bool
 }
 
 // cName is the --name used in tests; not the default, so that a missed
@@ -129,8 +131,8 @@ func (cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
 	return b == 0, b
 }
 
-func (cRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float"}
+func (r cRunner) options(layout, variant string) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float", ConstantTime: r.ConstantTime}
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {

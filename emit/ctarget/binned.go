@@ -333,6 +333,10 @@ func (g *gen) binned(w *printer) error {
 	t.treeStarts()
 	bl.writeCuts(g, w)
 	t.outputsAndLeaves()
+	if g.o.ConstantTime {
+		bl.writeConstantTime(g, t, w)
+		return nil
+	}
 	bl.writeKey(g, w)
 	bl.writeBins(g, w)
 	bl.writePredict(g, t, w)

@@ -90,6 +90,10 @@ type Options struct {
 	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
 	// files of their own that a build without threads leaves out.
 	Threads bool
+	// ConstantTime walks every prediction the same path: the binned layout
+	// with fixed-step searches and walks and selects in place of branches
+	// (consttime.go). Other layouts are refused.
+	ConstantTime bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -121,6 +125,9 @@ func Target() emit.Target {
 
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
+	if o.ConstantTime {
+		return resolveConstantTime(p, o)
+	}
 	switch o.Layout {
 	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
@@ -214,7 +221,9 @@ type gen struct {
 	tableMode int
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.
-	batch    func(w *printer)
+	batch func(w *printer)
+	// ct holds the constant-time counts the header states, or nil.
+	ct       *ctFacts
 	featMac  []string // NAME_F_... macro per feature
 	classMac []string // NAME_C_... macro per class
 }
@@ -586,7 +595,7 @@ func (g *gen) header() []byte {
 		total += t.Bytes()
 	}
 	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
-	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
+	g.timeFacts(&w)
 	w.line(" *")
 	switch {
 	case g.f32:
