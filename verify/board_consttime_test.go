@@ -12,6 +12,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
 )
 
 // ctCountCases are the golden models the constant-time count runs on: a
@@ -78,6 +79,43 @@ func TestCountConstantTime(t *testing.T) {
 			if board == "m4-float" && p.Transform == forest.NoTransform {
 				require.Equal(t, ct.Least, ct.Worst, "%s: with FPU sums the whole prediction is constant", name)
 			}
+		}
+	}
+}
+
+// TestBoardConstantTime runs the constant-time C of a few golden cases on
+// the bare-metal boards (the Cortex-M4 double and float, the Cortex-M0 and
+// RV32) and compares every golden row bit for bit with the interpreter
+// (within the exp bound where a transform calls the C library's exp), with
+// the self-test linked in as the board runner always does. About 30 s.
+func TestBoardConstantTime(t *testing.T) {
+	if testing.Short() {
+		t.Skip("board runs: without -short")
+	}
+	r := boardRunner{Werror: true, ConstantTime: true}
+	for _, name := range append([]string{"edge-logistic", "sklearn-wine", "v2-transform-scale"}, ctCountCases...) {
+		c, err := goldencase.LoadCase(filepath.Join(goldenCases, name), name)
+		require.NoError(t, err)
+		for _, board := range []string{"m4", "m4-float", "m0", "rv32"} {
+			t.Run(name+"/"+board, func(t *testing.T) {
+				if err := boardTools(findBoard(board)); err != nil {
+					if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
+						t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
+					}
+					t.Skipf("skipped: %v", err)
+				}
+				p, _, err := compile.Compile(c.Model, r.CompileOptions(board))
+				require.NoError(t, err)
+				res, err := r.Score(context.Background(), p, emit.Binned, board, c.Rows, t.TempDir())
+				if findBoard(board).float && errors.Is(err, ErrDeclined) {
+					t.Skipf("float C declines: %v", err)
+				}
+				require.NoError(t, err)
+				want, wantCls := c.ReferenceFor(r, board)
+				exact, bound := r.Tolerance(board, p)
+				m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound)
+				require.True(t, m.OK(), "%s", m)
+			})
 		}
 	}
 }

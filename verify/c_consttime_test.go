@@ -117,7 +117,7 @@ func TestCConstantTimeRefuses(t *testing.T) {
 	p, _, err := compile.Compile(c.Model, compile.Options{})
 	require.NoError(t, err)
 	_, err = ctarget.Emit(p, ctarget.Options{ConstantTime: true})
-	require.ErrorContains(t, err, "constant time")
+	require.ErrorContains(t, err, "constant-time")
 	require.ErrorContains(t, err, "set split")
 	for _, l := range []string{emit.Table, emit.Nested, ctarget.Bitvector} {
 		_, _, err := ctarget.Resolve(p, ctarget.Options{ConstantTime: true, Layout: l})

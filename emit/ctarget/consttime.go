@@ -1,6 +1,7 @@
 package ctarget
 
 import (
+	"errors"
 	"fmt"
 	"math/bits"
 
@@ -50,8 +51,12 @@ func resolveConstantTime(p *compile.Program, o Options) (string, string, error) 
 	default:
 		return "", "", fmt.Errorf("constant time: layout %s walks a tree until its leaf, so its time depends on the input\nhint: use --layout binned (or auto) with --constant-time", o.Layout)
 	}
-	if err := binnable(p); err != nil {
-		return "", "", fmt.Errorf("constant time: %w", err)
+	var u *emit.Unsupported
+	if err := binnable(p); errors.As(err, &u) {
+		c := *u
+		c.Construct += " (which the constant-time walk is built on)"
+		c.Hint = "leave out --constant-time: the table layout tests set splits, in a time that depends on the input"
+		return "", "", &c
 	}
 	return emit.Binned, "constant time: every prediction walks each tree its depth in steps", nil
 }
