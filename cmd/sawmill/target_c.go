@@ -3,6 +3,8 @@ package main
 import (
 	"fmt"
 
+	"github.com/spf13/pflag"
+
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
@@ -13,7 +15,7 @@ import (
 // NAME_threads.h and NAME_threads.c, and with --selftest NAME_selftest.c
 // beside them.
 func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads}
+	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads, ConstantTime: fl.constTime}
 	files, err := ctarget.Emit(p, o)
 	if err != nil || !fl.selftest {
 		return files, err
@@ -23,4 +25,24 @@ func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
 		return nil, fmt.Errorf("selftest: %v", err)
 	}
 	return append(files, st), nil
+}
+
+// addConstantTimeFlag adds --constant-time.
+func addConstantTimeFlag(f *pflag.FlagSet, fl *compileFlags) {
+	f.BoolVar(&fl.constTime, "constant-time", false, "C: every prediction executes the same instructions (the binned layout, each tree walked its depth, no branch on the input), for control loops that need fixed timing; about 2-3 times the binned layout's instructions")
+}
+
+// constantTimeFlags refuses --constant-time with a layout other than
+// binned or auto, and with a budget (which chooses among layouts).
+func constantTimeFlags(fl *compileFlags) error {
+	if !fl.constTime {
+		return nil
+	}
+	if fl.layout != emit.Auto && fl.layout != emit.Binned {
+		return usageError{fmt.Errorf("sawmill compile: --constant-time writes the binned layout, not --layout %s: the other layouts stop each walk at its leaf\nhint: leave out --layout, or give --layout binned", fl.layout)}
+	}
+	if fl.budget.set() {
+		return usageError{fmt.Errorf("sawmill compile: --constant-time and a budget: the budget chooses among layouts, constant time has one (binned)\nhint: leave out the budget and check the size with 'sawmill inspect --c-sizes'")}
+	}
+	return nil
 }
