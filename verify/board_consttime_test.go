@@ -18,9 +18,10 @@ import (
 // ctCountCases are the golden models the constant-time count runs on: a
 // regression forest, scikit-learn's Breast Cancer forest (a float32 model,
 // whose double build rounds inputs on their bits), NaN inputs routed both
-// ways, and a float32 model with a missing value, each on its first
+// ways, a float32 model with a missing value, and a logistic transform
+// (its sign chosen by a mask, exp in the C library), each on its first
 // ctCountRows rows.
-var ctCountCases = []string{"trained-regression", "sklearn-breast-cancer", "edge-nan-routing", "v2-missing-value-999-float32"}
+var ctCountCases = []string{"trained-regression", "sklearn-breast-cancer", "edge-nan-routing", "v2-missing-value-999-float32", "edge-logistic"}
 
 // ctCountRows is how many golden rows each count runs (QEMU's execution
 // log grows with every instruction).

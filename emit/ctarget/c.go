@@ -958,6 +958,8 @@ func (g *gen) finishBody(w *printer) {
 		if g.f32 {
 			w.line("const float d = %s + expf(-acc[j]);", one)
 			w.line("acc[j] = %s / d;", one)
+		} else if g.o.ConstantTime {
+			g.ctLogistic(w, exp, one)
 		} else {
 			w.line("if (acc[j] >= %s) {", zero)
 			w.line("	acc[j] = %s / (%s + %s(-acc[j]));", one, one, exp)

@@ -396,3 +396,26 @@ func (bl *binnedLayout) writeCTPredict(g *gen, t *tableWriter, w *printer) {
 	w.out()
 	w.line("}")
 }
+
+// ctLogistic writes the logistic of acc[j] without a test of its sign:
+// e = exp(-|z|) is exp(-z) for z >= 0 and exp(z) for z < 0, and the
+// numerator, 1 or e, is chosen by the sign bit with a mask, so the
+// operations are the ordinary form's, bit for bit (-0 gives 1/2 either
+// way).
+func (g *gen) ctLogistic(w *printer, exp, one string) {
+	at, ut, abs := g.at, "uint64_t", "fabs"
+	if at == "float" {
+		ut, abs = "uint32_t", "fabsf"
+	}
+	w.line("const %s e = %s(-%s(acc[j]));", at, exp, abs)
+	w.line("const %s d = %s + e;", at, one)
+	w.line("%s num = %s;", at, one)
+	w.line("%s nb, eb, m;", ut)
+	w.line("memcpy(&m, &acc[j], sizeof m);")
+	w.line("memcpy(&nb, &num, sizeof nb);")
+	w.line("memcpy(&eb, &e, sizeof eb);")
+	w.line("m = (%s)0u - (m >> %d); /* all ones when z is negative */", ut, map[string]int{"uint64_t": 63, "uint32_t": 31}[ut])
+	w.line("nb ^= (nb ^ eb) & m;")
+	w.line("memcpy(&num, &nb, sizeof num);")
+	w.line("acc[j] = num / d;")
+}
