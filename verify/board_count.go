@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
@@ -47,16 +48,21 @@ type OwnInstructions struct {
 // prediction's instructions (QEMU 7.2 documentation, "-d" and
 // "-singlestep"). It is ErrSkip when the cross compiler or QEMU is absent.
 func CountInstructions(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows) (*Instructions, error) {
-	b := findBoard(variant)
-	if b.linux {
-		return nil, fmt.Errorf("BUG: verify: CountInstructions runs bare-metal boards, not %s", variant)
-	}
 	return countInstructions(ctx, p, boardRunner{}.options(layout, variant), variant, rows)
+}
+
+// CountConstantTime is CountInstructions for the constant-time C
+// (ctarget.Options.ConstantTime, the binned layout).
+func CountConstantTime(ctx context.Context, p *compile.Program, variant string, rows *forest.Rows) (*Instructions, error) {
+	return countInstructions(ctx, p, boardRunner{ConstantTime: true}.options(emit.Binned, variant), variant, rows)
 }
 
 // countInstructions is CountInstructions for the C o describes.
 func countInstructions(ctx context.Context, p *compile.Program, o ctarget.Options, variant string, rows *forest.Rows) (*Instructions, error) {
 	b := findBoard(variant)
+	if b.linux {
+		return nil, fmt.Errorf("BUG: verify: CountInstructions runs bare-metal boards, not %s", variant)
+	}
 	if err := boardTools(b); err != nil {
 		return nil, err
 	}

@@ -52,6 +52,17 @@
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
+//
+// Options.ConstantTime writes the binned layout so that every prediction
+// executes the same instructions (consttime.go): each feature's bin found
+// in a fixed number of steps, each tree walked exactly its depth (a leaf
+// reached early steps to itself), NaN, the bands and the rounding of a
+// double to a float computed with masks, the logistic's sign chosen by a
+// mask. The leaf sums and exp take the FPU's or the run-time library's
+// time. Other layouts and set splits are refused. The header of every
+// layout states the most splits a prediction tests (WorstSplits), in
+// constant time the exact count, and names sawmill inspect --c-sizes for
+// flash, RAM, stack and instructions, which need a compiler.
 package ctarget
 
 import (

@@ -419,3 +419,17 @@ func (g *gen) ctLogistic(w *printer, exp, one string) {
 	w.line("memcpy(&num, &nb, sizeof num);")
 	w.line("acc[j] = num / d;")
 }
+
+// constantTimeSizes is Sizes under Options.ConstantTime: the binned
+// layout's row, its tables those of the constant-time walk (the depths
+// added), or the error that refuses the model.
+func constantTimeSizes(p *compile.Program, o Options) ([]Size, error) {
+	if _, _, err := resolveConstantTime(p, o); err != nil {
+		return nil, err
+	}
+	s, err := sizeOf(p, o, emit.Binned)
+	if err != nil {
+		return nil, err
+	}
+	return []Size{s}, nil
+}
