@@ -129,32 +129,27 @@ func (bl *binnedLayout) writeCTHelpers(g *gen, w *printer) {
 	wide, rounds := bl.inBits(g) == 64, bl.round != roundNone
 	w.line("/* Comparisons without a branch: a < b (unsigned) is the borrow of a - b,")
 	w.line(" * (~a & b) | ((~a | b) & (a - b)) in the top bit (Hacker's Delight, 2-12). */")
-	w.line("static uint32_t %s_lt32(uint32_t a, uint32_t b)", n)
-	w.line("{")
-	w.line("\treturn ((~a & b) | ((~a | b) & (a - b))) >> 31;")
-	w.line("}")
-	w.line("")
-	if wide {
-		w.line("static uint32_t %s_lt64(uint64_t a, uint64_t b)", n)
+	for _, width := range []int{32, 64} {
+		if width == 64 && !wide {
+			continue
+		}
+		ut := fmt.Sprintf("uint%d_t", width)
+		w.line("static uint32_t %s_lt%d(%s a, %s b)", n, width, ut, ut)
 		w.line("{")
-		w.line("\treturn (uint32_t)(((~a & b) | ((~a | b) & (a - b))) >> 63);")
+		w.line("\treturn (uint32_t)(((~a & b) | ((~a | b) & (a - b))) >> %d);", width-1)
 		w.line("}")
 		w.line("")
 	}
 	w.line("/* 1 when a == b: a ^ b is 0 exactly when neither it nor its negation has the top bit. */")
-	if !wide || rounds {
-		w.line("static uint32_t %s_eq32(uint32_t a, uint32_t b)", n)
+	for _, width := range []int{32, 64} {
+		if width == 32 && wide && !rounds || width == 64 && !wide {
+			continue
+		}
+		ut := fmt.Sprintf("uint%d_t", width)
+		w.line("static uint32_t %s_eq%d(%s a, %s b)", n, width, ut, ut)
 		w.line("{")
-		w.line("\tconst uint32_t d = a ^ b;")
-		w.line("\treturn ((d | (0u - d)) >> 31) ^ 1u;")
-		w.line("}")
-		w.line("")
-	}
-	if wide {
-		w.line("static uint32_t %s_eq64(uint64_t a, uint64_t b)", n)
-		w.line("{")
-		w.line("\tconst uint64_t d = a ^ b;")
-		w.line("\treturn (uint32_t)((d | (0u - d)) >> 63) ^ 1u;")
+		w.line("\tconst %s d = a ^ b;", ut)
+		w.line("\treturn (uint32_t)((d | (0u - d)) >> %d) ^ 1u;", width-1)
 		w.line("}")
 		w.line("")
 	}
@@ -349,30 +344,14 @@ func (bl *binnedLayout) writeCTBins(g *gen, w *printer) {
 // the leaves added in tree order.
 func (bl *binnedLayout) writeCTPredict(g *gen, t *tableWriter, w *printer) {
 	n := g.name
-	wt := "uint32_t"
-	if bl.wordBits() > 32 {
-		wt = "uint64_t"
-	}
-	locals := []string{fmt.Sprintf("%s bin[%s_NUM_FEATURES];", bl.binType(), g.upper), "uint32_t t;"}
-	args := ""
-	if bl.hasZM {
-		locals = append(locals, fmt.Sprintf("uint8_t zero[%s_NUM_FEATURES];", g.upper))
-		args = ", zero"
-	}
-	g.predictStart(w, locals...)
-	w.line("%s_bins(x, bin%s);", n, args)
-	w.line("for (t = 0; t < %du; t++) {", len(g.p.Trees))
-	w.in()
+	wt := bl.predictOpen(g, w)
 	w.line("uint32_t i = %s_start[t];", n)
 	w.line("uint32_t at0 = i + t; /* leaves before the tree: one more than splits, per tree */")
 	w.line("uint32_t live = 1u; /* 0 once a leaf is reached: the steps left change nothing */")
 	w.line("uint32_t s;")
 	w.line("for (s = %s_depth[t]; s != 0u; s--) {", n)
 	w.in()
-	w.line("const %s w = %s;", wt, bl.wordExpr(g))
-	w.line("const uint32_t b = bin[%s];", binField(0, bl.fBits))
-	w.line("const uint32_t k = %s;", binField(bl.kShift(), bl.kBits))
-	w.line("const uint32_t p1 = %s; /* splits in the left subtree */", binField(bl.aShift(), bl.aBits))
+	bl.stepFields(g, w, wt)
 	ml := "1u"
 	if bl.hasML {
 		w.line("const uint32_t ml = %s;", binField(bl.mlShift(), 1))
