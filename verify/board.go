@@ -44,6 +44,8 @@ type boardRunner struct {
 	Quick bool
 	// IntLeaves is Config's: integer leaves, held within their bound.
 	IntLeaves int
+	// ConstantTime emits with ctarget.Options.ConstantTime.
+	ConstantTime bool
 }
 
 // boardQuickLayouts is the layout each board runs in when Quick: the
@@ -163,7 +165,7 @@ func (r boardRunner) Tolerance(variant string, p *compile.Program) (bool, float6
 }
 
 func (r boardRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float, IntLeaves: r.IntLeaves}
+	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float, IntLeaves: r.IntLeaves, ConstantTime: r.ConstantTime}
 }
 
 // boardTools reports the first of b's tools that is not on PATH, or a

@@ -40,6 +40,8 @@ type cRunner struct {
 	Werror, AllCompilers bool
 	// IntLeaves is Config's: integer leaves, held within their bound.
 	IntLeaves int
+	// ConstantTime emits with ctarget.Options.ConstantTime.
+	ConstantTime bool
 }
 
 // cName is the --name used in tests; not the default, so that a missed
@@ -135,7 +137,7 @@ func (r cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
 }
 
 func (r cRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float", IntLeaves: r.IntLeaves}
+	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float", IntLeaves: r.IntLeaves, ConstantTime: r.ConstantTime}
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {

@@ -85,6 +85,7 @@ type compileFlags struct {
 	columns   []string // SQL: feature=column pairs
 	selftest  bool     // SQL and C: also write the self-test
 	threads   bool     // C: also write NAME_threads.h and NAME_threads.c
+	constTime bool     // C: the constant-time walk
 	model     *forest.Forest
 	tables    string
 	budget    budgetFlags
@@ -138,6 +139,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	fl.budget.add(f)
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
 	f.IntVar(&fl.intLeaves, "int-leaves", 0, "C: lossy: store leaves as scaled int16 or int32 (16 or 32) summed in integers, with NAME_predict_scaled; prints and writes in NAME.h the derived error bound per output")
+	addConstantTimeFlag(f, fl)
 	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	return c
 }
@@ -178,6 +180,9 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	}
 	if fl.verbose {
 		printPassStats(c.ErrOrStderr(), stats)
+	}
+	if err := constantTimeFlags(fl); err != nil {
+		return err
 	}
 	if fl.budget.set() {
 		if err := fitBudget(c.Context(), c.OutOrStdout(), p, fl); err != nil {

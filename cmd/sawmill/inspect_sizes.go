@@ -8,6 +8,7 @@ import (
 	"text/tabwriter"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/verify"
@@ -52,38 +53,84 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 			kind, boards = "float", []string{"m4-float"}
 		}
 		if o.IntLeaves != 0 {
-			kind = fmt.Sprintf("double int%d", o.IntLeaves)
+			kind = fmt.Sprintf("%s int%d", kind, o.IntLeaves)
+		}
+		if o.IntLeaves == 0 {
+			ct, err := constantTimeSize(ctx, p, o)
+			var u *emit.Unsupported
+			switch {
+			case errors.As(err, &u):
+				notes = appendOnce(notes, fmt.Sprintf("(no %s row: %s)", ctLayout, u.Where+": "+u.Construct))
+			case err != nil:
+				return err
+			}
+			sizes = append(sizes, ct...)
 		}
 		for _, s := range sizes {
-			arm := "\t\t\t"
-			if s.ARM != nil {
-				arm = fmt.Sprintf("%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack)
+			if err := printSizeRow(ctx, tw, p, s, kind, float, o.IntLeaves, boards, rows, &notes); err != nil {
+				return err
 			}
-			counts := ""
-			for _, b := range boards {
-				in, err := verify.CountInstructionsWith(ctx, p, s.Layout, b, o.IntLeaves, rows)
-				switch {
-				case errors.Is(err, verify.ErrSkip):
-					notes = appendOnce(notes, fmt.Sprintf("(no instruction counts: %v)", err))
-					counts += "\t\t"
-				case err != nil:
-					return err
-				default:
-					counts += fmt.Sprintf("%.0f\t%d\t", in.Mean, in.Worst)
-				}
-			}
-			if float {
-				counts += "\t\t"
-			}
-			fmt.Fprintf(tw, "%s\t%s\t%d\t%.2f\t%d\t%s\t%s\n", kind, s.Layout, s.TableBytes, s.BytesPerNode(), s.WorstSplits, arm, counts)
 		}
 	}
 	tw.Flush()
 	fmt.Fprintf(w, "splits: the most one prediction tests (the sum of the trees' depths); stack: predict's bytes from gcc -fstack-usage, the C library not counted;\n")
 	fmt.Fprintf(w, "instructions: per prediction under QEMU (Cortex-M4F mps2-an386, Cortex-M0 microbit), exp and float routines included, over %d probe rows\n", rows.Len())
+	fmt.Fprintf(w, "binned-ct: the binned layout with --constant-time; its splits are tested on every prediction, and its code's own instructions are the same for every row (the float routines' vary)\n")
 	for _, n := range notes {
 		fmt.Fprintln(w, n)
 	}
+	return nil
+}
+
+// ctLayout labels the constant-time row.
+const ctLayout = "binned-ct"
+
+// constantTimeSize measures the constant-time C as MeasureARM measures the
+// layouts, labelled ctLayout; an error where constant time refuses the
+// model (set splits), which leaves the row out.
+func constantTimeSize(ctx context.Context, p *compile.Program, o ctarget.Options) ([]verify.CSize, error) {
+	o.ConstantTime = true
+	sizes, err := verify.MeasureARM(ctx, p, o)
+	if errors.Is(err, verify.ErrNoARM) {
+		sizes, err = verify.CSizes(p, o)
+	}
+	for i := range sizes {
+		sizes[i].Layout = ctLayout
+	}
+	return sizes, err
+}
+
+// printSizeRow prints one layout's row: its tables, the splits, the
+// Cortex-M4 object when measured and the instructions per prediction on
+// boards.
+func printSizeRow(ctx context.Context, tw io.Writer, p *compile.Program, s verify.CSize, kind string, float bool, intLeaves int, boards []string, rows *forest.Rows, notes *[]string) error {
+	arm := "\t\t\t"
+	if s.ARM != nil {
+		arm = fmt.Sprintf("%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack)
+	}
+	counts := ""
+	for _, b := range boards {
+		var in *verify.Instructions
+		var err error
+		if s.Layout == ctLayout {
+			in, err = verify.CountConstantTime(ctx, p, b, rows)
+		} else {
+			in, err = verify.CountInstructionsWith(ctx, p, s.Layout, b, intLeaves, rows)
+		}
+		switch {
+		case errors.Is(err, verify.ErrSkip):
+			*notes = appendOnce(*notes, fmt.Sprintf("(no instruction counts: %v)", err))
+			counts += "\t\t"
+		case err != nil:
+			return err
+		default:
+			counts += fmt.Sprintf("%.0f\t%d\t", in.Mean, in.Worst)
+		}
+	}
+	if float {
+		counts += "\t\t"
+	}
+	fmt.Fprintf(tw, "%s\t%s\t%d\t%.2f\t%d\t%s\t%s\n", kind, s.Layout, s.TableBytes, s.BytesPerNode(), s.WorstSplits, arm, counts)
 	return nil
 }
 

@@ -68,7 +68,7 @@ func TestInspectJSON(t *testing.T) {
 	assert.Contains(t, text, "  importance  top: ")
 }
 
-// --c-sizes prints each C layout's table bytes, double and float, and the
+// --c-sizes prints each C layout's table bytes (the constant-time walk too), double and float, and the
 // Cortex-M4 flash when arm-none-eabi-gcc is installed (.ci/setup installs it).
 func TestInspectCSizes(t *testing.T) {
 	code, out, errOut := sawmill(t, "inspect", "../../forest/testdata/pump.json", "--c-sizes")
@@ -76,7 +76,7 @@ func TestInspectCSizes(t *testing.T) {
 		t.Fatalf("exit %d: %s", code, errOut)
 	}
 	flat := strings.Join(strings.Fields(out), " ") // the columns' widths follow the longest name
-	for _, want := range []string{"double nested", "double table", "float table", "double bitvector", "bytes/node", "splits", "stack"} {
+	for _, want := range []string{"double nested", "double table", "float table", "double bitvector", "double binned-ct", "float binned-ct", "bytes/node", "splits", "stack"} {
 		if !strings.Contains(flat, want) {
 			t.Errorf("missing %q in:\n%s", want, out)
 		}

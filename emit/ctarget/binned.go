@@ -333,6 +333,10 @@ func (g *gen) binned(w *printer) error {
 	t.treeStarts()
 	bl.writeCuts(g, w)
 	t.outputsAndLeaves()
+	if g.o.ConstantTime {
+		bl.writeConstantTime(g, t, w)
+		return nil
+	}
 	bl.writeKey(g, w)
 	bl.writeBins(g, w)
 	bl.writePredict(g, t, w)
@@ -573,30 +577,14 @@ func binField(shift, width int) string {
 // writePredict writes NAME_predict: the bins, then each tree walked in
 // integers, its leaf added in tree order.
 func (bl *binnedLayout) writePredict(g *gen, t *tableWriter, w *printer) {
-	wt := "uint32_t"
-	if bl.wordBits() > 32 {
-		wt = "uint64_t"
-	}
-	locals := []string{fmt.Sprintf("%s bin[%s_NUM_FEATURES];", bl.binType(), g.upper), "uint32_t t;"}
-	args := ""
-	if bl.hasZM {
-		locals = append(locals, fmt.Sprintf("uint8_t zero[%s_NUM_FEATURES];", g.upper))
-		args = ", zero"
-	}
-	g.predictStart(w, locals...)
-	w.line("%s_bins(x, bin%s);", g.name, args)
-	w.line("for (t = 0; t < %du; t++) {", len(g.p.Trees))
-	w.in()
+	wt := bl.predictOpen(g, w)
 	w.line("uint32_t i = %s_start[t];", g.name)
 	w.line("uint32_t at0 = i + t; /* leaves before the tree: one more than splits, per tree */")
 	w.line("if (i < %s_start[t + 1u]) { /* a tree that is one leaf has no word */", g.name)
 	w.in()
 	w.line("for (;;) {")
 	w.in()
-	w.line("const %s w = %s;", wt, bl.wordExpr(g))
-	w.line("const uint32_t b = bin[%s];", binField(0, bl.fBits))
-	w.line("const uint32_t k = %s;", binField(bl.kShift(), bl.kBits))
-	w.line("const uint32_t p1 = %s; /* splits in the left subtree */", binField(bl.aShift(), bl.aBits))
+	bl.stepFields(g, w, wt)
 	if bl.hasML {
 		w.line("const uint32_t ml = %s;", binField(bl.mlShift(), 1))
 		w.line("/* missing (bin all ones) goes left: bin+1 wraps to 0 */")
@@ -625,4 +613,34 @@ func (bl *binnedLayout) writePredict(g *gen, t *tableWriter, w *printer) {
 	t.add("0", "t")
 	w.out()
 	w.line("}")
+}
+
+// predictOpen opens NAME_predict as both binned walks do (this one and the
+// constant-time one): the locals, the bins, the loop over the trees. It
+// returns the C type of a split word.
+func (bl *binnedLayout) predictOpen(g *gen, w *printer) string {
+	wt := "uint32_t"
+	if bl.wordBits() > 32 {
+		wt = "uint64_t"
+	}
+	locals := []string{fmt.Sprintf("%s bin[%s_NUM_FEATURES];", bl.binType(), g.upper), "uint32_t t;"}
+	args := ""
+	if bl.hasZM {
+		locals = append(locals, fmt.Sprintf("uint8_t zero[%s_NUM_FEATURES];", g.upper))
+		args = ", zero"
+	}
+	g.predictStart(w, locals...)
+	w.line("%s_bins(x, bin%s);", g.name, args)
+	w.line("for (t = 0; t < %du; t++) {", len(g.p.Trees))
+	w.in()
+	return wt
+}
+
+// stepFields reads split word i of type wt and its fields: the feature's
+// bin b, the cut index k, the left subtree's size p1.
+func (bl *binnedLayout) stepFields(g *gen, w *printer, wt string) {
+	w.line("const %s w = %s;", wt, bl.wordExpr(g))
+	w.line("const uint32_t b = bin[%s];", binField(0, bl.fBits))
+	w.line("const uint32_t k = %s;", binField(bl.kShift(), bl.kBits))
+	w.line("const uint32_t p1 = %s; /* splits in the left subtree */", binField(bl.aShift(), bl.aBits))
 }

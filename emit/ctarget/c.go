@@ -67,6 +67,17 @@
 // a bound on every output's error (intleaves.go); with the binned layout
 // the class label then needs no floating point at all. Tables and binned
 // only: auto picks binned.
+//
+// Options.ConstantTime writes the binned layout so that every prediction
+// executes the same instructions (consttime.go): each feature's bin found
+// in a fixed number of steps, each tree walked exactly its depth (a leaf
+// reached early steps to itself), NaN, the bands and the rounding of a
+// double to a float computed with masks, the logistic's sign chosen by a
+// mask. The leaf sums and exp take the FPU's or the run-time library's
+// time. Other layouts and set splits are refused. The header of every
+// layout states the most splits a prediction tests (WorstSplits), in
+// constant time the exact count, and names sawmill inspect --c-sizes for
+// flash, RAM, stack and instructions, which need a compiler.
 package ctarget
 
 import (
@@ -110,6 +121,10 @@ type Options struct {
 	// bound derived from the model and written in the header. 0 keeps the
 	// exact floating-point leaves. Table and binned layouts only.
 	IntLeaves int
+	// ConstantTime walks every prediction the same path: the binned layout
+	// with fixed-step searches and walks and selects in place of branches
+	// (consttime.go). Other layouts are refused.
+	ConstantTime bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -141,6 +156,12 @@ func Target() emit.Target {
 
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
+	if o.ConstantTime && o.IntLeaves != 0 {
+		return "", "", fmt.Errorf("ctarget: constant time and integer leaves together are not built: choose one")
+	}
+	if o.ConstantTime {
+		return resolveConstantTime(p, o)
+	}
 	if o.IntLeaves != 0 {
 		return resolveIntLeaves(p, o)
 	}
@@ -253,7 +274,9 @@ type gen struct {
 	tableMode int
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.
-	batch    func(w *printer)
+	batch func(w *printer)
+	// ct holds the constant-time counts the header states, or nil.
+	ct       *ctFacts
 	featMac  []string // NAME_F_... macro per feature
 	classMac []string // NAME_C_... macro per class
 	// il is the integer leaves' scale and bound (Options.IntLeaves), or nil.
@@ -632,7 +655,7 @@ func (g *gen) header() []byte {
 		total += t.Bytes()
 	}
 	w.line(" *   total %d bytes (%.2f bytes per node; code not counted)", total, float64(total)/float64(p.NumNodes()))
-	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
+	g.timeFacts(&w)
 	w.line(" *")
 	switch {
 	case g.il != nil:
@@ -1013,6 +1036,8 @@ func (g *gen) finishBody(w *printer) {
 		if g.f32 {
 			w.line("const float d = %s + expf(-acc[j]);", one)
 			w.line("acc[j] = %s / d;", one)
+		} else if g.o.ConstantTime {
+			g.ctLogistic(w, exp, one)
 		} else {
 			w.line("if (acc[j] >= %s) {", zero)
 			w.line("	acc[j] = %s / (%s + %s(-acc[j]));", one, one, exp)

@@ -39,8 +39,13 @@ func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned, 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored); a model the binned layout refuses (set splits, too many cuts)
 // has no binned row, and one the bitvector layout cannot write (see
-// bitvectorFits) no bitvector row. It emits each layout, so it costs what Emit costs.
+// bitvectorFits) no bitvector row. With o.ConstantTime it reports the
+// one layout constant time writes. It emits each layout, so it costs what
+// Emit costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
+	if o.ConstantTime {
+		return constantTimeSizes(p, o)
+	}
 	var out []Size
 	for _, l := range Layouts() {
 		s, err := sizeOf(p, o, l)

@@ -49,6 +49,8 @@
  *   pumpmodel_bv_leaf: each leaf's row of pumpmodel_leaf, left to right per tree, 17 x 4 = 68 bytes
  *   total 848 bytes (25.70 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -49,6 +49,8 @@
  *   pumpmodel_bv_leaf: each leaf's row of pumpmodel_leaf, left to right per tree, 17 x 4 = 68 bytes
  *   total 656 bytes (19.88 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

@@ -42,6 +42,8 @@
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
  *   total 234 bytes (7.09 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -42,6 +42,8 @@
  *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
  *   total 234 bytes (7.09 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

@@ -28,6 +28,8 @@
  *   pumpmodel_leaf: leaf vectors, 7 x 4 = 28 bytes
  *   total 55 bytes (5.00 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

@@ -25,6 +25,8 @@
  *   pumpmodel_leaf: leaf vectors, 5 x 4 = 20 bytes
  *   total 37 bytes (4.62 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

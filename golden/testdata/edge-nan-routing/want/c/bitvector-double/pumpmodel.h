@@ -30,6 +30,8 @@
  *   pumpmodel_bv_leaf: leaf values, left to right per tree, 5 x 8 = 40 bytes
  *   total 149 bytes (18.62 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

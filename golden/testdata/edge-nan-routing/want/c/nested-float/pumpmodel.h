@@ -20,6 +20,8 @@
  * Static tables in pumpmodel.c:
  *   total 0 bytes (0.00 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces
