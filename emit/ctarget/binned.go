@@ -142,6 +142,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	}
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
+	tl.counts = g.leafCountsOf(tl)
 	// A float32 model's double build has its cuts as floats (tl.round32)
 	// and rounds its inputs to nearest; otherwise thresholds are in the
 	// input's type.

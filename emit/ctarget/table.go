@@ -71,6 +71,8 @@ type tableLayout struct {
 	leafOf    []int // per leaf in preorder, its row of leafRows (rows1 for a leaf of a tree of one output when mixed)
 	direct    bool  // leaf vectors stored per leaf, not by row
 	leafFloat bool  // every leaf value is a float value
+	// counts, when set, holds every leaf row as class counts (counts.go).
+	counts *leafCounts
 }
 
 // tableSplit is one split as buildTable collects it, before packing.
@@ -100,6 +102,7 @@ type wordChoice struct {
 func (g *gen) buildTable() (*tableLayout, error) {
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
+	tl.counts = g.leafCountsOf(tl)
 	tl.round32 = !g.o.Float && g.p.Midpoints32
 	splits, thrSet := g.tableSplits(tl)
 	index, maxLocal := tl.thresholdTables(thrSet)
@@ -420,6 +423,9 @@ func (tl *tableLayout) thrElemBytes(g *gen) int {
 }
 
 func (tl *tableLayout) leafElemBytes(g *gen) int {
+	if tl.counts != nil {
+		return tl.counts.bytes
+	}
 	if g.at == "float" || tl.leafFloat {
 		return 4
 	}
@@ -550,7 +556,19 @@ func newTableWriter(g *gen, tl *tableLayout, w *printer) *tableWriter {
 	if t.lt != g.at {
 		t.conv = "(double)"
 	}
+	if tl.counts != nil {
+		t.lt, t.conv = uintType(tl.counts.bytes), ""
+		t.exactNote = " as class counts c_j: the value of class j is c_j divided by the counts' sum"
+	}
 	return t
+}
+
+// leafLit is component j of leaf row r as its table stores it.
+func (t *tableWriter) leafLit(r, j int) string {
+	if t.tl.counts != nil {
+		return fmt.Sprintf("%du", t.tl.counts.rows[r][j])
+	}
+	return t.llit(t.tl.leafRows.vecs[r][j])
 }
 
 // splitWords writes NAME_node, the split words, one line per tree (or
@@ -671,7 +689,7 @@ func (t *tableWriter) outputsAndLeaves() {
 	case tl.direct:
 		w.line("/* Leaf vectors, per leaf in preorder%s. */", t.exactNote)
 		w.line("static const %s %s_leaf[%d] = {", t.lt, g.name, len(tl.leafOf)*k)
-		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return t.llit(tl.leafRows.vecs[tl.leafOf[i/k]][i%k]) })
+		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return t.leafLit(tl.leafOf[i/k], i%k) })
 		w.line("};")
 		g.tables = append(g.tables, Table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
 	default:
@@ -687,7 +705,7 @@ func (t *tableWriter) outputsAndLeaves() {
 		n := len(tl.leafRows.vecs)
 		w.line("/* Distinct leaf vectors%s. */", t.exactNote)
 		w.line("static const %s %s_leaf[%d] = {", t.lt, g.name, n*k)
-		g.numbers(w, n*k, func(i int) string { return t.llit(tl.leafRows.vecs[i/k][i%k]) })
+		g.numbers(w, n*k, func(i int) string { return t.leafLit(i/k, i%k) })
 		w.line("};")
 		g.tables = append(g.tables, Table{g.name + "_leaf", "distinct leaf vectors", n * k, tl.leafElemBytes(g)})
 	}
@@ -865,6 +883,10 @@ func (t *tableWriter) addTo(dst, v string) string {
 func (t *tableWriter) add(l, tree string) {
 	g, tl, w := t.g, t.tl, t.w
 	full := func() {
+		if tl.counts != nil {
+			t.addCounts(l)
+			return
+		}
 		if t.k == 1 {
 			w.line("%s", t.addTo(t.accOf(l)+"[0]", t.conv+g.name+"_leaf["+t.row(l)+"]"))
 			return
