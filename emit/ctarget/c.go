@@ -90,6 +90,11 @@ type Options struct {
 	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
 	// files of their own that a build without threads leaves out.
 	Threads bool
+	// LeafValues keeps a classification forest's leaf values as numbers in
+	// the table and binned layouts, where they would otherwise be stored
+	// as class counts and divided at run time (counts.go): no division per
+	// tree and output, at two to eight times the bytes of a leaf row.
+	LeafValues bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.

@@ -37,7 +37,7 @@ const maxLeafCount = 1<<16 - 1
 // is not a vector of fractions with one denominator (or the model is not
 // one whose every tree adds a class-share vector to every output).
 func (g *gen) leafCountsOf(tl *tableLayout) *leafCounts {
-	if tl.hasOut || tl.mixed || tl.width < 2 || !g.p.IsClassifier() {
+	if g.o.LeafValues || tl.hasOut || tl.mixed || tl.width < 2 || !g.p.IsClassifier() {
 		return nil
 	}
 	lc := &leafCounts{rows: make([][]uint32, len(tl.leafRows.vecs)), floatDiv: g.at == "float"}
@@ -208,20 +208,20 @@ func (t *tableWriter) addCounts(l string) {
 	g, w, lc := t.g, t.w, t.tl.counts
 	w.line("{")
 	w.in()
-	w.line("const %s *const c = &%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS];", uintType(lc.bytes), g.name, t.row(l), g.upper)
-	w.line("uint32_t n = 0u;")
+	w.line("const %s *const cnt = &%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS];", uintType(lc.bytes), g.name, t.row(l), g.upper)
+	w.line("uint32_t draws = 0u;")
 	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-	w.line("\tn += c[j];")
+	w.line("\tdraws += cnt[j];")
 	w.line("}")
 	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
 	var share string
 	switch {
 	case g.at != "float":
-		share = "(double)c[j] / (double)n"
+		share = "(double)cnt[j] / (double)draws"
 	case lc.floatDiv:
-		share = "(float)c[j] / (float)n"
+		share = "(float)cnt[j] / (float)draws"
 	default:
-		share = "(float)((double)c[j] / (double)n) /* the float nearest the double share */"
+		share = "(float)((double)cnt[j] / (double)draws) /* the float nearest the double share */"
 	}
 	w.line("\t%s", t.addTo(t.accOf(l)+"[j]", share))
 	w.line("}")

@@ -47,6 +47,11 @@ type tableLayout struct {
 	hasSole        bool      // some tree is a single leaf
 	perFeat        bool      // threshold index is local to the feature
 	thr            []float64 // distinct thresholds, by feature then value
+	// inline: the threshold of split word i is splitThr[i], one per split
+	// in preorder, and the word holds no threshold index (chosen where
+	// thresholds rarely repeat, so the index costs more than the sharing saves).
+	inline   bool
+	splitThr []float64
 	thrBase        []int     // per feature, first index in thr (when perFeat)
 	thrFloat       bool      // every threshold is a float value
 	// round32: in double mode, every split is x op m with m the midpoint
@@ -92,7 +97,7 @@ type tableSplit struct {
 // per feature or globally, leaf rows in the words or in a table of their
 // own; bits is the word's width in use and bytes what all tables take.
 type wordChoice struct {
-	perFeat, inWord bool
+	perFeat, inWord, inline bool
 	bits, bytes     int
 }
 
@@ -117,10 +122,16 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	if g.tableMode != 0 {
 		best.inWord = g.tableMode == 2
 	}
-	tl.perFeat, tl.inWord = best.perFeat, best.inWord
+	tl.perFeat, tl.inWord, tl.inline = best.perFeat, best.inWord, best.inline
 	tl.wordBits = wordBits(best.bits)
 	tl.tBits = bitsFor(len(tl.thr) - 1)
-	if tl.perFeat {
+	switch {
+	case tl.inline:
+		tl.tBits = 0
+		for _, s := range splits {
+			tl.splitThr = append(tl.splitThr, s.thr)
+		}
+	case tl.perFeat:
 		tl.tBits = bitsFor(maxLocal - 1)
 	}
 	tl.tBits = max(tl.tBits, bitsFor(len(g.sets.sets)-1))
@@ -281,6 +292,15 @@ func (tl *tableLayout) leafValuesFloat() bool {
 	return true
 }
 
+// How the split words address their thresholds: an index into all the
+// distinct thresholds, an index into the feature's, or none (inline: one
+// threshold per split, in the words' order).
+const (
+	thrGlobal = iota
+	thrPerFeature
+	thrInline
+)
+
 // tableSizes are the field widths the word choice found: aBits for the
 // largest left subtree, rBits for the largest leaf row, of nRows rows.
 type tableSizes struct{ aBits, rBits, nRows int }
@@ -303,23 +323,32 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 	setBits := bitsFor(len(g.sets.sets) - 1)
 	var best *wordChoice
 	for _, inWord := range []bool{false, true} {
-		for _, perFeat := range []bool{false, true} {
+		for _, addr := range []int{thrGlobal, thrPerFeature, thrInline} {
+			if addr == thrInline && (tl.hasSet || g.tableMode != 0) {
+				continue // a set split's index is its set number; tableMode tests the indexed words
+			}
+			perFeat := addr == thrPerFeature
 			tb := bitsFor(len(tl.thr) - 1)
 			if perFeat {
 				tb = bitsFor(maxLocal - 1)
 			}
 			tb = max(tb, setBits)
-			c := wordChoice{perFeat: perFeat, inWord: inWord}
+			c := wordChoice{perFeat: perFeat, inWord: inWord, inline: addr == thrInline}
+			if c.inline {
+				tb = 0
+				c.bytes += (len(splits) - len(tl.thr)) * tl.thrElemBytes(g) // beside the distinct ones
+			}
+			leafBytes := rowBytes
 			if inWord {
 				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
-				c.bytes = rowBytes
 			} else {
 				c.bits = tl.fBits + tb + flags + aBits
-				c.bytes = nLeaves*intBytes(nRows-1) + rowBytes
+				leafBytes += nLeaves * intBytes(nRows-1)
 				if !tl.mixed {
-					c.bytes = min(c.bytes, nLeaves*k*vb)
+					leafBytes = min(leafBytes, nLeaves*k*vb)
 				}
 			}
+			c.bytes += leafBytes
 			if perFeat {
 				c.bytes += len(p.Features) * intBytes(len(tl.thr))
 			}
@@ -340,9 +369,12 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 func (tl *tableLayout) packWords(splits []tableSplit, index []map[uint64]int) {
 	for _, s := range splits {
 		var ti int
-		if s.set >= 0 {
+		switch {
+		case s.set >= 0:
 			ti = s.set
-		} else {
+		case tl.inline:
+			ti = 0
+		default:
 			ti = index[s.feature][math.Float64bits(s.thr)]
 			if !tl.perFeat {
 				ti += tl.thrBase[s.feature]
@@ -576,6 +608,9 @@ func (t *tableWriter) leafLit(r, j int) string {
 func (t *tableWriter) splitWords() {
 	g, tl, w, p := t.g, t.tl, t.w, t.g.p
 	idxName := "threshold index"
+	if tl.inline {
+		idxName = "threshold index, unused: " + g.name + "_thr holds one threshold per word"
+	}
 	if tl.hasSet {
 		idxName = "threshold index, or set number at a set split"
 	}
@@ -623,6 +658,10 @@ func (t *tableWriter) treeStarts() {
 // addressing NAME_thr_base.
 func (t *tableWriter) thresholds() {
 	g, tl, w := t.g, t.tl, t.w
+	if tl.inline {
+		t.inlineThresholds()
+		return
+	}
 	nThr := max(len(tl.thr), 1)
 	switch {
 	case tl.round32:
@@ -652,6 +691,27 @@ func (t *tableWriter) thresholds() {
 		g.tables = append(g.tables, Table{g.name + "_thr_base", "first threshold per feature", len(tl.thrBase), bb})
 		w.line("")
 	}
+}
+
+// inlineThresholds writes NAME_thr with one threshold per split word, in
+// the words' order.
+func (t *tableWriter) inlineThresholds() {
+	g, tl, w := t.g, t.tl, t.w
+	n := max(len(tl.splitThr), 1)
+	round := map[bool]string{true: ", each split being x <= t after rounding x to float, as the model's float32 comparisons do"}[tl.round32]
+	w.line("/* The threshold of each split word, in the same order%s%s. */", map[bool]string{true: " (all exact as float)"}[t.tt != g.ft && !tl.round32], round)
+	w.line("static const %s %s_thr[%d] = {", t.tt, g.name, n)
+	if len(tl.splitThr) == 0 {
+		w.line("\t0")
+	}
+	lit := g.lit
+	if t.tt == "float" {
+		lit = floatLit
+	}
+	g.numbers(w, len(tl.splitThr), func(i int) string { return lit(tl.splitThr[i]) })
+	w.line("};")
+	g.tables = append(g.tables, Table{g.name + "_thr", "threshold per split", n, tl.thrElemBytes(g)})
+	w.line("")
 }
 
 // outputsAndLeaves writes what the walk adds once it reaches a leaf: the
@@ -747,6 +807,9 @@ func (t *tableWriter) walkTests() {
 		idx = fmt.Sprintf("%s ? 0u : %s", t.bit(tl.setBit()), idx)
 	}
 	t.th = fmt.Sprintf("%s_thr[%s]", g.name, idx)
+	if tl.inline {
+		t.th = g.name + "_thr[i%[1]s]" // the lane's word index, filled in by step
+	}
 	if t.tt != t.vt {
 		t.th = "(double)" + t.th
 	}
@@ -818,7 +881,11 @@ func (t *tableWriter) step(l string) {
 	default:
 		w.line("const %s v = %s[f];", g.ft, t.xOf(l))
 	}
-	w.line("const %s th = %s;", t.vt, t.th)
+	th := t.th
+	if tl.inline {
+		th = fmt.Sprintf(th, l)
+	}
+	w.line("const %s th = %s;", t.vt, th)
 	if t.general {
 		xv := "v"
 		if tl.round32 {
