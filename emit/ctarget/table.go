@@ -52,8 +52,8 @@ type tableLayout struct {
 	// thresholds rarely repeat, so the index costs more than the sharing saves).
 	inline   bool
 	splitThr []float64
-	thrBase        []int     // per feature, first index in thr (when perFeat)
-	thrFloat       bool      // every threshold is a float value
+	thrBase  []int // per feature, first index in thr (when perFeat)
+	thrFloat bool  // every threshold is a float value
 	// round32: in double mode, every split is x op m with m the midpoint
 	// the float32 pass makes of a float threshold t32
 	// (compile.Program.Midpoints32), so the walk tests (float)x <= t32 and
@@ -98,7 +98,7 @@ type tableSplit struct {
 // own; bits is the word's width in use and bytes what all tables take.
 type wordChoice struct {
 	perFeat, inWord, inline bool
-	bits, bytes     int
+	bits, bytes             int
 }
 
 // buildTable lays the program out as tables: the leaf tables, the splits
