@@ -215,7 +215,8 @@ type gen struct {
 	tables   []Table // static tables of NAME.c, for the size report
 	comments bool
 	// tableMode forces the table layout's leaf mode in tests: 1 leaves
-	// outside the words, 2 leaf rows in the words; 0 chooses the smaller.
+	// outside the words, 2 leaf rows in the words, 3 leaves outside and one
+	// threshold per split (inline); 0 chooses the smallest.
 	tableMode int
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.

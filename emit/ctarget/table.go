@@ -324,8 +324,8 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 	var best *wordChoice
 	for _, inWord := range []bool{false, true} {
 		for _, addr := range []int{thrGlobal, thrPerFeature, thrInline} {
-			if addr == thrInline && (tl.hasSet || g.tableMode != 0) {
-				continue // a set split's index is its set number; tableMode tests the indexed words
+			if addr == thrInline && (tl.hasSet || g.tableMode == 1 || g.tableMode == 2) || addr != thrInline && g.tableMode == 3 {
+				continue // a set split's index is its set number; tableMode forces a choice in tests
 			}
 			perFeat := addr == thrPerFeature
 			tb := bitsFor(len(tl.thr) - 1)
