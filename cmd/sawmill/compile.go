@@ -85,6 +85,7 @@ type compileFlags struct {
 	columns   []string // SQL: feature=column pairs
 	selftest  bool     // SQL and C: also write the self-test
 	threads   bool     // C: also write NAME_threads.h and NAME_threads.c
+	leafVals  bool     // C: keep classification leaves as values, not class counts
 	model     *forest.Forest
 	tables    string
 	budget    budgetFlags
@@ -136,6 +137,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ; C: also write NAME_selftest.c, whose NAME_selftest() returns 0 or the first probe row that differs")
 	fl.budget.add(f)
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
+	f.BoolVar(&fl.leafVals, "leaf-values", false, "C: store a classification forest's leaves as numbers in the table and binned layouts, not as class counts divided at run time (faster, larger)")
 	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	return c
 }
