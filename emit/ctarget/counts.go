@@ -42,13 +42,28 @@ func (g *gen) leafCountsOf(tl *tableLayout) *leafCounts {
 	}
 	lc := &leafCounts{rows: make([][]uint32, len(tl.leafRows.vecs)), floatDiv: g.at == "float"}
 	most := uint32(0)
-	for i, v := range tl.leafRows.vecs {
-		c := g.countsOf(v)
-		if c == nil {
-			return nil
+	// The counts come from the model's own values (a float build's rows
+	// are them rounded to float, which holds too few bits to find c/n);
+	// divides then checks them against the rows.
+	for ti := range g.p.Trees {
+		for ni, v := range g.leaves[ti] {
+			if v == nil {
+				continue
+			}
+			r := tl.leafRows.row(v)
+			if lc.rows[r] != nil {
+				continue
+			}
+			c := countsOf(g.p.Trees[ti].Nodes[ni].Value, g.f32)
+			if c == nil {
+				return nil
+			}
+			lc.rows[r] = c
+			most = max(most, sum32(c))
 		}
-		lc.rows[i] = c
-		most = max(most, sum32(c))
+	}
+	if g.at != "float" && !lc.divides(g, tl) {
+		return nil
 	}
 	if lc.floatDiv && !lc.divides(g, tl) {
 		lc.floatDiv = false
@@ -84,16 +99,17 @@ func (lc *leafCounts) share(g *gen, c, n uint32) float64 {
 }
 
 // countsOf finds counts c_j with fl(c_j/n) = v_j, n their sum, by the
-// simplest fraction in each value's rounding interval: their least common
-// denominator, and a few of its multiples where a float's wider interval
-// held a simpler fraction than the one the trainer divided. nil if none.
-func (g *gen) countsOf(v []float64) []uint32 {
+// simplest fraction in each value's rounding interval (as a double, or as
+// a float when f32): their least common denominator, and a few of its
+// multiples where a float's wider interval held a simpler fraction than
+// the one the trainer divided. nil if none.
+func countsOf(v []float64, f32 bool) []uint32 {
 	n := int64(1)
 	for _, x := range v {
 		if !(x >= 0 && x <= 1) {
 			return nil
 		}
-		q := simplestDenominator(x, g.at == "float")
+		q := simplestDenominator(x, f32)
 		if q == 0 {
 			return nil
 		}
@@ -103,7 +119,7 @@ func (g *gen) countsOf(v []float64) []uint32 {
 		}
 	}
 	for m := n; m <= maxLeafCount && m <= 64*n; m += n {
-		if c := tryCounts(v, m, g.at == "float"); c != nil {
+		if c := tryCounts(v, m, f32); c != nil {
 			return c
 		}
 	}
