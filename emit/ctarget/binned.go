@@ -309,7 +309,7 @@ func (g *gen) binnedLeaves(tl *tableLayout) {
 		nRows = max(nRows, len(tl.rows1.vecs))
 	}
 	nLeaves, k, vb := len(tl.leafOf), tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.mixed && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
+	tl.direct = !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
 }
 
 // bands turns the missing band and the zero band into keys.

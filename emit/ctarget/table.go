@@ -141,7 +141,7 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	}
 	tl.packWords(splits, index)
 	nLeaves, nRows, k, vb := len(tl.leafOf), sizes.nRows, tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
+	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
 	return tl, nil
 }
 
@@ -343,7 +343,7 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
 			} else {
 				c.bits = tl.fBits + tb + flags + aBits
-				leafBytes += nLeaves * intBytes(nRows-1)
+				leafBytes += leafRowBytes(nLeaves, nRows)
 				if !tl.mixed {
 					leafBytes = min(leafBytes, nLeaves*k*vb)
 				}
@@ -754,13 +754,7 @@ func (t *tableWriter) outputsAndLeaves() {
 		g.tables = append(g.tables, Table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
 	default:
 		if !tl.inWord {
-			rb := intBytes(tl.maxRows() - 1)
-			w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
-			w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
-			g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
-			w.line("};")
-			g.tables = append(g.tables, Table{g.name + "_leaf_row", "leaf row per leaf", len(tl.leafOf), rb})
-			w.line("")
+			t.writeLeafRows()
 		}
 		n := len(tl.leafRows.vecs)
 		w.line("/* Distinct leaf vectors%s. */", t.exactNote)
@@ -930,7 +924,7 @@ func (t *tableWriter) step(l string) {
 // row is the row of the leaf table lane l reached.
 func (t *tableWriter) row(l string) string {
 	if !t.tl.direct && !t.tl.inWord {
-		return fmt.Sprintf("%s_leaf_row[at%s]", t.g.name, l)
+		return t.leafRowOf("at" + l)
 	}
 	return "at" + l
 }
