@@ -662,7 +662,6 @@ func (t *tableWriter) thresholds() {
 		t.inlineThresholds()
 		return
 	}
-	nThr := max(len(tl.thr), 1)
 	switch {
 	case tl.round32:
 		w.line("/* Distinct thresholds, by feature, ascending: each split is x <= t after rounding x to")
@@ -670,18 +669,7 @@ func (t *tableWriter) thresholds() {
 	default:
 		w.line("/* Distinct thresholds, by feature, ascending%s. */", map[bool]string{true: " (all exact as float)"}[t.tt != g.ft])
 	}
-	w.line("static const %s %s_thr[%d] = {", t.tt, g.name, nThr)
-	if len(tl.thr) == 0 {
-		w.line("\t0")
-	}
-	lit := g.lit
-	if t.tt == "float" {
-		lit = floatLit
-	}
-	g.numbers(w, len(tl.thr), func(i int) string { return lit(tl.thr[i]) })
-	w.line("};")
-	g.tables = append(g.tables, Table{g.name + "_thr", "distinct thresholds", nThr, tl.thrElemBytes(g)})
-	w.line("")
+	t.thrArray(tl.thr, "distinct thresholds")
 	bb := intBytes(len(tl.thr))
 	if tl.perFeat {
 		w.line("/* First threshold of each feature. */")
@@ -697,20 +685,27 @@ func (t *tableWriter) thresholds() {
 // the words' order.
 func (t *tableWriter) inlineThresholds() {
 	g, tl, w := t.g, t.tl, t.w
-	n := max(len(tl.splitThr), 1)
 	round := map[bool]string{true: ", each split being x <= t after rounding x to float, as the model's float32 comparisons do"}[tl.round32]
 	w.line("/* The threshold of each split word, in the same order%s%s. */", map[bool]string{true: " (all exact as float)"}[t.tt != g.ft && !tl.round32], round)
+	t.thrArray(tl.splitThr, "threshold per split")
+}
+
+// thrArray writes NAME_thr holding ths (one 0 when empty: C has no empty
+// arrays), in the threshold type, and records it as what.
+func (t *tableWriter) thrArray(ths []float64, what string) {
+	g, w := t.g, t.w
+	n := max(len(ths), 1)
 	w.line("static const %s %s_thr[%d] = {", t.tt, g.name, n)
-	if len(tl.splitThr) == 0 {
+	if len(ths) == 0 {
 		w.line("\t0")
 	}
 	lit := g.lit
 	if t.tt == "float" {
 		lit = floatLit
 	}
-	g.numbers(w, len(tl.splitThr), func(i int) string { return lit(tl.splitThr[i]) })
+	g.numbers(w, len(ths), func(i int) string { return lit(ths[i]) })
 	w.line("};")
-	g.tables = append(g.tables, Table{g.name + "_thr", "threshold per split", n, tl.thrElemBytes(g)})
+	g.tables = append(g.tables, Table{g.name + "_thr", what, n, t.tl.thrElemBytes(g)})
 	w.line("")
 }
 
