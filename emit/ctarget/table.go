@@ -607,14 +607,14 @@ func (t *tableWriter) leafLit(r, j int) string {
 // several when long), under a comment spelling out the word's fields.
 func (t *tableWriter) splitWords() {
 	g, tl, w, p := t.g, t.tl, t.w, t.g.p
-	idxName := "threshold index"
+	idx := fmt.Sprintf(", threshold index (%s)", nbits(tl.tBits))
 	if tl.inline {
-		idxName = "threshold index, unused: " + g.name + "_thr holds one threshold per word"
+		idx = " (no threshold index: " + g.name + "_thr holds one threshold per word)"
 	}
 	if tl.hasSet {
-		idxName = "threshold index, or set number at a set split"
+		idx = fmt.Sprintf(", threshold index, or set number at a set split (%s)", nbits(tl.tBits))
 	}
-	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), %s (%s)%s%s%s%s,", nbits(tl.fBits), idxName, nbits(tl.tBits),
+	w.line("/* Splits, per tree in preorder, low bits first: feature (%s)%s%s%s%s%s,", nbits(tl.fBits), idx,
 		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT],
 		map[bool]string{true: ", set split (1 bit)"}[tl.hasSet], map[bool]string{true: ", zero is missing (1 bit)"}[tl.hasZM])
 	if tl.inWord {
