@@ -14,6 +14,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestInterpreterArm64 builds the interpreter for arm64 (internal/predicthex),
@@ -31,12 +32,7 @@ func TestInterpreterArm64(t *testing.T) {
 	if testing.Short() {
 		t.Skip("arm64 interpreter: runs without -short")
 	}
-	if _, err := exec.LookPath("qemu-aarch64"); err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatal("qemu-aarch64 is not on PATH (Debian package qemu-user), and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: qemu-aarch64 is not on PATH (Debian package qemu-user)")
-	}
+	testenv.Tool(t, "qemu-aarch64", "Debian package qemu-user")
 	cases, err := goldencase.Cases("testdata")
 	if err != nil {
 		t.Fatal(err)

@@ -11,6 +11,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 func TestMeasureARM(t *testing.T) {
@@ -20,7 +21,7 @@ func TestMeasureARM(t *testing.T) {
 	require.NoError(t, err)
 	sizes, err := MeasureARM(context.Background(), p, ctarget.Options{Float: true})
 	if errors.Is(err, ErrNoARM) {
-		t.Skip("arm-none-eabi-gcc is not on PATH: no Cortex-M4 sizes")
+		testenv.Need(t, err)
 	}
 	require.NoError(t, err)
 	require.Len(t, sizes, len(ctarget.Layouts()))

@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
 )
@@ -41,6 +42,8 @@ type boardRunner struct {
 	Werror bool
 	// Quick runs each board in one layout (LayoutsFor), to keep CI short.
 	Quick bool
+	// IntLeaves is Config's: integer leaves, held within their bound.
+	IntLeaves int
 }
 
 // boardQuickLayouts is the layout each board runs in when Quick: the
@@ -54,7 +57,11 @@ var boardQuickLayouts = map[string]string{"m4": "nested", "m4-float": "table", "
 // the one of boardQuickLayouts.
 func (r boardRunner) LayoutsFor(variant string) []string {
 	if r.Quick {
-		return []string{boardQuickLayouts[variant]}
+		l := boardQuickLayouts[variant]
+		if r.IntLeaves != 0 && l == emit.Nested {
+			l = emit.Table // integer leaves are stored in tables
+		}
+		return []string{l}
 	}
 	return r.Layouts()
 }
@@ -151,12 +158,12 @@ func (boardRunner) Float32Inputs(variant string) bool { return findBoard(variant
 
 // Tolerance is the C runner's: the board's C library's exp is within the
 // same 1 ulp that ctarget.ErrorBound assumes of any.
-func (boardRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
-	return cRunner{}.Tolerance(map[bool]string{true: "float", false: "double"}[findBoard(variant).float], p)
+func (r boardRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
+	return cRunner{IntLeaves: r.IntLeaves}.Tolerance(map[bool]string{true: "float", false: "double"}[findBoard(variant).float], p)
 }
 
-func (boardRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float}
+func (r boardRunner) options(layout, variant string) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float, IntLeaves: r.IntLeaves}
 }
 
 // boardTools reports the first of b's tools that is not on PATH, or a

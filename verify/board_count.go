@@ -34,6 +34,12 @@ type Instructions struct {
 // prediction's instructions (QEMU 7.2 documentation, "-d" and
 // "-singlestep"). It is ErrSkip when the cross compiler or QEMU is absent.
 func CountInstructions(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows) (*Instructions, error) {
+	return CountInstructionsWith(ctx, p, layout, variant, 0, rows)
+}
+
+// CountInstructionsWith is CountInstructions for the build with integer
+// leaves of intLeaves bits (ctarget.Options.IntLeaves; 0 for exact leaves).
+func CountInstructionsWith(ctx context.Context, p *compile.Program, layout, variant string, intLeaves int, rows *forest.Rows) (*Instructions, error) {
 	b := findBoard(variant)
 	if b.linux {
 		return nil, fmt.Errorf("BUG: verify: CountInstructions runs bare-metal boards, not %s", variant)
@@ -46,7 +52,7 @@ func CountInstructions(ctx context.Context, p *compile.Program, layout, variant 
 		return nil, err
 	}
 	defer os.RemoveAll(dir)
-	o := boardRunner{}.options(layout, variant)
+	o := boardRunner{IntLeaves: intLeaves}.options(layout, variant)
 	ft, err := writeC(p, o, dir)
 	if err != nil {
 		return nil, err

@@ -3,7 +3,6 @@ package verify
 import (
 	"context"
 	"errors"
-	"os"
 	"path/filepath"
 	"testing"
 
@@ -11,6 +10,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestCountInstructions counts instructions per prediction on the
@@ -38,10 +38,7 @@ func TestCountInstructions(t *testing.T) {
 		for _, board := range []string{"m4", "m0"} {
 			in, err := CountInstructions(context.Background(), p, layout, board, rows)
 			if errors.Is(err, ErrSkip) {
-				if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-					t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-				}
-				t.Skipf("skipped: %v", err)
+				testenv.Need(t, err)
 			}
 			require.NoError(t, err)
 			t.Logf("%s %s: %d rows, worst %d, mean %.1f instructions per prediction", layout, board, in.Rows, in.Worst, in.Mean)

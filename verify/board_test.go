@@ -2,12 +2,12 @@ package verify
 
 import (
 	"context"
-	"os"
 	"testing"
 
 	"github.com/stretchr/testify/require"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestBoardCatchesPlantedFaults plants a wrong threshold and a wrong leaf
@@ -28,10 +28,7 @@ func TestBoardCatchesPlantedFaults(t *testing.T) {
 			t.Run(variant+"/"+fl.name, func(t *testing.T) {
 				b := findBoard(variant)
 				if err := boardTools(b); err != nil {
-					if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-						t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-					}
-					t.Skipf("skipped: %v", err)
+					testenv.Need(t, err)
 				}
 				base, _, err := compile.Compile(f, r.CompileOptions(variant))
 				require.NoError(t, err)

@@ -38,6 +38,8 @@ type cRunner struct {
 	Full bool
 	// Werror and AllCompilers are Config's.
 	Werror, AllCompilers bool
+	// IntLeaves is Config's: integer leaves, held within their bound.
+	IntLeaves int
 }
 
 // cName is the --name used in tests; not the default, so that a missed
@@ -124,13 +126,16 @@ func (cRunner) Float32Inputs(variant string) bool { return variant == "float" }
 // Tolerance: double C is bit-exact except that the transforms call the C
 // library's exp; float C differs by float rounding. ctarget.ErrorBound derives
 // both bounds.
-func (cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
+func (r cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
+	if r.IntLeaves != 0 {
+		return intLeafTolerance(p, r.options("", variant))
+	}
 	b := ctarget.ErrorBound(p, variant == "float")
 	return b == 0, b
 }
 
-func (cRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float"}
+func (r cRunner) options(layout, variant string) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float", IntLeaves: r.IntLeaves}
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {
@@ -340,6 +345,9 @@ func writeC(p *compile.Program, o ctarget.Options, dir string) (string, error) {
 		return "", declined(err)
 	}
 	for _, f := range files {
+		if cEdit != nil {
+			f.Data = cEdit(f.Name, f.Data)
+		}
 		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
 			return "", err
 		}
@@ -349,6 +357,10 @@ func writeC(p *compile.Program, o ctarget.Options, dir string) (string, error) {
 	}
 	return "double", nil
 }
+
+// cEdit, set only by tests, rewrites each emitted file before it is built,
+// to plant a fault no program edit can (a wrong scale of integer leaves).
+var cEdit func(name string, data []byte) []byte
 
 var ccVersions sync.Map // compiler name → "gcc 12.2.0"
 

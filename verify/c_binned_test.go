@@ -18,6 +18,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // The binned C layout against the interpreter at every threshold's
@@ -125,9 +126,7 @@ func cutsOf(ts []float64, kind string) []float64 {
 }
 
 func TestCBinnedNeighbours(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	mv := -999.0
 	for seed := uint64(1); seed <= 2; seed++ {
 		for _, prec := range []forest.Precision{forest.Float64, forest.Float32} {
@@ -220,12 +219,7 @@ var (
 // routines it calls.
 func armCalls(t *testing.T, files []emit.File, layout string) map[string][]string {
 	for _, tool := range []string{"arm-none-eabi-gcc", "arm-none-eabi-objdump"} {
-		if _, err := exec.LookPath(tool); err != nil {
-			if requireEngines {
-				t.Fatalf("%s is not on PATH, and SAWMILL_REQUIRE_ENGINES is set", tool)
-			}
-			t.Skipf("%s is not on PATH: no ARMv6-M build", tool)
-		}
+		testenv.Tool(t, tool, "Debian package gcc-arm-none-eabi: no ARMv6-M build")
 	}
 	dir := t.TempDir()
 	for _, f := range files {
@@ -293,9 +287,7 @@ func TestCBinnedNoSoftFloatCompare(t *testing.T) {
 // as the interpreter scores the original model; the floored integer cuts
 // are floats, so the double build stores 4-byte keys.
 func TestCBinnedIntegerFeatures(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	rng := rand.New(rand.NewPCG(5, 14))
 	var ts []float64
 	for i := 0; i < 40; i++ {

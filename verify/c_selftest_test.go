@@ -13,6 +13,7 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestCSelftest builds NAME_selftest.c with the model's own C and gcc, and
@@ -21,12 +22,7 @@ import (
 // and expects the 1-based number of the first probe row that reaches it.
 // Double and float C, nested and table.
 func TestCSelftest(t *testing.T) {
-	if _, err := exec.LookPath("gcc"); err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatal("gcc is not on PATH, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: gcc is not on PATH")
-	}
+	testenv.Tool(t, "gcc", "")
 	f := verifyWine(t)
 	for _, float := range []bool{false, true} {
 		probes := CSelftestProbes(f, float)

@@ -3,7 +3,6 @@ package verify
 import (
 	"context"
 	"fmt"
-	"github.com/sawmill-dev/sawmill/internal/goldencase"
 	"math"
 	"math/bits"
 	"math/rand/v2"
@@ -11,6 +10,9 @@ import (
 	"slices"
 	"testing"
 	"time"
+
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 
 	"github.com/stretchr/testify/require"
 
@@ -139,9 +141,7 @@ func cReference(f *forest.Forest, rows *forest.Rows, float bool) ([]float64, []i
 // checkC scores f in every layout and variant and compares.
 func checkC(t *testing.T, f *forest.Forest, rows *forest.Rows) {
 	t.Helper()
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	r := testCRunner()
 	r.Full = true
 	for _, variant := range r.Variants() {
@@ -289,9 +289,7 @@ func TestCHostileNames(t *testing.T) {
 // also score every row within 1e-12 of scikit-learn 1.2.1's recorded
 // predict_proba.
 func TestCGoldenCasesFullMatrix(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	cases, err := goldencase.Cases(goldenCases)
 	require.NoError(t, err)
 	r := testCRunner()
@@ -357,9 +355,7 @@ func TestCMillionNodes(t *testing.T) {
 	if os.Getenv("SAWMILL_C_BIG") == "" {
 		t.Skip("slow: set SAWMILL_C_BIG=1 to build a 1M-node forest")
 	}
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	const trees, depth, nf = 2000, 8, 20
 	rng := rand.New(rand.NewPCG(7, 8))
 	f := &forest.Forest{Task: forest.Classification, Classes: []string{"healthy", "cavitation"}, Combine: forest.Average}
@@ -417,9 +413,7 @@ func TestCMillionNodes(t *testing.T) {
 // every matrix is done with it (the sanitizer build only by clang, else
 // dropped), so C is verified with any one of gcc, clang and cc.
 func TestCBuildsOneCompiler(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(testConfig.AllCompilers))
 	saved := cToolsOnce.version
 	defer func() { cToolsOnce.version = saved }()
 	for _, only := range []string{"gcc", "clang", "cc"} {

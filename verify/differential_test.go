@@ -4,8 +4,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/sawmill-dev/sawmill/internal/goldencase"
-	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"path/filepath"
@@ -17,6 +15,8 @@ import (
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
 )
 
 // Differential testing after Yang, Chen, Eide and Regehr, "Finding and

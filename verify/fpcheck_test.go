@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"context"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -14,6 +13,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestCFPCheck holds the emitted NAME_fp_check to what it promises on this
@@ -26,12 +26,7 @@ import (
 // long double (FLT_EVAL_METHOD 2, gcc's documentation of -mfpmath), which
 // double C refuses with #error unless NAME_ALLOW_INEXACT_FP is defined.
 func TestCFPCheck(t *testing.T) {
-	if _, err := exec.LookPath("gcc"); err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatal("gcc is not on PATH, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: gcc is not on PATH")
-	}
+	testenv.Tool(t, "gcc", "")
 	f, err := forest.ReadFile(filepath.Join(goldenCases, "edge-softmax", "model.json"))
 	require.NoError(t, err)
 	for _, float := range []bool{false, true} {

@@ -12,6 +12,7 @@ import (
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/gotarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // handForest is a small forest written out for one edge case.
@@ -223,9 +224,8 @@ func edgeRows(f *forest.Forest, n int, seed uint64) *forest.Rows {
 }
 
 func TestGoHandForests(t *testing.T) {
-	if _, err := goEnv(); err != nil {
-		t.Skip("no go command on PATH: the Go runner needs the toolchain")
-	}
+	_, err := goEnv()
+	testenv.Need(t, err)
 	for _, h := range handForests() {
 		t.Run(h.name, func(t *testing.T) {
 			if err := h.f.Validate(h.name); err != nil {
@@ -300,9 +300,8 @@ func TestGoEmittedHeader(t *testing.T) {
 // builds slowly) and a 3,000-deep one nested, which the nested layout keeps
 // flat, and scores both exactly.
 func TestGoDeepChain(t *testing.T) {
-	if _, err := goEnv(); err != nil {
-		t.Skip("no go command on PATH: the Go runner needs the toolchain")
-	}
+	_, err := goEnv()
+	testenv.Need(t, err)
 	for _, c := range []struct {
 		depth  int
 		layout string

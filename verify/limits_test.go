@@ -3,7 +3,6 @@ package verify
 import (
 	"context"
 	"fmt"
-	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"slices"
@@ -14,6 +13,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
 )
 
 // deepDepth is the depth of the deep-tree limit test, the depth the project

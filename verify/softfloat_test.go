@@ -3,7 +3,6 @@ package verify
 import (
 	"context"
 	"errors"
-	"os"
 	"path/filepath"
 	"testing"
 
@@ -12,6 +11,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // TestFloatCalls: on a Cortex-M0, double C calls libgcc to compare and to
@@ -28,10 +28,7 @@ func TestFloatCalls(t *testing.T) {
 		for _, layout := range []string{"nested", "table"} {
 			calls, err := FloatCalls(context.Background(), p, ctarget.Options{Name: "wine", Layout: layout, Float: float})
 			if errors.Is(err, ErrNoARM) {
-				if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-					t.Fatal("arm-none-eabi-gcc is not on PATH, and SAWMILL_REQUIRE_ENGINES is set")
-				}
-				t.Skip("skipped: arm-none-eabi-gcc is not on PATH")
+				testenv.Need(t, err)
 			}
 			require.NoError(t, err)
 			t.Logf("float %v %s: %v", float, layout, calls)

@@ -3,13 +3,14 @@ package verify
 import (
 	"context"
 	"fmt"
-	"github.com/sawmill-dev/sawmill/internal/goldencase"
-	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
+
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -49,10 +50,7 @@ func runSelftest(t *testing.T, r sqlRunner, shell bool, script string) []string 
 	if shell {
 		path, _, err := SQLiteShell()
 		if err != nil {
-			if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-				t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-			}
-			t.Skipf("skipped: %v", err)
+			testenv.Need(t, err)
 		}
 		cmd := exec.Command(path, "-batch", "-bail", filepath.Join(t.TempDir(), "selftest.db"))
 		cmd.Stdin = strings.NewReader(script)

@@ -3,6 +3,7 @@ package verify
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"strconv"
@@ -12,6 +13,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/sqltarget"
 	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // The spark runner's own tests: the engine facts spark text relies on
@@ -25,10 +27,7 @@ func sparkTestPython(t *testing.T) string {
 	t.Helper()
 	p, _, err := SparkPython()
 	if err != nil {
-		if requireEngines {
-			t.Fatalf("spark: %v, and SAWMILL_REQUIRE_ENGINES is set", err)
-		}
-		t.Skipf("skipped: spark: %v", err)
+		testenv.Need(t, fmt.Errorf("spark: %w", err))
 	}
 	return p
 }

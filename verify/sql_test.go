@@ -4,13 +4,15 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/sawmill-dev/sawmill/internal/goldencase"
-	"github.com/sawmill-dev/sawmill/internal/randmodel"
 	"math"
 	"os"
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/randmodel"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -37,10 +39,7 @@ func sqlSession(t *testing.T, r sqlRunner) *sqlDB {
 	t.Helper()
 	db, err := r.open(context.Background(), "")
 	if errors.Is(err, ErrSkip) {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatalf("%s: %v, and SAWMILL_REQUIRE_ENGINES is set", r.engine, err)
-		}
-		t.Skipf("skipped: %s: %v", r.engine, err)
+		testenv.Need(t, fmt.Errorf("%s: %w", r.engine, err))
 	}
 	if err != nil {
 		t.Fatal(err)
@@ -269,10 +268,7 @@ func sqlCheckVariants(t *testing.T, f *forest.Forest, rows *forest.Rows, o sqlta
 					return oo, nil
 				})
 				if errors.Is(err, ErrSkip) {
-					if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-						t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-					}
-					t.Skipf("skipped: %v", err)
+					testenv.Need(t, err)
 				}
 				if err != nil {
 					t.Fatal(err)

@@ -139,15 +139,18 @@ type Check struct {
 	// Float32Inputs says the target takes float32 inputs (C's float
 	// variant), so the reference is the model on the rows rounded to
 	// float32, all the target receives.
-	Float32Inputs   bool   `json:"float32_inputs,omitempty"`
-	Bound           Num    `json:"bound,omitempty"`
-	Rows            int    `json:"rows"`
-	Matches         int    `json:"matches"` // rows whose outputs and class agree
-	LabelMismatches int    `json:"label_mismatches"`
-	MaxAbsDiff      Num    `json:"max_abs_diff"`
-	First           *Row   `json:"first_mismatch,omitempty"`
-	Build           Millis `json:"build_ms"`
-	Run             Millis `json:"run_ms"`
+	Float32Inputs   bool `json:"float32_inputs,omitempty"`
+	Bound           Num  `json:"bound,omitempty"`
+	Rows            int  `json:"rows"`
+	Matches         int  `json:"matches"` // rows whose outputs and class agree
+	LabelMismatches int  `json:"label_mismatches"`
+	// OpenLabels counts the rows where a lossy build's label may differ:
+	// the reference's top two outputs are within twice the bound.
+	OpenLabels int    `json:"open_labels,omitempty"`
+	MaxAbsDiff Num    `json:"max_abs_diff"`
+	First      *Row   `json:"first_mismatch,omitempty"`
+	Build      Millis `json:"build_ms"`
+	Run        Millis `json:"run_ms"`
 	// Toolchain names the compilers and their versions that built the
 	// target (the C runner's builds), when the runner says.
 	Toolchain string `json:"toolchain,omitempty"`
@@ -420,7 +423,7 @@ func runCheck(ctx context.Context, ch *Check, r Runner, p *compile.Program, rows
 		return nil
 	}
 	m := Compare(want, res.Outputs, wantCls, res.Classes, k, exact, bound)
-	ch.Matches, ch.LabelMismatches, ch.MaxAbsDiff = m.Exact, m.LabelMismatch, Num(m.MaxAbsDiff)
+	ch.Matches, ch.LabelMismatches, ch.MaxAbsDiff, ch.OpenLabels = m.Exact, m.LabelMismatch, Num(m.MaxAbsDiff), m.Open
 	if m.OK() {
 		ch.Status = Agree
 		return res.Outputs

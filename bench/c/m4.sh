@@ -7,6 +7,7 @@
 #
 # Usage: bench/c/m4.sh [ROWS] [TREES] [DEPTH]      (defaults 20000 100 8)
 #   MAX_BINS=N   train with --max-bins N (splits at N-1 quantile edges per feature)
+#   INT_LEAVES=N also the sizes with leaves as scaled intN (compile --int-leaves N, lossy)
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 rows=${1:-20000}
@@ -19,4 +20,4 @@ go build -o "$tmp/c-bench" ./bench/c
 go build -o "$tmp/sawmill" ./cmd/sawmill
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "$rows" -seed 1
 "$tmp/sawmill" train "$tmp/data.csv" --label label --task classification --trees "$trees" --max-depth "$depth" --seed 1 ${MAX_BINS:+--max-bins "$MAX_BINS"} -o "$tmp/model.json" >/dev/null
-"$tmp/c-bench" -model "$tmp/model.json" -sizes
+"$tmp/c-bench" -model "$tmp/model.json" -sizes ${INT_LEAVES:+-int-leaves "$INT_LEAVES"}

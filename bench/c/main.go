@@ -48,9 +48,10 @@ func main() {
 	cLayouts := flag.String("c", "nested,table,table-batch,table-float,table-2threads", "C sides: comma-separated layouts, -float for float C, -batch to score through model_predict_batch, -2threads for two threads")
 	goLayouts := flag.String("go", "nested,table,branchless", "emitted Go layouts")
 	sizes := flag.Bool("sizes", false, "print the table sizes of each layout and the Cortex-M4 object sizes, then stop")
+	intLeaves := flag.Int("int-leaves", 0, "with -sizes, also the sizes with leaves as scaled integers of 16 or 32 bits (compile --int-leaves)")
 	flag.Parse()
 	if *sizes {
-		if err := printSizes(*model); err != nil {
+		if err := printSizes(*model, *intLeaves); err != nil {
 			fmt.Fprintln(os.Stderr, "c-bench:", err)
 			os.Exit(1)
 		}
@@ -215,27 +216,36 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 	return nil
 }
 
-// printSizes prints, for double and float C, each layout's tables and,
-// when arm-none-eabi-gcc is on PATH, the object's sections for a Cortex-M4.
-func printSizes(modelPath string) error {
+// printSizes prints, for double and float C (and with intLeaves double C
+// with integer leaves), each layout's tables and, when arm-none-eabi-gcc is
+// on PATH, the object's sections for a Cortex-M4.
+func printSizes(modelPath string, intLeaves int) error {
 	f, err := forest.ReadFile(modelPath)
 	if err != nil {
 		return err
 	}
-	for _, fl := range []bool{false, true} {
+	builds := []ctarget.Options{{}, {Float: true}}
+	if intLeaves != 0 {
+		builds = append(builds, ctarget.Options{IntLeaves: intLeaves}, ctarget.Options{IntLeaves: intLeaves, Float: true})
+	}
+	for _, o := range builds {
+		fl := o.Float
 		p, _, err := compile.Compile(f, compile.Options{SingleInputs: fl})
 		if err != nil {
 			return err
 		}
-		sizes, err := verify.MeasureARM(context.Background(), p, ctarget.Options{Float: fl})
+		sizes, err := verify.MeasureARM(context.Background(), p, o)
 		if errors.Is(err, verify.ErrNoARM) {
 			fmt.Println("arm-none-eabi-gcc is not on PATH: tables only")
-			sizes, err = verify.CSizes(p, ctarget.Options{Float: fl})
+			sizes, err = verify.CSizes(p, o)
 		}
 		if err != nil {
 			return err
 		}
 		ft := map[bool]string{false: "double", true: "float"}[fl]
+		if o.IntLeaves != 0 {
+			ft += fmt.Sprintf(", int%d leaves", o.IntLeaves)
+		}
 		fmt.Printf("%s: %d trees, %d nodes (%d leaves), depth %d\n", ft, len(p.Trees), p.NumNodes(), p.NumLeaves(), p.MaxDepth())
 		for _, s := range sizes {
 			fmt.Printf("  %s/%s: tables %d bytes, %.2f bytes per node\n", s.Layout, ft, s.TableBytes, s.BytesPerNode())

@@ -90,6 +90,7 @@ type compileFlags struct {
 	tables    string
 	budget    budgetFlags
 	intFeats  []string // features that arrive as integers
+	intLeaves int      // C: leaves as scaled integers of 16 or 32 bits (lossy), 0 for exact
 }
 
 func newCompileCmd() *cobra.Command {
@@ -137,6 +138,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.BoolVar(&fl.selftest, "selftest", false, "SQL: also write selftest.sql, which scores the probe rows verify generates and returns those that differ; C: also write NAME_selftest.c, whose NAME_selftest() returns 0 or the first probe row that differs")
 	fl.budget.add(f)
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
+	f.IntVar(&fl.intLeaves, "int-leaves", 0, "C: lossy: store leaves as scaled int16 or int32 (16 or 32) summed in integers, with NAME_predict_scaled; prints and writes in NAME.h the derived error bound per output")
 	f.BoolVar(&fl.leafVals, "leaf-values", false, "C: store a classification forest's leaves as numbers in the table and binned layouts, not as class counts divided at run time (faster, larger)")
 	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	return c
@@ -190,6 +192,9 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 	}
 	if err := writeGenerated(fl.out, files, fl.force, modelPath, fl.sample); err != nil {
 		return err
+	}
+	if err := printIntLeafBounds(c.OutOrStdout(), p, fl); err != nil {
+		return fmt.Errorf("%s: %v", modelPath, err)
 	}
 	size := 0
 	for _, file := range files {

@@ -20,6 +20,7 @@ import (
 
 func newInspectCmd() *cobra.Command {
 	var asJSON, cSizes bool
+	var intLeaves int
 	c := &cobra.Command{
 		Use:   "inspect MODEL.json [--json]",
 		Short: "Show what is in a model: trees, nodes, depth, features, sizes",
@@ -53,10 +54,11 @@ Only nodes reachable from a tree's root are counted.`,
 			if err != nil {
 				return err
 			}
-			return printCSizes(c.Context(), c.OutOrStdout(), args[0], f)
+			return printCSizes(c.Context(), c.OutOrStdout(), args[0], f, intLeaves)
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
+	c.Flags().IntVar(&intLeaves, "int-leaves", 0, "with --c-sizes, also the double build with leaves as scaled integers of 16 or 32 bits (compile --int-leaves, lossy)")
 	c.Flags().BoolVar(&cSizes, "c-sizes", false, "also print per C layout the tables' bytes, the most splits a prediction tests and, with arm-none-eabi-gcc, Cortex-M4 flash and stack, and with QEMU instructions per prediction on a Cortex-M4 and M0")
 	return c
 }

@@ -22,18 +22,23 @@ const countRows = 32
 // arm-none-eabi-gcc is on PATH, the flash the object takes on a Cortex-M4
 // (.text + .rodata, compiled -Os -mthumb) and predict's stack; and when
 // QEMU is there too, instructions per prediction on the Cortex-M4 and (for
-// double) the Cortex-M0, mean and worst over the first probe rows.
-func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest) error {
+// double) the Cortex-M0, mean and worst over the first probe rows. With
+// intLeaves, the double build with integer leaves of that many bits too.
+func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest, intLeaves int) error {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tsplits\tCortex-M4 .text\t.rodata\tflash\tstack\tM4 instr mean\tworst\tM0 instr mean\tworst\t")
 	rows := countingRows(f)
 	var notes []string
-	for _, float := range []bool{false, true} {
+	builds := []ctarget.Options{{}, {Float: true}}
+	if intLeaves != 0 {
+		builds = append(builds, ctarget.Options{IntLeaves: intLeaves})
+	}
+	for _, o := range builds {
+		float := o.Float
 		p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(float))
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}
-		o := ctarget.Options{Float: float}
 		sizes, err := verify.MeasureARM(ctx, p, o)
 		if errors.Is(err, verify.ErrNoARM) {
 			notes = appendOnce(notes, fmt.Sprintf("(%s is not on PATH: no Cortex-M4 sizes)", verify.ARMCompiler))
@@ -46,6 +51,9 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		if float {
 			kind, boards = "float", []string{"m4-float"}
 		}
+		if o.IntLeaves != 0 {
+			kind = fmt.Sprintf("double int%d", o.IntLeaves)
+		}
 		for _, s := range sizes {
 			arm := "\t\t\t"
 			if s.ARM != nil {
@@ -53,7 +61,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 			}
 			counts := ""
 			for _, b := range boards {
-				in, err := verify.CountInstructions(ctx, p, s.Layout, b, rows)
+				in, err := verify.CountInstructionsWith(ctx, p, s.Layout, b, o.IntLeaves, rows)
 				switch {
 				case errors.Is(err, verify.ErrSkip):
 					notes = appendOnce(notes, fmt.Sprintf("(no instruction counts: %v)", err))

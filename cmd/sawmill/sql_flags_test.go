@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 )
@@ -57,13 +58,7 @@ func TestCompileSQLSelftest(t *testing.T) {
 	script, err := os.ReadFile(filepath.Join(dir, "selftest.sql"))
 	require.NoError(t, err)
 	assert.Contains(t, string(script), "No row returned is the proof")
-	shell, err := exec.LookPath("sqlite3")
-	if err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatal("no sqlite3 shell, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: no sqlite3 shell on PATH")
-	}
+	shell := testenv.Tool(t, "sqlite3", "Debian package sqlite3")
 	cmd := exec.Command(shell, "-batch", "-bail", ":memory:")
 	cmd.Stdin = strings.NewReader(string(script))
 	out, err := cmd.CombinedOutput()
@@ -91,12 +86,7 @@ func TestCompileCSelftest(t *testing.T) {
 	src, err := os.ReadFile(filepath.Join(dir, "pump_selftest.c"))
 	require.NoError(t, err)
 	assert.Contains(t, string(src), "int pump_selftest(void)")
-	if _, err := exec.LookPath("gcc"); err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatal("no gcc, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: no gcc on PATH")
-	}
+	testenv.Tool(t, "gcc", "")
 	main := "int pump_selftest(void);\nint main(void) { return pump_selftest(); }\n"
 	require.NoError(t, os.WriteFile(filepath.Join(dir, "main.c"), []byte(main), 0o644))
 	build := exec.Command("gcc", "-std=c99", "-O2", "-o", "st", "main.c", "pump.c", "pump_selftest.c", "-lm")

@@ -34,6 +34,7 @@ type verifyFlags struct {
 	require   bool
 	asJSON    bool
 	boards    bool // add the QEMU runners (verify.Config.Boards)
+	intLeaves int  // C: integer leaves (verify.Config.IntLeaves)
 	expected  string
 	tolerance float64
 }
@@ -103,6 +104,7 @@ fail the run, unless --require is given.`,
 	f.BoolVar(&fl.probes, "probes", false, "with --data, add the generated rows too")
 	f.BoolVar(&fl.require, "require", false, "fail when a target could not run (no compiler, no server)")
 	f.BoolVar(&fl.asJSON, "json", false, "print the report as JSON")
+	f.IntVar(&fl.intLeaves, "int-leaves", 0, "C: check the lossy build of compile --int-leaves 16|32: outputs within its derived bound, labels wherever the bound decides them")
 	f.BoolVar(&fl.boards, "boards", false, "also run the C on boards under QEMU (target c-board: variants m4, m4-float, m0, rv32, arm64) and the Go on arm64 (go-arm64)")
 	f.StringVar(&fl.expected, "expected", "", "outputs the training library recorded for the --data rows (CSV: columns named like predict's, or one per output), to hold the model and every target against")
 	f.Float64Var(&fl.tolerance, "tolerance", DefaultTolerance, "with --expected, the largest |difference| from a recorded output that still agrees")
@@ -116,10 +118,10 @@ func runVerify(c *cobra.Command, modelPath string, fl *verifyFlags) error {
 	if fl.maxRows < 0 {
 		return usageError{fmt.Errorf("sawmill verify: --max-rows %d: must be 0 (no cap) or more\nhint: see 'sawmill verify -h'", fl.maxRows)}
 	}
-	runners := verify.Runners()
-	if fl.boards {
-		runners = verify.RunnersWith(verify.Config{Boards: true})
+	if fl.intLeaves != 0 && fl.intLeaves != 16 && fl.intLeaves != 32 {
+		return usageError{fmt.Errorf("sawmill verify: --int-leaves %d: must be 16 or 32\nhint: see 'sawmill verify -h'", fl.intLeaves)}
 	}
+	runners := verify.RunnersWith(verify.Config{Boards: fl.boards, IntLeaves: fl.intLeaves})
 	if err := checkVerifyFlags(fl, runners); err != nil {
 		return err
 	}
@@ -291,6 +293,9 @@ func printVerify(w io.Writer, modelPath, dataPath string, rep *verify.Report) {
 		}
 		if ch.Float32Inputs {
 			cmp += ", float32 inputs"
+		}
+		if ch.OpenLabels > 0 {
+			cmp += fmt.Sprintf(", %d rows within 2x the bound of a label change", ch.OpenLabels)
 		}
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%s\t%d\t%s\t%s\t%s\n", name, layout, ch.Status, ch.Rows, ch.Matches,
 			diffString(float64(ch.MaxAbsDiff)), ch.LabelMismatches, seconds(time.Duration(ch.Build)), seconds(time.Duration(ch.Run)), cmp)

@@ -52,6 +52,13 @@
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
+//
+// One option is lossy, and only on request: Options.IntLeaves (16 or 32)
+// stores each leaf as a scaled integer, sums them in integers
+// (NAME_predict_scaled) and derives, prints in the header and hands verify
+// a bound on every output's error (intleaves.go); with the binned layout
+// the class label then needs no floating point at all. Tables and binned
+// only: auto picks binned.
 package ctarget
 
 import (
@@ -95,6 +102,11 @@ type Options struct {
 	// as class counts and divided at run time (counts.go): no division per
 	// tree and output, at two to eight times the bytes of a leaf row.
 	LeafValues bool
+	// IntLeaves, 16 or 32, stores every leaf as a scaled integer of that
+	// many bits and sums them in integers (intleaves.go): lossy, within a
+	// bound derived from the model and written in the header. 0 keeps the
+	// exact floating-point leaves. Table and binned layouts only.
+	IntLeaves int
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -126,6 +138,14 @@ func Target() emit.Target {
 
 // Resolve returns the layout Emit writes p in under o, and why.
 func Resolve(p *compile.Program, o Options) (string, string, error) {
+	if o.IntLeaves != 0 {
+		return resolveIntLeaves(p, o)
+	}
+	return resolveLayout(p, o)
+}
+
+// resolveLayout is Resolve for floating-point leaves.
+func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 	switch o.Layout {
 	case emit.Nested, emit.Table:
 		return o.Layout, "asked for", nil
@@ -179,7 +199,11 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 	default:
 		panic("BUG: ctarget: layout " + g.layout)
 	}
-	g.finish(&body)
+	if g.il != nil {
+		g.finishScaled(&body)
+	} else {
+		g.finish(&body)
+	}
 	g.writeBatch(&body)
 	files := []emit.File{
 		{Name: g.name + ".h", Data: g.header()},
@@ -223,6 +247,8 @@ type gen struct {
 	batch    func(w *printer)
 	featMac  []string // NAME_F_... macro per feature
 	classMac []string // NAME_C_... macro per class
+	// il is the integer leaves' scale and bound (Options.IntLeaves), or nil.
+	il *intLeaves
 }
 
 // Table is one static array of the generated code.
@@ -283,6 +309,11 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	}
 	if g.base, err = g.narrow(p.BaseScore); err != nil {
 		return nil, fmt.Errorf("base score %v", err)
+	}
+	if o.IntLeaves != 0 {
+		if g.il, err = g.newIntLeaves(o.IntLeaves); err != nil {
+			return nil, err
+		}
 	}
 	g.featMac = macroNames(g.upper+"_F_", featureNames(p))
 	if p.IsClassifier() {
@@ -595,6 +626,9 @@ func (g *gen) header() []byte {
 	w.line(" * At most %d splits are tested per prediction (the sum of the trees' depths).", WorstSplits(p))
 	w.line(" *")
 	switch {
+	case g.il != nil:
+		w.line(" * Arithmetic: comparisons are exact, the leaves are not (LOSSY, below); the")
+		w.line(" * sums are turned into %s and finished in %s.", g.at, g.at)
 	case g.f32:
 		w.line(" * Arithmetic: the model accumulates in float32, and so does this code: every")
 		w.line(" * addition, the division of an average, the scale and the transform are")
@@ -625,6 +659,9 @@ func (g *gen) header() []byte {
 		}
 		w.line(" * With x87 excess precision (FLT_EVAL_METHOD 2) sums may differ in the")
 		w.line(" * last bit; comparisons stay exact.")
+	}
+	if g.il != nil {
+		g.intLeavesDoc(&w)
 	}
 	w.line(" * Build without -ffast-math, -ffinite-math-only, -funsafe-math-optimizations")
 	w.line(" * or flush-to-zero: missing values are NaN and signed zeros and subnormals")
@@ -679,6 +716,9 @@ func (g *gen) header() []byte {
 		w.line("int %s_predict_class(const %s *x);", g.name, ft)
 	}
 	g.fpHeaderDecl(&w)
+	if g.il != nil {
+		g.intLeavesDecl(&w)
+	}
 	w.line("")
 	w.line("/* The model's feature names, in input order (UTF-8). */")
 	w.line("extern const char *const %s_feature_names[%s_NUM_FEATURES];", g.name, u)
@@ -1042,6 +1082,10 @@ func floatConst(v float64) string {
 // the base score for a sum, zero for an average.
 func (g *gen) predictStart(w *printer, locals ...string) {
 	p := g.p
+	if g.il != nil {
+		g.scaledStart(w, locals)
+		return
+	}
 	w.line("void %s_predict(const %s *x, %s *out)", g.name, g.ft, g.ft)
 	w.line("{")
 	w.in()

@@ -35,9 +35,10 @@ const maxLeafCount = 1<<16 - 1
 
 // leafCountsOf returns the counts of tl's leaf rows, or nil when some row
 // is not a vector of fractions with one denominator (or the model is not
-// one whose every tree adds a class-share vector to every output).
+// one whose every tree adds a class-share vector to every output, or the
+// leaves are lossy scaled integers, intleaves.go).
 func (g *gen) leafCountsOf(tl *tableLayout) *leafCounts {
-	if g.o.LeafValues || tl.hasOut || tl.mixed || tl.width < 2 || !g.p.IsClassifier() {
+	if g.o.LeafValues || g.il != nil || tl.hasOut || tl.mixed || tl.width < 2 || !g.p.IsClassifier() {
 		return nil
 	}
 	lc := &leafCounts{rows: make([][]uint32, len(tl.leafRows.vecs)), floatDiv: g.at == "float"}

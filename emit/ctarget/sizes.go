@@ -44,7 +44,7 @@ func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	var out []Size
 	for _, l := range Layouts() {
 		s, err := sizeOf(p, o, l)
-		if err != nil && (l == emit.Binned || l == Bitvector) {
+		if err != nil && (l == emit.Binned || l == Bitvector || o.IntLeaves != 0 && l == emit.Nested) {
 			continue
 		}
 		if err != nil {

@@ -455,6 +455,9 @@ func (tl *tableLayout) thrElemBytes(g *gen) int {
 }
 
 func (tl *tableLayout) leafElemBytes(g *gen) int {
+	if g.il != nil {
+		return g.il.bits / 8
+	}
 	if tl.counts != nil {
 		return tl.counts.bytes
 	}
@@ -562,7 +565,9 @@ func (g *gen) table(w *printer) error {
 	t.outputsAndLeaves()
 	t.walkTests()
 	t.predict()
-	g.batch = t.predictBatch
+	if g.il == nil {
+		g.batch = t.predictBatch
+	}
 	return nil
 }
 
@@ -587,6 +592,10 @@ func newTableWriter(g *gen, tl *tableLayout, w *printer) *tableWriter {
 	t.exactNote = map[bool]string{true: " (all exact as float)"}[t.lt != g.at]
 	if t.lt != g.at {
 		t.conv = "(double)"
+	}
+	if g.il != nil {
+		t.lt, t.llit, t.conv = g.il.leafType(), g.il.leafLit, ""
+		t.exactNote = fmt.Sprintf(", scaled by 2^%d and rounded (%s_LEAF_SCALE)", g.il.shift, g.upper)
 	}
 	if tl.counts != nil {
 		t.lt, t.conv = uintType(tl.counts.bytes), ""

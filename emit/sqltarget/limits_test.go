@@ -2,7 +2,6 @@ package sqltarget
 
 import (
 	"fmt"
-	"os"
 	"os/exec"
 	"regexp"
 	"strconv"
@@ -14,6 +13,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/forest"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // stockShell returns Debian's sqlite3 shell (the stock build most SQLite
@@ -21,13 +21,7 @@ import (
 // SAWMILL_REQUIRE_ENGINES is set.
 func stockShell(t *testing.T) string {
 	t.Helper()
-	p, err := exec.LookPath("sqlite3")
-	if err != nil {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatalf("no sqlite3 shell on PATH, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skipf("skipped: no sqlite3 shell on PATH (Debian: apt-get install sqlite3)")
-	}
+	p := testenv.Tool(t, "sqlite3", "Debian package sqlite3")
 	return p
 }
 

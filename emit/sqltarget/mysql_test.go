@@ -15,6 +15,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/sawmill-dev/sawmill/emit"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // mysqlConn opens one connection to the server $SAWMILL_MYSQL_DSN names
@@ -25,10 +26,7 @@ func mysqlConn(t *testing.T) *sql.Conn {
 	t.Helper()
 	dsn := os.Getenv("SAWMILL_MYSQL_DSN")
 	if dsn == "" {
-		if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
-			t.Fatalf("SAWMILL_MYSQL_DSN is not set, and SAWMILL_REQUIRE_ENGINES is set")
-		}
-		t.Skip("skipped: no MySQL/MariaDB server given (SAWMILL_MYSQL_DSN)")
+		testenv.Need(t, errors.New("no MySQL/MariaDB server given (SAWMILL_MYSQL_DSN)"))
 	}
 	db, err := sql.Open("mysql", dsn)
 	require.NoError(t, err)
