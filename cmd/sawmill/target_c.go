@@ -18,7 +18,7 @@ import (
 // NAME_threads.h and NAME_threads.c, and with --selftest NAME_selftest.c
 // beside them.
 func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads, IntLeaves: fl.intLeaves, ConstantTime: fl.constTime}
+	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads, IntLeaves: fl.intLeaves, ConstantTime: fl.constTime, LeafValues: fl.leafVals}
 	files, err := ctarget.Emit(p, o)
 	if err != nil || !fl.selftest {
 		return files, err

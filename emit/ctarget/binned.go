@@ -142,6 +142,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	}
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
+	tl.counts = g.leafCountsOf(tl)
 	// A float32 model's double build has its cuts as floats (tl.round32)
 	// and rounds its inputs to nearest; otherwise thresholds are in the
 	// input's type.
@@ -308,7 +309,7 @@ func (g *gen) binnedLeaves(tl *tableLayout) {
 		nRows = max(nRows, len(tl.rows1.vecs))
 	}
 	nLeaves, k, vb := len(tl.leafOf), tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.mixed && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
+	tl.direct = !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
 }
 
 // bands turns the missing band and the zero band into keys.

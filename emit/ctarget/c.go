@@ -116,6 +116,11 @@ type Options struct {
 	// NAME_predict_batch_threads, NAME_predict_batch on POSIX threads, in
 	// files of their own that a build without threads leaves out.
 	Threads bool
+	// LeafValues keeps a classification forest's leaf values as numbers in
+	// the table and binned layouts, where they would otherwise be stored
+	// as class counts and divided at run time (counts.go): no division per
+	// tree and output, at two to eight times the bytes of a leaf row.
+	LeafValues bool
 	// IntLeaves, 16 or 32, stores every leaf as a scaled integer of that
 	// many bits and sums them in integers (intleaves.go): lossy, within a
 	// bound derived from the model and written in the header. 0 keeps the
@@ -270,7 +275,8 @@ type gen struct {
 	tables   []Table // static tables of NAME.c, for the size report
 	comments bool
 	// tableMode forces the table layout's leaf mode in tests: 1 leaves
-	// outside the words, 2 leaf rows in the words; 0 chooses the smaller.
+	// outside the words, 2 leaf rows in the words, 3 leaves outside and one
+	// threshold per split (inline); 0 chooses the smallest.
 	tableMode int
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.

@@ -290,13 +290,14 @@ func TestTableWalkMatchesEval(t *testing.T) {
 	rows, err := forest.ReadRowsFile(filepath.Join("..", "..", "golden", "testdata", "sklearn-wine", "rows.csv"), f.Features, forest.RowOptions{})
 	require.NoError(t, err)
 	p := compiled(t, f, false)
-	for _, mode := range []int{1, 2} {
+	for _, mode := range []int{1, 2, 3} {
 		g, err := newGen(p, Options{Layout: emit.Table})
 		require.NoError(t, err)
 		g.tableMode = mode
 		tl, err := g.buildTable()
 		require.NoError(t, err)
 		require.Equal(t, mode == 2, tl.inWord)
+		require.Equal(t, mode == 3, tl.inline)
 		require.True(t, tl.round32, "a float32 model's thresholds are stored as floats")
 		k := p.NumOutputs
 		want, got := make([]float64, k), make([]float64, k)
@@ -315,6 +316,9 @@ func TestTableWalkMatchesEval(t *testing.T) {
 						ix += tl.thrBase[fe]
 					}
 					v, th := x[fe], tl.thr[ix]
+					if tl.inline {
+						th = tl.splitThr[i]
+					}
 					if tl.round32 {
 						v = float64(float32(v))
 					}

@@ -99,10 +99,12 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 // binned when the model can be binned and its tables are smaller than the
 // table layout's, else table. Binned tables are smaller when thresholds
 // repeat: a 100-tree depth-8 forest trained with --max-bins 255 takes
-// 212,584 bytes binned against 234,386 as a table (double C; the split
-// words shrink from 4 bytes to 3, the edges are floats so the cuts take 4); trained without bins, 375,180 against
-// 375,138 (the split words are 4 bytes either way), so table stays (the
-// figures of bench/c/m4.sh, with MAX_BINS=255 for the first). The price
+// 149,092 bytes binned against 170,894 as a table (double C, leaves as
+// class counts; the split words shrink from 4 bytes to 3, the edges are
+// floats so the cuts take 4); trained without bins, the table layout's
+// one threshold per split and 2-byte words take 274,802 bytes against
+// binned's 313,020, so table stays (the figures of bench/c/m4.sh, with
+// MAX_BINS=255 for the first). The price
 // is speed on a desktop core: its one-lane walk took 1.72 times the table
 // layout's time on the first forest (x86-64, gcc -O2, bench/c/binned.sh).
 func tableOrBinned(p *compile.Program, o Options, why string) (string, string, error) {

@@ -47,8 +47,13 @@ type tableLayout struct {
 	hasSole        bool      // some tree is a single leaf
 	perFeat        bool      // threshold index is local to the feature
 	thr            []float64 // distinct thresholds, by feature then value
-	thrBase        []int     // per feature, first index in thr (when perFeat)
-	thrFloat       bool      // every threshold is a float value
+	// inline: the threshold of split word i is splitThr[i], one per split
+	// in preorder, and the word holds no threshold index (chosen where
+	// thresholds rarely repeat, so the index costs more than the sharing saves).
+	inline   bool
+	splitThr []float64
+	thrBase  []int // per feature, first index in thr (when perFeat)
+	thrFloat bool  // every threshold is a float value
 	// round32: in double mode, every split is x op m with m the midpoint
 	// the float32 pass makes of a float threshold t32
 	// (compile.Program.Midpoints32), so the walk tests (float)x <= t32 and
@@ -71,6 +76,8 @@ type tableLayout struct {
 	leafOf    []int // per leaf in preorder, its row of leafRows (rows1 for a leaf of a tree of one output when mixed)
 	direct    bool  // leaf vectors stored per leaf, not by row
 	leafFloat bool  // every leaf value is a float value
+	// counts, when set, holds every leaf row as class counts (counts.go).
+	counts *leafCounts
 }
 
 // tableSplit is one split as buildTable collects it, before packing.
@@ -90,8 +97,8 @@ type tableSplit struct {
 // per feature or globally, leaf rows in the words or in a table of their
 // own; bits is the word's width in use and bytes what all tables take.
 type wordChoice struct {
-	perFeat, inWord bool
-	bits, bytes     int
+	perFeat, inWord, inline bool
+	bits, bytes             int
 }
 
 // buildTable lays the program out as tables: the leaf tables, the splits
@@ -100,6 +107,7 @@ type wordChoice struct {
 func (g *gen) buildTable() (*tableLayout, error) {
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
+	tl.counts = g.leafCountsOf(tl)
 	tl.round32 = !g.o.Float && g.p.Midpoints32
 	splits, thrSet := g.tableSplits(tl)
 	index, maxLocal := tl.thresholdTables(thrSet)
@@ -114,10 +122,16 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	if g.tableMode != 0 {
 		best.inWord = g.tableMode == 2
 	}
-	tl.perFeat, tl.inWord = best.perFeat, best.inWord
+	tl.perFeat, tl.inWord, tl.inline = best.perFeat, best.inWord, best.inline
 	tl.wordBits = wordBits(best.bits)
 	tl.tBits = bitsFor(len(tl.thr) - 1)
-	if tl.perFeat {
+	switch {
+	case tl.inline:
+		tl.tBits = 0
+		for _, s := range splits {
+			tl.splitThr = append(tl.splitThr, s.thr)
+		}
+	case tl.perFeat:
 		tl.tBits = bitsFor(maxLocal - 1)
 	}
 	tl.tBits = max(tl.tBits, bitsFor(len(g.sets.sets)-1))
@@ -127,7 +141,7 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	}
 	tl.packWords(splits, index)
 	nLeaves, nRows, k, vb := len(tl.leafOf), sizes.nRows, tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= nLeaves*intBytes(nRows-1)+nRows*k*vb
+	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
 	return tl, nil
 }
 
@@ -278,6 +292,15 @@ func (tl *tableLayout) leafValuesFloat() bool {
 	return true
 }
 
+// How the split words address their thresholds: an index into all the
+// distinct thresholds, an index into the feature's, or none (inline: one
+// threshold per split, in the words' order).
+const (
+	thrGlobal = iota
+	thrPerFeature
+	thrInline
+)
+
 // tableSizes are the field widths the word choice found: aBits for the
 // largest left subtree, rBits for the largest leaf row, of nRows rows.
 type tableSizes struct{ aBits, rBits, nRows int }
@@ -300,23 +323,32 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 	setBits := bitsFor(len(g.sets.sets) - 1)
 	var best *wordChoice
 	for _, inWord := range []bool{false, true} {
-		for _, perFeat := range []bool{false, true} {
+		for _, addr := range []int{thrGlobal, thrPerFeature, thrInline} {
+			if addr == thrInline && (tl.hasSet || g.tableMode == 1 || g.tableMode == 2) || addr != thrInline && g.tableMode == 3 {
+				continue // a set split's index is its set number; tableMode forces a choice in tests
+			}
+			perFeat := addr == thrPerFeature
 			tb := bitsFor(len(tl.thr) - 1)
 			if perFeat {
 				tb = bitsFor(maxLocal - 1)
 			}
 			tb = max(tb, setBits)
-			c := wordChoice{perFeat: perFeat, inWord: inWord}
+			c := wordChoice{perFeat: perFeat, inWord: inWord, inline: addr == thrInline}
+			if c.inline {
+				tb = 0
+				c.bytes += (len(splits) - len(tl.thr)) * tl.thrElemBytes(g) // beside the distinct ones
+			}
+			leafBytes := rowBytes
 			if inWord {
 				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
-				c.bytes = rowBytes
 			} else {
 				c.bits = tl.fBits + tb + flags + aBits
-				c.bytes = nLeaves*intBytes(nRows-1) + rowBytes
+				leafBytes += leafRowBytes(nLeaves, nRows)
 				if !tl.mixed {
-					c.bytes = min(c.bytes, nLeaves*k*vb)
+					leafBytes = min(leafBytes, nLeaves*k*vb)
 				}
 			}
+			c.bytes += leafBytes
 			if perFeat {
 				c.bytes += len(p.Features) * intBytes(len(tl.thr))
 			}
@@ -337,9 +369,12 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 func (tl *tableLayout) packWords(splits []tableSplit, index []map[uint64]int) {
 	for _, s := range splits {
 		var ti int
-		if s.set >= 0 {
+		switch {
+		case s.set >= 0:
 			ti = s.set
-		} else {
+		case tl.inline:
+			ti = 0
+		default:
 			ti = index[s.feature][math.Float64bits(s.thr)]
 			if !tl.perFeat {
 				ti += tl.thrBase[s.feature]
@@ -422,6 +457,9 @@ func (tl *tableLayout) thrElemBytes(g *gen) int {
 func (tl *tableLayout) leafElemBytes(g *gen) int {
 	if g.il != nil {
 		return g.il.bits / 8
+	}
+	if tl.counts != nil {
+		return tl.counts.bytes
 	}
 	if g.at == "float" || tl.leafFloat {
 		return 4
@@ -559,18 +597,33 @@ func newTableWriter(g *gen, tl *tableLayout, w *printer) *tableWriter {
 		t.lt, t.llit, t.conv = g.il.leafType(), g.il.leafLit, ""
 		t.exactNote = fmt.Sprintf(", scaled by 2^%d and rounded (%s_LEAF_SCALE)", g.il.shift, g.upper)
 	}
+	if tl.counts != nil {
+		t.lt, t.conv = uintType(tl.counts.bytes), ""
+		t.exactNote = " as class counts c_j: the value of class j is c_j divided by the counts' sum"
+	}
 	return t
+}
+
+// leafLit is component j of leaf row r as its table stores it.
+func (t *tableWriter) leafLit(r, j int) string {
+	if t.tl.counts != nil {
+		return fmt.Sprintf("%du", t.tl.counts.rows[r][j])
+	}
+	return t.llit(t.tl.leafRows.vecs[r][j])
 }
 
 // splitWords writes NAME_node, the split words, one line per tree (or
 // several when long), under a comment spelling out the word's fields.
 func (t *tableWriter) splitWords() {
 	g, tl, w, p := t.g, t.tl, t.w, t.g.p
-	idxName := "threshold index"
-	if tl.hasSet {
-		idxName = "threshold index, or set number at a set split"
+	idx := fmt.Sprintf(", threshold index (%s)", nbits(tl.tBits))
+	if tl.inline {
+		idx = " (no threshold index: " + g.name + "_thr holds one threshold per word)"
 	}
-	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), %s (%s)%s%s%s%s,", nbits(tl.fBits), idxName, nbits(tl.tBits),
+	if tl.hasSet {
+		idx = fmt.Sprintf(", threshold index, or set number at a set split (%s)", nbits(tl.tBits))
+	}
+	w.line("/* Splits, per tree in preorder, low bits first: feature (%s)%s%s%s%s%s,", nbits(tl.fBits), idx,
 		map[bool]string{true: ", missing goes left (1 bit)"}[tl.hasML], map[bool]string{true: ", less-than (1 bit)"}[tl.hasLT],
 		map[bool]string{true: ", set split (1 bit)"}[tl.hasSet], map[bool]string{true: ", zero is missing (1 bit)"}[tl.hasZM])
 	if tl.inWord {
@@ -614,7 +667,10 @@ func (t *tableWriter) treeStarts() {
 // addressing NAME_thr_base.
 func (t *tableWriter) thresholds() {
 	g, tl, w := t.g, t.tl, t.w
-	nThr := max(len(tl.thr), 1)
+	if tl.inline {
+		t.inlineThresholds()
+		return
+	}
 	switch {
 	case tl.round32:
 		w.line("/* Distinct thresholds, by feature, ascending: each split is x <= t after rounding x to")
@@ -622,18 +678,7 @@ func (t *tableWriter) thresholds() {
 	default:
 		w.line("/* Distinct thresholds, by feature, ascending%s. */", map[bool]string{true: " (all exact as float)"}[t.tt != g.ft])
 	}
-	w.line("static const %s %s_thr[%d] = {", t.tt, g.name, nThr)
-	if len(tl.thr) == 0 {
-		w.line("\t0")
-	}
-	lit := g.lit
-	if t.tt == "float" {
-		lit = floatLit
-	}
-	g.numbers(w, len(tl.thr), func(i int) string { return lit(tl.thr[i]) })
-	w.line("};")
-	g.tables = append(g.tables, Table{g.name + "_thr", "distinct thresholds", nThr, tl.thrElemBytes(g)})
-	w.line("")
+	t.thrArray(tl.thr, "distinct thresholds")
 	bb := intBytes(len(tl.thr))
 	if tl.perFeat {
 		w.line("/* First threshold of each feature. */")
@@ -643,6 +688,34 @@ func (t *tableWriter) thresholds() {
 		g.tables = append(g.tables, Table{g.name + "_thr_base", "first threshold per feature", len(tl.thrBase), bb})
 		w.line("")
 	}
+}
+
+// inlineThresholds writes NAME_thr with one threshold per split word, in
+// the words' order.
+func (t *tableWriter) inlineThresholds() {
+	g, tl, w := t.g, t.tl, t.w
+	round := map[bool]string{true: ", each split being x <= t after rounding x to float, as the model's float32 comparisons do"}[tl.round32]
+	w.line("/* The threshold of each split word, in the same order%s%s. */", map[bool]string{true: " (all exact as float)"}[t.tt != g.ft && !tl.round32], round)
+	t.thrArray(tl.splitThr, "threshold per split")
+}
+
+// thrArray writes NAME_thr holding ths (one 0 when empty: C has no empty
+// arrays), in the threshold type, and records it as what.
+func (t *tableWriter) thrArray(ths []float64, what string) {
+	g, w := t.g, t.w
+	n := max(len(ths), 1)
+	w.line("static const %s %s_thr[%d] = {", t.tt, g.name, n)
+	if len(ths) == 0 {
+		w.line("\t0")
+	}
+	lit := g.lit
+	if t.tt == "float" {
+		lit = floatLit
+	}
+	g.numbers(w, len(ths), func(i int) string { return lit(ths[i]) })
+	w.line("};")
+	g.tables = append(g.tables, Table{g.name + "_thr", what, n, t.tl.thrElemBytes(g)})
+	w.line("")
 }
 
 // outputsAndLeaves writes what the walk adds once it reaches a leaf: the
@@ -680,23 +753,17 @@ func (t *tableWriter) outputsAndLeaves() {
 	case tl.direct:
 		w.line("/* Leaf vectors, per leaf in preorder%s. */", t.exactNote)
 		w.line("static const %s %s_leaf[%d] = {", t.lt, g.name, len(tl.leafOf)*k)
-		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return t.llit(tl.leafRows.vecs[tl.leafOf[i/k]][i%k]) })
+		g.numbers(w, len(tl.leafOf)*k, func(i int) string { return t.leafLit(tl.leafOf[i/k], i%k) })
 		w.line("};")
 		g.tables = append(g.tables, Table{g.name + "_leaf", "leaf vectors", len(tl.leafOf) * k, tl.leafElemBytes(g)})
 	default:
 		if !tl.inWord {
-			rb := intBytes(tl.maxRows() - 1)
-			w.line("/* Per leaf in preorder, its row of %s_leaf. */", g.name)
-			w.line("static const %s %s_leaf_row[%d] = {", uintType(rb), g.name, len(tl.leafOf))
-			g.numbers(w, len(tl.leafOf), func(i int) string { return fmt.Sprint(tl.leafOf[i]) })
-			w.line("};")
-			g.tables = append(g.tables, Table{g.name + "_leaf_row", "leaf row per leaf", len(tl.leafOf), rb})
-			w.line("")
+			t.writeLeafRows()
 		}
 		n := len(tl.leafRows.vecs)
 		w.line("/* Distinct leaf vectors%s. */", t.exactNote)
 		w.line("static const %s %s_leaf[%d] = {", t.lt, g.name, n*k)
-		g.numbers(w, n*k, func(i int) string { return t.llit(tl.leafRows.vecs[i/k][i%k]) })
+		g.numbers(w, n*k, func(i int) string { return t.leafLit(i/k, i%k) })
 		w.line("};")
 		g.tables = append(g.tables, Table{g.name + "_leaf", "distinct leaf vectors", n * k, tl.leafElemBytes(g)})
 	}
@@ -738,6 +805,9 @@ func (t *tableWriter) walkTests() {
 		idx = fmt.Sprintf("%s ? 0u : %s", t.bit(tl.setBit()), idx)
 	}
 	t.th = fmt.Sprintf("%s_thr[%s]", g.name, idx)
+	if tl.inline {
+		t.th = g.name + "_thr[i%[1]s]" // the lane's word index, filled in by step
+	}
 	if t.tt != t.vt {
 		t.th = "(double)" + t.th
 	}
@@ -809,7 +879,11 @@ func (t *tableWriter) step(l string) {
 	default:
 		w.line("const %s v = %s[f];", g.ft, t.xOf(l))
 	}
-	w.line("const %s th = %s;", t.vt, t.th)
+	th := t.th
+	if tl.inline {
+		th = fmt.Sprintf(th, l)
+	}
+	w.line("const %s th = %s;", t.vt, th)
 	if t.general {
 		xv := "v"
 		if tl.round32 {
@@ -854,7 +928,7 @@ func (t *tableWriter) step(l string) {
 // row is the row of the leaf table lane l reached.
 func (t *tableWriter) row(l string) string {
 	if !t.tl.direct && !t.tl.inWord {
-		return fmt.Sprintf("%s_leaf_row[at%s]", t.g.name, l)
+		return t.leafRowOf("at" + l)
 	}
 	return "at" + l
 }
@@ -874,6 +948,10 @@ func (t *tableWriter) addTo(dst, v string) string {
 func (t *tableWriter) add(l, tree string) {
 	g, tl, w := t.g, t.tl, t.w
 	full := func() {
+		if tl.counts != nil {
+			t.addCounts(l)
+			return
+		}
 		if t.k == 1 {
 			w.line("%s", t.addTo(t.accOf(l)+"[0]", t.conv+g.name+"_leaf["+t.row(l)+"]"))
 			return

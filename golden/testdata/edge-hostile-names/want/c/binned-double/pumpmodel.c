@@ -81,13 +81,13 @@ static const uint8_t pumpmodel_cut_base[17] = {
 	16,
 };
 
-/* Leaf vectors, per leaf in preorder (all exact as float). */
-static const float pumpmodel_leaf[34] = {
-	0.0f, 1.0f, 0.0625f, 0.9375f, 0.125f, 0.875f, 0.1875f, 0.8125f,
-	0.25f, 0.75f, 0.3125f, 0.6875f, 0.375f, 0.625f, 0.4375f, 0.5625f,
-	0.5f, 0.5f, 0.5625f, 0.4375f, 0.625f, 0.375f, 0.6875f, 0.3125f,
-	0.75f, 0.25f, 0.8125f, 0.1875f, 0.875f, 0.125f, 0.9375f, 0.0625f,
-	0.5f, 0.5f,
+/* Leaf vectors, per leaf in preorder as class counts c_j: the value of class j is c_j divided by the counts' sum. */
+static const uint8_t pumpmodel_leaf[34] = {
+	0u, 1u, 1u, 15u, 1u, 7u, 3u, 13u,
+	1u, 3u, 5u, 11u, 3u, 5u, 7u, 9u,
+	1u, 1u, 9u, 7u, 5u, 3u, 11u, 5u,
+	3u, 1u, 13u, 3u, 7u, 1u, 15u, 1u,
+	1u, 1u,
 };
 
 /* The bits of v: memcpy is the conversion C defines (no floating-point operation). */
@@ -208,8 +208,15 @@ void pumpmodel_predict(const double *x, double *out)
 				i += 1u + r * p1;
 			}
 		}
-		for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-			acc[j] += (double)pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+		{
+			const uint8_t *const cnt = &pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS];
+			uint32_t draws = 0u;
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				draws += cnt[j];
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				acc[j] += (double)cnt[j] / (double)draws;
+			}
 		}
 	}
 	acc[0] = acc[0] / 1.0 + 0.0;

@@ -40,8 +40,8 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_cut: cut keys, 16 x 4 = 64 bytes
  *   pumpmodel_cut_base: first cut per feature, 17 x 1 = 17 bytes
- *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
- *   total 235 bytes (7.12 bytes per node; code not counted)
+ *   pumpmodel_leaf: leaf vectors, 34 x 1 = 34 bytes
+ *   total 133 bytes (4.03 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

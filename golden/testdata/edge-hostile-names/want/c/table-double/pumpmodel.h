@@ -38,9 +38,9 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_node: split words, 16 x 2 = 32 bytes
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
- *   pumpmodel_thr: distinct thresholds, 16 x 4 = 64 bytes
- *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
- *   total 234 bytes (7.09 bytes per node; code not counted)
+ *   pumpmodel_thr: threshold per split, 16 x 4 = 64 bytes
+ *   pumpmodel_leaf: distinct leaf vectors, 32 x 1 = 32 bytes
+ *   total 130 bytes (3.94 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

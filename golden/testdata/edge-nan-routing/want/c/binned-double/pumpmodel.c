@@ -58,9 +58,9 @@ static const uint8_t pumpmodel_cut_base[3] = {
 	0, 1, 3,
 };
 
-/* Per leaf in preorder, its row of pumpmodel_leaf. */
-static const uint8_t pumpmodel_leaf_row[5] = {
-	0, 1, 2, 1, 3,
+/* Per leaf in preorder, its row of pumpmodel_leaf in 2 bits, 4 to a byte, low bits first. */
+static const uint8_t pumpmodel_leaf_row[2] = {
+	0x64u, 0x03u,
 };
 
 /* Distinct leaf vectors. */
@@ -149,7 +149,7 @@ void pumpmodel_predict(const double *x, double *out)
 				i += 1u + r * p1;
 			}
 		}
-		acc[0] += pumpmodel_leaf[pumpmodel_leaf_row[at0]];
+		acc[0] += pumpmodel_leaf[(((uint32_t)pumpmodel_leaf_row[at0 / 4u] >> ((at0 % 4u) * 2u)) & 3u)];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];

@@ -22,9 +22,9 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_cut: cut keys, 3 x 8 = 24 bytes
  *   pumpmodel_cut_base: first cut per feature, 3 x 1 = 3 bytes
- *   pumpmodel_leaf_row: leaf row per leaf, 5 x 1 = 5 bytes
+ *   pumpmodel_leaf_row: leaf row per leaf, 2 bits each, 2 x 1 = 2 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
- *   total 70 bytes (8.75 bytes per node; code not counted)
+ *   total 67 bytes (8.38 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

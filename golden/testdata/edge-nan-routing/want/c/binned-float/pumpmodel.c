@@ -58,9 +58,14 @@ static const uint8_t pumpmodel_cut_base[3] = {
 	0, 1, 2,
 };
 
-/* Leaf vectors, per leaf in preorder. */
-static const float pumpmodel_leaf[5] = {
-	1.5f, -0.0f, -2.25f, -0.0f, 0.0f,
+/* Per leaf in preorder, its row of pumpmodel_leaf in 2 bits, 4 to a byte, low bits first. */
+static const uint8_t pumpmodel_leaf_row[2] = {
+	0x64u, 0x03u,
+};
+
+/* Distinct leaf vectors. */
+static const float pumpmodel_leaf[4] = {
+	1.5f, -0.0f, -2.25f, 0.0f,
 };
 
 /* The bits of v: memcpy is the conversion C defines (no floating-point operation). */
@@ -144,7 +149,7 @@ void pumpmodel_predict(const float *x, float *out)
 				i += 1u + r * p1;
 			}
 		}
-		acc[0] += pumpmodel_leaf[at0];
+		acc[0] += pumpmodel_leaf[(((uint32_t)pumpmodel_leaf_row[at0 / 4u] >> ((at0 % 4u) * 2u)) & 3u)];
 	}
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];
