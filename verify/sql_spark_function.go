@@ -36,6 +36,9 @@ func (r sparkRunner) scoreSparkFunction(ctx context.Context, p *compile.Program,
 	fo.Keep = nil
 	fo.Function = sparkFunctionName
 	stmts, err := sqltarget.FunctionStatements(p, fo)
+	if errors.Is(err, sqltarget.ErrFunctionSize) {
+		return nil, fmt.Errorf("%w: %v", ErrDeclined, err) // the emitter's refusal, tested there
+	}
 	if err != nil {
 		return nil, declined(err)
 	}

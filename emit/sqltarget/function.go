@@ -49,6 +49,9 @@ type funcStyle struct {
 	head func(g *gen, name string, args []string, text bool) string
 	// tail closes it; open and close wrap the body, a scalar query.
 	tail string
+	// fits, when set, refuses a body the engine cannot plan: it is given
+	// each function's result expression once the stages are written.
+	fits func(g *gen, result string) error
 	// body, when set, writes the body itself (from the stages and the
 	// result expression) instead of a WITH chain and tail.
 	body func(g *gen, result string) string
@@ -86,7 +89,7 @@ var funcStyles = map[Dialect]funcStyle{
 	}, body: (*gen).mysqlBody},
 	// Spark 4: a SQL user-defined function whose body is a query (Spark
 	// 4.0 SQL reference, "CREATE FUNCTION (SQL)"); see sparkFunctionHead.
-	Spark: {head: sparkFunctionHead, note: sparkFunctionNote},
+	Spark: {head: sparkFunctionHead, note: sparkFunctionNote, fits: (*gen).sparkFunctionFits},
 }
 
 // noFunctionsText is the refusal of dialect d, which has no SQL-bodied
@@ -140,11 +143,6 @@ func (g *gen) checkFunction() error {
 	}
 	if k := g.p.NumOutputs; k > MaxFunctionOutputs {
 		return fmt.Errorf("sql: the function form writes one function per output, each walking every tree, and accepts at most %d outputs; this model has %d\nhint: emit the query instead (leave out --function), which walks each tree once a row", MaxFunctionOutputs, k)
-	}
-	if g.d == Spark {
-		if err := g.sparkFunctionFits(); err != nil {
-			return err
-		}
 	}
 	if g.d == Postgres {
 		g.dollar = "$sawmill$"
@@ -217,6 +215,9 @@ func (g *gen) functions() {
 		if !isLabel {
 			result = outCol(c)
 		}
+		if style.fits != nil && g.funcErr == nil {
+			g.funcErr = style.fits(g, result)
+		}
 		if style.body != nil {
 			b.WriteString(style.body(g, result))
 			g.stmts = append(g.stmts, b.String())
@@ -268,6 +269,9 @@ func FunctionStatements(p *compile.Program, o Options) ([]string, error) {
 		return nil, err
 	}
 	g.statement()
+	if g.funcErr != nil {
+		return nil, g.funcErr
+	}
 	return g.stmts, nil
 }
 

@@ -1,6 +1,10 @@
 package sqltarget
 
-import "fmt"
+import (
+	"errors"
+	"fmt"
+	"strings"
+)
 
 // Spark's function form: CREATE OR REPLACE FUNCTION NAME(a0 DOUBLE, ...)
 // RETURNS DOUBLE (STRING for the label) DETERMINISTIC CONTAINS SQL RETURN
@@ -30,8 +34,90 @@ const sparkFunctionNote = "-- Spark SQL functions (CREATE FUNCTION ... RETURN qu
 	"-- inlined into the caller's plan and compiled with it; CREATE TEMPORARY FUNCTION works alike\n" +
 	"-- (without a schema). A NaN argument is a missing value, as NULL is.\n"
 
-// sparkFunctionFits refuses a function form past what Spark was measured
-// to plan and compile.
-func (g *gen) sparkFunctionFits() error {
+// ErrFunctionSize is wrapped by the error for a function form the engine
+// was measured not to plan (a Spark function body past
+// sparkFunctionMaxInlined once inlined).
+var ErrFunctionSize = errors.New("function body too large for the engine")
+
+// sparkFunctionMaxInlined bounds sparkInlined, the size of a function's
+// body once Spark has collapsed its stages into one expression (see
+// docs/spark-limits.md for the figures behind it).
+const sparkFunctionMaxInlined = 4_000_000
+
+// sparkFunctionFits refuses a function whose body Spark would inline into
+// an expression past sparkFunctionMaxInlined bytes.
+func (g *gen) sparkFunctionFits(result string) error {
+	if n := g.sparkInlined(result); n > sparkFunctionMaxInlined {
+		return fmt.Errorf("sql: %w: a Spark SQL function of this model would be inlined into an expression of %.3g bytes, past the %d that Spark 4.0.1 was measured to plan: Spark copies each stage of a function body into every place that reads it (a float32 model's rounding reads each sum ten times a stage)\nhint: emit the query instead (leave out --function), whose stages Spark keeps apart", ErrFunctionSize, n, sparkFunctionMaxInlined)
+	}
 	return nil
+}
+
+// sparkInlined is the length in bytes of the expression result becomes
+// once every stage is substituted into the next, as Spark 4.0.1 does to a
+// function body: the optimizer inlines a scalar sub-query over no table
+// (the body, correlated to the call's arguments) only as one projection,
+// and collapses the body's stages into it however often a column is read
+// (measured: the 3-tree float32 model of golden case
+// v2-normalize-float32, whose float32 rounding reads its argument ten
+// times a stage, did not finish planning in 8 minutes, where its query
+// form planned in 17 s). A float64 so that it cannot overflow.
+func (g *gen) sparkInlined(result string) float64 {
+	size := map[string]float64{}
+	inlined := func(expr string) float64 {
+		n := float64(len(expr))
+		for _, w := range sqlWords(expr) {
+			if v, ok := size[w]; ok {
+				n += v - float64(len(w))
+			}
+		}
+		return n
+	}
+	for _, items := range g.stageItems {
+		next := map[string]float64{}
+		for _, it := range items {
+			k := strings.LastIndex(it, " AS ")
+			if k < 0 {
+				next[it] = size[it] // carried
+				continue
+			}
+			next[it[k+4:]] = inlined(it[:k])
+		}
+		size = next
+	}
+	return inlined(result)
+}
+
+// sqlWords lists the identifiers of e outside string literals and
+// comments, each as often as it occurs.
+func sqlWords(e string) []string {
+	var out []string
+	for i := 0; i < len(e); {
+		switch c := e[i]; {
+		case c == '\'':
+			j := strings.IndexByte(e[i+1:], '\'')
+			if j < 0 {
+				return out
+			}
+			i += j + 2
+		case c == '-' && strings.HasPrefix(e[i:], "--"):
+			j := strings.IndexByte(e[i:], '\n')
+			if j < 0 {
+				return out
+			}
+			i += j
+		case isWordByte(c):
+			j := i
+			for j < len(e) && isWordByte(e[j]) {
+				j++
+			}
+			if !('0' <= c && c <= '9') {
+				out = append(out, e[i:j])
+			}
+			i = j
+		default:
+			i++
+		}
+	}
+	return out
 }
