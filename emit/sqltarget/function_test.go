@@ -127,3 +127,41 @@ func stumpRegression(t *testing.T, tr forest.Transform, leaf float64) *compile.P
 	require.NoError(t, err)
 	return p
 }
+
+// TestSparkInlined: the size of a Spark function body once every stage is
+// substituted into each place that reads it; names in strings and
+// comments are no references.
+func TestSparkInlined(t *testing.T) {
+	x0 := "CASE WHEN isnan(a0) THEN NULL ELSE a0 END"
+	g := &gen{stageItems: [][]string{{x0 + " AS x0"}, {"x0", "x0 + x0 -- x0 AS y"}, {"x0 AS x0", "y * 'y' AS y"}}}
+	y := float64(len("x0 + x0 -- x0")-4) + 2*float64(len(x0))
+	require.Equal(t, float64(len("y * 'y'")-1)+y, g.sparkInlined("y"))
+	require.Equal(t, float64(len("x0 + y")-3)+float64(len(x0))+float64(len("y * 'y'")-1)+y, g.sparkInlined("x0 + y"))
+	require.Equal(t, []string{"CASE", "WHEN", "z", "THEN", "END"}, sqlWords("CASE WHEN z > 1e+00D THEN 'a b' END -- x"))
+}
+
+// TestSparkFunctionSize: a float32 model, whose rounding stages read each
+// sum ten times, is refused in Spark's function form (Spark copies every
+// stage into each reader) and written as a query; a 30-tree forest is
+// written as functions.
+func TestSparkFunctionSize(t *testing.T) {
+	load := func(c string) *compile.Program {
+		f, err := forest.ReadFile("../../golden/testdata/" + c + "/model.json")
+		require.NoError(t, err)
+		p, _, err := compile.Compile(f, compile.Options{})
+		require.NoError(t, err)
+		return p
+	}
+	f32 := load("v2-normalize-float32")
+	_, err := Emit(f32, Options{Dialect: Spark, Function: "f"})
+	require.True(t, errors.Is(err, ErrFunctionSize), "%v", err)
+	require.ErrorContains(t, err, "emit the query instead")
+	_, err = FunctionStatements(f32, Options{Dialect: Spark, Function: "f"})
+	require.True(t, errors.Is(err, ErrFunctionSize), "%v", err)
+	_, err = Emit(f32, Options{Dialect: Spark})
+	require.NoError(t, err)
+	_, err = Emit(f32, Options{Dialect: DuckDB, Function: "f"})
+	require.NoError(t, err, "only Spark inlines a function's stages")
+	_, err = Emit(load("sklearn-wine"), Options{Dialect: Spark, Function: "f"})
+	require.NoError(t, err)
+}
