@@ -42,7 +42,7 @@ var ErrFunctionSize = errors.New("function body too large for the engine")
 // sparkFunctionMaxInlined bounds sparkInlined, the size of a function's
 // body once Spark has collapsed its stages into one expression (see
 // docs/spark-limits.md for the figures behind it).
-const sparkFunctionMaxInlined = 4_000_000
+const sparkFunctionMaxInlined = 2_000_000
 
 // sparkFunctionFits refuses a function whose body Spark would inline into
 // an expression past sparkFunctionMaxInlined bytes.
