@@ -358,6 +358,7 @@ func diffOutcomes(t *testing.T, models []diffModel, targets []target, batched bo
 	single := func(m, k int) {
 		if targets[k].variant == functionVariant && !functionSeed(models[m].seed) {
 			outs[m][k] = outcome{skipped: errFunctionSeed}
+			return
 		} else if targets[k].r.Name() == "spark" && models[m].seed >= sparkUpTo {
 			outs[m][k] = outcome{skipped: errOmitted}
 			return

@@ -45,7 +45,9 @@ type sparkRunner struct {
 	ansiOff bool
 }
 
-func (sparkRunner) Variants() []string { return []string{""} }
+// Variants: "" is the query form, "function" the function form
+// (scoreSparkFunction).
+func (sparkRunner) Variants() []string { return []string{"", functionVariant} }
 
 // Layouts is the table layout only, the one auto writes for Spark: every
 // statement costs Spark seconds to plan and compile (1.4 to 5.6 s for a
@@ -312,6 +314,9 @@ func codegenNote(a *sparkAnswer) string {
 func (r sparkRunner) Score(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows, dir string) (*Result, error) {
 	if err := r.declines(p, layout, variant); err != nil {
 		return nil, err
+	}
+	if variant == functionVariant {
+		return r.scoreSparkFunction(ctx, p, layout, rows, dir)
 	}
 	python, chosen := r.python, r.python != ""
 	if python == "" {

@@ -127,7 +127,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringVar(&fl.table, "table", "input", "SQL: the relation to read; its columns are named like the features")
 	f.StringSliceVar(&fl.keep, "keep", nil, "SQL: columns to pass through first, e.g. id,site")
 	f.StringVar(&fl.view, "view", "", "SQL: wrap the query in CREATE VIEW NAME")
-	f.StringVar(&fl.function, "function", "", "SQL: write functions NAME(feature, ...) (NAME_0, ... per output for several) instead of a query: postgres, duckdb, mysql")
+	f.StringVar(&fl.function, "function", "", "SQL: write functions NAME(feature, ...) (NAME_0, ... per output for several) instead of a query: postgres, duckdb, mysql, spark")
 	f.StringVar(&fl.sample, "sample", "", "Go: rows (CSV) to check in the emitted test besides rows built from leaves")
 	f.StringVar(&fl.tables, "tables", "auto", "Go: the table layout's arrays as literal (one line per node), base64 (a blob, builds fast at any size) or auto (literal up to 50,000 nodes)")
 	f.StringSliceVar(&fl.lossy, "lossy", nil, "lossy passes to run (changes outputs; verify measures by how much)")

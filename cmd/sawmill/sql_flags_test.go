@@ -96,3 +96,24 @@ func TestCompileCSelftest(t *testing.T) {
 	out, err = exec.Command(filepath.Join(dir, "st")).CombinedOutput()
 	require.NoError(t, err, "pump_selftest() is not 0: %s", out)
 }
+
+// --function with spark writes Spark SQL functions; a float32 model whose
+// body Spark would inline past its bound, and sqlite, are refused with
+// errors that say why and what to emit instead.
+func TestCompileSparkFunction(t *testing.T) {
+	dir := t.TempDir()
+	code, _, errOut := sawmill(t, "compile", "../../golden/testdata/sklearn-wine/model.json", "--target", "sql", "--dialect", "spark", "--function", "wine", "-o", dir)
+	require.Equal(t, 0, code, errOut)
+	b, err := os.ReadFile(filepath.Join(dir, "score.sql"))
+	require.NoError(t, err)
+	assert.Contains(t, string(b), "CREATE OR REPLACE FUNCTION `wine_0`(a0 DOUBLE, a1 DOUBLE,")
+	assert.Contains(t, string(b), "RETURNS STRING\nDETERMINISTIC CONTAINS SQL\nRETURN\nWITH\n")
+	assert.Contains(t, string(b), "measured on Spark 4.0.1")
+	code, _, errOut = sawmill(t, "compile", "../../golden/testdata/v2-normalize-float32/model.json", "--target", "sql", "--dialect", "spark", "--function", "f", "-o", dir)
+	assert.Equal(t, 1, code)
+	assert.Contains(t, errOut, "would be inlined into an expression of")
+	assert.Contains(t, errOut, "emit the query instead")
+	code, _, errOut = sawmill(t, "compile", pumpModel, "--target", "sql", "--dialect", "sqlite", "--function", "f", "-o", dir)
+	assert.Equal(t, 1, code)
+	assert.Contains(t, errOut, "sqlite has no SQL-bodied scalar functions")
+}

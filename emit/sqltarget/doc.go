@@ -144,10 +144,14 @@
 // assigns each stage to local variables and returns the result (three
 // times faster in MariaDB than a sub-query, which builds a temporary table
 // per stage and call; in the mysql client the file switches DELIMITER around
-// it). SQLite and ANSI SQL have no SQL-bodied scalar functions: the option
-// is refused there, with a hint to emit the query. Spark 4 has them
-// (CREATE FUNCTION ... RETURN expr), but sawmill does not write them for
-// Spark yet, and says so. A function returns one
+// it), Spark 4 a SQL user-defined function, CREATE OR REPLACE FUNCTION
+// ... RETURNS DOUBLE DETERMINISTIC CONTAINS SQL RETURN and the stages as a
+// query (spark_function.go: Spark 4.0.1 inlines the call into the caller's
+// plan and compiles it with whole-stage code generation like the query).
+// SQLite and ANSI SQL have no SQL-bodied scalar functions: the option is
+// refused there, with a hint to emit the query; each dialect's way of
+// writing functions, or its refusal, is its entry in funcStyles. A
+// function returns one
 // value, so a model of one regression output gets NAME, and any other
 // NAME_0, NAME_1, ... per output and, for a classifier, NAME for the
 // label (FunctionNames). Each function walks every tree, so the form
@@ -155,7 +159,7 @@
 // than the query: in MariaDB 10.11 about 0.6 ms a call for the 30-tree
 // forest of golden case sklearn-breast-cancer (1.8 ms as a sub-query),
 // where the query scores its 953 rows in 40 ms; verify's "function" variant runs the form
-// in PostgreSQL, DuckDB and MariaDB.
+// in PostgreSQL, DuckDB, MariaDB and Spark.
 //
 // # Stored NaN
 //

@@ -36,21 +36,32 @@ const MaxFunctionOutputs = 16
 // checkFunction).
 const mysqlFunctionMaxNest = 1000
 
-// funcStyle is how a dialect writes a SQL-bodied function: the one place a
-// dialect says so (a dialect without an entry has no SQL-bodied functions).
+// funcStyle is how a dialect writes a SQL-bodied function, or why it
+// writes none: the one place a dialect says so.
 type funcStyle struct {
+	// refusal, when set, is why the dialect writes no functions (the
+	// error's text after "sql: "); the other fields are then unset.
+	refusal string
+	// note, when set, is a comment written before the definitions.
+	note string
 	// head opens the definition of function name with the given argument
 	// names, returning text (the label) or a double.
 	head func(g *gen, name string, args []string, text bool) string
 	// tail closes it; open and close wrap the body, a scalar query.
 	tail string
+	// fits, when set, refuses a body the engine cannot plan: it is given
+	// each function's result expression once the stages are written.
+	fits func(g *gen, result string) error
 	// body, when set, writes the body itself (from the stages and the
 	// result expression) instead of a WITH chain and tail.
 	body func(g *gen, result string) string
 }
 
-// funcStyles lists the dialects that have SQL-bodied functions.
+// funcStyles lists every dialect: how it writes SQL-bodied functions, or
+// its refusal.
 var funcStyles = map[Dialect]funcStyle{
+	SQLite: {refusal: noFunctionsText(SQLite)},
+	ANSI:   {refusal: noFunctionsText(ANSI)},
 	// PostgreSQL 12+: CREATE FUNCTION ... LANGUAGE sql IMMUTABLE (PostgreSQL
 	// 15 manual, "CREATE FUNCTION"); the body is a dollar-quoted string.
 	Postgres: {head: func(g *gen, name string, args []string, text bool) string {
@@ -76,6 +87,15 @@ var funcStyles = map[Dialect]funcStyle{
 		}
 		return fmt.Sprintf("CREATE FUNCTION %s(%s)\nRETURNS %s DETERMINISTIC\n", g.funcRef(name), typed(args, "DOUBLE"), ret)
 	}, body: (*gen).mysqlBody},
+	// Spark 4: a SQL user-defined function whose body is a query (Spark
+	// 4.0 SQL reference, "CREATE FUNCTION (SQL)"); see sparkFunctionHead.
+	Spark: {head: sparkFunctionHead, note: sparkFunctionNote, fits: (*gen).sparkFunctionFits},
+}
+
+// noFunctionsText is the refusal of dialect d, which has no SQL-bodied
+// scalar functions.
+func noFunctionsText(d Dialect) string {
+	return fmt.Sprintf("%s has no SQL-bodied scalar functions (CREATE FUNCTION with a SQL body)\nhint: emit the query instead (leave out --function), or use postgres, duckdb, mysql or spark", d)
 }
 
 // ErrNoFunctions is wrapped by the error for Options.Function in a dialect
@@ -105,16 +125,12 @@ func (g *gen) checkFunction() error {
 	if name == "" {
 		return nil
 	}
-	if g.d == Spark {
-		// Spark 4.0.1 runs CREATE [TEMPORARY] FUNCTION f(x DOUBLE) RETURNS
-		// DOUBLE RETURN expr (checked by hand in PySpark 4.0.1), but its
-		// planner already fails whole-stage code generation on the query
-		// form from about 50 trees (docs/spark-limits.md), so no function
-		// form is written for it yet.
-		return noFunctions("sql: sawmill does not write Spark SQL functions yet (Spark 4 has them; the query form is what verify checks)\nhint: emit the query instead (leave out --function), or use postgres, duckdb or mysql")
+	style, ok := funcStyles[g.d]
+	if !ok {
+		panic("BUG: dialect " + string(g.d) + " has no entry in funcStyles")
 	}
-	if _, ok := funcStyles[g.d]; !ok {
-		return fmt.Errorf("sql: %w: %s has no SQL-bodied scalar functions (CREATE FUNCTION with a SQL body)\nhint: emit the query instead (leave out --function), or use postgres, duckdb or mysql", ErrNoFunctions, g.d)
+	if style.refusal != "" {
+		return noFunctions("sql: " + style.refusal)
 	}
 	if len(g.o.Keep) > 0 || g.o.View != "" {
 		return errors.New("sql: the function form takes no kept columns and no view: the caller's SELECT names them")
@@ -185,6 +201,9 @@ func (g *gen) functions() {
 		args[i] = argName(i)
 	}
 	names := FunctionNames(g.p, g.o.Function)
+	if style.note != "" {
+		g.out.WriteString(style.note)
+	}
 	for c, name := range names {
 		isLabel := c == g.p.NumOutputs
 		if g.d == MySQL {
@@ -195,6 +214,9 @@ func (g *gen) functions() {
 		result := label
 		if !isLabel {
 			result = outCol(c)
+		}
+		if style.fits != nil && g.funcErr == nil {
+			g.funcErr = style.fits(g, result)
 		}
 		if style.body != nil {
 			b.WriteString(style.body(g, result))
@@ -247,6 +269,9 @@ func FunctionStatements(p *compile.Program, o Options) ([]string, error) {
 		return nil, err
 	}
 	g.statement()
+	if g.funcErr != nil {
+		return nil, g.funcErr
+	}
 	return g.stmts, nil
 }
 

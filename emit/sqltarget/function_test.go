@@ -26,6 +26,7 @@ func TestFunctionRefusals(t *testing.T) {
 	for _, d := range []Dialect{SQLite, ANSI} {
 		_, err := Emit(p, Options{Dialect: d, Function: "f"})
 		require.True(t, errors.Is(err, ErrNoFunctions), "%s: %v", d, err)
+		require.ErrorContains(t, err, string(d)+" has no SQL-bodied scalar functions")
 		require.ErrorContains(t, err, "emit the query instead")
 	}
 	_, err := Emit(classifier(t, MaxFunctionOutputs+1, true), Options{Dialect: Postgres, Function: "f"})
@@ -46,7 +47,9 @@ func TestFunctionText(t *testing.T) {
 	for d, want := range map[Dialect][]string{
 		Postgres: {"CREATE OR REPLACE FUNCTION \"f_0\"(a0 float8)\nRETURNS float8 LANGUAGE sql IMMUTABLE", "RETURNS text", "AS $xsawmill$"},
 		DuckDB:   {"CREATE OR REPLACE MACRO \"f_0\"(a0) AS (", "NULLIF(a0, 'NaN'::DOUBLE) AS x0"},
-		MySQL:    {"DROP FUNCTION IF EXISTS `f_0`;", "DELIMITER $$\nCREATE FUNCTION `f_0`(a0 DOUBLE)\nRETURNS DOUBLE DETERMINISTIC\nBEGIN", "RETURNS VARCHAR(9) CHARACTER SET utf8mb4", "SET x0 = a0;", "END$$\nDELIMITER ;"},
+		Spark: {"CREATE OR REPLACE FUNCTION `f_0`(a0 DOUBLE)\nRETURNS DOUBLE\nDETERMINISTIC CONTAINS SQL\nRETURN\nWITH\n", "RETURNS STRING",
+			"CASE WHEN isnan(a0) THEN NULL ELSE a0 END AS x0", "measured on Spark 4.0.1", "-- Call: SELECT `f_0`(`x`), `f_1`(`x`), `f_2`(`x`), `f`(`x`) FROM t;"},
+		MySQL: {"DROP FUNCTION IF EXISTS `f_0`;", "DELIMITER $$\nCREATE FUNCTION `f_0`(a0 DOUBLE)\nRETURNS DOUBLE DETERMINISTIC\nBEGIN", "RETURNS VARCHAR(9) CHARACTER SET utf8mb4", "SET x0 = a0;", "END$$\nDELIMITER ;"},
 	} {
 		files, err := Emit(p, Options{Dialect: d, Function: "f"})
 		require.NoError(t, err, "%s", d)
@@ -64,6 +67,16 @@ func TestFunctionText(t *testing.T) {
 		for _, s := range stmts {
 			require.False(t, strings.HasPrefix(s, "--") || strings.HasSuffix(s, ";"), "%s: statement %q", d, s)
 		}
+	}
+}
+
+// TestFuncStylesEveryDialect: every dialect says in funcStyles how it
+// writes functions or why it writes none, never both.
+func TestFuncStylesEveryDialect(t *testing.T) {
+	for _, d := range Dialects {
+		st, ok := funcStyles[d]
+		require.True(t, ok, "%s has no funcStyles entry", d)
+		require.True(t, (st.refusal == "") == (st.head != nil), "%s: a refusal or a head, not both", d)
 	}
 }
 
@@ -113,4 +126,42 @@ func stumpRegression(t *testing.T, tr forest.Transform, leaf float64) *compile.P
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
 	return p
+}
+
+// TestSparkInlined: the size of a Spark function body once every stage is
+// substituted into each place that reads it; names in strings and
+// comments are no references.
+func TestSparkInlined(t *testing.T) {
+	x0 := "CASE WHEN isnan(a0) THEN NULL ELSE a0 END"
+	g := &gen{stageItems: [][]string{{x0 + " AS x0"}, {"x0", "x0 + x0 -- x0 AS y"}, {"x0 AS x0", "y * 'y' AS y"}}}
+	y := float64(len("x0 + x0 -- x0")-4) + 2*float64(len(x0))
+	require.Equal(t, float64(len("y * 'y'")-1)+y, g.sparkInlined("y"))
+	require.Equal(t, float64(len("x0 + y")-3)+float64(len(x0))+float64(len("y * 'y'")-1)+y, g.sparkInlined("x0 + y"))
+	require.Equal(t, []string{"CASE", "WHEN", "z", "THEN", "END"}, sqlWords("CASE WHEN z > 1e+00D THEN 'a b' END -- x"))
+}
+
+// TestSparkFunctionSize: a float32 model, whose rounding stages read each
+// sum ten times, is refused in Spark's function form (Spark copies every
+// stage into each reader) and written as a query; a 30-tree forest is
+// written as functions.
+func TestSparkFunctionSize(t *testing.T) {
+	load := func(c string) *compile.Program {
+		f, err := forest.ReadFile("../../golden/testdata/" + c + "/model.json")
+		require.NoError(t, err)
+		p, _, err := compile.Compile(f, compile.Options{})
+		require.NoError(t, err)
+		return p
+	}
+	f32 := load("v2-normalize-float32")
+	_, err := Emit(f32, Options{Dialect: Spark, Function: "f"})
+	require.True(t, errors.Is(err, ErrFunctionSize), "%v", err)
+	require.ErrorContains(t, err, "emit the query instead")
+	_, err = FunctionStatements(f32, Options{Dialect: Spark, Function: "f"})
+	require.True(t, errors.Is(err, ErrFunctionSize), "%v", err)
+	_, err = Emit(f32, Options{Dialect: Spark})
+	require.NoError(t, err)
+	_, err = Emit(f32, Options{Dialect: DuckDB, Function: "f"})
+	require.NoError(t, err, "only Spark inlines a function's stages")
+	_, err = Emit(load("sklearn-wine"), Options{Dialect: Spark, Function: "f"})
+	require.NoError(t, err)
 }

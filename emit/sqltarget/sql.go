@@ -160,6 +160,9 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 // length limits (sqliteMaxColumns, sqliteMaxSQLLength), naming the limit,
 // rather than leave the user a statement that fails to prepare.
 func (g *gen) checkSize() error {
+	if g.funcErr != nil {
+		return g.funcErr
+	}
 	if g.d != SQLite {
 		return nil
 	}
@@ -245,6 +248,8 @@ type gen struct {
 	// stageItems are the items of every stage, in order, without fences:
 	// the mysql function form assigns them to variables.
 	stageItems [][]string
+	// funcErr is why the function form's text cannot be used (funcStyle.fits).
+	funcErr error
 }
 
 func newGen(p *compile.Program, o Options) (*gen, error) {
