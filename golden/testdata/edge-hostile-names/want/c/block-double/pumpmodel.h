@@ -38,15 +38,17 @@
  * Static tables in pumpmodel.c:
  *   pumpmodel_node: split words, 16 x 2 = 32 bytes
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
- *   pumpmodel_thr: distinct thresholds, 16 x 4 = 64 bytes
- *   pumpmodel_leaf: leaf vectors, 34 x 4 = 136 bytes
+ *   pumpmodel_thr: threshold per split, 16 x 4 = 64 bytes
+ *   pumpmodel_leaf: distinct leaf vectors, 32 x 1 = 32 bytes
  *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 33 x 16 = 528 bytes
  *   pumpmodel_bk_leaf: block walk: distinct leaf vectors, 32 x 8 = 256 bytes
  *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 4 = 132 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 1158 bytes (35.09 bytes per node; code not counted)
+ *   total 1054 bytes (31.94 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -56,12 +56,14 @@ const char *const pumpmodel_class_names[PUMPMODEL_NUM_CLASSES] = {
 	"no\"pe' --"
 };
 
-/* Splits, per tree in preorder, low bits first: feature (4 bits), threshold index (4 bits), missing goes left (1 bit),
- * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (0 bits). */
+/* Splits, per tree in preorder, low bits first: feature (4 bits) (no threshold index: pumpmodel_thr holds one threshold per word), missing goes left (1 bit),
+ * left is a leaf (1 bit), right is a leaf (1 bit), then (4 bits) the left leaf's row of pumpmodel_leaf
+ * if the left child is a leaf, else the splits in the left subtree, then (4 bits) the right
+ * leaf's row if the right child is a leaf. */
 static const uint16_t pumpmodel_node[16] = {
 	/* tree 0 */
-	0x300u, 0x211u, 0x322u, 0x233u, 0x344u, 0x255u, 0x366u, 0x277u,
-	0x388u, 0x299u, 0x3aau, 0x2bbu, 0x3ccu, 0x2ddu, 0x3eeu, 0x6ffu,
+	0x30u, 0xa1u, 0x132u, 0x1a3u, 0x234u, 0x2a5u, 0x336u, 0x3a7u,
+	0x438u, 0x4a9u, 0x53au, 0x5abu, 0x63cu, 0x6adu, 0x73eu, 0x47efu,
 };
 
 /* First word of each tree; tree t has words start[t] to start[t+1]-1. */
@@ -69,19 +71,18 @@ static const uint8_t pumpmodel_start[2] = {
 	0, 16,
 };
 
-/* Distinct thresholds, by feature, ascending. */
+/* The threshold of each split word, in the same order. */
 static const float pumpmodel_thr[16] = {
 	0.0f, 0.5f, 1.0f, 1.5f, 2.0f, 2.5f, 3.0f, 3.5f,
 	4.0f, 4.5f, 5.0f, 5.5f, 6.0f, 6.5f, 7.0f, 7.5f,
 };
 
-/* Leaf vectors, per leaf in preorder. */
-static const float pumpmodel_leaf[34] = {
-	0.0f, 1.0f, 0.0625f, 0.9375f, 0.125f, 0.875f, 0.1875f, 0.8125f,
-	0.25f, 0.75f, 0.3125f, 0.6875f, 0.375f, 0.625f, 0.4375f, 0.5625f,
-	0.5f, 0.5f, 0.5625f, 0.4375f, 0.625f, 0.375f, 0.6875f, 0.3125f,
-	0.75f, 0.25f, 0.8125f, 0.1875f, 0.875f, 0.125f, 0.9375f, 0.0625f,
-	0.5f, 0.5f,
+/* Distinct leaf vectors as class counts c_j: the value of class j is c_j divided by the counts' sum. */
+static const uint8_t pumpmodel_leaf[32] = {
+	0u, 1u, 1u, 15u, 1u, 7u, 3u, 13u,
+	1u, 3u, 5u, 11u, 3u, 5u, 7u, 9u,
+	1u, 1u, 9u, 7u, 5u, 3u, 11u, 5u,
+	3u, 1u, 13u, 3u, 7u, 1u, 15u, 1u,
 };
 
 void pumpmodel_predict(const float *x, float *out)
@@ -97,24 +98,32 @@ void pumpmodel_predict(const float *x, float *out)
 		end = pumpmodel_start[t + 1u];
 		done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
 		i0 = first < end ? first : 0u;
-		at0 = first + t; /* leaves before the tree: one more than splits, per tree */
+		at0 = 0u;
 		while (done0 == 0u) {
 			{
 				const uint16_t w = pumpmodel_node[i0];
 				const uint32_t f = (uint32_t)(w & 0xfu);
 				const float v = x[f];
-				const float th = pumpmodel_thr[((uint32_t)(w >> 4) & 0xfu)];
-				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 8) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-				const uint32_t p1 = 0u;
-				const uint32_t leaf = (uint32_t)(w >> (9 + r)) & 1u; /* the child is a leaf */
+				const float th = pumpmodel_thr[i0];
+				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 4) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
+				const uint32_t p1 = ((uint32_t)(w >> 7) & 0xfu);
+				const uint32_t leaf = (uint32_t)(w >> (5 + r)) & 1u; /* the child is a leaf */
 				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
-				at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-				i0 += go * (1u + r * p1);
+				const uint32_t row = r ? ((uint32_t)(w >> 11) & 0xfu) : p1;
+				at0 = (leaf & (done0 ^ 1u)) != 0u ? row : at0;
+				i0 += go * (1u + (r & (((uint32_t)(w >> 5) & 1u) ^ 1u)) * p1);
 				done0 |= leaf;
 			}
 		}
-		for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
-			acc[j] += pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS + (uint32_t)j];
+		{
+			const uint8_t *const cnt = &pumpmodel_leaf[(uint32_t)at0 * PUMPMODEL_NUM_OUTPUTS];
+			uint32_t draws = 0u;
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				draws += cnt[j];
+			}
+			for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
+				acc[j] += (float)cnt[j] / (float)draws;
+			}
 		}
 	}
 	acc[0] = acc[0] / 1.0f + 0.0f;

@@ -31,6 +31,8 @@
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes
  *   total 256 bytes (23.27 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

@@ -28,6 +28,8 @@
  *   pumpmodel_bk_steps: block walk: each tree's depth, 2 x 4 = 8 bytes
  *   total 177 bytes (22.12 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces

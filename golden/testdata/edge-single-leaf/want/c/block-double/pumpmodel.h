@@ -27,6 +27,8 @@
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
  *   total 44 bytes (44.00 bytes per node; code not counted)
  * At most 0 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: double (IEEE 754 binary64). Outputs are bit-identical to
  * sawmill's interpreter where FLT_EVAL_METHOD is 0 (x86-64 SSE, AArch64,

@@ -27,6 +27,8 @@
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
  *   total 36 bytes (36.00 bytes per node; code not counted)
  * At most 0 splits are tested per prediction (the sum of the trees' depths).
+ * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
+ * boards: sawmill inspect --c-sizes (emitting runs no compiler).
  *
  * Arithmetic: float (IEEE 754 binary32). Comparisons are exact for every
  * float input: each threshold is the float the model's comparison reduces
