@@ -22,15 +22,23 @@ const (
 // array indexed by the leaf number, array(1.5e+00D, ...)[-n - 1] (the
 // subscript counts from 0; leaf k has state -(k+1)). Spark folds an array
 // of literals into one constant, so the lookup is one index per row.
+//
+// The lookup is guarded, CASE WHEN n < 0 THEN ... END (every state is
+// negative once the descent is over, so the guard never takes its NULL
+// branch): the second reference to n keeps Spark's CollapseProject from
+// inlining the descent stage's nested CASE into the sum, which it does
+// for a column used once. Unguarded, the sums of a 500-tree forest became
+// one expression of 500 trees, whose generated method no JVM compiles (see
+// sparkFence).
 func (g *gen) sparkArrayLookup(b *strings.Builder, n string, count int, v func(int) float64) {
-	b.WriteString("array(")
+	b.WriteString("CASE WHEN " + n + " < 0 THEN array(")
 	for k := 0; k < count; k++ {
 		if k > 0 {
 			b.WriteString(", ")
 		}
 		b.WriteString(g.d.num(v(k)))
 	}
-	b.WriteString(")[-" + n + " - 1]")
+	b.WriteString(")[-" + n + " - 1] END")
 }
 
 // sparkAutoWhy is why auto takes the table layout for Spark: measured on
