@@ -45,8 +45,8 @@ func (g *gen) sparkArrayLookup(b *strings.Builder, n string, count int, v func(i
 // the 30 trees of sklearn-wine (golden/testdata), PySpark 4.0.1 local mode,
 // the nested layout wrote a generated method of 48.7 KB and planned in 2.6
 // to 5.6 s, the table layout (array lookups) 32.5 KB in 1.4 to 2.8 s; both
-// scored every row bit for bit. For hundreds of trees only the table layout
-// runs: its guarded lookups keep each stage a projection of its own (see
+// scored every row bit for bit. For hundreds of trees the table layout is
+// the one measured to run: its guarded lookups keep each stage a projection of its own (see
 // sparkArrayLookup), where the nested layout's stages, whose running sums
 // are each used once, merge into one expression of every tree by the same
 // rule (not measured for nested; measured for the unguarded table); the guarded
