@@ -46,12 +46,13 @@ func (g *gen) sparkArrayLookup(b *strings.Builder, n string, count int, v func(i
 // the nested layout wrote a generated method of 48.7 KB and planned in 2.6
 // to 5.6 s, the table layout (array lookups) 32.5 KB in 1.4 to 2.8 s; both
 // scored every row bit for bit. For hundreds of trees the table layout is
-// the one measured to run: its guarded lookups keep each stage a projection of its own (see
-// sparkArrayLookup), where the nested layout's stages, whose running sums
-// are each used once, merge into one expression of every tree by the same
-// rule (not measured for nested; measured for the unguarded table); the guarded
-// 500-tree Breast Cancer forest of bench/sqlscale scored in Spark, the
-// unguarded one overflowed the stack (docs/spark-limits.md).
+// the one measured to run: its guarded lookups keep each stage a projection
+// of its own (see sparkArrayLookup), where the nested layout's stages,
+// whose running sums are each used once, merge into one expression of every
+// tree by the same rule (not measured for nested; measured for the
+// unguarded table); the guarded 500-tree Breast Cancer forest of
+// bench/sqlscale scored in Spark, the unguarded one overflowed the stack
+// (docs/spark-limits.md).
 const sparkAutoWhy = "Spark's generated code is a third smaller for leaf numbers and array lookups than for nested CASE"
 
 // SparkString is s as a spark text string literal (see Dialect.str); for
