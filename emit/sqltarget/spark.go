@@ -28,8 +28,8 @@ const (
 // branch): the second reference to n keeps Spark's CollapseProject from
 // inlining the descent stage's nested CASE into the sum, which it does
 // for a column used once. Unguarded, the sums of a 500-tree forest became
-// one expression of 500 trees, whose generated method no JVM compiles (see
-// sparkFence).
+// one expression of 500 trees, whose code generation overflowed the
+// executor's stack (docs/spark-limits.md; TestSparkStagesKeptApart).
 func (g *gen) sparkArrayLookup(b *strings.Builder, n string, count int, v func(int) float64) {
 	b.WriteString("CASE WHEN " + n + " < 0 THEN array(")
 	for k := 0; k < count; k++ {
