@@ -63,6 +63,17 @@ def codegen_stats(spark, plan):
     return largest, n
 
 
+def projections(df):
+    """Projections in the optimized plan: how many stages of the statement
+    Spark's CollapseProject kept apart."""
+    n, todo = 0, [df._jdf.queryExecution().optimizedPlan()]
+    while todo:
+        node = todo.pop()
+        n += node.nodeName() == "Project"
+        todo.extend(node.children().apply(i) for i in range(node.children().size()))
+    return n
+
+
 def run_query(spark, sql):
     """Plans and collects sql, timing each. When whole-stage code generation
     cannot compile the plan (a method past the JVM's 64 KB), the query runs
@@ -93,6 +104,7 @@ def run_query(spark, sql):
             spark.conf.set("spark.sql.codegen.wholeStage", "true")
     return got, {"plan_ms": plan_ms, "codegen_ms": codegen_ms, "run_ms": run_ms, "max_method": largest,
                  "wscg": stages, "wscg_off": wscg_off, "version": spark.version,
+                 "projections": projections(df),
                  "huge_method_limit": int(spark.conf.get("spark.sql.codegen.hugeMethodLimit"))}
 
 

@@ -226,6 +226,8 @@ type sparkAnswer struct {
 	// WSCGOff is why whole-stage code generation failed to compile the
 	// plan, which then ran with it off ("" when it ran with it).
 	WSCGOff string `json:"wscg_off"`
+	// Projections is the number of projections in the optimized plan.
+	Projections int `json:"projections"`
 }
 
 // ask sends req to the session under python, starting it when needed, and

@@ -204,3 +204,47 @@ func sparkCasesThrough(t *testing.T, r sparkRunner, layout string) {
 		})
 	}
 }
+
+// TestSparkStagesKeptApart: Spark's optimizer keeps the table layout's
+// stages apart (the guarded lookup refers to each leaf number twice, see
+// sqltarget's sparkArrayLookup), so no generated method holds more than
+// one stage's trees. Unguarded, CollapseProject merged the sums of every
+// stage into one expression, and a 500-tree forest's code generation
+// overflowed the stack (docs/spark-limits.md). Golden case
+// sklearn-breast-cancer: 30 trees of binary votes, 5 trees a stage. Spark
+// still inlines a stage's lookups and sum into the next stage's descent
+// (the running sum is used once there), so each stage of trees is one
+// projection: measured 10 for the 6 stages (with the input, the last
+// lookup, the votes and the result), where unguarded the sums of all the
+// trees were one.
+func TestSparkStagesKeptApart(t *testing.T) {
+	python := sparkTestPython(t)
+	c, err := goldencase.LoadCase(goldenCases+"/sklearn-breast-cancer", "sklearn-breast-cancer")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, _, err := compile.Compile(c.Model, compile.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	const perStage = 5
+	o := sqltarget.Options{Dialect: sqltarget.Spark, Table: sqlTable, Keep: []string{rowColumn(p)}, Layout: emitTable, TreesPerStage: perStage}
+	files, err := sqltarget.Emit(p, o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	req, _ := sparkRows(p, o, c.Rows)
+	req.SQL = strings.TrimSuffix(strings.TrimSpace(string(files[0].Data)), ";")
+	req.Outputs, req.Label, req.ANSI = p.NumOutputs, p.IsClassifier(), true
+	a, _, err := askSpark(context.Background(), python, req)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !a.OK {
+		t.Fatal(a.Error)
+	}
+	if groups := len(p.Trees) / perStage; a.Projections < groups+2 {
+		t.Errorf("the optimized plan has %d projections for %d stages of %d trees: Spark merged stages", a.Projections, groups, perStage)
+	}
+	t.Logf("%d trees, %d a stage: %d projections in the optimized plan%s", len(p.Trees), perStage, a.Projections, codegenNote(a))
+}

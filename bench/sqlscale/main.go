@@ -8,6 +8,10 @@
 //	SAWMILL_SPARK_PYTHON=.venv/bin/python SAWMILL_POSTGRES_DSN=postgres://postgres@127.0.0.1:5432/test?sslmode=disable \
 //	  go run -tags duckdb ./bench/sqlscale -trees 500 -rows 10000000
 //
+// -engine-rows gives an engine that would take too long another row count
+// (spark=20000,postgres=100000); rows per second is what is compared, and
+// each line prints its rows and the machine's load average.
+//
 // Rows are made inside each engine from the row number (so no engine's
 // load path is timed): feature j of row i is lo_j + span_j * (((i*a_j +
 // b_j) mod 1000003) / 1000003), integer arithmetic and then three IEEE
@@ -31,6 +35,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -48,13 +53,53 @@ func main() {
 	data := flag.String("data", "golden/testdata/sklearn-breast-cancer/data.csv", "training CSV (label column \"label\")")
 	trees := flag.Int("trees", 500, "trees to grow")
 	nrows := flag.Int("rows", 1000000, "rows to score")
+	engineRows := flag.String("engine-rows", "", "rows for some engines instead of -rows, as engine=rows,... (for an engine that would take too long on -rows; rows/s is what is compared)")
 	engines := flag.String("engines", "spark,duckdb,postgres", "engines to run")
 	check := flag.Bool("check", true, "hold the aggregates against the interpreter (slow past a few million rows)")
 	flag.Parse()
-	if err := run(*data, *trees, *nrows, strings.Split(*engines, ","), *check); err != nil {
+	rows, err := rowsPerEngine(strings.Split(*engines, ","), *nrows, *engineRows)
+	if err == nil {
+		err = run(*data, *trees, rows, *check)
+	}
+	if err != nil {
 		fmt.Fprintln(os.Stderr, "sqlscale:", err)
 		os.Exit(1)
 	}
+}
+
+// engineRun is one engine and the rows it scores.
+type engineRun struct {
+	name string
+	rows int
+}
+
+// rowsPerEngine pairs each engine with n rows, or with the count that
+// spec (engine=rows,...) gives it.
+func rowsPerEngine(engines []string, n int, spec string) ([]engineRun, error) {
+	counts := map[string]int{}
+	for _, kv := range strings.Split(spec, ",") {
+		if kv == "" {
+			continue
+		}
+		name, v, ok := strings.Cut(kv, "=")
+		c, err := strconv.Atoi(v)
+		if !ok || err != nil || c <= 0 {
+			return nil, fmt.Errorf("-engine-rows: %q is not engine=rows with rows a positive whole number", kv)
+		}
+		if !slices.Contains(engines, name) {
+			return nil, fmt.Errorf("-engine-rows: %q is not one of the engines run (%s)", name, strings.Join(engines, ","))
+		}
+		counts[name] = c
+	}
+	var runs []engineRun
+	for _, e := range engines {
+		r := engineRun{e, n}
+		if c, ok := counts[e]; ok {
+			r.rows = c
+		}
+		runs = append(runs, r)
+	}
+	return runs, nil
 }
 
 // bench is what one engine measured.
@@ -62,9 +107,13 @@ type bench struct {
 	load, plan, run time.Duration
 	agg             []float64 // count, each output's sum, each label's count
 	note            string
+	rows            int
 }
 
-func run(path string, trees, n int, engines []string, check bool) error {
+// rate is the rows scored a second.
+func (b *bench) rate() float64 { return float64(b.rows) / b.run.Seconds() }
+
+func run(path string, trees int, engines []engineRun, check bool) error {
 	d, err := train.ReadCSVFile(path, train.ReadOptions{Label: "label"})
 	if err != nil {
 		return err
@@ -79,37 +128,49 @@ func run(path string, trees, n int, engines []string, check bool) error {
 		return err
 	}
 	g := newGenerator(d)
-	fmt.Printf("forest: %d trees, %d nodes, depth %d; %d rows of %d features made in each engine\n", len(p.Trees), p.NumNodes(), p.MaxDepth(), n, len(f.Features))
-	var want []float64
-	if check {
-		start := time.Now()
-		want = g.reference(f, p, n)
-		fmt.Printf("%-10s %12.0f rows/s (one core; the aggregates the engines are held to)\n", "interpreter", float64(n)/time.Since(start).Seconds())
-	}
-	fmt.Printf("%-10s %12s %10s %10s %10s  %s\n", "engine", "rows/s", "plan", "run", "load", "notes")
+	fmt.Printf("forest: %d trees, %d nodes, depth %d; rows of %d features made in each engine\n", len(p.Trees), p.NumNodes(), p.MaxDepth(), len(f.Features))
+	want := map[int][]float64{} // the interpreter's aggregates by row count
+	fmt.Printf("%-10s %10s %12s %10s %10s %10s %6s  %s\n", "engine", "rows", "rows/s", "plan", "run", "load", "loadav", "notes")
 	results := map[string]*bench{}
 	for _, e := range engines {
-		b, err := runEngine(e, p, g, n)
+		if _, ok := want[e.rows]; check && !ok {
+			start := time.Now()
+			want[e.rows] = g.reference(f, p, e.rows)
+			fmt.Printf("%-10s %10d %12.0f (one core; the aggregates the engines are held to)\n", "interpreter", e.rows, float64(e.rows)/time.Since(start).Seconds())
+		}
+		b, err := runEngine(e.name, p, g, e.rows)
 		if err != nil {
-			fmt.Printf("%-10s not run: %v\n", e, err)
+			fmt.Printf("%-10s %10d not run: %v\n", e.name, e.rows, err)
 			continue
 		}
-		if want != nil {
-			if err := agree(want, b.agg); err != nil {
-				return fmt.Errorf("%s: %v", e, err)
+		b.rows = e.rows
+		if w := want[e.rows]; w != nil {
+			if err := agree(w, b.agg); err != nil {
+				return fmt.Errorf("%s: %v", e.name, err)
 			}
 		}
-		results[e] = b
-		fmt.Printf("%-10s %12.0f %10v %10v %10v  %s\n", e, float64(n)/b.run.Seconds(), b.plan.Round(time.Millisecond), b.run.Round(time.Millisecond), b.load.Round(time.Millisecond), b.note)
+		results[e.name] = b
+		fmt.Printf("%-10s %10d %12.0f %10v %10v %10v %6s  %s\n", e.name, e.rows, b.rate(), b.plan.Round(time.Millisecond), b.run.Round(time.Millisecond), b.load.Round(time.Millisecond), loadAverage(), b.note)
 	}
 	if s := results["spark"]; s != nil {
 		for _, e := range engines {
-			if o := results[e]; o != nil && e != "spark" {
-				fmt.Printf("spark / %s rows per second: %.2f\n", e, o.run.Seconds()/s.run.Seconds())
+			if o := results[e.name]; o != nil && e.name != "spark" {
+				fmt.Printf("spark / %s rows per second: %.3f\n", e.name, s.rate()/o.rate())
 			}
 		}
 	}
 	return nil
+}
+
+// loadAverage is the machine's one-minute load average as the figure is
+// printed ("?" where /proc/loadavg cannot be read): the benchmark shares
+// its cores, and the figures mean little without it.
+func loadAverage() string {
+	b, err := os.ReadFile("/proc/loadavg")
+	if f := strings.Fields(string(b)); err == nil && len(f) > 0 {
+		return f[0]
+	}
+	return "?"
 }
 
 func runEngine(e string, p *compile.Program, g *generator, n int) (*bench, error) {

@@ -213,8 +213,20 @@
 //     cannot compile, runs without it and says so in its report line.
 //   - Speed: that fallback is slow: the 50-tree forest scored 2,300 to
 //     2,500 rows a second where DuckDB scored 136,000 and PostgreSQL
-//     80,000 (bench/sqlscale, 100,000 rows); a 500-tree, 21,138-node
-//     forest ran the local driver out of memory (2 GB and 6 GB heaps).
+//     80,000 (bench/sqlscale, 100,000 rows). A 500-tree, 21,138-node
+//     forest killed the SparkContext: its optimizer had merged every stage
+//     into one sum of 500 nested CASEs, whose code generation overflowed
+//     the executor's stack. The lookup is therefore guarded, CASE WHEN
+//     n < 0 THEN array(...)[-n - 1] END (always true once the descent is
+//     over): referring to the leaf number twice keeps CollapseProject from
+//     inlining the descent into the sum, so each stage stays a projection
+//     of its own (TestSparkStagesKeptApart). In whole-stage code one
+//     method still holds a stage's trees inline (a 10-tree stage of about
+//     420 nodes passed 64 KB), and higher-order functions (aggregate,
+//     transform) are interpreted in Spark 4.0.1 (CodegenFallback), so
+//     large forests run without whole-stage code: so the guarded 500-tree
+//     forest scored 1,000,000 rows at 3,045 rows/s in local[2], about 4
+//     minutes of it compiling (docs/spark-limits.md).
 //   - Planning: 1.4 to 2.8 s for the 30-tree forest in the table layout,
 //     2.6 to 5.6 s nested, 9 to 11 s for the 50-tree forest; the
 //     1,000-class diff-sqlite-1000-classes case took 36 s.
