@@ -965,17 +965,23 @@ func (g *gen) finish(w *printer) {
 		w.line("%s_predict(x, out);", g.name)
 		w.line("return out[0] > %s ? 1 : 0;", g.lit(0.5))
 	} else {
-		w.line("int j, best = 0;")
-		w.line("%s_predict(x, out);", g.name)
-		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tif (out[j] > out[best]) {")
-		w.line("\t\tbest = j;")
-		w.line("\t}")
-		w.line("}")
-		w.line("return best;")
+		g.argmaxLines(w, "out", "_predict")
 	}
 	w.out()
 	w.line("}")
+}
+
+// argmaxLines writes the body that calls NAME+fn(x, arr) and returns the
+// first index of arr's largest element.
+func (g *gen) argmaxLines(w *printer, arr, fn string) {
+	w.line("int j, best = 0;")
+	w.line("%s%s(x, %s);", g.name, fn, arr)
+	w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+	w.line("\tif (%s[j] > %s[best]) {", arr, arr)
+	w.line("\t\tbest = j;")
+	w.line("\t}")
+	w.line("}")
+	w.line("return best;")
 }
 
 // writeBatch writes NAME_predict_batch: the table layout's own (g.batch),

@@ -90,14 +90,7 @@ func (g *gen) finishScaled(w *printer) {
 		w.line("%s_predict_scaled(x, s);", g.name)
 		w.line("return s[0] > %s ? 1 : 0; /* the output is above 0.5 exactly then, in real arithmetic */", il.sumLit(il.cut))
 	} else {
-		w.line("int j, best = 0;")
-		w.line("%s_predict_scaled(x, s);", g.name)
-		w.line("for (j = 1; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\tif (s[j] > s[best]) {")
-		w.line("\t\tbest = j;")
-		w.line("\t}")
-		w.line("}")
-		w.line("return best;")
+		g.argmaxLines(w, "s", "_predict_scaled")
 	}
 	w.out()
 	w.line("}")
