@@ -18,7 +18,7 @@ import (
 // NAME_threads.h and NAME_threads.c, and with --selftest NAME_selftest.c
 // beside them.
 func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads, IntLeaves: fl.intLeaves, ConstantTime: fl.constTime, LeafValues: fl.leafVals}
+	o := cOptions(fl)
 	files, err := ctarget.Emit(p, o)
 	if err != nil || !fl.selftest {
 		return files, err
@@ -30,13 +30,19 @@ func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
 	return append(files, st), nil
 }
 
+// cOptions are the C target's options the compile flags ask for.
+func cOptions(fl *compileFlags) ctarget.Options {
+	return ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads,
+		IntLeaves: fl.intLeaves, ConstantTime: fl.constTime, LeafValues: fl.leafVals}
+}
+
 // printIntLeafBounds says, for --int-leaves, how far each output of the
 // lossy build may be from the exact model's.
 func printIntLeafBounds(w io.Writer, p *compile.Program, fl *compileFlags) error {
 	if fl.intLeaves == 0 {
 		return nil
 	}
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, IntLeaves: fl.intLeaves}
+	o := cOptions(fl)
 	bounds, scale, err := ctarget.IntLeafBounds(p, o)
 	if err != nil {
 		return err

@@ -420,14 +420,9 @@ func bitsLit(k uint64, bits int) string {
 	return fmt.Sprintf("0x%08xu", k)
 }
 
-// writeKey writes NAME_key, the key of an input that is not NaN, and
-// NAME_is_nan; both read the input's bits, never compare it as a float.
-func (bl *binnedLayout) writeKey(g *gen, w *printer) {
-	kt := fmt.Sprintf("uint%d_t", bl.inBits(g))
-	sign, abs, inf := "0x8000000000000000ull", "0x7fffffffffffffffull", "0x7ff0000000000000ull"
-	if bl.inBits(g) == 32 {
-		sign, abs, inf = "0x80000000u", "0x7fffffffu", "0x7f800000u"
-	}
+// writeBitsFunc writes NAME_bits, which reads an input's bits as the
+// unsigned integer type kt of its width.
+func (g *gen) writeBitsFunc(w *printer, kt string) {
 	w.line("/* The bits of v: memcpy is the conversion C defines (no floating-point operation). */")
 	w.line("static %s %s_bits(const %s *v)", kt, g.name, g.ft)
 	w.line("{")
@@ -436,6 +431,17 @@ func (bl *binnedLayout) writeKey(g *gen, w *printer) {
 	w.line("\treturn b;")
 	w.line("}")
 	w.line("")
+}
+
+// writeKey writes NAME_key, the key of an input that is not NaN, and
+// NAME_is_nan; both read the input's bits, never compare it as a float.
+func (bl *binnedLayout) writeKey(g *gen, w *printer) {
+	kt := fmt.Sprintf("uint%d_t", bl.inBits(g))
+	sign, abs, inf := "0x8000000000000000ull", "0x7fffffffffffffffull", "0x7ff0000000000000ull"
+	if bl.inBits(g) == 32 {
+		sign, abs, inf = "0x80000000u", "0x7fffffffu", "0x7f800000u"
+	}
+	g.writeBitsFunc(w, kt)
 	w.line("/* Whether bits b are a NaN: all exponent bits set and a fraction. */")
 	w.line("static int %s_is_nan(%s b)", g.name, kt)
 	w.line("{")

@@ -177,14 +177,7 @@ func (bl *binnedLayout) writeCTKey(g *gen, w *printer) {
 	if in == 32 {
 		sign, abs, inf = bitsLit(1<<31, 32), bitsLit(1<<31-1, 32), bitsLit(0x7f800000, 32)
 	}
-	w.line("/* The bits of v: memcpy is the conversion C defines (no floating-point operation). */")
-	w.line("static %s %s_bits(const %s *v)", kt, g.name, g.ft)
-	w.line("{")
-	w.line("\t%s b;", kt)
-	w.line("\tmemcpy(&b, v, sizeof b);")
-	w.line("\treturn b;")
-	w.line("}")
-	w.line("")
+	g.writeBitsFunc(w, kt)
 	w.line("/* 1 when bits b are a NaN: all exponent bits set and a fraction. */")
 	w.line("static uint32_t %s_is_nan(%s b)", g.name, kt)
 	w.line("{")
