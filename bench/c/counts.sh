@@ -16,10 +16,8 @@ trees=${2:-100}
 depth=${3:-8}
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
-go build -o "$tmp/train-bench" ./bench/train
-go build -o "$tmp/sawmill" ./cmd/sawmill
-"$tmp/train-bench" -gen "$tmp/data.csv" -rows "$rows" -seed 1
-"$tmp/sawmill" train "$tmp/data.csv" --label label --task classification --trees "$trees" --max-depth "$depth" --seed 1 ${MAX_BINS:+--max-bins "$MAX_BINS"} -o "$tmp/model.json" >/dev/null
+. bench/c/grow.sh
+grow_forest "$tmp" "$rows" "$trees" "$depth"
 cat > "$tmp/driver.c" <<'C'
 #include <stdio.h>
 #include <string.h>
