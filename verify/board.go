@@ -42,10 +42,7 @@ type boardRunner struct {
 	Werror bool
 	// Quick runs each board in one layout (LayoutsFor), to keep CI short.
 	Quick bool
-	// IntLeaves is Config's: integer leaves, held within their bound.
-	IntLeaves int
-	// ConstantTime emits with ctarget.Options.ConstantTime.
-	ConstantTime bool
+	cEmit
 }
 
 // boardQuickLayouts is the layout each board runs in when Quick: the
@@ -161,11 +158,11 @@ func (boardRunner) Float32Inputs(variant string) bool { return findBoard(variant
 // Tolerance is the C runner's: the board's C library's exp is within the
 // same 1 ulp that ctarget.ErrorBound assumes of any.
 func (r boardRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
-	return cRunner{IntLeaves: r.IntLeaves}.Tolerance(map[bool]string{true: "float", false: "double"}[findBoard(variant).float], p)
+	return cRunner{cEmit: cEmit{IntLeaves: r.IntLeaves}}.Tolerance(map[bool]string{true: "float", false: "double"}[findBoard(variant).float], p)
 }
 
 func (r boardRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: findBoard(variant).float, IntLeaves: r.IntLeaves, ConstantTime: r.ConstantTime}
+	return r.cEmit.options(layout, findBoard(variant).float)
 }
 
 // boardTools reports the first of b's tools that is not on PATH, or a

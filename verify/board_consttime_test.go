@@ -93,7 +93,7 @@ func TestBoardConstantTime(t *testing.T) {
 	if testing.Short() {
 		t.Skip("board runs: without -short")
 	}
-	r := boardRunner{Werror: true, ConstantTime: true}
+	r := boardRunner{Werror: true, cEmit: cEmit{ConstantTime: true}}
 	for _, name := range append([]string{"edge-logistic", "sklearn-wine", "v2-transform-scale"}, ctCountCases...) {
 		c, err := goldencase.LoadCase(filepath.Join(goldenCases, name), name)
 		require.NoError(t, err)

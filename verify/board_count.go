@@ -54,13 +54,13 @@ func CountInstructions(ctx context.Context, p *compile.Program, layout, variant 
 // CountInstructionsWith is CountInstructions for the build with integer
 // leaves of intLeaves bits (ctarget.Options.IntLeaves; 0 for exact leaves).
 func CountInstructionsWith(ctx context.Context, p *compile.Program, layout, variant string, intLeaves int, rows *forest.Rows) (*Instructions, error) {
-	return countInstructions(ctx, p, boardRunner{IntLeaves: intLeaves}.options(layout, variant), variant, rows)
+	return countInstructions(ctx, p, boardRunner{cEmit: cEmit{IntLeaves: intLeaves}}.options(layout, variant), variant, rows)
 }
 
 // CountConstantTime is CountInstructions for the constant-time C
 // (ctarget.Options.ConstantTime, the binned layout).
 func CountConstantTime(ctx context.Context, p *compile.Program, variant string, rows *forest.Rows) (*Instructions, error) {
-	return countInstructions(ctx, p, boardRunner{ConstantTime: true}.options(emit.Binned, variant), variant, rows)
+	return countInstructions(ctx, p, boardRunner{cEmit: cEmit{ConstantTime: true}}.options(emit.Binned, variant), variant, rows)
 }
 
 // countInstructions is CountInstructions for the C o describes.

@@ -38,10 +38,21 @@ type cRunner struct {
 	Full bool
 	// Werror and AllCompilers are Config's.
 	Werror, AllCompilers bool
+	cEmit
+}
+
+// cEmit is what the C and board runners ask of the C they emit beyond the
+// layout and the float build.
+type cEmit struct {
 	// IntLeaves is Config's: integer leaves, held within their bound.
 	IntLeaves int
 	// ConstantTime emits with ctarget.Options.ConstantTime.
 	ConstantTime bool
+}
+
+// options are the C target's options for layout, float or double.
+func (b cEmit) options(layout string, float bool) ctarget.Options {
+	return ctarget.Options{Name: cName, Layout: layout, Float: float, IntLeaves: b.IntLeaves, ConstantTime: b.ConstantTime}
 }
 
 // cName is the --name used in tests; not the default, so that a missed
@@ -137,7 +148,7 @@ func (r cRunner) Tolerance(variant string, p *compile.Program) (bool, float64) {
 }
 
 func (r cRunner) options(layout, variant string) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: variant == "float", IntLeaves: r.IntLeaves, ConstantTime: r.ConstantTime}
+	return r.cEmit.options(layout, variant == "float")
 }
 
 func (r cRunner) Emit(p *compile.Program, layout, variant string) ([]emit.File, error) {

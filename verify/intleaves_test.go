@@ -63,7 +63,7 @@ func TestCIntLeavesGolden(t *testing.T) {
 			bits            int
 			layout, variant string
 		}{{16, emit.Binned, "double"}, {16, emit.Binned, "float"}, {32, emit.Table, "double"}} {
-			r := cRunner{Werror: true, IntLeaves: c.bits}
+			r := cRunner{Werror: true, cEmit: cEmit{IntLeaves: c.bits}}
 			ch := intLeafVerify(t, f, rows, r, c.layout, c.variant, nil)
 			t.Logf("%s int%d %s %s: %s, %d rows, max |diff| %.3g, bound %.3g, %d rows where the label is open, %d differ",
 				name, c.bits, c.layout, c.variant, ch.Status, ch.Rows, float64(ch.MaxAbsDiff), float64(ch.Bound), ch.OpenLabels, ch.LabelMismatches)
@@ -81,7 +81,7 @@ func TestCIntLeavesPlanted(t *testing.T) {
 	requireC(t)
 	for _, name := range []string{"edge-logistic", "trained-regression"} {
 		f, rows := intLeafRows(t, name)
-		r := cRunner{Werror: true, IntLeaves: 16}
+		r := cRunner{Werror: true, cEmit: cEmit{IntLeaves: 16}}
 		ch := intLeafVerify(t, f, rows, r, emit.Binned, "double", func(_, _, _ string, p *compile.Program) {
 			for i := range p.Trees[0].Nodes {
 				for j := range p.Trees[0].Nodes[i].Value {
@@ -153,7 +153,7 @@ func TestBoardIntLeaves(t *testing.T) {
 	}
 	for _, variant := range []string{"m0", "rv32", "m4"} {
 		testenv.Need(t, boardTools(findBoard(variant)))
-		r := boardRunner{Werror: true, Quick: true, IntLeaves: 16}
+		r := boardRunner{Werror: true, Quick: true, cEmit: cEmit{IntLeaves: 16}}
 		for _, name := range []string{"edge-logistic", "sklearn-breast-cancer"} {
 			f, rows := intLeafRows(t, name)
 			ch := intLeafVerify(t, f, rows, r, r.LayoutsFor(variant)[0], variant, nil)

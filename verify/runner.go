@@ -107,10 +107,10 @@ func RunnersWith(c Config) []Runner {
 		sqlRunner{engine: "postgres", dsn: c.PostgresDSN},
 		sqlRunner{engine: "mysql", dsn: c.MySQLDSN},
 		sparkRunner{sqlRunner: sqlRunner{engine: "spark"}, python: c.SparkPython},
-		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers, IntLeaves: c.IntLeaves},
+		cRunner{Werror: c.Werror, AllCompilers: c.AllCompilers, cEmit: cEmit{IntLeaves: c.IntLeaves}},
 	}
 	if c.Boards {
-		rs = append(rs, boardRunner{Werror: c.Werror, Quick: true, IntLeaves: c.IntLeaves}, goRunner{Arch: "arm64"})
+		rs = append(rs, boardRunner{Werror: c.Werror, Quick: true, cEmit: cEmit{IntLeaves: c.IntLeaves}}, goRunner{Arch: "arm64"})
 	}
 	return rs
 }
