@@ -39,6 +39,11 @@ const ARMCompiler = "arm-none-eabi-gcc"
 
 var ARMFlags = []string{"-std=c99", "-Os", "-mcpu=cortex-m4", "-mthumb"}
 
+// M0SizeFlags are the options MeasureM0 compiles with: an ARMv6-M core
+// without FPU (the Cortex-M0+ has the same instruction set), so floating
+// point is libgcc's soft-float calls, which are not counted.
+var M0SizeFlags = []string{"-std=c99", "-Os", "-mcpu=cortex-m0", "-mthumb", "-mfloat-abi=soft"}
+
 // stackFlag asks gcc for each function's frame, in model.su.
 const stackFlag = "-fstack-usage"
 
@@ -51,6 +56,9 @@ type CSize struct {
 	// ARM is the object compiled for a Cortex-M4 (MeasureARM); nil when not
 	// measured.
 	ARM *ObjectSize
+	// M0 is the object compiled for a Cortex-M0 (MeasureM0); nil when not
+	// measured. Its Stack is not measured (-1).
+	M0 *ObjectSize
 }
 
 // CSizes is ctarget.Sizes without objects, for when MeasureARM returns
@@ -80,47 +88,84 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 	if err != nil {
 		return nil, err
 	}
-	dir, err := os.MkdirTemp("", "sawmill-arm")
+	err = eachLayoutObject(ctx, p, o, sizes, ARMFlags, func(s *CSize, obj *ObjectSize, su string) {
+		obj.Stack = stackUsage(su, ctargetName(o)+"_predict")
+		s.ARM = obj
+	})
 	if err != nil {
 		return nil, err
+	}
+	return sizes, nil
+}
+
+// MeasureM0 sets the M0 object of each of sizes (from CSizes or
+// MeasureARM): NAME.c of that layout compiled with arm-none-eabi-gcc and
+// M0SizeFlags, not linked. It returns ErrNoARM when the compiler is absent.
+func MeasureM0(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize) error {
+	if _, err := exec.LookPath(ARMCompiler); err != nil {
+		return ErrNoARM
+	}
+	return eachLayoutObject(ctx, p, o, sizes, M0SizeFlags, func(s *CSize, obj *ObjectSize, _ string) {
+		obj.Stack = -1
+		s.M0 = obj
+	})
+}
+
+// eachLayoutObject emits each of sizes' layouts in a temporary folder it
+// removes, compiles NAME.c with arm-none-eabi-gcc, flags and
+// -fstack-usage, and hands the object's sizes and the path of its stack
+// usage file to set.
+func eachLayoutObject(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize, flags []string, set func(*CSize, *ObjectSize, string)) error {
+	dir, err := os.MkdirTemp("", "sawmill-arm")
+	if err != nil {
+		return err
 	}
 	defer os.RemoveAll(dir)
 	for i := range sizes {
 		o.Layout = sizes[i].Layout
-		files, err := ctarget.Emit(p, o)
+		sub := filepath.Join(dir, fmt.Sprint(i))
+		src, err := writeLayout(p, o, sub)
 		if err != nil {
-			return nil, err
+			return err
 		}
-		sub := filepath.Join(dir, o.Layout)
-		if err := os.Mkdir(sub, 0o755); err != nil {
-			return nil, err
-		}
-		var src string
-		for _, f := range files {
-			if err := os.WriteFile(filepath.Join(sub, f.Name), f.Data, 0o644); err != nil {
-				return nil, err
-			}
-			if strings.HasSuffix(f.Name, ".c") {
-				src = f.Name
-			}
-		}
-		args := append(append([]string{}, ARMFlags...), stackFlag, "-c", "-o", "model.o", src)
+		args := append(append([]string{}, flags...), stackFlag, "-c", "-o", "model.o", src)
 		cmd := exec.CommandContext(ctx, ARMCompiler, args...)
 		cmd.Dir = sub
 		var stderr bytes.Buffer
 		cmd.Stderr = &stderr
 		if err := cmd.Run(); err != nil {
-			return nil, fmt.Errorf("%s %s: %v\n%s", ARMCompiler, strings.Join(args, " "), err, stderr.Bytes())
+			return fmt.Errorf("%s %s: %v\n%s", ARMCompiler, strings.Join(args, " "), err, stderr.Bytes())
 		}
 		obj, err := ObjectSizes(filepath.Join(sub, "model.o"))
 		if err != nil {
-			return nil, err
+			return err
 		}
-		obj.Flags = strings.Join(ARMFlags, " ")
-		obj.Stack = stackUsage(filepath.Join(sub, "model.su"), ctargetName(o)+"_predict")
-		sizes[i].ARM = obj
+		obj.Flags = strings.Join(flags, " ")
+		set(&sizes[i], obj, filepath.Join(sub, "model.su"))
 	}
-	return sizes, nil
+	return nil
+}
+
+// writeLayout emits o's layout of p into the new folder dir and returns
+// the name of its .c file.
+func writeLayout(p *compile.Program, o ctarget.Options, dir string) (string, error) {
+	files, err := ctarget.Emit(p, o)
+	if err != nil {
+		return "", err
+	}
+	if err := os.Mkdir(dir, 0o755); err != nil {
+		return "", err
+	}
+	var src string
+	for _, f := range files {
+		if err := os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644); err != nil {
+			return "", err
+		}
+		if strings.HasSuffix(f.Name, ".c") {
+			src = f.Name
+		}
+	}
+	return src, nil
 }
 
 // ObjectSizes sums the allocated sections of an ELF object by kind.

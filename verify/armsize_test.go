@@ -35,3 +35,32 @@ func TestMeasureARM(t *testing.T) {
 		require.Greater(t, s.WorstSplits, 0)
 	}
 }
+
+// MeasureM0 compiles every layout for the Cortex-M0 as well. Its code is
+// ARMv6-M Thumb, a subset of the M4's Thumb-2, so at least one layout's
+// .text differs from the M4 object's.
+func TestMeasureM0(t *testing.T) {
+	f, err := forest.ReadFile(filepath.Join(goldenCases, "trained-wine", "model.json"))
+	require.NoError(t, err)
+	p, _, err := compile.Compile(f, compile.Options{})
+	require.NoError(t, err)
+	sizes, err := MeasureARM(context.Background(), p, ctarget.Options{})
+	if errors.Is(err, ErrNoARM) {
+		testenv.Need(t, err)
+	}
+	require.NoError(t, err)
+	require.NoError(t, MeasureM0(context.Background(), p, ctarget.Options{}, sizes))
+	differ := 0
+	for _, s := range sizes {
+		require.NotNil(t, s.M0, s.Layout)
+		t.Logf("%s: Cortex-M0 .text %d .rodata %d; Cortex-M4 .text %d .rodata %d", s.Layout, s.M0.Text, s.M0.Rodata, s.ARM.Text, s.ARM.Rodata)
+		require.Contains(t, s.M0.Flags, "-mcpu=cortex-m0")
+		require.Greater(t, s.M0.Text, 0)
+		require.GreaterOrEqual(t, s.M0.Rodata, s.TableBytes, "the tables are in .rodata")
+		require.Zero(t, s.M0.Data, "generated code has no writable data")
+		if s.M0.Text != s.ARM.Text {
+			differ++
+		}
+	}
+	require.Positive(t, differ, "every M0 object is the M4's size: were both built for the same core?")
+}

@@ -235,6 +235,9 @@ func printSizes(modelPath string, intLeaves int) error {
 			return err
 		}
 		sizes, err := verify.MeasureARM(context.Background(), p, o)
+		if err == nil {
+			err = verify.MeasureM0(context.Background(), p, o, sizes)
+		}
 		if errors.Is(err, verify.ErrNoARM) {
 			fmt.Println("arm-none-eabi-gcc is not on PATH: tables only")
 			sizes, err = verify.CSizes(p, o)
@@ -255,6 +258,10 @@ func printSizes(modelPath string, intLeaves int) error {
 			if s.ARM != nil {
 				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB; .data+.bss %d)\n", verify.ARMCompiler, s.ARM.Flags,
 					s.ARM.Text, s.ARM.Rodata, s.ARM.Text+s.ARM.Rodata, float64(s.ARM.Text+s.ARM.Rodata)/1024, s.ARM.Data)
+			}
+			if s.M0 != nil {
+				fmt.Printf("    %s %s: .text %d + .rodata %d = %d bytes (%.1f KiB)\n", verify.ARMCompiler, s.M0.Flags,
+					s.M0.Text, s.M0.Rodata, s.M0.Flash(), float64(s.M0.Flash())/1024)
 			}
 		}
 	}

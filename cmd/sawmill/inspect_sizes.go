@@ -27,7 +27,7 @@ const countRows = 32
 // intLeaves, the double build with integer leaves of that many bits too.
 func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest, intLeaves int) error {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tsplits\tCortex-M4 .text\t.rodata\tflash\tstack\tM4 instr mean\tworst\tM0 instr mean\tworst\t")
+	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tsplits\tCortex-M4 .text\t.rodata\tflash\tstack\tM0 flash\tM4 instr mean\tworst\tM0 instr mean\tworst\t")
 	rows := countingRows(f)
 	var notes []string
 	builds := []ctarget.Options{{}, {Float: true}}
@@ -40,9 +40,9 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}
-		sizes, err := verify.MeasureARM(ctx, p, o)
+		sizes, err := measureBoth(ctx, p, o)
 		if errors.Is(err, verify.ErrNoARM) {
-			notes = appendOnce(notes, fmt.Sprintf("(%s is not on PATH: no Cortex-M4 sizes)", verify.ARMCompiler))
+			notes = appendOnce(notes, fmt.Sprintf("(%s is not on PATH: no Cortex-M4 or M0 sizes)", verify.ARMCompiler))
 			sizes, err = verify.CSizes(p, o)
 		}
 		if err != nil {
@@ -74,6 +74,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	}
 	tw.Flush()
 	fmt.Fprintf(w, "splits: the most one prediction tests (the sum of the trees' depths); stack: predict's bytes from gcc -fstack-usage, the C library not counted;\n")
+	fmt.Fprintf(w, "flash: .text + .rodata of NAME.c alone (-Os -mthumb; Cortex-M4 %s, M0 %s), libgcc's float routines and the C library not counted;\n", verify.ARMFlags[2], verify.M0SizeFlags[2])
 	fmt.Fprintf(w, "instructions: per prediction under QEMU (Cortex-M4F mps2-an386, Cortex-M0 microbit), exp and float routines included, over %d probe rows\n", rows.Len())
 	fmt.Fprintf(w, "binned-ct: the binned layout with --constant-time; its splits are tested on every prediction, and its code's own instructions are the same for every row (the float routines' vary)\n")
 	for _, n := range notes {
@@ -90,7 +91,7 @@ const ctLayout = "binned-ct"
 // model (set splits), which leaves the row out.
 func constantTimeSize(ctx context.Context, p *compile.Program, o ctarget.Options) ([]verify.CSize, error) {
 	o.ConstantTime = true
-	sizes, err := verify.MeasureARM(ctx, p, o)
+	sizes, err := measureBoth(ctx, p, o)
 	if errors.Is(err, verify.ErrNoARM) {
 		sizes, err = verify.CSizes(p, o)
 	}
@@ -100,13 +101,23 @@ func constantTimeSize(ctx context.Context, p *compile.Program, o ctarget.Options
 	return sizes, err
 }
 
+// measureBoth is verify.MeasureARM and verify.MeasureM0: each layout's
+// object for a Cortex-M4 and for a Cortex-M0.
+func measureBoth(ctx context.Context, p *compile.Program, o ctarget.Options) ([]verify.CSize, error) {
+	sizes, err := verify.MeasureARM(ctx, p, o)
+	if err != nil {
+		return nil, err
+	}
+	return sizes, verify.MeasureM0(ctx, p, o, sizes)
+}
+
 // printSizeRow prints one layout's row: its tables, the splits, the
 // Cortex-M4 object when measured and the instructions per prediction on
 // boards.
 func printSizeRow(ctx context.Context, tw io.Writer, p *compile.Program, s verify.CSize, kind string, float bool, intLeaves int, boards []string, rows *forest.Rows, notes *[]string) error {
-	arm := "\t\t\t"
-	if s.ARM != nil {
-		arm = fmt.Sprintf("%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack)
+	arm := "\t\t\t\t"
+	if s.ARM != nil && s.M0 != nil {
+		arm = fmt.Sprintf("%d\t%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack, s.M0.Flash())
 	}
 	counts := ""
 	for _, b := range boards {
