@@ -4,7 +4,7 @@ predictions, and time each library's own batch predictor.
 
 Usage: libs.py DATA.csv OUTDIR [--reps 5] [--batches 1,100,10000]
                [--threads 1,2] [--rf-big-trees 1000] [--rf-big-leaves 0]
-               [--single-rows 1000] [--only MODEL,...]
+               [--single-rows 1000] [--only MODEL,...] [--load]
 
 DATA.csv is bench/train/synth's invented table (label last; it stands for
 no real measurement). The models (all seeded):
@@ -15,9 +15,13 @@ no real measurement). The models (all seeded):
   rfbig   RandomForestClassifier, --rf-big-trees trees (fully grown, or at
           most --rf-big-leaves leaves each when that is not 0)
 
+With --load, a model OUTDIR already holds (from an earlier run with the same
+data) is read back instead of trained again, so run.sh can time the library
+and sawmill on one model after the other, round after round.
+
 OUTDIR gets MODEL.model (the file sawmill imports: XGBoost JSON, LightGBM
 text, or a sawmill document written by python/sawmill_export.py),
-MODEL.onnx, MODEL.LIB.pred (the library's probability of class 1 per row,
+MODEL.onnx, MODEL.pkl (a scikit-learn forest, pickled for --load), MODEL.LIB.pred (the library's probability of class 1 per row,
 float64 little-endian; LIB is the model's own library or onnx) and rows.bin
 (the rows as float64, row after row). Prints one line per timing:
 
@@ -31,6 +35,7 @@ takes float64.
 """
 import argparse
 import os
+import pickle
 import sys
 import time
 import warnings
@@ -81,7 +86,41 @@ def train_rf(X, y, out, trees, leaves, features, labels):
                                 random_state=1, n_jobs=2)
     rf.fit(X, y)
     sawmill_export.save(rf, out + ".model", feature_names=features, class_names=[str(c) for c in (0, 1)])
+    with open(out + ".pkl.tmp", "wb") as fh:
+        pickle.dump(rf, fh)
+    os.replace(out + ".pkl.tmp", out + ".pkl")
     return rf
+
+
+def load_model(kind, out):
+    """The model an earlier run saved under out, or None when there is none."""
+    if kind == "xgb" and os.path.exists(out + ".model"):
+        import xgboost as xgb
+
+        with open(out + ".model", "rb") as fh:
+            return xgb.Booster(model_file=bytearray(fh.read()))
+    if kind == "lgbm" and os.path.exists(out + ".model"):
+        import lightgbm as lgb
+
+        return lgb.Booster(model_file=out + ".model")
+    if kind in ("rf", "rfbig") and os.path.exists(out + ".pkl"):
+        with open(out + ".pkl", "rb") as fh:
+            return pickle.load(fh)
+    return None
+
+
+def train(kind, X, y, out, a, features, labels):
+    """Trains kind on X, y, saves it under out with its ONNX form."""
+    if kind == "xgb":
+        model = train_xgb(X, y, out)
+    elif kind == "lgbm":
+        model = train_lgbm(X, y, out)
+    elif kind == "rf":
+        model = train_rf(X, y, out, 100, 0, features, labels)
+    else:
+        model = train_rf(X, y, out, a.rf_big_trees, a.rf_big_leaves, features, labels)
+    to_onnx(kind, model, X.shape[1], out)
+    return model
 
 
 def to_onnx(kind, model, nfeat, out):
@@ -159,6 +198,7 @@ def main():
     ap.add_argument("--rf-big-leaves", type=int, default=0)
     ap.add_argument("--single-rows", type=int, default=1000)
     ap.add_argument("--only", default="xgb,lgbm,rf,rfbig")
+    ap.add_argument("--load", action="store_true", help="reuse the models OUTDIR holds")
     a = ap.parse_args()
     features, X, y, labels = load(a.data)
     X.astype("<f8").tofile(os.path.join(a.outdir, "rows.bin"))
@@ -171,15 +211,9 @@ def main():
         xgboost.__version__, lightgbm.__version__, sklearn.__version__, onnxruntime.__version__), flush=True)
     for kind in a.only.split(","):
         out = os.path.join(a.outdir, kind)
-        if kind == "xgb":
-            model = train_xgb(X, y, out)
-        elif kind == "lgbm":
-            model = train_lgbm(X, y, out)
-        elif kind == "rf":
-            model = train_rf(X, y, out, 100, 0, features, labels)
-        else:
-            model = train_rf(X, y, out, a.rf_big_trees, a.rf_big_leaves, features, labels)
-        to_onnx(kind, model, X.shape[1], out)
+        model = load_model(kind, out) if a.load else None
+        if model is None:
+            model = train(kind, X, y, out, a, features, labels)
         for lib, fn, dt in predictors(kind, model, out, 2):
             np.asarray(fn(X.astype(dt)), dtype="<f8").tofile("%s.%s.pred" % (out, lib))
         for t in [int(v) for v in a.threads.split(",")]:

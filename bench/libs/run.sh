@@ -20,13 +20,20 @@
 # the fastest sawmill side, sawmill's ns per tree per row, and this
 # machine's branch floor.
 #
+# The two sides are timed one model at a time, the library's run and then
+# sawmill's, so each ratio compares figures taken seconds apart (the load of
+# a shared machine drifts over minutes); ROUNDS=N goes over the models N
+# times, the later rounds reusing the trained models (libs.py --load), and
+# prints a table per model and round.
+#
 # Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
 #   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
-#   C_LAYOUTS=auto,table,block,block+avx2 (+avx2: built with -mavx2 too)
+#   C_LAYOUTS=auto,table,block,block+avx2 (+avx2: built with -mavx2 too; the
+#   default has block+avx2 only where /proc/cpuinfo lists avx2)
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
 #   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
-#   KEEP=DIR keeps the models, rows and predictions in DIR
+#   ROUNDS=1; KEEP=DIR keeps the models, rows and predictions in DIR
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 reps=${1:-5}
@@ -37,12 +44,24 @@ mkdir -p "$tmp"
 
 go build -o "$tmp/train-bench" ./bench/train
 go build -o "$tmp/libs-bench" ./bench/libs
+xgblib=$("$py" -c 'import os, xgboost; print(os.path.join(os.path.dirname(xgboost.__file__), "lib", "libxgboost.so"))')
+lgblib=$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(lightgbm.__file__), "lib", "lib_lightgbm.so"))')
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "${ROWS:-20000}" -seed 1
-"$py" bench/libs/libs.py "$tmp/data.csv" "$tmp" --reps "$reps" --only "${MODELS:-xgb,lgbm,rf,rfbig}" \
-	--batches "${BATCHES:-1,100,10000}" --threads "${THREADS:-1,2}" --single-rows "${SINGLE_ROWS:-1000}" \
-	--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs.txt"
-"$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs.txt" -models "${MODELS:-xgb,lgbm,rf,rfbig}" -reps "$reps" \
-	-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
-	-c "${C_LAYOUTS:-auto,table,block,block+avx2}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
-	-xgboost-lib "$("$py" -c 'import os, xgboost; print(os.path.join(os.path.dirname(xgboost.__file__), "lib", "libxgboost.so"))')" \
-	-lightgbm-lib "$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(lightgbm.__file__), "lib", "lib_lightgbm.so"))')"
+models=${MODELS:-xgb,lgbm,rf,rfbig}
+# An -mavx2 build cannot run on a CPU without AVX2 (this one may lack it).
+avx2=
+! grep -qw avx2 /proc/cpuinfo 2>/dev/null || avx2=,block+avx2
+for round in $(seq "${ROUNDS:-1}"); do
+	for m in ${models//,/ }; do
+		load=
+		[ "$round" -eq 1 ] || load=--load
+		echo "== $m, round $round, load average $(cut -d' ' -f1-3 /proc/loadavg)"
+		"$py" bench/libs/libs.py "$tmp/data.csv" "$tmp" --reps "$reps" --only "$m" $load \
+			--batches "${BATCHES:-1,100,10000}" --threads "${THREADS:-1,2}" --single-rows "${SINGLE_ROWS:-1000}" \
+			--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs-$m.txt"
+		"$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs-$m.txt" -models "$m" -reps "$reps" \
+			-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
+			-c "${C_LAYOUTS:-auto,table,block$avx2}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
+			-xgboost-lib "$xgblib" -lightgbm-lib "$lgblib"
+	done
+done
