@@ -88,14 +88,18 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 	if err != nil {
 		return nil, err
 	}
-	err = eachLayoutObject(ctx, p, o, sizes, ARMFlags, func(s *CSize, obj *ObjectSize, su string) {
-		obj.Stack = stackUsage(su, ctargetName(o)+"_predict")
-		s.ARM = obj
-	})
-	if err != nil {
+	if err := measureM4(ctx, p, o, sizes); err != nil {
 		return nil, err
 	}
 	return sizes, nil
+}
+
+// measureM4 sets the ARM object of each of sizes, with predict's stack.
+func measureM4(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize) error {
+	return eachLayoutObject(ctx, p, o, sizes, ARMFlags, func(s *CSize, obj *ObjectSize, su string) {
+		obj.Stack = stackUsage(su, ctargetName(o)+"_predict")
+		s.ARM = obj
+	})
 }
 
 // MeasureM0 sets the M0 object of each of sizes (from CSizes or
@@ -228,4 +232,25 @@ func stackUsage(path, predict string) int {
 		return -1
 	}
 	return own + other
+}
+
+// MeasureLayout is MeasureARM and MeasureM0 for the one layout o asks for
+// (o.Layout resolved, not auto): its tables, its Cortex-M4 object with
+// the stack, and its Cortex-M0 object.
+func MeasureLayout(ctx context.Context, p *compile.Program, o ctarget.Options) (*CSize, error) {
+	if _, err := exec.LookPath(ARMCompiler); err != nil {
+		return nil, ErrNoARM
+	}
+	s, err := ctarget.LayoutSize(p, o)
+	if err != nil {
+		return nil, err
+	}
+	sizes := []CSize{{Size: s}}
+	if err := measureM4(ctx, p, o, sizes); err != nil {
+		return nil, err
+	}
+	if err := MeasureM0(ctx, p, o, sizes); err != nil {
+		return nil, err
+	}
+	return &sizes[0], nil
 }

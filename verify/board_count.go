@@ -161,3 +161,14 @@ func traceMarks(ctx context.Context, dir string, args []string, qemu, prefix str
 	}
 	return marks, owns, nil
 }
+
+// CountInstructionsOf is CountInstructions for the C o asks for, on the
+// board variant ("m4", "m0", "m4-float", "rv32"); o.Float must match the
+// variant's build.
+func CountInstructionsOf(ctx context.Context, p *compile.Program, o ctarget.Options, variant string, rows *forest.Rows) (*Instructions, error) {
+	if o.Float != findBoard(variant).float {
+		return nil, fmt.Errorf("BUG: verify: a float build is %v, board %s's is not", o.Float, variant)
+	}
+	o.Name, o.Threads = cName, false
+	return countInstructions(ctx, p, o, variant, rows)
+}

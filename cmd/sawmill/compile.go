@@ -65,33 +65,34 @@ func (t target) emit(p *compile.Program, fl *compileFlags) ([]emit.File, error) 
 }
 
 type compileFlags struct {
-	target    string
-	out       string
-	layout    string
-	pkg       string
-	name      string
-	float     bool
-	dialect   string
-	table     string
-	keep      []string
-	view      string
-	function  string
-	sample    string
-	lossy     []string
-	dumpAfter string
-	verbose   bool
-	force     bool
-	maxNest   int      // SQL: CASE nesting bound, 0 for the dialect's default
-	columns   []string // SQL: feature=column pairs
-	selftest  bool     // SQL and C: also write the self-test
-	threads   bool     // C: also write NAME_threads.h and NAME_threads.c
-	constTime bool     // C: the constant-time walk
-	leafVals  bool     // C: keep classification leaves as values, not class counts
-	model     *forest.Forest
-	tables    string
-	budget    budgetFlags
-	intFeats  []string // features that arrive as integers
-	intLeaves int      // C: leaves as scaled integers of 16 or 32 bits (lossy), 0 for exact
+	target     string
+	out        string
+	layout     string
+	pkg        string
+	name       string
+	float      bool
+	dialect    string
+	table      string
+	keep       []string
+	view       string
+	function   string
+	sample     string
+	lossy      []string
+	dumpAfter  string
+	verbose    bool
+	force      bool
+	maxNest    int      // SQL: CASE nesting bound, 0 for the dialect's default
+	columns    []string // SQL: feature=column pairs
+	selftest   bool     // SQL and C: also write the self-test
+	threads    bool     // C: also write NAME_threads.h and NAME_threads.c
+	constTime  bool     // C: the constant-time walk
+	boardFacts bool     // C: measure the chosen layout on boards and write the figures into NAME.h
+	leafVals   bool     // C: keep classification leaves as values, not class counts
+	model      *forest.Forest
+	tables     string
+	budget     budgetFlags
+	intFeats   []string // features that arrive as integers
+	intLeaves  int      // C: leaves as scaled integers of 16 or 32 bits (lossy), 0 for exact
 }
 
 func newCompileCmd() *cobra.Command {

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"strconv"
@@ -19,6 +20,13 @@ import (
 // beside them.
 func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
 	o := cOptions(fl)
+	if fl.boardFacts {
+		facts, err := boardFacts(context.Background(), p, o, fl)
+		if err != nil {
+			return nil, err
+		}
+		o.Facts = facts
+	}
 	files, err := ctarget.Emit(p, o)
 	if err != nil || !fl.selftest {
 		return files, err
@@ -56,8 +64,9 @@ func printIntLeafBounds(w io.Writer, p *compile.Program, fl *compileFlags) error
 	return nil
 }
 
-// addConstantTimeFlag adds --constant-time.
+// addConstantTimeFlag adds --constant-time and --board-facts.
 func addConstantTimeFlag(f *pflag.FlagSet, fl *compileFlags) {
+	f.BoolVar(&fl.boardFacts, "board-facts", false, "C: measure the layout written on a Cortex-M4 and M0 (flash, RAM, stack with arm-none-eabi-gcc; instructions per prediction under QEMU, as inspect --c-sizes) and write the figures into NAME.h; needs the tools .ci/setup installs")
 	f.BoolVar(&fl.constTime, "constant-time", false, "C: every prediction executes the same instructions (the binned layout, each tree walked its depth, no branch on the input), for control loops that need fixed timing; the emitted code runs 1.3 to 3.4 times the binned layout's instructions (measured under QEMU)")
 }
 

@@ -130,6 +130,11 @@ type Options struct {
 	// with fixed-step searches and walks and selects in place of branches
 	// (consttime.go). Other layouts are refused.
 	ConstantTime bool
+	// Facts are lines about the compiled code measured outside the emitter
+	// (flash, stack, instructions on boards: sawmill compile
+	// --board-facts), written in the header in place of the pointer to
+	// sawmill inspect --c-sizes. Emitting runs no compiler itself.
+	Facts []string
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.

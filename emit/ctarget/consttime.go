@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math/bits"
+	"strings"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -84,6 +85,14 @@ func (g *gen) timeFacts(w *printer) {
 		w.line(" * leaf sums and the transform still depend on it: constant in time with a")
 		w.line(" * hardware FPU of the accumulator's type and no data cache, not with")
 		w.line(" * soft-float addition or exp.")
+	}
+	if len(g.o.Facts) > 0 {
+		for _, f := range g.o.Facts {
+			// A fact is one line of the comment, and cannot end it.
+			f = strings.NewReplacer("*/", "* /", "\n", " ", "\r", " ").Replace(f)
+			w.line(" * %s", f)
+		}
+		return
 	}
 	w.line(" * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V")
 	w.line(" * boards: sawmill inspect --c-sizes (emitting runs no compiler).")

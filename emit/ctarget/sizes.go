@@ -60,6 +60,19 @@ func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	return out, nil
 }
 
+// LayoutSize is Sizes for the one layout o asks for (o.Layout resolved,
+// not auto; with o.ConstantTime, binned).
+func LayoutSize(p *compile.Program, o Options) (Size, error) {
+	if o.ConstantTime {
+		s, err := constantTimeSizes(p, o)
+		if err != nil {
+			return Size{}, err
+		}
+		return s[0], nil
+	}
+	return sizeOf(p, o, o.Layout)
+}
+
 // sizeOf emits p in layout l and sums its tables.
 func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 	o.Layout = l
