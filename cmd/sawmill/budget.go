@@ -34,7 +34,7 @@ func fitBudget(ctx context.Context, w io.Writer, p *compile.Program, fl *compile
 	if fl.budget.flash < 0 || fl.budget.ram < 0 {
 		return usageError{fmt.Errorf("sawmill compile: a budget is a number of bytes above 0")}
 	}
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, LeafValues: fl.leafVals}
+	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, LeafValues: fl.leafVals, Pack: fl.pack}
 	b := verify.Budget{Flash: fl.budget.flash, RAM: fl.budget.ram}
 	layout, rows, err := verify.FitBudget(ctx, p, o, b)
 	if err != nil {

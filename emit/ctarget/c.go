@@ -130,6 +130,11 @@ type Options struct {
 	// with fixed-step searches and walks and selects in place of branches
 	// (consttime.go). Other layouts are refused.
 	ConstantTime bool
+	// Pack stores the table and binned layouts' split words, leaf rows and
+	// class counts at the bits the model needs, in packed uint32_t arrays
+	// read with aligned loads (packbits.go): fewer bytes, a few more
+	// instructions a field.
+	Pack bool
 }
 
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
@@ -287,6 +292,8 @@ type gen struct {
 	classMac []string // NAME_C_... macro per class
 	// il is the integer leaves' scale and bound (Options.IntLeaves), or nil.
 	il *intLeaves
+	// fieldWritten: NAME_field, the packed arrays' reader, is written.
+	fieldWritten bool
 }
 
 // Table is one static array of the generated code.
