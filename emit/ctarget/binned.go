@@ -68,6 +68,9 @@ type binnedLayout struct {
 	// bits first; words are the packed words.
 	parts []int
 	words []uint64
+	// packBits, with Options.Pack, is the width of a packed word
+	// (packbits.go), or 0: words stored in parts.
+	packBits int
 	kLo   uint64 // missing band [kLo, kHi] as keys, when HasMissingValue
 	kHi   uint64
 	zLo   uint64 // zero band [zLo, zHi] as keys, when hasZM
@@ -143,6 +146,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
 	tl.counts = g.leafCountsOf(tl)
+	g.packCounts(tl)
 	// A float32 model's double build has its cuts as floats (tl.round32)
 	// and rounds its inputs to nearest; otherwise thresholds are in the
 	// input's type.
@@ -243,6 +247,9 @@ func (bl *binnedLayout) chooseWord(g *gen, splits []tableSplit) error {
 			n, len(g.p.Features), bl.numCuts(), maxLeft)
 	}
 	bl.parts = wordParts((n + 7) / 8)
+	if g.o.Pack && packable(len(splits), n) && packedBytes(len(splits), n) < len(splits)*bl.wordBits()/8 {
+		bl.packBits = n
+	}
 	return nil
 }
 
@@ -309,7 +316,8 @@ func (g *gen) binnedLeaves(tl *tableLayout) {
 		nRows = max(nRows, len(tl.rows1.vecs))
 	}
 	nLeaves, k, vb := len(tl.leafOf), tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
+	tl.direct = !tl.mixed && nLeaves*k*vb <= packedLeafRowBytes(nLeaves, nRows, g.o.Pack)+tl.rowTableBytes(g, nRows)
+	tl.dropPackedCounts()
 }
 
 // bands turns the missing band and the zero band into keys.
@@ -330,6 +338,9 @@ func (g *gen) binned(w *printer) error {
 		return err
 	}
 	t := newTableWriter(g, bl.tl, w)
+	if bl.packBits > 0 || bl.tl.usesPacking(g) {
+		g.writeFieldFunc(w)
+	}
 	bl.writeWords(g, w)
 	t.treeStarts()
 	bl.writeCuts(g, w)
@@ -349,6 +360,10 @@ func (bl *binnedLayout) writeWords(g *gen, w *printer) {
 	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), cut index (%s)%s%s,", nbits(bl.fBits), nbits(bl.kBits),
 		map[bool]string{true: ", missing goes left (1 bit)"}[bl.hasML], map[bool]string{true: ", zero is missing (1 bit)"}[bl.hasZM])
 	w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s);", nbits(bl.aBits))
+	if bl.packBits > 0 {
+		bl.writePackedWords(g, w)
+		return
+	}
 	w.line(" * %d bits a split, stored in %s. */", bl.wordBits(), bl.partNames(g))
 	n := max(len(bl.words), 1) // C has no empty arrays
 	shift := 0
@@ -554,6 +569,9 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 
 // wordExpr reads word i from its arrays, aligned loads only.
 func (bl *binnedLayout) wordExpr(g *gen) string {
+	if bl.packBits > 0 {
+		return fmt.Sprintf("%s_field(%s_node, i * %du, %du)", g.name, g.name, bl.packBits, bl.packBits)
+	}
 	wt := "uint32_t"
 	if bl.wordBits() > 32 {
 		wt = "uint64_t"

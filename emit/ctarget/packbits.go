@@ -319,3 +319,14 @@ func (t *tableWriter) writePackedWords() {
 	w.line("/* The split words packed, %s each, word i at bit i*%d (read by %s_field). */", nbits(tl.packBits), tl.packBits, g.name)
 	g.writePacked(w, g.name+"_node", fmt.Sprintf("split words, %s each, packed", nbits(tl.packBits)), s)
 }
+
+// writePackedWords writes the binned layout's NAME_node, the split words
+// packed at bl.packBits bits each.
+func (bl *binnedLayout) writePackedWords(g *gen, w *printer) {
+	s := &bitStream{}
+	for _, x := range bl.words {
+		s.put(x, bl.packBits)
+	}
+	w.line(" * packed, %s each, word i at bit i*%d (read by %s_field). */", nbits(bl.packBits), bl.packBits, g.name)
+	g.writePacked(w, g.name+"_node", fmt.Sprintf("split words, %s each, packed", nbits(bl.packBits)), s)
+}
