@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -223,6 +224,46 @@ func TestCPackedForestPacks(t *testing.T) {
 		for _, layout := range []string{emit.Table, emit.Binned} {
 			src := cSource(t, p, r.options(layout, variant))
 			require.True(t, strings.Contains(src, cName+"_field("+cName+"_node, "), "%s %s: split words not packed", layout, variant)
+		}
+	}
+}
+
+// TestBoardPacked runs the packed table and binned layouts of the packed
+// forest on the bare-metal boards (Cortex-M4 double and float, and the
+// Cortex-M0, which faults on an unaligned load) and compares every row with
+// the interpreter (bit for bit; the float build within its bound) and bit for
+// bit with the unpacked build. About half a minute.
+func TestBoardPacked(t *testing.T) {
+	if testing.Short() {
+		t.Skip("board runs: without -short")
+	}
+	f := packedForest(t)
+	rows := leafCountRows(t, f)
+	r := boardRunner{Werror: true, cEmit: cEmit{Pack: true}}
+	for _, board := range []string{"m4", "m4-float", "m0"} {
+		for _, layout := range []string{emit.Table, emit.Binned} {
+			t.Run(board+"/"+layout, func(t *testing.T) {
+				if err := boardTools(findBoard(board)); err != nil {
+					if os.Getenv("SAWMILL_REQUIRE_ENGINES") != "" {
+						t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
+					}
+					t.Skipf("skipped: %v", err)
+				}
+				p, _, err := compile.Compile(f, r.CompileOptions(board))
+				require.NoError(t, err)
+				require.True(t, strings.Contains(cSource(t, p, r.options(layout, board)), cName+"_field("+cName+"_node, "), "not packed")
+				res, err := r.Score(context.Background(), p, layout, board, rows, t.TempDir())
+				require.NoError(t, err)
+				want, wantCls := cReference(f, rows, findBoard(board).float)
+				exact, bound := r.Tolerance(board, p)
+				m := Compare(want, res.Outputs, wantCls, res.Classes, p.NumOutputs, exact, bound)
+				require.True(t, m.OK(), "%s", m)
+				plain, err := boardRunner{Werror: true}.Score(context.Background(), p, layout, board, rows, t.TempDir())
+				require.NoError(t, err)
+				for i := range plain.Outputs {
+					require.Equal(t, math.Float64bits(plain.Outputs[i]), math.Float64bits(res.Outputs[i]), "output %d: packed and unpacked differ", i)
+				}
+			})
 		}
 	}
 }

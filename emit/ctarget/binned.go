@@ -71,10 +71,12 @@ type binnedLayout struct {
 	// packBits, with Options.Pack, is the width of a packed word
 	// (packbits.go), or 0: words stored in parts.
 	packBits int
-	kLo   uint64 // missing band [kLo, kHi] as keys, when HasMissingValue
-	kHi   uint64
-	zLo   uint64 // zero band [zLo, zHi] as keys, when hasZM
-	zHi   uint64
+	// packedCuts, with Options.Pack, packs the cut keys (packcuts.go).
+	packedCuts *cutPacking
+	kLo        uint64 // missing band [kLo, kHi] as keys, when HasMissingValue
+	kHi        uint64
+	zLo        uint64 // zero band [zLo, zHi] as keys, when hasZM
+	zHi        uint64
 }
 
 // maxBinCuts is the most cuts a feature may have: bins 0..n and MISS fit
@@ -167,6 +169,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 		return nil, err
 	}
 	bl.pack(splits, index)
+	bl.chooseCutPacking(g)
 	tl.words = bl.words // the tree starts count them
 	g.binnedLeaves(tl)
 	bl.bands(g)
@@ -338,7 +341,7 @@ func (g *gen) binned(w *printer) error {
 		return err
 	}
 	t := newTableWriter(g, bl.tl, w)
-	if bl.packBits > 0 || bl.tl.usesPacking(g) {
+	if bl.packBits > 0 || bl.packedCuts != nil || bl.tl.usesPacking(g) {
 		g.writeFieldFunc(w)
 	}
 	bl.writeWords(g, w)
@@ -400,6 +403,11 @@ func (bl *binnedLayout) partNames(g *gen) string {
 func (bl *binnedLayout) writeCuts(g *gen, w *printer) {
 	n := bl.numCuts()
 	kt := fmt.Sprintf("uint%d_t", bl.keyBits)
+	if bl.packedCuts != nil {
+		bl.writeCutBase(g, w)
+		bl.writePackedCuts(g, w)
+		return
+	}
 	w.line("/* Cuts, by feature, as ascending keys: the IEEE bits of the %s, the sign bit", g.ft)
 	w.line(" * set when it is clear and every bit inverted when it is set (so keys order as")
 	w.line(" * the values do), -0 read as +0. */")
@@ -415,7 +423,12 @@ func (bl *binnedLayout) writeCuts(g *gen, w *printer) {
 	w.line("};")
 	g.tables = append(g.tables, Table{g.name + "_cut", "cut keys", max(n, 1), bl.keyBits / 8})
 	w.line("")
-	cb := intBytes(n)
+	bl.writeCutBase(g, w)
+}
+
+// writeCutBase writes where each feature's cuts start.
+func (bl *binnedLayout) writeCutBase(g *gen, w *printer) {
+	cb := intBytes(bl.numCuts())
 	w.line("/* First cut of each feature; feature f has cuts cut_base[f] to cut_base[f+1]-1. */")
 	w.line("static const %s %s_cut_base[%d] = {", uintType(cb), g.name, len(bl.cutBase))
 	g.numbers(w, len(bl.cutBase), func(i int) string { return fmt.Sprint(bl.cutBase[i]) })
@@ -553,7 +566,11 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 	}
 	w.line("while (lo < hi) { /* the first cut not below k */")
 	w.line("\tconst uint32_t mid = lo + ((hi - lo) >> 1);")
-	w.line("\tif (%s_cut[mid] < %s) {", g.name, ck)
+	cut := fmt.Sprintf("%s_cut[mid]", g.name)
+	if bl.packedCuts != nil {
+		cut = fmt.Sprintf("%s_cut_at(f, mid)", g.name)
+	}
+	w.line("\tif (%s < %s) {", cut, ck)
 	w.line("\t\tlo = mid + 1u;")
 	w.line("\t} else {")
 	w.line("\t\thi = mid;")
