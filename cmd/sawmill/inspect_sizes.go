@@ -59,7 +59,6 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		}
 		if o.Pack {
 			kind += " packed"
-			sizes = packedRows(sizes)
 		}
 		if o.IntLeaves == 0 && !o.Pack {
 			ct, err := constantTimeSize(ctx, p, o)
@@ -87,17 +86,6 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		fmt.Fprintln(w, n)
 	}
 	return nil
-}
-
-// packedRows keeps the table and binned rows, the layouts --pack changes.
-func packedRows(sizes []verify.CSize) []verify.CSize {
-	var out []verify.CSize
-	for _, s := range sizes {
-		if s.Layout == emit.Table || s.Layout == emit.Binned {
-			out = append(out, s)
-		}
-	}
-	return out
 }
 
 // ctLayout labels the constant-time row.
