@@ -133,7 +133,7 @@ type Options struct {
 	// Pack stores the table and binned layouts' split words, leaf rows and
 	// class counts at the bits the model needs, in packed uint32_t arrays
 	// read with aligned loads (packbits.go): fewer bytes, a few more
-	// instructions a field.
+	// instructions a field. Ignored with ConstantTime.
 	Pack bool
 }
 
@@ -314,6 +314,11 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	name := o.Name
 	if name == "" {
 		name = "model"
+	}
+	if o.ConstantTime {
+		// the packed count tiers choose a width per row; constant time
+		// keeps every array as its fixed-time walk was measured with
+		o.Pack = false
 	}
 	if err := CheckName(name); err != nil {
 		return nil, err
