@@ -215,11 +215,10 @@ func (t *tableWriter) writePackedCounts() {
 // the packed NAME_leaf: cw, the width of a count, and cpos, the bit
 // position of its first.
 func (t *tableWriter) packedCountReads(row string) {
-	g, w, pc, k := t.g, t.w, t.tl.counts.packed, t.tl.width
+	w, pc, k := t.w, t.tl.counts.packed, t.tl.width
 	w.line("const uint32_t crow = %s;", row)
 	w.line("const uint32_t cw = crow < %du ? %du : %du; /* bits a count */", pc.k1, pc.w1, pc.w2)
 	w.line("const uint32_t cpos = crow < %du ? crow * %du : %du + (crow - %du) * %du;", pc.k1, k*pc.w1, pc.k1*k*pc.w1, pc.k1, k*pc.w2)
-	_ = g
 }
 
 // packedLeafRowBits is the width of a packed leaf row, 0 when leaf rows
