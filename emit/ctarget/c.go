@@ -61,6 +61,13 @@
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
 //
+// Options.Pack stores the table and binned layouts' split words, leaf rows
+// and class counts at the bits the model needs, and the binned cuts as
+// offsets from each feature's least, in uint32_t arrays read with aligned
+// loads (packbits.go, packcuts.go): the same outputs, 4 to 26% fewer table
+// bytes, more instructions a prediction; asked for, or picked by a flash
+// budget.
+//
 // One option is lossy, and only on request: Options.IntLeaves (16 or 32)
 // stores each leaf as a scaled integer, sums them in integers
 // (NAME_predict_scaled) and derives, prints in the header and hands verify
