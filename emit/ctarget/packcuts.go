@@ -7,7 +7,7 @@ import (
 
 // Packed cuts (Options.Pack, the binned layout). A feature's cut keys are
 // sorted and lie close together in key space: a double feature whose cuts
-// span a few binades differs from its least cut only in the low 53 to 57
+// span a few binades differs from its least cut only in the low 52 to 56
 // bits of the key. With Pack, each feature stores its least key whole
 // (NAME_cut_lo) and every cut as its offset from it, in the bits the
 // feature's largest offset needs (NAME_cut_w), packed (NAME_cut, feature f
