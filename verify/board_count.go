@@ -57,6 +57,12 @@ func CountInstructionsWith(ctx context.Context, p *compile.Program, layout, vari
 	return countInstructions(ctx, p, boardRunner{cEmit: cEmit{IntLeaves: intLeaves}}.options(layout, variant), variant, rows)
 }
 
+// CountPacked is CountInstructions for the C with packed bits
+// (ctarget.Options.Pack).
+func CountPacked(ctx context.Context, p *compile.Program, layout, variant string, rows *forest.Rows) (*Instructions, error) {
+	return countInstructions(ctx, p, boardRunner{cEmit: cEmit{Pack: true}}.options(layout, variant), variant, rows)
+}
+
 // CountConstantTime is CountInstructions for the constant-time C
 // (ctarget.Options.ConstantTime, the binned layout).
 func CountConstantTime(ctx context.Context, p *compile.Program, variant string, rows *forest.Rows) (*Instructions, error) {

@@ -28,6 +28,16 @@ type BudgetRow struct {
 	// calls; nothing in NAME.c recurses); -1 when not measured.
 	RAM      int
 	Measured bool
+	// Pack: the layout with packed bits (ctarget.Options.Pack).
+	Pack bool
+}
+
+// Name is the row's layout, with " --pack" for packed bits.
+func (r BudgetRow) Name() string {
+	if r.Pack {
+		return r.Layout + " --pack"
+	}
+	return r.Layout
 }
 
 // Miss is by how many bytes r misses b's flash and RAM (0 when it fits;
@@ -70,7 +80,7 @@ func (e *BudgetError) Error() string {
 		if e.Budget.RAM > 0 && r.RAM < 0 {
 			why = append(why, "RAM unknown (gcc gave no static stack figure)")
 		}
-		parts = append(parts, fmt.Sprintf("  %s misses %s", r.Layout, strings.Join(why, " and ")))
+		parts = append(parts, fmt.Sprintf("  %s misses %s", r.Name(), strings.Join(why, " and ")))
 	}
 	return "no exact C layout fits the budget:\n" + strings.Join(parts, "\n") +
 		"\nhint: train with fewer or shallower trees, or --max-bins, or compile --float"
@@ -81,35 +91,26 @@ func (e *BudgetError) Error() string {
 var ErrRAMUnmeasured = errors.New("a RAM budget needs " + ARMCompiler + " on PATH (the stack comes from its -fstack-usage)")
 
 // FitBudget measures the layouts (o.Layout alone when it names one, every
-// exact layout for emit.Auto or "") and returns the one of least flash
-// that fits b, with every row measured. Flash is the Cortex-M4 object's
-// where arm-none-eabi-gcc is on PATH, else the static tables alone. A
-// layout the model cannot take (binned with set splits) is left out.
-func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Budget) (string, []BudgetRow, error) {
-	sizes, err := MeasureARM(ctx, p, o)
-	measured := err == nil
-	if errors.Is(err, ErrNoARM) {
-		if b.RAM > 0 {
-			return "", nil, ErrRAMUnmeasured
-		}
-		sizes, err = CSizes(p, o)
+// exact layout for emit.Auto or ""), the table and binned ones also with
+// packed bits, and returns the row of least flash that fits b, with every
+// row measured (o.Pack measures packed rows only). Flash is the Cortex-M4
+// object's where arm-none-eabi-gcc is on PATH, else the static tables
+// alone. A layout the model cannot take (binned with set splits) is left
+// out.
+func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Budget) (BudgetRow, []BudgetRow, error) {
+	rows, err := budgetRows(ctx, p, o, b)
+	if err != nil || o.Pack {
+		return pickRow(rows, b, err)
 	}
+	o.Pack = true
+	packed, err := budgetRows(ctx, p, o, b)
+	return pickRow(append(rows, packed...), b, err)
+}
+
+// pickRow is the row of least flash that fits b.
+func pickRow(rows []BudgetRow, b Budget, err error) (BudgetRow, []BudgetRow, error) {
 	if err != nil {
-		return "", nil, err
-	}
-	var rows []BudgetRow
-	for _, s := range sizes {
-		if o.Layout != "" && o.Layout != "auto" && s.Layout != o.Layout {
-			continue
-		}
-		r := BudgetRow{Layout: s.Layout, Flash: s.TableBytes, RAM: -1, Measured: measured}
-		if s.ARM != nil {
-			r.Flash = s.ARM.Flash()
-			if s.ARM.Stack >= 0 {
-				r.RAM = s.ARM.Data + s.ARM.Stack
-			}
-		}
-		rows = append(rows, r)
+		return BudgetRow{}, nil, err
 	}
 	best := -1
 	for i, r := range rows {
@@ -118,7 +119,37 @@ func FitBudget(ctx context.Context, p *compile.Program, o ctarget.Options, b Bud
 		}
 	}
 	if best < 0 {
-		return "", rows, &BudgetError{Budget: b, Rows: rows}
+		return BudgetRow{}, rows, &BudgetError{Budget: b, Rows: rows}
 	}
-	return rows[best].Layout, rows, nil
+	return rows[best], rows, nil
+}
+
+// budgetRows measures the layouts o asks for.
+func budgetRows(ctx context.Context, p *compile.Program, o ctarget.Options, b Budget) ([]BudgetRow, error) {
+	sizes, err := MeasureARM(ctx, p, o)
+	measured := err == nil
+	if errors.Is(err, ErrNoARM) {
+		if b.RAM > 0 {
+			return nil, ErrRAMUnmeasured
+		}
+		sizes, err = CSizes(p, o)
+	}
+	if err != nil {
+		return nil, err
+	}
+	var rows []BudgetRow
+	for _, s := range sizes {
+		if o.Layout != "" && o.Layout != "auto" && s.Layout != o.Layout {
+			continue
+		}
+		r := BudgetRow{Layout: s.Layout, Flash: s.TableBytes, RAM: -1, Measured: measured, Pack: o.Pack}
+		if s.ARM != nil {
+			r.Flash = s.ARM.Flash()
+			if s.ARM.Stack >= 0 {
+				r.RAM = s.ARM.Data + s.ARM.Stack
+			}
+		}
+		rows = append(rows, r)
+	}
+	return rows, nil
 }

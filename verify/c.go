@@ -48,11 +48,13 @@ type cEmit struct {
 	IntLeaves int
 	// ConstantTime emits with ctarget.Options.ConstantTime.
 	ConstantTime bool
+	// Pack emits with ctarget.Options.Pack (packed bits).
+	Pack bool
 }
 
 // options are the C target's options for layout, float or double.
 func (b cEmit) options(layout string, float bool) ctarget.Options {
-	return ctarget.Options{Name: cName, Layout: layout, Float: float, IntLeaves: b.IntLeaves, ConstantTime: b.ConstantTime}
+	return ctarget.Options{Name: cName, Layout: layout, Float: float, IntLeaves: b.IntLeaves, ConstantTime: b.ConstantTime, Pack: b.Pack}
 }
 
 // cName is the --name used in tests; not the default, so that a missed

@@ -2,9 +2,10 @@
 # Class-count leaves against stored leaf values on the forest of m4.sh: a
 # 100-tree, two-class, depth-8 forest grown by sawmill train on the invented
 # table of bench/train/synth (ROWS rows x 20 features, seeded). Each of the
-# table and binned layouts, double and float, is emitted twice (leaves as
-# counts, and with --leaf-values), built with gcc -O2 and run over the
-# training rows; the outputs' bits must be the same. Prints one line per
+# table and binned layouts, double and float, is emitted three times (leaves
+# as counts, with --leaf-values, and as counts with --pack, packed bits),
+# built with gcc -O2 and run over the training rows; the outputs' bits must
+# be the same. Prints one line per
 # build: the checksum of the output bits, and "same" or "DIFFER".
 #
 # Usage: bench/c/counts.sh [ROWS] [TREES] [DEPTH]      (defaults 20000 100 8)
@@ -60,17 +61,18 @@ C
 for layout in table binned; do
 	for ft in double float; do
 		sums=()
-		for leaves in counts values; do
+		for leaves in counts values packed; do
 			d="$tmp/$layout-$ft-$leaves"
 			flags=(--target c --layout "$layout")
 			[ "$ft" = float ] && flags+=(--float)
 			[ "$leaves" = values ] && flags+=(--leaf-values)
+			[ "$leaves" = packed ] && flags+=(--pack)
 			"$tmp/sawmill" compile "$tmp/model.json" "${flags[@]}" -o "$d" >/dev/null
 			gcc -std=c99 -O2 -DFTYPE="$ft" -I"$d" -o "$d/score" "$tmp/driver.c" "$d/model.c" -lm
 			sums+=("$("$d/score" < "$tmp/data.csv" | md5sum | cut -d' ' -f1)")
 		done
 		verdict=same
-		[ "${sums[0]}" = "${sums[1]}" ] || verdict=DIFFER
-		echo "$layout/$ft: counts ${sums[0]}, values ${sums[1]}: $verdict"
+		[ "${sums[0]}" = "${sums[1]}" ] && [ "${sums[0]}" = "${sums[2]}" ] || verdict=DIFFER
+		echo "$layout/$ft: counts ${sums[0]}, values ${sums[1]}, packed ${sums[2]}: $verdict"
 	done
 done

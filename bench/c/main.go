@@ -49,9 +49,10 @@ func main() {
 	goLayouts := flag.String("go", "nested,table,branchless", "emitted Go layouts")
 	sizes := flag.Bool("sizes", false, "print the table sizes of each layout and the Cortex-M4 object sizes, then stop")
 	intLeaves := flag.Int("int-leaves", 0, "with -sizes, also the sizes with leaves as scaled integers of 16 or 32 bits (compile --int-leaves)")
+	pack := flag.Bool("pack", false, "with -sizes, also the sizes with packed bits (compile --pack)")
 	flag.Parse()
 	if *sizes {
-		if err := printSizes(*model, *intLeaves); err != nil {
+		if err := printSizes(*model, *intLeaves, *pack); err != nil {
 			fmt.Fprintln(os.Stderr, "c-bench:", err)
 			os.Exit(1)
 		}
@@ -218,8 +219,9 @@ func run(modelPath, rowsPath string, rounds, reps int, sklearnSecs float64, noGo
 
 // printSizes prints, for double and float C (and with intLeaves double C
 // with integer leaves), each layout's tables and, when arm-none-eabi-gcc is
-// on PATH, the object's sections for a Cortex-M4.
-func printSizes(modelPath string, intLeaves int) error {
+// on PATH, the object's sections for a Cortex-M4; with pack also double and
+// float C with packed bits.
+func printSizes(modelPath string, intLeaves int, pack bool) error {
 	f, err := forest.ReadFile(modelPath)
 	if err != nil {
 		return err
@@ -227,6 +229,9 @@ func printSizes(modelPath string, intLeaves int) error {
 	builds := []ctarget.Options{{}, {Float: true}}
 	if intLeaves != 0 {
 		builds = append(builds, ctarget.Options{IntLeaves: intLeaves}, ctarget.Options{IntLeaves: intLeaves, Float: true})
+	}
+	if pack {
+		builds = append(builds, ctarget.Options{Pack: true}, ctarget.Options{Pack: true, Float: true})
 	}
 	for _, o := range builds {
 		fl := o.Float
@@ -248,6 +253,9 @@ func printSizes(modelPath string, intLeaves int) error {
 		ft := map[bool]string{false: "double", true: "float"}[fl]
 		if o.IntLeaves != 0 {
 			ft += fmt.Sprintf(", int%d leaves", o.IntLeaves)
+		}
+		if o.Pack {
+			ft += ", packed"
 		}
 		fmt.Printf("%s: %d trees, %d nodes (%d leaves), depth %d\n", ft, len(p.Trees), p.NumNodes(), p.NumLeaves(), p.MaxDepth())
 		for _, s := range sizes {

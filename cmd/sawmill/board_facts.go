@@ -6,6 +6,7 @@ import (
 	"fmt"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/verify"
 )
@@ -21,6 +22,9 @@ func boardFacts(ctx context.Context, p *compile.Program, o ctarget.Options, fl *
 		return nil, err
 	}
 	o.Layout = layout
+	if o.Pack && !o.ConstantTime && (layout == emit.Table || layout == emit.Binned) {
+		layout += " --pack"
+	}
 	s, err := verify.MeasureLayout(ctx, p, o)
 	if errors.Is(err, verify.ErrNoARM) {
 		return nil, fmt.Errorf("--board-facts: %v\nhint: install Debian's gcc-arm-none-eabi and libnewlib-arm-none-eabi (or picolibc-arm-none-eabi), or leave out --board-facts", err)

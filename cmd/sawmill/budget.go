@@ -34,22 +34,22 @@ func fitBudget(ctx context.Context, w io.Writer, p *compile.Program, fl *compile
 	if fl.budget.flash < 0 || fl.budget.ram < 0 {
 		return usageError{fmt.Errorf("sawmill compile: a budget is a number of bytes above 0")}
 	}
-	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, LeafValues: fl.leafVals}
+	o := ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, LeafValues: fl.leafVals, Pack: fl.pack}
 	b := verify.Budget{Flash: fl.budget.flash, RAM: fl.budget.ram}
-	layout, rows, err := verify.FitBudget(ctx, p, o, b)
+	chosen, rows, err := verify.FitBudget(ctx, p, o, b)
 	if err != nil {
 		return err
 	}
 	for _, r := range rows {
-		fmt.Fprintf(w, "%s\n", budgetLine(r, r.Layout == layout))
+		fmt.Fprintf(w, "%s\n", budgetLine(r, r == chosen))
 	}
-	fl.layout = layout
+	fl.layout, fl.pack = chosen.Layout, chosen.Pack
 	return nil
 }
 
 // budgetLine is one layout's row of the report.
 func budgetLine(r verify.BudgetRow, chosen bool) string {
-	s := fmt.Sprintf("  %-7s flash %d bytes", r.Layout, r.Flash)
+	s := fmt.Sprintf("  %-14s flash %d bytes", r.Name(), r.Flash)
 	if !r.Measured {
 		s += " (tables alone: " + verify.ARMCompiler + " is not on PATH)"
 	}

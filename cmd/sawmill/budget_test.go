@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
@@ -28,29 +29,43 @@ func budgetRows(t *testing.T) map[string]verify.BudgetRow {
 	require.NoError(t, err)
 	out := map[string]verify.BudgetRow{}
 	for _, r := range rows {
-		out[r.Layout] = r
+		out[r.Name()] = r
 	}
-	for _, l := range []string{"nested", "table", "binned", "bitvector"} {
-		require.Contains(t, out, l, "every C layout is measured (the fixture's trees have at most 64 leaves, so bitvector too)")
+	for _, l := range []string{"nested", "table", "binned", "bitvector", "table --pack", "binned --pack"} {
+		require.Contains(t, out, l, "every C layout is measured (the fixture's trees have at most 64 leaves, so bitvector too), table and binned packed too")
 	}
-	require.Len(t, out, len(ctarget.Layouts()))
+	require.Len(t, out, len(ctarget.Layouts())+2)
 	return out
 }
 
+// smallestRow is the row of least flash.
+func smallestRow(rows map[string]verify.BudgetRow) verify.BudgetRow {
+	var best verify.BudgetRow
+	for _, r := range rows {
+		if best.Layout == "" || r.Flash < best.Flash {
+			best = r
+		}
+	}
+	return best
+}
+
 // A flash budget picks the smallest layout that fits, at the byte: the
-// binned layout's own flash fits, one byte less fails naming by how much
-// every layout misses, and writes nothing.
+// smallest row's own flash fits, one byte less fails naming by how much
+// every layout misses, and writes nothing. Packed layouts are rows too.
 func TestCompileFlashBudget(t *testing.T) {
 	rows := budgetRows(t)
-	bin := rows["binned"]
-	require.Less(t, bin.Flash, rows["table"].Flash, "the fixture's binned build is the smallest")
+	bin := smallestRow(rows)
+	require.Equal(t, "binned", bin.Layout, "the fixture's binned build is the smallest")
+	require.Less(t, bin.Flash, rows["table"].Flash)
 	dir := t.TempDir()
 	code, out, errOut := sawmill(t, "compile", breastCancer, "--target", "c", "-o", dir, "--flash-budget", fmt.Sprint(bin.Flash))
 	require.Equal(t, 0, code, errOut)
+	require.Contains(t, out, bin.Name()+" ")
 	require.Contains(t, out, "<- chosen")
 	src, err := os.ReadFile(filepath.Join(dir, "model.c"))
 	require.NoError(t, err)
 	require.Contains(t, string(src), "layout binned")
+	require.Equal(t, bin.Pack, strings.Contains(string(src), "model_field("), "packed exactly when the packed row is chosen")
 
 	// table only: the budget holds the table layout, not nested
 	code, _, errOut = sawmill(t, "compile", breastCancer, "--target", "c", "-o", dir, "--flash-budget", fmt.Sprint(rows["table"].Flash), "--layout", "table")
@@ -60,7 +75,7 @@ func TestCompileFlashBudget(t *testing.T) {
 	code, _, errOut = sawmill(t, "compile", breastCancer, "--target", "c", "-o", empty, "--flash-budget", fmt.Sprint(bin.Flash-1))
 	require.Equal(t, 1, code)
 	require.Contains(t, errOut, "no exact C layout fits the budget")
-	require.Contains(t, errOut, fmt.Sprintf("binned misses flash by 1 bytes (%d of %d", bin.Flash, bin.Flash-1))
+	require.Contains(t, errOut, fmt.Sprintf("%s misses flash by 1 bytes (%d of %d", bin.Name(), bin.Flash, bin.Flash-1))
 	require.Contains(t, errOut, fmt.Sprintf("table misses flash by %d bytes", rows["table"].Flash-bin.Flash+1))
 	require.Contains(t, errOut, "nested misses flash by")
 	files, _ := os.ReadDir(empty)

@@ -88,6 +88,7 @@ type compileFlags struct {
 	constTime  bool     // C: the constant-time walk
 	boardFacts bool     // C: measure the chosen layout on boards and write the figures into NAME.h
 	leafVals   bool     // C: keep classification leaves as values, not class counts
+	pack       bool     // C: packed bits in the table and binned layouts (ctarget.Options.Pack)
 	model      *forest.Forest
 	tables     string
 	budget     budgetFlags
@@ -142,6 +143,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f.StringSliceVar(&fl.intFeats, "int-features", nil, "features that arrive as integers (ADC counts, enumerations): their thresholds become ⌊t⌋, exact for integer inputs; a fraction scores as its ceiling")
 	f.IntVar(&fl.intLeaves, "int-leaves", 0, "C: lossy: store leaves as scaled int16 or int32 (16 or 32) summed in integers, with NAME_predict_scaled; prints and writes in NAME.h the derived error bound per output")
 	addConstantTimeFlag(f, fl)
+	f.BoolVar(&fl.pack, "pack", false, "C: store the table and binned layouts' split words, leaf rows and class counts at the bits the model needs (fewer bytes, a few instructions more a node)")
 	f.BoolVar(&fl.leafVals, "leaf-values", false, "C: store a classification forest's leaves as numbers in the table and binned layouts, not as class counts divided at run time (faster, larger)")
 	f.BoolVar(&fl.threads, "threads", false, "C: also write NAME_threads.h and NAME_threads.c: NAME_predict_batch_threads, the batch on POSIX threads (leave both out where there are none)")
 	return c

@@ -24,7 +24,8 @@ const countRows = 32
 // (.text + .rodata, compiled -Os -mthumb) and predict's stack; and when
 // QEMU is there too, instructions per prediction on the Cortex-M4 and (for
 // double) the Cortex-M0, mean and worst over the first probe rows. With
-// intLeaves, the double build with integer leaves of that many bits too.
+// intLeaves, the double build with integer leaves of that many bits too;
+// and the table and binned layouts with packed bits, double and float.
 func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest, intLeaves int) error {
 	tw := tabwriter.NewWriter(w, 2, 8, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "C\tlayout\ttable bytes\tbytes/node\tsplits\tCortex-M4 .text\t.rodata\tflash\tstack\tM0 flash\tM4 instr mean\tworst\tM0 instr mean\tworst\t")
@@ -34,6 +35,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	if intLeaves != 0 {
 		builds = append(builds, ctarget.Options{IntLeaves: intLeaves})
 	}
+	builds = append(builds, ctarget.Options{Pack: true}, ctarget.Options{Pack: true, Float: true})
 	for _, o := range builds {
 		float := o.Float
 		p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(float))
@@ -55,7 +57,10 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		if o.IntLeaves != 0 {
 			kind = fmt.Sprintf("%s int%d", kind, o.IntLeaves)
 		}
-		if o.IntLeaves == 0 {
+		if o.Pack {
+			kind += " packed"
+		}
+		if o.IntLeaves == 0 && !o.Pack {
 			ct, err := constantTimeSize(ctx, p, o)
 			var u *emit.Unsupported
 			switch {
@@ -67,7 +72,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 			sizes = append(sizes, ct...)
 		}
 		for _, s := range sizes {
-			if err := printSizeRow(ctx, tw, p, s, kind, float, o.IntLeaves, boards, rows, &notes); err != nil {
+			if err := printSizeRow(ctx, tw, p, s, kind, float, o, boards, rows, &notes); err != nil {
 				return err
 			}
 		}
@@ -76,6 +81,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 	fmt.Fprintf(w, "splits: the most one prediction tests (the sum of the trees' depths); stack: predict's bytes from gcc -fstack-usage, the C library not counted;\n")
 	fmt.Fprintf(w, "flash: .text + .rodata of NAME.c alone (-Os -mthumb; Cortex-M4 %s, M0 %s), libgcc's float routines and the C library not counted;\n", verify.ARMFlags[2], verify.M0SizeFlags[2])
 	fmt.Fprintf(w, "instructions: per prediction under QEMU (Cortex-M4F mps2-an386, Cortex-M0 microbit), exp and float routines included, over %d probe rows\n", rows.Len())
+	fmt.Fprintf(w, "packed: the table and binned layouts with --pack (split words, leaf rows and class counts at the bits the model needs)\n")
 	fmt.Fprintf(w, "binned-ct: the binned layout with --constant-time; its splits are tested on every prediction, and its code's own instructions are the same for every row (the float routines' vary)\n")
 	for _, n := range notes {
 		fmt.Fprintln(w, n)
@@ -114,7 +120,7 @@ func measureBoth(ctx context.Context, p *compile.Program, o ctarget.Options) ([]
 // printSizeRow prints one layout's row: its tables, the splits, the
 // Cortex-M4 object when measured and the instructions per prediction on
 // boards.
-func printSizeRow(ctx context.Context, tw io.Writer, p *compile.Program, s verify.CSize, kind string, float bool, intLeaves int, boards []string, rows *forest.Rows, notes *[]string) error {
+func printSizeRow(ctx context.Context, tw io.Writer, p *compile.Program, s verify.CSize, kind string, float bool, o ctarget.Options, boards []string, rows *forest.Rows, notes *[]string) error {
 	arm := "\t\t\t\t"
 	if s.ARM != nil && s.M0 != nil {
 		arm = fmt.Sprintf("%d\t%d\t%d\t%d\t%d", s.ARM.Text, s.ARM.Rodata, s.ARM.Flash(), s.ARM.Stack, s.M0.Flash())
@@ -123,10 +129,13 @@ func printSizeRow(ctx context.Context, tw io.Writer, p *compile.Program, s verif
 	for _, b := range boards {
 		var in *verify.Instructions
 		var err error
-		if s.Layout == ctLayout {
+		switch {
+		case s.Layout == ctLayout:
 			in, err = verify.CountConstantTime(ctx, p, b, rows)
-		} else {
-			in, err = verify.CountInstructionsWith(ctx, p, s.Layout, b, intLeaves, rows)
+		case o.Pack:
+			in, err = verify.CountPacked(ctx, p, s.Layout, b, rows)
+		default:
+			in, err = verify.CountInstructionsWith(ctx, p, s.Layout, b, o.IntLeaves, rows)
 		}
 		switch {
 		case errors.Is(err, verify.ErrSkip):

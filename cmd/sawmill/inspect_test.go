@@ -68,15 +68,17 @@ func TestInspectJSON(t *testing.T) {
 	assert.Contains(t, text, "  importance  top: ")
 }
 
-// --c-sizes prints each C layout's table bytes (the constant-time walk too), double and float, and the
-// Cortex-M4 and M0 flash when arm-none-eabi-gcc is installed (.ci/setup installs it).
+// --c-sizes prints each C layout's table bytes (the constant-time walk and the packed table and
+// binned layouts too), double and float, and the Cortex-M4 and M0 flash when arm-none-eabi-gcc is
+// installed (.ci/setup installs it).
 func TestInspectCSizes(t *testing.T) {
 	code, out, errOut := sawmill(t, "inspect", "../../forest/testdata/pump.json", "--c-sizes")
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
 	}
 	flat := strings.Join(strings.Fields(out), " ") // the columns' widths follow the longest name
-	for _, want := range []string{"double nested", "double table", "float table", "double bitvector", "double binned-ct", "float binned-ct", "bytes/node", "splits", "stack", "M0 flash"} {
+	for _, want := range []string{"double nested", "double table", "float table", "double bitvector", "double binned-ct", "float binned-ct",
+		"double packed table", "float packed binned", "bytes/node", "splits", "stack", "M0 flash"} {
 		if !strings.Contains(flat, want) {
 			t.Errorf("missing %q in:\n%s", want, out)
 		}

@@ -41,7 +41,7 @@ func emitC(p *compile.Program, fl *compileFlags) ([]emit.File, error) {
 // cOptions are the C target's options the compile flags ask for.
 func cOptions(fl *compileFlags) ctarget.Options {
 	return ctarget.Options{Name: fl.name, Layout: fl.layout, Float: fl.float, Threads: fl.threads,
-		IntLeaves: fl.intLeaves, ConstantTime: fl.constTime, LeafValues: fl.leafVals}
+		IntLeaves: fl.intLeaves, ConstantTime: fl.constTime, LeafValues: fl.leafVals, Pack: fl.pack}
 }
 
 // printIntLeafBounds says, for --int-leaves, how far each output of the

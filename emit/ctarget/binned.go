@@ -68,10 +68,15 @@ type binnedLayout struct {
 	// bits first; words are the packed words.
 	parts []int
 	words []uint64
-	kLo   uint64 // missing band [kLo, kHi] as keys, when HasMissingValue
-	kHi   uint64
-	zLo   uint64 // zero band [zLo, zHi] as keys, when hasZM
-	zHi   uint64
+	// packBits, with Options.Pack, is the width of a packed word
+	// (packbits.go), or 0: words stored in parts.
+	packBits int
+	// packedCuts, with Options.Pack, packs the cut keys (packcuts.go).
+	packedCuts *cutPacking
+	kLo        uint64 // missing band [kLo, kHi] as keys, when HasMissingValue
+	kHi        uint64
+	zLo        uint64 // zero band [zLo, zHi] as keys, when hasZM
+	zHi        uint64
 }
 
 // maxBinCuts is the most cuts a feature may have: bins 0..n and MISS fit
@@ -143,6 +148,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
 	tl.counts = g.leafCountsOf(tl)
+	g.packCounts(tl)
 	// A float32 model's double build has its cuts as floats (tl.round32)
 	// and rounds its inputs to nearest; otherwise thresholds are in the
 	// input's type.
@@ -163,6 +169,7 @@ func (g *gen) buildBinned() (*binnedLayout, error) {
 		return nil, err
 	}
 	bl.pack(splits, index)
+	bl.chooseCutPacking(g)
 	tl.words = bl.words // the tree starts count them
 	g.binnedLeaves(tl)
 	bl.bands(g)
@@ -243,6 +250,9 @@ func (bl *binnedLayout) chooseWord(g *gen, splits []tableSplit) error {
 			n, len(g.p.Features), bl.numCuts(), maxLeft)
 	}
 	bl.parts = wordParts((n + 7) / 8)
+	if g.o.Pack && packable(len(splits), n) && packedBytes(len(splits), n) < len(splits)*bl.wordBits()/8 {
+		bl.packBits = n
+	}
 	return nil
 }
 
@@ -309,7 +319,8 @@ func (g *gen) binnedLeaves(tl *tableLayout) {
 		nRows = max(nRows, len(tl.rows1.vecs))
 	}
 	nLeaves, k, vb := len(tl.leafOf), tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
+	tl.direct = !tl.mixed && nLeaves*k*vb <= packedLeafRowBytes(nLeaves, nRows, g.o.Pack)+tl.rowTableBytes(g, nRows)
+	tl.dropPackedCounts()
 }
 
 // bands turns the missing band and the zero band into keys.
@@ -330,6 +341,9 @@ func (g *gen) binned(w *printer) error {
 		return err
 	}
 	t := newTableWriter(g, bl.tl, w)
+	if bl.packBits > 0 || bl.packedCuts != nil || bl.tl.usesPacking(g) {
+		g.writeFieldFunc(w)
+	}
 	bl.writeWords(g, w)
 	t.treeStarts()
 	bl.writeCuts(g, w)
@@ -349,6 +363,10 @@ func (bl *binnedLayout) writeWords(g *gen, w *printer) {
 	w.line("/* Splits, per tree in preorder, low bits first: feature (%s), cut index (%s)%s%s,", nbits(bl.fBits), nbits(bl.kBits),
 		map[bool]string{true: ", missing goes left (1 bit)"}[bl.hasML], map[bool]string{true: ", zero is missing (1 bit)"}[bl.hasZM])
 	w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s);", nbits(bl.aBits))
+	if bl.packBits > 0 {
+		bl.writePackedWords(g, w)
+		return
+	}
 	w.line(" * %d bits a split, stored in %s. */", bl.wordBits(), bl.partNames(g))
 	n := max(len(bl.words), 1) // C has no empty arrays
 	shift := 0
@@ -385,6 +403,11 @@ func (bl *binnedLayout) partNames(g *gen) string {
 func (bl *binnedLayout) writeCuts(g *gen, w *printer) {
 	n := bl.numCuts()
 	kt := fmt.Sprintf("uint%d_t", bl.keyBits)
+	if bl.packedCuts != nil {
+		bl.writeCutBase(g, w)
+		bl.writePackedCuts(g, w)
+		return
+	}
 	w.line("/* Cuts, by feature, as ascending keys: the IEEE bits of the %s, the sign bit", g.ft)
 	w.line(" * set when it is clear and every bit inverted when it is set (so keys order as")
 	w.line(" * the values do), -0 read as +0. */")
@@ -400,7 +423,12 @@ func (bl *binnedLayout) writeCuts(g *gen, w *printer) {
 	w.line("};")
 	g.tables = append(g.tables, Table{g.name + "_cut", "cut keys", max(n, 1), bl.keyBits / 8})
 	w.line("")
-	cb := intBytes(n)
+	bl.writeCutBase(g, w)
+}
+
+// writeCutBase writes where each feature's cuts start.
+func (bl *binnedLayout) writeCutBase(g *gen, w *printer) {
+	cb := intBytes(bl.numCuts())
 	w.line("/* First cut of each feature; feature f has cuts cut_base[f] to cut_base[f+1]-1. */")
 	w.line("static const %s %s_cut_base[%d] = {", uintType(cb), g.name, len(bl.cutBase))
 	g.numbers(w, len(bl.cutBase), func(i int) string { return fmt.Sprint(bl.cutBase[i]) })
@@ -538,7 +566,11 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 	}
 	w.line("while (lo < hi) { /* the first cut not below k */")
 	w.line("\tconst uint32_t mid = lo + ((hi - lo) >> 1);")
-	w.line("\tif (%s_cut[mid] < %s) {", g.name, ck)
+	cut := fmt.Sprintf("%s_cut[mid]", g.name)
+	if bl.packedCuts != nil {
+		cut = fmt.Sprintf("%s_cut_at(f, mid)", g.name)
+	}
+	w.line("\tif (%s < %s) {", cut, ck)
 	w.line("\t\tlo = mid + 1u;")
 	w.line("\t} else {")
 	w.line("\t\thi = mid;")
@@ -554,6 +586,9 @@ func (bl *binnedLayout) writeBins(g *gen, w *printer) {
 
 // wordExpr reads word i from its arrays, aligned loads only.
 func (bl *binnedLayout) wordExpr(g *gen) string {
+	if bl.packBits > 0 {
+		return fmt.Sprintf("%s_field(%s_node, i * %du, %du)", g.name, g.name, bl.packBits, bl.packBits)
+	}
 	wt := "uint32_t"
 	if bl.wordBits() > 32 {
 		wt = "uint64_t"

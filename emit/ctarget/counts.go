@@ -1,8 +1,10 @@
 package ctarget
 
 import (
+	"fmt"
 	"math"
 	"math/big"
+	"strings"
 )
 
 // Count leaves. A classification forest's leaf is a vector of class
@@ -28,6 +30,8 @@ type leafCounts struct {
 	bytes int
 	// floatDiv: the float accumulator divides in float.
 	floatDiv bool
+	// packed, with Options.Pack, holds how the counts are packed.
+	packed *packedCounts
 }
 
 // maxLeafCount is the largest n a count leaf may have.
@@ -225,10 +229,16 @@ func (t *tableWriter) addCounts(l string) {
 	g, w, lc := t.g, t.w, t.tl.counts
 	w.line("{")
 	w.in()
-	w.line("const %s *const cnt = &%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS];", uintType(lc.bytes), g.name, t.row(l), g.upper)
+	cnt := "cnt[j]"
+	if lc.packed != nil {
+		t.packedCountReads(t.row(l))
+		cnt = fmt.Sprintf("%s_field(%s_leaf, cpos + (uint32_t)j * cw, cw)", g.name, g.name)
+	} else {
+		w.line("const %s *const cnt = &%s_leaf[(uint32_t)%s * %s_NUM_OUTPUTS];", uintType(lc.bytes), g.name, t.row(l), g.upper)
+	}
 	w.line("uint32_t draws = 0u;")
 	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-	w.line("\tdraws += cnt[j];")
+	w.line("\tdraws += %s;", cnt)
 	w.line("}")
 	w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
 	var share string
@@ -240,6 +250,7 @@ func (t *tableWriter) addCounts(l string) {
 	default:
 		share = "(float)((double)cnt[j] / (double)draws) /* the float nearest the double share */"
 	}
+	share = strings.ReplaceAll(share, "cnt[j]", cnt)
 	w.line("\t%s", t.addTo(t.accOf(l)+"[j]", share))
 	w.line("}")
 	w.out()

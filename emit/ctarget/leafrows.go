@@ -32,6 +32,10 @@ func leafRowBytes(nLeaves, nRows int) int {
 // writeLeafRows writes NAME_leaf_row, each leaf's row of NAME_leaf.
 func (t *tableWriter) writeLeafRows() {
 	g, tl, w := t.g, t.tl, t.w
+	if pb := tl.packedLeafRowBits(g.o.Pack); pb > 0 {
+		t.writePackedLeafRows(pb)
+		return
+	}
 	n := len(tl.leafOf)
 	b := leafRowBits(tl.maxRows())
 	if b == 0 {
@@ -62,6 +66,9 @@ func (t *tableWriter) writeLeafRows() {
 
 // leafRowOf is the C expression of the row of leaf at (a uint32_t).
 func (t *tableWriter) leafRowOf(at string) string {
+	if pb := t.tl.packedLeafRowBits(t.g.o.Pack); pb > 0 {
+		return fmt.Sprintf("%s_field(%s_leaf_row, %s * %du, %du)", t.g.name, t.g.name, at, pb, pb)
+	}
 	b := leafRowBits(t.tl.maxRows())
 	if b == 0 {
 		return fmt.Sprintf("%s_leaf_row[%s]", t.g.name, at)

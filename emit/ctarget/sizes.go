@@ -40,14 +40,19 @@ func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned, 
 // ignored); a model the binned layout refuses (set splits, too many cuts)
 // has no binned row, and one the bitvector layout cannot write (see
 // bitvectorFits) no bitvector row. With o.ConstantTime it reports the
-// one layout constant time writes. It emits each layout, so it costs what
-// Emit costs.
+// one layout constant time writes, and with o.Pack the two layouts packing
+// changes (table and binned). It emits each layout, so it costs what Emit
+// costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	if o.ConstantTime {
 		return constantTimeSizes(p, o)
 	}
 	var out []Size
-	for _, l := range Layouts() {
+	layouts := Layouts()
+	if o.Pack {
+		layouts = []string{emit.Table, emit.Binned}
+	}
+	for _, l := range layouts {
 		s, err := sizeOf(p, o, l)
 		if err != nil && (l == emit.Binned || l == Bitvector || l == Block || o.IntLeaves != 0 && l == emit.Nested) {
 			continue

@@ -78,6 +78,9 @@ type tableLayout struct {
 	leafFloat bool  // every leaf value is a float value
 	// counts, when set, holds every leaf row as class counts (counts.go).
 	counts *leafCounts
+	// packBits, with Options.Pack, is the width of a packed split word
+	// (packbits.go), or 0: words of wordBits.
+	packBits int
 }
 
 // tableSplit is one split as buildTable collects it, before packing.
@@ -108,6 +111,7 @@ func (g *gen) buildTable() (*tableLayout, error) {
 	tl := &tableLayout{width: g.p.NumOutputs}
 	g.tableLeaves(tl)
 	tl.counts = g.leafCountsOf(tl)
+	g.packCounts(tl)
 	tl.round32 = !g.o.Float && g.p.Midpoints32
 	splits, thrSet := g.tableSplits(tl)
 	index, maxLocal := tl.thresholdTables(thrSet)
@@ -140,8 +144,10 @@ func (g *gen) buildTable() (*tableLayout, error) {
 		tl.p1Bits, tl.p2Bits = max(sizes.aBits, sizes.rBits), sizes.rBits
 	}
 	tl.packWords(splits, index)
+	tl.choosePackedWord(g)
 	nLeaves, nRows, k, vb := len(tl.leafOf), sizes.nRows, tl.width, tl.leafElemBytes(g)
-	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= leafRowBytes(nLeaves, nRows)+nRows*k*vb
+	tl.direct = !tl.inWord && !tl.mixed && nLeaves*k*vb <= packedLeafRowBytes(nLeaves, nRows, g.o.Pack)+tl.rowTableBytes(g, nRows)
+	tl.dropPackedCounts()
 	return tl, nil
 }
 
@@ -313,7 +319,7 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 	k := tl.width
 	vb := tl.leafElemBytes(g)
 	nLeaves, nRows := len(tl.leafOf), len(tl.leafRows.vecs)
-	rowBytes := nRows * k * vb
+	rowBytes := tl.rowTableBytes(g, nRows)
 	if tl.mixed {
 		nRows = max(nRows, len(tl.rows1.vecs))
 		rowBytes += len(tl.rows1.vecs) * vb
@@ -343,7 +349,7 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 				c.bits = tl.fBits + tb + flags + max(aBits, rBits) + rBits
 			} else {
 				c.bits = tl.fBits + tb + flags + aBits
-				leafBytes += leafRowBytes(nLeaves, nRows)
+				leafBytes += packedLeafRowBytes(nLeaves, nRows, g.o.Pack)
 				if !tl.mixed {
 					leafBytes = min(leafBytes, nLeaves*k*vb)
 				}
@@ -356,7 +362,7 @@ func (g *gen) chooseWord(tl *tableLayout, splits []tableSplit, maxLocal, maxLeft
 			if wb == 0 {
 				continue
 			}
-			c.bytes += len(splits) * wb / 8
+			c.bytes += wordTableBytes(len(splits), c.bits, g.o.Pack)
 			if best == nil || c.bytes < best.bytes {
 				best = &c
 			}
@@ -558,6 +564,9 @@ func (g *gen) table(w *printer) error {
 		return err
 	}
 	t := newTableWriter(g, tl, w)
+	if tl.usesPacking(g) {
+		g.writeFieldFunc(w)
+	}
 	g.writeSets(w)
 	t.splitWords()
 	t.treeStarts()
@@ -573,6 +582,9 @@ func (g *gen) table(w *printer) error {
 
 func newTableWriter(g *gen, tl *tableLayout, w *printer) *tableWriter {
 	t := &tableWriter{g: g, tl: tl, w: w, k: tl.width, wt: fmt.Sprintf("uint%d_t", tl.wordBits)}
+	if tl.packBits > 0 {
+		t.wt = "uint32_t"
+	}
 	t.tt = g.ft
 	if !g.o.Float && (tl.thrFloat || tl.round32) {
 		t.tt = "float"
@@ -632,6 +644,10 @@ func (t *tableWriter) splitWords() {
 		w.line(" * leaf's row if the right child is a leaf. */")
 	} else {
 		w.line(" * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (%s). */", nbits(tl.p1Bits))
+	}
+	if tl.packBits > 0 {
+		t.writePackedWords()
+		return
 	}
 	nWords := max(len(tl.words), 1) // C has no empty arrays
 	w.line("static const %s %s_node[%d] = {", t.wt, g.name, nWords)
@@ -760,6 +776,10 @@ func (t *tableWriter) outputsAndLeaves() {
 		if !tl.inWord {
 			t.writeLeafRows()
 		}
+		if tl.counts != nil && tl.counts.packed != nil {
+			t.writePackedCounts()
+			break
+		}
 		n := len(tl.leafRows.vecs)
 		w.line("/* Distinct leaf vectors%s. */", t.exactNote)
 		w.line("static const %s %s_leaf[%d] = {", t.lt, g.name, n*k)
@@ -864,7 +884,11 @@ func (t *tableWriter) step(l string) {
 	g, tl, w, p := t.g, t.tl, t.w, t.g.p
 	w.line("{")
 	w.in()
-	w.line("const %s w = %s_node[i%s];", t.wt, g.name, l)
+	if tl.packBits > 0 {
+		w.line("const uint32_t w = %s_field(%s_node, i%s * %du, %du);", g.name, g.name, l, tl.packBits, tl.packBits)
+	} else {
+		w.line("const %s w = %s_node[i%s];", t.wt, g.name, l)
+	}
 	if tl.fBits == 0 {
 		w.line("const uint32_t f = 0u;")
 	} else {
