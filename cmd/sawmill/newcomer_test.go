@@ -189,7 +189,7 @@ func TestTyposRefused(t *testing.T) {
 		{[]string{"verify", model, "--target", "go,c", "--dialect", "postgres"}, `--dialect is for SQL targets, and --target go,c has none`},
 		{[]string{"compile", model, "--target", "go", "--float", "-o", out}, "--float (c only): not for --target go, whose own flags are --package, --sample"},
 		{[]string{"compile", model, "--target", "go", "--dialect", "postgres", "-o", out}, "--dialect (sql only): not for --target go"},
-		{[]string{"compile", model, "--target", "c", "--package", "x", "-o", out}, "--package (go only): not for --target c, whose own flags are --constant-time, --flash-budget, --float, --int-leaves, --leaf-values, --name, --pack, --ram-budget, --selftest, --threads"},
+		{[]string{"compile", model, "--target", "c", "--package", "x", "-o", out}, "--package (go only): not for --target c, whose own flags are --board-facts, --constant-time, --flash-budget, --float, --int-leaves, --leaf-values, --name, --pack, --ram-budget, --selftest, --threads"},
 		{[]string{"compile", model, "--target", "sql", "--sample", "testdata/readings.csv", "-o", out}, "--sample (go only): not for --target sql"},
 	}
 	for _, c := range cases {
