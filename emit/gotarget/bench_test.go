@@ -94,9 +94,16 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	perRow := float64(visits) / float64(n)
 
 	dir := b.TempDir()
-	layouts := []string{emit.Nested, emit.Table, emit.Branchless}
+	// table4 is the table walk four trees wide whatever the depth, as it
+	// was before the eight-lane walk (on forests deeper than laneDepth the
+	// two are the same code, and their spread is the run's noise).
+	layouts := []string{emit.Nested, emit.Table, "table4", emit.Branchless}
 	for _, l := range layouts {
-		files, err := Emit(p, Options{Package: l, Layout: l, NoTest: true})
+		o := Options{Package: l, Layout: l, NoTest: true}
+		if l == "table4" {
+			o.Layout, o.lanes = emit.Table, 4
+		}
+		files, err := Emit(p, o)
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -69,6 +69,10 @@ type Options struct {
 	// Version is the sawmill version the header names; emit.Version
 	// when empty.
 	Version string
+	// lanes, when not 0, is the table walk's lockstep width instead of
+	// the one chosen by depth (see gen.lanes): BenchmarkLayouts holds the
+	// widths against each other.
+	lanes int
 }
 
 // File names in the emitted package.

@@ -472,6 +472,9 @@ const laneDepth = 12
 
 // lanes is the number of trees the table walk takes in lockstep.
 func (g *gen) lanes() int {
+	if g.o.lanes != 0 {
+		return g.o.lanes
+	}
 	if g.p.MaxDepth() <= laneDepth {
 		return 8
 	}
