@@ -5,9 +5,7 @@ import (
 	"math"
 	"runtime"
 	"slices"
-	"syscall"
 	"testing"
-	"time"
 
 	"github.com/sawmill-dev/sawmill/bench/train/synth"
 	"github.com/sawmill-dev/sawmill/compile"
@@ -313,14 +311,4 @@ func timeRows(score func([]float64, []float64), rows []float64, nf int, out []fl
 		score(rows[r*nf:(r+1)*nf], out)
 	}
 	return float64(threadTime()-start) / float64(n)
-}
-
-// threadTime is this thread's CPU time in ns where the system gives it
-// (Linux), else the wall clock.
-func threadTime() int64 {
-	var ru syscall.Rusage
-	if syscall.Getrusage(1, &ru) == nil { // RUSAGE_THREAD
-		return ru.Utime.Nano() + ru.Stime.Nano()
-	}
-	return time.Now().UnixNano()
 }
