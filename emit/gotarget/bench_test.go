@@ -165,20 +165,26 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	if err != nil || interp.name != "interpreter" {
 		b.Fatalf("bench driver printed %q", lines[0])
 	}
-	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v; load %s",
-		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond), loadAverage())
-	b.Logf("times in %s, %d passes over the rows each", clockName, 25)
-	b.Logf("%-17s %8s %8s %9s %9s %8s", "ns/row", "best", "median", "ns/split", "(median)", "×interp")
-	b.Logf("%-17s %8.0f %8.0f %9.2f %9.2f", "interpreter", interp.best, interp.median, interp.best/perRow, interp.median/perRow)
+	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v; load %s; %s, best and median of %d passes",
+		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond), loadAverage(), clockName, 25)
+	b.Logf("%-12s %21s %21s %21s", "", "ns/row", "ns/split", "×interpreter")
+	b.Logf("%-12s %10s %10s %10s %10s %10s %10s", "(medians)", "Predict", "Batch", "Predict", "Batch", "Predict", "Batch")
+	b.Logf("%-12s %10.0f %10s %10.2f", "interpreter", interp.median, "", interp.median/perRow)
 	b.ReportMetric(interp.median, "interp-ns/row")
+	got := map[string]contender{}
 	for _, line := range lines[1:] {
 		c, err := driverLine(line)
 		if err != nil {
 			b.Fatalf("bench driver printed %q", line)
 		}
-		b.Logf("%-17s %8.0f %8.0f %9.2f %9.2f %7.2fx", c.name, c.best, c.median, c.best/perRow, c.median/perRow, interp.median/c.median)
+		got[c.name] = c
 		b.ReportMetric(c.median, c.name+"-ns/row")
-		b.ReportMetric(interp.median/c.median, c.name+"-speedup")
+		b.ReportMetric(c.best, c.name+"-best-ns/row")
+	}
+	for _, l := range layouts {
+		one, batch := got[l], got[l+"-batch"]
+		b.Logf("%-12s %10.0f %10.0f %10.2f %10.2f %9.2fx %9.2fx", l, one.median, batch.median, one.median/perRow, batch.median/perRow,
+			interp.median/one.median, interp.median/batch.median)
 	}
 }
 
