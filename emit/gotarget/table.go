@@ -31,9 +31,9 @@ import (
 // The step is computed, not branched on: i += 1 + (far[i]-1)&-fail. A leaf
 // tests xx[leafMark], the NaN in xx's last slot, and has far 0, so the walk
 // stays put there; with one output thr holds the leaf's value, with several
-// its row in leafValues. That lets Predict walk four trees in lockstep
-// until all four stand on leaves: the four dependency chains overlap, and
-// the only branch left is the loop's.
+// its row in leafValues. That lets Predict walk eight trees in lockstep
+// (four in forests deeper than laneDepth) until all stand on leaves: the
+// dependency chains overlap, and the only branch left is the loop's.
 
 // tableNode is a node of the table being built.
 type tableNode struct {
