@@ -93,15 +93,20 @@ func (g *gen) rowStart() jen.Code {
 //				extendRow((*[NumFeatures]float64)(x), &xx[r])
 //				acc[r] = 0.5
 //			}
-//			for t := 0; t < numTrees; t += 8 {
-//				rt := roots[t:]
-//				n := min(8, len(rt))
+//			for t := 0; t+8 <= numTrees; t += 8 {
+//				rt := roots[t:][:8]
 //				for r := range blk {
-//					var l [8]int
-//					l[0], …, l[7] = leaf8(&xx[r], int(rt[0]), int(rt[min(1, n-1)]), …)
-//					for _, i := range l[:n] {
-//						acc[r] += thr[i]
-//					}
+//					a, …, h := leaf8(&xx[r], int(rt[0]), …, int(rt[7]))
+//					acc[r] += thr[a]
+//					…
+//				}
+//			}
+//			{
+//				rt := roots[numTrees-2:] // the last trees, as in Predict
+//				for r := range blk {
+//					a, b, _, _ := leaf4(&xx[r], int(rt[0]), int(rt[1]), int(rt[1]), int(rt[1]))
+//					acc[r] += thr[a]
+//					acc[r] += thr[b]
 //				}
 //			}
 //			for r := range blk {
@@ -113,30 +118,19 @@ func (g *gen) rowStart() jen.Code {
 //	}
 func (g *gen) predictRows() jen.Code {
 	lanes := g.lanes()
-	r := jen.Id("r")
-	var lhs, args []jen.Code
-	args = append(args, jen.Op("&").Id("xx").Index(r))
-	for i := range lanes {
-		lhs = append(lhs, jen.Id("l").Index(jen.Lit(i)))
-		idx := jen.Code(jen.Lit(i))
-		if i > 0 {
-			idx = jen.Min(jen.Lit(i), jen.Id("n").Op("-").Lit(1))
-		}
-		args = append(args, jen.Int().Parens(jen.Id("rt").Index(idx)))
-	}
-	add := jen.Id("acc").Index(r).Op("+=").Id("thr").Index(jen.Id("i"))
-	if g.k > 1 {
-		add = jen.Id("addLeaf").Call(jen.Op("&").Id("acc").Index(r), jen.Int().Parens(jen.Id("thr").Index(jen.Id("i"))))
-	}
-	group := jen.For(jen.Id("t").Op(":=").Lit(0), jen.Id("t").Op("<").Id("numTrees"), jen.Id("t").Op("+=").Lit(lanes)).Block(
-		jen.Id("rt").Op(":=").Id("roots").Index(jen.Id("t").Op(":")),
-		jen.Id("n").Op(":=").Min(jen.Lit(lanes), jen.Len(jen.Id("rt"))),
-		jen.For(r.Clone().Op(":=").Range().Id("blk")).Block(
-			jen.Var().Id("l").Index(jen.Lit(lanes)).Int(),
-			jen.List(lhs...).Op("=").Id(g.leafFunc()).Call(args...),
-			jen.For(jen.List(jen.Id("_"), jen.Id("i")).Op(":=").Range().Id("l").Index(jen.Op(":").Id("n"))).Block(add),
-		),
+	rem := len(g.p.Trees) % lanes
+	group := jen.For(jen.Id("t").Op(":=").Lit(0), jen.Id("t").Op("+").Lit(lanes).Op("<=").Id("numTrees"), jen.Id("t").Op("+=").Lit(lanes)).Block(
+		jen.Id("rt").Op(":=").Id("roots").Index(jen.Id("t").Op(":")).Index(jen.Op(":").Lit(lanes)),
+		jen.For(jen.Id("r").Op(":=").Range().Id("blk")).Block(g.rowWalk(lanes, lanes)...),
 	)
+	tail := jen.Null()
+	if rem > 0 { // in a block of its own, since rt is declared again
+		tail = jen.Block(
+			jen.Id("rt").Op(":=").Id("roots").Index(jen.Id("numTrees").Op("-").Lit(rem).Op(":")),
+			jen.For(jen.Id("r").Op(":=").Range().Id("blk")).Block(g.rowWalk(g.tailLanes(), rem)...),
+		)
+	}
+	r := jen.Id("r")
 	block := []jen.Code{
 		jen.Id("blk").Op(":=").Id("rows").Index(jen.Op(":").Min(jen.Id("blockRows"), jen.Len(jen.Id("rows")))),
 		jen.For(jen.List(r.Clone(), jen.Id("x")).Op(":=").Range().Id("blk")).Block(
@@ -144,6 +138,7 @@ func (g *gen) predictRows() jen.Code {
 			jen.Id("acc").Index(r).Op("=").Add(g.rowStart()),
 		),
 		group,
+		tail,
 		jen.For(r.Clone().Op(":=").Range().Id("blk")).Block(
 			jen.Id("y").Op(":=").Id("finishRow").Call(jen.Id("acc").Index(r)),
 			jen.Copy(jen.Id("out").Index(r.Clone().Op("*").Id("NumOutputs").Op(":")), jen.Id("y").Index(jen.Op(":"))),
@@ -159,4 +154,30 @@ func (g *gen) predictRows() jen.Code {
 		jen.Var().Id("acc").Index(jen.Id("blockRows")).Add(g.rowAccType()),
 		jen.For(jen.Len(jen.Id("rows")).Op(">").Lit(0)).Block(block...),
 	)
+}
+
+// rowWalk walks row r through the trees rt[0:n] with the walk of the given
+// width (the last root repeated in the unused places) and adds their leaves
+// to acc[r] in tree order.
+func (g *gen) rowWalk(width, n int) []jen.Code {
+	var lhs, args []jen.Code
+	args = append(args, jen.Op("&").Id("xx").Index(jen.Id("r")))
+	for i := range width {
+		args = append(args, jen.Int().Parens(jen.Id("rt").Index(jen.Lit(min(i, n-1)))))
+		if i < n {
+			lhs = append(lhs, jen.Id(laneIDs[i]))
+		} else {
+			lhs = append(lhs, jen.Id("_"))
+		}
+	}
+	out := []jen.Code{jen.List(lhs...).Op(":=").Id(leafFunc(width)).Call(args...)}
+	for i := range n {
+		leaf := jen.Id("thr").Index(jen.Id(laneIDs[i]))
+		if g.k > 1 {
+			out = append(out, jen.Id("addLeaf").Call(jen.Op("&").Id("acc").Index(jen.Id("r")), jen.Int().Parens(leaf)))
+		} else {
+			out = append(out, jen.Id("acc").Index(jen.Id("r")).Op("+=").Add(leaf))
+		}
+	}
+	return out
 }

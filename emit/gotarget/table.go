@@ -343,7 +343,10 @@ func (g *gen) table() []jen.Code {
 	}
 	out := []jen.Code{
 		doc.Line().Add(g.xxConsts(d.variants)),
-		g.tableStep(d), g.tableLeafN(),
+		g.tableStep(d), g.tableLeafN(g.lanes()),
+	}
+	if t := g.tailLanes(); t != 0 && t != g.lanes() {
+		out = append(out, g.tableLeafN(t))
 	}
 	if !g.v2 {
 		out = append(out, g.tableRows(d)...)
@@ -484,8 +487,23 @@ func (g *gen) lanes() int {
 // laneIDs names the walks of one lockstep group.
 var laneIDs = []string{"a", "b", "c", "d", "e", "f", "g", "h"}
 
-// leafFunc is the name of the lockstep walk: leaf4 or leaf8.
-func (g *gen) leafFunc() string { return fmt.Sprintf("leaf%d", g.lanes()) }
+// leafFunc is the name of the lockstep walk of the given width.
+func leafFunc(width int) string { return fmt.Sprintf("leaf%d", width) }
+
+// tailLanes is the width of the walk that takes the last trees, the
+// remainder of numTrees over lanes (0 when none): four where at most four
+// trees remain of an eight-lane walk, so that one left-over tree does not
+// cost a walk of eight.
+func (g *gen) tailLanes() int {
+	rem := len(g.p.Trees) % g.lanes()
+	switch {
+	case rem == 0:
+		return 0
+	case rem <= 4:
+		return 4
+	}
+	return g.lanes()
+}
 
 // tableLeafN walks four (or eight, see lanes) trees in lockstep:
 //
@@ -497,8 +515,8 @@ func (g *gen) leafFunc() string { return fmt.Sprintf("leaf%d", g.lanes()) }
 //		}
 //		return a, b, c, d
 //	}
-func (g *gen) tableLeafN() jen.Code {
-	ids := laneIDs[:g.lanes()]
+func (g *gen) tableLeafN(width int) jen.Code {
+	ids := laneIDs[:width]
 	var cond *jen.Statement
 	var steps, params, rets, results []jen.Code
 	for _, id := range ids {
@@ -513,9 +531,9 @@ func (g *gen) tableLeafN() jen.Code {
 		rets = append(rets, jen.Id(id))
 		results = append(results, jen.Int())
 	}
-	return jen.Comment(fmt.Sprintf("%s walks %d trees at once, from nodes %s, until all stand on their", g.leafFunc(), len(ids), strings.Join(ids, ", "))).Line().
+	return jen.Comment(fmt.Sprintf("%s walks %d trees at once, from nodes %s, until all stand on their", leafFunc(width), len(ids), strings.Join(ids, ", "))).Line().
 		Comment("leaves: the walks do not wait on each other.").Line().
-		Func().Id(g.leafFunc()).Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.List(params...).Int()).Params(results...).Block(
+		Func().Id(leafFunc(width)).Params(jen.Id("xx").Op("*").Index(jen.Id("xxLen")).Float64(), jen.List(params...).Int()).Params(results...).Block(
 		jen.List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")).Op(":=").List(jen.Id("feat"), jen.Id("far"), jen.Id("thr")),
 		jen.For(cond.Op("!=").Lit(0)).Block(steps...),
 		jen.Return(rets...),
@@ -597,7 +615,7 @@ func (g *gen) tablePredictBody() []jen.Code {
 		args = append(args, jen.Int().Parens(jen.Id("r").Index(jen.Lit(i))))
 		adds = append(adds, add(jen.Id(id)))
 	}
-	group := append([]jen.Code{jen.List(lhs...).Op(":=").Id(g.leafFunc()).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...)}, adds...)
+	group := append([]jen.Code{jen.List(lhs...).Op(":=").Id(leafFunc(lanes)).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...)}, adds...)
 	walk := []jen.Code{
 		jen.Id("r").Op(":=").Id("roots"),
 		jen.For(jen.Empty(), jen.Len(jen.Id("r")).Op(">=").Lit(lanes), jen.Id("r").Op("=").Id("r").Index(jen.Lit(lanes).Op(":"))).Block(group...),
@@ -609,11 +627,12 @@ func (g *gen) tablePredictBody() []jen.Code {
 				List(jen.Id("r").Index(jen.Lit(lanes).Op(":")), jen.Id("t").Op("+").Lit(lanes))).Block(group...),
 		}
 	}
-	// The last trees go through the same walk, the last root repeated in
-	// the unused places.
+	// The last trees go through a walk of tailLanes, the last root
+	// repeated in the unused places.
 	if rem := len(g.p.Trees) % lanes; rem > 0 {
+		tail := g.tailLanes()
 		var lhs, args []jen.Code
-		for i := range lanes {
+		for i := range tail {
 			args = append(args, jen.Int().Parens(jen.Id("r").Index(jen.Lit(min(i, rem-1)))))
 			if i < rem {
 				lhs = append(lhs, jen.Id(ids[i]))
@@ -621,7 +640,7 @@ func (g *gen) tablePredictBody() []jen.Code {
 				lhs = append(lhs, jen.Id("_"))
 			}
 		}
-		walk = append(walk, jen.List(lhs...).Op(":=").Id(g.leafFunc()).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...))
+		walk = append(walk, jen.List(lhs...).Op(":=").Id(leafFunc(tail)).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...))
 		for i := range rem {
 			walk = append(walk, add(jen.Id(ids[i])))
 		}

@@ -169,15 +169,21 @@ func predictRows(rows [][]float64, out []float64) {
 			extendRow((*[NumFeatures]float64)(x), &xx[r])
 			acc[r] = [NumOutputs]float64{}
 		}
-		for t := 0; t < numTrees; t += 4 {
-			rt := roots[t:]
-			n := min(4, len(rt))
+		for t := 0; t+4 <= numTrees; t += 4 {
+			rt := roots[t:][:4]
 			for r := range blk {
-				var l [4]int
-				l[0], l[1], l[2], l[3] = leaf4(&xx[r], int(rt[0]), int(rt[min(1, n-1)]), int(rt[min(2, n-1)]), int(rt[min(3, n-1)]))
-				for _, i := range l[:n] {
-					addLeaf(&acc[r], int(thr[i]))
-				}
+				a, b, c, d := leaf4(&xx[r], int(rt[0]), int(rt[1]), int(rt[2]), int(rt[3]))
+				addLeaf(&acc[r], int(thr[a]))
+				addLeaf(&acc[r], int(thr[b]))
+				addLeaf(&acc[r], int(thr[c]))
+				addLeaf(&acc[r], int(thr[d]))
+			}
+		}
+		{
+			rt := roots[numTrees-1:]
+			for r := range blk {
+				a, _, _, _ := leaf4(&xx[r], int(rt[0]), int(rt[0]), int(rt[0]), int(rt[0]))
+				addLeaf(&acc[r], int(thr[a]))
 			}
 		}
 		for r := range blk {

@@ -50,7 +50,7 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 		s += thr[g]
 		s += thr[h]
 	}
-	a, _, _, _, _, _, _, _ := leaf8(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]), int(r[0]), int(r[0]), int(r[0]), int(r[0]))
+	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
 	s += thr[a]
 	s = float64(s/numTrees) + 0.0
 	return [NumOutputs]float64{s}
@@ -91,6 +91,19 @@ func leaf8(xx *[xxLen]float64, a, b, c, d, e, f, g, h int) (int, int, int, int, 
 	return a, b, c, d, e, f, g, h
 }
 
+// leaf4 walks 4 trees at once, from nodes a, b, c, d, until all stand on their
+// leaves: the walks do not wait on each other.
+func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
+	feat, far, thr := feat, far, thr
+	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark) != 0 {
+		a = step(xx, feat, far, thr, a)
+		b = step(xx, feat, far, thr, b)
+		c = step(xx, feat, far, thr, c)
+		d = step(xx, feat, far, thr, d)
+	}
+	return a, b, c, d
+}
+
 // blockRows is the number of rows predictRows walks each group of trees for.
 const blockRows = 64
 
@@ -120,15 +133,25 @@ func predictRows(rows [][]float64, out []float64) {
 			extendRow((*[NumFeatures]float64)(x), &xx[r])
 			acc[r] = 0.0
 		}
-		for t := 0; t < numTrees; t += 8 {
-			rt := roots[t:]
-			n := min(8, len(rt))
+		for t := 0; t+8 <= numTrees; t += 8 {
+			rt := roots[t:][:8]
 			for r := range blk {
-				var l [8]int
-				l[0], l[1], l[2], l[3], l[4], l[5], l[6], l[7] = leaf8(&xx[r], int(rt[0]), int(rt[min(1, n-1)]), int(rt[min(2, n-1)]), int(rt[min(3, n-1)]), int(rt[min(4, n-1)]), int(rt[min(5, n-1)]), int(rt[min(6, n-1)]), int(rt[min(7, n-1)]))
-				for _, i := range l[:n] {
-					acc[r] += thr[i]
-				}
+				a, b, c, d, e, f, g, h := leaf8(&xx[r], int(rt[0]), int(rt[1]), int(rt[2]), int(rt[3]), int(rt[4]), int(rt[5]), int(rt[6]), int(rt[7]))
+				acc[r] += thr[a]
+				acc[r] += thr[b]
+				acc[r] += thr[c]
+				acc[r] += thr[d]
+				acc[r] += thr[e]
+				acc[r] += thr[f]
+				acc[r] += thr[g]
+				acc[r] += thr[h]
+			}
+		}
+		{
+			rt := roots[numTrees-1:]
+			for r := range blk {
+				a, _, _, _ := leaf4(&xx[r], int(rt[0]), int(rt[0]), int(rt[0]), int(rt[0]))
+				acc[r] += thr[a]
 			}
 		}
 		for r := range blk {
