@@ -226,7 +226,7 @@ func benchBinned(b *testing.B, f *forest.Forest, rows []float64) {
 	for _, c := range cuts {
 		most = max(most, len(c))
 	}
-	fw := newFloatWalk(d)
+	float := floatScorer(p, d)
 	var binned func(x []float64, acc []float64)
 	var nodeBytes int
 	if most < math.MaxUint8 {
@@ -236,32 +236,10 @@ func benchBinned(b *testing.B, f *forest.Forest, rows []float64) {
 		bw := newBinWalk[uint16](d, cuts, math.MaxUint16)
 		binned, nodeBytes = binnedScorer(p, d, bw), 10
 	}
-	nf, k := len(p.Features), p.NumOutputs
-	xx := make([]float64, d.width+1)
-	float := func(x []float64, acc []float64) {
-		extend(d, nf, x, xx)
-		clear(acc)
-		var l [walkLanes]int
-		for t := 0; t < len(d.roots); t += walkLanes {
-			rt := d.roots[t:]
-			fw.leaves(xx, rt, &l)
-			sumLeaves(k, d.leaves, l[:min(walkLanes, len(rt))], fw.thr, acc)
-		}
-		finish(p, acc)
-	}
-	n := len(rows) / nf
 	want := f.PredictBatch(rows)
-	got := make([]float64, k)
-	for name, score := range map[string]func([]float64, []float64){"float": float, "binned": binned} {
-		for r := range n {
-			score(rows[r*nf:(r+1)*nf], got)
-			for j, v := range got {
-				if math.Float64bits(v) != math.Float64bits(want[r*k+j]) {
-					b.Fatalf("%s walk: row %d output %d: %v, interpreter %v", name, r, j, v, want[r*k+j])
-				}
-			}
-		}
-	}
+	checkScorer(b, "float", float, rows, want, p)
+	checkScorer(b, "binned", binned, rows, want, p)
+	nf, got := len(p.Features), make([]float64, p.NumOutputs)
 	runtime.LockOSThread()
 	defer runtime.UnlockOSThread()
 	var tf, tb []float64
@@ -278,6 +256,39 @@ func benchBinned(b *testing.B, f *forest.Forest, rows []float64) {
 	b.ReportMetric(tb[len(tb)/2], "binned-ns/row")
 }
 
+// floatScorer scores one row with the float walk.
+func floatScorer(p *compile.Program, d *tableData) func([]float64, []float64) {
+	fw := newFloatWalk(d)
+	nf, k := len(p.Features), p.NumOutputs
+	xx := make([]float64, d.width+1)
+	return func(x []float64, acc []float64) {
+		extend(d, nf, x, xx)
+		clear(acc)
+		var l [walkLanes]int
+		for t := 0; t < len(d.roots); t += walkLanes {
+			rt := d.roots[t:]
+			fw.leaves(xx, rt, &l)
+			sumLeaves(k, d.leaves, l[:min(walkLanes, len(rt))], fw.thr, acc)
+		}
+		finish(p, acc)
+	}
+}
+
+// checkScorer holds every output of score to the interpreter's bits.
+func checkScorer(b *testing.B, name string, score func([]float64, []float64), rows, want []float64, p *compile.Program) {
+	nf, k := len(p.Features), p.NumOutputs
+	got := make([]float64, k)
+	for r := range len(rows) / nf {
+		score(rows[r*nf:(r+1)*nf], got)
+		for j, v := range got {
+			if math.Float64bits(v) != math.Float64bits(want[r*k+j]) {
+				b.Fatalf("%s walk: row %d output %d: %v, interpreter %v", name, r, j, v, want[r*k+j])
+			}
+		}
+	}
+}
+
+// binnedScorer scores one row with the binned walk.
 func binnedScorer[B uint8 | uint16](p *compile.Program, d *tableData, bw *binWalk[B]) func([]float64, []float64) {
 	nf, k := len(p.Features), p.NumOutputs
 	xx := make([]float64, d.width+1)
