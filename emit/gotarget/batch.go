@@ -12,12 +12,17 @@ import (
 const BatchFile = "batch.go"
 
 // batchSource returns batch.go: PredictBatch, which scores rows one after
-// another through Predict, and PredictBatchWorkers, the same over
-// goroutines, each scoring a contiguous part of the rows. Every output is
-// Predict's, bit for bit, whatever the worker count.
+// another through Predict (in the format 1 table layout, blocks of rows
+// through predictRows), and PredictBatchWorkers, the same over goroutines,
+// each scoring a contiguous part of the rows. Every output is Predict's, bit
+// for bit, whatever the worker count.
 func (g *gen) batchSource() ([]byte, error) {
+	score := batchThroughPredict
+	if g.layout == emit.Table && !g.v2 {
+		score = batchThroughBlocks
+	}
 	src := strings.NewReplacer("GENERATED", g.generatedLine(), "OWNERSHIP", emit.Ownership,
-		"PACKAGE", g.pkg).Replace(batchTemplate)
+		"PACKAGE", g.pkg, "BATCHSCORE", score).Replace(batchTemplate)
 	out, err := format.Source([]byte(src))
 	if err != nil {
 		return nil, err
@@ -100,11 +105,23 @@ func batchCheck(rows [][]float64, out []float64) error {
 	return nil
 }
 
-// batchScore scores rows into out through Predict.
+BATCHSCORE`
+
+// batchThroughPredict is batchScore in every layout but the format 1 table.
+const batchThroughPredict = `// batchScore scores rows into out through Predict.
 func batchScore(rows [][]float64, out []float64) {
 	for r, x := range rows {
 		y := Predict((*[NumFeatures]float64)(x))
 		copy(out[r*NumOutputs:], y[:])
 	}
+}
+`
+
+// batchThroughBlocks is batchScore in the format 1 table layout, whose
+// predictRows (rows.go) walks blocks of rows tree group by tree group.
+const batchThroughBlocks = `// batchScore scores rows into out through predictRows, which walks blocks of
+// rows and scores each exactly as Predict does.
+func batchScore(rows [][]float64, out []float64) {
+	predictRows(rows, out)
 }
 `

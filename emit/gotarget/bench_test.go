@@ -29,10 +29,13 @@ import (
 //	go test ./emit/gotarget -run '^$' -bench Layouts -benchtime 1x
 //
 // Each size builds one module with a package per layout and a driver that
-// checks every output against the interpreter's bits, then times 7 passes
-// over the rows per contender, interleaved; the interpreter is timed the
-// same way in this process before and after. It prints ns/row, ns per split
-// visited and the speedup over the interpreter.
+// checks every output (Predict's and PredictBatch's) against the
+// interpreter's bits, then times 25 passes over the rows per contender,
+// interleaved, the interpreter among them, in this thread's CPU time (so that
+// on a shared machine the time others get does not count; the wall clock
+// where the system has no per-thread time). It prints the best and the
+// median ns/row, ns per split visited and the speedup over the interpreter
+// (medians), with the load average.
 func BenchmarkLayouts(b *testing.B) {
 	if _, err := exec.LookPath("go"); err != nil {
 		b.Skip("no go command on PATH: the benchmark builds the emitted code")
@@ -91,9 +94,16 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	perRow := float64(visits) / float64(n)
 
 	dir := b.TempDir()
-	layouts := []string{emit.Nested, emit.Table, emit.Branchless}
+	// table4 is the table walk four trees wide whatever the depth, as it
+	// was before the eight-lane walk (on forests deeper than laneDepth the
+	// two are the same code, and their spread is the run's noise).
+	layouts := []string{emit.Nested, emit.Table, "table4", emit.Branchless}
 	for _, l := range layouts {
-		files, err := Emit(p, Options{Package: l, Layout: l, NoTest: true})
+		o := Options{Package: l, Layout: l, NoTest: true}
+		if l == "table4" {
+			o.Layout, o.lanes = emit.Table, 4
+		}
+		files, err := Emit(p, o)
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -151,26 +161,61 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 		b.Fatalf("bench driver: %v\n%s", err, out)
 	}
 	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
-	var interpNs float64
-	if fs := strings.Fields(lines[0]); len(fs) != 2 || fs[0] != "interpreter" {
+	interp, err := driverLine(lines[0])
+	if err != nil || interp.name != "interpreter" {
 		b.Fatalf("bench driver printed %q", lines[0])
-	} else if interpNs, err = strconv.ParseFloat(fs[1], 64); err != nil {
-		b.Fatal(err)
 	}
-	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v",
-		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond))
-	b.Logf("%-12s %10.0f ns/row %6.2f ns/split", "interpreter", interpNs, interpNs/perRow)
-	b.ReportMetric(interpNs, "interp-ns/row")
+	b.Logf("%d trees, %d nodes, max depth %d, %.1f splits visited per row; emitted packages built in %v; load %s; %s, best and median of %d passes",
+		len(f.Trees), p.NumNodes(), p.MaxDepth(), perRow, buildTime.Round(time.Millisecond), loadAverage(), clockName, 25)
+	b.Logf("%-12s %21s %21s %21s", "", "ns/row", "ns/split", "×interpreter")
+	b.Logf("%-12s %10s %10s %10s %10s %10s %10s", "(medians)", "Predict", "Batch", "Predict", "Batch", "Predict", "Batch")
+	b.Logf("%-12s %10.0f %10s %10.2f", "interpreter", interp.median, "", interp.median/perRow)
+	b.ReportMetric(interp.median, "interp-ns/row")
+	got := map[string]contender{}
 	for _, line := range lines[1:] {
-		fs := strings.Fields(line)
-		ns, err := strconv.ParseFloat(fs[1], 64)
+		c, err := driverLine(line)
 		if err != nil {
 			b.Fatalf("bench driver printed %q", line)
 		}
-		b.Logf("%-12s %10.0f ns/row %6.2f ns/split %5.2fx the interpreter", fs[0], ns, ns/perRow, interpNs/ns)
-		b.ReportMetric(ns, fs[0]+"-ns/row")
-		b.ReportMetric(interpNs/ns, fs[0]+"-speedup")
+		got[c.name] = c
+		b.ReportMetric(c.median, c.name+"-ns/row")
+		b.ReportMetric(c.best, c.name+"-best-ns/row")
 	}
+	for _, l := range layouts {
+		one, batch := got[l], got[l+"-batch"]
+		b.Logf("%-12s %10.0f %10.0f %10.2f %10.2f %9.2fx %9.2fx", l, one.median, batch.median, one.median/perRow, batch.median/perRow,
+			interp.median/one.median, interp.median/batch.median)
+	}
+}
+
+// contender is one line of the driver's output: a name, then the best and
+// the median ns per row over the timed passes.
+type contender struct {
+	name         string
+	best, median float64
+}
+
+func driverLine(line string) (contender, error) {
+	fs := strings.Fields(line)
+	if len(fs) != 3 {
+		return contender{}, fmt.Errorf("%d fields", len(fs))
+	}
+	c := contender{name: fs[0]}
+	var err error
+	if c.best, err = strconv.ParseFloat(fs[1], 64); err != nil {
+		return c, err
+	}
+	c.median, err = strconv.ParseFloat(fs[2], 64)
+	return c, err
+}
+
+// loadAverage is the first field of /proc/loadavg, or "unknown".
+func loadAverage() string {
+	b, err := os.ReadFile("/proc/loadavg")
+	if fs := strings.Fields(string(b)); err == nil && len(fs) > 0 {
+		return fs[0]
+	}
+	return "unknown"
 }
 
 func writeFloats(b *testing.B, path string, v []float64) {
@@ -199,9 +244,9 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"runtime"
 	"slices"
-	"time"
-
+THREADIMPORTS
 	"github.com/sawmill-dev/sawmill/forest"
 `)
 	for _, l := range layouts {
@@ -221,12 +266,22 @@ func floats(path string) []float64 {
 	return v
 }
 
+type batcher struct {
+	name  string
+	batch func([][]float64, []float64) error
+}
+
 type scorer struct {
 	name    string
 	predict func(*[%[1]d]float64) [%[2]d]float64
 }
 
+THREADCLOCK
+// reps is the number of timed passes over the rows per contender.
+const reps = 25
+
 func main() {
+	runtime.LockOSThread()
 	flat, want := floats("rows.bin"), floats("want.bin")
 	rows := make([][%[1]d]float64, len(flat)/%[1]d)
 	for r := range rows {
@@ -247,6 +302,12 @@ func main() {
 		fmt.Fprintf(&b, "\t\t{%q, %s.Predict},\n", l, l)
 	}
 	fmt.Fprintf(&b, `	}
+	batches := []batcher{
+`)
+	for _, l := range layouts {
+		fmt.Fprintf(&b, "\t\t{%q, %s.PredictBatch},\n", l+"-batch", l)
+	}
+	fmt.Fprintf(&b, `	}
 	for _, s := range scorers {
 		for r := range rows {
 			out := s.predict(&rows[r])
@@ -258,31 +319,58 @@ func main() {
 			}
 		}
 	}
-	times := make([][]float64, len(scorers))
-	sink := 0.0
-	for rep := 0; rep < 7; rep++ {
-		for i, s := range scorers {
-			start := time.Now()
-			done := 0
-			for time.Since(start) < 50*time.Millisecond {
-				for r := range rows {
-					sink += s.predict(&rows[r])[0]
-				}
-				done += len(rows)
+	rowSlices := make([][]float64, len(rows))
+	for r := range rows {
+		rowSlices[r] = rows[r][:]
+	}
+	got := make([]float64, len(want))
+	for _, s := range batches {
+		if err := s.batch(rowSlices, got); err != nil {
+			panic(err)
+		}
+		for i, v := range got {
+			if math.Float64bits(v) != math.Float64bits(want[i]) {
+				fmt.Fprintf(os.Stderr, "%%s: row %%d output %%d: %%v, interpreter %%v\n", s.name, i/%[1]d, i%%%[1]d, v, want[i])
+				os.Exit(1)
 			}
-			times[i] = append(times[i], float64(time.Since(start).Nanoseconds())/float64(done))
 		}
 	}
-	for i, s := range scorers {
-		slices.Sort(times[i])
-		fmt.Println(s.name, times[i][len(times[i])/2])
+	times := make([][]float64, len(scorers)+len(batches))
+	sink := 0.0
+	for rep := 0; rep < reps; rep++ {
+		for i, s := range scorers {
+			start := now()
+			for r := range rows {
+				sink += s.predict(&rows[r])[0]
+			}
+			times[i] = append(times[i], float64(now()-start)/float64(len(rows)))
+		}
+		for i, s := range batches {
+			start := now()
+			if err := s.batch(rowSlices, got); err != nil {
+				panic(err)
+			}
+			times[len(scorers)+i] = append(times[len(scorers)+i], float64(now()-start)/float64(len(rows)))
+		}
+	}
+	for i := range times {
+		name := ""
+		if i < len(scorers) {
+			name = scorers[i].name
+		} else {
+			name = batches[i-len(scorers)].name
+		}
+		sortFloats(times[i])
+		fmt.Println(name, times[i][0], times[i][len(times[i])/2])
 	}
 	if sink == 12345.678 {
 		fmt.Println(sink)
 	}
 }
+
+func sortFloats(v []float64) { slices.Sort(v) }
 `, k)
-	return b.String()
+	return strings.NewReplacer("THREADIMPORTS", threadClockImports, "THREADCLOCK", threadClock).Replace(b.String())
 }
 
 func forestJSON(f *forest.Forest) ([]byte, error) {

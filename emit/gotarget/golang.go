@@ -20,9 +20,11 @@
 // checks a handful of rows against the outputs recorded at emit time.
 //
 // Layouts (see Options.Layout): nested if/else code, one function per tree;
-// a table of nodes kept as one binary string and walked by one loop; and a
-// branchless implicit-heap descent for shallow trees. Auto picks by node
-// count and depth (ChooseLayout).
+// a table of nodes kept as one binary string and walked by one loop, eight
+// trees in lockstep (four in forests deeper than 12), whose PredictBatch
+// walks blocks of rows tree group by tree group (rows.go); and a branchless
+// implicit-heap descent for shallow trees. Auto picks by node count and
+// number of trees (Resolve).
 //
 // Format version 2 (set splits, zero_missing, a missing value, trees of one
 // output, float32 accumulation with an emitted copy of glibc's expf, the
@@ -69,6 +71,10 @@ type Options struct {
 	// Version is the sawmill version the header names; emit.Version
 	// when empty.
 	Version string
+	// lanes, when not 0, is the table walk's lockstep width instead of
+	// the one chosen by depth (see gen.lanes): BenchmarkLayouts holds the
+	// widths against each other.
+	lanes int
 }
 
 // File names in the emitted package.
@@ -77,17 +83,18 @@ const (
 	TestFile   = "model_test.go"
 )
 
-// Thresholds of ChooseLayout, from BenchmarkLayouts (forests grown on the
+// Thresholds of Resolve's auto, from BenchmarkLayouts (forests grown on the
 // invented benchmark table, timed against the interpreter in one process):
-// the table's four-tree lockstep walk was 4.4 to 9.6 times the interpreter
-// from 10k to 200k nodes, nested code 2 to 3 times and the heaps 3.2 to 6.4
-// times, while for two trees (8k nodes) nested led, 2.5 against 2.1 times.
-// Nested code also costs the Go compiler about 3.5 GB per million nodes in
-// one package (the project's notes on physical limits), the table's blob
-// about 0.1 GB.
+// the table's lockstep walk was 4.4 to 9.6 times the interpreter from 10k
+// to 200k nodes, nested code 2 to 3 times and the heaps 3.2 to 6.4 times,
+// while for two trees nested led: at 8,388 nodes (two fully grown trees)
+// 111 ns a row against the table's 189 (medians of 25 passes in thread CPU
+// time, load 10.8; DEVELOPERS.md, "The Go table walk"). Nested code also
+// costs the Go compiler about 3.5 GB per million nodes in one package (the
+// project's notes on physical limits), the table's blob about 0.1 GB.
 const (
 	// MaxNestedNodes is the largest forest Auto emits nested.
-	MaxNestedNodes = 5_000
+	MaxNestedNodes = 10_000
 	// MaxNestedTrees is the most trees Auto emits nested: from four on the
 	// lockstep walk pays.
 	MaxNestedTrees = 3

@@ -245,3 +245,31 @@ func layoutOf(p *compile.Program) string {
 	}
 	return l
 }
+
+// TestTableLanes holds the table walk's width to the forest's depth, and
+// the format 1 table's PredictBatch to the block walk.
+func TestTableLanes(t *testing.T) {
+	for _, c := range []struct {
+		p     *compile.Program
+		lanes string
+	}{{program(t, small), "leaf8("}, {chainProgram(laneDepth + 1), "leaf4("}} {
+		files, err := Emit(c.p, Options{Layout: emit.Table, NoTest: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		src, batch := string(files[0].Data), string(files[1].Data)
+		if !strings.Contains(src, "func "+c.lanes) {
+			t.Errorf("depth %d: no %s walk in model.go", c.p.MaxDepth(), c.lanes)
+		}
+		if !strings.Contains(batch, "predictRows(rows, out)") || !strings.Contains(src, "func predictRows(") {
+			t.Errorf("depth %d: PredictBatch does not walk blocks of rows", c.p.MaxDepth())
+		}
+	}
+	files, err := Emit(program(t, small), Options{Layout: emit.Nested, NoTest: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if batch := string(files[1].Data); strings.Contains(batch, "predictRows") {
+		t.Error("nested PredictBatch calls predictRows")
+	}
+}

@@ -73,10 +73,8 @@ func batchCheck(rows [][]float64, out []float64) error {
 	return nil
 }
 
-// batchScore scores rows into out through Predict.
+// batchScore scores rows into out through predictRows, which walks blocks of
+// rows and scores each exactly as Predict does.
 func batchScore(rows [][]float64, out []float64) {
-	for r, x := range rows {
-		y := Predict((*[NumFeatures]float64)(x))
-		copy(out[r*NumOutputs:], y[:])
-	}
+	predictRows(rows, out)
 }

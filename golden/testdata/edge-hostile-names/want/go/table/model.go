@@ -125,8 +125,8 @@ func step(xx *[xxLen]float64, feat []uint8, far []uint8, thr []float64, i int) i
 	return i + 1 + (int(far[i])-1)&-fail
 }
 
-// leaf4 walks four trees at once, from nodes a, b, c and d, until all four stand on
-// their leaves: the walks do not wait on each other.
+// leaf4 walks 4 trees at once, from nodes a, b, c, d, until all stand on their
+// leaves: the walks do not wait on each other.
 func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
 	feat, far, thr := feat, far, thr
 	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark) != 0 {
@@ -136,6 +136,62 @@ func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
 		d = step(xx, feat, far, thr, d)
 	}
 	return a, b, c, d
+}
+
+// blockRows is the number of rows predictRows walks each group of trees for.
+const blockRows = 64
+
+// extendRow fills xx from x as Predict does.
+func extendRow(x *[NumFeatures]float64, xx *[xxLen]float64) {
+	for j, v := range x {
+		xx[j], xx[NumFeatures+j] = v, -v
+	}
+	xx[leafMark] = math.NaN()
+}
+
+// finishRow turns one row's sum of leaves into its outputs as Predict does.
+func finishRow(acc [NumOutputs]float64) [NumOutputs]float64 {
+	for j := range acc {
+		acc[j] = float64(acc[j]/numTrees) + baseScore[j]
+	}
+	return acc
+}
+
+// predictRows scores rows into out a block at a time: each group of trees walks
+// every row of the block before the next group starts, and each row adds its
+// leaves in tree order, so every output is Predict's, bit for bit.
+func predictRows(rows [][]float64, out []float64) {
+	var xx [blockRows][xxLen]float64
+	var acc [blockRows][NumOutputs]float64
+	for len(rows) > 0 {
+		blk := rows[:min(blockRows, len(rows))]
+		for r, x := range blk {
+			extendRow((*[NumFeatures]float64)(x), &xx[r])
+			acc[r] = [NumOutputs]float64{}
+		}
+		for t := 0; t+4 <= numTrees; t += 4 {
+			rt := roots[t:][:4]
+			for r := range blk {
+				a, b, c, d := leaf4(&xx[r], int(rt[0]), int(rt[1]), int(rt[2]), int(rt[3]))
+				addLeaf(&acc[r], int(thr[a]))
+				addLeaf(&acc[r], int(thr[b]))
+				addLeaf(&acc[r], int(thr[c]))
+				addLeaf(&acc[r], int(thr[d]))
+			}
+		}
+		{
+			rt := roots[numTrees-1:]
+			for r := range blk {
+				a, _, _, _ := leaf4(&xx[r], int(rt[0]), int(rt[0]), int(rt[0]), int(rt[0]))
+				addLeaf(&acc[r], int(thr[a]))
+			}
+		}
+		for r := range blk {
+			y := finishRow(acc[r])
+			copy(out[r*NumOutputs:], y[:])
+		}
+		rows, out = rows[len(blk):], out[len(blk)*NumOutputs:]
+	}
 }
 
 // baseScore is added to the combined trees.

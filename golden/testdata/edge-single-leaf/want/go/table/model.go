@@ -39,12 +39,16 @@ func Predict(x *[NumFeatures]float64) [NumOutputs]float64 {
 	xx[leafMark] = math.NaN()
 	s := 0.0
 	r := roots
-	for ; len(r) >= 4; r = r[4:] {
-		a, b, c, d := leaf4(&xx, int(r[0]), int(r[1]), int(r[2]), int(r[3]))
+	for ; len(r) >= 8; r = r[8:] {
+		a, b, c, d, e, f, g, h := leaf8(&xx, int(r[0]), int(r[1]), int(r[2]), int(r[3]), int(r[4]), int(r[5]), int(r[6]), int(r[7]))
 		s += thr[a]
 		s += thr[b]
 		s += thr[c]
 		s += thr[d]
+		s += thr[e]
+		s += thr[f]
+		s += thr[g]
+		s += thr[h]
 	}
 	a, _, _, _ := leaf4(&xx, int(r[0]), int(r[0]), int(r[0]), int(r[0]))
 	s += thr[a]
@@ -70,8 +74,25 @@ func step(xx *[xxLen]float64, feat []uint8, far []uint8, thr []float64, i int) i
 	return i + 1 + (int(far[i])-1)&-fail
 }
 
-// leaf4 walks four trees at once, from nodes a, b, c and d, until all four stand on
-// their leaves: the walks do not wait on each other.
+// leaf8 walks 8 trees at once, from nodes a, b, c, d, e, f, g, h, until all stand on their
+// leaves: the walks do not wait on each other.
+func leaf8(xx *[xxLen]float64, a, b, c, d, e, f, g, h int) (int, int, int, int, int, int, int, int) {
+	feat, far, thr := feat, far, thr
+	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark)|(int(feat[e])^leafMark)|(int(feat[f])^leafMark)|(int(feat[g])^leafMark)|(int(feat[h])^leafMark) != 0 {
+		a = step(xx, feat, far, thr, a)
+		b = step(xx, feat, far, thr, b)
+		c = step(xx, feat, far, thr, c)
+		d = step(xx, feat, far, thr, d)
+		e = step(xx, feat, far, thr, e)
+		f = step(xx, feat, far, thr, f)
+		g = step(xx, feat, far, thr, g)
+		h = step(xx, feat, far, thr, h)
+	}
+	return a, b, c, d, e, f, g, h
+}
+
+// leaf4 walks 4 trees at once, from nodes a, b, c, d, until all stand on their
+// leaves: the walks do not wait on each other.
 func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
 	feat, far, thr := feat, far, thr
 	for (int(feat[a])^leafMark)|(int(feat[b])^leafMark)|(int(feat[c])^leafMark)|(int(feat[d])^leafMark) != 0 {
@@ -81,6 +102,64 @@ func leaf4(xx *[xxLen]float64, a, b, c, d int) (int, int, int, int) {
 		d = step(xx, feat, far, thr, d)
 	}
 	return a, b, c, d
+}
+
+// blockRows is the number of rows predictRows walks each group of trees for.
+const blockRows = 64
+
+// extendRow fills xx from x as Predict does.
+func extendRow(x *[NumFeatures]float64, xx *[xxLen]float64) {
+	for j, v := range x {
+		xx[j] = v
+	}
+	xx[leafMark] = math.NaN()
+}
+
+// finishRow turns one row's sum of leaves into its outputs as Predict does.
+func finishRow(s float64) [NumOutputs]float64 {
+	s = float64(s/numTrees) + 0.0
+	return [NumOutputs]float64{s}
+}
+
+// predictRows scores rows into out a block at a time: each group of trees walks
+// every row of the block before the next group starts, and each row adds its
+// leaves in tree order, so every output is Predict's, bit for bit.
+func predictRows(rows [][]float64, out []float64) {
+	var xx [blockRows][xxLen]float64
+	var acc [blockRows]float64
+	for len(rows) > 0 {
+		blk := rows[:min(blockRows, len(rows))]
+		for r, x := range blk {
+			extendRow((*[NumFeatures]float64)(x), &xx[r])
+			acc[r] = 0.0
+		}
+		for t := 0; t+8 <= numTrees; t += 8 {
+			rt := roots[t:][:8]
+			for r := range blk {
+				a, b, c, d, e, f, g, h := leaf8(&xx[r], int(rt[0]), int(rt[1]), int(rt[2]), int(rt[3]), int(rt[4]), int(rt[5]), int(rt[6]), int(rt[7]))
+				acc[r] += thr[a]
+				acc[r] += thr[b]
+				acc[r] += thr[c]
+				acc[r] += thr[d]
+				acc[r] += thr[e]
+				acc[r] += thr[f]
+				acc[r] += thr[g]
+				acc[r] += thr[h]
+			}
+		}
+		{
+			rt := roots[numTrees-1:]
+			for r := range blk {
+				a, _, _, _ := leaf4(&xx[r], int(rt[0]), int(rt[0]), int(rt[0]), int(rt[0]))
+				acc[r] += thr[a]
+			}
+		}
+		for r := range blk {
+			y := finishRow(acc[r])
+			copy(out[r*NumOutputs:], y[:])
+		}
+		rows, out = rows[len(blk):], out[len(blk)*NumOutputs:]
+	}
 }
 
 // tableNode is one node of the table: the index into xx it tests (leafMark at a leaf),
