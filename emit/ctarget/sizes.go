@@ -34,7 +34,9 @@ func WorstSplits(p *compile.Program) int {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned, Bitvector, Block, Perfect} }
+func Layouts() []string {
+	return []string{emit.Nested, emit.Table, emit.Binned, Bitvector, Block, Perfect}
+}
 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored); a model the binned layout refuses (set splits, too many cuts)
