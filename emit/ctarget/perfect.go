@@ -9,21 +9,36 @@ import (
 
 // Perfect is the layout whose NAME_predict_batch walks every tree as a
 // perfect binary tree of the forest's depth D: node i's children are 2i+1
-// and 2i+2, so a tree needs no child links, only per node a feature word
-// (the feature << 1 | NaN goes right) and a threshold, and 2^D leaf values.
+// and 2i+2, so a tree needs no child links, only per node a key index (the
+// feature << 1 | NaN goes right) and a threshold, and 2^D leaf values.
 // A leaf above depth D becomes a subtree whose leaves all carry its value,
-// so whichever way its padding splits send a row, the sum is the same. A
-// block of PerfectRows rows takes, tree by tree, exactly D steps per row,
+// so whichever way its padding splits send a row, the sum is the same.
 //
-//	i = 2*i + 1 + ((x[f] > t) | (isnan(x[f]) & nanRight))
+// A block of PerfectRows rows first writes each row's keys: per feature,
+// the input with NaN as -inf (key 2f) and as +inf (key 2f+1), so that one
+// comparison routes NaN the node's way. Then tree by tree each row takes
+// exactly D steps,
 //
-// with no branch on the data, and then adds the leaf 2^D-1 places below
-// the last node; each row's leaves are added in tree order, so the outputs
-// are NAME_predict's bit for bit. NAME_predict is the table layout's.
+//	i = 2*i + 1 + (key[f2] > t)
+//
+// four rows interleaved, with no branch on the data, and adds the leaf
+// 2^D-1 places below the last node; each row's leaves are added in tree
+// order, so the outputs are NAME_predict's bit for bit. In double C the
+// keys and thresholds are floats where that is exact for every split (see
+// floatExact): XGBoost's cuts are. NAME_predict is the table layout's.
 const Perfect = "perfect"
 
-// PerfectRows is the number of rows a block walks together.
+// PerfectRows is the number of rows a block walks together, a multiple of
+// perfectChains.
 const PerfectRows = 16
+
+// perfectChains is the number of rows whose steps are interleaved in the
+// code, so that their loads overlap.
+const perfectChains = 4
+
+// PerfectMaxFeatures bounds the features, so that a block's keys (two per
+// feature and row) take at most 64 KiB of stack in double.
+const PerfectMaxFeatures = 256
 
 // PerfectMaxDepth is the deepest forest the layout pads: a tree takes
 // 2^D - 1 feature words and thresholds and 2^D leaves, whatever its shape.
@@ -38,13 +53,13 @@ const perfectMaxGrowth = 4
 type perfectForest struct {
 	depth int       // D: every tree's steps
 	feat  []uint32  // per tree, per split in level order: feature << 1 | NaN goes right
-	thr   []float64 // per tree, per split: the threshold (+inf in padding)
+	thr   []float64 // per tree, per split: the threshold (+inf in padding), as keyType stores it
 	leaf  []float64 // per tree, per leaf left to right, per output: the value
 	ge    bool      // a row goes right when x >= thr (every split a <), else x > thr
-	// thrType is the C type of the thresholds: float where every one is a
-	// float32 value (as XGBoost's cuts are), else the arithmetic's type.
-	thrType string
-	featTyp string // uint8_t, uint16_t or uint32_t
+	// keyType is the C type of the keys and thresholds: float where that
+	// is exact at every split (floatExact), else the arithmetic's type.
+	keyType string
+	featTyp string // uint8_t or uint16_t
 }
 
 // forestDepth is the depth of p's deepest tree (a lone leaf has depth 0).
@@ -85,8 +100,8 @@ func perfectFits(g *gen) error {
 	if padded > perfectMaxGrowth*p.NumNodes() {
 		return fmt.Errorf("perfect trees of depth %d would hold %d nodes, more than %d times the forest's %d", d, padded, perfectMaxGrowth, p.NumNodes())
 	}
-	if len(p.Features) > 1<<31 {
-		return fmt.Errorf("%d features", len(p.Features))
+	if len(p.Features) > PerfectMaxFeatures {
+		return fmt.Errorf("%d features, more than %d (a block's keys live on the stack)", len(p.Features), PerfectMaxFeatures)
 	}
 	return nil
 }
@@ -126,20 +141,39 @@ func (g *gen) buildPerfect() *perfectForest {
 		pf.leaf = append(pf.leaf, make([]float64, leaves*p.NumOutputs)...)
 		g.perfectPlace(pf, ti, 0, 0, pf.feat[base:], pf.thr[base:], pf.leaf[lbase:])
 	}
-	pf.thrType = "float"
+	pf.keyType = "float"
 	for _, t := range pf.thr {
-		if !math.IsInf(t, 1) && float64(float32(t)) != t {
-			pf.thrType = g.ft
+		if !floatExact(t, pf.ge) {
+			pf.keyType = g.ft
 		}
 	}
-	pf.featTyp = "uint32_t"
-	switch n := len(p.Features); {
-	case n <= 128:
+	if pf.keyType == "float" {
+		for i, t := range pf.thr {
+			pf.thr[i] = float64(float32(t))
+		}
+	}
+	pf.featTyp = "uint16_t"
+	if len(p.Features) <= 128 {
 		pf.featTyp = "uint8_t"
-	case n <= 1<<15:
-		pf.featTyp = "uint16_t"
 	}
 	return pf
+}
+
+// floatExact reports whether a split x > t (x >= t when ge) of a double x
+// decides the same as (float)x > (float)t ((float)x >= (float)t): rounding
+// to float is monotone, so it does when no double beyond t on the other
+// side rounds to the float t does. For x > t: the double after t rounds
+// above (float)t; for x >= t: the double before t rounds below. A float32
+// model's cuts, compiled for double C to the midpoints a float rounds
+// across, pass; +inf (padding) passes.
+func floatExact(t float64, ge bool) bool {
+	if math.IsInf(t, 0) {
+		return true
+	}
+	if ge {
+		return float32(math.Nextafter(t, math.Inf(-1))) < float32(t)
+	}
+	return float32(math.Nextafter(t, math.Inf(1))) > float32(t)
 }
 
 // perfectPlace puts node ni of tree ti at position at of the perfect tree
@@ -187,22 +221,23 @@ func (g *gen) perfect(w *printer) error {
 	return nil
 }
 
-// perfectTables writes the feature words, the thresholds and the leaves.
+// perfectTables writes the key indexes, the thresholds and the leaves.
 func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	inner := 1<<pf.depth - 1
 	w.line("#define %s_PF_DEPTH %d", g.upper, pf.depth)
 	w.line("#define %s_PF_INNER %du /* splits a tree: 2^depth - 1 */", g.upper, inner)
 	w.line("#define %s_PF_ROWS %d", g.upper, PerfectRows)
+	w.line("#define %s_PF_KEYS (2u * %s_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */", g.upper, g.upper)
 	w.line("")
-	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
+	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
 		return fmt.Sprintf("%du", pf.feat[i])
 	})
-	g.bvArray(w, pf.thrType, "pf_thr", fmt.Sprintf("perfect walk: per tree, per split, the row goes right when x %s this (+inf in padding)", map[bool]string{true: ">=", false: ">"}[pf.ge]), len(pf.thr), func(i int) string {
+	g.bvArray(w, pf.keyType, "pf_thr", fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp()), len(pf.thr), func(i int) string {
 		t := pf.thr[i]
 		if math.IsInf(t, 1) {
-			return map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[pf.thrType]
+			return map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[pf.keyType]
 		}
-		if pf.thrType == "float" {
+		if pf.keyType == "float" {
 			return floatLit(t)
 		}
 		return doubleLit(t)
@@ -212,54 +247,42 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	})
 }
 
+// cmp is the comparison that sends a row right.
+func (pf *perfectForest) cmp() string {
+	if pf.ge {
+		return ">="
+	}
+	return ">"
+}
+
 // perfectBlock writes NAME_perfect, which scores one block of up to
 // PerfectRows rows.
 func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
-	ft, nf, no, u := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS", g.upper
-	cmp := map[bool]string{true: ">=", false: ">"}[pf.ge]
-	w.line("/* Scores the count <= %s_PF_ROWS rows at x into outs: tree by tree, every", u)
-	w.line(" * row of the block taking %s_PF_DEPTH steps, each a comparison and an", u)
-	w.line(" * addition (no branch on the data); then each row's leaves are added in tree")
-	w.line(" * order, as %s_predict adds them. Lanes past count walk row 0 and are", g.name)
-	w.line(" * dropped. */")
+	ft, u := g.ft, g.upper
+	w.line("/* Scores the count <= %s_PF_ROWS rows at x into outs: writes each row's", u)
+	w.line(" * keys, then tree by tree every row of the block takes %s_PF_DEPTH steps,", u)
+	w.line(" * each a comparison and an addition (no branch on the data), and adds its")
+	w.line(" * leaf, in tree order as %s_predict adds them. Lanes past count walk row", g.name)
+	w.line(" * 0 and are dropped. */")
 	w.line("static void %s_perfect(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
 	w.line("{")
 	w.in()
-	w.line("%s sum[%s_PF_ROWS * %s];", g.at, u, no)
-	w.line("uint32_t node[%s_PF_ROWS], off[%s_PF_ROWS];", u, u)
-	w.line("uint32_t tree, step, lane;")
+	w.line("%s sum[%s_PF_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
+	w.line("%s key[%s_PF_ROWS * %s_PF_KEYS];", pf.keyType, u, u)
+	w.line("size_t lane;")
+	w.line("uint32_t tree;")
 	w.line("int j;")
-	w.line("for (lane = 0; lane < %s_PF_ROWS; lane++) {", u)
-	w.line("\toff[lane] = lane < count ? lane * (uint32_t)%s : 0u;", nf)
-	for j := 0; j < g.p.NumOutputs; j++ {
-		w.line("\tsum[lane * %s + %du] = %s;", no, j, g.accStart(j))
-	}
-	w.line("}")
+	g.perfectKeys(w, pf)
 	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
 	w.line("const %s *const fe = %s_pf_feat + tree * %s_PF_INNER;", pf.featTyp, g.name, u)
-	w.line("const %s *const th = %s_pf_thr + tree * %s_PF_INNER;", pf.thrType, g.name, u)
-	w.line("const %s *const lv = %s_pf_leaf + tree * (%s_PF_INNER + 1u) * %s;", g.at, g.name, u, no)
-	w.line("for (lane = 0; lane < %s_PF_ROWS; lane++) {", u)
-	w.line("\tnode[lane] = 0u;")
-	w.line("}")
-	w.line("for (step = 0; step < %s_PF_DEPTH; step++) {", u)
+	w.line("const %s *const th = %s_pf_thr + tree * %s_PF_INNER;", pf.keyType, g.name, u)
+	w.line("const %s *const lv = %s_pf_leaf + tree * (%s_PF_INNER + 1u) * %s_NUM_OUTPUTS;", g.at, g.name, u, u)
+	w.line("for (lane = 0; lane < %s_PF_ROWS; lane += %du) {", u, perfectChains)
 	w.in()
-	w.line("for (lane = 0; lane < %s_PF_ROWS; lane++) {", u)
-	w.in()
-	w.line("const uint32_t i = node[lane], f = fe[i];")
-	w.line("const %s v = x[off[lane] + (f >> 1)];", ft)
-	t := "th[i]"
-	if pf.thrType != ft {
-		t = "(" + ft + ")th[i]" // exact: every float is a double
-	}
-	w.line("const uint32_t right = (uint32_t)(v %s %s) | ((uint32_t)(v != v) & f);", cmp, t)
-	w.line("node[lane] = 2u * i + 1u + right;")
+	g.perfectChains(w, pf)
 	w.out()
 	w.line("}")
-	w.out()
-	w.line("}")
-	g.perfectAdd(w)
 	w.out()
 	w.line("}")
 	g.batchFinish(w)
@@ -267,17 +290,56 @@ func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
 	w.line("}")
 }
 
-// perfectAdd writes the addition of the leaf each lane reached.
-func (g *gen) perfectAdd(w *printer) {
-	u := g.upper
+// perfectKeys writes the loop that fills each row's keys and starts its
+// sums.
+func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
+	u, kt := g.upper, pf.keyType
+	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[kt]
 	w.line("for (lane = 0; lane < %s_PF_ROWS; lane++) {", u)
-	if g.p.NumOutputs == 1 {
-		w.line("\tsum[lane] += lv[node[lane] - %s_PF_INNER];", u)
+	w.in()
+	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
+	w.line("%s *const k = key + lane * %s_PF_KEYS;", kt, u)
+	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
+	w.in()
+	w.line("const %s v = xr[j];", g.ft)
+	if kt == g.ft {
+		w.line("k[2 * j] = v != v ? -%s : v;", inf)
+		w.line("k[2 * j + 1] = v != v ? %s : v;", inf)
 	} else {
-		w.line("\tconst %s *const l = lv + (node[lane] - %s_PF_INNER) * %s_NUM_OUTPUTS;", g.at, u, u)
-		w.line("\tfor (j = 0; j < %s_NUM_OUTPUTS; j++) {", u)
-		w.line("\t\tsum[lane * %s_NUM_OUTPUTS + (uint32_t)j] += l[j];", u)
-		w.line("\t}")
+		w.line("k[2 * j] = v != v ? -%s : (%s)v; /* exact: see the thresholds */", inf, kt)
+		w.line("k[2 * j + 1] = v != v ? %s : (%s)v;", inf, kt)
 	}
+	w.out()
 	w.line("}")
+	for j := 0; j < g.p.NumOutputs; j++ {
+		w.line("sum[lane * %s_NUM_OUTPUTS + %du] = %s;", u, j, g.accStart(j))
+	}
+	w.out()
+	w.line("}")
+}
+
+// perfectChains writes the walk of perfectChains rows through one tree,
+// their steps interleaved and unrolled, and the addition of their leaves.
+func (g *gen) perfectChains(w *printer, pf *perfectForest) {
+	u := g.upper
+	for c := 0; c < perfectChains; c++ {
+		w.line("const %s *const k%d = key + (lane + %du) * %s_PF_KEYS;", pf.keyType, c, c, u)
+	}
+	for c := 0; c < perfectChains; c++ {
+		w.line("size_t i%d = 0u;", c)
+	}
+	for d := 0; d < pf.depth; d++ {
+		for c := 0; c < perfectChains; c++ {
+			w.line("i%d = 2u * i%d + 1u + (size_t)(k%d[fe[i%d]] %s th[i%d]);", c, c, c, c, pf.cmp(), c)
+		}
+	}
+	for c := 0; c < perfectChains; c++ {
+		if g.p.NumOutputs == 1 {
+			w.line("sum[lane + %du] += lv[i%d - %s_PF_INNER];", c, c, u)
+			continue
+		}
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", u)
+		w.line("\tsum[(lane + %du) * %s_NUM_OUTPUTS + (size_t)j] += lv[(i%d - %s_PF_INNER) * %s_NUM_OUTPUTS + (size_t)j];", c, u, c, u, u)
+		w.line("}")
+	}
 }

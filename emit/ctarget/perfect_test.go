@@ -53,7 +53,7 @@ func TestPerfectPadding(t *testing.T) {
 	require.Equal(t, 2, pf.depth)
 	require.False(t, pf.ge)
 	require.Equal(t, "uint8_t", pf.featTyp)
-	require.Equal(t, "double", pf.thrType, "2's double below is no float")
+	require.Equal(t, "double", pf.keyType, "a float key above 1 can round to 1")
 	// tree 0: all padding; tree 1: root, the padded leaf 10 at 1, the split at 2
 	require.Equal(t, []uint32{0, 0, 0, 1<<1 | 1, 0, 3 << 1}, pf.feat)
 	inf := math.Inf(1)
@@ -62,7 +62,8 @@ func TestPerfectPadding(t *testing.T) {
 }
 
 // TestPerfectKeepsLT: where every split is "<", the thresholds stay the
-// model's (floats, as XGBoost's cuts are) and a row goes right on x >= t.
+// model's and a row goes right on x >= t; a double just below 0.5 rounds
+// to the float 0.5, so the keys stay double.
 func TestPerfectKeepsLT(t *testing.T) {
 	tr := compile.Tree{Nodes: []compile.Node{
 		{Feature: 0, Threshold: 0.5, Op: compile.LT, Left: 1, Right: 2},
@@ -72,8 +73,31 @@ func TestPerfectKeepsLT(t *testing.T) {
 	g := &gen{p: p, ft: "double", leaves: [][][]float64{{nil, {1}, {2}}}}
 	pf := g.buildPerfect()
 	require.True(t, pf.ge)
-	require.Equal(t, "float", pf.thrType)
+	require.Equal(t, "double", pf.keyType)
 	require.Equal(t, "uint16_t", pf.featTyp)
 	require.Equal(t, []float64{0.5}, pf.thr)
 	require.Equal(t, []uint32{1}, pf.feat)
+}
+
+// TestFloatExact: x > t decides as (float)x > (float)t exactly when t is
+// where rounding to float turns: the midpoint of two floats whose lower
+// one is even (round half to even; IEEE 754-2008, 4.3.1), as compile
+// writes a float32 model's cuts for double C; not at a float itself, nor
+// at the midpoint above an odd float, which rounds up; and x >= t at a
+// float, which the double below rounds to.
+func TestFloatExact(t *testing.T) {
+	lo := 0.5
+	hi := float64(math.Nextafter32(0.5, 1))
+	mid := (lo + hi) / 2
+	require.True(t, floatExact(mid, false))
+	require.False(t, floatExact(lo, false))
+	even := float64(math.Nextafter32(float32(hi), 1)) // hi is odd
+	require.False(t, floatExact((hi+even)/2, false), "the midpoint above an odd float rounds up")
+	require.True(t, floatExact(math.Nextafter((hi+even)/2, 0), false))
+	require.False(t, floatExact(lo, true))
+	require.True(t, floatExact(math.Nextafter(mid, 1), true))
+	require.True(t, floatExact(math.Inf(1), false))
+	for _, x := range []float64{mid, math.Nextafter(mid, 1), math.Nextafter(mid, 0), lo, hi} {
+		require.Equal(t, x > mid, float32(x) > float32(mid), "%v", x)
+	}
 }

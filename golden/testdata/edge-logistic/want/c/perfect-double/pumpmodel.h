@@ -25,10 +25,10 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
- *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the feature << 1 | NaN goes right, 9 x 8 = 72 bytes
- *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when x > this (+inf in padding), 9 x 4 = 36 bytes
+ *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 9 x 1 = 9 bytes
+ *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 9 x 8 = 72 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 12 x 8 = 96 bytes
- *   total 288 bytes (26.18 bytes per node; code not counted)
+ *   total 261 bytes (23.73 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

@@ -99,13 +99,14 @@ void pumpmodel_predict(const double *x, double *out)
 #define PUMPMODEL_PF_DEPTH 2
 #define PUMPMODEL_PF_INNER 3u /* splits a tree: 2^depth - 1 */
 #define PUMPMODEL_PF_ROWS 16
+#define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
-/* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the feature << 1 | NaN goes right */
+/* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
 static const uint8_t pumpmodel_pf_feat[6] = {
 	0u, 3u, 0u, 3u, 0u, 0u
 };
 
-/* perfect walk: per tree, per split, the row goes right when x > this (+inf in padding) */
+/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding) */
 static const double pumpmodel_pf_thr[6] = {
 	0.5, 0.0, HUGE_VAL, 5e-324, HUGE_VAL, HUGE_VAL
 };
@@ -115,38 +116,53 @@ static const double pumpmodel_pf_leaf[8] = {
 	1.5, -0.0, -2.25, -2.25, -0.0, -0.0, 1e-300, 1e-300
 };
 
-/* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: tree by tree, every
- * row of the block taking PUMPMODEL_PF_DEPTH steps, each a comparison and an
- * addition (no branch on the data); then each row's leaves are added in tree
- * order, as pumpmodel_predict adds them. Lanes past count walk row 0 and are
- * dropped. */
+/* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
+ * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
+ * each a comparison and an addition (no branch on the data), and adds its
+ * leaf, in tree order as pumpmodel_predict adds them. Lanes past count walk row
+ * 0 and are dropped. */
 static void pumpmodel_perfect(const double *x, size_t count, double *outs)
 {
 	double sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
-	uint32_t node[PUMPMODEL_PF_ROWS], off[PUMPMODEL_PF_ROWS];
-	uint32_t tree, step, lane;
+	double key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	size_t lane;
+	uint32_t tree;
 	int j;
 	for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
-		off[lane] = lane < count ? lane * (uint32_t)PUMPMODEL_NUM_FEATURES : 0u;
+		const double *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
+		double *const k = key + lane * PUMPMODEL_PF_KEYS;
+		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
+			const double v = xr[j];
+			k[2 * j] = v != v ? -HUGE_VAL : v;
+			k[2 * j + 1] = v != v ? HUGE_VAL : v;
+		}
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.0;
 	}
 	for (tree = 0; tree < 2u; tree++) {
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const double *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const double *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
-		for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
-			node[lane] = 0u;
-		}
-		for (step = 0; step < PUMPMODEL_PF_DEPTH; step++) {
-			for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
-				const uint32_t i = node[lane], f = fe[i];
-				const double v = x[off[lane] + (f >> 1)];
-				const uint32_t right = (uint32_t)(v > th[i]) | ((uint32_t)(v != v) & f);
-				node[lane] = 2u * i + 1u + right;
-			}
-		}
-		for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
-			sum[lane] += lv[node[lane] - PUMPMODEL_PF_INNER];
+		for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane += 4u) {
+			const double *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
+			const double *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
+			const double *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
+			const double *const k3 = key + (lane + 3u) * PUMPMODEL_PF_KEYS;
+			size_t i0 = 0u;
+			size_t i1 = 0u;
+			size_t i2 = 0u;
+			size_t i3 = 0u;
+			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
+			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
+			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
+			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
+			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
+			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
+			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
+			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
+			sum[lane + 0u] += lv[i0 - PUMPMODEL_PF_INNER];
+			sum[lane + 1u] += lv[i1 - PUMPMODEL_PF_INNER];
+			sum[lane + 2u] += lv[i2 - PUMPMODEL_PF_INNER];
+			sum[lane + 3u] += lv[i3 - PUMPMODEL_PF_INNER];
 		}
 	}
 	for (lane = 0; lane < count; lane++) {

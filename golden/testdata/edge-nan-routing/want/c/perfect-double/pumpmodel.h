@@ -22,10 +22,10 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
- *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the feature << 1 | NaN goes right, 6 x 8 = 48 bytes
- *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when x > this (+inf in padding), 6 x 8 = 48 bytes
+ *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 6 x 1 = 6 bytes
+ *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 6 x 8 = 48 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 8 x 8 = 64 bytes
- *   total 225 bytes (28.12 bytes per node; code not counted)
+ *   total 183 bytes (22.88 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
