@@ -22,7 +22,7 @@
 #
 # Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
 #   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
-#   C_LAYOUTS=auto,table,block,block+avx2 (+avx2: built with -mavx2 too)
+#   C_LAYOUTS=auto,table,block,block+avx2,perfect (+avx2: built with -mavx2 too)
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
 #   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
@@ -43,6 +43,6 @@ go build -o "$tmp/libs-bench" ./bench/libs
 	--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs.txt"
 "$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs.txt" -models "${MODELS:-xgb,lgbm,rf,rfbig}" -reps "$reps" \
 	-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
-	-c "${C_LAYOUTS:-auto,table,block,block+avx2}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
+	-c "${C_LAYOUTS:-auto,table,block,block+avx2,perfect}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
 	-xgboost-lib "$("$py" -c 'import os, xgboost; print(os.path.join(os.path.dirname(xgboost.__file__), "lib", "libxgboost.so"))')" \
 	-lightgbm-lib "$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(lightgbm.__file__), "lib", "lib_lightgbm.so"))')"

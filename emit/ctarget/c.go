@@ -57,8 +57,8 @@
 //     blockFits refuses the model (set splits, missing bands, zero as
 //     missing, more than one output) the table layout is written instead,
 //     the header saying why;
-//   - perfect: the table layout's NAME_predict, and a NAME_predict_batch
-//     that pads every tree to a perfect tree of the forest's depth (node
+//   - perfect: auto's NAME_predict (nested or table), and a
+//     NAME_predict_batch that pads every tree to a perfect tree of the forest's depth (node
 //     i's children 2i+1 and 2i+2, no links) and walks blocks of rows through
 //     exactly that many steps without branches on the data (see Perfect);
 //     asked for only, and where perfectFits refuses the model (what block
@@ -760,8 +760,8 @@ func (g *gen) header() []byte {
 		w.line(" * Blocks of %d rows walk each tree in lock-step, without branches on the", BlockRows)
 		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
 	case Perfect:
-		w.line(" * Blocks of %d rows walk each tree, padded to a perfect tree, in a fixed", PerfectRows)
-		w.line(" * number of steps without branches on the data. */")
+		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
+		w.line(" * tree, in a fixed number of steps without branches on the data. */")
 	default:
 		w.line(" * Row by row. */")
 	}

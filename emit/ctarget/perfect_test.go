@@ -101,3 +101,12 @@ func TestFloatExact(t *testing.T) {
 		require.Equal(t, x > mid, float32(x) > float32(mid), "%v", x)
 	}
 }
+
+// TestPerfectRows: a block holds as many rows as perfectKeyBytes of keys
+// allow, in fours, from 4 to PerfectMaxRows.
+func TestPerfectRows(t *testing.T) {
+	require.Equal(t, 64, perfectRows(20, 4))  // 64 rows x 40 keys x 4 bytes = 10 KiB
+	require.Equal(t, 20, perfectRows(100, 8)) // 20 x 200 x 8 = 32,000 bytes
+	require.Equal(t, 8, perfectRows(256, 8))
+	require.Equal(t, 4, perfectRows(PerfectMaxFeatures, 8))
+}

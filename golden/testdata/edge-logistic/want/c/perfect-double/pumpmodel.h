@@ -21,14 +21,10 @@
  *   1 bearing_wear
  *
  * Static tables in pumpmodel.c:
- *   pumpmodel_node: split words, 4 x 2 = 8 bytes
- *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
- *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
- *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
  *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 9 x 1 = 9 bytes
  *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 9 x 8 = 72 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 12 x 8 = 96 bytes
- *   total 261 bytes (23.73 bytes per node; code not counted)
+ *   total 177 bytes (16.09 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -76,8 +72,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree, padded to a perfect tree, in a fixed
- * number of steps without branches on the data. */
+ * Blocks of rows (PUMPMODEL_PF_ROWS in pumpmodel.c) walk each tree, padded to a perfect
+ * tree, in a fixed number of steps without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */

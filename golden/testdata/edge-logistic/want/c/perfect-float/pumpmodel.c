@@ -39,62 +39,48 @@ const char *const pumpmodel_class_names[PUMPMODEL_NUM_CLASSES] = {
 	"bearing_wear"
 };
 
-/* Splits, per tree in preorder, low bits first: feature (1 bit), threshold index (2 bits), missing goes left (1 bit),
- * left is a leaf (1 bit), right is a leaf (1 bit), splits in the left subtree (1 bit). */
-static const uint16_t pumpmodel_node[4] = {
-	/* tree 0 */
-	0x65u, 0x3au,
-	/* tree 1 */
-	0x30u,
-	/* tree 2 */
-	0x37u,
-};
+/* tree 0: 5 nodes, depth 2 */
+static float pumpmodel_tree0(const float *x)
+{
+	if (x[1] <= 61.5f) { /* node 0 */
+		if (!(x[0] > 12.25f)) { /* node 1 */
+			return -0.3f; /* node 3 */
+		} else {
+			return 0.6f; /* node 4 */
+		}
+	} else {
+		return 1.75f; /* node 2 */
+	}
+}
 
-/* First word of each tree; tree t has words start[t] to start[t+1]-1. */
-static const uint8_t pumpmodel_start[4] = {
-	0, 2, 3, 4,
-};
+/* tree 1: 3 nodes, depth 1 */
+static float pumpmodel_tree1(const float *x)
+{
+	if (x[0] <= 10.0f) { /* node 0 */
+		return -0.2f; /* node 1 */
+	} else {
+		return 40.0f; /* node 2 */
+	}
+}
 
-/* Distinct thresholds, by feature, ascending. */
-static const float pumpmodel_thr[4] = {
-	10.0f, 12.25f, 61.5f, 70.0f,
-};
-
-/* Leaf vectors, per leaf in preorder. */
-static const float pumpmodel_leaf[7] = {
-	-0.3f, 0.6f, 1.75f, -0.2f, 40.0f, -800.0f, 0.01f,
-};
+/* tree 2: 3 nodes, depth 1 */
+static float pumpmodel_tree2(const float *x)
+{
+	if (x[1] <= 70.0f) { /* node 0 */
+		return -800.0f; /* node 1 */
+	} else {
+		return 0.01f; /* node 2 */
+	}
+}
 
 void pumpmodel_predict(const float *x, float *out)
 {
 	float acc[PUMPMODEL_NUM_OUTPUTS];
 	int j;
-	uint32_t t, first, end;
-	uint32_t i0, done0, at0;
 	acc[0] = -0.4054651f;
-	for (t = 0u; t < 3u; t++) {
-		first = pumpmodel_start[t];
-		end = pumpmodel_start[t + 1u];
-		done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
-		i0 = first < end ? first : 0u;
-		at0 = first + t; /* leaves before the tree: one more than splits, per tree */
-		while (done0 == 0u) {
-			{
-				const uint16_t w = pumpmodel_node[i0];
-				const uint32_t f = (uint32_t)(w & 0x1u);
-				const float v = x[f];
-				const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x3u)];
-				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 3) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-				const uint32_t p1 = ((uint32_t)(w >> 6) & 0x1u);
-				const uint32_t leaf = (uint32_t)(w >> (4 + r)) & 1u; /* the child is a leaf */
-				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
-				at0 += (done0 ^ 1u) * r * (p1 + 1u); /* p1 is 0 when the left child is a leaf */
-				i0 += go * (1u + r * p1);
-				done0 |= leaf;
-			}
-		}
-		acc[0] += pumpmodel_leaf[at0];
-	}
+	acc[0] += pumpmodel_tree0(x);
+	acc[0] += pumpmodel_tree1(x);
+	acc[0] += pumpmodel_tree2(x);
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		if (acc[j] >= 0.0f) {
 			acc[j] = 1.0f / (1.0f + expf(-acc[j]));
@@ -117,7 +103,7 @@ int pumpmodel_predict_class(const float *x)
 
 #define PUMPMODEL_PF_DEPTH 2
 #define PUMPMODEL_PF_INNER 3u /* splits a tree: 2^depth - 1 */
-#define PUMPMODEL_PF_ROWS 16
+#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
 /* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
@@ -141,16 +127,17 @@ static const float pumpmodel_pf_leaf[12] = {
 /* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
  * each a comparison and an addition (no branch on the data), and adds its
- * leaf, in tree order as pumpmodel_predict adds them. Lanes past count walk row
- * 0 and are dropped. */
+ * leaf, in tree order as pumpmodel_predict adds them. Up to 3 lanes past count
+ * walk row 0 and are dropped. */
 static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
 	float key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	const size_t used = (count + 3u) / 4u * 4u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
-	for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
+	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
 		float *const k = key + lane * PUMPMODEL_PF_KEYS;
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
@@ -164,7 +151,7 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
-		for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane += 4u) {
+		for (lane = 0; lane < used; lane += 4u) {
 			const float *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
 			const float *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
 			const float *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;

@@ -18,14 +18,10 @@
  *   out[0] prediction
  *
  * Static tables in pumpmodel.c:
- *   pumpmodel_node: split words, 3 x 2 = 6 bytes
- *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
- *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
- *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
  *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 6 x 1 = 6 bytes
  *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 6 x 8 = 48 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 8 x 8 = 64 bytes
- *   total 183 bytes (22.88 bytes per node; code not counted)
+ *   total 118 bytes (14.75 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -66,8 +62,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree, padded to a perfect tree, in a fixed
- * number of steps without branches on the data. */
+ * Blocks of rows (PUMPMODEL_PF_ROWS in pumpmodel.c) walk each tree, padded to a perfect
+ * tree, in a fixed number of steps without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* Checks at run time what exact scoring needs of the floating-point unit:

@@ -34,63 +34,37 @@ const char *const pumpmodel_feature_names[PUMPMODEL_NUM_FEATURES] = {
 	"b"
 };
 
-/* Splits, per tree in preorder, low bits first: feature (1 bit), threshold index (1 bit), missing goes left (1 bit),
- * left is a leaf (1 bit), right is a leaf (1 bit), then (2 bits) the left leaf's row of pumpmodel_leaf
- * if the left child is a leaf, else the splits in the left subtree, then (2 bits) the right
- * leaf's row if the right child is a leaf. */
-static const uint16_t pumpmodel_node[3] = {
-	/* tree 0 */
-	0x134u, 0x9bu,
-	/* tree 1 */
-	0x1bbu,
-};
+/* tree 0: 5 nodes, depth 2 */
+static float pumpmodel_tree0(const float *x)
+{
+	if (!(x[0] > 0.5f)) { /* node 0 */
+		if (x[1] <= 0.0f) { /* node 1 */
+			return 1.5f; /* node 2 */
+		} else {
+			return -0.0f; /* node 3 */
+		}
+	} else {
+		return -2.25f; /* node 6 */
+	}
+}
 
-/* First word of each tree; tree t has words start[t] to start[t+1]-1. */
-static const uint8_t pumpmodel_start[3] = {
-	0, 2, 3,
-};
-
-/* Distinct thresholds, by feature, ascending. */
-static const float pumpmodel_thr[2] = {
-	0.5f, 0.0f,
-};
-
-/* Distinct leaf vectors. */
-static const float pumpmodel_leaf[4] = {
-	1.5f, -0.0f, -2.25f, 0.0f,
-};
+/* tree 1: 3 nodes, depth 1 */
+static float pumpmodel_tree1(const float *x)
+{
+	if (x[1] <= 0.0f) { /* node 0 */
+		return -0.0f; /* node 1 */
+	} else {
+		return 0.0f; /* node 2 */
+	}
+}
 
 void pumpmodel_predict(const float *x, float *out)
 {
 	float acc[PUMPMODEL_NUM_OUTPUTS];
 	int j;
-	uint32_t t, first, end;
-	uint32_t i0, done0, at0;
 	acc[0] = -0.0f;
-	for (t = 0u; t < 2u; t++) {
-		first = pumpmodel_start[t];
-		end = pumpmodel_start[t + 1u];
-		done0 = (uint32_t)(first == end); /* a tree that is one leaf has no word */
-		i0 = first < end ? first : 0u;
-		at0 = 0u;
-		while (done0 == 0u) {
-			{
-				const uint16_t w = pumpmodel_node[i0];
-				const uint32_t f = (uint32_t)(w & 0x1u);
-				const float v = x[f];
-				const float th = pumpmodel_thr[((uint32_t)(w >> 1) & 0x1u)];
-				const uint32_t r = ((uint32_t)(v <= th) | (((uint32_t)(w >> 2) & 1u) & (uint32_t)(v != v))) ^ 1u; /* 1: right */
-				const uint32_t p1 = ((uint32_t)(w >> 5) & 0x3u);
-				const uint32_t leaf = (uint32_t)(w >> (3 + r)) & 1u; /* the child is a leaf */
-				const uint32_t go = (done0 | leaf) ^ 1u; /* moves to another word */
-				const uint32_t row = r ? ((uint32_t)(w >> 7) & 0x3u) : p1;
-				at0 = (leaf & (done0 ^ 1u)) != 0u ? row : at0;
-				i0 += go * (1u + (r & (((uint32_t)(w >> 3) & 1u) ^ 1u)) * p1);
-				done0 |= leaf;
-			}
-		}
-		acc[0] += pumpmodel_leaf[at0];
-	}
+	acc[0] += pumpmodel_tree0(x);
+	acc[0] += pumpmodel_tree1(x);
 	for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 		out[j] = acc[j];
 	}
@@ -98,7 +72,7 @@ void pumpmodel_predict(const float *x, float *out)
 
 #define PUMPMODEL_PF_DEPTH 2
 #define PUMPMODEL_PF_INNER 3u /* splits a tree: 2^depth - 1 */
-#define PUMPMODEL_PF_ROWS 16
+#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
 /* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
@@ -119,16 +93,17 @@ static const float pumpmodel_pf_leaf[8] = {
 /* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
  * each a comparison and an addition (no branch on the data), and adds its
- * leaf, in tree order as pumpmodel_predict adds them. Lanes past count walk row
- * 0 and are dropped. */
+ * leaf, in tree order as pumpmodel_predict adds them. Up to 3 lanes past count
+ * walk row 0 and are dropped. */
 static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
 	float key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	const size_t used = (count + 3u) / 4u * 4u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
-	for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane++) {
+	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
 		float *const k = key + lane * PUMPMODEL_PF_KEYS;
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
@@ -142,7 +117,7 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
-		for (lane = 0; lane < PUMPMODEL_PF_ROWS; lane += 4u) {
+		for (lane = 0; lane < used; lane += 4u) {
 			const float *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
 			const float *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
 			const float *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
