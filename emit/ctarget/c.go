@@ -63,7 +63,7 @@
 //     exactly that many steps without branches on the data (see Perfect);
 //     asked for only, and where perfectFits refuses the model (what block
 //     refuses, and forests deeper than PerfectMaxDepth or padded to more
-//     than four times their nodes) the table layout instead, the header
+//     than four times their nodes and 4,096) the table layout instead, the header
 //     saying why;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds

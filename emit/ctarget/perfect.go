@@ -54,8 +54,12 @@ const PerfectMaxDepth = 10
 
 // perfectMaxGrowth bounds the padding: the perfect trees may hold at most
 // this many times the forest's nodes (a 500-round depth-6 XGBoost model
-// grows 1.5 times, 42,898 nodes to 63,500).
+// grows 1.5 times, 42,898 nodes to 63,500), or perfectSmall nodes.
 const perfectMaxGrowth = 4
+
+// perfectSmall is the most padded nodes a forest may take whatever its
+// growth: 4,096 nodes are 41 KB of tables at most in double.
+const perfectSmall = 4096
 
 // perfectForest is the forest as the perfect walk stores it.
 type perfectForest struct {
@@ -99,7 +103,7 @@ func treeDepth(t *compile.Tree, ni int32, d int) int {
 // perfectFits says why p cannot be written in the perfect layout, or nil:
 // it takes what blockFits takes (numeric splits, any number of outputs,
 // float32 sums) of depth 1 to PerfectMaxDepth, where the padded trees hold at
-// most perfectMaxGrowth times the forest's nodes.
+// most perfectMaxGrowth times the forest's nodes or perfectSmall.
 func perfectFits(g *gen) error {
 	if err := blockFits(g); err != nil {
 		return err
@@ -113,8 +117,8 @@ func perfectFits(g *gen) error {
 		return fmt.Errorf("trees of depth %d, deeper than %d", d, PerfectMaxDepth)
 	}
 	padded := len(p.Trees) * (1<<(d+1) - 1)
-	if padded > perfectMaxGrowth*p.NumNodes() {
-		return fmt.Errorf("perfect trees of depth %d would hold %d nodes, more than %d times the forest's %d", d, padded, perfectMaxGrowth, p.NumNodes())
+	if padded > perfectSmall && padded > perfectMaxGrowth*p.NumNodes() {
+		return fmt.Errorf("perfect trees of depth %d would hold %d nodes, more than %d and than %d times the forest's %d", d, padded, perfectSmall, perfectMaxGrowth, p.NumNodes())
 	}
 	if len(p.Features) > PerfectMaxFeatures {
 		return fmt.Errorf("%d features, more than %d (a block's keys live on the stack)", len(p.Features), PerfectMaxFeatures)

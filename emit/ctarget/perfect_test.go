@@ -25,7 +25,8 @@ func TestPerfectFallsBack(t *testing.T) {
 		{"v2-output-trees-softmax", "table", "adds to one output"},
 		{"edge-single-leaf", "table", "every tree is one leaf"},
 		{"v2-exp", "table", "trees of depth 22, deeper than 10"},
-		{"sklearn-wine", "table", "more than 4 times the forest's 654"},
+		{"sklearn-wine", "table", "more than 4096 and than 4 times the forest's 654"},
+		{"trained-wine", Perfect, "asked for"}, // 12 trees of depth 6: 1,524 padded nodes, under perfectSmall
 	})
 }
 

@@ -41,9 +41,9 @@ func Layouts() []string {
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored); a model the binned layout refuses (set splits, too many cuts)
 // has no binned row, and one the bitvector layout cannot write (see
-// bitvectorFits) no bitvector row. With o.ConstantTime it reports the
-// one layout constant time writes. It emits each layout, so it costs what
-// Emit costs.
+// bitvectorFits) no bitvector row, and likewise block and perfect. With
+// o.ConstantTime it reports the one layout constant time writes. It emits
+// each layout, so it costs what Emit costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	if o.ConstantTime {
 		return constantTimeSizes(p, o)
