@@ -104,10 +104,9 @@ func TestFloatExact(t *testing.T) {
 }
 
 // TestPerfectRows: a block holds as many rows as perfectKeyBytes of keys
-// allow, in fours, from 4 to PerfectMaxRows.
+// allow, in eights, from 8 to PerfectMaxRows.
 func TestPerfectRows(t *testing.T) {
 	require.Equal(t, 64, perfectRows(20, 4))  // 64 rows x 40 keys x 4 bytes = 10 KiB
-	require.Equal(t, 20, perfectRows(100, 8)) // 20 x 200 x 8 = 32,000 bytes
-	require.Equal(t, 8, perfectRows(256, 8))
-	require.Equal(t, 4, perfectRows(PerfectMaxFeatures, 8))
+	require.Equal(t, 16, perfectRows(100, 8)) // 16 x 200 x 8 = 25,600 bytes
+	require.Equal(t, 8, perfectRows(PerfectMaxFeatures, 8))
 }

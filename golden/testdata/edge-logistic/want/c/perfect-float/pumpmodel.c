@@ -127,13 +127,13 @@ static const float pumpmodel_pf_leaf[12] = {
 /* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
  * each a comparison and an addition (no branch on the data), and adds its
- * leaf, in tree order as pumpmodel_predict adds them. Up to 3 lanes past count
+ * leaf, in tree order as pumpmodel_predict adds them. Up to 7 lanes past count
  * walk row 0 and are dropped. */
 static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
 	float key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
-	const size_t used = (count + 3u) / 4u * 4u; /* whole chains */
+	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
@@ -151,27 +151,47 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
-		for (lane = 0; lane < used; lane += 4u) {
+		for (lane = 0; lane < used; lane += 8u) {
 			const float *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
 			const float *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
 			const float *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
 			const float *const k3 = key + (lane + 3u) * PUMPMODEL_PF_KEYS;
+			const float *const k4 = key + (lane + 4u) * PUMPMODEL_PF_KEYS;
+			const float *const k5 = key + (lane + 5u) * PUMPMODEL_PF_KEYS;
+			const float *const k6 = key + (lane + 6u) * PUMPMODEL_PF_KEYS;
+			const float *const k7 = key + (lane + 7u) * PUMPMODEL_PF_KEYS;
 			size_t i0 = 0u;
 			size_t i1 = 0u;
 			size_t i2 = 0u;
 			size_t i3 = 0u;
+			size_t i4 = 0u;
+			size_t i5 = 0u;
+			size_t i6 = 0u;
+			size_t i7 = 0u;
 			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
 			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
 			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
 			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
+			i4 = 2u * i4 + 1u + (size_t)(k4[fe[i4]] > th[i4]);
+			i5 = 2u * i5 + 1u + (size_t)(k5[fe[i5]] > th[i5]);
+			i6 = 2u * i6 + 1u + (size_t)(k6[fe[i6]] > th[i6]);
+			i7 = 2u * i7 + 1u + (size_t)(k7[fe[i7]] > th[i7]);
 			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
 			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
 			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
 			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
+			i4 = 2u * i4 + 1u + (size_t)(k4[fe[i4]] > th[i4]);
+			i5 = 2u * i5 + 1u + (size_t)(k5[fe[i5]] > th[i5]);
+			i6 = 2u * i6 + 1u + (size_t)(k6[fe[i6]] > th[i6]);
+			i7 = 2u * i7 + 1u + (size_t)(k7[fe[i7]] > th[i7]);
 			sum[lane + 0u] += lv[i0 - PUMPMODEL_PF_INNER];
 			sum[lane + 1u] += lv[i1 - PUMPMODEL_PF_INNER];
 			sum[lane + 2u] += lv[i2 - PUMPMODEL_PF_INNER];
 			sum[lane + 3u] += lv[i3 - PUMPMODEL_PF_INNER];
+			sum[lane + 4u] += lv[i4 - PUMPMODEL_PF_INNER];
+			sum[lane + 5u] += lv[i5 - PUMPMODEL_PF_INNER];
+			sum[lane + 6u] += lv[i6 - PUMPMODEL_PF_INNER];
+			sum[lane + 7u] += lv[i7 - PUMPMODEL_PF_INNER];
 		}
 	}
 	for (lane = 0; lane < count; lane++) {
