@@ -137,7 +137,12 @@ func findBoard(variant string) board {
 
 func (boardRunner) Name() string { return BoardRunnerName }
 
-func (boardRunner) Layouts() []string { return ctarget.Layouts() }
+// Layouts are every C layout but perfect, which is for batch scoring on
+// desktops and servers: a block of its keys takes up to 32 KiB of stack,
+// more than some boards' RAM.
+func (boardRunner) Layouts() []string {
+	return slices.DeleteFunc(ctarget.Layouts(), func(l string) bool { return l == ctarget.Perfect })
+}
 
 // Variants are the processors: m4, m4-float, m0, rv32, arm64.
 func (boardRunner) Variants() []string {

@@ -28,7 +28,7 @@
 #
 # Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
 #   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
-#   C_LAYOUTS=auto,table,block,block+avx2 (+avx2: built with -mavx2 too; the
+#   C_LAYOUTS=auto,table,block,block+avx2,perfect (+avx2: built with -mavx2 too; the
 #   default has block+avx2 only where /proc/cpuinfo lists avx2)
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
@@ -61,7 +61,7 @@ for round in $(seq "${ROUNDS:-1}"); do
 			--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs-$m.txt"
 		"$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs-$m.txt" -models "$m" -reps "$reps" \
 			-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
-			-c "${C_LAYOUTS:-auto,table,block$avx2}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
+			-c "${C_LAYOUTS:-auto,table,block$avx2,perfect}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
 			-xgboost-lib "$xgblib" -lightgbm-lib "$lgblib"
 	done
 done

@@ -226,7 +226,7 @@ func (g *gen) bvArray(w *printer, typ, suffix, what string, n int, val func(i in
 // bvElemBytes is the size of one element of typ.
 func bvElemBytes(typ string, acc int) int {
 	switch typ {
-	case "unsigned char":
+	case "unsigned char", "uint8_t":
 		return 1
 	case "uint16_t":
 		return 2

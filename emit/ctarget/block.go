@@ -274,6 +274,16 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	g.blockAdd(w, b)
 	w.out()
 	w.line("}")
+	g.batchFinish(w)
+	w.out()
+	w.line("}")
+	g.blockLoop(w, "block", "BLOCK")
+}
+
+// batchFinish writes the end of a block function: each of its count rows'
+// sums (sum, NAME_NUM_OUTPUTS apart) finished into outs.
+func (g *gen) batchFinish(w *printer) {
+	ft, no := g.ft, g.upper+"_NUM_OUTPUTS"
 	w.line("for (lane = 0; lane < count; lane++) {")
 	w.in()
 	w.line("%s acc[%s];", g.at, no)
@@ -284,24 +294,22 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	g.finishBody(w)
 	w.out()
 	w.line("}")
-	w.out()
-	w.line("}")
-	g.blockLoop(w)
 }
 
-// blockLoop writes NAME_predict_batch: whole blocks, then the rest as one
-// part block, or through NAME_predict when under a quarter block.
-func (g *gen) blockLoop(w *printer) {
+// blockLoop writes NAME_predict_batch: whole blocks of NAME_<rows> rows,
+// each through NAME_<fn>, then the rest as one part block, or through
+// NAME_predict when under a quarter block.
+func (g *gen) blockLoop(w *printer, fn, rows string) {
 	ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
 	w.line("")
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
 	w.line("{")
 	w.line("\tsize_t r;")
-	w.line("\tfor (r = 0; r + %s_BLOCK <= n; r += %s_BLOCK) {", g.upper, g.upper)
-	w.line("\t\t%s_block(x + r * %s, %s_BLOCK, outs + r * %s);", g.name, nf, g.upper, no)
+	w.line("\tfor (r = 0; r + %s_%s <= n; r += %s_%s) {", g.upper, rows, g.upper, rows)
+	w.line("\t\t%s_%s(x + r * %s, %s_%s, outs + r * %s);", g.name, fn, nf, g.upper, rows, no)
 	w.line("\t}")
-	w.line("\tif (n - r >= %s_BLOCK / 4u) { /* a part block, its idle lanes on row 0 */", g.upper)
-	w.line("\t\t%s_block(x + r * %s, n - r, outs + r * %s);", g.name, nf, no)
+	w.line("\tif (n - r >= %s_%s / 4u) { /* a part block, its idle lanes on row 0 */", g.upper, rows)
+	w.line("\t\t%s_%s(x + r * %s, n - r, outs + r * %s);", g.name, fn, nf, no)
 	w.line("\t\treturn;")
 	w.line("\t}")
 	w.line("\tfor (; r < n; r++) { /* under a quarter block: one by one, the same bits */")

@@ -57,6 +57,14 @@
 //     blockFits refuses the model (set splits, missing bands, zero as
 //     missing, more than one output) the table layout is written instead,
 //     the header saying why;
+//   - perfect: auto's NAME_predict (nested or table), and a
+//     NAME_predict_batch that pads every tree to a perfect tree of the forest's depth (node
+//     i's children 2i+1 and 2i+2, no links) and walks blocks of rows through
+//     exactly that many steps without branches on the data (see Perfect);
+//     asked for only, and where perfectFits refuses the model (what block
+//     refuses, and forests deeper than PerfectMaxDepth or padded to more
+//     than four times their nodes and 4,096) the table layout instead, the header
+//     saying why;
 //   - auto: nested up to AutoNestedNodes nodes and AutoNestedTreeNodes per
 //     tree, else binned where its tables are smaller than table's (thresholds
 //     that repeat, as with train --max-bins), else table.
@@ -209,6 +217,9 @@ func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 	case Block:
 		l, why := blockResolve(p, o)
 		return l, why, nil
+	case Perfect:
+		l, why := perfectResolve(p, o)
+		return l, why, nil
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
 		for i := range p.Trees {
@@ -247,6 +258,10 @@ func Emit(p *compile.Program, o Options) ([]emit.File, error) {
 		g.bitvector(&body)
 	case Block:
 		if err := g.block(&body); err != nil {
+			return nil, err
+		}
+	case Perfect:
+		if err := g.perfect(&body); err != nil {
 			return nil, err
 		}
 	default:
@@ -768,6 +783,9 @@ func (g *gen) header() []byte {
 	case Block:
 		w.line(" * Blocks of %d rows walk each tree in lock-step, without branches on the", BlockRows)
 		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
+	case Perfect:
+		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
+		w.line(" * tree, in a fixed number of steps without branches on the data. */")
 	default:
 		w.line(" * Row by row. */")
 	}
@@ -922,7 +940,7 @@ func (g *gen) source(body []byte) []byte {
 	if p.Transform != forest.NoTransform || bytes.Contains(body, []byte("HUGE_VAL")) {
 		w.line("#include <math.h>")
 	}
-	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || g.layout == Block || len(g.sets.sets) > 0 {
+	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || g.layout == Block || g.layout == Perfect || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
 	}
 	if g.layout == Block {

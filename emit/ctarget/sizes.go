@@ -34,15 +34,17 @@ func WorstSplits(p *compile.Program) int {
 func (s Size) BytesPerNode() float64 { return float64(s.TableBytes) / float64(s.Nodes) }
 
 // Layouts are the layouts Emit writes besides emit.Auto.
-func Layouts() []string { return []string{emit.Nested, emit.Table, emit.Binned, Bitvector, Block} }
+func Layouts() []string {
+	return []string{emit.Nested, emit.Table, emit.Binned, Bitvector, Block, Perfect}
+}
 
 // Sizes reports the static tables of every layout of p (o.Layout is
 // ignored); a model the binned layout refuses (set splits, too many cuts)
 // has no binned row, and one the bitvector layout cannot write (see
-// bitvectorFits) no bitvector row. With o.ConstantTime it reports the
-// one layout constant time writes, and with o.Pack the two layouts packing
-// changes (table and binned). It emits each layout, so it costs what Emit
-// costs.
+// bitvectorFits) no bitvector row, and likewise block and perfect. With
+// o.ConstantTime it reports the one layout constant time writes, and with
+// o.Pack the two layouts packing changes (table and binned). It emits each
+// layout, so it costs what Emit costs.
 func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	if o.ConstantTime {
 		return constantTimeSizes(p, o)
@@ -54,7 +56,7 @@ func Sizes(p *compile.Program, o Options) ([]Size, error) {
 	}
 	for _, l := range layouts {
 		s, err := sizeOf(p, o, l)
-		if err != nil && (l == emit.Binned || l == Bitvector || l == Block || o.IntLeaves != 0 && l == emit.Nested) {
+		if err != nil && (l == emit.Binned || l == Bitvector || l == Block || l == Perfect || o.IntLeaves != 0 && l == emit.Nested) {
 			continue
 		}
 		if err != nil {
@@ -101,6 +103,10 @@ func sizeOf(p *compile.Program, o Options, l string) (Size, error) {
 	case Block:
 		if err = g.block(&body); err == nil {
 			g.batch(&body) // the block walk's own tables
+		}
+	case Perfect:
+		if err = g.perfect(&body); err == nil {
+			g.batch(&body) // the perfect walk's own tables
 		}
 	}
 	if err != nil {

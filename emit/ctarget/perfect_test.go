@@ -1,0 +1,112 @@
+package ctarget
+
+import (
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/sawmill-dev/sawmill/compile"
+)
+
+// TestPerfectFallsBack: the perfect layout is written for shallow forests
+// of numeric splits, several outputs and float32 sums, and the table
+// layout, with the reason in the header, for set splits, missing-value
+// bands, per-output trees, forests of lone leaves, trees deeper than
+// PerfectMaxDepth and padding past perfectMaxGrowth.
+func TestPerfectFallsBack(t *testing.T) {
+	checkFallsBack(t, Perfect, []fallback{
+		{"edge-nan-routing", Perfect, "asked for"},
+		{"v2-accumulate32-sum", Perfect, "asked for"},
+		{"v2-multi-output-regression", Perfect, "asked for"},
+		{"v2-set-exact", "table", "a set split"},
+		{"v2-missing-value-0", "table", "a missing-value band"},
+		{"v2-zero-missing", "table", "zero counts as missing"},
+		{"v2-output-trees-softmax", "table", "adds to one output"},
+		{"edge-single-leaf", "table", "every tree is one leaf"},
+		{"v2-exp", "table", "trees of depth 22, deeper than 10"},
+		{"sklearn-wine", "table", "more than 4096 and than 4 times the forest's 654"},
+		{"trained-wine", Perfect, "asked for"}, // 12 trees of depth 6: 1,524 padded nodes, under perfectSmall
+	})
+}
+
+// perfectLeaf is a leaf of value v.
+func perfectLeaf(v float64) compile.Node {
+	return compile.Node{Feature: -1, Left: -1, Right: -1, Value: []float64{v}}
+}
+
+// TestPerfectPadding: a forest of depth 2 lays each tree out level by
+// level in 3 splits and 4 leaves; a leaf above depth 2 fills its padding
+// subtree's leaves with its value behind a split that sends every row left
+// (+inf, NaN left); NaN going right sets the feature word's low bit; "<"
+// becomes "<=" the value below where the forest mixes the two.
+func TestPerfectPadding(t *testing.T) {
+	// tree 1: node 0: x1 < 2 (NaN right) into 1 (a leaf) and 2: x3 <= 1 (NaN left) into leaves 3 and 4
+	tr := compile.Tree{Nodes: []compile.Node{
+		{Feature: 1, Threshold: 2, Op: compile.LT, Left: 1, Right: 2},
+		perfectLeaf(10),
+		{Feature: 3, Threshold: 1, Op: compile.LE, MissingLeft: true, Left: 3, Right: 4},
+		perfectLeaf(30), perfectLeaf(40),
+	}}
+	p := &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 4), Trees: []compile.Tree{{Nodes: []compile.Node{perfectLeaf(5)}}, tr}}
+	g := &gen{p: p, ft: "double", leaves: [][][]float64{{{5}}, {nil, {10}, nil, {30}, {40}}}}
+	pf := g.buildPerfect()
+	require.Equal(t, 2, pf.depth)
+	require.False(t, pf.ge)
+	require.Equal(t, "uint8_t", pf.featTyp)
+	require.Equal(t, "double", pf.keyType, "a float key above 1 can round to 1")
+	// tree 0: all padding; tree 1: root, the padded leaf 10 at 1, the split at 2
+	require.Equal(t, []uint32{0, 0, 0, 1<<1 | 1, 0, 3 << 1}, pf.feat)
+	inf := math.Inf(1)
+	require.Equal(t, []float64{inf, inf, inf, math.Nextafter(2, math.Inf(-1)), inf, 1}, pf.thr)
+	require.Equal(t, []float64{5, 5, 5, 5, 10, 10, 30, 40}, pf.leaf)
+}
+
+// TestPerfectKeepsLT: where every split is "<", the thresholds stay the
+// model's and a row goes right on x >= t; a double just below 0.5 rounds
+// to the float 0.5, so the keys stay double.
+func TestPerfectKeepsLT(t *testing.T) {
+	tr := compile.Tree{Nodes: []compile.Node{
+		{Feature: 0, Threshold: 0.5, Op: compile.LT, Left: 1, Right: 2},
+		perfectLeaf(1), perfectLeaf(2),
+	}}
+	p := &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 200), Trees: []compile.Tree{tr}}
+	g := &gen{p: p, ft: "double", leaves: [][][]float64{{nil, {1}, {2}}}}
+	pf := g.buildPerfect()
+	require.True(t, pf.ge)
+	require.Equal(t, "double", pf.keyType)
+	require.Equal(t, "uint16_t", pf.featTyp)
+	require.Equal(t, []float64{0.5}, pf.thr)
+	require.Equal(t, []uint32{1}, pf.feat)
+}
+
+// TestFloatExact: x > t decides as (float)x > (float)t exactly when t is
+// where rounding to float turns: the midpoint of two floats whose lower
+// one is even (round half to even; IEEE 754-2008, 4.3.1), as compile
+// writes a float32 model's cuts for double C; not at a float itself, nor
+// at the midpoint above an odd float, which rounds up; and x >= t at a
+// float, which the double below rounds to.
+func TestFloatExact(t *testing.T) {
+	lo := 0.5
+	hi := float64(math.Nextafter32(0.5, 1))
+	mid := (lo + hi) / 2
+	require.True(t, floatExact(mid, false))
+	require.False(t, floatExact(lo, false))
+	even := float64(math.Nextafter32(float32(hi), 1)) // hi is odd
+	require.False(t, floatExact((hi+even)/2, false), "the midpoint above an odd float rounds up")
+	require.True(t, floatExact(math.Nextafter((hi+even)/2, 0), false))
+	require.False(t, floatExact(lo, true))
+	require.True(t, floatExact(math.Nextafter(mid, 1), true))
+	require.True(t, floatExact(math.Inf(1), false))
+	for _, x := range []float64{mid, math.Nextafter(mid, 1), math.Nextafter(mid, 0), lo, hi} {
+		require.Equal(t, x > mid, float32(x) > float32(mid), "%v", x)
+	}
+}
+
+// TestPerfectRows: a block holds as many rows as perfectKeyBytes of keys
+// allow, in eights, from 8 to PerfectMaxRows.
+func TestPerfectRows(t *testing.T) {
+	require.Equal(t, 64, perfectRows(20, 4))  // 64 rows x 40 keys x 4 bytes = 10 KiB
+	require.Equal(t, 16, perfectRows(100, 8)) // 16 x 200 x 8 = 25,600 bytes
+	require.Equal(t, 8, perfectRows(PerfectMaxFeatures, 8))
+}
