@@ -34,7 +34,9 @@ func budgetRows(t *testing.T) map[string]verify.BudgetRow {
 	for _, l := range []string{"nested", "table", "binned", "bitvector", "table --pack", "binned --pack"} {
 		require.Contains(t, out, l, "every C layout is measured (the fixture's trees have at most 64 leaves, so bitvector too), table and binned packed too")
 	}
-	require.Len(t, out, len(ctarget.Layouts())+2)
+	sizes, err := ctarget.Sizes(mustProgram(t), ctarget.Options{})
+	require.NoError(t, err)
+	require.Len(t, out, len(sizes)+2, "every layout Sizes gives (perfect falls back on this fixture), and table and binned packed")
 	return out
 }
 
