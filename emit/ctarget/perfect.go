@@ -272,8 +272,9 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	})
 	g.bvArray(w, pf.keyType, "pf_thr", fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp()), len(pf.thr), func(i int) string {
 		t := pf.thr[i]
-		if math.IsInf(t, 1) {
-			return map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[pf.keyType]
+		if math.IsInf(t, 0) { // +inf in padding; -inf where the model splits off x <= -inf
+			sign := map[bool]string{true: "", false: "-"}[t > 0]
+			return sign + map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[pf.keyType]
 		}
 		if pf.keyType == "float" {
 			return floatLit(t)
