@@ -39,7 +39,7 @@ const ARMCompiler = "arm-none-eabi-gcc"
 
 var ARMFlags = []string{"-std=c99", "-Os", "-mcpu=cortex-m4", "-mthumb"}
 
-// M0SizeFlags are the options MeasureM0 compiles with: an ARMv6-M core
+// M0SizeFlags are the options MeasureBoth compiles the M0 object with: an ARMv6-M core
 // without FPU (the Cortex-M0+ has the same instruction set), so floating
 // point is libgcc's soft-float calls, which are not counted.
 var M0SizeFlags = []string{"-std=c99", "-Os", "-mcpu=cortex-m0", "-mthumb", "-mfloat-abi=soft"}
@@ -56,7 +56,7 @@ type CSize struct {
 	// ARM is the object compiled for a Cortex-M4 (MeasureARM); nil when not
 	// measured.
 	ARM *ObjectSize
-	// M0 is the object compiled for a Cortex-M0 (MeasureM0); nil when not
+	// M0 is the object compiled for a Cortex-M0 (MeasureBoth); nil when not
 	// measured. Its Stack is not measured (-1).
 	M0 *ObjectSize
 }
@@ -81,6 +81,17 @@ func CSizes(p *compile.Program, o ctarget.Options) ([]CSize, error) {
 // counted). It works in a temporary folder it removes. It returns ErrNoARM
 // when the compiler is absent.
 func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]CSize, error) {
+	return measureCores(ctx, p, o, m4Object(o))
+}
+
+// MeasureBoth is MeasureARM plus each layout's object for a Cortex-M0
+// (M0SizeFlags), from the same emitted NAME.c.
+func MeasureBoth(ctx context.Context, p *compile.Program, o ctarget.Options) ([]CSize, error) {
+	return measureCores(ctx, p, o, m4Object(o), m0Object)
+}
+
+// measureCores is CSizes with each layout's objects as builds make them.
+func measureCores(ctx context.Context, p *compile.Program, o ctarget.Options, builds ...objectBuild) ([]CSize, error) {
 	if _, err := exec.LookPath(ARMCompiler); err != nil {
 		return nil, ErrNoARM
 	}
@@ -88,38 +99,38 @@ func MeasureARM(ctx context.Context, p *compile.Program, o ctarget.Options) ([]C
 	if err != nil {
 		return nil, err
 	}
-	if err := measureM4(ctx, p, o, sizes); err != nil {
+	if err := eachLayoutObject(ctx, p, o, sizes, builds); err != nil {
 		return nil, err
 	}
 	return sizes, nil
 }
 
-// measureM4 sets the ARM object of each of sizes, with predict's stack.
-func measureM4(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize) error {
-	return eachLayoutObject(ctx, p, o, sizes, ARMFlags, func(s *CSize, obj *ObjectSize, su string) {
-		obj.Stack = stackUsage(su, ctargetName(o)+"_predict")
+// objectBuild is one compilation of NAME.c: the options, and where its
+// object's sizes go (set gets the path of gcc's stack usage file too).
+type objectBuild struct {
+	flags []string
+	set   func(s *CSize, obj *ObjectSize, stackFile string)
+}
+
+// m4Object is the Cortex-M4 build, with predict's stack.
+func m4Object(o ctarget.Options) objectBuild {
+	return objectBuild{ARMFlags, func(s *CSize, obj *ObjectSize, su string) {
+		obj.Stack = stackUsage(su, o.Prefix()+"_predict")
 		s.ARM = obj
-	})
+	}}
 }
 
-// MeasureM0 sets the M0 object of each of sizes (from CSizes or
-// MeasureARM): NAME.c of that layout compiled with arm-none-eabi-gcc and
-// M0SizeFlags, not linked. It returns ErrNoARM when the compiler is absent.
-func MeasureM0(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize) error {
-	if _, err := exec.LookPath(ARMCompiler); err != nil {
-		return ErrNoARM
-	}
-	return eachLayoutObject(ctx, p, o, sizes, M0SizeFlags, func(s *CSize, obj *ObjectSize, _ string) {
-		obj.Stack = -1
-		s.M0 = obj
-	})
-}
+// m0Object is the Cortex-M0 build; its stack is not measured.
+var m0Object = objectBuild{M0SizeFlags, func(s *CSize, obj *ObjectSize, _ string) {
+	obj.Stack = -1
+	s.M0 = obj
+}}
 
-// eachLayoutObject emits each of sizes' layouts in a temporary folder it
-// removes, compiles NAME.c with arm-none-eabi-gcc, flags and
-// -fstack-usage, and hands the object's sizes and the path of its stack
-// usage file to set.
-func eachLayoutObject(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize, flags []string, set func(*CSize, *ObjectSize, string)) error {
+// eachLayoutObject emits each of sizes' layouts once, in a temporary
+// folder it removes, and compiles NAME.c with arm-none-eabi-gcc,
+// -fstack-usage and each build's flags, handing the object's sizes to the
+// build.
+func eachLayoutObject(ctx context.Context, p *compile.Program, o ctarget.Options, sizes []CSize, builds []objectBuild) error {
 	dir, err := os.MkdirTemp("", "sawmill-arm")
 	if err != nil {
 		return err
@@ -132,22 +143,34 @@ func eachLayoutObject(ctx context.Context, p *compile.Program, o ctarget.Options
 		if err != nil {
 			return err
 		}
-		args := append(append([]string{}, flags...), stackFlag, "-c", "-o", "model.o", src)
-		cmd := exec.CommandContext(ctx, ARMCompiler, args...)
-		cmd.Dir = sub
-		var stderr bytes.Buffer
-		cmd.Stderr = &stderr
-		if err := cmd.Run(); err != nil {
-			return fmt.Errorf("%s %s: %v\n%s", ARMCompiler, strings.Join(args, " "), err, stderr.Bytes())
+		for _, b := range builds {
+			obj, err := compileObject(ctx, sub, src, b.flags)
+			if err != nil {
+				return err
+			}
+			b.set(&sizes[i], obj, filepath.Join(sub, "model.su"))
 		}
-		obj, err := ObjectSizes(filepath.Join(sub, "model.o"))
-		if err != nil {
-			return err
-		}
-		obj.Flags = strings.Join(flags, " ")
-		set(&sizes[i], obj, filepath.Join(sub, "model.su"))
 	}
 	return nil
+}
+
+// compileObject compiles src in dir to model.o (and model.su) with flags
+// and returns the object's sizes.
+func compileObject(ctx context.Context, dir, src string, flags []string) (*ObjectSize, error) {
+	args := append(append([]string{}, flags...), stackFlag, "-c", "-o", "model.o", src)
+	cmd := exec.CommandContext(ctx, ARMCompiler, args...)
+	cmd.Dir = dir
+	var stderr bytes.Buffer
+	cmd.Stderr = &stderr
+	if err := cmd.Run(); err != nil {
+		return nil, fmt.Errorf("%s %s: %v\n%s", ARMCompiler, strings.Join(args, " "), err, stderr.Bytes())
+	}
+	obj, err := ObjectSizes(filepath.Join(dir, "model.o"))
+	if err != nil {
+		return nil, err
+	}
+	obj.Flags = strings.Join(flags, " ")
+	return obj, nil
 }
 
 // writeLayout emits o's layout of p into the new folder dir and returns
@@ -197,13 +220,6 @@ func ObjectSizes(path string) (*ObjectSize, error) {
 	return &s, nil
 }
 
-func ctargetName(o ctarget.Options) string {
-	if o.Name == "" {
-		return "model"
-	}
-	return o.Name
-}
-
 // stackUsage reads gcc's -fstack-usage file ("file:line:col:function
 // bytes qualifier" per line) and returns predict's frame plus the largest
 // other one, -1 when predict is missing or a frame is dynamic.
@@ -234,9 +250,9 @@ func stackUsage(path, predict string) int {
 	return own + other
 }
 
-// MeasureLayout is MeasureARM and MeasureM0 for the one layout o asks for
-// (o.Layout resolved, not auto): its tables, its Cortex-M4 object with
-// the stack, and its Cortex-M0 object.
+// MeasureLayout is MeasureBoth for the one layout o asks for (o.Layout
+// resolved, not auto): its tables, its Cortex-M4 object with the stack,
+// and its Cortex-M0 object.
 func MeasureLayout(ctx context.Context, p *compile.Program, o ctarget.Options) (*CSize, error) {
 	if _, err := exec.LookPath(ARMCompiler); err != nil {
 		return nil, ErrNoARM
@@ -246,10 +262,7 @@ func MeasureLayout(ctx context.Context, p *compile.Program, o ctarget.Options) (
 		return nil, err
 	}
 	sizes := []CSize{{Size: s}}
-	if err := measureM4(ctx, p, o, sizes); err != nil {
-		return nil, err
-	}
-	if err := MeasureM0(ctx, p, o, sizes); err != nil {
+	if err := eachLayoutObject(ctx, p, o, sizes, []objectBuild{m4Object(o), m0Object}); err != nil {
 		return nil, err
 	}
 	return &sizes[0], nil

@@ -36,20 +36,19 @@ func TestMeasureARM(t *testing.T) {
 	}
 }
 
-// MeasureM0 compiles every layout for the Cortex-M0 as well. Its code is
+// MeasureBoth compiles every layout for the Cortex-M0 as well. Its code is
 // ARMv6-M Thumb, a subset of the M4's Thumb-2, so at least one layout's
 // .text differs from the M4 object's.
-func TestMeasureM0(t *testing.T) {
+func TestMeasureBoth(t *testing.T) {
 	f, err := forest.ReadFile(filepath.Join(goldenCases, "trained-wine", "model.json"))
 	require.NoError(t, err)
 	p, _, err := compile.Compile(f, compile.Options{})
 	require.NoError(t, err)
-	sizes, err := MeasureARM(context.Background(), p, ctarget.Options{})
+	sizes, err := MeasureBoth(context.Background(), p, ctarget.Options{})
 	if errors.Is(err, ErrNoARM) {
 		testenv.Need(t, err)
 	}
 	require.NoError(t, err)
-	require.NoError(t, MeasureM0(context.Background(), p, ctarget.Options{}, sizes))
 	differ := 0
 	for _, s := range sizes {
 		require.NotNil(t, s.M0, s.Layout)

@@ -127,13 +127,39 @@ func cutsOf(ts []float64, kind string) []float64 {
 
 func TestCBinnedNeighbours(t *testing.T) {
 	testenv.Need(t, cTools(testConfig.AllCompilers))
+	for _, c := range neighbourForests(t, 1, 2) {
+		t.Run(fmt.Sprintf("seed%d-%s", c.seed, c.name), func(t *testing.T) {
+			t.Parallel()
+			requireRound(t, c.f, c.round)
+			checkBinned(t, c.f, c.rows)
+		})
+	}
+}
+
+// neighbourForest is one forest of the neighbour-walking tests: its
+// thresholds of one kind (binnedCuts), the rows around each, and the
+// rounding the binned layout's double build must choose.
+type neighbourForest struct {
+	name  string // precision, format 2 or not, kind of cut
+	seed  uint64
+	f     *forest.Forest
+	rows  *forest.Rows
+	round string
+}
+
+// neighbourForests are the forests the neighbour-walking tests score, per
+// seed: float64 and float32 models, format 1 and format 2 (with a missing
+// value sentinel), and each kind of cut (a float32 model's double build
+// has no below-float cuts: it rounds to nearest, or keeps 64 bits).
+func neighbourForests(t *testing.T, seeds ...uint64) []neighbourForest {
 	mv := -999.0
-	for seed := uint64(1); seed <= 2; seed++ {
+	var out []neighbourForest
+	for _, seed := range seeds {
 		for _, prec := range []forest.Precision{forest.Float64, forest.Float32} {
 			for _, v2 := range []bool{false, true} {
 				for _, kind := range binnedCuts {
 					if prec == forest.Float32 && kind.name == "below-float" {
-						continue // a float32 model's double build rounds to nearest, or keeps 64 bits
+						continue
 					}
 					rng := rand.New(rand.NewPCG(seed, 14))
 					ts := cutsOf(binnedThresholds(rng), kind.name)
@@ -142,20 +168,17 @@ func TestCBinnedNeighbours(t *testing.T) {
 						missing = &mv
 					}
 					f := binnedForest(t, rng, ts, prec, v2, missing)
-					rows := binnedRows(f, ts)
 					round := kind.round
 					if prec == forest.Float32 {
 						round = "nearest" // when the float32 pass made midpoints
 					}
-					t.Run(fmt.Sprintf("seed%d-%s-v2=%v-%s", seed, prec, v2, kind.name), func(t *testing.T) {
-						t.Parallel()
-						requireRound(t, f, round)
-						checkBinned(t, f, rows)
-					})
+					out = append(out, neighbourForest{name: fmt.Sprintf("%s-v2=%v-%s", prec, v2, kind.name), seed: seed,
+						f: f, rows: binnedRows(f, ts), round: round})
 				}
 			}
 		}
 	}
+	return out
 }
 
 // requireRound checks that f's double build of the binned layout rounds

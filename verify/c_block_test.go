@@ -14,6 +14,7 @@ import (
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // blockCases are golden cases the block layout writes (none falls back):
@@ -29,24 +30,29 @@ var blockCases = []string{"edge-nan-routing", "sklearn-breast-cancer", "v2-accum
 // float, NAME_predict_batch being checked against NAME_predict by the
 // driver. Cost: 7 cases x 2 variants x 3 builds, about 20 s of gcc/clang.
 func TestCBlockLanes(t *testing.T) {
-	if err := cTools(true); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	testenv.Need(t, cTools(true))
 	if err := hasAVX2(); err != nil {
 		if requireEngines && runtime.GOARCH == "amd64" {
 			t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
 		}
 		t.Skipf("only the scalar path can run here: %v", err)
 	}
+	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", "O2 -mavx2", false}, {"clang", "c11", "O1 -mavx2", false}}
+	checkLayoutBuilds(t, ctarget.Block, blockCases, matrix)
+}
+
+// checkLayoutBuilds scores the named golden cases in layout, which each
+// must be written in (none falls back), double and float, with every
+// build of matrix, and requires the interpreter's outputs.
+func checkLayoutBuilds(t *testing.T, layout string, names []string, matrix []cBuild) {
 	cases, err := goldencase.Cases(filepath.Join("..", "golden", "testdata"))
 	require.NoError(t, err)
 	byName := map[string]*goldencase.Case{}
 	for _, c := range cases {
 		byName[c.Name] = c
 	}
-	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", "O2 -mavx2", false}, {"clang", "c11", "O1 -mavx2", false}}
 	r := testCRunner()
-	for _, name := range blockCases {
+	for _, name := range names {
 		c := byName[name]
 		require.NotNil(t, c, name)
 		for _, variant := range r.Variants() {
@@ -57,10 +63,11 @@ func TestCBlockLanes(t *testing.T) {
 				if variant == "float" && ctarget.FitsFloat(p) != nil {
 					t.Skip("float C declines this model (its error bound); the double run covers it")
 				}
-				layout, why, err := ctarget.Resolve(p, r.options(ctarget.Block, variant))
+				o := r.options(layout, variant)
+				got, why, err := ctarget.Resolve(p, o)
 				require.NoError(t, err)
-				require.Equal(t, ctarget.Block, layout, why)
-				res, err := r.score(context.Background(), p, r.options(ctarget.Block, variant), c.Rows, t.TempDir(), matrix, false)
+				require.Equal(t, layout, got, why)
+				res, err := r.score(context.Background(), p, o, c.Rows, t.TempDir(), matrix, false)
 				require.NoError(t, err)
 				want, wantCls := c.ReferenceFor(r, variant)
 				exact, bound := r.Tolerance(variant, p)

@@ -3,8 +3,6 @@ package verify
 import (
 	"context"
 	"errors"
-	"fmt"
-	"math/rand/v2"
 	"slices"
 	"testing"
 
@@ -48,9 +46,7 @@ func checkConstantTime(t *testing.T, p *compile.Program, variant string, rows *f
 }
 
 func TestCConstantTimeGolden(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	requireC(t)
 	cases, err := goldencase.Cases(goldenCases)
 	require.NoError(t, err)
 	r, ran := ctRunner(), 0
@@ -77,35 +73,17 @@ func TestCConstantTimeGolden(t *testing.T) {
 }
 
 func TestCConstantTimeNeighbours(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
-	mv := -999.0
-	for _, prec := range []forest.Precision{forest.Float64, forest.Float32} {
-		for _, v2 := range []bool{false, true} {
-			for _, kind := range binnedCuts {
-				if prec == forest.Float32 && kind.name == "below-float" {
-					continue
-				}
-				rng := rand.New(rand.NewPCG(3, 14))
-				ts := cutsOf(binnedThresholds(rng), kind.name)
-				var missing *float64
-				if v2 {
-					missing = &mv
-				}
-				f := binnedForest(t, rng, ts, prec, v2, missing)
-				rows := binnedRows(f, ts)
-				t.Run(fmt.Sprintf("%s-v2=%v-%s", prec, v2, kind.name), func(t *testing.T) {
-					t.Parallel()
-					for _, variant := range ctRunner().Variants() {
-						p, _, err := compile.Compile(f, ctRunner().CompileOptions(variant))
-						require.NoError(t, err)
-						want, wantCls := cReference(f, rows, variant == "float")
-						checkConstantTime(t, p, variant, rows, want, wantCls)
-					}
-				})
+	requireC(t)
+	for _, c := range neighbourForests(t, 3) {
+		t.Run(c.name, func(t *testing.T) {
+			t.Parallel()
+			for _, variant := range ctRunner().Variants() {
+				p, _, err := compile.Compile(c.f, ctRunner().CompileOptions(variant))
+				require.NoError(t, err)
+				want, wantCls := cReference(c.f, c.rows, variant == "float")
+				checkConstantTime(t, p, variant, c.rows, want, wantCls)
 			}
-		}
+		})
 	}
 }
 

@@ -46,9 +46,7 @@ func countForests(t *testing.T) map[string]*forest.Forest {
 // and float builds, and the double build the interpreter's bit for bit.
 // The emitted C must be the counting kind, so the comparison tests it.
 func TestCCountLeavesExact(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	requireC(t)
 	r := testCRunner()
 	for name, f := range countForests(t) {
 		rows := leafCountRows(t, f)
@@ -66,12 +64,7 @@ func TestCCountLeavesExact(t *testing.T) {
 					require.NotContains(t, cSource(t, p, o), "as class counts")
 					stored, err := r.score(context.Background(), p, o, rows, t.TempDir(), cBuilds(cQuickMatrix), false)
 					require.NoError(t, err)
-					require.Equal(t, len(stored.Outputs), len(counted.Outputs))
-					for i := range stored.Outputs {
-						if math.Float64bits(stored.Outputs[i]) != math.Float64bits(counted.Outputs[i]) {
-							t.Fatalf("output %d (row %d): counts give %v, stored values %v", i, i/f.NumOutputs(), counted.Outputs[i], stored.Outputs[i])
-						}
-					}
+					requireSameBits(t, f, "counts give", counted, stored)
 					if variant != "float" {
 						want, wantCls := cReference(f, rows, false)
 						m := Compare(want, counted.Outputs, wantCls, counted.Classes, f.NumOutputs(), true, 0)
@@ -107,4 +100,17 @@ func cSource(t *testing.T, p *compile.Program, o ctarget.Options) string {
 	}
 	t.Fatal("no C file")
 	return ""
+}
+
+// requireSameBits requires got's outputs to be stored's bit for bit, got
+// being what how names ("counts give", "packed") and stored the build with
+// the leaf values stored.
+func requireSameBits(t *testing.T, f *forest.Forest, how string, got, stored *Result) {
+	t.Helper()
+	require.Equal(t, len(stored.Outputs), len(got.Outputs))
+	for i := range stored.Outputs {
+		if math.Float64bits(stored.Outputs[i]) != math.Float64bits(got.Outputs[i]) {
+			t.Fatalf("output %d (row %d): %s %v, stored values %v", i, i/f.NumOutputs(), how, got.Outputs[i], stored.Outputs[i])
+		}
+	}
 }

@@ -4,9 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
-	"fmt"
 	"math"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"slices"
@@ -57,9 +55,7 @@ func checkPacked(t *testing.T, p *compile.Program, layout, variant string, rows 
 // something (about a quarter of the builds; the others are the ordinary
 // golden run's C): about 30 seconds.
 func TestCPackedGolden(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	requireC(t)
 	cases, err := goldencase.Cases(goldenCases)
 	require.NoError(t, err)
 	r := packRunner()
@@ -124,46 +120,26 @@ func hasSetSplit(p *compile.Program) bool {
 }
 
 func TestCPackedNeighbours(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
-	mv := -999.0
-	for _, prec := range []forest.Precision{forest.Float64, forest.Float32} {
-		for _, v2 := range []bool{false, true} {
-			for _, kind := range binnedCuts {
-				if prec == forest.Float32 && kind.name == "below-float" {
-					continue
+	requireC(t)
+	for _, c := range neighbourForests(t, 3) {
+		t.Run(c.name, func(t *testing.T) {
+			t.Parallel()
+			for _, variant := range packRunner().Variants() {
+				p, _, err := compile.Compile(c.f, packRunner().CompileOptions(variant))
+				require.NoError(t, err)
+				want, wantCls := cReference(c.f, c.rows, variant == "float")
+				for _, layout := range []string{emit.Table, emit.Binned} {
+					require.True(t, checkPacked(t, p, layout, variant, c.rows, want, wantCls), "%s %s: no packed array", layout, variant)
 				}
-				rng := rand.New(rand.NewPCG(3, 14))
-				ts := cutsOf(binnedThresholds(rng), kind.name)
-				var missing *float64
-				if v2 {
-					missing = &mv
-				}
-				f := binnedForest(t, rng, ts, prec, v2, missing)
-				rows := binnedRows(f, ts)
-				t.Run(fmt.Sprintf("%s-v2=%v-%s", prec, v2, kind.name), func(t *testing.T) {
-					t.Parallel()
-					for _, variant := range packRunner().Variants() {
-						p, _, err := compile.Compile(f, packRunner().CompileOptions(variant))
-						require.NoError(t, err)
-						want, wantCls := cReference(f, rows, variant == "float")
-						for _, layout := range []string{emit.Table, emit.Binned} {
-							require.True(t, checkPacked(t, p, layout, variant, rows, want, wantCls), "%s %s: no packed array", layout, variant)
-						}
-					}
-				})
 			}
-		}
+		})
 	}
 }
 
 // Class counts packed in two tiers give the bits of the leaf values
 // stored whole, in double and float builds of the count forests.
 func TestCPackedCounts(t *testing.T) {
-	if err := cTools(testConfig.AllCompilers); err != nil {
-		t.Skipf("C compilers: %v", err)
-	}
+	requireC(t)
 	r := packRunner()
 	for name, f := range countForests(t) {
 		rows := leafCountRows(t, f)
@@ -178,12 +154,7 @@ func TestCPackedCounts(t *testing.T) {
 					o.Pack, o.LeafValues = false, true
 					stored, err := r.score(context.Background(), p, o, rows, t.TempDir(), cBuilds(cQuickMatrix), false)
 					require.NoError(t, err)
-					require.Equal(t, len(stored.Outputs), len(packed.Outputs))
-					for i := range stored.Outputs {
-						if math.Float64bits(stored.Outputs[i]) != math.Float64bits(packed.Outputs[i]) {
-							t.Fatalf("output %d (row %d): packed %v, stored values %v", i, i/f.NumOutputs(), packed.Outputs[i], stored.Outputs[i])
-						}
-					}
+					requireSameBits(t, f, "packed", packed, stored)
 				})
 			}
 		}

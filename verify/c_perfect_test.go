@@ -1,15 +1,10 @@
 package verify
 
 import (
-	"context"
-	"path/filepath"
 	"testing"
 
-	"github.com/stretchr/testify/require"
-
-	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
-	"github.com/sawmill-dev/sawmill/internal/goldencase"
+	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
 
 // perfectCases are golden cases the perfect layout writes (none falls
@@ -28,42 +23,7 @@ var perfectCases = []string{"edge-nan-routing", "v2-accumulate32-sum", "edge-sof
 // rows one by one) against NAME_predict. Cost: 6 cases x 2 variants x 3
 // builds, about 90 s of gcc/clang on 2 shared cores.
 func TestCPerfectBuilds(t *testing.T) {
-	if err := cTools(true); err != nil {
-		if requireEngines {
-			t.Fatalf("C compilers: %v, and SAWMILL_REQUIRE_ENGINES is set", err)
-		}
-		t.Skipf("C compilers: %v", err)
-	}
-	cases, err := goldencase.Cases(filepath.Join("..", "golden", "testdata"))
-	require.NoError(t, err)
-	byName := map[string]*goldencase.Case{}
-	for _, c := range cases {
-		byName[c.Name] = c
-	}
+	testenv.Need(t, cTools(true))
 	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c11", "O3", false}, {"clang", "c11", "O2", true}}
-	r := testCRunner()
-	for _, name := range perfectCases {
-		c := byName[name]
-		require.NotNil(t, c, name)
-		for _, variant := range r.Variants() {
-			t.Run(name+"/"+variant, func(t *testing.T) {
-				t.Parallel()
-				p, _, err := compile.Compile(c.Model, r.CompileOptions(variant))
-				require.NoError(t, err)
-				if variant == "float" && ctarget.FitsFloat(p) != nil {
-					t.Skip("float C declines this model (its error bound); the double run covers it")
-				}
-				o := r.options(ctarget.Perfect, variant)
-				layout, why, err := ctarget.Resolve(p, o)
-				require.NoError(t, err)
-				require.Equal(t, ctarget.Perfect, layout, why)
-				res, err := r.score(context.Background(), p, o, c.Rows, t.TempDir(), matrix, false)
-				require.NoError(t, err)
-				want, wantCls := c.ReferenceFor(r, variant)
-				exact, bound := r.Tolerance(variant, p)
-				m := Compare(want, res.Outputs, wantCls, res.Classes, c.Model.NumOutputs(), exact, bound)
-				require.True(t, m.OK(), "%s", m)
-			})
-		}
-	}
+	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
 }

@@ -37,7 +37,7 @@ func FloatCalls(ctx context.Context, p *compile.Program, o ctarget.Options) (map
 	if _, err := writeC(p, o, dir); err != nil {
 		return nil, err
 	}
-	name := ctargetName(o)
+	name := o.Prefix()
 	args := append(slices.Clone(M0Flags), "-c", "-o", "model.o", name+".c")
 	if err := cCommand(ctx, dir, nil, nil, ARMCompiler, args...); err != nil {
 		return nil, err

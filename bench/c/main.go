@@ -239,10 +239,7 @@ func printSizes(modelPath string, intLeaves int, pack bool) error {
 		if err != nil {
 			return err
 		}
-		sizes, err := verify.MeasureARM(context.Background(), p, o)
-		if err == nil {
-			err = verify.MeasureM0(context.Background(), p, o, sizes)
-		}
+		sizes, err := verify.MeasureBoth(context.Background(), p, o)
 		if errors.Is(err, verify.ErrNoARM) {
 			fmt.Println("arm-none-eabi-gcc is not on PATH: tables only")
 			sizes, err = verify.CSizes(p, o)

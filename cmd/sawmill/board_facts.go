@@ -37,10 +37,10 @@ func boardFacts(ctx context.Context, p *compile.Program, o ctarget.Options, fl *
 		stack = fmt.Sprintf("%d B", s.ARM.Stack)
 	}
 	facts := []string{
-		fmt.Sprintf("Measured by sawmill compile --board-facts, %s layout, %s.c alone (the C", layout, cName(o)),
+		fmt.Sprintf("Measured by sawmill compile --board-facts, %s layout, %s.c alone (the C", layout, o.Prefix()),
 		"library and libgcc's float routines not counted):",
 		fmt.Sprintf("  Cortex-M4 (%s %s): flash %d B (.text %d, .rodata %d),", verify.ARMCompiler, s.ARM.Flags, s.ARM.Flash(), s.ARM.Text, s.ARM.Rodata),
-		fmt.Sprintf("  RAM %d B static, stack %s for %s_predict and the deepest function it calls;", s.ARM.Data, stack, cName(o)),
+		fmt.Sprintf("  RAM %d B static, stack %s for %s_predict and the deepest function it calls;", s.ARM.Data, stack, o.Prefix()),
 		fmt.Sprintf("  Cortex-M0 (%s %s): flash %d B (.text %d, .rodata %d).", verify.ARMCompiler, s.M0.Flags, s.M0.Flash(), s.M0.Text, s.M0.Rodata),
 	}
 	counts, err := boardCounts(ctx, p, o, fl)
@@ -48,14 +48,6 @@ func boardFacts(ctx context.Context, p *compile.Program, o ctarget.Options, fl *
 		return nil, err
 	}
 	return append(facts, counts...), nil
-}
-
-// cName is the prefix of the emitted C's symbols.
-func cName(o ctarget.Options) string {
-	if o.Name == "" {
-		return "model"
-	}
-	return o.Name
 }
 
 // boardCounts are the facts' lines on instructions per prediction: on the

@@ -42,7 +42,7 @@ func printCSizes(ctx context.Context, w io.Writer, path string, f *forest.Forest
 		if err != nil {
 			return fmt.Errorf("%s: %v", path, err)
 		}
-		sizes, err := measureBoth(ctx, p, o)
+		sizes, err := verify.MeasureBoth(ctx, p, o)
 		if errors.Is(err, verify.ErrNoARM) {
 			notes = appendOnce(notes, fmt.Sprintf("(%s is not on PATH: no Cortex-M4 or M0 sizes)", verify.ARMCompiler))
 			sizes, err = verify.CSizes(p, o)
@@ -97,7 +97,7 @@ const ctLayout = "binned-ct"
 // model (set splits), which leaves the row out.
 func constantTimeSize(ctx context.Context, p *compile.Program, o ctarget.Options) ([]verify.CSize, error) {
 	o.ConstantTime = true
-	sizes, err := measureBoth(ctx, p, o)
+	sizes, err := verify.MeasureBoth(ctx, p, o)
 	if errors.Is(err, verify.ErrNoARM) {
 		sizes, err = verify.CSizes(p, o)
 	}
@@ -105,16 +105,6 @@ func constantTimeSize(ctx context.Context, p *compile.Program, o ctarget.Options
 		sizes[i].Layout = ctLayout
 	}
 	return sizes, err
-}
-
-// measureBoth is verify.MeasureARM and verify.MeasureM0: each layout's
-// object for a Cortex-M4 and for a Cortex-M0.
-func measureBoth(ctx context.Context, p *compile.Program, o ctarget.Options) ([]verify.CSize, error) {
-	sizes, err := verify.MeasureARM(ctx, p, o)
-	if err != nil {
-		return nil, err
-	}
-	return sizes, verify.MeasureM0(ctx, p, o, sizes)
 }
 
 // printSizeRow prints one layout's row: its tables, the splits, the

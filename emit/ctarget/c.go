@@ -157,6 +157,15 @@ type Options struct {
 	Pack bool
 }
 
+// Prefix is the prefix of the files and symbols: Name, or "model" when
+// Name is empty.
+func (o Options) Prefix() string {
+	if o.Name == "" {
+		return "model"
+	}
+	return o.Name
+}
+
 // AutoNestedNodes is the largest forest, in nodes, that auto emits nested.
 // gcc -O2 needs about 0.2 ms per node of nested code in one translation unit
 // (limits.md, section 4a), so 50,000 nodes build in about 10 s; past that the
@@ -338,10 +347,7 @@ func newGen(p *compile.Program, o Options) (*gen, error) {
 	if err := emit.CheckProgram(Target(), p, o.Float); err != nil {
 		return nil, err
 	}
-	name := o.Name
-	if name == "" {
-		name = "model"
-	}
+	name := o.Prefix()
 	if o.ConstantTime {
 		// the packed count tiers choose a width per row; constant time
 		// keeps every array as its fixed-time walk was measured with

@@ -40,13 +40,7 @@ func BenchmarkLayouts(b *testing.B) {
 	if _, err := exec.LookPath("go"); err != nil {
 		b.Skip("no go command on PATH: the benchmark builds the emitted code")
 	}
-	x, y := synth.Table(20000, 1)
-	yf := make([]float64, len(y))
-	for i, v := range y {
-		yf[i] = float64(v)
-	}
-	data := &train.Data{Features: synth.Names(), X: x, Task: forest.Classification, Classes: []string{"a", "b"}, Y: yf, Label: "label"}
-	rows, _ := synth.Table(20000, 2)
+	data, rows := benchTable()
 	series := []struct {
 		name     string
 		maxDepth int
@@ -377,4 +371,17 @@ func forestJSON(f *forest.Forest) ([]byte, error) {
 	var b bytes.Buffer
 	err := f.Encode(&b)
 	return b.Bytes(), err
+}
+
+// benchTable is the benchmarks' training data, 20,000 rows of the invented
+// table of bench/train/synth with two classes, and 20,000 fresh rows of
+// the same table to score.
+func benchTable() (*train.Data, []float64) {
+	x, y := synth.Table(20000, 1)
+	yf := make([]float64, len(y))
+	for i, v := range y {
+		yf[i] = float64(v)
+	}
+	rows, _ := synth.Table(20000, 2)
+	return &train.Data{Features: synth.Names(), X: x, Task: forest.Classification, Classes: []string{"a", "b"}, Y: yf, Label: "label"}, rows
 }

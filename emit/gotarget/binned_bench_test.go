@@ -7,7 +7,6 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/sawmill-dev/sawmill/bench/train/synth"
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/forest"
 	"github.com/sawmill-dev/sawmill/forest/train"
@@ -28,13 +27,7 @@ import (
 //
 //	go test ./emit/gotarget -run '^$' -bench BinnedWalk -benchtime 1x
 func BenchmarkBinnedWalk(b *testing.B) {
-	x, y := synth.Table(20000, 1)
-	yf := make([]float64, len(y))
-	for i, v := range y {
-		yf[i] = float64(v)
-	}
-	data := &train.Data{Features: synth.Names(), X: x, Task: forest.Classification, Classes: []string{"a", "b"}, Y: yf, Label: "label"}
-	rows, _ := synth.Table(20000, 2)
+	data, rows := benchTable()
 	for _, bins := range []int{255, 0} {
 		for _, s := range []struct{ trees, depth int }{{125, 8}, {12, 0}} {
 			res, err := train.Train(data, train.Settings{Trees: s.trees, Seed: 1, SkipImportance: true, MaxDepth: s.depth, MaxBins: bins})
@@ -139,32 +132,19 @@ func (w *binWalk[B]) bins(xx []float64, out []B) {
 }
 
 func (w *floatWalk) leaves(xx []float64, t []uint32, l *[walkLanes]int) {
-	feat, far, thr := w.feat, w.far, w.thr
-	leaf := uint32(w.d.width)
-	for k := range l {
-		l[k] = int(t[min(k, len(t)-1)])
-	}
-	for {
-		more := false
-		for k, i := range l {
-			if feat[i] == leaf {
-				continue
-			}
-			more = true
-			fail := 1
-			if xx[feat[i]] <= thr[i] {
-				fail = 0
-			}
-			l[k] = i + 1 + (int(far[i])-1)&-fail
-		}
-		if !more {
-			return
-		}
-	}
+	laneLeaves(xx, w.feat, w.far, w.thr, t, l, uint32(w.d.width))
 }
 
 func (w *binWalk[B]) leaves(xb []B, t []uint32, l *[walkLanes]int, leaf uint32) {
-	feat, far, bin := w.feat, w.far, w.bin
+	laneLeaves(xb, w.feat, w.far, w.bin, t, l, leaf)
+}
+
+// laneLeaves walks the trees whose roots are t (the last repeated in the
+// unused lanes) in lockstep to their leaves, left into l: a split i goes
+// to i+1 when x[feat[i]] <= key[i], else to i+far[i]; feat[i] ==
+// leaf marks a leaf. Instantiated once for float64 keys and once per bin
+// width, so both walks are the same code.
+func laneLeaves[K float64 | uint8 | uint16](x []K, feat, far []uint32, key []K, t []uint32, l *[walkLanes]int, leaf uint32) {
 	for k := range l {
 		l[k] = int(t[min(k, len(t)-1)])
 	}
@@ -176,7 +156,7 @@ func (w *binWalk[B]) leaves(xb []B, t []uint32, l *[walkLanes]int, leaf uint32) 
 			}
 			more = true
 			fail := 1
-			if xb[feat[i]] <= bin[i] {
+			if x[feat[i]] <= key[i] {
 				fail = 0
 			}
 			l[k] = i + 1 + (int(far[i])-1)&-fail

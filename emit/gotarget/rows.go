@@ -156,21 +156,28 @@ func (g *gen) predictRows() jen.Code {
 	)
 }
 
+// laneCall is `l0, l1, _ := leafW(x, int(roots[0]), int(roots[1]),
+// int(roots[1]))`: the walk of width lanes over the n trees whose roots are
+// roots[0:n], the last root repeated in the unused lanes, whose leaves go
+// to laneIDs[0:n].
+func laneCall(x jen.Code, roots string, width, n int) jen.Code {
+	lhs := make([]jen.Code, width)
+	args := []jen.Code{x}
+	for i := range width {
+		args = append(args, jen.Int().Parens(jen.Id(roots).Index(jen.Lit(min(i, n-1)))))
+		lhs[i] = jen.Id("_")
+		if i < n {
+			lhs[i] = jen.Id(laneIDs[i])
+		}
+	}
+	return jen.List(lhs...).Op(":=").Id(leafFunc(width)).Call(args...)
+}
+
 // rowWalk walks row r through the trees rt[0:n] with the walk of the given
 // width (the last root repeated in the unused places) and adds their leaves
 // to acc[r] in tree order.
 func (g *gen) rowWalk(width, n int) []jen.Code {
-	var lhs, args []jen.Code
-	args = append(args, jen.Op("&").Id("xx").Index(jen.Id("r")))
-	for i := range width {
-		args = append(args, jen.Int().Parens(jen.Id("rt").Index(jen.Lit(min(i, n-1)))))
-		if i < n {
-			lhs = append(lhs, jen.Id(laneIDs[i]))
-		} else {
-			lhs = append(lhs, jen.Id("_"))
-		}
-	}
-	out := []jen.Code{jen.List(lhs...).Op(":=").Id(leafFunc(width)).Call(args...)}
+	out := []jen.Code{laneCall(jen.Op("&").Id("xx").Index(jen.Id("r")), "rt", width, n)}
 	for i := range n {
 		leaf := jen.Id("thr").Index(jen.Id(laneIDs[i]))
 		if g.k > 1 {

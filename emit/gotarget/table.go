@@ -609,13 +609,10 @@ func (g *gen) tablePredictBody() []jen.Code {
 		return jen.Id("addLeaf").Call(jen.Op("&").Id("acc"), jen.Int().Parens(jen.Id("thr").Index(leaf)))
 	}
 	ids := laneIDs[:lanes]
-	var lhs, args, adds []jen.Code
-	for i, id := range ids {
-		lhs = append(lhs, jen.Id(id))
-		args = append(args, jen.Int().Parens(jen.Id("r").Index(jen.Lit(i))))
-		adds = append(adds, add(jen.Id(id)))
+	group := []jen.Code{laneCall(jen.Op("&").Id("xx"), "r", lanes, lanes)}
+	for _, id := range ids {
+		group = append(group, add(jen.Id(id)))
 	}
-	group := append([]jen.Code{jen.List(lhs...).Op(":=").Id(leafFunc(lanes)).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...)}, adds...)
 	walk := []jen.Code{
 		jen.Id("r").Op(":=").Id("roots"),
 		jen.For(jen.Empty(), jen.Len(jen.Id("r")).Op(">=").Lit(lanes), jen.Id("r").Op("=").Id("r").Index(jen.Lit(lanes).Op(":"))).Block(group...),
@@ -630,17 +627,7 @@ func (g *gen) tablePredictBody() []jen.Code {
 	// The last trees go through a walk of tailLanes, the last root
 	// repeated in the unused places.
 	if rem := len(g.p.Trees) % lanes; rem > 0 {
-		tail := g.tailLanes()
-		var lhs, args []jen.Code
-		for i := range tail {
-			args = append(args, jen.Int().Parens(jen.Id("r").Index(jen.Lit(min(i, rem-1)))))
-			if i < rem {
-				lhs = append(lhs, jen.Id(ids[i]))
-			} else {
-				lhs = append(lhs, jen.Id("_"))
-			}
-		}
-		walk = append(walk, jen.List(lhs...).Op(":=").Id(leafFunc(tail)).Call(append([]jen.Code{jen.Op("&").Id("xx")}, args...)...))
+		walk = append(walk, laneCall(jen.Op("&").Id("xx"), "r", g.tailLanes(), rem))
 		for i := range rem {
 			walk = append(walk, add(jen.Id(ids[i])))
 		}
