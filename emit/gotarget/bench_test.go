@@ -91,11 +91,17 @@ func benchForest(b *testing.B, f *forest.Forest, rows []float64) {
 	// table4 is the table walk four trees wide whatever the depth, as it
 	// was before the eight-lane walk (on forests deeper than laneDepth the
 	// two are the same code, and their spread is the run's noise).
-	layouts := []string{emit.Nested, emit.Table, "table4", emit.Branchless}
+	// table64 is the table walk with PredictBatch's blocks of maxBlockRows
+	// rows whatever the forest's size, as before forests beyond
+	// bigForestBytes took bigger blocks.
+	layouts := []string{emit.Nested, emit.Table, "table4", "table64", emit.Branchless}
 	for _, l := range layouts {
 		o := Options{Package: l, Layout: l, NoTest: true}
-		if l == "table4" {
+		switch l {
+		case "table4":
 			o.Layout, o.lanes = emit.Table, 4
+		case "table64":
+			o.Layout, o.blockRows = emit.Table, maxBlockRows
 		}
 		files, err := Emit(p, o)
 		if err != nil {

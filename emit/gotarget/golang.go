@@ -75,6 +75,10 @@ type Options struct {
 	// the one chosen by depth (see gen.lanes): BenchmarkLayouts holds the
 	// widths against each other.
 	lanes int
+	// blockRows, when not 0, is the rows of PredictBatch's blocks instead
+	// of the ones chosen by size (see gen.blockRows): BenchmarkLayouts
+	// holds the block sizes against each other.
+	blockRows int
 }
 
 // File names in the emitted package.

@@ -237,6 +237,23 @@ func TestTableNarrowTypes(t *testing.T) {
 	}
 }
 
+// TestBlockRows holds PredictBatch's block to the forest's size: small
+// blocks while the forest stays in the second-level cache, big ones beyond
+// (bench/libs holds PredictBatch to the interpreter bit for bit on its
+// 1,000-tree forest, which takes them).
+func TestBlockRows(t *testing.T) {
+	for _, c := range []struct {
+		p         *compile.Program
+		min, most int
+	}{{program(t, small), 4, maxBlockRows}, {chainProgram(400_000), maxBlockRows + 1, bigBlockRows}} {
+		d := buildTable(c.p, nil)
+		g := &gen{p: c.p}
+		if n := g.blockRows(d); n < c.min || n > c.most {
+			t.Errorf("%d nodes (%d bytes of tables): blocks of %d rows, want %d to %d", c.p.NumNodes(), d.tableBytes(), n, c.min, c.most)
+		}
+	}
+}
+
 // layoutOf is the layout auto picks for p.
 func layoutOf(p *compile.Program) string {
 	l, _, err := Resolve(p, Options{})
