@@ -791,7 +791,7 @@ func (g *gen) header() []byte {
 		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
 	case Perfect:
 		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
-		w.line(" * tree, in a fixed number of steps without branches on the data. */")
+		g.perfectLanesNote(&w)
 	default:
 		w.line(" * Row by row. */")
 	}

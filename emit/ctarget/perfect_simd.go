@@ -47,6 +47,17 @@ func perfectSimd(g *gen, pf *perfectForest) bool {
 	return pf.keyType == "float" && g.p.NumOutputs == 1 && pf.depth <= PerfectSimdMaxDepth && pf.rows%(16*perfectSimdRegs) == 0
 }
 
+// perfectLanesNote ends the header's description of NAME_predict_batch:
+// whether an AVX-512 build takes the lanes.
+func (g *gen) perfectLanesNote(w *printer) {
+	if g.buildPerfect().simd {
+		w.line(" * tree, in a fixed number of steps without branches on the data; 16 rows")
+		w.line(" * a register where __AVX512F__ is defined, with the same bits. */")
+		return
+	}
+	w.line(" * tree, in a fixed number of steps without branches on the data. */")
+}
+
 // perfectSimdDefs writes the keys' strides: feature-major under
 // __AVX512F__ (the lanes load 16 rows' key at once), row-major for the
 // scalar walk.
