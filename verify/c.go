@@ -476,8 +476,9 @@ int main(int argc, char **argv)
 // (as cRows writes them), narrows each value to the API's type, prints per
 // row the outputs with %a and the predicted class (-1 for a regressor),
 // after NAME_fp_check has found the floating-point unit fit (status 4
-// otherwise), then scores all rows again with NAME_predict_batch and fails (status 3)
-// unless every output has the same bits as NAME_predict's.
+// otherwise), then scores all rows again with NAME_predict_batch, and runs
+// of 1 to 70 rows (part blocks), and fails (status 3) unless every output
+// has the same bits as NAME_predict's.
 func cScoreFunc(name, ft string, classifier bool) string {
 	up := strings.ToUpper(name)
 	class := "-1"
@@ -487,7 +488,7 @@ func cScoreFunc(name, ft string, classifier bool) string {
 	return cThreadsFunc(name, ft) + `
 static int score_` + name + `(FILE *in)
 {
-	unsigned long rows, cols, r, i;
+	unsigned long rows, cols, r, i, n;
 	int j, rc;
 	` + ft + ` x[` + up + `_NUM_FEATURES];
 	` + ft + ` y[` + up + `_NUM_OUTPUTS];
@@ -530,6 +531,14 @@ static int score_` + name + `(FILE *in)
 	for (r = 0; r < rows; r++) {
 		if (memcmp(ys + r * ` + up + `_NUM_OUTPUTS, yb + r * ` + up + `_NUM_OUTPUTS, sizeof y) != 0) {
 			fprintf(stderr, "row %lu: ` + name + `_predict_batch differs from ` + name + `_predict\n", r);
+			return 3;
+		}
+	}
+	for (n = 1u; n <= 70u && n <= rows; n++) { /* batches of 1 to 70 rows: part blocks, lanes past the count */
+		r = (n * 7u) % (rows - n + 1u);
+		` + name + `_predict_batch(xs + r * ` + up + `_NUM_FEATURES, (size_t)n, yb);
+		if (memcmp(ys + r * ` + up + `_NUM_OUTPUTS, yb, sizeof y * n) != 0) {
+			fprintf(stderr, "rows %lu to %lu: ` + name + `_predict_batch of %lu rows differs from ` + name + `_predict\n", r, r + n - 1u, n);
 			return 3;
 		}
 	}

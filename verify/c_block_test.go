@@ -81,6 +81,12 @@ func checkLayoutBuilds(t *testing.T, layout string, names []string, matrix []cBu
 // hasAVX2 says why this machine cannot run AVX2 code, or nil: the CPU's
 // flags in /proc/cpuinfo (Linux).
 func hasAVX2() error {
+	return hasCPUFlag("avx2", "AVX2")
+}
+
+// hasCPUFlag says why this machine lacks the x86-64 feature whose
+// /proc/cpuinfo flag is flag (what, for the message), or nil.
+func hasCPUFlag(flag, what string) error {
 	if runtime.GOARCH != "amd64" {
 		return fmt.Errorf("not an x86-64 machine (%s)", runtime.GOARCH)
 	}
@@ -88,8 +94,8 @@ func hasAVX2() error {
 	if err != nil {
 		return err
 	}
-	if !strings.Contains(string(b), " avx2") {
-		return fmt.Errorf("the CPU has no AVX2 (/proc/cpuinfo)")
+	if !strings.Contains(string(b), " "+flag+" ") && !strings.Contains(string(b), " "+flag+"\n") {
+		return fmt.Errorf("the CPU has no %s (/proc/cpuinfo)", what)
 	}
 	return nil
 }

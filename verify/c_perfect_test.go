@@ -1,8 +1,15 @@
 package verify
 
 import (
+	"context"
+	"fmt"
+	"runtime"
+	"strings"
 	"testing"
 
+	"github.com/stretchr/testify/require"
+
+	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit/ctarget"
 	"github.com/sawmill-dev/sawmill/internal/testenv"
 )
@@ -26,4 +33,67 @@ func TestCPerfectBuilds(t *testing.T) {
 	testenv.Need(t, cTools(true))
 	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c11", "O3", false}, {"clang", "c11", "O2", true}}
 	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
+}
+
+// TestCPerfectLanes builds the perfect layout without target flags (the
+// scalar walk), with -mavx2 (scalar too: see emit/ctarget/perfect_simd.go)
+// and with -march=x86-64-v4 (the AVX-512 lanes) in gcc and clang, and
+// requires every build to print the same bytes (score checks it) and those
+// to be the interpreter's, in double and float, the driver checking
+// NAME_predict_batch over all rows and over runs of 1 to 70 rows against
+// NAME_predict. The golden cases include NaN to both sides, several outputs
+// and float32 sums; the random forests of depth 4 (neighbourForests) put
+// rows at, beside and a float away from every threshold, and NaN, ±inf,
+// ±0 and subnormals; float32 models and float builds take the lanes,
+// float64 models' double builds (double keys) and several outputs the
+// scalar walk, and the test requires both to occur. Cost: 6 cases and 8
+// forests in the perfect layout x 2 variants x 4 builds, about 30 s of
+// gcc/clang on 2 shared cores.
+func TestCPerfectLanes(t *testing.T) {
+	testenv.Need(t, cTools(true))
+	if err := hasCPUFlag("avx512f", "AVX-512F"); err != nil {
+		if requireEngines && runtime.GOARCH == "amd64" {
+			t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
+		}
+		t.Skipf("the AVX-512 lanes cannot run here: %v", err)
+	}
+	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", "O2 -mavx2", false},
+		{"gcc", "c99", "O2 -march=x86-64-v4", false}, {"clang", "c11", "O2 -march=x86-64-v4", false}}
+	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
+	r := testCRunner()
+	paths := map[bool]int{}
+	for _, c := range neighbourForests(t, 1) {
+		for _, variant := range r.Variants() {
+			p, _, err := compile.Compile(c.f, r.CompileOptions(variant))
+			require.NoError(t, err)
+			if variant == "float" && ctarget.FitsFloat(p) != nil {
+				continue
+			}
+			o := r.options(ctarget.Perfect, variant)
+			got, why, err := ctarget.Resolve(p, o)
+			require.NoError(t, err)
+			if got != ctarget.Perfect { // zero-as-missing splits, a split with no <= form: TestPerfectFallsBack
+				t.Logf("%s/%s: %s", c.name, variant, why)
+				continue
+			}
+			files, err := ctarget.Emit(p, o)
+			require.NoError(t, err)
+			lanes := false
+			for _, f := range files {
+				lanes = lanes || strings.Contains(string(f.Data), "_pf_avx512(key, used, sum)")
+			}
+			paths[lanes]++
+			t.Run(fmt.Sprintf("%s/%s/lanes=%v", c.name, variant, lanes), func(t *testing.T) {
+				t.Parallel()
+				res, err := r.score(context.Background(), p, o, c.rows, t.TempDir(), matrix, false)
+				require.NoError(t, err)
+				want, wantCls := cReference(c.f, c.rows, variant == "float")
+				exact, bound := r.Tolerance(variant, p)
+				m := Compare(want, res.Outputs, wantCls, res.Classes, c.f.NumOutputs(), exact, bound)
+				require.True(t, m.OK(), "%s", m)
+			})
+		}
+	}
+	require.Positive(t, paths[true], "no forest took the AVX-512 lanes")
+	require.Positive(t, paths[false], "no forest took the scalar walk")
 }

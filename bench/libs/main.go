@@ -9,7 +9,7 @@
 //
 //	go run ./bench/libs -dir DIR -libs LIBS.txt [-models xgb,lgbm,rf,rfbig]
 //	       [-batches 1,100,10000] [-threads 1,2] [-reps 5] [-single-rows 1000]
-//	       [-c auto,table,block,block+avx2,perfect] [-callgrind 0]
+//	       [-c auto,table,block,block+avx2,perfect,perfect+avx512] [-callgrind 0]
 //
 // DIR holds what libs.py wrote (rows.bin, MODEL.model, MODEL.LIB.pred);
 // LIBS.txt is libs.py's output (its "time" lines).
@@ -40,7 +40,7 @@ func main() {
 	models := flag.String("models", "xgb,lgbm,rf,rfbig", "models to run")
 	batches := flag.String("batches", "1,100,10000", "rows per call")
 	threads := flag.String("threads", "1,2", "thread counts")
-	cLayouts := flag.String("c", "auto,table", "C layouts (auto is resolved; a layout is built once; LAYOUT+avx2 is also built with -mavx2)")
+	cLayouts := flag.String("c", "auto,table", "C layouts (auto is resolved; a layout is built once; LAYOUT+avx2 is also built with -mavx2, LAYOUT+avx512 with -march=x86-64-v4)")
 	flag.IntVar(&c.reps, "reps", 5, "passes per figure; the best is kept")
 	flag.IntVar(&c.singleRows, "single-rows", 1000, "rows scored at batch 1")
 	flag.StringVar(c.libPaths["xgb"], "xgboost-lib", "", "libxgboost.so of the XGBoost wheel, for the single-row latency (empty: not measured)")
@@ -187,7 +187,7 @@ func benchModel(c config, m string, x []float64, work string, times map[key]floa
 				return nil, fmt.Errorf("latency: %w", err)
 			}
 		}
-		if c.callgrind > 0 && s.c {
+		if c.callgrind > 0 && s.c && !strings.HasSuffix(s.name, "+avx512") { // valgrind 3.19 cannot run AVX-512 code
 			ir, err := s.instructions(rowsPath, c.callgrind)
 			if err != nil {
 				return nil, fmt.Errorf("%s: callgrind: %w", s.name, err)

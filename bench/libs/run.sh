@@ -28,8 +28,10 @@
 #
 # Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
 #   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
-#   C_LAYOUTS=auto,table,block,block+avx2,perfect (+avx2: built with -mavx2 too; the
-#   default has block+avx2 only where /proc/cpuinfo lists avx2)
+#   C_LAYOUTS=auto,table,block,block+avx2,perfect (+avx2: built with -mavx2 too,
+#   +avx512 with -march=x86-64-v4; the default has block+avx2 and perfect+avx2
+#   only where /proc/cpuinfo lists avx2, perfect+avx512 where it lists avx512f,
+#   and a +avx2 or +avx512 asked for on a CPU without it is dropped with a note)
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
 #   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
@@ -49,8 +51,17 @@ lgblib=$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(light
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "${ROWS:-20000}" -seed 1
 models=${MODELS:-xgb,lgbm,rf,rfbig}
 # An -mavx2 build cannot run on a CPU without AVX2 (this one may lack it).
-avx2=
-! grep -qw avx2 /proc/cpuinfo 2>/dev/null || avx2=,block+avx2
+avx2= avx512=
+! grep -qw avx2 /proc/cpuinfo 2>/dev/null || avx2=,block+avx2,perfect+avx2
+! grep -qw avx512f /proc/cpuinfo 2>/dev/null || avx512=,perfect+avx512
+layouts=
+for l in $(echo "${C_LAYOUTS:-auto,table,block$avx2,perfect$avx512}" | tr , ' '); do
+	case $l in
+	*+avx2) grep -qw avx2 /proc/cpuinfo 2>/dev/null || { echo "note: $l left out, the CPU has no AVX2" >&2; continue; } ;;
+	*+avx512) grep -qw avx512f /proc/cpuinfo 2>/dev/null || { echo "note: $l left out, the CPU has no AVX-512F" >&2; continue; } ;;
+	esac
+	layouts=$layouts${layouts:+,}$l
+done
 for round in $(seq "${ROUNDS:-1}"); do
 	for m in ${models//,/ }; do
 		load=
@@ -61,7 +72,7 @@ for round in $(seq "${ROUNDS:-1}"); do
 			--rf-big-trees "${BIG_TREES:-1000}" --rf-big-leaves "${BIG_LEAVES:-0}" >"$tmp/libs-$m.txt"
 		"$tmp/libs-bench" -dir "$tmp" -libs "$tmp/libs-$m.txt" -models "$m" -reps "$reps" \
 			-batches "${BATCHES:-1,100,10000}" -threads "${THREADS:-1,2}" -single-rows "${SINGLE_ROWS:-1000}" \
-			-c "${C_LAYOUTS:-auto,table,block$avx2,perfect}" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
+			-c "$layouts" -callgrind "${CALLGRIND:-0}" -latency-rows "${LATENCY_ROWS:-2000}" \
 			-xgboost-lib "$xgblib" -lightgbm-lib "$lgblib"
 	done
 done

@@ -37,19 +37,23 @@ type result struct {
 
 // buildSides emits and builds the C layouts c asks for (auto resolved, each
 // layout once) and the Go package auto chooses. A layout written
-// LAYOUT+avx2 is built with -mavx2 as well (the block layout's AVX2 lanes).
+// LAYOUT+avx2 is built with -mavx2 as well, LAYOUT+avx512 with
+// -march=x86-64-v4 (cTargets: the SIMD lanes of block and perfect).
 func buildSides(c config, p *compile.Program, dir string) ([]*side, error) {
 	var sides []*side
 	seen := map[string]bool{}
 	for _, l := range c.cLayouts {
-		l, avx2 := strings.CutSuffix(l, "+avx2")
+		l, target, _ := strings.Cut(l, "+")
 		layout, _, err := ctarget.Resolve(p, ctarget.Options{Layout: l})
 		if err != nil {
 			return nil, err
 		}
-		var flags []string
-		if avx2 {
-			layout, flags = layout+"+avx2", []string{"-mavx2"}
+		flags, ok := cTargets[target]
+		if !ok {
+			return nil, fmt.Errorf("C layout %q: unknown target +%s (want +avx2 or +avx512)", l+"+"+target, target)
+		}
+		if target != "" {
+			layout += "+" + target
 		}
 		if seen[layout] {
 			continue
@@ -68,15 +72,18 @@ func buildSides(c config, p *compile.Program, dir string) ([]*side, error) {
 	return append(sides, s), nil
 }
 
+// cTargets are the build flags of a C layout's "+TARGET" suffix.
+var cTargets = map[string][]string{"": nil, "avx2": {"-mavx2"}, "avx512": {"-march=x86-64-v4"}}
+
 // buildC writes model.c, model_threads.c and the driver into a folder of
 // their own and builds them with gcc -O2, as a user would, and any flags
-// (layout's "+avx2" suffix is a name only).
+// (layout's "+TARGET" suffix is a name only).
 func buildC(p *compile.Program, layout, dir string, flags ...string) (*side, error) {
 	sub := filepath.Join(dir, "c-"+layout)
 	if err := os.Mkdir(sub, 0o755); err != nil {
 		return nil, err
 	}
-	files, err := ctarget.Emit(p, ctarget.Options{Layout: strings.TrimSuffix(layout, "+avx2"), Threads: true})
+	files, err := ctarget.Emit(p, ctarget.Options{Layout: strings.Split(layout, "+")[0], Threads: true})
 	if err != nil {
 		return nil, err
 	}

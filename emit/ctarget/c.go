@@ -791,7 +791,7 @@ func (g *gen) header() []byte {
 		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
 	case Perfect:
 		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
-		w.line(" * tree, in a fixed number of steps without branches on the data. */")
+		g.perfectLanesNote(&w)
 	default:
 		w.line(" * Row by row. */")
 	}
@@ -948,6 +948,11 @@ func (g *gen) source(body []byte) []byte {
 	}
 	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || g.layout == Block || g.layout == Perfect || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
+	}
+	if g.layout == Perfect && bytes.Contains(body, []byte("_mm512_")) {
+		w.line("#if defined(__AVX512F__) || defined(__AVX2__)")
+		w.line("#include <immintrin.h>")
+		w.line("#endif")
 	}
 	if g.layout == Block {
 		w.line("#if defined(__AVX2__)")

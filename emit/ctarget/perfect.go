@@ -76,6 +76,7 @@ type perfectForest struct {
 	keyType string
 	featTyp string // uint8_t or uint16_t
 	rows    int    // a block's rows: see perfectRows
+	simd    bool   // NAME_perfect has AVX-512 lanes (perfectSimd)
 }
 
 // perfectRows is the rows of a block: as many as perfectKeyBytes of keys
@@ -191,6 +192,7 @@ func (g *gen) buildPerfect() *perfectForest {
 	if len(p.Features) <= 128 {
 		pf.featTyp = "uint8_t"
 	}
+	pf.simd = perfectSimd(g, pf)
 	return pf
 }
 
@@ -253,6 +255,9 @@ func (g *gen) perfect(w *printer) error {
 	pf := g.buildPerfect()
 	g.batch = func(w *printer) {
 		g.perfectTables(w, pf)
+		if pf.simd {
+			g.perfectSimdWalk(w, pf)
+		}
 		g.perfectBlock(w, pf)
 		g.blockLoop(w, "perfect", "PF_ROWS")
 	}
@@ -267,6 +272,9 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	w.line("#define %s_PF_ROWS %d /* a block's rows: %d bytes of keys at most */", g.upper, pf.rows, perfectKeyBytes)
 	w.line("#define %s_PF_KEYS (2u * %s_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */", g.upper, g.upper)
 	w.line("")
+	if pf.simd {
+		g.perfectSimdDefs(w)
+	}
 	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
 		return fmt.Sprintf("%du", pf.feat[i])
 	})
@@ -308,11 +316,33 @@ func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
 	w.in()
 	w.line("%s sum[%s_PF_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
 	w.line("%s key[%s_PF_ROWS * %s_PF_KEYS];", pf.keyType, u, u)
+	if pf.simd {
+		w.line("#if defined(__AVX512F__)")
+		w.line("const size_t used = (count + %du) / %du * %du; /* whole registers */", 16*perfectSimdRegs-1, 16*perfectSimdRegs, 16*perfectSimdRegs)
+		w.line("#else")
+	}
 	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", perfectChains-1, perfectChains, perfectChains)
+	if pf.simd {
+		w.line("#endif")
+	}
 	w.line("size_t lane;")
 	w.line("uint32_t tree;")
 	w.line("int j;")
 	g.perfectKeys(w, pf)
+	if !pf.simd {
+		g.perfectTrees(w, pf)
+	} else {
+		g.perfectSimdCall(w, func() { g.perfectTrees(w, pf) })
+		w.line("(void)tree;")
+	}
+	g.batchFinish(w)
+	w.out()
+	w.line("}")
+}
+
+// perfectTrees writes the scalar walk of a block's rows through every tree.
+func (g *gen) perfectTrees(w *printer, pf *perfectForest) {
+	u := g.upper
 	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
 	w.line("const %s *const fe = %s_pf_feat + tree * %s_PF_INNER;", pf.featTyp, g.name, u)
@@ -325,9 +355,6 @@ func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
 	w.line("}")
 	w.out()
 	w.line("}")
-	g.batchFinish(w)
-	w.out()
-	w.line("}")
 }
 
 // perfectKeys writes the loop that fills each row's keys and starts its
@@ -338,16 +365,22 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	w.line("for (lane = 0; lane < used; lane++) {")
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
-	w.line("%s *const k = key + lane * %s_PF_KEYS;", kt, u)
+	lo, hi := "k[2 * j]", "k[2 * j + 1]"
+	if pf.simd { // the SIMD lanes' keys are feature-major (perfectSimdKeys)
+		w.line("%s *const k = key + lane * %s_PF_LANE;", kt, u)
+		lo, hi = fmt.Sprintf("k[(uint32_t)(2 * j) * %s_PF_KEY]", u), fmt.Sprintf("k[(uint32_t)(2 * j + 1) * %s_PF_KEY]", u)
+	} else {
+		w.line("%s *const k = key + lane * %s_PF_KEYS;", kt, u)
+	}
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
 	w.line("const %s v = xr[j];", g.ft)
 	if kt == g.ft {
-		w.line("k[2 * j] = v != v ? -%s : v;", inf)
-		w.line("k[2 * j + 1] = v != v ? %s : v;", inf)
+		w.line("%s = v != v ? -%s : v;", lo, inf)
+		w.line("%s = v != v ? %s : v;", hi, inf)
 	} else {
-		w.line("k[2 * j] = v != v ? -%s : (%s)v; /* exact: see the thresholds */", inf, kt)
-		w.line("k[2 * j + 1] = v != v ? %s : (%s)v;", inf, kt)
+		w.line("%s = v != v ? -%s : (%s)v; /* exact: see the thresholds */", lo, inf, kt)
+		w.line("%s = v != v ? %s : (%s)v;", hi, inf, kt)
 	}
 	w.out()
 	w.line("}")

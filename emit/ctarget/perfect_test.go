@@ -110,3 +110,54 @@ func TestPerfectRows(t *testing.T) {
 	require.Equal(t, 16, perfectRows(100, 8)) // 16 x 200 x 8 = 25,600 bytes
 	require.Equal(t, 8, perfectRows(PerfectMaxFeatures, 8))
 }
+
+// chainTree is a tree of depth d: each split's right child is a leaf, its
+// left child the next split (x0 < i + 0.5 at depth i).
+func chainTree(d int) (compile.Tree, [][]float64) {
+	var tr compile.Tree
+	var leaves [][]float64
+	for i := 0; i < d; i++ {
+		at := int32(len(tr.Nodes))
+		left := at + 2
+		tr.Nodes = append(tr.Nodes, compile.Node{Feature: 0, Threshold: float64(i) + 0.5, Op: compile.LT, Left: left, Right: at + 1}, perfectLeaf(float64(i)))
+		leaves = append(leaves, nil, []float64{float64(i)})
+	}
+	tr.Nodes = append(tr.Nodes, perfectLeaf(-1))
+	return tr, append(leaves, []float64{-1})
+}
+
+// TestPerfectSimdRule: the AVX-512 lanes are written for float keys, one
+// output and depth at most PerfectSimdMaxDepth, and the C says so with
+// the scalar walk under #else; double keys, a deeper forest or two outputs
+// keep the scalar walk alone.
+func TestPerfectSimdRule(t *testing.T) {
+	for _, c := range []struct {
+		depth, outputs int
+		ft             string
+		lanes          bool
+	}{
+		{PerfectSimdMaxDepth, 1, "float", true},
+		{1, 1, "float", true},
+		{PerfectSimdMaxDepth + 1, 1, "float", false},
+		{3, 2, "float", false},
+	} {
+		tr, leaves := chainTree(c.depth)
+		for i := range tr.Nodes {
+			if tr.Nodes[i].IsLeaf() {
+				tr.Nodes[i].Value = make([]float64, c.outputs)
+				leaves[i] = make([]float64, c.outputs)
+			}
+		}
+		p := &compile.Program{NumOutputs: c.outputs, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
+		g := &gen{p: p, ft: c.ft, at: c.ft, leaves: [][][]float64{leaves}}
+		pf := g.buildPerfect()
+		require.Equal(t, c.depth, pf.depth)
+		require.Equal(t, c.lanes, pf.simd, "%+v", c)
+	}
+	tr := compile.Tree{Nodes: []compile.Node{{Feature: 0, Threshold: 0.1, Op: compile.LE, Left: 1, Right: 2}, perfectLeaf(1), perfectLeaf(2)}}
+	p := &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
+	g := &gen{p: p, ft: "double", at: "double", leaves: [][][]float64{{nil, {1}, {2}}}}
+	pf := g.buildPerfect()
+	require.Equal(t, "double", pf.keyType, "0.1 is no float")
+	require.False(t, pf.simd, "double keys keep the scalar walk")
+}

@@ -7,6 +7,9 @@
 #include <float.h>
 #include <math.h>
 #include <stdint.h>
+#if defined(__AVX512F__) || defined(__AVX2__)
+#include <immintrin.h>
+#endif
 
 /* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
  * define PUMPMODEL_ALLOW_INEXACT_FP to build where these checks fail. */
@@ -106,6 +109,14 @@ int pumpmodel_predict_class(const float *x)
 #define PUMPMODEL_PF_ROWS 64 /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
+#if defined(__AVX512F__)
+#define PUMPMODEL_PF_LANE 1u /* keys feature-major: key[k * PUMPMODEL_PF_ROWS + lane] */
+#define PUMPMODEL_PF_KEY PUMPMODEL_PF_ROWS
+#else
+#define PUMPMODEL_PF_LANE PUMPMODEL_PF_KEYS /* keys row-major: key[lane * PUMPMODEL_PF_KEYS + k] */
+#define PUMPMODEL_PF_KEY 1u
+#endif
+
 /* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
 static const uint8_t pumpmodel_pf_feat[9] = {
 	3u, 0u, 0u, 1u, 0u, 0u, 3u, 0u,
@@ -124,6 +135,62 @@ static const float pumpmodel_pf_leaf[12] = {
 	-800.0f, -800.0f, 0.01f, 0.01f
 };
 
+#if defined(__AVX512F__)
+/* The walk of a block's first used rows (a multiple of 32) through every
+ * tree, 32 rows at a time in 2 registers, keys feature-major: node by node
+ * depth first, each node under the mask of the lanes that reach it
+ * (m<node>_<register>); at the last level each lane takes its leaf by a
+ * masked move, and the leaves are added to the sums once a tree, in tree
+ * order. */
+static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
+{
+	uint32_t tree;
+	size_t c;
+	for (c = 0; c < used; c += 32u) {
+		const float *const kc = key + c;
+		__m512 s0 = _mm512_loadu_ps(sum + c + 0u);
+		__m512 s1 = _mm512_loadu_ps(sum + c + 16u);
+		for (tree = 0; tree < 3u; tree++) {
+			const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
+			const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
+			const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u);
+			const __mmask16 m0_0 = 0xffffu;
+			__m512 v0 = _mm512_setzero_ps();
+			const __mmask16 m0_1 = 0xffffu;
+			__m512 v1 = _mm512_setzero_ps();
+			const float *k;
+			__m512 t;
+			k = kc + (size_t)fe[0] * PUMPMODEL_PF_ROWS;
+			t = _mm512_set1_ps(th[0]);
+			const __mmask16 m2_0 = _mm512_mask_cmp_ps_mask(m0_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
+			const __mmask16 m1_0 = (__mmask16)(m0_0 & ~m2_0);
+			const __mmask16 m2_1 = _mm512_mask_cmp_ps_mask(m0_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
+			const __mmask16 m1_1 = (__mmask16)(m0_1 & ~m2_1);
+			k = kc + (size_t)fe[1] * PUMPMODEL_PF_ROWS;
+			t = _mm512_set1_ps(th[1]);
+			const __mmask16 m4_0 = _mm512_mask_cmp_ps_mask(m1_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
+			const __mmask16 m4_1 = _mm512_mask_cmp_ps_mask(m1_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
+			v0 = _mm512_mask_mov_ps(v0, m1_0, _mm512_set1_ps(lv[0]));
+			v0 = _mm512_mask_mov_ps(v0, m4_0, _mm512_set1_ps(lv[1]));
+			v1 = _mm512_mask_mov_ps(v1, m1_1, _mm512_set1_ps(lv[0]));
+			v1 = _mm512_mask_mov_ps(v1, m4_1, _mm512_set1_ps(lv[1]));
+			k = kc + (size_t)fe[2] * PUMPMODEL_PF_ROWS;
+			t = _mm512_set1_ps(th[2]);
+			const __mmask16 m6_0 = _mm512_mask_cmp_ps_mask(m2_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
+			const __mmask16 m6_1 = _mm512_mask_cmp_ps_mask(m2_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
+			v0 = _mm512_mask_mov_ps(v0, m2_0, _mm512_set1_ps(lv[2]));
+			v0 = _mm512_mask_mov_ps(v0, m6_0, _mm512_set1_ps(lv[3]));
+			v1 = _mm512_mask_mov_ps(v1, m2_1, _mm512_set1_ps(lv[2]));
+			v1 = _mm512_mask_mov_ps(v1, m6_1, _mm512_set1_ps(lv[3]));
+			s0 = _mm512_add_ps(s0, v0);
+			s1 = _mm512_add_ps(s1, v1);
+		}
+		_mm512_storeu_ps(sum + c + 0u, s0);
+		_mm512_storeu_ps(sum + c + 16u, s1);
+	}
+}
+#endif
+
 /* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
  * each a comparison and an addition (no branch on the data), and adds its
@@ -133,20 +200,27 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
 	float key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	#if defined(__AVX512F__)
+	const size_t used = (count + 31u) / 32u * 32u; /* whole registers */
+	#else
 	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
+	#endif
 	size_t lane;
 	uint32_t tree;
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		float *const k = key + lane * PUMPMODEL_PF_KEYS;
+		float *const k = key + lane * PUMPMODEL_PF_LANE;
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const float v = xr[j];
-			k[2 * j] = v != v ? -HUGE_VALF : v;
-			k[2 * j + 1] = v != v ? HUGE_VALF : v;
+			k[(uint32_t)(2 * j) * PUMPMODEL_PF_KEY] = v != v ? -HUGE_VALF : v;
+			k[(uint32_t)(2 * j + 1) * PUMPMODEL_PF_KEY] = v != v ? HUGE_VALF : v;
 		}
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.4054651f;
 	}
+	#if defined(__AVX512F__)
+	pumpmodel_pf_avx512(key, used, sum);
+	#else
 	for (tree = 0; tree < 3u; tree++) {
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
@@ -194,6 +268,8 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 			sum[lane + 7u] += lv[i7 - PUMPMODEL_PF_INNER];
 		}
 	}
+	#endif
+	(void)tree;
 	for (lane = 0; lane < count; lane++) {
 		float acc[PUMPMODEL_NUM_OUTPUTS];
 		float *const out = outs + lane * PUMPMODEL_NUM_OUTPUTS;

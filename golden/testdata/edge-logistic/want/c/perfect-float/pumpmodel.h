@@ -72,7 +72,8 @@ void pumpmodel_predict(const float *x, float *out);
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
  * Blocks of rows (PUMPMODEL_PF_ROWS in pumpmodel.c) walk each tree, padded to a perfect
- * tree, in a fixed number of steps without branches on the data. */
+ * tree, in a fixed number of steps without branches on the data; 16 rows
+ * a register where __AVX512F__ is defined, with the same bits. */
 void pumpmodel_predict_batch(const float *x, size_t n, float *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */
