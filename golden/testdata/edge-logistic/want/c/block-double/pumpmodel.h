@@ -25,7 +25,7 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 11 x 16 = 176 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 11 x 16 = 176 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 11 x 8 = 88 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 3 x 4 = 12 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes
@@ -77,8 +77,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */
