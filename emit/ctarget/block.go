@@ -96,7 +96,7 @@ func blockFits(g *gen) error {
 
 // blockForest is the forest as the block walk stores it.
 type blockForest struct {
-	key   []uint32  // per node: feature << 1 | NaN goes right (a leaf: the -inf key)
+	key   []uint32  // per node: (feature << 1 | NaN goes right) * blockChains (a leaf: the -inf key's)
 	thr   []float64 // per node: the row goes right when its key exceeds this (+inf at a leaf)
 	kid   []uint32  // per node: the left child, counted from the tree's root (a leaf: itself)
 	val   []float64 // per node: the leaf value (0 at a split), one output
@@ -108,7 +108,6 @@ type blockForest struct {
 	// keyType is the C type of keys and thresholds: float where that is
 	// exact at every split (floatExact), else the arithmetic's type.
 	keyType string
-	keyTyp  string // the key index's type: uint8_t or uint16_t
 	kidTyp  string // the child number's type: uint8_t, uint16_t or uint32_t
 	rows8   int    // a block's rows: see blockRows
 }
@@ -169,10 +168,6 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 		}
 	}
 	keys := 2*len(g.p.Features) + 1
-	b.keyTyp = "uint16_t"
-	if keys <= 256 {
-		b.keyTyp = "uint8_t"
-	}
 	switch {
 	case biggest <= 256:
 		b.kidTyp = "uint8_t"
@@ -189,7 +184,7 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 func (g *gen) blockNode(b *blockForest, ti int, ni int32, num []int) {
 	n := &g.p.Trees[ti].Nodes[ni]
 	if n.IsLeaf() {
-		b.key = append(b.key, uint32(2*len(g.p.Features)))
+		b.key = append(b.key, uint32(2*len(g.p.Features)*blockChains))
 		b.thr = append(b.thr, math.Inf(1))
 		b.kid = append(b.kid, uint32(num[ni]))
 		if b.rows != nil {
@@ -210,7 +205,7 @@ func (g *gen) blockNode(b *blockForest, ti int, ni int32, num []int) {
 	if !n.MissingLeft {
 		k |= 1
 	}
-	b.key = append(b.key, k)
+	b.key = append(b.key, k*blockChains)
 	b.thr = append(b.thr, th)
 	b.kid = append(b.kid, uint32(num[n.Left]))
 	if b.rows != nil {
@@ -262,7 +257,7 @@ func (g *gen) blockNodes(w *printer, b *blockForest) {
 	w.line("struct %s_bk_node {", g.name)
 	w.line("	%s thr;", b.keyType)
 	w.line("	%s kid;", b.kidTyp)
-	w.line("	%s k;", b.keyTyp)
+	w.line("	uint16_t k;")
 	w.line("};")
 	w.line("static const struct %s_bk_node %s_bk_nodes[%d] = {", g.name, g.name, len(b.key))
 	for i := range b.key {
@@ -356,15 +351,15 @@ func (g *gen) blockKeys(w *printer, b *blockForest) {
 	w.line("for (lane = 0; lane < used; lane++) {")
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
-	w.line("%s *const k = key + lane * %s_BK_KEYS;", kt, u)
+	w.line("%s *const k = key + (lane - lane %% %du) * %s_BK_KEYS + lane %% %du; /* eight rows' keys side by side */", kt, blockChains, u, blockChains)
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
 	w.line("const %s v = xr[j];", g.ft)
-	w.line("k[2 * j] = v != v ? -%s : %sv;", inf, cast)
-	w.line("k[2 * j + 1] = v != v ? %s : %sv;", inf, cast)
+	w.line("k[2 * j * %d] = v != v ? -%s : %sv;", blockChains, inf, cast)
+	w.line("k[(2 * j + 1) * %d] = v != v ? %s : %sv;", blockChains, inf, cast)
 	w.out()
 	w.line("}")
-	w.line("k[2 * %s_NUM_FEATURES] = -%s; /* the leaves' key */", u, inf)
+	w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, inf)
 	for j := 0; j < g.p.NumOutputs; j++ {
 		w.line("sum[lane * %s_NUM_OUTPUTS + %du] = %s;", u, j, g.accStart(j))
 	}
@@ -376,9 +371,7 @@ func (g *gen) blockKeys(w *printer, b *blockForest) {
 // steps interleaved and unrolled, and the addition of their leaves.
 func (g *gen) blockChains(w *printer, b *blockForest) {
 	u := g.upper
-	for c := 0; c < blockChains; c++ {
-		w.line("const %s *const k%d = key + (lane + %du) * %s_BK_KEYS;", b.keyType, c, c, u)
-	}
+	w.line("const %s *const kb = key + lane * %s_BK_KEYS; /* the eight rows' keys, interleaved */", b.keyType, u)
 	for c := 0; c < blockChains; c++ {
 		w.line("uint32_t i%d = 0u;", c)
 	}
@@ -418,7 +411,7 @@ func (g *gen) blockSteps(w *printer, b *blockForest, n int) {
 	w.in()
 	for range n {
 		for c := 0; c < blockChains; c++ {
-			w.line("i%d = (uint32_t)nd[i%d].kid + (uint32_t)(k%d[nd[i%d].k] %s nd[i%d].thr);", c, c, c, c, b.cmp(), c)
+			w.line("i%d = (uint32_t)nd[i%d].kid + (uint32_t)(kb[nd[i%d].k + %du] %s nd[i%d].thr);", c, c, c, c, b.cmp(), c)
 		}
 	}
 	w.out()
