@@ -152,42 +152,42 @@ int pumpmodel_predict_class(const float *x)
 struct pumpmodel_bk_node {
 	float thr;
 	uint8_t kid;
-	uint8_t k;
+	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[33] = {
 	{0.0f, 1u, 0u},
-	{HUGE_VALF, 1u, 32u},
-	{0.5f, 3u, 3u},
-	{HUGE_VALF, 3u, 32u},
-	{1.0f, 5u, 4u},
-	{HUGE_VALF, 5u, 32u},
-	{1.5f, 7u, 7u},
-	{HUGE_VALF, 7u, 32u},
-	{2.0f, 9u, 8u},
-	{HUGE_VALF, 9u, 32u},
-	{2.5f, 11u, 11u},
-	{HUGE_VALF, 11u, 32u},
-	{3.0f, 13u, 12u},
-	{HUGE_VALF, 13u, 32u},
-	{3.5f, 15u, 15u},
-	{HUGE_VALF, 15u, 32u},
-	{4.0f, 17u, 16u},
-	{HUGE_VALF, 17u, 32u},
-	{4.5f, 19u, 19u},
-	{HUGE_VALF, 19u, 32u},
-	{5.0f, 21u, 20u},
-	{HUGE_VALF, 21u, 32u},
-	{5.5f, 23u, 23u},
-	{HUGE_VALF, 23u, 32u},
-	{6.0f, 25u, 24u},
-	{HUGE_VALF, 25u, 32u},
-	{6.5f, 27u, 27u},
-	{HUGE_VALF, 27u, 32u},
-	{7.0f, 29u, 28u},
-	{HUGE_VALF, 29u, 32u},
-	{7.5f, 31u, 31u},
-	{HUGE_VALF, 31u, 32u},
-	{HUGE_VALF, 32u, 32u}
+	{HUGE_VALF, 1u, 256u},
+	{0.5f, 3u, 24u},
+	{HUGE_VALF, 3u, 256u},
+	{1.0f, 5u, 32u},
+	{HUGE_VALF, 5u, 256u},
+	{1.5f, 7u, 56u},
+	{HUGE_VALF, 7u, 256u},
+	{2.0f, 9u, 64u},
+	{HUGE_VALF, 9u, 256u},
+	{2.5f, 11u, 88u},
+	{HUGE_VALF, 11u, 256u},
+	{3.0f, 13u, 96u},
+	{HUGE_VALF, 13u, 256u},
+	{3.5f, 15u, 120u},
+	{HUGE_VALF, 15u, 256u},
+	{4.0f, 17u, 128u},
+	{HUGE_VALF, 17u, 256u},
+	{4.5f, 19u, 152u},
+	{HUGE_VALF, 19u, 256u},
+	{5.0f, 21u, 160u},
+	{HUGE_VALF, 21u, 256u},
+	{5.5f, 23u, 184u},
+	{HUGE_VALF, 23u, 256u},
+	{6.0f, 25u, 192u},
+	{HUGE_VALF, 25u, 256u},
+	{6.5f, 27u, 216u},
+	{HUGE_VALF, 27u, 256u},
+	{7.0f, 29u, 224u},
+	{HUGE_VALF, 29u, 256u},
+	{7.5f, 31u, 248u},
+	{HUGE_VALF, 31u, 256u},
+	{HUGE_VALF, 32u, 256u}
 };
 
 /* block walk: distinct leaf vectors */
@@ -232,7 +232,7 @@ static const uint32_t pumpmodel_bk_steps[1] = {
 /* Scores the count <= PUMPMODEL_BK_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree eight rows at a time take the tree's depth in
  * steps, each a comparison and an addition (no branch on the data; trees
- * deeper than 8 stop once the eight rows sat still for 4 steps), and add
+ * deeper than 8 stop once the eight rows sat still for 2 steps), and add
  * their leaves, in tree order as pumpmodel_predict adds them. Up to 7 lanes past
  * count walk row 0 and are dropped. */
 static void pumpmodel_block(const float *x, size_t count, float *outs)
@@ -245,13 +245,13 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		float *const k = key + lane * PUMPMODEL_BK_KEYS;
+		float *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const float v = xr[j];
-			k[2 * j] = v != v ? -HUGE_VALF : v;
-			k[2 * j + 1] = v != v ? HUGE_VALF : v;
+			k[2 * j * 8] = v != v ? -HUGE_VALF : v;
+			k[(2 * j + 1) * 8] = v != v ? HUGE_VALF : v;
 		}
-		k[2 * PUMPMODEL_NUM_FEATURES] = -HUGE_VALF; /* the leaves' key */
+		k[2 * PUMPMODEL_NUM_FEATURES * 8] = -HUGE_VALF; /* the leaves' key */
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = 0.0f;
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 1u] = 0.0f;
 	}
@@ -259,14 +259,7 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
-			const float *const k0 = key + (lane + 0u) * PUMPMODEL_BK_KEYS;
-			const float *const k1 = key + (lane + 1u) * PUMPMODEL_BK_KEYS;
-			const float *const k2 = key + (lane + 2u) * PUMPMODEL_BK_KEYS;
-			const float *const k3 = key + (lane + 3u) * PUMPMODEL_BK_KEYS;
-			const float *const k4 = key + (lane + 4u) * PUMPMODEL_BK_KEYS;
-			const float *const k5 = key + (lane + 5u) * PUMPMODEL_BK_KEYS;
-			const float *const k6 = key + (lane + 6u) * PUMPMODEL_BK_KEYS;
-			const float *const k7 = key + (lane + 7u) * PUMPMODEL_BK_KEYS;
+			const float *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
 			uint32_t i0 = 0u;
 			uint32_t i1 = 0u;
 			uint32_t i2 = 0u;
@@ -278,50 +271,34 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 			uint32_t s;
 			if (steps <= 8u) {
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] > nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
 				}
 			} else {
-				for (s = 0; s < steps; s += 4u) {
+				for (s = 0; s < steps; s += 2u) {
 					const uint32_t p0 = i0, p1 = i1, p2 = i2, p3 = i3, p4 = i4, p5 = i5, p6 = i6, p7 = i7;
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] > nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] > nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] > nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] > nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
 					if (((i0 ^ p0) | (i1 ^ p1) | (i2 ^ p2) | (i3 ^ p3) | (i4 ^ p4) | (i5 ^ p5) | (i6 ^ p6) | (i7 ^ p7)) == 0u) {
 						break; /* the eight rows sit on leaves */
 					}

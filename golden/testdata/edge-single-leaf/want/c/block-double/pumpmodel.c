@@ -99,10 +99,10 @@ void pumpmodel_predict(const double *x, double *out)
 struct pumpmodel_bk_node {
 	float thr;
 	uint8_t kid;
-	uint8_t k;
+	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[1] = {
-	{HUGE_VALF, 0u, 2u}
+	{HUGE_VALF, 0u, 16u}
 };
 
 /* block walk: each node's leaf value (0 at a split) */
@@ -123,7 +123,7 @@ static const uint32_t pumpmodel_bk_steps[1] = {
 /* Scores the count <= PUMPMODEL_BK_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree eight rows at a time take the tree's depth in
  * steps, each a comparison and an addition (no branch on the data; trees
- * deeper than 8 stop once the eight rows sat still for 4 steps), and add
+ * deeper than 8 stop once the eight rows sat still for 2 steps), and add
  * their leaves, in tree order as pumpmodel_predict adds them. Up to 7 lanes past
  * count walk row 0 and are dropped. */
 static void pumpmodel_block(const double *x, size_t count, double *outs)
@@ -136,27 +136,20 @@ static void pumpmodel_block(const double *x, size_t count, double *outs)
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const double *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		float *const k = key + lane * PUMPMODEL_BK_KEYS;
+		float *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const double v = xr[j];
-			k[2 * j] = v != v ? -HUGE_VALF : (float)v;
-			k[2 * j + 1] = v != v ? HUGE_VALF : (float)v;
+			k[2 * j * 8] = v != v ? -HUGE_VALF : (float)v;
+			k[(2 * j + 1) * 8] = v != v ? HUGE_VALF : (float)v;
 		}
-		k[2 * PUMPMODEL_NUM_FEATURES] = -HUGE_VALF; /* the leaves' key */
+		k[2 * PUMPMODEL_NUM_FEATURES * 8] = -HUGE_VALF; /* the leaves' key */
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = 0.0;
 	}
 	for (tree = 0; tree < 1u; tree++) {
 		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
-			const float *const k0 = key + (lane + 0u) * PUMPMODEL_BK_KEYS;
-			const float *const k1 = key + (lane + 1u) * PUMPMODEL_BK_KEYS;
-			const float *const k2 = key + (lane + 2u) * PUMPMODEL_BK_KEYS;
-			const float *const k3 = key + (lane + 3u) * PUMPMODEL_BK_KEYS;
-			const float *const k4 = key + (lane + 4u) * PUMPMODEL_BK_KEYS;
-			const float *const k5 = key + (lane + 5u) * PUMPMODEL_BK_KEYS;
-			const float *const k6 = key + (lane + 6u) * PUMPMODEL_BK_KEYS;
-			const float *const k7 = key + (lane + 7u) * PUMPMODEL_BK_KEYS;
+			const float *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
 			uint32_t i0 = 0u;
 			uint32_t i1 = 0u;
 			uint32_t i2 = 0u;
@@ -168,50 +161,34 @@ static void pumpmodel_block(const double *x, size_t count, double *outs)
 			uint32_t s;
 			if (steps <= 8u) {
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] >= nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] >= nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] >= nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] >= nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] >= nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] >= nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] >= nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] >= nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] >= nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] >= nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] >= nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] >= nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] >= nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] >= nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] >= nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] >= nd[i7].thr);
 				}
 			} else {
-				for (s = 0; s < steps; s += 4u) {
+				for (s = 0; s < steps; s += 2u) {
 					const uint32_t p0 = i0, p1 = i1, p2 = i2, p3 = i3, p4 = i4, p5 = i5, p6 = i6, p7 = i7;
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] >= nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] >= nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] >= nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] >= nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] >= nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] >= nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] >= nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] >= nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] >= nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] >= nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] >= nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] >= nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] >= nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] >= nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] >= nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] >= nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] >= nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] >= nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] >= nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] >= nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] >= nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] >= nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] >= nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] >= nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(k0[nd[i0].k] >= nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(k1[nd[i1].k] >= nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(k2[nd[i2].k] >= nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(k3[nd[i3].k] >= nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(k4[nd[i4].k] >= nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(k5[nd[i5].k] >= nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(k6[nd[i6].k] >= nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(k7[nd[i7].k] >= nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] >= nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] >= nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] >= nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] >= nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] >= nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] >= nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] >= nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] >= nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] >= nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] >= nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] >= nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] >= nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] >= nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] >= nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] >= nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] >= nd[i7].thr);
 					if (((i0 ^ p0) | (i1 ^ p1) | (i2 ^ p2) | (i3 ^ p3) | (i4 ^ p4) | (i5 ^ p5) | (i6 ^ p6) | (i7 ^ p7)) == 0u) {
 						break; /* the eight rows sit on leaves */
 					}
