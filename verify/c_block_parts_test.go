@@ -33,12 +33,13 @@ var deepTrees = randmodel.GenOptions{MaxTrees: 6, MaxFeatures: 6, MaxDepth: 24, 
 // over the first n rows for n from 1 to blockPartRows and from an offset
 // of 5, so that every part block from 1 to 70 rows and whole blocks after
 // it are walked; each output must be NAME_predict's bytes, and in double
-// the interpreter's. Cost: 4 forests x 2 variants, one gcc -O2 build each,
+// the interpreter's. Seeds 1 to 8 give keys of both kinds: values (float)
+// and ranks (seeds 5 and 6). Cost: 8 forests, 11 builds with gcc -O2,
 // about 10 s.
 func TestCBlockParts(t *testing.T) {
 	testenv.Need(t, cTools(false))
-	built := 0
-	for seed := uint64(1); seed <= 12 && built < 4; seed++ {
+	built, ranks := 0, 0
+	for seed := uint64(1); seed <= 8; seed++ {
 		f := randmodel.RandomForest(seed, deepTrees)
 		rows := randmodel.RandomRows(seed, f, blockPartRows)
 		for _, float := range []bool{false, true} {
@@ -55,7 +56,10 @@ func TestCBlockParts(t *testing.T) {
 				built++
 			}
 			t.Run(fmt.Sprintf("seed%d/float=%v", seed, float), func(t *testing.T) {
-				got := runBlockParts(t, p, o, rows.Values)
+				got, rank := runBlockParts(t, p, o, rows.Values)
+				if rank {
+					ranks++
+				}
 				if float {
 					return
 				}
@@ -71,17 +75,20 @@ func TestCBlockParts(t *testing.T) {
 			})
 		}
 	}
-	require.Equal(t, 4, built, "seeds 1 to 12: want 4 forests the block layout writes")
+	require.Equal(t, 8, built, "seeds 1 to 8: want 8 forests the block layout writes")
+	require.GreaterOrEqual(t, ranks, 2, "forests with rank keys")
 }
 
 // runBlockParts emits p, builds a driver that checks NAME_predict_batch
 // on every prefix of the rows (and from row 5) against NAME_predict, and
-// returns NAME_predict's outputs as doubles.
-func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values []float64) []float64 {
+// returns NAME_predict's outputs as doubles and whether the keys are ranks.
+func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values []float64) ([]float64, bool) {
 	dir := t.TempDir()
 	files, err := ctarget.Emit(p, o)
 	require.NoError(t, err)
+	rank := false
 	for _, f := range files {
+		rank = rank || strings.Contains(string(f.Data), "deep_bk_rank(")
 		require.NoError(t, os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644))
 	}
 	require.NoError(t, os.WriteFile(filepath.Join(dir, "driver.c"), []byte(blockPartsDriver(o.Float, values)), 0o644))
@@ -99,7 +106,7 @@ func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values [
 		got = append(got, math.Float64frombits(u))
 	}
 	require.Len(t, got, len(values)/len(p.Features)*p.NumOutputs)
-	return got
+	return got, rank
 }
 
 // blockPartsDriver is the C driver of runBlockParts: the rows as bit

@@ -109,8 +109,10 @@ type blockForest struct {
 	steps []int     // per tree: its depth
 	ge    bool      // a row goes right when key >= thr (every split a <), else key > thr
 	// keyType is the C type of keys and thresholds: float where that is
-	// exact at every split (floatExact), else the arithmetic's type.
+	// exact at every split (floatExact), else uint16_t, ranks (see
+	// blockRanks), else the arithmetic's type.
 	keyType string
+	ranks   *blockRankKeys // the rank keys' tables, where keyType is uint16_t
 	kidTyp  string // the child number's type: uint8_t, uint16_t or uint32_t
 	rows8   int    // a block's rows: see blockRows
 }
@@ -169,6 +171,8 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 		for i, t := range b.thr {
 			b.thr[i] = float64(float32(t))
 		}
+	} else if b.ranks = g.blockRanks(b); b.ranks != nil {
+		b.keyType = "uint16_t"
 	}
 	keys := 2*len(g.p.Features) + 1
 	switch {
@@ -179,7 +183,7 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 	default:
 		b.kidTyp = "uint32_t"
 	}
-	b.rows8 = blockRows(keys, map[string]int{"float": 4, "double": 8}[b.keyType])
+	b.rows8 = blockRows(keys, map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType])
 }
 
 // blockNode appends node ni of tree ti, whose number from the root is
@@ -240,6 +244,10 @@ func (g *gen) blockTables(w *printer, b *blockForest) {
 	w.line("#define %s_BK_KEYS (2u * %s_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */", g.upper, g.upper)
 	w.line("")
 	g.blockNodes(w, b)
+	if b.ranks != nil {
+		g.blockRankTables(w, b.ranks)
+		g.blockRankSearch(w, b.ge)
+	}
 	if b.rows == nil {
 		g.bvArray(w, g.at, "bk_val", "block walk: each node's leaf value (0 at a split)", len(b.val), func(i int) string { return g.alit(b.val[i]) })
 	} else {
@@ -258,8 +266,13 @@ func (g *gen) blockNodes(w *printer, b *blockForest) {
 	w.line(" * child counted from the tree's root (a leaf: itself, with thr +inf and k")
 	w.line(" * the -inf key). */")
 	w.line("struct %s_bk_node {", g.name)
-	w.line("	%s thr;", b.keyType)
-	w.line("	%s kid;", b.kidTyp)
+	if b.ranks != nil && b.kidTyp == "uint32_t" {
+		w.line("	%s kid;", b.kidTyp)
+		w.line("	%s thr;", b.keyType)
+	} else {
+		w.line("	%s thr;", b.keyType)
+		w.line("	%s kid;", b.kidTyp)
+	}
 	w.line("	uint16_t k;")
 	w.line("};")
 	w.line("static const struct %s_bk_node %s_bk_nodes[%d] = {", g.name, g.name, len(b.key))
@@ -267,6 +280,8 @@ func (g *gen) blockNodes(w *printer, b *blockForest) {
 		t := b.thr[i]
 		var s string
 		switch {
+		case b.ranks != nil:
+			s = fmt.Sprintf("%du", int(t))
 		case math.IsInf(t, 0):
 			s = map[bool]string{true: "", false: "-"}[t > 0] + inf
 		case b.keyType == "float":
@@ -274,21 +289,38 @@ func (g *gen) blockNodes(w *printer, b *blockForest) {
 		default:
 			s = doubleLit(t)
 		}
+		if b.ranks != nil && b.kidTyp == "uint32_t" {
+			w.line("	{%du, %s, %du}%s", b.kid[i], s, b.key[i], comma(i, len(b.key)))
+			continue
+		}
 		w.line("	{%s, %du, %du}%s", s, b.kid[i], b.key[i], comma(i, len(b.key)))
 	}
 	w.line("};")
 	w.line("")
-	size := map[string]int{"double": 8, "float": 4}[b.keyType]
-	size += size // the child and key words pad to the threshold's alignment
-	if b.kidTyp == "uint32_t" && b.keyType == "float" {
-		size = 12
-	}
-	g.tables = append(g.tables, Table{Name: g.name + "_bk_nodes", What: "block walk: threshold, child, key index", Len: len(b.key), ElemBytes: size})
+	g.tables = append(g.tables, Table{Name: g.name + "_bk_nodes", What: "block walk: threshold, child, key index", Len: len(b.key), ElemBytes: b.nodeBytes()})
 }
 
-// cmp is the comparison that sends a row right.
+// nodeBytes is the size of a node: its fields, each aligned to its size,
+// the struct to its largest.
+func (b *blockForest) nodeBytes() int {
+	size := map[string]int{"uint8_t": 1, "uint16_t": 2, "uint32_t": 4, "float": 4, "double": 8}
+	fields := []string{b.keyType, b.kidTyp, "uint16_t"}
+	if b.ranks != nil && b.kidTyp == "uint32_t" {
+		fields[0], fields[1] = fields[1], fields[0]
+	}
+	n, most := 0, 1
+	for _, f := range fields {
+		s := size[f]
+		n = (n + s - 1) / s * s
+		n += s
+		most = max(most, s)
+	}
+	return (n + most - 1) / most * most
+}
+
+// cmp is the comparison that sends a row right: ranks compare with >.
 func (b *blockForest) cmp() string {
-	if b.ge {
+	if b.ge && b.ranks == nil {
 		return ">="
 	}
 	return ">"
@@ -357,12 +389,20 @@ func (g *gen) blockKeys(w *printer, b *blockForest) {
 	w.line("%s *const k = key + (lane - lane %% %du) * %s_BK_KEYS + lane %% %du; /* eight rows' keys side by side */", kt, blockChains, u, blockChains)
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
-	w.line("const %s v = xr[j];", g.ft)
-	w.line("k[2 * j * %d] = v != v ? -%s : %sv;", blockChains, inf, cast)
-	w.line("k[(2 * j + 1) * %d] = v != v ? %s : %sv;", blockChains, inf, cast)
+	if b.ranks != nil {
+		g.blockRankKeyLines(w)
+	} else {
+		w.line("const %s v = xr[j];", g.ft)
+		w.line("k[2 * j * %d] = v != v ? -%s : %sv;", blockChains, inf, cast)
+		w.line("k[(2 * j + 1) * %d] = v != v ? %s : %sv;", blockChains, inf, cast)
+	}
 	w.out()
 	w.line("}")
-	w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, inf)
+	if b.ranks != nil {
+		w.line("k[2 * %s_NUM_FEATURES * %d] = 0u; /* the leaves' key */", u, blockChains)
+	} else {
+		w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, inf)
+	}
 	for j := 0; j < g.p.NumOutputs; j++ {
 		w.line("sum[lane * %s_NUM_OUTPUTS + %du] = %s;", u, j, g.accStart(j))
 	}

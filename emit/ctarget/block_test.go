@@ -50,15 +50,16 @@ func TestBlockNodes(t *testing.T) {
 	require.False(t, b.ge)
 	// tree 0's leaf 0; tree 1 from its root: 0, children 1 (leaf 10) and 2, whose children 3 and 4
 	require.Equal(t, []uint32{0, 1, 1, 3, 3, 4}, b.kid)
-	require.Equal(t, []uint32{6, 1<<1 | 1, 6, 0, 6, 6}, b.key)
-	require.Equal(t, math.Nextafter(2, math.Inf(-1)), b.thr[1])
-	require.Equal(t, 1.0, b.thr[3])
-	for _, i := range []int{0, 2, 4, 5} {
-		require.True(t, math.IsInf(b.thr[i], 1), "leaf %d", i)
-	}
+	// key indexes times the eight chains; the leaves' key is 2 * 3
+	require.Equal(t, []uint32{48, (1<<1 | 1) * 8, 48, 0, 48, 48}, b.key)
 	require.Equal(t, []float64{5, 0, 10, 0, 30, 40}, b.val)
-	require.Equal(t, "double", b.keyType, "a float key above 1 can round to 1")
-	require.Equal(t, "uint8_t", b.keyTyp)
+	require.Equal(t, "uint16_t", b.keyType, "a float key above 1 can round to 1: ranks")
+	// ranks: each split's threshold is its index among its feature's cuts
+	require.Equal(t, [][]float64{{1}, {math.Nextafter(2, math.Inf(-1))}, nil}, b.ranks.cuts)
+	require.Equal(t, []float64{0, 0, 0, 0, 0, 0}, b.thr)
+	require.Equal(t, []int{0, 0, 0}, b.ranks.lo)
+	require.Equal(t, []int{1, 1, 0}, b.ranks.hi)
+	require.Equal(t, ">", b.cmp())
 	require.Equal(t, "uint8_t", b.kidTyp)
 }
 
@@ -78,8 +79,8 @@ func TestBlockKeepsLT(t *testing.T) {
 	b := g.buildBlock()
 	require.True(t, b.ge)
 	require.Equal(t, "float", b.keyType)
-	require.Equal(t, "uint16_t", b.keyTyp, "401 keys")
-	require.Equal(t, []uint32{1, 400, 400}, b.key)
+	require.Equal(t, []uint32{8, 400 * 8, 400 * 8}, b.key)
+	require.Nil(t, b.ranks)
 }
 
 // TestBlockRows: a block holds as many rows as blockKeyBytes of keys
@@ -88,4 +89,20 @@ func TestBlockRows(t *testing.T) {
 	require.Equal(t, BlockMaxRows, blockRows(41, 4)) // 128 rows x 41 keys x 4 bytes = 20,992 bytes
 	require.Equal(t, 16, blockRows(201, 8))          // 16 x 201 x 8 = 25,728 bytes
 	require.Equal(t, 8, blockRows(2*BlockMaxFeatures+1, 8))
+}
+
+// TestRankOf: a rank counts the cuts below a value, or at or below it
+// where every split is a <, so that x > T[i] (x >= T[i]) exactly when the
+// rank exceeds i; -inf as a cut counts for -inf only at or below.
+func TestRankOf(t *testing.T) {
+	cuts := []float64{math.Inf(-1), -1, 0, 2.5}
+	for _, ge := range []bool{false, true} {
+		for _, x := range []float64{math.Inf(-1), -2, -1, math.Nextafter(-1, 0), 0, 1, 2.5, 3, math.Inf(1)} {
+			r := rankOf(cuts, x, ge)
+			for i, c := range cuts {
+				right := x > c || ge && x == c
+				require.Equal(t, right, r > i, "x %v, cut %v, ge %v", x, c, ge)
+			}
+		}
+	}
 }

@@ -5,7 +5,6 @@
 #include "pumpmodel.h"
 
 #include <float.h>
-#include <math.h>
 #include <stdint.h>
 
 /* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
@@ -143,52 +142,94 @@ int pumpmodel_predict_class(const double *x)
 	return best;
 }
 
-#define PUMPMODEL_BK_ROWS 120u /* a block's rows: 32768 bytes of keys at most */
+#define PUMPMODEL_BK_ROWS 128u /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_BK_KEYS (2u * PUMPMODEL_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */
 
 /* block walk: per node, the row goes right when key[k] > thr; kid, the left
  * child counted from the tree's root (a leaf: itself, with thr +inf and k
  * the -inf key). */
 struct pumpmodel_bk_node {
-	double thr;
+	uint16_t thr;
 	uint8_t kid;
 	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[33] = {
-	{0.0, 1u, 0u},
-	{HUGE_VAL, 1u, 256u},
-	{0.5, 3u, 24u},
-	{HUGE_VAL, 3u, 256u},
-	{1.0, 5u, 32u},
-	{HUGE_VAL, 5u, 256u},
-	{1.5, 7u, 56u},
-	{HUGE_VAL, 7u, 256u},
-	{2.0, 9u, 64u},
-	{HUGE_VAL, 9u, 256u},
-	{2.5, 11u, 88u},
-	{HUGE_VAL, 11u, 256u},
-	{3.0, 13u, 96u},
-	{HUGE_VAL, 13u, 256u},
-	{3.5, 15u, 120u},
-	{HUGE_VAL, 15u, 256u},
-	{4.0, 17u, 128u},
-	{HUGE_VAL, 17u, 256u},
-	{4.5, 19u, 152u},
-	{HUGE_VAL, 19u, 256u},
-	{5.0, 21u, 160u},
-	{HUGE_VAL, 21u, 256u},
-	{5.5, 23u, 184u},
-	{HUGE_VAL, 23u, 256u},
-	{6.0, 25u, 192u},
-	{HUGE_VAL, 25u, 256u},
-	{6.5, 27u, 216u},
-	{HUGE_VAL, 27u, 256u},
-	{7.0, 29u, 224u},
-	{HUGE_VAL, 29u, 256u},
-	{7.5, 31u, 248u},
-	{HUGE_VAL, 31u, 256u},
-	{HUGE_VAL, 32u, 256u}
+	{0u, 1u, 0u},
+	{0u, 1u, 256u},
+	{0u, 3u, 24u},
+	{0u, 3u, 256u},
+	{0u, 5u, 32u},
+	{0u, 5u, 256u},
+	{0u, 7u, 56u},
+	{0u, 7u, 256u},
+	{0u, 9u, 64u},
+	{0u, 9u, 256u},
+	{0u, 11u, 88u},
+	{0u, 11u, 256u},
+	{0u, 13u, 96u},
+	{0u, 13u, 256u},
+	{0u, 15u, 120u},
+	{0u, 15u, 256u},
+	{0u, 17u, 128u},
+	{0u, 17u, 256u},
+	{0u, 19u, 152u},
+	{0u, 19u, 256u},
+	{0u, 21u, 160u},
+	{0u, 21u, 256u},
+	{0u, 23u, 184u},
+	{0u, 23u, 256u},
+	{0u, 25u, 192u},
+	{0u, 25u, 256u},
+	{0u, 27u, 216u},
+	{0u, 27u, 256u},
+	{0u, 29u, 224u},
+	{0u, 29u, 256u},
+	{0u, 31u, 248u},
+	{0u, 31u, 256u},
+	{0u, 32u, 256u}
 };
+
+/* block walk: per feature, its distinct thresholds in ascending order */
+static const double pumpmodel_bk_cut[16] = {
+	0.0, 0.5, 1.0, 1.5, 2.0, 2.5, 3.0, 3.5,
+	4.0, 4.5, 5.0, 5.5, 6.0, 6.5, 7.0, 7.5
+};
+
+/* block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end */
+static const uint32_t pumpmodel_bk_cut_at[17] = {
+	0u, 1u, 2u, 3u, 4u, 5u, 6u, 7u,
+	8u, 9u, 10u, 11u, 12u, 13u, 14u, 15u,
+	16u
+};
+
+/* block walk: per feature, the key of NaN going left (the rank of -inf) */
+static const uint16_t pumpmodel_bk_lo[16] = {
+	0u, 0u, 0u, 0u, 0u, 0u, 0u, 0u,
+	0u, 0u, 0u, 0u, 0u, 0u, 0u, 0u
+};
+
+/* block walk: per feature, the key of NaN going right (the rank of +inf) */
+static const uint16_t pumpmodel_bk_hi[16] = {
+	1u, 1u, 1u, 1u, 1u, 1u, 1u, 1u,
+	1u, 1u, 1u, 1u, 1u, 1u, 1u, 1u
+};
+
+/* The number of the n cuts at t (ascending) < v: a binary search whose
+ * levels choose a pointer, not a branch. NaN gives 0 (its keys are set
+ * apart). */
+static uint16_t pumpmodel_bk_rank(const double *t, uint32_t n, double v)
+{
+	const double *b = t;
+	if (n == 0u) {
+		return 0u;
+	}
+	while (n > 1u) {
+		const uint32_t half = n / 2u;
+		b = b[half] < v ? b + half : b;
+		n -= half;
+	}
+	return (uint16_t)((size_t)(b - t) + (size_t)(*b < v));
+}
 
 /* block walk: distinct leaf vectors */
 static const double pumpmodel_bk_leaf[16][PUMPMODEL_NUM_OUTPUTS] = {
@@ -238,20 +279,21 @@ static const uint32_t pumpmodel_bk_steps[1] = {
 static void pumpmodel_block(const double *x, size_t count, double *outs)
 {
 	double sum[PUMPMODEL_BK_ROWS * PUMPMODEL_NUM_OUTPUTS];
-	double key[PUMPMODEL_BK_ROWS * PUMPMODEL_BK_KEYS];
+	uint16_t key[PUMPMODEL_BK_ROWS * PUMPMODEL_BK_KEYS];
 	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const double *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		double *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
+		uint16_t *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const double v = xr[j];
-			k[2 * j * 8] = v != v ? -HUGE_VAL : v;
-			k[(2 * j + 1) * 8] = v != v ? HUGE_VAL : v;
+			const uint16_t r = pumpmodel_bk_rank(pumpmodel_bk_cut + pumpmodel_bk_cut_at[j], pumpmodel_bk_cut_at[j + 1] - pumpmodel_bk_cut_at[j], v);
+			k[2 * j * 8] = v != v ? pumpmodel_bk_lo[j] : r;
+			k[(2 * j + 1) * 8] = v != v ? pumpmodel_bk_hi[j] : r;
 		}
-		k[2 * PUMPMODEL_NUM_FEATURES * 8] = -HUGE_VAL; /* the leaves' key */
+		k[2 * PUMPMODEL_NUM_FEATURES * 8] = 0u; /* the leaves' key */
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = 0.0;
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 1u] = 0.0;
 	}
@@ -259,7 +301,7 @@ static void pumpmodel_block(const double *x, size_t count, double *outs)
 		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
-			const double *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
+			const uint16_t *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
 			uint32_t i0 = 0u;
 			uint32_t i1 = 0u;
 			uint32_t i2 = 0u;

@@ -5,7 +5,6 @@
 #include "pumpmodel.h"
 
 #include <float.h>
-#include <math.h>
 #include <stdint.h>
 
 /* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
@@ -103,20 +102,57 @@ void pumpmodel_predict(const double *x, double *out)
  * child counted from the tree's root (a leaf: itself, with thr +inf and k
  * the -inf key). */
 struct pumpmodel_bk_node {
-	double thr;
+	uint16_t thr;
 	uint8_t kid;
 	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[8] = {
-	{0.5, 1u, 0u},
-	{0.0, 3u, 24u},
-	{HUGE_VAL, 2u, 32u},
-	{HUGE_VAL, 3u, 32u},
-	{HUGE_VAL, 4u, 32u},
-	{5e-324, 1u, 24u},
-	{HUGE_VAL, 1u, 32u},
-	{HUGE_VAL, 2u, 32u}
+	{0u, 1u, 0u},
+	{0u, 3u, 24u},
+	{0u, 2u, 32u},
+	{0u, 3u, 32u},
+	{0u, 4u, 32u},
+	{1u, 1u, 24u},
+	{0u, 1u, 32u},
+	{0u, 2u, 32u}
 };
+
+/* block walk: per feature, its distinct thresholds in ascending order */
+static const double pumpmodel_bk_cut[3] = {
+	0.5, 0.0, 5e-324
+};
+
+/* block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end */
+static const uint32_t pumpmodel_bk_cut_at[3] = {
+	0u, 1u, 3u
+};
+
+/* block walk: per feature, the key of NaN going left (the rank of -inf) */
+static const uint16_t pumpmodel_bk_lo[2] = {
+	0u, 0u
+};
+
+/* block walk: per feature, the key of NaN going right (the rank of +inf) */
+static const uint16_t pumpmodel_bk_hi[2] = {
+	1u, 2u
+};
+
+/* The number of the n cuts at t (ascending) < v: a binary search whose
+ * levels choose a pointer, not a branch. NaN gives 0 (its keys are set
+ * apart). */
+static uint16_t pumpmodel_bk_rank(const double *t, uint32_t n, double v)
+{
+	const double *b = t;
+	if (n == 0u) {
+		return 0u;
+	}
+	while (n > 1u) {
+		const uint32_t half = n / 2u;
+		b = b[half] < v ? b + half : b;
+		n -= half;
+	}
+	return (uint16_t)((size_t)(b - t) + (size_t)(*b < v));
+}
 
 /* block walk: each node's leaf value (0 at a split) */
 static const double pumpmodel_bk_val[8] = {
@@ -142,27 +178,28 @@ static const uint32_t pumpmodel_bk_steps[2] = {
 static void pumpmodel_block(const double *x, size_t count, double *outs)
 {
 	double sum[PUMPMODEL_BK_ROWS * PUMPMODEL_NUM_OUTPUTS];
-	double key[PUMPMODEL_BK_ROWS * PUMPMODEL_BK_KEYS];
+	uint16_t key[PUMPMODEL_BK_ROWS * PUMPMODEL_BK_KEYS];
 	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const double *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		double *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
+		uint16_t *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const double v = xr[j];
-			k[2 * j * 8] = v != v ? -HUGE_VAL : v;
-			k[(2 * j + 1) * 8] = v != v ? HUGE_VAL : v;
+			const uint16_t r = pumpmodel_bk_rank(pumpmodel_bk_cut + pumpmodel_bk_cut_at[j], pumpmodel_bk_cut_at[j + 1] - pumpmodel_bk_cut_at[j], v);
+			k[2 * j * 8] = v != v ? pumpmodel_bk_lo[j] : r;
+			k[(2 * j + 1) * 8] = v != v ? pumpmodel_bk_hi[j] : r;
 		}
-		k[2 * PUMPMODEL_NUM_FEATURES * 8] = -HUGE_VAL; /* the leaves' key */
+		k[2 * PUMPMODEL_NUM_FEATURES * 8] = 0u; /* the leaves' key */
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.0;
 	}
 	for (tree = 0; tree < 2u; tree++) {
 		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
-			const double *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
+			const uint16_t *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
 			uint32_t i0 = 0u;
 			uint32_t i1 = 0u;
 			uint32_t i2 = 0u;
