@@ -113,8 +113,8 @@ type blockForest struct {
 	// blockRanks), else the arithmetic's type.
 	keyType string
 	ranks   *blockRankKeys // the rank keys' tables, where keyType is uint16_t
-	kidTyp  string // the child number's type: uint8_t, uint16_t or uint32_t
-	rows8   int    // a block's rows: see blockRows
+	kidTyp  string         // the child number's type: uint8_t, uint16_t or uint32_t
+	rows8   int            // a block's rows: see blockRows
 }
 
 // blockRows is the rows of a block: as many as blockKeyBytes of keys hold
