@@ -173,6 +173,7 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 		}
 	} else if b.ranks = g.blockRanks(b); b.ranks != nil {
 		b.keyType = "uint16_t"
+		biggest = max(biggest, 65537) // 4-byte child numbers: 8-byte nodes, which x86-64 addresses in one step
 	}
 	keys := 2*len(g.p.Features) + 1
 	switch {

@@ -60,7 +60,7 @@ func TestBlockNodes(t *testing.T) {
 	require.Equal(t, []int{0, 0, 0}, b.ranks.lo)
 	require.Equal(t, []int{1, 1, 0}, b.ranks.hi)
 	require.Equal(t, ">", b.cmp())
-	require.Equal(t, "uint8_t", b.kidTyp)
+	require.Equal(t, "uint32_t", b.kidTyp, "rank keys: 8-byte nodes")
 }
 
 // TestBlockKeepsLT: where every split is "<", the thresholds stay the
