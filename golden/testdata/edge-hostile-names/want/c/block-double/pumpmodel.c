@@ -149,44 +149,44 @@ int pumpmodel_predict_class(const double *x)
  * child counted from the tree's root (a leaf: itself, with thr +inf and k
  * the -inf key). */
 struct pumpmodel_bk_node {
+	uint32_t kid;
 	uint16_t thr;
-	uint8_t kid;
 	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[33] = {
-	{0u, 1u, 0u},
-	{0u, 1u, 256u},
-	{0u, 3u, 24u},
-	{0u, 3u, 256u},
-	{0u, 5u, 32u},
-	{0u, 5u, 256u},
-	{0u, 7u, 56u},
-	{0u, 7u, 256u},
-	{0u, 9u, 64u},
-	{0u, 9u, 256u},
-	{0u, 11u, 88u},
-	{0u, 11u, 256u},
-	{0u, 13u, 96u},
-	{0u, 13u, 256u},
-	{0u, 15u, 120u},
-	{0u, 15u, 256u},
-	{0u, 17u, 128u},
-	{0u, 17u, 256u},
-	{0u, 19u, 152u},
-	{0u, 19u, 256u},
-	{0u, 21u, 160u},
-	{0u, 21u, 256u},
-	{0u, 23u, 184u},
-	{0u, 23u, 256u},
-	{0u, 25u, 192u},
-	{0u, 25u, 256u},
-	{0u, 27u, 216u},
-	{0u, 27u, 256u},
-	{0u, 29u, 224u},
-	{0u, 29u, 256u},
-	{0u, 31u, 248u},
-	{0u, 31u, 256u},
-	{0u, 32u, 256u}
+	{1u, 0u, 0u},
+	{1u, 0u, 256u},
+	{3u, 0u, 24u},
+	{3u, 0u, 256u},
+	{5u, 0u, 32u},
+	{5u, 0u, 256u},
+	{7u, 0u, 56u},
+	{7u, 0u, 256u},
+	{9u, 0u, 64u},
+	{9u, 0u, 256u},
+	{11u, 0u, 88u},
+	{11u, 0u, 256u},
+	{13u, 0u, 96u},
+	{13u, 0u, 256u},
+	{15u, 0u, 120u},
+	{15u, 0u, 256u},
+	{17u, 0u, 128u},
+	{17u, 0u, 256u},
+	{19u, 0u, 152u},
+	{19u, 0u, 256u},
+	{21u, 0u, 160u},
+	{21u, 0u, 256u},
+	{23u, 0u, 184u},
+	{23u, 0u, 256u},
+	{25u, 0u, 192u},
+	{25u, 0u, 256u},
+	{27u, 0u, 216u},
+	{27u, 0u, 256u},
+	{29u, 0u, 224u},
+	{29u, 0u, 256u},
+	{31u, 0u, 248u},
+	{31u, 0u, 256u},
+	{32u, 0u, 256u}
 };
 
 /* block walk: per feature, its distinct thresholds in ascending order */

@@ -122,22 +122,22 @@ int pumpmodel_predict_class(const double *x)
  * child counted from the tree's root (a leaf: itself, with thr +inf and k
  * the -inf key). */
 struct pumpmodel_bk_node {
+	uint32_t kid;
 	uint16_t thr;
-	uint8_t kid;
 	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[11] = {
-	{0u, 1u, 24u},
-	{1u, 3u, 0u},
-	{0u, 2u, 32u},
-	{0u, 3u, 32u},
-	{0u, 4u, 32u},
-	{0u, 1u, 8u},
-	{0u, 1u, 32u},
-	{0u, 2u, 32u},
+	{1u, 0u, 24u},
+	{3u, 1u, 0u},
+	{2u, 0u, 32u},
+	{3u, 0u, 32u},
+	{4u, 0u, 32u},
+	{1u, 0u, 8u},
+	{1u, 0u, 32u},
+	{2u, 0u, 32u},
 	{1u, 1u, 24u},
-	{0u, 1u, 32u},
-	{0u, 2u, 32u}
+	{1u, 0u, 32u},
+	{2u, 0u, 32u}
 };
 
 /* block walk: per feature, its distinct thresholds in ascending order */

@@ -102,19 +102,19 @@ void pumpmodel_predict(const double *x, double *out)
  * child counted from the tree's root (a leaf: itself, with thr +inf and k
  * the -inf key). */
 struct pumpmodel_bk_node {
+	uint32_t kid;
 	uint16_t thr;
-	uint8_t kid;
 	uint16_t k;
 };
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[8] = {
-	{0u, 1u, 0u},
-	{0u, 3u, 24u},
-	{0u, 2u, 32u},
-	{0u, 3u, 32u},
-	{0u, 4u, 32u},
+	{1u, 0u, 0u},
+	{3u, 0u, 24u},
+	{2u, 0u, 32u},
+	{3u, 0u, 32u},
+	{4u, 0u, 32u},
 	{1u, 1u, 24u},
-	{0u, 1u, 32u},
-	{0u, 2u, 32u}
+	{1u, 0u, 32u},
+	{2u, 0u, 32u}
 };
 
 /* block walk: per feature, its distinct thresholds in ascending order */
