@@ -233,7 +233,7 @@ func (g *gen) block(w *printer) error {
 	g.batch = func(w *printer) {
 		g.blockTables(w, b)
 		g.blockBatch(w, b)
-		g.blockLoopFrom(w, "block", "BK_ROWS", fmt.Sprintf("%du", blockChains))
+		g.blockLoopFrom(w, "block", "BK_ROWS", fmt.Sprintf("%du", blockChains), "under eight rows")
 	}
 	return nil
 }
@@ -499,12 +499,13 @@ func (g *gen) batchFinish(w *printer) {
 // each through NAME_<fn>, then the rest as one part block, or through
 // NAME_predict when under a quarter block.
 func (g *gen) blockLoop(w *printer, fn, rows string) {
-	g.blockLoopFrom(w, fn, rows, fmt.Sprintf("%s_%s / 4u", g.upper, rows))
+	g.blockLoopFrom(w, fn, rows, fmt.Sprintf("%s_%s / 4u", g.upper, rows), "under a quarter block")
 }
 
 // blockLoopFrom is blockLoop with the fewest rows of a part block (a C
-// expression): fewer go through NAME_predict one by one.
-func (g *gen) blockLoopFrom(w *printer, fn, rows, least string) {
+// expression): fewer, which few says in words, go through NAME_predict one
+// by one.
+func (g *gen) blockLoopFrom(w *printer, fn, rows, least, few string) {
 	ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
 	w.line("")
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
@@ -517,7 +518,7 @@ func (g *gen) blockLoopFrom(w *printer, fn, rows, least string) {
 	w.line("\t\t%s_%s(x + r * %s, n - r, outs + r * %s);", g.name, fn, nf, no)
 	w.line("\t\treturn;")
 	w.line("\t}")
-	w.line("\tfor (; r < n; r++) { /* a few rows: one by one, the same bits */")
+	w.line("\tfor (; r < n; r++) { /* %s: one by one, the same bits */", few)
 	w.line("\t\t%s_predict(x + r * %s, outs + r * %s);", g.name, nf, no)
 	w.line("\t}")
 	w.line("}")

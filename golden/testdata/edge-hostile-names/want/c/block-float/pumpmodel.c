@@ -378,7 +378,7 @@ void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
 		pumpmodel_block(x + r * PUMPMODEL_NUM_FEATURES, n - r, outs + r * PUMPMODEL_NUM_OUTPUTS);
 		return;
 	}
-	for (; r < n; r++) { /* a few rows: one by one, the same bits */
+	for (; r < n; r++) { /* under eight rows: one by one, the same bits */
 		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, outs + r * PUMPMODEL_NUM_OUTPUTS);
 	}
 }

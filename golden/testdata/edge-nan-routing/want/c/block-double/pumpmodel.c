@@ -276,7 +276,7 @@ void pumpmodel_predict_batch(const double *x, size_t n, double *outs)
 		pumpmodel_block(x + r * PUMPMODEL_NUM_FEATURES, n - r, outs + r * PUMPMODEL_NUM_OUTPUTS);
 		return;
 	}
-	for (; r < n; r++) { /* a few rows: one by one, the same bits */
+	for (; r < n; r++) { /* under eight rows: one by one, the same bits */
 		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, outs + r * PUMPMODEL_NUM_OUTPUTS);
 	}
 }
