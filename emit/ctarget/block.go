@@ -39,6 +39,23 @@ const BlockMaxRows = 128
 // blockKeyBytes bounds a block's keys on the stack.
 const blockKeyBytes = 32768
 
+// blockBigNodes is the size of node tables (bytes) past which a forest is
+// taken not to fit the second-level cache: every block then streams the
+// forest from memory, so blocks take up to blockBigRows rows and
+// blockBigKeyBytes of keys. On the 100-tree fully grown forest of
+// bench/libs/run.sh (3.4 MB of nodes) 1,024-row blocks took 2,597 and
+// 2,763 ns a row against 128-row blocks' 3,837 and 4,575 (10,000-row
+// batches, best of 3, alternating runs, load average 1.7 on 2 cores).
+const blockBigNodes = 1 << 20
+
+// blockBigRows and blockBigKeyBytes are BlockMaxRows and blockKeyBytes for
+// forests past blockBigNodes: a thread needs 256 KiB of stack for the keys
+// (glibc's default thread stack is 8 MiB; musl's 128 KiB is too small).
+const (
+	blockBigRows     = 1024
+	blockBigKeyBytes = 262144
+)
+
 // blockChains is the number of rows whose steps are interleaved.
 const blockChains = 8
 
@@ -125,6 +142,12 @@ func blockRows(keys, keyBytes int) int {
 	return max(blockChains, min(BlockMaxRows, r))
 }
 
+// blockRowsBig is blockRows for forests past blockBigNodes.
+func blockRowsBig(keys, keyBytes int) int {
+	r := blockBigKeyBytes / (keys * keyBytes) / blockChains * blockChains
+	return max(blockChains, min(blockBigRows, r))
+}
+
 // buildBlock numbers each tree's nodes breadth first, the two children of a
 // split taking consecutive numbers.
 func (g *gen) buildBlock() *blockForest {
@@ -184,7 +207,11 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 	default:
 		b.kidTyp = "uint32_t"
 	}
-	b.rows8 = blockRows(keys, map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType])
+	kb := map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType]
+	b.rows8 = blockRows(keys, kb)
+	if len(b.key)*b.nodeBytes() > blockBigNodes {
+		b.rows8 = blockRowsBig(keys, kb)
+	}
 }
 
 // blockNode appends node ni of tree ti, whose number from the root is
@@ -241,7 +268,11 @@ func (g *gen) block(w *printer) error {
 // blockTables writes the nodes, the leaves and the per-tree roots and
 // steps.
 func (g *gen) blockTables(w *printer, b *blockForest) {
-	w.line("#define %s_BK_ROWS %du /* a block's rows: %d bytes of keys at most */", g.upper, b.rows8, blockKeyBytes)
+	kb := blockKeyBytes
+	if b.rows8 > BlockMaxRows {
+		kb = blockBigKeyBytes
+	}
+	w.line("#define %s_BK_ROWS %du /* a block's rows: %d bytes of keys at most */", g.upper, b.rows8, kb)
 	w.line("#define %s_BK_KEYS (2u * %s_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */", g.upper, g.upper)
 	w.line("")
 	g.blockNodes(w, b)

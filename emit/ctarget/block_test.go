@@ -106,3 +106,10 @@ func TestRankOf(t *testing.T) {
 		}
 	}
 }
+
+// TestBlockRowsBig: forests whose nodes pass blockBigNodes take blocks of
+// up to blockBigRows rows.
+func TestBlockRowsBig(t *testing.T) {
+	require.Equal(t, blockBigRows, blockRowsBig(41, 4)) // 1,024 x 41 x 4 = 167,936 bytes
+	require.Equal(t, 320, blockRowsBig(201, 4))         // 320 x 201 x 4 = 257,280 bytes
+}
