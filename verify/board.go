@@ -138,8 +138,8 @@ func findBoard(variant string) board {
 func (boardRunner) Name() string { return BoardRunnerName }
 
 // Layouts are every C layout but perfect and block, which are for batch
-// scoring on desktops and servers: a block of their keys takes up to 32 KiB
-// of stack, more than some boards' RAM.
+// scoring on desktops and servers: a block of their keys takes 32 KiB of
+// stack or more, more than some boards' RAM.
 func (boardRunner) Layouts() []string {
 	return slices.DeleteFunc(ctarget.Layouts(), func(l string) bool { return l == ctarget.Perfect || l == ctarget.Block })
 }
