@@ -137,11 +137,11 @@ func findBoard(variant string) board {
 
 func (boardRunner) Name() string { return BoardRunnerName }
 
-// Layouts are every C layout but perfect, which is for batch scoring on
-// desktops and servers: a block of its keys takes up to 32 KiB of stack,
-// more than some boards' RAM.
+// Layouts are every C layout but perfect and block, which are for batch
+// scoring on desktops and servers: a block of their keys takes 32 KiB of
+// stack or more, more than some boards' RAM.
 func (boardRunner) Layouts() []string {
-	return slices.DeleteFunc(ctarget.Layouts(), func(l string) bool { return l == ctarget.Perfect })
+	return slices.DeleteFunc(ctarget.Layouts(), func(l string) bool { return l == ctarget.Perfect || l == ctarget.Block })
 }
 
 // Variants are the processors: m4, m4-float, m0, rv32, arm64.

@@ -24,10 +24,11 @@ import (
 var blockCases = []string{"edge-nan-routing", "sklearn-breast-cancer", "v2-accumulate32-sum",
 	"edge-softmax", "edge-float32", "trained-regression", "v2-multi-output-regression"}
 
-// TestCBlockLanes builds the block layout with and without -mavx2 (the AVX2
-// gathers and the scalar step) and requires every build to print the same
-// bytes (score checks it) and those to be the interpreter's, in double and
-// float, NAME_predict_batch being checked against NAME_predict by the
+// TestCBlockLanes builds the block layout with and without -mavx2 (the
+// walk has no AVX2 path of its own any more; what the compilers vectorise
+// under -mavx2 must not change a bit) and requires every build to print the
+// same bytes (score checks it) and those to be the interpreter's, in double
+// and float, NAME_predict_batch being checked against NAME_predict by the
 // driver. Cost: 7 cases x 2 variants x 3 builds, about 20 s of gcc/clang.
 func TestCBlockLanes(t *testing.T) {
 	testenv.Need(t, cTools(true))

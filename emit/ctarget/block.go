@@ -3,44 +3,79 @@ package ctarget
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"github.com/sawmill-dev/sawmill/compile"
 )
 
-// Block is the layout whose NAME_predict_batch walks blocks of rows in
-// lock-step with predication, after Asadi, Lin & de Vries ("Runtime
-// optimizations for tree-based machine learning models", IEEE TKDE 2014).
-// NAME_predict is the table layout's. For NAME_predict_batch every tree is
-// stored once more as arrays of nodes in which a split's two children are
-// neighbours and a leaf is its own child; a block of BlockRows rows takes,
-// tree by tree, as many steps as the tree is deep, each step for every
-// row of the block
+// Block is the layout whose NAME_predict_batch walks blocks of rows tree by
+// tree with no branch on the data, for trees of any depth (after Asadi, Lin
+// & de Vries, "Runtime optimizations for tree-based machine learning
+// models", IEEE TKDE 2014). NAME_predict is the table layout's.
 //
-//	node = child[node] + (x[f[node]] > t[node] || (isnan(x[f[node]]) && nanRight[node]))
+// A block of rows (see blockRows) first writes each row's keys as the
+// perfect walk does: per feature the input with NaN as -inf (key 2f) and as
+// +inf (key 2f+1), and one more key, -inf, which leaves point at. Every
+// tree is stored once more as nodes of a key index (feature << 1 | NaN goes
+// right), a threshold and a child number counted from the tree's root, the
+// two children of a split next to each other (breadth first); a leaf is
+// its own child and compares the -inf key with +inf, which never sends a
+// row on. A step is
 //
-// with no branch on the data (a leaf's threshold is +inf and NaN goes left
-// there, so a row that reached a leaf stays on it). Where the compiler
-// targets AVX2 (__AVX2__) the lanes of a step are vector gathers, compares
-// and integer adds; elsewhere the same step is scalar. Both are comparisons
-// and selections only: each row's leaves are added one by one in tree
-// order, as NAME_predict adds them, so the outputs are bit for bit
-// NAME_predict's on either path.
+//	i = kid[i] + (key[k[i]] > th[i])
+//
+// (>= where every split is a <), eight rows' steps interleaved and unrolled
+// in the code. Shallow trees take their depth in steps; deeper ones stop
+// once no row of the eight moved over a group of steps (blockCheckDepth).
+// Keys and thresholds are floats where that decides every split as the
+// double comparison would (floatExact). Each row's leaves are added in
+// tree order, so the outputs are NAME_predict's bit for bit.
 const Block = "block"
 
-// BlockRows is the number of rows walked in lock-step: four AVX2 vectors of
-// doubles, two of floats.
-const BlockRows = 16
+// BlockMaxRows is the most rows a block walks together: every block reads
+// the trees' nodes again, so more rows a block read them fewer times.
+const BlockMaxRows = 128
 
-// blockMaxNodes bounds the forest's nodes so that node numbers and the
-// child words (a node number shifted left by one) fit 32 bits.
+// blockKeyBytes bounds a block's keys on the stack.
+const blockKeyBytes = 32768
+
+// blockBigNodes is the size of node tables (bytes) past which a forest is
+// taken not to fit the second-level cache: every block then streams the
+// forest from memory, so blocks take up to blockBigRows rows and
+// blockBigKeyBytes of keys. On the 100-tree fully grown forest of
+// bench/libs/run.sh (3.4 MB of nodes) 1,024-row blocks took 2,597 and
+// 2,763 ns a row against 128-row blocks' 3,837 and 4,575 (10,000-row
+// batches, best of 3, alternating runs, load average 1.7 on 2 cores).
+const blockBigNodes = 1 << 20
+
+// blockBigRows and blockBigKeyBytes are BlockMaxRows and blockKeyBytes for
+// forests past blockBigNodes: a thread needs 256 KiB of stack for the keys
+// (glibc's default thread stack is 8 MiB; musl's 128 KiB is too small).
+const (
+	blockBigRows     = 1024
+	blockBigKeyBytes = 262144
+)
+
+// blockChains is the number of rows whose steps are interleaved.
+const blockChains = 8
+
+// BlockMaxFeatures bounds the features, so that the key indexes (2f+1 at
+// most, and the -inf key) fit 16 bits and eight rows' keys blockKeyBytes.
+const BlockMaxFeatures = 255
+
+// blockMaxNodes bounds the forest's nodes so that node numbers fit 32 bits.
 const blockMaxNodes = 1 << 30
 
-// blockEarlyDepth is the deepest forest whose blocks take every step of
-// every tree: deeper, a block stops a tree once no lane moved, which cost
-// 15% more instructions a row on a 500-tree depth-6 XGBoost model (79,181
-// against 68,368) and saved 6% on a 100-tree fully grown scikit-learn forest
-// of depth 24 to 37 (64,508 against 68,822; callgrind, gcc 12 -O2, x86-64).
-const blockEarlyDepth = 12
+// blockCheckDepth is the deepest tree walked to its depth without a test:
+// deeper, the eight rows stop once none moved over blockCheckEvery steps.
+const blockCheckDepth = 8
+
+// blockCheckEvery is the steps between two tests of whether the eight rows
+// all sit on leaves. On the 500-round 63-leaf LightGBM model of
+// bench/libs/run.sh (trees 8 to 23 deep) the block walk took 78,542
+// instructions a row testing every step, 74,586 every 2, 76,002 every 3,
+// 78,297 every 4 and 84,737 every 6 (callgrind, gcc 12 -O2, 200 rows).
+const blockCheckEvery = 2
 
 // blockFits says why p cannot be written in the block layout, or nil. The
 // layout handles numeric splits (<= and <, NaN to either side), float32
@@ -81,64 +116,112 @@ func blockFits(g *gen) error {
 
 // blockForest is the forest as the block walk stores it.
 type blockForest struct {
-	feat  []int     // per node: the feature tested (0 at a leaf)
-	thr   []float64 // per node: x goes right when x > thr (+inf at a leaf)
-	kid   []uint32  // per node: the left child << 1 | NaN goes right (a leaf: itself << 1)
+	key   []uint32  // per node: (feature << 1 | NaN goes right) * blockChains (a leaf: the -inf key's)
+	thr   []float64 // per node: the row goes right when its key exceeds this (+inf at a leaf)
+	kid   []uint32  // per node: the left child, counted from the tree's root (a leaf: itself)
 	val   []float64 // per node: the leaf value (0 at a split), one output
 	row   []int     // per node: the leaf's row of rows (0 at a split), several outputs
 	rows  *leafRows // the distinct leaf vectors, several outputs
 	root  []int     // per tree: its root
-	steps []int     // per tree: its depth, the steps every row takes
-	// early: some tree is deeper than blockEarlyDepth, and a block stops
-	// walking a tree once no lane moved in a step.
-	early bool
+	steps []int     // per tree: its depth
+	ge    bool      // a row goes right when key >= thr (every split a <), else key > thr
+	// keyType is the C type of keys and thresholds: float where that is
+	// exact at every split (floatExact), else uint16_t, ranks (see
+	// blockRanks), else the arithmetic's type.
+	keyType string
+	ranks   *blockRankKeys // the rank keys' tables, where keyType is uint16_t
+	kidTyp  string         // the child number's type: uint8_t, uint16_t or uint32_t
+	rows8   int            // a block's rows: see blockRows
+}
+
+// blockRows is the rows of a block: as many as blockKeyBytes of keys hold
+// (keys a row, keyBytes each), a multiple of blockChains, at most
+// BlockMaxRows.
+func blockRows(keys, keyBytes int) int {
+	r := blockKeyBytes / (keys * keyBytes) / blockChains * blockChains
+	return max(blockChains, min(BlockMaxRows, r))
+}
+
+// blockRowsBig is blockRows for forests past blockBigNodes.
+func blockRowsBig(keys, keyBytes int) int {
+	r := blockBigKeyBytes / (keys * keyBytes) / blockChains * blockChains
+	return max(blockChains, min(blockBigRows, r))
 }
 
 // buildBlock numbers each tree's nodes breadth first, the two children of a
 // split taking consecutive numbers.
 func (g *gen) buildBlock() *blockForest {
 	p := g.p
-	b := &blockForest{}
+	b := &blockForest{ge: allLT(p)}
 	if p.NumOutputs > 1 {
 		b.rows = g.distinctLeaves()
 	}
+	biggest := 0
 	for ti := range p.Trees {
 		t := &p.Trees[ti]
-		base := len(b.feat)
+		base := len(b.key)
 		b.root = append(b.root, base)
+		biggest = max(biggest, len(t.Nodes))
 		num := make([]int, len(t.Nodes))
-		depth := make([]int, len(t.Nodes))
 		order := []int32{0}
-		num[0] = base
-		deepest := 0
 		for qi := 0; qi < len(order); qi++ {
-			ni := order[qi]
-			n := &t.Nodes[ni]
-			deepest = max(deepest, depth[ni])
+			n := &t.Nodes[order[qi]]
 			if n.IsLeaf() {
 				continue
 			}
-			next := base + len(order)
-			num[n.Left], num[n.Right] = next, next+1
-			depth[n.Left], depth[n.Right] = depth[ni]+1, depth[ni]+1
+			num[n.Left], num[n.Right] = len(order), len(order)+1
 			order = append(order, n.Left, n.Right)
 		}
-		b.steps = append(b.steps, deepest)
-		b.early = b.early || deepest > blockEarlyDepth
+		b.steps = append(b.steps, treeDepth(t, 0, 0))
 		for _, ni := range order {
 			g.blockNode(b, ti, ni, num)
 		}
 	}
+	g.blockTypes(b, biggest)
 	return b
 }
 
-// blockNode appends node ni of tree ti, whose number is num[ni].
+// blockTypes chooses the key type (float where exact), the key index's and
+// the child number's types and a block's rows.
+func (g *gen) blockTypes(b *blockForest, biggest int) {
+	b.keyType = "float"
+	for _, t := range b.thr {
+		if !floatExact(t, b.ge) {
+			b.keyType = g.ft
+		}
+	}
+	if b.keyType == "float" {
+		for i, t := range b.thr {
+			b.thr[i] = float64(float32(t))
+		}
+	} else if b.ranks = g.blockRanks(b); b.ranks != nil {
+		b.keyType = "uint16_t"
+		biggest = max(biggest, 65537) // 4-byte child numbers: 8-byte nodes, which x86-64 addresses in one step
+	}
+	keys := 2*len(g.p.Features) + 1
+	switch {
+	case biggest <= 256:
+		b.kidTyp = "uint8_t"
+	case biggest <= 65536:
+		b.kidTyp = "uint16_t"
+	default:
+		b.kidTyp = "uint32_t"
+	}
+	kb := map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType]
+	b.rows8 = blockRows(keys, kb)
+	if len(b.key)*b.nodeBytes() > blockBigNodes {
+		b.rows8 = blockRowsBig(keys, kb)
+	}
+}
+
+// blockNode appends node ni of tree ti, whose number from the root is
+// num[ni].
 func (g *gen) blockNode(b *blockForest, ti int, ni int32, num []int) {
 	n := &g.p.Trees[ti].Nodes[ni]
 	if n.IsLeaf() {
-		b.feat = append(b.feat, 0)
+		b.key = append(b.key, uint32(2*len(g.p.Features)*blockChains))
 		b.thr = append(b.thr, math.Inf(1))
-		b.kid = append(b.kid, uint32(num[ni])<<1)
+		b.kid = append(b.kid, uint32(num[ni]))
 		if b.rows != nil {
 			b.row = append(b.row, b.rows.row(g.leaves[ti][ni]))
 		} else {
@@ -146,17 +229,20 @@ func (g *gen) blockNode(b *blockForest, ti int, ni int32, num []int) {
 		}
 		return
 	}
-	th, _ := g.normalise(n.Op, n.Threshold)
+	th := n.Threshold
+	if !b.ge {
+		th, _ = g.normalise(n.Op, n.Threshold)
+	}
 	if th == 0 {
-		th = 0 // x > -0 and x > 0 agree everywhere
+		th = 0 // x > -0 and x > 0 agree everywhere, as do x >= -0 and x >= 0
 	}
-	nr := uint32(1)
-	if n.MissingLeft {
-		nr = 0
+	k := uint32(n.Feature) << 1
+	if !n.MissingLeft {
+		k |= 1
 	}
-	b.feat = append(b.feat, n.Feature)
+	b.key = append(b.key, k*blockChains)
 	b.thr = append(b.thr, th)
-	b.kid = append(b.kid, uint32(num[n.Left])<<1|nr)
+	b.kid = append(b.kid, uint32(num[n.Left]))
 	if b.rows != nil {
 		b.row = append(b.row, 0)
 	} else {
@@ -174,19 +260,26 @@ func (g *gen) block(w *printer) error {
 	g.batch = func(w *printer) {
 		g.blockTables(w, b)
 		g.blockBatch(w, b)
+		g.blockLoopFrom(w, "block", "BK_ROWS", fmt.Sprintf("%du", blockChains), "under eight rows")
 	}
 	return nil
 }
 
-// blockTables writes the node arrays and the per-tree roots and steps.
+// blockTables writes the nodes, the leaves and the per-tree roots and
+// steps.
 func (g *gen) blockTables(w *printer, b *blockForest) {
-	thr := func(i int) string {
-		if math.IsInf(b.thr[i], 1) {
-			return map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[g.ft]
-		}
-		return g.lit(b.thr[i])
+	kb := blockKeyBytes
+	if b.rows8 > BlockMaxRows {
+		kb = blockBigKeyBytes
 	}
-	g.blockNodes(w, b, thr)
+	w.line("#define %s_BK_ROWS %du /* a block's rows: %d bytes of keys at most */", g.upper, b.rows8, kb)
+	w.line("#define %s_BK_KEYS (2u * %s_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */", g.upper, g.upper)
+	w.line("")
+	g.blockNodes(w, b)
+	if b.ranks != nil {
+		g.blockRankTables(w, b.ranks)
+		g.blockRankSearch(w, b.ge)
+	}
 	if b.rows == nil {
 		g.bvArray(w, g.at, "bk_val", "block walk: each node's leaf value (0 at a split)", len(b.val), func(i int) string { return g.alit(b.val[i]) })
 	} else {
@@ -196,26 +289,73 @@ func (g *gen) blockTables(w *printer, b *blockForest) {
 	g.bvArray(w, "uint32_t", "bk_steps", "block walk: each tree's depth", len(b.steps), func(i int) string { return fmt.Sprintf("%du", b.steps[i]) })
 }
 
-// blockNodes writes the nodes, one struct each (a threshold and two words:
-// 16 bytes in double, 12 in float, so that a node is one load of one cache
-// line), and a check of that size, which the AVX2 gathers count on.
-func (g *gen) blockNodes(w *printer, b *blockForest, thr func(int) string) {
-	size := map[string]int{"double": 16, "float": 12}[g.ft]
-	w.line("/* block walk: per node, x goes right when x > thr (+inf at a leaf); feat,")
-	w.line(" * the feature (0 at a leaf); kid, the left child << 1 | NaN goes right (a")
-	w.line(" * leaf: itself << 1). */")
+// blockNodes writes the nodes, one struct each (threshold, child number,
+// key index: 8 bytes in float, 16 in double), so that a step reads one
+// cache line.
+func (g *gen) blockNodes(w *printer, b *blockForest) {
+	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[b.keyType]
+	w.line("/* block walk: per node, the row goes right when key[k] %s thr; kid, the left", b.cmp())
+	w.line(" * child counted from the tree's root (a leaf: itself, with thr +inf and k")
+	w.line(" * the -inf key). */")
 	w.line("struct %s_bk_node {", g.name)
-	w.line("	%s thr;", g.ft)
-	w.line("	uint32_t feat, kid;")
+	if b.ranks != nil && b.kidTyp == "uint32_t" {
+		w.line("	%s kid;", b.kidTyp)
+		w.line("	%s thr;", b.keyType)
+	} else {
+		w.line("	%s thr;", b.keyType)
+		w.line("	%s kid;", b.kidTyp)
+	}
+	w.line("	uint16_t k;")
 	w.line("};")
-	w.line("typedef char %s_bk_node_is_%d_bytes[sizeof(struct %s_bk_node) == %d ? 1 : -1];", g.name, size, g.name, size)
-	w.line("static const struct %s_bk_node %s_bk_nodes[%d] = {", g.name, g.name, len(b.feat))
-	for i := range b.feat {
-		w.line("	{%s, %d, %du}%s", thr(i), b.feat[i], b.kid[i], comma(i, len(b.feat)))
+	w.line("static const struct %s_bk_node %s_bk_nodes[%d] = {", g.name, g.name, len(b.key))
+	for i := range b.key {
+		t := b.thr[i]
+		var s string
+		switch {
+		case b.ranks != nil:
+			s = fmt.Sprintf("%du", int(t))
+		case math.IsInf(t, 0):
+			s = map[bool]string{true: "", false: "-"}[t > 0] + inf
+		case b.keyType == "float":
+			s = floatLit(t)
+		default:
+			s = doubleLit(t)
+		}
+		if b.ranks != nil && b.kidTyp == "uint32_t" {
+			w.line("	{%du, %s, %du}%s", b.kid[i], s, b.key[i], comma(i, len(b.key)))
+			continue
+		}
+		w.line("	{%s, %du, %du}%s", s, b.kid[i], b.key[i], comma(i, len(b.key)))
 	}
 	w.line("};")
 	w.line("")
-	g.tables = append(g.tables, Table{Name: g.name + "_bk_nodes", What: "block walk: threshold, feature, child word", Len: len(b.feat), ElemBytes: size})
+	g.tables = append(g.tables, Table{Name: g.name + "_bk_nodes", What: "block walk: threshold, child, key index", Len: len(b.key), ElemBytes: b.nodeBytes()})
+}
+
+// nodeBytes is the size of a node: its fields, each aligned to its size,
+// the struct to its largest.
+func (b *blockForest) nodeBytes() int {
+	size := map[string]int{"uint8_t": 1, "uint16_t": 2, "uint32_t": 4, "float": 4, "double": 8}
+	fields := []string{b.keyType, b.kidTyp, "uint16_t"}
+	if b.ranks != nil && b.kidTyp == "uint32_t" {
+		fields[0], fields[1] = fields[1], fields[0]
+	}
+	n, most := 0, 1
+	for _, f := range fields {
+		s := size[f]
+		n = (n + s - 1) / s * s
+		n += s
+		most = max(most, s)
+	}
+	return (n + most - 1) / most * most
+}
+
+// cmp is the comparison that sends a row right: ranks compare with >.
+func (b *blockForest) cmp() string {
+	if b.ge && b.ranks == nil {
+		return ">="
+	}
+	return ">"
 }
 
 // blockLeaves writes the distinct leaf vectors and each node's row of them.
@@ -231,53 +371,143 @@ func (g *gen) blockLeaves(w *printer, b *blockForest) {
 	g.bvArray(w, "uint32_t", "bk_row", "block walk: each node's row of "+g.name+"_bk_leaf (0 at a split)", len(b.row), func(i int) string { return fmt.Sprintf("%du", b.row[i]) })
 }
 
-// blockBatch writes NAME_block (one block of up to BlockRows rows) and
-// NAME_predict_batch, its loop over the blocks.
+// blockBatch writes NAME_block, which scores one block of up to
+// NAME_BK_ROWS rows.
 func (g *gen) blockBatch(w *printer, b *blockForest) {
-	ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
-	w.line("#define %s_BLOCK %d", g.upper, BlockRows)
-	w.line("")
-	g.blockSimd(w)
-	w.line("/* Scores the count <= %s_BLOCK rows at x into outs: tree by tree, every row", g.upper)
-	w.line(" * of the block taking the tree's depth in steps, each a comparison and an")
-	w.line(" * addition (no branch on the data); then each row's leaves are added in")
-	w.line(" * tree order, as %s_predict adds them. Lanes past count walk row 0 and are", g.name)
-	w.line(" * dropped. */")
+	ft, u := g.ft, g.upper
+	w.line("/* Scores the count <= %s_BK_ROWS rows at x into outs: writes each row's", u)
+	w.line(" * keys, then tree by tree eight rows at a time take the tree's depth in")
+	w.line(" * steps, each a comparison and an addition (no branch on the data; trees")
+	w.line(" * deeper than %d stop once the eight rows sat still for %d steps), and add", blockCheckDepth, blockCheckEvery)
+	w.line(" * their leaves, in tree order as %s_predict adds them. Up to %d lanes past", g.name, blockChains-1)
+	w.line(" * count walk row 0 and are dropped. */")
 	w.line("static void %s_block(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
 	w.line("{")
 	w.in()
-	w.line("%s sum[%s_BLOCK * %s];", g.at, g.upper, no)
-	w.line("uint32_t node[%s_BLOCK], off[%s_BLOCK];", g.upper, g.upper)
-	w.line("uint32_t tree, step, lane;")
+	w.line("%s sum[%s_BK_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
+	w.line("%s key[%s_BK_ROWS * %s_BK_KEYS];", b.keyType, u, u)
+	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", blockChains-1, blockChains, blockChains)
+	w.line("size_t lane;")
+	w.line("uint32_t tree;")
 	w.line("int j;")
-	w.line("for (lane = 0; lane < %s_BLOCK; lane++) {", g.upper)
-	w.line("\toff[lane] = lane < count ? lane * (uint32_t)%s : 0u;", nf)
-	for j := 0; j < g.p.NumOutputs; j++ {
-		w.line("\tsum[lane * %s + %du] = %s;", no, j, g.accStart(j))
-	}
-	w.line("}")
-	w.line("for (tree = 0; tree < %du; tree++) {", len(b.root))
+	g.blockKeys(w, b)
+	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
+	w.line("const struct %s_bk_node *const nd = %s_bk_nodes + %s_bk_root[tree];", g.name, g.name, g.name)
 	w.line("const uint32_t steps = %s_bk_steps[tree];", g.name)
-	w.line("for (lane = 0; lane < %s_BLOCK; lane++) {", g.upper)
-	w.line("\tnode[lane] = %s_bk_root[tree];", g.name)
+	w.line("for (lane = 0; lane < used; lane += %du) {", blockChains)
+	w.in()
+	g.blockChains(w, b)
+	w.out()
 	w.line("}")
-	w.line("for (step = 0; step < steps; step++) {")
-	if b.early {
-		w.line("\tif (%s_step(x, off, node) == 0u) {", g.name)
-		w.line("\t\tbreak; /* every lane is on a leaf */")
-		w.line("\t}")
-	} else {
-		w.line("\t(void)%s_step(x, off, node); /* shallow trees: every step, no test */", g.name)
-	}
-	w.line("}")
-	g.blockAdd(w, b)
 	w.out()
 	w.line("}")
 	g.batchFinish(w)
 	w.out()
 	w.line("}")
-	g.blockLoop(w, "block", "BLOCK")
+}
+
+// blockKeys writes the loop that fills each row's keys and starts its sums.
+func (g *gen) blockKeys(w *printer, b *blockForest) {
+	u, kt := g.upper, b.keyType
+	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[kt]
+	cast := ""
+	if kt != g.ft {
+		cast = "(" + kt + ")"
+	}
+	w.line("for (lane = 0; lane < used; lane++) {")
+	w.in()
+	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
+	w.line("%s *const k = key + (lane - lane %% %du) * %s_BK_KEYS + lane %% %du; /* eight rows' keys side by side */", kt, blockChains, u, blockChains)
+	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
+	w.in()
+	if b.ranks != nil {
+		g.blockRankKeyLines(w)
+	} else {
+		w.line("const %s v = xr[j];", g.ft)
+		w.line("k[2 * j * %d] = v != v ? -%s : %sv;", blockChains, inf, cast)
+		w.line("k[(2 * j + 1) * %d] = v != v ? %s : %sv;", blockChains, inf, cast)
+	}
+	w.out()
+	w.line("}")
+	if b.ranks != nil {
+		w.line("k[2 * %s_NUM_FEATURES * %d] = 0u; /* the leaves' key */", u, blockChains)
+	} else {
+		w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, inf)
+	}
+	for j := 0; j < g.p.NumOutputs; j++ {
+		w.line("sum[lane * %s_NUM_OUTPUTS + %du] = %s;", u, j, g.accStart(j))
+	}
+	w.out()
+	w.line("}")
+}
+
+// blockChains writes the walk of blockChains rows through one tree, their
+// steps interleaved and unrolled, and the addition of their leaves.
+func (g *gen) blockChains(w *printer, b *blockForest) {
+	u := g.upper
+	w.line("const %s *const kb = key + lane * %s_BK_KEYS; /* the eight rows' keys, interleaved */", b.keyType, u)
+	for c := 0; c < blockChains; c++ {
+		w.line("uint32_t i%d = 0u;", c)
+	}
+	w.line("uint32_t s;")
+	w.line("if (steps <= %du) {", blockCheckDepth)
+	w.in()
+	w.line("for (s = 0; s < steps; s++) {")
+	g.blockSteps(w, b, 1)
+	w.line("}")
+	w.out()
+	w.line("} else {")
+	w.in()
+	w.line("for (s = 0; s < steps; s += %du) {", blockCheckEvery)
+	w.in()
+	var was, moved []string
+	for c := 0; c < blockChains; c++ {
+		was = append(was, fmt.Sprintf("p%d = i%d", c, c))
+		moved = append(moved, fmt.Sprintf("(i%d ^ p%d)", c, c))
+	}
+	w.line("const uint32_t %s;", strings.Join(was, ", "))
+	w.out()
+	g.blockSteps(w, b, blockCheckEvery)
+	w.in()
+	w.line("if ((%s) == 0u) {", strings.Join(moved, " | "))
+	w.line("\tbreak; /* the eight rows sit on leaves */")
+	w.line("}")
+	w.out()
+	w.line("}")
+	w.out()
+	w.line("}")
+	g.blockAdd(w, b)
+}
+
+// blockSteps writes n steps of every chain, one chain after the other in
+// each step.
+func (g *gen) blockSteps(w *printer, b *blockForest, n int) {
+	w.in()
+	for range n {
+		for c := 0; c < blockChains; c++ {
+			w.line("i%d = (uint32_t)nd[i%d].kid + (uint32_t)(kb[nd[i%d].k + %du] %s nd[i%d].thr);", c, c, c, c, b.cmp(), c)
+		}
+	}
+	w.out()
+}
+
+// blockAdd writes the addition of the leaf each chain reached.
+func (g *gen) blockAdd(w *printer, b *blockForest) {
+	for c := 0; c < blockChains; c++ {
+		if b.rows == nil {
+			w.line("sum[lane + %du] += %s_bk_val[%s_bk_root[tree] + i%d];", c, g.name, g.name, c)
+			continue
+		}
+		w.line("{")
+		w.in()
+		w.line("const %s *const lv = %s_bk_leaf[%s_bk_row[%s_bk_root[tree] + i%d]];", g.at, g.name, g.name, g.name, c)
+		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
+		w.line("\tsum[(lane + %du) * %s_NUM_OUTPUTS + (size_t)j] += lv[j];", c, g.upper)
+		w.line("}")
+		w.out()
+		w.line("}")
+	}
 }
 
 // batchFinish writes the end of a block function: each of its count rows'
@@ -300,6 +530,13 @@ func (g *gen) batchFinish(w *printer) {
 // each through NAME_<fn>, then the rest as one part block, or through
 // NAME_predict when under a quarter block.
 func (g *gen) blockLoop(w *printer, fn, rows string) {
+	g.blockLoopFrom(w, fn, rows, fmt.Sprintf("%s_%s / 4u", g.upper, rows), "under a quarter block")
+}
+
+// blockLoopFrom is blockLoop with the fewest rows of a part block (a C
+// expression): fewer, which few says in words, go through NAME_predict one
+// by one.
+func (g *gen) blockLoopFrom(w *printer, fn, rows, least, few string) {
 	ft, nf, no := g.ft, g.upper+"_NUM_FEATURES", g.upper+"_NUM_OUTPUTS"
 	w.line("")
 	w.line("void %s_predict_batch(const %s *x, size_t n, %s *outs)", g.name, ft, ft)
@@ -308,133 +545,24 @@ func (g *gen) blockLoop(w *printer, fn, rows string) {
 	w.line("\tfor (r = 0; r + %s_%s <= n; r += %s_%s) {", g.upper, rows, g.upper, rows)
 	w.line("\t\t%s_%s(x + r * %s, %s_%s, outs + r * %s);", g.name, fn, nf, g.upper, rows, no)
 	w.line("\t}")
-	w.line("\tif (n - r >= %s_%s / 4u) { /* a part block, its idle lanes on row 0 */", g.upper, rows)
+	w.line("\tif (n - r >= %s) { /* a part block, its idle lanes on row 0 */", least)
 	w.line("\t\t%s_%s(x + r * %s, n - r, outs + r * %s);", g.name, fn, nf, no)
 	w.line("\t\treturn;")
 	w.line("\t}")
-	w.line("\tfor (; r < n; r++) { /* under a quarter block: one by one, the same bits */")
+	w.line("\tfor (; r < n; r++) { /* %s: one by one, the same bits */", few)
 	w.line("\t\t%s_predict(x + r * %s, outs + r * %s);", g.name, nf, no)
 	w.line("\t}")
 	w.line("}")
 }
 
-// blockAdd writes the addition of the leaf each lane reached.
-func (g *gen) blockAdd(w *printer, b *blockForest) {
-	w.line("for (lane = 0; lane < %s_BLOCK; lane++) {", g.upper)
-	if b.rows == nil {
-		w.line("\tsum[lane] += %s_bk_val[node[lane]];", g.name)
-	} else {
-		w.line("\tconst %s *const lv = %s_bk_leaf[%s_bk_row[node[lane]]];", g.at, g.name, g.name)
-		w.line("\tfor (j = 0; j < %s_NUM_OUTPUTS; j++) {", g.upper)
-		w.line("\t\tsum[lane * %s_NUM_OUTPUTS + (uint32_t)j] += lv[j];", g.upper)
-		w.line("\t}")
-	}
-	w.line("}")
-}
-
-// blockSimd writes NAME_step, one step of every lane: AVX2 gathers under
-// __AVX2__, else a scalar loop; both compute the same node numbers.
-func (g *gen) blockSimd(w *printer) {
-	ft := g.ft
-	w.line("/* One step of every lane: node = child + (goes right); nonzero when a lane")
-	w.line(" * moved, so that a block whose lanes all reached leaves stops early. Kept out of line")
-	w.line(" * (GNU C), which leaves it the registers it needs: inlined into the block")
-	w.line(" * loop, gcc 12 -O2 spilled them to the stack (68,368 instructions a row")
-	w.line(" * against 105,966 on a 500-tree depth-6 model). */")
-	w.line("#if defined(__GNUC__)")
-	w.line("__attribute__((noinline))")
-	w.line("#endif")
-	w.line("static uint32_t %s_step(const %s *x, const uint32_t *off, uint32_t *node)", g.name, ft)
-	w.line("{")
-	w.line("#if defined(__AVX2__)")
-	w.in()
-	if ft == "double" {
-		g.blockAVX2Double(w)
-	} else {
-		g.blockAVX2Float(w)
-	}
-	w.out()
-	w.line("#else")
-	w.in()
-	w.line("uint32_t l, moved = 0u;")
-	w.line("for (l = 0; l < %s_BLOCK; l++) {", g.upper)
-	w.in()
-	w.line("const struct %s_bk_node *const nd = &%s_bk_nodes[node[l]];", g.name, g.name)
-	w.line("const %s v = x[off[l] + nd->feat];", ft)
-	w.line("const uint32_t right = (uint32_t)(v > nd->thr) | ((uint32_t)(v != v) & nd->kid);")
-	w.line("const uint32_t next = (nd->kid >> 1) + (right & 1u);")
-	w.line("moved |= next ^ node[l];")
-	w.line("node[l] = next;")
-	w.out()
-	w.line("}")
-	w.line("return moved;")
-	w.out()
-	w.line("#endif")
-	w.line("}")
-	w.line("")
-}
-
-// blockAVX2Double writes the AVX2 step for doubles: four lanes a vector,
-// node numbers and offsets widened to 64 bits for the gathers.
-func (g *gen) blockAVX2Double(w *printer) {
-	w.line("const __m256i one = _mm256_set1_epi64x(1), two = _mm256_set1_epi64x(2), three = _mm256_set1_epi64x(3);")
-	w.line("const int *const words = (const int *)(const void *)%s_bk_nodes;", g.name)
-	w.line("__m256i moved = _mm256_setzero_si256();")
-	w.line("uint32_t v;")
-	w.line("for (v = 0; v < %s_BLOCK; v += 4u) {", g.upper)
-	w.in()
-	w.line("const __m256i nd = _mm256_cvtepu32_epi64(_mm_loadu_si128((const __m128i *)(const void *)(node + v)));")
-	w.line("const __m256i of = _mm256_cvtepu32_epi64(_mm_loadu_si128((const __m128i *)(const void *)(off + v)));")
-	w.line("const __m256i n4 = _mm256_slli_epi64(nd, 2); /* the node's first int */")
-	w.line("const __m256i k = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32(words, _mm256_add_epi64(n4, three), 4));")
-	w.line("const __m256i f = _mm256_cvtepu32_epi64(_mm256_i64gather_epi32(words, _mm256_add_epi64(n4, two), 4));")
-	w.line("const __m256d xv = _mm256_i64gather_pd(x, _mm256_add_epi64(of, f), 8);")
-	w.line("const __m256d th = _mm256_i64gather_pd((const double *)(const void *)%s_bk_nodes, _mm256_slli_epi64(nd, 1), 8);", g.name)
-	w.line("const __m256i gt = _mm256_castpd_si256(_mm256_cmp_pd(xv, th, _CMP_GT_OQ));")
-	w.line("const __m256i un = _mm256_castpd_si256(_mm256_cmp_pd(xv, xv, _CMP_UNORD_Q));")
-	w.line("const __m256i nr = _mm256_sub_epi64(_mm256_setzero_si256(), _mm256_and_si256(k, one));")
-	w.line("const __m256i right = _mm256_or_si256(gt, _mm256_and_si256(un, nr));")
-	w.line("const __m256i next = _mm256_sub_epi64(_mm256_srli_epi64(k, 1), right);")
-	w.line("moved = _mm256_or_si256(moved, _mm256_xor_si256(next, nd));")
-	w.line("/* the low 32 bits of each 64-bit lane, in order */")
-	w.line("const __m256i packed = _mm256_permutevar8x32_epi32(next, _mm256_setr_epi32(0, 2, 4, 6, 0, 2, 4, 6));")
-	w.line("_mm_storeu_si128((__m128i *)(void *)(node + v), _mm256_castsi256_si128(packed));")
-	w.out()
-	w.line("}")
-	w.line("return (uint32_t)(_mm256_testz_si256(moved, moved) == 0);")
-}
-
-// blockAVX2Float writes the AVX2 step for floats: eight lanes a vector.
-func (g *gen) blockAVX2Float(w *printer) {
-	w.line("const __m256i one = _mm256_set1_epi32(1), two = _mm256_set1_epi32(2);")
-	w.line("const int *const words = (const int *)(const void *)%s_bk_nodes;", g.name)
-	w.line("__m256i moved = _mm256_setzero_si256();")
-	w.line("uint32_t v;")
-	w.line("for (v = 0; v < %s_BLOCK; v += 8u) {", g.upper)
-	w.in()
-	w.line("const __m256i nd = _mm256_loadu_si256((const __m256i *)(const void *)(node + v));")
-	w.line("const __m256i of = _mm256_loadu_si256((const __m256i *)(const void *)(off + v));")
-	w.line("const __m256i n3 = _mm256_add_epi32(_mm256_slli_epi32(nd, 1), nd); /* the node's first word */")
-	w.line("const __m256i k = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, two), 4);")
-	w.line("const __m256i f = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, one), 4);")
-	w.line("const __m256 xv = _mm256_i32gather_ps(x, _mm256_add_epi32(of, f), 4);")
-	w.line("const __m256 th = _mm256_i32gather_ps((const float *)(const void *)%s_bk_nodes, n3, 4);", g.name)
-	w.line("const __m256i gt = _mm256_castps_si256(_mm256_cmp_ps(xv, th, _CMP_GT_OQ));")
-	w.line("const __m256i un = _mm256_castps_si256(_mm256_cmp_ps(xv, xv, _CMP_UNORD_Q));")
-	w.line("const __m256i nr = _mm256_sub_epi32(_mm256_setzero_si256(), _mm256_and_si256(k, one));")
-	w.line("const __m256i right = _mm256_or_si256(gt, _mm256_and_si256(un, nr));")
-	w.line("const __m256i next = _mm256_sub_epi32(_mm256_srli_epi32(k, 1), right);")
-	w.line("moved = _mm256_or_si256(moved, _mm256_xor_si256(next, nd));")
-	w.line("_mm256_storeu_si256((__m256i *)(void *)(node + v), next);")
-	w.out()
-	w.line("}")
-	w.line("return (uint32_t)(_mm256_testz_si256(moved, moved) == 0);")
-}
-
 // blockResolve is Resolve's answer when the block layout is asked for.
 func blockResolve(p *compile.Program, o Options) (string, string) {
 	g := &gen{p: p, o: o}
-	if err := blockFits(g); err != nil {
+	err := blockFits(g)
+	if err == nil && len(p.Features) > BlockMaxFeatures {
+		err = fmt.Errorf("%d features, more than %d (a block's keys live on the stack)", len(p.Features), BlockMaxFeatures)
+	}
+	if err != nil {
 		return "table", fmt.Sprintf("block asked for, but %v: the table layout instead", err)
 	}
 	return Block, "asked for"

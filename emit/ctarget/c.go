@@ -50,13 +50,13 @@
 //     bigger trees) the table layout is written instead, the header saying
 //     why;
 //   - block: the table layout's NAME_predict, and a NAME_predict_batch that
-//     walks blocks of rows in lock-step without branches on the data
-//     (Asadi, Lin & de Vries, IEEE TKDE 2014; see Block), with AVX2 lanes
-//     under __AVX2__ and a scalar path giving the same bits; asked for only
+//     walks blocks of rows tree by tree without branches on the data, for
+//     trees of any depth (Asadi, Lin & de Vries, IEEE TKDE 2014; see Block):
+//     doubled keys, compact nodes, eight rows interleaved; asked for only
 //     (see docs/batch-layouts.md for why auto does not choose it), and where
 //     blockFits refuses the model (set splits, missing bands, zero as
-//     missing, more than one output) the table layout is written instead,
-//     the header saying why;
+//     missing, per-output trees, more than BlockMaxFeatures features) the
+//     table layout is written instead, the header saying why;
 //   - perfect: auto's NAME_predict (nested or table), and a
 //     NAME_predict_batch that pads every tree to a perfect tree of the forest's depth (node
 //     i's children 2i+1 and 2i+2, no links) and walks blocks of rows through
@@ -787,8 +787,8 @@ func (g *gen) header() []byte {
 	case emit.Table:
 		w.line(" * Tree by tree over all rows, so each tree's words stay in cache. */")
 	case Block:
-		w.line(" * Blocks of %d rows walk each tree in lock-step, without branches on the", BlockRows)
-		w.line(" * data (AVX2 gathers where __AVX2__ is defined). */")
+		w.line(" * Blocks of rows (%s_BK_ROWS in %s.c) walk each tree, eight rows", u, g.name)
+		w.line(" * interleaved, without branches on the data. */")
 	case Perfect:
 		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
 		g.perfectLanesNote(&w)
@@ -951,11 +951,6 @@ func (g *gen) source(body []byte) []byte {
 	}
 	if g.layout == Perfect && bytes.Contains(body, []byte("_mm512_")) {
 		w.line("#if defined(__AVX512F__) || defined(__AVX2__)")
-		w.line("#include <immintrin.h>")
-		w.line("#endif")
-	}
-	if g.layout == Block {
-		w.line("#if defined(__AVX2__)")
 		w.line("#include <immintrin.h>")
 		w.line("#endif")
 	}

@@ -40,12 +40,16 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_thr: threshold per split, 16 x 4 = 64 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 32 x 1 = 32 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 33 x 16 = 528 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 33 x 8 = 264 bytes
+ *   pumpmodel_bk_cut: block walk: per feature, its distinct thresholds in ascending order, 16 x 8 = 128 bytes
+ *   pumpmodel_bk_cut_at: block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end, 17 x 4 = 68 bytes
+ *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 16 x 2 = 32 bytes
+ *   pumpmodel_bk_hi: block walk: per feature, the key of NaN going right (the rank of +inf), 16 x 2 = 32 bytes
  *   pumpmodel_bk_leaf: block walk: distinct leaf vectors, 32 x 8 = 256 bytes
  *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 4 = 132 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 1054 bytes (31.94 bytes per node; code not counted)
+ *   total 1050 bytes (31.82 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -105,8 +109,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* The predicted class of x: the index of the largest output, ties to the lowest. */

@@ -25,11 +25,15 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 11 x 16 = 176 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 11 x 8 = 88 bytes
+ *   pumpmodel_bk_cut: block walk: per feature, its distinct thresholds in ascending order, 4 x 8 = 32 bytes
+ *   pumpmodel_bk_cut_at: block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end, 3 x 4 = 12 bytes
+ *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 2 x 2 = 4 bytes
+ *   pumpmodel_bk_hi: block walk: per feature, the key of NaN going right (the rank of +inf), 2 x 2 = 4 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 11 x 8 = 88 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 3 x 4 = 12 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes
- *   total 372 bytes (33.82 bytes per node; code not counted)
+ *   total 336 bytes (30.55 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -77,8 +81,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */

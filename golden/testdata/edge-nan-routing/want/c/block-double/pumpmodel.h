@@ -22,11 +22,15 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 8 x 16 = 128 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 8 x 8 = 64 bytes
+ *   pumpmodel_bk_cut: block walk: per feature, its distinct thresholds in ascending order, 3 x 8 = 24 bytes
+ *   pumpmodel_bk_cut_at: block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end, 3 x 4 = 12 bytes
+ *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 2 x 2 = 4 bytes
+ *   pumpmodel_bk_hi: block walk: per feature, the key of NaN going right (the rank of +inf), 2 x 2 = 4 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 8 x 8 = 64 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 2 x 4 = 8 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 2 x 4 = 8 bytes
- *   total 273 bytes (34.12 bytes per node; code not counted)
+ *   total 253 bytes (31.62 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -67,8 +71,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* Checks at run time what exact scoring needs of the floating-point unit:

@@ -7,9 +7,6 @@
 #include <float.h>
 #include <math.h>
 #include <stdint.h>
-#if defined(__AVX2__)
-#include <immintrin.h>
-#endif
 
 /* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
  * define PUMPMODEL_ALLOW_INEXACT_FP to build where these checks fail. */
@@ -99,23 +96,26 @@ void pumpmodel_predict(const float *x, float *out)
 	}
 }
 
-/* block walk: per node, x goes right when x > thr (+inf at a leaf); feat,
- * the feature (0 at a leaf); kid, the left child << 1 | NaN goes right (a
- * leaf: itself << 1). */
+#define PUMPMODEL_BK_ROWS 128u /* a block's rows: 32768 bytes of keys at most */
+#define PUMPMODEL_BK_KEYS (2u * PUMPMODEL_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */
+
+/* block walk: per node, the row goes right when key[k] > thr; kid, the left
+ * child counted from the tree's root (a leaf: itself, with thr +inf and k
+ * the -inf key). */
 struct pumpmodel_bk_node {
 	float thr;
-	uint32_t feat, kid;
+	uint8_t kid;
+	uint16_t k;
 };
-typedef char pumpmodel_bk_node_is_12_bytes[sizeof(struct pumpmodel_bk_node) == 12 ? 1 : -1];
 static const struct pumpmodel_bk_node pumpmodel_bk_nodes[8] = {
-	{0.5f, 0, 2u},
-	{0.0f, 1, 7u},
-	{HUGE_VALF, 0, 4u},
-	{HUGE_VALF, 0, 6u},
-	{HUGE_VALF, 0, 8u},
-	{0.0f, 1, 13u},
-	{HUGE_VALF, 0, 12u},
-	{HUGE_VALF, 0, 14u}
+	{0.5f, 1u, 0u},
+	{0.0f, 3u, 24u},
+	{HUGE_VALF, 2u, 32u},
+	{HUGE_VALF, 3u, 32u},
+	{HUGE_VALF, 4u, 32u},
+	{0.0f, 1u, 24u},
+	{HUGE_VALF, 1u, 32u},
+	{HUGE_VALF, 2u, 32u}
 };
 
 /* block walk: each node's leaf value (0 at a split) */
@@ -133,79 +133,88 @@ static const uint32_t pumpmodel_bk_steps[2] = {
 	2u, 1u
 };
 
-#define PUMPMODEL_BLOCK 16
-
-/* One step of every lane: node = child + (goes right); nonzero when a lane
- * moved, so that a block whose lanes all reached leaves stops early. Kept out of line
- * (GNU C), which leaves it the registers it needs: inlined into the block
- * loop, gcc 12 -O2 spilled them to the stack (68,368 instructions a row
- * against 105,966 on a 500-tree depth-6 model). */
-#if defined(__GNUC__)
-__attribute__((noinline))
-#endif
-static uint32_t pumpmodel_step(const float *x, const uint32_t *off, uint32_t *node)
-{
-#if defined(__AVX2__)
-	const __m256i one = _mm256_set1_epi32(1), two = _mm256_set1_epi32(2);
-	const int *const words = (const int *)(const void *)pumpmodel_bk_nodes;
-	__m256i moved = _mm256_setzero_si256();
-	uint32_t v;
-	for (v = 0; v < PUMPMODEL_BLOCK; v += 8u) {
-		const __m256i nd = _mm256_loadu_si256((const __m256i *)(const void *)(node + v));
-		const __m256i of = _mm256_loadu_si256((const __m256i *)(const void *)(off + v));
-		const __m256i n3 = _mm256_add_epi32(_mm256_slli_epi32(nd, 1), nd); /* the node's first word */
-		const __m256i k = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, two), 4);
-		const __m256i f = _mm256_i32gather_epi32(words, _mm256_add_epi32(n3, one), 4);
-		const __m256 xv = _mm256_i32gather_ps(x, _mm256_add_epi32(of, f), 4);
-		const __m256 th = _mm256_i32gather_ps((const float *)(const void *)pumpmodel_bk_nodes, n3, 4);
-		const __m256i gt = _mm256_castps_si256(_mm256_cmp_ps(xv, th, _CMP_GT_OQ));
-		const __m256i un = _mm256_castps_si256(_mm256_cmp_ps(xv, xv, _CMP_UNORD_Q));
-		const __m256i nr = _mm256_sub_epi32(_mm256_setzero_si256(), _mm256_and_si256(k, one));
-		const __m256i right = _mm256_or_si256(gt, _mm256_and_si256(un, nr));
-		const __m256i next = _mm256_sub_epi32(_mm256_srli_epi32(k, 1), right);
-		moved = _mm256_or_si256(moved, _mm256_xor_si256(next, nd));
-		_mm256_storeu_si256((__m256i *)(void *)(node + v), next);
-	}
-	return (uint32_t)(_mm256_testz_si256(moved, moved) == 0);
-#else
-	uint32_t l, moved = 0u;
-	for (l = 0; l < PUMPMODEL_BLOCK; l++) {
-		const struct pumpmodel_bk_node *const nd = &pumpmodel_bk_nodes[node[l]];
-		const float v = x[off[l] + nd->feat];
-		const uint32_t right = (uint32_t)(v > nd->thr) | ((uint32_t)(v != v) & nd->kid);
-		const uint32_t next = (nd->kid >> 1) + (right & 1u);
-		moved |= next ^ node[l];
-		node[l] = next;
-	}
-	return moved;
-#endif
-}
-
-/* Scores the count <= PUMPMODEL_BLOCK rows at x into outs: tree by tree, every row
- * of the block taking the tree's depth in steps, each a comparison and an
- * addition (no branch on the data); then each row's leaves are added in
- * tree order, as pumpmodel_predict adds them. Lanes past count walk row 0 and are
- * dropped. */
+/* Scores the count <= PUMPMODEL_BK_ROWS rows at x into outs: writes each row's
+ * keys, then tree by tree eight rows at a time take the tree's depth in
+ * steps, each a comparison and an addition (no branch on the data; trees
+ * deeper than 8 stop once the eight rows sat still for 2 steps), and add
+ * their leaves, in tree order as pumpmodel_predict adds them. Up to 7 lanes past
+ * count walk row 0 and are dropped. */
 static void pumpmodel_block(const float *x, size_t count, float *outs)
 {
-	float sum[PUMPMODEL_BLOCK * PUMPMODEL_NUM_OUTPUTS];
-	uint32_t node[PUMPMODEL_BLOCK], off[PUMPMODEL_BLOCK];
-	uint32_t tree, step, lane;
+	float sum[PUMPMODEL_BK_ROWS * PUMPMODEL_NUM_OUTPUTS];
+	float key[PUMPMODEL_BK_ROWS * PUMPMODEL_BK_KEYS];
+	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
+	size_t lane;
+	uint32_t tree;
 	int j;
-	for (lane = 0; lane < PUMPMODEL_BLOCK; lane++) {
-		off[lane] = lane < count ? lane * (uint32_t)PUMPMODEL_NUM_FEATURES : 0u;
+	for (lane = 0; lane < used; lane++) {
+		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
+		float *const k = key + (lane - lane % 8u) * PUMPMODEL_BK_KEYS + lane % 8u; /* eight rows' keys side by side */
+		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
+			const float v = xr[j];
+			k[2 * j * 8] = v != v ? -HUGE_VALF : v;
+			k[(2 * j + 1) * 8] = v != v ? HUGE_VALF : v;
+		}
+		k[2 * PUMPMODEL_NUM_FEATURES * 8] = -HUGE_VALF; /* the leaves' key */
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.0f;
 	}
 	for (tree = 0; tree < 2u; tree++) {
+		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
 		const uint32_t steps = pumpmodel_bk_steps[tree];
-		for (lane = 0; lane < PUMPMODEL_BLOCK; lane++) {
-			node[lane] = pumpmodel_bk_root[tree];
-		}
-		for (step = 0; step < steps; step++) {
-			(void)pumpmodel_step(x, off, node); /* shallow trees: every step, no test */
-		}
-		for (lane = 0; lane < PUMPMODEL_BLOCK; lane++) {
-			sum[lane] += pumpmodel_bk_val[node[lane]];
+		for (lane = 0; lane < used; lane += 8u) {
+			const float *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
+			uint32_t i0 = 0u;
+			uint32_t i1 = 0u;
+			uint32_t i2 = 0u;
+			uint32_t i3 = 0u;
+			uint32_t i4 = 0u;
+			uint32_t i5 = 0u;
+			uint32_t i6 = 0u;
+			uint32_t i7 = 0u;
+			uint32_t s;
+			if (steps <= 8u) {
+				for (s = 0; s < steps; s++) {
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+				}
+			} else {
+				for (s = 0; s < steps; s += 2u) {
+					const uint32_t p0 = i0, p1 = i1, p2 = i2, p3 = i3, p4 = i4, p5 = i5, p6 = i6, p7 = i7;
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
+					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
+					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
+					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
+					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
+					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
+					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
+					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					if (((i0 ^ p0) | (i1 ^ p1) | (i2 ^ p2) | (i3 ^ p3) | (i4 ^ p4) | (i5 ^ p5) | (i6 ^ p6) | (i7 ^ p7)) == 0u) {
+						break; /* the eight rows sit on leaves */
+					}
+				}
+			}
+			sum[lane + 0u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i0];
+			sum[lane + 1u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i1];
+			sum[lane + 2u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i2];
+			sum[lane + 3u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i3];
+			sum[lane + 4u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i4];
+			sum[lane + 5u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i5];
+			sum[lane + 6u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i6];
+			sum[lane + 7u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i7];
 		}
 	}
 	for (lane = 0; lane < count; lane++) {
@@ -223,14 +232,14 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 void pumpmodel_predict_batch(const float *x, size_t n, float *outs)
 {
 	size_t r;
-	for (r = 0; r + PUMPMODEL_BLOCK <= n; r += PUMPMODEL_BLOCK) {
-		pumpmodel_block(x + r * PUMPMODEL_NUM_FEATURES, PUMPMODEL_BLOCK, outs + r * PUMPMODEL_NUM_OUTPUTS);
+	for (r = 0; r + PUMPMODEL_BK_ROWS <= n; r += PUMPMODEL_BK_ROWS) {
+		pumpmodel_block(x + r * PUMPMODEL_NUM_FEATURES, PUMPMODEL_BK_ROWS, outs + r * PUMPMODEL_NUM_OUTPUTS);
 	}
-	if (n - r >= PUMPMODEL_BLOCK / 4u) { /* a part block, its idle lanes on row 0 */
+	if (n - r >= 8u) { /* a part block, its idle lanes on row 0 */
 		pumpmodel_block(x + r * PUMPMODEL_NUM_FEATURES, n - r, outs + r * PUMPMODEL_NUM_OUTPUTS);
 		return;
 	}
-	for (; r < n; r++) { /* under a quarter block: one by one, the same bits */
+	for (; r < n; r++) { /* under eight rows: one by one, the same bits */
 		pumpmodel_predict(x + r * PUMPMODEL_NUM_FEATURES, outs + r * PUMPMODEL_NUM_OUTPUTS);
 	}
 }

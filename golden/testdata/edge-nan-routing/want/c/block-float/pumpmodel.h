@@ -22,11 +22,11 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 2 x 4 = 8 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 4 = 16 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 8 x 12 = 96 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 8 x 8 = 64 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 8 x 4 = 32 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 2 x 4 = 8 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 2 x 4 = 8 bytes
- *   total 177 bytes (22.12 bytes per node; code not counted)
+ *   total 145 bytes (18.12 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -68,8 +68,8 @@ void pumpmodel_predict(const float *x, float *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const float *x, size_t n, float *out);
 
 /* Checks at run time what exact scoring needs of the floating-point unit:

@@ -21,11 +21,11 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_thr: distinct thresholds, 1 x 4 = 4 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, feature, child word, 1 x 16 = 16 bytes
+ *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 1 x 8 = 8 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 1 x 8 = 8 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 44 bytes (44.00 bytes per node; code not counted)
+ *   total 36 bytes (36.00 bytes per node; code not counted)
  * At most 0 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -65,8 +65,8 @@ void pumpmodel_predict(const double *x, double *out);
 
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
- * Blocks of 16 rows walk each tree in lock-step, without branches on the
- * data (AVX2 gathers where __AVX2__ is defined). */
+ * Blocks of rows (PUMPMODEL_BK_ROWS in pumpmodel.c) walk each tree, eight rows
+ * interleaved, without branches on the data. */
 void pumpmodel_predict_batch(const double *x, size_t n, double *out);
 
 /* Checks at run time what exact scoring needs of the floating-point unit:
