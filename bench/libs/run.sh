@@ -35,7 +35,9 @@
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
 #   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
-#   ROUNDS=1; KEEP=DIR keeps the models, rows and predictions in DIR
+#   ROUNDS=1; KEEP=DIR keeps the models, rows and predictions in DIR;
+#   REUSE=1 with KEEP=DIR of an earlier run reuses its trained models from the
+#   first round (libs.py --load; the table is generated again, the same)
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 reps=${1:-5}
@@ -65,7 +67,7 @@ done
 for round in $(seq "${ROUNDS:-1}"); do
 	for m in ${models//,/ }; do
 		load=
-		[ "$round" -eq 1 ] || load=--load
+		[ "$round" -eq 1 ] && [ -z "${REUSE:-}" ] || load=--load
 		echo "== $m, round $round, load average $(cut -d' ' -f1-3 /proc/loadavg)"
 		"$py" bench/libs/libs.py "$tmp/data.csv" "$tmp" --reps "$reps" --only "$m" $load \
 			--batches "${BATCHES:-1,100,10000}" --threads "${THREADS:-1,2}" --single-rows "${SINGLE_ROWS:-1000}" \
