@@ -184,19 +184,12 @@ func (g *gen) buildBlock() *blockForest {
 // blockTypes chooses the key type (float where exact), the key index's and
 // the child number's types and a block's rows.
 func (g *gen) blockTypes(b *blockForest, biggest int) {
-	b.keyType = "float"
-	for _, t := range b.thr {
-		if !floatExact(t, b.ge) {
-			b.keyType = g.ft
+	b.keyType = g.keyType(b.thr, b.ge)
+	if b.keyType != "float" {
+		if b.ranks = g.blockRanks(b); b.ranks != nil {
+			b.keyType = "uint16_t"
+			biggest = max(biggest, 65537) // 4-byte child numbers: 8-byte nodes, which x86-64 addresses in one step
 		}
-	}
-	if b.keyType == "float" {
-		for i, t := range b.thr {
-			b.thr[i] = float64(float32(t))
-		}
-	} else if b.ranks = g.blockRanks(b); b.ranks != nil {
-		b.keyType = "uint16_t"
-		biggest = max(biggest, 65537) // 4-byte child numbers: 8-byte nodes, which x86-64 addresses in one step
 	}
 	keys := 2*len(g.p.Features) + 1
 	switch {

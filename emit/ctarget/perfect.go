@@ -176,17 +176,7 @@ func (g *gen) buildPerfect() *perfectForest {
 		pf.leaf = append(pf.leaf, make([]float64, leaves*p.NumOutputs)...)
 		g.perfectPlace(pf, ti, 0, 0, pf.feat[base:], pf.thr[base:], pf.leaf[lbase:])
 	}
-	pf.keyType = "float"
-	for _, t := range pf.thr {
-		if !floatExact(t, pf.ge) {
-			pf.keyType = g.ft
-		}
-	}
-	if pf.keyType == "float" {
-		for i, t := range pf.thr {
-			pf.thr[i] = float64(float32(t))
-		}
-	}
+	pf.keyType = g.keyType(pf.thr, pf.ge)
 	pf.rows = perfectRows(len(p.Features), map[string]int{"float": 4, "double": 8}[pf.keyType])
 	pf.featTyp = "uint16_t"
 	if len(p.Features) <= 128 {
@@ -194,6 +184,21 @@ func (g *gen) buildPerfect() *perfectForest {
 	}
 	pf.simd = perfectSimd(g, pf)
 	return pf
+}
+
+// keyType is the C type of a batch walk's keys and thresholds: float where
+// that decides every split of thr as the arithmetic's type does
+// (floatExact), when thr is rounded to floats in place; else g.ft.
+func (g *gen) keyType(thr []float64, ge bool) string {
+	for _, t := range thr {
+		if !floatExact(t, ge) {
+			return g.ft
+		}
+	}
+	for i, t := range thr {
+		thr[i] = float64(float32(t))
+	}
+	return "float"
 }
 
 // floatExact reports whether a split x > t (x >= t when ge) of a double x
