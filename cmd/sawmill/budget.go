@@ -28,6 +28,15 @@ func (b *budgetFlags) add(f *pflag.FlagSet) {
 // set reports whether a budget was given.
 func (b *budgetFlags) set() bool { return b.flash > 0 || b.ram > 0 }
 
+// batchBudget refuses a budget beside --layout batch, which asks for the
+// walk of desktops and servers.
+func batchBudget(fl *compileFlags) error {
+	if fl.budget.set() && fl.layout == ctarget.Batch {
+		return usageError{fmt.Errorf("sawmill compile: --layout batch is for desktops and servers, a flash or RAM budget for boards\nhint: leave out --layout batch or the budget")}
+	}
+	return nil
+}
+
 // fitBudget measures p's C layouts against the budget and sets fl.layout
 // to the smallest that fits, printing the measurements to w.
 func fitBudget(ctx context.Context, w io.Writer, p *compile.Program, fl *compileFlags) error {

@@ -125,6 +125,22 @@ func TestBudgetNotForGo(t *testing.T) {
 	require.Contains(t, errOut, "--flash-budget (c only)")
 }
 
+// --layout batch writes the fastest batch walk the model takes (block for
+// the fully grown forest, which no perfect tree pads) and says why; it is
+// refused beside a flash budget, which is for boards.
+func TestCompileBatchLayout(t *testing.T) {
+	dir := t.TempDir()
+	code, out, errOut := sawmill(t, "compile", breastCancer, "--target", "c", "--layout", "batch", "--name", "bc", "-o", dir)
+	require.Equal(t, 0, code, errOut)
+	h, err := os.ReadFile(filepath.Join(dir, "bc.h"))
+	require.NoError(t, err)
+	require.Contains(t, string(h), "layout block", out)
+	require.Contains(t, string(h), "batch asked for; not perfect")
+	code, _, errOut = sawmill(t, "compile", breastCancer, "--target", "c", "--layout", "batch", "-o", t.TempDir(), "--flash-budget", "50000")
+	require.Equal(t, 2, code)
+	require.Contains(t, errOut, "--layout batch is for desktops and servers")
+}
+
 // --int-features floors the named features' thresholds and says how many;
 // an unknown name is an error naming it.
 func TestCompileIntFeatures(t *testing.T) {

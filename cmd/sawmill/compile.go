@@ -121,7 +121,7 @@ sawmill did not generate is never overwritten (unless --force).`,
 	f := c.Flags()
 	f.StringVar(&fl.target, "target", "", "go, c or sql (required)")
 	f.StringVarP(&fl.out, "output", "o", "", "output folder (required; created if missing)")
-	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table, branchless (go), binned, bitvector, block or perfect (c; bitvector, block and perfect fall back to table where they cannot be written)")
+	f.StringVar(&fl.layout, "layout", emit.Auto, "auto, nested, table, branchless (go), binned, bitvector, block, perfect or batch (c; bitvector, block and perfect fall back to table where they cannot be written; batch: the fastest batch walk on a desktop or server, perfect where it builds, else block, else auto's)")
 	f.StringVar(&fl.pkg, "package", "model", "Go: package name")
 	f.StringVar(&fl.name, "name", "", "C: base name of NAME.h, NAME.c and the NAME_ prefix (default model); SQL: the file NAME.sql (default score)")
 	f.BoolVar(&fl.float, "float", false, "C: float instead of double everywhere, for FPUs without double")
@@ -187,6 +187,9 @@ func runCompile(c *cobra.Command, modelPath string, fl *compileFlags) error {
 		printPassStats(c.ErrOrStderr(), stats)
 	}
 	if err := constantTimeFlags(fl); err != nil {
+		return err
+	}
+	if err := batchBudget(fl); err != nil {
 		return err
 	}
 	if fl.budget.set() {

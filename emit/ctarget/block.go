@@ -548,14 +548,21 @@ func (g *gen) blockLoopFrom(w *printer, fn, rows, least, few string) {
 	w.line("}")
 }
 
+// blockAccepts says why the block layout cannot write p, or nil: what
+// blockFits refuses, and more than BlockMaxFeatures features.
+func blockAccepts(g *gen) error {
+	if err := blockFits(g); err != nil {
+		return err
+	}
+	if len(g.p.Features) > BlockMaxFeatures {
+		return fmt.Errorf("%d features, more than %d (a block's keys live on the stack)", len(g.p.Features), BlockMaxFeatures)
+	}
+	return nil
+}
+
 // blockResolve is Resolve's answer when the block layout is asked for.
 func blockResolve(p *compile.Program, o Options) (string, string) {
-	g := &gen{p: p, o: o}
-	err := blockFits(g)
-	if err == nil && len(p.Features) > BlockMaxFeatures {
-		err = fmt.Errorf("%d features, more than %d (a block's keys live on the stack)", len(p.Features), BlockMaxFeatures)
-	}
-	if err != nil {
+	if err := blockAccepts(&gen{p: p, o: o}); err != nil {
 		return "table", fmt.Sprintf("block asked for, but %v: the table layout instead", err)
 	}
 	return Block, "asked for"

@@ -229,6 +229,8 @@ func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 	case Perfect:
 		l, why := perfectResolve(p, o)
 		return l, why, nil
+	case Batch:
+		return batchResolve(p, o)
 	case "", emit.Auto:
 		n, biggest := p.NumNodes(), 0
 		for i := range p.Trees {
@@ -242,7 +244,7 @@ func resolveLayout(p *compile.Program, o Options) (string, string, error) {
 		}
 		return tableOrBinned(p, o, fmt.Sprintf("%d nodes, more than %d: tables build in seconds where nested code would take minutes", n, AutoNestedNodes))
 	}
-	return "", "", emit.UnknownLayout(Name, o.Layout, Layouts())
+	return "", "", emit.UnknownLayout(Name, o.Layout, append(Layouts(), Batch))
 }
 
 // Emit returns NAME.h and NAME.c for p.

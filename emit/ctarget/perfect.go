@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"github.com/sawmill-dev/sawmill/compile"
+	"github.com/sawmill-dev/sawmill/emit"
 )
 
 // Perfect is the layout whose NAME_predict_batch walks every tree as a
@@ -137,6 +138,30 @@ func perfectResolve(p *compile.Program, o Options) (string, string) {
 		return "table", fmt.Sprintf("perfect asked for, but %v: the table layout instead", err)
 	}
 	return Perfect, "asked for"
+}
+
+// Batch is not a layout of its own: it asks for the fastest batch walk
+// the model takes on a desktop or server CPU, by the crossovers measured
+// in docs/batch-layouts.md: perfect where it builds, else block, else what
+// auto writes. auto never picks those two itself, as their tables and the
+// keys they keep on the stack would land on microcontroller builds, which
+// auto cannot tell from servers; batch is how a user says which it is.
+const Batch = "batch"
+
+// batchResolve is Resolve's answer when batch is asked for.
+func batchResolve(p *compile.Program, o Options) (string, string, error) {
+	g := &gen{p: p, o: o}
+	notPerfect := perfectFits(g)
+	if notPerfect == nil {
+		return Perfect, fmt.Sprintf("batch asked for: trees at most %d deep, padded to perfect trees", forestDepth(p)), nil
+	}
+	notBlock := blockAccepts(g)
+	if notBlock == nil {
+		return Block, fmt.Sprintf("batch asked for; not perfect (%v): the block walk", notPerfect), nil
+	}
+	o.Layout = emit.Auto
+	l, why, err := resolveLayout(p, o)
+	return l, fmt.Sprintf("batch asked for, but neither perfect (%v) nor block (%v): auto's choice, %s", notPerfect, notBlock, why), err
 }
 
 // perfectNested reports whether the perfect layout writes NAME_predict as

@@ -161,3 +161,15 @@ func TestPerfectSimdRule(t *testing.T) {
 	require.Equal(t, "double", pf.keyType, "0.1 is no float")
 	require.False(t, pf.simd, "double keys keep the scalar walk")
 }
+
+// TestBatchResolve: batch asks for perfect where it builds, else block,
+// else what auto writes, and says why.
+func TestBatchResolve(t *testing.T) {
+	checkFallsBack(t, Batch, []fallback{
+		{"edge-nan-routing", Perfect, "padded to perfect trees"},
+		{"v2-exp", Block, "not perfect (trees of depth 22, deeper than 10): the block walk"},
+		{"sklearn-wine", Block, "not perfect (perfect trees of depth"},
+		{"v2-set-exact", "nested", "neither perfect (tree 0, node 0: a set split) nor block"},
+		{"v2-missing-value-0", "nested", "nor block (a missing-value band): auto's choice"},
+	})
+}
