@@ -3,7 +3,6 @@ package verify
 import (
 	"context"
 	"fmt"
-	"runtime"
 	"strings"
 	"testing"
 
@@ -37,7 +36,8 @@ func TestCPerfectBuilds(t *testing.T) {
 
 // TestCPerfectLanes builds the perfect layout without target flags (the
 // scalar walk), with -mavx2 (scalar too: see emit/ctarget/perfect_simd.go)
-// and with -march=x86-64-v4 (the AVX-512 lanes) in gcc and clang, and
+// and with -march=x86-64-v4 (the AVX-512 lanes) in gcc and clang, where
+// the CPU runs them (cpuMatrix), and
 // requires every build to print the same bytes (score checks it) and those
 // to be the interpreter's, in double and float, the driver checking
 // NAME_predict_batch over all rows and over runs of 1 to 70 rows against
@@ -51,14 +51,9 @@ func TestCPerfectBuilds(t *testing.T) {
 // gcc/clang on 2 shared cores.
 func TestCPerfectLanes(t *testing.T) {
 	testenv.Need(t, cTools(true))
-	if err := hasCPUFlag("avx512f", "AVX-512F"); err != nil {
-		if requireEngines && runtime.GOARCH == "amd64" {
-			t.Fatalf("%v, and SAWMILL_REQUIRE_ENGINES is set", err)
-		}
-		t.Skipf("the AVX-512 lanes cannot run here: %v", err)
-	}
-	matrix := []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", "O2 -mavx2", false},
-		{"gcc", "c99", "O2 -march=x86-64-v4", false}, {"clang", "c11", "O2 -march=x86-64-v4", false}}
+	matrix := cpuMatrix(t, []cBuild{{"gcc", "c99", "O2", false}},
+		cpuBuilds{"avx2", "AVX2", []cBuild{{"gcc", "c99", "O2 -mavx2", false}}},
+		cpuBuilds{"avx512f", "AVX-512F", []cBuild{{"gcc", "c99", "O2 -march=x86-64-v4", false}, {"clang", "c11", "O2 -march=x86-64-v4", false}}})
 	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
 	r := testCRunner()
 	paths := map[bool]int{}
