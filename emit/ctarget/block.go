@@ -286,7 +286,7 @@ func (g *gen) blockTables(w *printer, b *blockForest) {
 // key index: 8 bytes in float, 16 in double), so that a step reads one
 // cache line.
 func (g *gen) blockNodes(w *printer, b *blockForest) {
-	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[b.keyType]
+	inf := hugeVal(b.keyType)
 	w.line("/* block walk: per node, the row goes right when key[k] %s thr; kid, the left", b.cmp())
 	w.line(" * child counted from the tree's root (a leaf: itself, with thr +inf and k")
 	w.line(" * the -inf key). */")
@@ -403,11 +403,6 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 // blockKeys writes the loop that fills each row's keys and starts its sums.
 func (g *gen) blockKeys(w *printer, b *blockForest) {
 	u, kt := g.upper, b.keyType
-	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[kt]
-	cast := ""
-	if kt != g.ft {
-		cast = "(" + kt + ")"
-	}
 	w.line("for (lane = 0; lane < used; lane++) {")
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
@@ -418,15 +413,14 @@ func (g *gen) blockKeys(w *printer, b *blockForest) {
 		g.blockRankKeyLines(w)
 	} else {
 		w.line("const %s v = xr[j];", g.ft)
-		w.line("k[2 * j * %d] = v != v ? -%s : %sv;", blockChains, inf, cast)
-		w.line("k[(2 * j + 1) * %d] = v != v ? %s : %sv;", blockChains, inf, cast)
+		g.keyPair(w, fmt.Sprintf("k[2 * j * %d]", blockChains), fmt.Sprintf("k[(2 * j + 1) * %d]", blockChains), kt, "")
 	}
 	w.out()
 	w.line("}")
 	if b.ranks != nil {
 		w.line("k[2 * %s_NUM_FEATURES * %d] = 0u; /* the leaves' key */", u, blockChains)
 	} else {
-		w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, inf)
+		w.line("k[2 * %s_NUM_FEATURES * %d] = -%s; /* the leaves' key */", u, blockChains, hugeVal(kt))
 	}
 	for j := 0; j < g.p.NumOutputs; j++ {
 		w.line("sum[lane * %s_NUM_OUTPUTS + %du] = %s;", u, j, g.accStart(j))

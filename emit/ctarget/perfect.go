@@ -312,7 +312,7 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 		t := pf.thr[i]
 		if math.IsInf(t, 0) { // +inf in padding; -inf where the model splits off x <= -inf
 			sign := map[bool]string{true: "", false: "-"}[t > 0]
-			return sign + map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[pf.keyType]
+			return sign + hugeVal(pf.keyType)
 		}
 		if pf.keyType == "float" {
 			return floatLit(t)
@@ -322,6 +322,29 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	g.bvArray(w, g.at, "pf_leaf", "perfect walk: per tree, per leaf left to right, per output, the value", len(pf.leaf), func(i int) string {
 		return g.alit(pf.leaf[i])
 	})
+}
+
+// hugeVal is C's +inf of the key type kt (float or double).
+func hugeVal(kt string) string {
+	if kt == "float" {
+		return "HUGE_VALF"
+	}
+	return "HUGE_VAL"
+}
+
+// keyPair writes the two keys of the input v that the batch walks store:
+// lo with NaN as -inf, hi with NaN as +inf, both of type kt, note ending the
+// first line where v is converted to kt.
+func (g *gen) keyPair(w *printer, lo, hi, kt, note string) {
+	inf := hugeVal(kt)
+	cast := ""
+	if kt != g.ft {
+		cast = "(" + kt + ")"
+	} else {
+		note = ""
+	}
+	w.line("%s = v != v ? -%s : %sv;%s", lo, inf, cast, note)
+	w.line("%s = v != v ? %s : %sv;", hi, inf, cast)
 }
 
 // cmp is the comparison that sends a row right.
@@ -391,7 +414,6 @@ func (g *gen) perfectTrees(w *printer, pf *perfectForest) {
 // sums.
 func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	u, kt := g.upper, pf.keyType
-	inf := map[string]string{"double": "HUGE_VAL", "float": "HUGE_VALF"}[kt]
 	w.line("for (lane = 0; lane < used; lane++) {")
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
@@ -405,13 +427,7 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
 	w.line("const %s v = xr[j];", g.ft)
-	if kt == g.ft {
-		w.line("%s = v != v ? -%s : v;", lo, inf)
-		w.line("%s = v != v ? %s : v;", hi, inf)
-	} else {
-		w.line("%s = v != v ? -%s : (%s)v; /* exact: see the thresholds */", lo, inf, kt)
-		w.line("%s = v != v ? %s : (%s)v;", hi, inf, kt)
-	}
+	g.keyPair(w, lo, hi, kt, " /* exact: see the thresholds */")
 	w.out()
 	w.line("}")
 	for j := 0; j < g.p.NumOutputs; j++ {
