@@ -67,15 +67,16 @@ const BlockMaxFeatures = 255
 const blockMaxNodes = 1 << 30
 
 // blockCheckDepth is the deepest tree walked to its depth without a test:
-// deeper, the eight rows stop once none moved over blockCheckEvery steps.
+// deeper, the eight rows stop once the sum of their node numbers stayed
+// the same over a step (blockWalkUntilStill). On the 500-round 63-leaf
+// LightGBM model of bench/libs/run.sh (trees 8 to 23 deep; a group of
+// eight rows walked 11.7 steps a tree under the earlier test, each row
+// 4.5 steps to its leaf, the deepest of the eight 9.4) that test took
+// 45,086 instructions a row against 58,407 for the earlier one (eight
+// copies and eight xors every 2 steps), and 3,697 ns a row against 4,794
+// (callgrind, gcc 12 -O2, 1,000 rows; best of 5, 10,000 rows, A/B
+// interleaved).
 const blockCheckDepth = 8
-
-// blockCheckEvery is the steps between two tests of whether the eight rows
-// all sit on leaves. On the 500-round 63-leaf LightGBM model of
-// bench/libs/run.sh (trees 8 to 23 deep) the block walk took 78,542
-// instructions a row testing every step, 74,586 every 2, 76,002 every 3,
-// 78,297 every 4 and 84,737 every 6 (callgrind, gcc 12 -O2, 200 rows).
-const blockCheckEvery = 2
 
 // blockFits says why p cannot be written in the block layout, or nil. The
 // layout handles numeric splits (<= and <, NaN to either side), float32
@@ -116,15 +117,16 @@ func blockFits(g *gen) error {
 
 // blockForest is the forest as the block walk stores it.
 type blockForest struct {
-	key   []uint32  // per node: (feature << 1 | NaN goes right) * blockChains (a leaf: the -inf key's)
-	thr   []float64 // per node: the row goes right when its key exceeds this (+inf at a leaf)
-	kid   []uint32  // per node: the left child, counted from the tree's root (a leaf: itself)
-	val   []float64 // per node: the leaf value (0 at a split), one output
-	row   []int     // per node: the leaf's row of rows (0 at a split), several outputs
-	rows  *leafRows // the distinct leaf vectors, several outputs
-	root  []int     // per tree: its root
-	steps []int     // per tree: its depth
-	ge    bool      // a row goes right when key >= thr (every split a <), else key > thr
+	key     []uint32  // per node: (feature << 1 | NaN goes right) * blockChains (a leaf: the -inf key's)
+	thr     []float64 // per node: the row goes right when its key exceeds this (+inf at a leaf)
+	kid     []uint32  // per node: the left child, counted from the tree's root (a leaf: itself)
+	val     []float64 // per node: the leaf value (0 at a split), one output
+	row     []int     // per node: the leaf's row of rows (0 at a split), several outputs
+	rows    *leafRows // the distinct leaf vectors, several outputs
+	root    []int     // per tree: its root
+	steps   []int     // per tree: its depth
+	biggest int       // the most nodes of a tree
+	ge      bool      // a row goes right when key >= thr (every split a <), else key > thr
 	// keyType is the C type of keys and thresholds: float where that is
 	// exact at every split (floatExact), else uint16_t, ranks (see
 	// blockRanks), else the arithmetic's type.
@@ -177,6 +179,7 @@ func (g *gen) buildBlock() *blockForest {
 			g.blockNode(b, ti, ni, num)
 		}
 	}
+	b.biggest = biggest
 	g.blockTypes(b, biggest)
 	return b
 }
@@ -371,7 +374,7 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	w.line("/* Scores the count <= %s_BK_ROWS rows at x into outs: writes each row's", u)
 	w.line(" * keys, then tree by tree eight rows at a time take the tree's depth in")
 	w.line(" * steps, each a comparison and an addition (no branch on the data; trees")
-	w.line(" * deeper than %d stop once the eight rows sat still for %d steps), and add", blockCheckDepth, blockCheckEvery)
+	w.line(" * deeper than %d stop once the eight rows sat still for a step), and add", blockCheckDepth)
 	w.line(" * their leaves, in tree order as %s_predict adds them. Up to %d lanes past", g.name, blockChains-1)
 	w.line(" * count walk row 0 and are dropped. */")
 	w.line("static void %s_block(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
@@ -446,25 +449,43 @@ func (g *gen) blockChains(w *printer, b *blockForest) {
 	w.out()
 	w.line("} else {")
 	w.in()
-	w.line("for (s = 0; s < steps; s += %du) {", blockCheckEvery)
-	w.in()
-	var was, moved []string
-	for c := 0; c < blockChains; c++ {
-		was = append(was, fmt.Sprintf("p%d = i%d", c, c))
-		moved = append(moved, fmt.Sprintf("(i%d ^ p%d)", c, c))
-	}
-	w.line("const uint32_t %s;", strings.Join(was, ", "))
-	w.out()
-	g.blockSteps(w, b, blockCheckEvery)
-	w.in()
-	w.line("if ((%s) == 0u) {", strings.Join(moved, " | "))
-	w.line("\tbreak; /* the eight rows sit on leaves */")
-	w.line("}")
-	w.out()
-	w.line("}")
+	g.blockWalkUntilStill(w, b)
 	w.out()
 	w.line("}")
 	g.blockAdd(w, b)
+}
+
+// blockWalkUntilStill writes the walk of a tree deeper than
+// blockCheckDepth: a step of every chain, then a test whether the sum of
+// the eight node numbers moved. A step never lowers a node number (a
+// split's children are numbered after it, breadth first; a leaf is its own
+// child), so an unchanged sum means no row moved: all eight sit on leaves.
+// The sum is 32 bits where eight times the biggest tree's nodes fit (no
+// step then adds 2^32), else 64.
+func (g *gen) blockWalkUntilStill(w *printer, b *blockForest) {
+	st := "uint32_t"
+	if int64(b.biggest)*8 >= 1<<32 {
+		st = "uint64_t"
+	}
+	var sum []string
+	for c := 0; c < blockChains; c++ {
+		if st == "uint32_t" {
+			sum = append(sum, fmt.Sprintf("i%d", c))
+			continue
+		}
+		sum = append(sum, fmt.Sprintf("(%s)i%d", st, c))
+	}
+	w.line("%s was = 0u;", st)
+	w.line("for (s = 0; s < steps; s++) {")
+	g.blockSteps(w, b, 1)
+	w.in()
+	w.line("const %s now = %s;", st, strings.Join(sum, " + "))
+	w.line("if (now == was) {")
+	w.line("\tbreak; /* no row moved: the eight rows sit on leaves */")
+	w.line("}")
+	w.line("was = now;")
+	w.out()
+	w.line("}")
 }
 
 // blockSteps writes n steps of every chain, one chain after the other in

@@ -273,7 +273,7 @@ static const uint32_t pumpmodel_bk_steps[1] = {
 /* Scores the count <= PUMPMODEL_BK_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree eight rows at a time take the tree's depth in
  * steps, each a comparison and an addition (no branch on the data; trees
- * deeper than 8 stop once the eight rows sat still for 2 steps), and add
+ * deeper than 8 stop once the eight rows sat still for a step), and add
  * their leaves, in tree order as pumpmodel_predict adds them. Up to 7 lanes past
  * count walk row 0 and are dropped. */
 static void pumpmodel_block(const double *x, size_t count, double *outs)
@@ -323,8 +323,8 @@ static void pumpmodel_block(const double *x, size_t count, double *outs)
 					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
 				}
 			} else {
-				for (s = 0; s < steps; s += 2u) {
-					const uint32_t p0 = i0, p1 = i1, p2 = i2, p3 = i3, p4 = i4, p5 = i5, p6 = i6, p7 = i7;
+				uint32_t was = 0u;
+				for (s = 0; s < steps; s++) {
 					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
 					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
 					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
@@ -333,17 +333,11 @@ static void pumpmodel_block(const double *x, size_t count, double *outs)
 					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
 					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
 					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
-					if (((i0 ^ p0) | (i1 ^ p1) | (i2 ^ p2) | (i3 ^ p3) | (i4 ^ p4) | (i5 ^ p5) | (i6 ^ p6) | (i7 ^ p7)) == 0u) {
-						break; /* the eight rows sit on leaves */
+					const uint32_t now = i0 + i1 + i2 + i3 + i4 + i5 + i6 + i7;
+					if (now == was) {
+						break; /* no row moved: the eight rows sit on leaves */
 					}
+					was = now;
 				}
 			}
 			{
