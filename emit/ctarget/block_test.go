@@ -60,7 +60,8 @@ func TestBlockNodes(t *testing.T) {
 	require.Equal(t, []int{0, 0, 0}, b.ranks.lo)
 	require.Equal(t, []int{1, 1, 0}, b.ranks.hi)
 	require.Equal(t, ">", b.cmp())
-	require.Equal(t, "uint32_t", b.kidTyp, "rank keys: 8-byte nodes")
+	require.Equal(t, "uint8_t", b.kidTyp, "child numbers: the smallest type the biggest tree fits")
+	require.Equal(t, 5, b.nodeBytes(), "a node in the three arrays: child 1, rank 2, key index 2")
 }
 
 // TestBlockKeepsLT: where every split is "<", the thresholds stay the

@@ -146,48 +146,34 @@ int pumpmodel_predict_class(const float *x)
 #define PUMPMODEL_BK_ROWS 128u /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_BK_KEYS (2u * PUMPMODEL_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */
 
-/* block walk: per node, the row goes right when key[k] > thr; kid, the left
- * child counted from the tree's root (a leaf: itself, with thr +inf and k
- * the -inf key). */
-struct pumpmodel_bk_node {
-	float thr;
-	uint8_t kid;
-	uint16_t k;
+/* block walk, per node: the row goes right when key[bk_k] > bk_thr;
+ * bk_kid is the left child counted from the tree's root (a leaf: itself,
+ * with a threshold no key passes and the leaves' key). */
+/* block walk: each node's left child, counted from its tree's root */
+static const uint8_t pumpmodel_bk_kid[33] = {
+	1u, 1u, 3u, 3u, 5u, 5u, 7u, 7u,
+	9u, 9u, 11u, 11u, 13u, 13u, 15u, 15u,
+	17u, 17u, 19u, 19u, 21u, 21u, 23u, 23u,
+	25u, 25u, 27u, 27u, 29u, 29u, 31u, 31u,
+	32u
 };
-static const struct pumpmodel_bk_node pumpmodel_bk_nodes[33] = {
-	{0.0f, 1u, 0u},
-	{HUGE_VALF, 1u, 256u},
-	{0.5f, 3u, 24u},
-	{HUGE_VALF, 3u, 256u},
-	{1.0f, 5u, 32u},
-	{HUGE_VALF, 5u, 256u},
-	{1.5f, 7u, 56u},
-	{HUGE_VALF, 7u, 256u},
-	{2.0f, 9u, 64u},
-	{HUGE_VALF, 9u, 256u},
-	{2.5f, 11u, 88u},
-	{HUGE_VALF, 11u, 256u},
-	{3.0f, 13u, 96u},
-	{HUGE_VALF, 13u, 256u},
-	{3.5f, 15u, 120u},
-	{HUGE_VALF, 15u, 256u},
-	{4.0f, 17u, 128u},
-	{HUGE_VALF, 17u, 256u},
-	{4.5f, 19u, 152u},
-	{HUGE_VALF, 19u, 256u},
-	{5.0f, 21u, 160u},
-	{HUGE_VALF, 21u, 256u},
-	{5.5f, 23u, 184u},
-	{HUGE_VALF, 23u, 256u},
-	{6.0f, 25u, 192u},
-	{HUGE_VALF, 25u, 256u},
-	{6.5f, 27u, 216u},
-	{HUGE_VALF, 27u, 256u},
-	{7.0f, 29u, 224u},
-	{HUGE_VALF, 29u, 256u},
-	{7.5f, 31u, 248u},
-	{HUGE_VALF, 31u, 256u},
-	{HUGE_VALF, 32u, 256u}
+
+/* block walk: each node's threshold */
+static const float pumpmodel_bk_thr[33] = {
+	0.0f, HUGE_VALF, 0.5f, HUGE_VALF, 1.0f, HUGE_VALF, 1.5f, HUGE_VALF,
+	2.0f, HUGE_VALF, 2.5f, HUGE_VALF, 3.0f, HUGE_VALF, 3.5f, HUGE_VALF,
+	4.0f, HUGE_VALF, 4.5f, HUGE_VALF, 5.0f, HUGE_VALF, 5.5f, HUGE_VALF,
+	6.0f, HUGE_VALF, 6.5f, HUGE_VALF, 7.0f, HUGE_VALF, 7.5f, HUGE_VALF,
+	HUGE_VALF
+};
+
+/* block walk: each node's key index (feature << 1 | NaN goes right, times 8) */
+static const uint16_t pumpmodel_bk_k[33] = {
+	0u, 256u, 24u, 256u, 32u, 256u, 56u, 256u,
+	64u, 256u, 88u, 256u, 96u, 256u, 120u, 256u,
+	128u, 256u, 152u, 256u, 160u, 256u, 184u, 256u,
+	192u, 256u, 216u, 256u, 224u, 256u, 248u, 256u,
+	256u
 };
 
 /* block walk: distinct leaf vectors */
@@ -256,7 +242,10 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 1u] = 0.0f;
 	}
 	for (tree = 0; tree < 1u; tree++) {
-		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
+		const uint32_t root = pumpmodel_bk_root[tree];
+		const uint8_t *const kid = pumpmodel_bk_kid + root; /* the tree's nodes */
+		const float *const thr = pumpmodel_bk_thr + root;
+		const uint16_t *const kix = pumpmodel_bk_k + root;
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
 			const float *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
@@ -271,26 +260,26 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 			uint32_t s;
 			if (steps <= 8u) {
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)kid[i0] + (uint32_t)(kb[kix[i0] + 0u] > thr[i0]);
+					i1 = (uint32_t)kid[i1] + (uint32_t)(kb[kix[i1] + 1u] > thr[i1]);
+					i2 = (uint32_t)kid[i2] + (uint32_t)(kb[kix[i2] + 2u] > thr[i2]);
+					i3 = (uint32_t)kid[i3] + (uint32_t)(kb[kix[i3] + 3u] > thr[i3]);
+					i4 = (uint32_t)kid[i4] + (uint32_t)(kb[kix[i4] + 4u] > thr[i4]);
+					i5 = (uint32_t)kid[i5] + (uint32_t)(kb[kix[i5] + 5u] > thr[i5]);
+					i6 = (uint32_t)kid[i6] + (uint32_t)(kb[kix[i6] + 6u] > thr[i6]);
+					i7 = (uint32_t)kid[i7] + (uint32_t)(kb[kix[i7] + 7u] > thr[i7]);
 				}
 			} else {
 				uint32_t was = 0u;
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)kid[i0] + (uint32_t)(kb[kix[i0] + 0u] > thr[i0]);
+					i1 = (uint32_t)kid[i1] + (uint32_t)(kb[kix[i1] + 1u] > thr[i1]);
+					i2 = (uint32_t)kid[i2] + (uint32_t)(kb[kix[i2] + 2u] > thr[i2]);
+					i3 = (uint32_t)kid[i3] + (uint32_t)(kb[kix[i3] + 3u] > thr[i3]);
+					i4 = (uint32_t)kid[i4] + (uint32_t)(kb[kix[i4] + 4u] > thr[i4]);
+					i5 = (uint32_t)kid[i5] + (uint32_t)(kb[kix[i5] + 5u] > thr[i5]);
+					i6 = (uint32_t)kid[i6] + (uint32_t)(kb[kix[i6] + 6u] > thr[i6]);
+					i7 = (uint32_t)kid[i7] + (uint32_t)(kb[kix[i7] + 7u] > thr[i7]);
 					const uint32_t now = i0 + i1 + i2 + i3 + i4 + i5 + i6 + i7;
 					if (now == was) {
 						break; /* no row moved: the eight rows sit on leaves */
@@ -299,49 +288,49 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i0]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i0]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 0u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i1]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i1]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 1u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i2]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i2]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 2u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i3]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i3]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 3u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i4]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i4]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 4u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i5]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i5]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 5u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i6]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i6]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 6u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}
 			}
 			{
-				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[pumpmodel_bk_root[tree] + i7]];
+				const float *const lv = pumpmodel_bk_leaf[pumpmodel_bk_row[root + i7]];
 				for (j = 0; j < PUMPMODEL_NUM_OUTPUTS; j++) {
 					sum[(lane + 7u) * PUMPMODEL_NUM_OUTPUTS + (size_t)j] += lv[j];
 				}

@@ -25,7 +25,9 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 8 = 56 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 11 x 8 = 88 bytes
+ *   pumpmodel_bk_kid: block walk: each node's left child, counted from its tree's root, 11 x 1 = 11 bytes
+ *   pumpmodel_bk_thr: block walk: each node's threshold, 11 x 2 = 22 bytes
+ *   pumpmodel_bk_k: block walk: each node's key index (feature << 1 | NaN goes right, times 8), 11 x 2 = 22 bytes
  *   pumpmodel_bk_cut: block walk: per feature, its distinct thresholds in ascending order, 4 x 8 = 32 bytes
  *   pumpmodel_bk_cut_at: block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end, 3 x 4 = 12 bytes
  *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 2 x 2 = 4 bytes
@@ -33,7 +35,7 @@
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 11 x 8 = 88 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 3 x 4 = 12 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes
- *   total 336 bytes (30.55 bytes per node; code not counted)
+ *   total 303 bytes (27.55 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

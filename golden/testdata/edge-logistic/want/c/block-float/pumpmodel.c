@@ -118,26 +118,25 @@ int pumpmodel_predict_class(const float *x)
 #define PUMPMODEL_BK_ROWS 128u /* a block's rows: 32768 bytes of keys at most */
 #define PUMPMODEL_BK_KEYS (2u * PUMPMODEL_NUM_FEATURES + 1u) /* a row's keys: each feature with NaN as -inf, then as +inf; then -inf */
 
-/* block walk: per node, the row goes right when key[k] > thr; kid, the left
- * child counted from the tree's root (a leaf: itself, with thr +inf and k
- * the -inf key). */
-struct pumpmodel_bk_node {
-	float thr;
-	uint8_t kid;
-	uint16_t k;
+/* block walk, per node: the row goes right when key[bk_k] > bk_thr;
+ * bk_kid is the left child counted from the tree's root (a leaf: itself,
+ * with a threshold no key passes and the leaves' key). */
+/* block walk: each node's left child, counted from its tree's root */
+static const uint8_t pumpmodel_bk_kid[11] = {
+	1u, 3u, 2u, 3u, 4u, 1u, 1u, 2u,
+	1u, 1u, 2u
 };
-static const struct pumpmodel_bk_node pumpmodel_bk_nodes[11] = {
-	{61.5f, 1u, 24u},
-	{12.25f, 3u, 0u},
-	{HUGE_VALF, 2u, 32u},
-	{HUGE_VALF, 3u, 32u},
-	{HUGE_VALF, 4u, 32u},
-	{10.0f, 1u, 8u},
-	{HUGE_VALF, 1u, 32u},
-	{HUGE_VALF, 2u, 32u},
-	{70.0f, 1u, 24u},
-	{HUGE_VALF, 1u, 32u},
-	{HUGE_VALF, 2u, 32u}
+
+/* block walk: each node's threshold */
+static const float pumpmodel_bk_thr[11] = {
+	61.5f, 12.25f, HUGE_VALF, HUGE_VALF, HUGE_VALF, 10.0f, HUGE_VALF, HUGE_VALF,
+	70.0f, HUGE_VALF, HUGE_VALF
+};
+
+/* block walk: each node's key index (feature << 1 | NaN goes right, times 8) */
+static const uint16_t pumpmodel_bk_k[11] = {
+	24u, 0u, 32u, 32u, 32u, 8u, 32u, 32u,
+	24u, 32u, 32u
 };
 
 /* block walk: each node's leaf value (0 at a split) */
@@ -182,7 +181,10 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.4054651f;
 	}
 	for (tree = 0; tree < 3u; tree++) {
-		const struct pumpmodel_bk_node *const nd = pumpmodel_bk_nodes + pumpmodel_bk_root[tree];
+		const uint32_t root = pumpmodel_bk_root[tree];
+		const uint8_t *const kid = pumpmodel_bk_kid + root; /* the tree's nodes */
+		const float *const thr = pumpmodel_bk_thr + root;
+		const uint16_t *const kix = pumpmodel_bk_k + root;
 		const uint32_t steps = pumpmodel_bk_steps[tree];
 		for (lane = 0; lane < used; lane += 8u) {
 			const float *const kb = key + lane * PUMPMODEL_BK_KEYS; /* the eight rows' keys, interleaved */
@@ -197,26 +199,26 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 			uint32_t s;
 			if (steps <= 8u) {
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)kid[i0] + (uint32_t)(kb[kix[i0] + 0u] > thr[i0]);
+					i1 = (uint32_t)kid[i1] + (uint32_t)(kb[kix[i1] + 1u] > thr[i1]);
+					i2 = (uint32_t)kid[i2] + (uint32_t)(kb[kix[i2] + 2u] > thr[i2]);
+					i3 = (uint32_t)kid[i3] + (uint32_t)(kb[kix[i3] + 3u] > thr[i3]);
+					i4 = (uint32_t)kid[i4] + (uint32_t)(kb[kix[i4] + 4u] > thr[i4]);
+					i5 = (uint32_t)kid[i5] + (uint32_t)(kb[kix[i5] + 5u] > thr[i5]);
+					i6 = (uint32_t)kid[i6] + (uint32_t)(kb[kix[i6] + 6u] > thr[i6]);
+					i7 = (uint32_t)kid[i7] + (uint32_t)(kb[kix[i7] + 7u] > thr[i7]);
 				}
 			} else {
 				uint32_t was = 0u;
 				for (s = 0; s < steps; s++) {
-					i0 = (uint32_t)nd[i0].kid + (uint32_t)(kb[nd[i0].k + 0u] > nd[i0].thr);
-					i1 = (uint32_t)nd[i1].kid + (uint32_t)(kb[nd[i1].k + 1u] > nd[i1].thr);
-					i2 = (uint32_t)nd[i2].kid + (uint32_t)(kb[nd[i2].k + 2u] > nd[i2].thr);
-					i3 = (uint32_t)nd[i3].kid + (uint32_t)(kb[nd[i3].k + 3u] > nd[i3].thr);
-					i4 = (uint32_t)nd[i4].kid + (uint32_t)(kb[nd[i4].k + 4u] > nd[i4].thr);
-					i5 = (uint32_t)nd[i5].kid + (uint32_t)(kb[nd[i5].k + 5u] > nd[i5].thr);
-					i6 = (uint32_t)nd[i6].kid + (uint32_t)(kb[nd[i6].k + 6u] > nd[i6].thr);
-					i7 = (uint32_t)nd[i7].kid + (uint32_t)(kb[nd[i7].k + 7u] > nd[i7].thr);
+					i0 = (uint32_t)kid[i0] + (uint32_t)(kb[kix[i0] + 0u] > thr[i0]);
+					i1 = (uint32_t)kid[i1] + (uint32_t)(kb[kix[i1] + 1u] > thr[i1]);
+					i2 = (uint32_t)kid[i2] + (uint32_t)(kb[kix[i2] + 2u] > thr[i2]);
+					i3 = (uint32_t)kid[i3] + (uint32_t)(kb[kix[i3] + 3u] > thr[i3]);
+					i4 = (uint32_t)kid[i4] + (uint32_t)(kb[kix[i4] + 4u] > thr[i4]);
+					i5 = (uint32_t)kid[i5] + (uint32_t)(kb[kix[i5] + 5u] > thr[i5]);
+					i6 = (uint32_t)kid[i6] + (uint32_t)(kb[kix[i6] + 6u] > thr[i6]);
+					i7 = (uint32_t)kid[i7] + (uint32_t)(kb[kix[i7] + 7u] > thr[i7]);
 					const uint32_t now = i0 + i1 + i2 + i3 + i4 + i5 + i6 + i7;
 					if (now == was) {
 						break; /* no row moved: the eight rows sit on leaves */
@@ -224,14 +226,14 @@ static void pumpmodel_block(const float *x, size_t count, float *outs)
 					was = now;
 				}
 			}
-			sum[lane + 0u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i0];
-			sum[lane + 1u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i1];
-			sum[lane + 2u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i2];
-			sum[lane + 3u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i3];
-			sum[lane + 4u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i4];
-			sum[lane + 5u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i5];
-			sum[lane + 6u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i6];
-			sum[lane + 7u] += pumpmodel_bk_val[pumpmodel_bk_root[tree] + i7];
+			sum[lane + 0u] += pumpmodel_bk_val[root + i0];
+			sum[lane + 1u] += pumpmodel_bk_val[root + i1];
+			sum[lane + 2u] += pumpmodel_bk_val[root + i2];
+			sum[lane + 3u] += pumpmodel_bk_val[root + i3];
+			sum[lane + 4u] += pumpmodel_bk_val[root + i4];
+			sum[lane + 5u] += pumpmodel_bk_val[root + i5];
+			sum[lane + 6u] += pumpmodel_bk_val[root + i6];
+			sum[lane + 7u] += pumpmodel_bk_val[root + i7];
 		}
 	}
 	for (lane = 0; lane < count; lane++) {

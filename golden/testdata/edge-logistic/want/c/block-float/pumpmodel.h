@@ -25,11 +25,13 @@
  *   pumpmodel_start: first word per tree, 4 x 1 = 4 bytes
  *   pumpmodel_thr: distinct thresholds, 4 x 4 = 16 bytes
  *   pumpmodel_leaf: leaf vectors, 7 x 4 = 28 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 11 x 8 = 88 bytes
+ *   pumpmodel_bk_kid: block walk: each node's left child, counted from its tree's root, 11 x 1 = 11 bytes
+ *   pumpmodel_bk_thr: block walk: each node's threshold, 11 x 4 = 44 bytes
+ *   pumpmodel_bk_k: block walk: each node's key index (feature << 1 | NaN goes right, times 8), 11 x 2 = 22 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 11 x 4 = 44 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 3 x 4 = 12 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 3 x 4 = 12 bytes
- *   total 212 bytes (19.27 bytes per node; code not counted)
+ *   total 201 bytes (18.27 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

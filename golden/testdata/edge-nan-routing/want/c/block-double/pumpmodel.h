@@ -22,7 +22,9 @@
  *   pumpmodel_start: first word per tree, 3 x 1 = 3 bytes
  *   pumpmodel_thr: distinct thresholds, 3 x 8 = 24 bytes
  *   pumpmodel_leaf: distinct leaf vectors, 4 x 8 = 32 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 8 x 8 = 64 bytes
+ *   pumpmodel_bk_kid: block walk: each node's left child, counted from its tree's root, 8 x 1 = 8 bytes
+ *   pumpmodel_bk_thr: block walk: each node's threshold, 8 x 2 = 16 bytes
+ *   pumpmodel_bk_k: block walk: each node's key index (feature << 1 | NaN goes right, times 8), 8 x 2 = 16 bytes
  *   pumpmodel_bk_cut: block walk: per feature, its distinct thresholds in ascending order, 3 x 8 = 24 bytes
  *   pumpmodel_bk_cut_at: block walk: where each feature's cuts start in pumpmodel_bk_cut, and the end, 3 x 4 = 12 bytes
  *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 2 x 2 = 4 bytes
@@ -30,7 +32,7 @@
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 8 x 8 = 64 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 2 x 4 = 8 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 2 x 4 = 8 bytes
- *   total 253 bytes (31.62 bytes per node; code not counted)
+ *   total 229 bytes (28.62 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

@@ -21,11 +21,13 @@
  *   pumpmodel_start: first word per tree, 2 x 1 = 2 bytes
  *   pumpmodel_thr: distinct thresholds, 1 x 4 = 4 bytes
  *   pumpmodel_leaf: leaf vectors, 1 x 4 = 4 bytes
- *   pumpmodel_bk_nodes: block walk: threshold, child, key index, 1 x 8 = 8 bytes
+ *   pumpmodel_bk_kid: block walk: each node's left child, counted from its tree's root, 1 x 1 = 1 bytes
+ *   pumpmodel_bk_thr: block walk: each node's threshold, 1 x 4 = 4 bytes
+ *   pumpmodel_bk_k: block walk: each node's key index (feature << 1 | NaN goes right, times 8), 1 x 2 = 2 bytes
  *   pumpmodel_bk_val: block walk: each node's leaf value (0 at a split), 1 x 8 = 8 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 36 bytes (36.00 bytes per node; code not counted)
+ *   total 35 bytes (35.00 bytes per node; code not counted)
  * At most 0 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
