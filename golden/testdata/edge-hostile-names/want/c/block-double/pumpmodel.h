@@ -48,10 +48,10 @@
  *   pumpmodel_bk_lo: block walk: per feature, the key of NaN going left (the rank of -inf), 16 x 2 = 32 bytes
  *   pumpmodel_bk_hi: block walk: per feature, the key of NaN going right (the rank of +inf), 16 x 2 = 32 bytes
  *   pumpmodel_bk_leaf: block walk: distinct leaf vectors, 32 x 8 = 256 bytes
- *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 4 = 132 bytes
+ *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 1 = 33 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 951 bytes (28.82 bytes per node; code not counted)
+ *   total 852 bytes (25.82 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

@@ -197,7 +197,7 @@ static const float pumpmodel_bk_leaf[16][PUMPMODEL_NUM_OUTPUTS] = {
 };
 
 /* block walk: each node's row of pumpmodel_bk_leaf (0 at a split) */
-static const uint32_t pumpmodel_bk_row[33] = {
+static const uint8_t pumpmodel_bk_row[33] = {
 	0u, 0u, 0u, 1u, 0u, 2u, 0u, 3u,
 	0u, 4u, 0u, 5u, 0u, 6u, 0u, 7u,
 	0u, 8u, 0u, 9u, 0u, 10u, 0u, 11u,

@@ -44,10 +44,10 @@
  *   pumpmodel_bk_thr: block walk: each node's threshold, 33 x 4 = 132 bytes
  *   pumpmodel_bk_k: block walk: each node's key index (feature << 1 | NaN goes right, times 8), 33 x 2 = 66 bytes
  *   pumpmodel_bk_leaf: block walk: distinct leaf vectors, 32 x 4 = 128 bytes
- *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 4 = 132 bytes
+ *   pumpmodel_bk_row: block walk: each node's row of pumpmodel_bk_leaf (0 at a split), 33 x 1 = 33 bytes
  *   pumpmodel_bk_root: block walk: each tree's root, 1 x 4 = 4 bytes
  *   pumpmodel_bk_steps: block walk: each tree's depth, 1 x 4 = 4 bytes
- *   total 629 bytes (19.06 bytes per node; code not counted)
+ *   total 530 bytes (16.06 bytes per node; code not counted)
  * At most 16 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
