@@ -3,6 +3,7 @@ package ctarget
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -223,7 +224,9 @@ func (g *gen) keyType(thr []float64, ge bool) string {
 		}
 	}
 	for i, t := range thr {
-		thr[i] = float64(float32(t))
+		if thr[i] = float64(float32(t)); thr[i] == 0 {
+			thr[i] = 0 // never -0: the ordered keys (perfect_ord.go) tell the zeros apart
+		}
 	}
 	return "float"
 }
@@ -313,8 +316,12 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
 		return fmt.Sprintf("%du", pf.feat[i])
 	})
-	g.bvArray(w, pf.keyType, "pf_thr", fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp()), len(pf.thr), func(i int) string {
-		t := pf.thr[i]
+	thr, what := pf.thr, fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp())
+	if pf.ord { // one more, so that a tree's thresholds convert 2^depth at a time
+		thr, what = append(slices.Clone(pf.thr), math.Inf(1)), what+", and one +inf past the last tree"
+	}
+	g.bvArray(w, pf.keyType, "pf_thr", what, len(thr), func(i int) string {
+		t := thr[i]
 		if math.IsInf(t, 0) { // +inf in padding; -inf where the model splits off x <= -inf
 			sign := map[bool]string{true: "", false: "-"}[t > 0]
 			return sign + hugeVal(pf.keyType)

@@ -12,13 +12,32 @@ import "fmt"
 // one load, and each node of the perfect tree is visited for the whole
 // register, in depth-first order, under the mask of the lanes that reach
 // it: right = the masked comparison key > t (lanes outside the mask stay
-// 0), left = the node's mask and not right. At the last level each lane
-// takes its leaf's value by a masked move of the broadcast leaf (each lane
-// reaches exactly one leaf), and the register of leaves is added to the
-// rows' sums once a tree: float sums in one register, double sums in two
-// halves. So each lane makes the comparisons its row makes in the scalar
-// walk (keys and thresholds are never NaN) and adds the same leaves in the
-// same tree order with the same IEEE additions: the same bits.
+// 0), left = the node's mask and not right. The masks of a level's right
+// turns, ORed together (a lane is under one node a level), are the bits of
+// each lane's leaf index, high to low; with float sums the leaf is looked
+// up by permutes of the tree's 2^D leaves (one register up to depth 4, a
+// two-register permute at 5, two of them and a blend on the root's turn at
+// 6: simdPermuteLeaves); with double sums each lane takes its leaf by a
+// masked move of the broadcast leaf at the last level. The register of
+// leaves is added to the rows' sums once a tree: float sums in one
+// register, double sums in two halves. So each lane makes the comparisons
+// its row makes in the scalar walk (keys and thresholds are never NaN)
+// and adds the same leaves in the same tree order with the same IEEE
+// additions: the same bits.
+//
+// The permutes replaced 64 masked moves a register at depth 6: on the
+// 500-round depth-6 XGBoost model the lanes took 1,360 to 1,376 ns a row
+// against the masked moves' 1,625 to 1,646 (best of 5, 10,000 rows, three
+// interleaved runs, gcc 12 -O2 -march=x86-64-v4, load average 1.5). Not
+// kept, measured the same way: the lanes comparing ordered integers as the
+// scalar walk does (perfect_ord.go; vpcmpud for vcmpps, the thresholds
+// converted 16 at a time a tree) 1,414 to 1,493; the leaf index built in a
+// vector by a masked OR a node instead of ORed masks, 1,517 to 1,905 against
+// 1,461 to 1,856 in a noisier run (load 2.3), no clear gain; comparisons
+// without masks, the masks ANDed in general registers, 2,430 to 3,206
+// against 1,406 to 1,910 (load 3.5); the key addresses from a second table
+// of 16-bit offsets (no shift and add a node), 1,862 to 2,186 against
+// 1,454 to 2,026 (load 3.5).
 //
 // Why not gathers: on this AMD EPYC a 16-lane gather (vgatherdps) took 10
 // ns at best and 20 ns of latency (a loop of independent gathers, gcc 12

@@ -131,10 +131,10 @@ static const uint8_t pumpmodel_pf_feat[9] = {
 	0u
 };
 
-/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding) */
-static const float pumpmodel_pf_thr[9] = {
+/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree */
+static const float pumpmodel_pf_thr[10] = {
 	61.5f, 12.25f, HUGE_VALF, 10.0f, HUGE_VALF, HUGE_VALF, 70.0f, HUGE_VALF,
-	HUGE_VALF
+	HUGE_VALF, HUGE_VALF
 };
 
 #if !defined(__AVX512F__)
@@ -251,9 +251,11 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
 		const float *const tf = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
-		uint32_t th[PUMPMODEL_PF_INNER];
-		for (j = 0; j < (int)PUMPMODEL_PF_INNER; j++) {
-			th[j] = pumpmodel_pf_ord(tf[j]);
+		uint32_t th[PUMPMODEL_PF_INNER + 1u];
+		for (j = 0; j < (int)PUMPMODEL_PF_INNER + 1; j++) { /* as pumpmodel_pf_ord */
+			union { float f; uint32_t u; } b;
+			b.f = tf[j];
+			th[j] = b.u ^ ((0u - (b.u >> 31)) | 0x80000000u);
 		}
 		for (lane = 0; lane < used; lane += 8u) {
 			const PUMPMODEL_PF_KEYT *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
