@@ -79,10 +79,11 @@ func TestCBlockParts(t *testing.T) {
 	require.GreaterOrEqual(t, ranks, 2, "forests with rank keys")
 }
 
-// runBlockParts emits p, builds a driver that checks NAME_predict_batch
-// on every prefix of the rows (and from row 5) against NAME_predict, and
-// returns NAME_predict's outputs as doubles and whether the keys are ranks.
-func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values []float64) ([]float64, bool) {
+// runBlockParts emits p, builds a driver (gcc -O2 and flags) that checks
+// NAME_predict_batch on every prefix of the rows (and from row 5) against
+// NAME_predict, and returns NAME_predict's outputs as doubles and whether
+// the keys are ranks.
+func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values []float64, flags ...string) ([]float64, bool) {
 	dir := t.TempDir()
 	files, err := ctarget.Emit(p, o)
 	require.NoError(t, err)
@@ -92,7 +93,8 @@ func runBlockParts(t *testing.T, p *compile.Program, o ctarget.Options, values [
 		require.NoError(t, os.WriteFile(filepath.Join(dir, f.Name), f.Data, 0o644))
 	}
 	require.NoError(t, os.WriteFile(filepath.Join(dir, "driver.c"), []byte(blockPartsDriver(o.Float, values)), 0o644))
-	build := exec.CommandContext(context.Background(), "gcc", "-std=c99", "-O2", "-Wall", "-Werror", "-o", "run", "driver.c", "deep.c", "-lm")
+	args := append([]string{"-std=c99", "-O2", "-Wall", "-Werror"}, flags...)
+	build := exec.CommandContext(context.Background(), "gcc", append(args, "-o", "run", "driver.c", "deep.c", "-lm")...)
 	build.Dir = dir
 	b, err := build.CombinedOutput()
 	require.NoError(t, err, "%s", b)

@@ -3,6 +3,7 @@ package ctarget
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -77,6 +78,7 @@ type perfectForest struct {
 	keyType string
 	featTyp string // uint8_t or uint16_t
 	rows    int    // a block's rows: see perfectRows
+	ord     bool   // float keys stored as ordered integers (perfectOrd)
 	simd    bool   // NAME_perfect has AVX-512 lanes (perfectSimd)
 }
 
@@ -207,6 +209,7 @@ func (g *gen) buildPerfect() *perfectForest {
 	if len(p.Features) <= 128 {
 		pf.featTyp = "uint8_t"
 	}
+	pf.ord = pf.keyType == "float"
 	pf.simd = perfectSimd(g, pf)
 	return pf
 }
@@ -221,7 +224,9 @@ func (g *gen) keyType(thr []float64, ge bool) string {
 		}
 	}
 	for i, t := range thr {
-		thr[i] = float64(float32(t))
+		if thr[i] = float64(float32(t)); thr[i] == 0 {
+			thr[i] = 0 // never -0: the ordered keys (perfect_ord.go) tell the zeros apart
+		}
 	}
 	return "float"
 }
@@ -305,11 +310,18 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	if pf.simd {
 		g.perfectSimdDefs(w)
 	}
+	if pf.simd && pf.ord {
+		g.perfectOrdDefs(w)
+	}
 	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
 		return fmt.Sprintf("%du", pf.feat[i])
 	})
-	g.bvArray(w, pf.keyType, "pf_thr", fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp()), len(pf.thr), func(i int) string {
-		t := pf.thr[i]
+	thr, what := pf.thr, fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp())
+	if pf.ord { // one more, so that a tree's thresholds convert 2^depth at a time
+		thr, what = append(slices.Clone(pf.thr), math.Inf(1)), what+", and one +inf past the last tree"
+	}
+	g.bvArray(w, pf.keyType, "pf_thr", what, len(thr), func(i int) string {
+		t := thr[i]
 		if math.IsInf(t, 0) { // +inf in padding; -inf where the model splits off x <= -inf
 			sign := map[bool]string{true: "", false: "-"}[t > 0]
 			return sign + hugeVal(pf.keyType)
@@ -319,6 +331,9 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 		}
 		return doubleLit(t)
 	})
+	if pf.ord {
+		g.perfectOrdFunc(w, pf.simd)
+	}
 	g.bvArray(w, g.at, "pf_leaf", "perfect walk: per tree, per leaf left to right, per output, the value", len(pf.leaf), func(i int) string {
 		return g.alit(pf.leaf[i])
 	})
@@ -368,7 +383,7 @@ func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
 	w.line("{")
 	w.in()
 	w.line("%s sum[%s_PF_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
-	w.line("%s key[%s_PF_ROWS * %s_PF_KEYS];", pf.keyType, u, u)
+	w.line("%s key[%s_PF_ROWS * %s_PF_KEYS];", g.keyCType(pf), u, u)
 	if pf.simd {
 		w.line("#if defined(__AVX512F__)")
 		w.line("const size_t used = (count + %du) / %du * %du; /* whole registers */", 16*perfectSimdRegs-1, 16*perfectSimdRegs, 16*perfectSimdRegs)
@@ -399,8 +414,12 @@ func (g *gen) perfectTrees(w *printer, pf *perfectForest) {
 	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
 	w.line("const %s *const fe = %s_pf_feat + tree * %s_PF_INNER;", pf.featTyp, g.name, u)
-	w.line("const %s *const th = %s_pf_thr + tree * %s_PF_INNER;", pf.keyType, g.name, u)
 	w.line("const %s *const lv = %s_pf_leaf + tree * (%s_PF_INNER + 1u) * %s_NUM_OUTPUTS;", g.at, g.name, u, u)
+	if pf.ord {
+		g.perfectOrdThr(w)
+	} else {
+		w.line("const %s *const th = %s_pf_thr + tree * %s_PF_INNER;", pf.keyType, g.name, u)
+	}
 	w.line("for (lane = 0; lane < used; lane += %du) {", perfectChains)
 	w.in()
 	g.perfectChains(w, pf)
@@ -413,7 +432,7 @@ func (g *gen) perfectTrees(w *printer, pf *perfectForest) {
 // perfectKeys writes the loop that fills each row's keys and starts its
 // sums.
 func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
-	u, kt := g.upper, pf.keyType
+	u, kt := g.upper, g.keyCType(pf)
 	w.line("for (lane = 0; lane < used; lane++) {")
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
@@ -427,7 +446,11 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
 	w.line("const %s v = xr[j];", g.ft)
-	g.keyPair(w, lo, hi, kt, " /* exact: see the thresholds */")
+	if pf.ord {
+		g.perfectOrdPair(w, pf, lo, hi)
+	} else {
+		g.keyPair(w, lo, hi, kt, " /* exact: see the thresholds */")
+	}
 	w.out()
 	w.line("}")
 	for j := 0; j < g.p.NumOutputs; j++ {
@@ -442,7 +465,7 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 func (g *gen) perfectChains(w *printer, pf *perfectForest) {
 	u := g.upper
 	for c := 0; c < perfectChains; c++ {
-		w.line("const %s *const k%d = key + (lane + %du) * %s_PF_KEYS;", pf.keyType, c, c, u)
+		w.line("const %s *const k%d = key + (lane + %du) * %s_PF_KEYS;", g.keyCType(pf), c, c, u)
 	}
 	for c := 0; c < perfectChains; c++ {
 		w.line("size_t i%d = 0u;", c)

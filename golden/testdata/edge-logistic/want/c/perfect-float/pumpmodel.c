@@ -117,17 +117,37 @@ int pumpmodel_predict_class(const float *x)
 #define PUMPMODEL_PF_KEY 1u
 #endif
 
+#if defined(__AVX512F__)
+#define PUMPMODEL_PF_KEYT float /* the lanes compare floats */
+#define PUMPMODEL_PF_KEY_OF(f) (f)
+#else
+#define PUMPMODEL_PF_KEYT uint32_t /* the scalar walk compares ordered integers */
+#define PUMPMODEL_PF_KEY_OF(f) pumpmodel_pf_ord(f)
+#endif
+
 /* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
 static const uint8_t pumpmodel_pf_feat[9] = {
 	3u, 0u, 0u, 1u, 0u, 0u, 3u, 0u,
 	0u
 };
 
-/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding) */
-static const float pumpmodel_pf_thr[9] = {
+/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree */
+static const float pumpmodel_pf_thr[10] = {
 	61.5f, 12.25f, HUGE_VALF, 10.0f, HUGE_VALF, HUGE_VALF, 70.0f, HUGE_VALF,
-	HUGE_VALF
+	HUGE_VALF, HUGE_VALF
 };
+
+#if !defined(__AVX512F__)
+/* The unsigned integer whose order is f's: for floats a and b, neither NaN,
+ * a > b exactly when pumpmodel_pf_ord(a) > pumpmodel_pf_ord(b); -0 is taken as +0. */
+static uint32_t pumpmodel_pf_ord(float f)
+{
+	union { float f; uint32_t u; } b;
+	b.f = f;
+	b.u = b.u == 0x80000000u ? 0u : b.u; /* -0 */
+	return b.u ^ ((0u - (b.u >> 31)) | 0x80000000u); /* negative: all bits flipped, else the sign bit */
+}
+#endif
 
 /* perfect walk: per tree, per leaf left to right, per output, the value */
 static const float pumpmodel_pf_leaf[12] = {
@@ -139,9 +159,10 @@ static const float pumpmodel_pf_leaf[12] = {
 /* The walk of a block's first used rows (a multiple of 32) through every
  * tree, 32 rows at a time in 2 registers, keys feature-major: node by node
  * depth first, each node under the mask of the lanes that reach it
- * (m<node>_<register>); at the last level each lane takes its leaf by a
- * masked move, and the leaves are added to the sums once a tree, in tree
- * order. */
+ * (m<node>_<register>); a lane's right turns, level by level (r<level>_<register>,
+ * the root's m2), are the bits of its leaf's index, and its leaf is looked up
+ * by permutes of the tree's leaves; the leaves are added to the sums once a
+ * tree, in tree order. */
 static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
 {
 	uint32_t tree;
@@ -155,9 +176,9 @@ static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
 			const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 			const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u);
 			const __mmask16 m0_0 = 0xffffu;
-			__m512 v0 = _mm512_setzero_ps();
+			__mmask16 r1_0 = 0u;
 			const __mmask16 m0_1 = 0xffffu;
-			__m512 v1 = _mm512_setzero_ps();
+			__mmask16 r1_1 = 0u;
 			const float *k;
 			__m512 t;
 			k = kc + (size_t)fe[0] * PUMPMODEL_PF_ROWS;
@@ -169,19 +190,24 @@ static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
 			k = kc + (size_t)fe[1] * PUMPMODEL_PF_ROWS;
 			t = _mm512_set1_ps(th[1]);
 			const __mmask16 m4_0 = _mm512_mask_cmp_ps_mask(m1_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
+			r1_0 = (__mmask16)(r1_0 | m4_0);
 			const __mmask16 m4_1 = _mm512_mask_cmp_ps_mask(m1_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
-			v0 = _mm512_mask_mov_ps(v0, m1_0, _mm512_set1_ps(lv[0]));
-			v0 = _mm512_mask_mov_ps(v0, m4_0, _mm512_set1_ps(lv[1]));
-			v1 = _mm512_mask_mov_ps(v1, m1_1, _mm512_set1_ps(lv[0]));
-			v1 = _mm512_mask_mov_ps(v1, m4_1, _mm512_set1_ps(lv[1]));
+			r1_1 = (__mmask16)(r1_1 | m4_1);
 			k = kc + (size_t)fe[2] * PUMPMODEL_PF_ROWS;
 			t = _mm512_set1_ps(th[2]);
 			const __mmask16 m6_0 = _mm512_mask_cmp_ps_mask(m2_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
+			r1_0 = (__mmask16)(r1_0 | m6_0);
 			const __mmask16 m6_1 = _mm512_mask_cmp_ps_mask(m2_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
-			v0 = _mm512_mask_mov_ps(v0, m2_0, _mm512_set1_ps(lv[2]));
-			v0 = _mm512_mask_mov_ps(v0, m6_0, _mm512_set1_ps(lv[3]));
-			v1 = _mm512_mask_mov_ps(v1, m2_1, _mm512_set1_ps(lv[2]));
-			v1 = _mm512_mask_mov_ps(v1, m6_1, _mm512_set1_ps(lv[3]));
+			r1_1 = (__mmask16)(r1_1 | m6_1);
+			const __m512 l0 = _mm512_maskz_loadu_ps(0xfu, lv);
+			__m512i x0 = _mm512_setzero_si512();
+			x0 = _mm512_mask_or_epi32(x0, m2_0, x0, _mm512_set1_epi32(2));
+			x0 = _mm512_mask_or_epi32(x0, r1_0, x0, _mm512_set1_epi32(1));
+			const __m512 v0 = _mm512_permutexvar_ps(x0, l0);
+			__m512i x1 = _mm512_setzero_si512();
+			x1 = _mm512_mask_or_epi32(x1, m2_1, x1, _mm512_set1_epi32(2));
+			x1 = _mm512_mask_or_epi32(x1, r1_1, x1, _mm512_set1_epi32(1));
+			const __m512 v1 = _mm512_permutexvar_ps(x1, l0);
 			s0 = _mm512_add_ps(s0, v0);
 			s1 = _mm512_add_ps(s1, v1);
 		}
@@ -199,7 +225,7 @@ static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
 static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
-	float key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	PUMPMODEL_PF_KEYT key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
 	#if defined(__AVX512F__)
 	const size_t used = (count + 31u) / 32u * 32u; /* whole registers */
 	#else
@@ -210,11 +236,11 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		float *const k = key + lane * PUMPMODEL_PF_LANE;
+		PUMPMODEL_PF_KEYT *const k = key + lane * PUMPMODEL_PF_LANE;
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const float v = xr[j];
-			k[(uint32_t)(2 * j) * PUMPMODEL_PF_KEY] = v != v ? -HUGE_VALF : v;
-			k[(uint32_t)(2 * j + 1) * PUMPMODEL_PF_KEY] = v != v ? HUGE_VALF : v;
+			k[(uint32_t)(2 * j) * PUMPMODEL_PF_KEY] = PUMPMODEL_PF_KEY_OF(v != v ? -HUGE_VALF : v);
+			k[(uint32_t)(2 * j + 1) * PUMPMODEL_PF_KEY] = PUMPMODEL_PF_KEY_OF(v != v ? HUGE_VALF : v);
 		}
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.4054651f;
 	}
@@ -223,17 +249,23 @@ static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 	#else
 	for (tree = 0; tree < 3u; tree++) {
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
-		const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
+		const float *const tf = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
+		uint32_t th[PUMPMODEL_PF_INNER + 1u];
+		for (j = 0; j < (int)PUMPMODEL_PF_INNER + 1; j++) { /* as pumpmodel_pf_ord */
+			union { float f; uint32_t u; } b;
+			b.f = tf[j];
+			th[j] = b.u ^ ((0u - (b.u >> 31)) | 0x80000000u);
+		}
 		for (lane = 0; lane < used; lane += 8u) {
-			const float *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
-			const float *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
-			const float *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
-			const float *const k3 = key + (lane + 3u) * PUMPMODEL_PF_KEYS;
-			const float *const k4 = key + (lane + 4u) * PUMPMODEL_PF_KEYS;
-			const float *const k5 = key + (lane + 5u) * PUMPMODEL_PF_KEYS;
-			const float *const k6 = key + (lane + 6u) * PUMPMODEL_PF_KEYS;
-			const float *const k7 = key + (lane + 7u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k3 = key + (lane + 3u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k4 = key + (lane + 4u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k5 = key + (lane + 5u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k6 = key + (lane + 6u) * PUMPMODEL_PF_KEYS;
+			const PUMPMODEL_PF_KEYT *const k7 = key + (lane + 7u) * PUMPMODEL_PF_KEYS;
 			size_t i0 = 0u;
 			size_t i1 = 0u;
 			size_t i2 = 0u;

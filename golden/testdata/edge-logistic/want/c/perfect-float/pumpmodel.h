@@ -22,9 +22,9 @@
  *
  * Static tables in pumpmodel.c:
  *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 9 x 1 = 9 bytes
- *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 9 x 4 = 36 bytes
+ *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree, 10 x 4 = 40 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 12 x 4 = 48 bytes
- *   total 93 bytes (8.45 bytes per node; code not counted)
+ *   total 97 bytes (8.82 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).

@@ -115,8 +115,8 @@ static void pumpmodel_perfect(const double *x, size_t count, double *outs)
 	}
 	for (tree = 0; tree < 2u; tree++) {
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
-		const double *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		const double *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
+		const double *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
 		for (lane = 0; lane < used; lane += 8u) {
 			const double *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
 			const double *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;

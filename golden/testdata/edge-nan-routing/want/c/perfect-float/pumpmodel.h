@@ -19,9 +19,9 @@
  *
  * Static tables in pumpmodel.c:
  *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 6 x 1 = 6 bytes
- *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), 6 x 4 = 24 bytes
+ *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree, 7 x 4 = 28 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 8 x 4 = 32 bytes
- *   total 62 bytes (7.75 bytes per node; code not counted)
+ *   total 66 bytes (8.25 bytes per node; code not counted)
  * At most 3 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
