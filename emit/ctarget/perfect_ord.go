@@ -23,6 +23,10 @@ package ctarget
 // measured slower on integers: perfect_simd.go), so where both walks are
 // in a file the key type is chosen under __AVX512F__ (perfectOrdDefs).
 
+// ordBits is the C expression of the ordered integer of a float's bits
+// b.u (no -0): NAME_pf_ord and the thresholds' loop write it alike.
+const ordBits = "b.u ^ ((0u - (b.u >> 31)) | 0x80000000u)"
+
 // keyCType is the C type of a block's stored keys: under simd, the macro
 // perfectOrdDefs defines.
 func (g *gen) keyCType(pf *perfectForest) string {
@@ -64,7 +68,7 @@ func (g *gen) perfectOrdFunc(w *printer, simd bool) {
 	w.line("union { float f; uint32_t u; } b;")
 	w.line("b.f = f;")
 	w.line("b.u = b.u == 0x80000000u ? 0u : b.u; /* -0 */")
-	w.line("return b.u ^ ((0u - (b.u >> 31)) | 0x80000000u); /* negative: all bits flipped, else the sign bit */")
+	w.line("return %s; /* negative: all bits flipped, else the sign bit */", ordBits)
 	w.out()
 	w.line("}")
 	if simd {
@@ -85,7 +89,7 @@ func (g *gen) perfectOrdThr(w *printer) {
 	w.in()
 	w.line("union { float f; uint32_t u; } b;")
 	w.line("b.f = tf[j];")
-	w.line("th[j] = b.u ^ ((0u - (b.u >> 31)) | 0x80000000u);")
+	w.line("th[j] = %s;", ordBits)
 	w.out()
 	w.line("}")
 }
