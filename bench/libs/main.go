@@ -46,6 +46,7 @@ func main() {
 	flag.StringVar(c.libPaths["xgb"], "xgboost-lib", "", "libxgboost.so of the XGBoost wheel, for the single-row latency (empty: not measured)")
 	flag.StringVar(c.libPaths["lgbm"], "lightgbm-lib", "", "lib_lightgbm.so of the LightGBM wheel, for the single-row latency (empty: not measured)")
 	flag.IntVar(&c.latencyRows, "latency-rows", 2000, "rows timed one call each for the single-row latency")
+	flag.StringVar(&c.work, "work", "", "folder to build the sides in and keep (empty: a temporary folder, removed at the end)")
 	flag.IntVar(&c.callgrind, "callgrind", 0, "when > 0, also count instructions per row of each C layout under valgrind --tool=callgrind over this many rows")
 	flag.Parse()
 	var err error
@@ -65,6 +66,7 @@ func main() {
 // config is the command line.
 type config struct {
 	dir, libs        string
+	work             string // where the sides are built; kept when given
 	models, cLayouts []string
 	batches, threads []int
 	reps, singleRows int
@@ -72,6 +74,24 @@ type config struct {
 	// libPaths are the libraries' shared objects, by model.
 	libPaths    map[string]*string
 	latencyRows int
+}
+
+// workDir is the folder the sides are built in: dir, made empty where it
+// is new (an existing one must be empty, so no one's files are mixed with
+// ours), or a new temporary folder.
+func workDir(dir string) (string, error) {
+	if dir == "" {
+		return os.MkdirTemp("", "sawmill-libs")
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", err
+	}
+	if ents, err := os.ReadDir(dir); err != nil {
+		return "", err
+	} else if len(ents) > 0 {
+		return "", fmt.Errorf("-work %s: the folder is not empty", dir)
+	}
+	return dir, nil
 }
 
 // key names one figure: a model, a side, a thread count and a batch.
@@ -89,11 +109,13 @@ func run(c config) error {
 	if err != nil {
 		return err
 	}
-	work, err := os.MkdirTemp("", "sawmill-libs")
+	work, err := workDir(c.work)
 	if err != nil {
 		return err
 	}
-	defer os.RemoveAll(work)
+	if c.work == "" {
+		defer os.RemoveAll(work)
+	}
 	floor, err := branchFloor(work)
 	if err != nil {
 		return err

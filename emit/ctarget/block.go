@@ -136,6 +136,7 @@ type blockForest struct {
 	ranks   *blockRankKeys // the rank keys' tables, where keyType is uint16_t
 	kidTyp  string         // the child number's type: uint8_t, uint16_t or uint32_t
 	rows8   int            // a block's rows: see blockRows
+	chain   *blockChain    // the chained walk's chunks (chain.go), or nil: the lockstep walk
 }
 
 // blockRows is the rows of a block: as many as blockKeyBytes of keys hold
@@ -174,6 +175,11 @@ func (g *gen) buildBlock() *blockForest {
 	}
 	b.biggest = biggest
 	g.blockTypes(b, biggest)
+	if b.chainable() {
+		g.chain(b, blockChunkBytes)
+		b.kidTyp = "uint32_t"
+		g.blockSetRows(b)
+	}
 	return b
 }
 
@@ -212,7 +218,6 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 			b.keyType = "uint16_t"
 		}
 	}
-	keys := 2*len(g.p.Features) + 1
 	switch {
 	case biggest <= 256:
 		b.kidTyp = "uint8_t"
@@ -221,6 +226,12 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 	default:
 		b.kidTyp = "uint32_t"
 	}
+	g.blockSetRows(b)
+}
+
+// blockSetRows chooses a block's rows from the keys' and the nodes' sizes.
+func (g *gen) blockSetRows(b *blockForest) {
+	keys := 2*len(g.p.Features) + 1
 	kb := map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType]
 	b.rows8 = blockRows(keys, kb)
 	if len(b.key)*b.nodeBytes() > blockBigNodes {
@@ -273,7 +284,11 @@ func (g *gen) block(w *printer) error {
 	b := g.buildBlock()
 	g.batch = func(w *printer) {
 		g.blockTables(w, b)
-		g.blockBatch(w, b)
+		if b.chain != nil {
+			g.chainBatch(w, b)
+		} else {
+			g.blockBatch(w, b)
+		}
 		g.blockLoopFrom(w, "block", "BK_ROWS", fmt.Sprintf("%du", blockChains), "under eight rows")
 	}
 	return nil
@@ -295,9 +310,17 @@ func (g *gen) blockTables(w *printer, b *blockForest) {
 		g.blockRankSearch(w, b.ge)
 	}
 	if b.rows == nil {
-		g.bvArray(w, g.at, "bk_val", "block walk: each node's leaf value (0 at a split)", len(b.val), func(i int) string { return g.alit(b.val[i]) })
+		what := "block walk: each node's leaf value (0 at a split)"
+		if b.chain != nil {
+			what = "chained block walk: each node's leaf value (-0.0 at a split and the stop node)"
+		}
+		g.bvArray(w, g.at, "bk_val", what, len(b.val), func(i int) string { return g.alit(b.val[i]) })
 	} else {
 		g.blockLeaves(w, b)
+	}
+	if b.chain != nil {
+		g.chainTables(w, b)
+		return
 	}
 	g.bvArray(w, "uint32_t", "bk_root", "block walk: each tree's root", len(b.root), func(i int) string { return fmt.Sprintf("%du", b.root[i]) })
 	g.bvArray(w, "uint32_t", "bk_steps", "block walk: each tree's depth", len(b.steps), func(i int) string { return fmt.Sprintf("%du", b.steps[i]) })
@@ -329,9 +352,17 @@ func (g *gen) blockNodes(w *printer, b *blockForest) {
 		return doubleLit(t)
 	}
 	w.line("/* block walk, per node: the row goes right when key[bk_k] %s bk_thr;", b.cmp())
-	w.line(" * bk_kid is the left child counted from the tree's root (a leaf: itself,")
-	w.line(" * with a threshold no key passes and the leaves' key). */")
-	g.bvArray(w, b.kidTyp, "bk_kid", "block walk: each node's left child, counted from its tree's root", len(b.kid), func(i int) string { return fmt.Sprintf("%du", b.kid[i]) })
+	kidWhat := "block walk: each node's left child, counted from its tree's root"
+	if b.chain != nil {
+		kidWhat = "chained block walk: each node's left child (a leaf: the next tree's root or the stop node)"
+		w.line(" * bk_kid is the left child (a leaf: the next tree's root in its chunk,")
+		w.line(" * else the stop node; a leaf has a threshold no key passes and the")
+		w.line(" * leaves' key). */")
+	} else {
+		w.line(" * bk_kid is the left child counted from the tree's root (a leaf: itself,")
+		w.line(" * with a threshold no key passes and the leaves' key). */")
+	}
+	g.bvArray(w, b.kidTyp, "bk_kid", kidWhat, len(b.kid), func(i int) string { return fmt.Sprintf("%du", b.kid[i]) })
 	g.bvArray(w, b.keyType, "bk_thr", "block walk: each node's threshold", len(b.thr), thr)
 	g.bvArray(w, "uint16_t", "bk_k", "block walk: each node's key index (feature << 1 | NaN goes right, times 8)", len(b.key), func(i int) string { return fmt.Sprintf("%du", b.key[i]) })
 }
