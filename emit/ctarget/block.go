@@ -176,7 +176,11 @@ func (g *gen) buildBlock() *blockForest {
 	b.biggest = biggest
 	g.blockTypes(b, biggest)
 	if b.chainable() {
-		g.chain(b, blockChunkBytes)
+		chunk := blockChunkBytes
+		if g.o.BlockChunkBytes > 0 {
+			chunk = g.o.BlockChunkBytes
+		}
+		g.chain(b, chunk)
 		b.kidTyp = "uint32_t"
 		g.blockSetRows(b)
 	}

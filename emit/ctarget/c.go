@@ -145,6 +145,12 @@ type Options struct {
 	// with fixed-step searches and walks and selects in place of branches
 	// (consttime.go). Other layouts are refused.
 	ConstantTime bool
+	// BlockChunkBytes bounds the node tables of a chunk of trees in the
+	// block layout's chained walk (chain.go): 0 is 48 KiB, tuned on an AMD
+	// EPYC with 32 KiB of first-level and 1 MiB of second-level cache per
+	// core; a machine with other caches may want another, and tests set 1
+	// for a tree a chunk.
+	BlockChunkBytes int
 	// Facts are lines about the compiled code measured outside the emitter
 	// (flash, stack, instructions on boards: sawmill compile
 	// --board-facts), written in the header in place of the pointer to
