@@ -24,9 +24,9 @@ import (
 // On the 500-round 63-leaf LightGBM model of bench/libs/run.sh (trees 8
 // to 23 deep; a row's leaf 4.45 steps down on average, a lockstep group of
 // eight walking 9.42) the lockstep walk ran 40,197 instructions a row and
-// the chained walk 24,056 (callgrind, gcc 12 -O2), and 3,583 to 3,673 ns a
-// row against 2,453 to 2,652 (10,000 rows, best of 5, three interleaved
-// runs, load average 0.4).
+// the chained walk 24,203 (callgrind, gcc 12 -O2), and 3,558 to 4,951 ns a
+// row against 2,267 to 3,066 (10,000 rows, best of 5, four alternating
+// runs, load average 0.5 to 0.8; docs/batch-layouts.md).
 
 // blockChunkBytes bounds the node tables of one chunk of chained trees
 // (child, threshold, key index and value a node; at least one tree a
@@ -35,7 +35,8 @@ import (
 // each chunk waits for the slowest of the eight. On the LightGBM model of
 // bench/libs/run.sh (16 bytes a node, 2,000 a tree) chunks of 10, 25, 50,
 // 100 and 500 trees took 2,511 to 3,677, 2,453 to 2,629, 2,600 to 2,636,
-// 2,548 to 2,962 and 2,859 to 3,099 ns a row (the same runs as above).
+// 2,548 to 2,962 and 2,859 to 3,099 ns a row (a hand-made copy of the
+// walk, three interleaved runs, load average 0.4).
 const blockChunkBytes = 48 << 10
 
 // blockChain is what the chained walk adds to the block forest.
@@ -155,8 +156,8 @@ func (g *gen) chainBatch(w *printer, b *blockForest) {
 	w.line(" * order as %s_predict adds them. Four steps, then a test whether all", g.name)
 	w.line(" * eight rows reached the stop node. Up to %d lanes past count walk row 0", blockChains-1)
 	w.line(" * and are dropped. gcc 12 -O2 would pack the eight sums in pairs into")
-	w.line(" * vectors, loading the values two by two: 34,567 instructions a row")
-	w.line(" * against 24,056 on the LightGBM model of sawmill's bench/libs. */")
+	w.line(" * vectors, loading the values two by two and spilling the node numbers:")
+	w.line(" * 34,567 instructions a row against 24,056 on a LightGBM model. */")
 	w.line("#if defined(__GNUC__) && !defined(__clang__)")
 	w.line("__attribute__((optimize(\"no-tree-slp-vectorize\")))")
 	w.line("#endif")
@@ -185,7 +186,10 @@ func (g *gen) chainBatch(w *printer, b *blockForest) {
 	w.line("}")
 }
 
-// chainSteps is the steps of the chained walk between two tests.
+// chainSteps is the steps of the chained walk between two tests: on the
+// LightGBM model 2, 4 and 8 ran 25,843, 24,203 and 23,851 instructions a
+// row, and 2,445, 2,286 and 2,490 ns a row (one run each): a test costs
+// nine instructions, and a chunk's end is overshot by half the steps.
 const chainSteps = 4
 
 // chainChains writes the walk of blockChains rows through one chunk.
