@@ -416,23 +416,14 @@ func leafRowType(n int) string {
 // blockBatch writes NAME_block, which scores one block of up to
 // NAME_BK_ROWS rows.
 func (g *gen) blockBatch(w *printer, b *blockForest) {
-	ft, u := g.ft, g.upper
+	u := g.upper
 	w.line("/* Scores the count <= %s_BK_ROWS rows at x into outs: writes each row's", u)
 	w.line(" * keys, then tree by tree eight rows at a time take the tree's depth in")
 	w.line(" * steps, each a comparison and an addition (no branch on the data; trees")
 	w.line(" * deeper than %d stop once the eight rows sat still for a step), and add", blockCheckDepth)
 	w.line(" * their leaves, in tree order as %s_predict adds them. Up to %d lanes past", g.name, blockChains-1)
 	w.line(" * count walk row 0 and are dropped. */")
-	w.line("static void %s_block(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
-	w.line("{")
-	w.in()
-	w.line("%s sum[%s_BK_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
-	w.line("%s key[%s_BK_ROWS * %s_BK_KEYS];", b.keyType, u, u)
-	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", blockChains-1, blockChains, blockChains)
-	w.line("size_t lane;")
-	w.line("uint32_t tree;")
-	w.line("int j;")
-	g.blockKeys(w, b)
+	g.blockHead(w, b, "tree")
 	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
 	w.line("const uint32_t root = %s_bk_root[tree];", g.name)
@@ -450,6 +441,22 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	g.batchFinish(w)
 	w.out()
 	w.line("}")
+}
+
+// blockHead writes NAME_block's signature, its locals (counter the
+// outer loop's) and the loop that fills the keys and starts the sums.
+func (g *gen) blockHead(w *printer, b *blockForest, counter string) {
+	ft, u := g.ft, g.upper
+	w.line("static void %s_block(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
+	w.line("{")
+	w.in()
+	w.line("%s sum[%s_BK_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
+	w.line("%s key[%s_BK_ROWS * %s_BK_KEYS];", b.keyType, u, u)
+	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", blockChains-1, blockChains, blockChains)
+	w.line("size_t lane;")
+	w.line("uint32_t %s;", counter)
+	w.line("int j;")
+	g.blockKeys(w, b)
 }
 
 // blockKeys writes the loop that fills each row's keys and starts its sums.

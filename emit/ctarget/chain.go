@@ -146,7 +146,7 @@ func (g *gen) chainTables(w *printer, b *blockForest) {
 
 // chainBatch writes NAME_block for the chained walk.
 func (g *gen) chainBatch(w *printer, b *blockForest) {
-	ft, u := g.ft, g.upper
+	u := g.upper
 	w.line("/* Scores the count <= %s_BK_ROWS rows at x into outs: writes each row's", u)
 	w.line(" * keys, then chunk by chunk of trees eight rows at a time walk the chunk's")
 	w.line(" * trees one after the other, each at its own pace (a leaf's child is the")
@@ -161,16 +161,7 @@ func (g *gen) chainBatch(w *printer, b *blockForest) {
 	w.line("#if defined(__GNUC__) && !defined(__clang__)")
 	w.line("__attribute__((optimize(\"no-tree-slp-vectorize\")))")
 	w.line("#endif")
-	w.line("static void %s_block(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
-	w.line("{")
-	w.in()
-	w.line("%s sum[%s_BK_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
-	w.line("%s key[%s_BK_ROWS * %s_BK_KEYS];", b.keyType, u, u)
-	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", blockChains-1, blockChains, blockChains)
-	w.line("size_t lane;")
-	w.line("uint32_t chunk;")
-	w.line("int j;")
-	g.blockKeys(w, b)
+	g.blockHead(w, b, "chunk")
 	w.line("for (chunk = 0; chunk < %du; chunk++) {", len(b.chain.first))
 	w.in()
 	w.line("const uint32_t first = %s_bk_first[chunk];", g.name)
