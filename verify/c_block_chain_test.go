@@ -144,3 +144,75 @@ func chained(t *testing.T, p *compile.Program, o ctarget.Options) bool {
 	t.Fatalf("no %s.c among the files", o.Name)
 	return false
 }
+
+// TestCBlockBig builds the lockstep block walk of a forest whose nodes pass
+// blockBigNodes (24 complete trees of depth 12, two classes: 196,584
+// nodes), which takes blocks of 1,024 rows and fetches each next tree's
+// nodes while a tree is walked, and scores every prefix of the rows and
+// from row 5 (runBlockParts): NAME_predict_batch must give NAME_predict's
+// bytes and the interpreter's. Cost: one build of a 13 MB C file, about
+// 2 s of gcc -O2.
+func TestCBlockBig(t *testing.T) {
+	testenv.Need(t, cTools(false))
+	f := bigForest()
+	require.NoError(t, f.Validate("big"))
+	rows := randmodel.RandomRows(7, f, blockPartRows)
+	p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(false))
+	require.NoError(t, err)
+	o := ctarget.Options{Layout: ctarget.Block, Name: "deep"}
+	l, why, err := ctarget.Resolve(p, o)
+	require.NoError(t, err)
+	require.Equal(t, ctarget.Block, l, why)
+	files, err := ctarget.Emit(p, o)
+	require.NoError(t, err)
+	for _, file := range files {
+		if file.Name == "deep.c" {
+			src := string(file.Data)
+			require.True(t, strings.Contains(src, "#define DEEP_BK_ROWS 1024u"), "big blocks")
+			require.True(t, strings.Contains(src, "deep_bk_fetch(deep_bk_kid + next"), "the next tree fetched")
+		}
+	}
+	got, _ := runBlockParts(t, p, o, rows.Values)
+	out := make([]float64, 2)
+	for r := 0; r < len(got)/2; r++ {
+		compile.Eval(p, rows.Row(r), out)
+		for j := range out {
+			require.Equal(t, math.Float64bits(out[j]), math.Float64bits(got[2*r+j]), "row %d output %d", r, j)
+		}
+	}
+}
+
+// bigForest is 24 complete trees of depth 12, a feature a level (so that
+// compiling prunes no split), thresholds among a few values, each leaf one
+// of four class-probability pairs, siblings' different.
+func bigForest() *forest.Forest {
+	f := &forest.Forest{Task: forest.Classification, Features: []string{"a", "b", "c", "d", "e", "f", "g", "h", "i", "j", "k", "l"},
+		Classes: []string{"no", "yes"}, InputPrecision: forest.Float64, Combine: forest.Average,
+		Transform: forest.NoTransform, BaseScore: []float64{0, 0}}
+	pairs := [][2]float64{{1, 0}, {0, 1}, {0.25, 0.75}, {0.5, 0.5}}
+	for t := range 24 {
+		var tr forest.Tree
+		var grow func(depth, at int) int
+		grow = func(depth, at int) int {
+			id := len(tr.Feature)
+			tr.Feature = append(tr.Feature, -1)
+			tr.Threshold = append(tr.Threshold, 0)
+			tr.Left, tr.Right = append(tr.Left, -1), append(tr.Right, -1)
+			tr.MissingLeft = append(tr.MissingLeft, at%2 == 0)
+			pair := pairs[(at*7+t)%len(pairs)]
+			tr.Value = append(tr.Value, pair[0], pair[1])
+			if depth == 12 {
+				return id
+			}
+			tr.Feature[id] = depth
+			tr.Threshold[id] = float64((at*5+t)%9) - 4
+			l := grow(depth+1, 2*at+1)
+			r := grow(depth+1, 2*at+2)
+			tr.Left[id], tr.Right[id] = l, r
+			return id
+		}
+		grow(0, 0)
+		f.Trees = append(f.Trees, tr)
+	}
+	return f
+}
