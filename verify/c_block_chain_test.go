@@ -131,6 +131,11 @@ func negZeroForest(f *forest.Forest) *forest.Forest {
 
 // chained says whether p is written in the block layout's chained walk.
 func chained(t *testing.T, p *compile.Program, o ctarget.Options) bool {
+	return strings.Contains(blockSource(t, p, o), o.Name+"_bk_first")
+}
+
+// blockSource is the C file of p in the block layout, which o must get.
+func blockSource(t *testing.T, p *compile.Program, o ctarget.Options) string {
 	l, why, err := ctarget.Resolve(p, o)
 	require.NoError(t, err)
 	require.Equal(t, ctarget.Block, l, why)
@@ -138,11 +143,11 @@ func chained(t *testing.T, p *compile.Program, o ctarget.Options) bool {
 	require.NoError(t, err)
 	for _, f := range files {
 		if f.Name == o.Name+".c" {
-			return strings.Contains(string(f.Data), o.Name+"_bk_first")
+			return string(f.Data)
 		}
 	}
 	t.Fatalf("no %s.c among the files", o.Name)
-	return false
+	return ""
 }
 
 // TestCBlockBig builds the lockstep block walk of a forest whose nodes pass
@@ -160,18 +165,9 @@ func TestCBlockBig(t *testing.T) {
 	p, _, err := compile.Compile(f, ctarget.Target().CompileOptions(false))
 	require.NoError(t, err)
 	o := ctarget.Options{Layout: ctarget.Block, Name: "deep"}
-	l, why, err := ctarget.Resolve(p, o)
-	require.NoError(t, err)
-	require.Equal(t, ctarget.Block, l, why)
-	files, err := ctarget.Emit(p, o)
-	require.NoError(t, err)
-	for _, file := range files {
-		if file.Name == "deep.c" {
-			src := string(file.Data)
-			require.True(t, strings.Contains(src, "#define DEEP_BK_ROWS 1024u"), "big blocks")
-			require.True(t, strings.Contains(src, "deep_bk_fetch(deep_bk_kid + next"), "the next tree fetched")
-		}
-	}
+	src := blockSource(t, p, o)
+	require.True(t, strings.Contains(src, "#define DEEP_BK_ROWS 1024u"), "big blocks")
+	require.True(t, strings.Contains(src, "deep_bk_fetch(deep_bk_kid + next"), "the next tree fetched")
 	got, _ := runBlockParts(t, p, o, rows.Values)
 	out := make([]float64, 2)
 	for r := 0; r < len(got)/2; r++ {

@@ -437,9 +437,16 @@ func (g *gen) blockBatch(w *printer, b *blockForest) {
 	if b.big() {
 		g.blockPrefetchNext(w, b)
 	}
+	g.blockLanes(w, func() { g.blockChains(w, b) })
+}
+
+// blockLanes writes the end of NAME_block: the loop over the block's
+// groups of blockChains rows, whose walk chains writes, the end of the
+// loop over trees or chunks around it, and the rows' finish.
+func (g *gen) blockLanes(w *printer, chains func()) {
 	w.line("for (lane = 0; lane < used; lane += %du) {", blockChains)
 	w.in()
-	g.blockChains(w, b)
+	chains()
 	w.out()
 	w.line("}")
 	w.out()

@@ -165,16 +165,7 @@ func (g *gen) chainBatch(w *printer, b *blockForest) {
 	w.line("for (chunk = 0; chunk < %du; chunk++) {", len(b.chain.first))
 	w.in()
 	w.line("const uint32_t first = %s_bk_first[chunk];", g.name)
-	w.line("for (lane = 0; lane < used; lane += %du) {", blockChains)
-	w.in()
-	g.chainChains(w, b)
-	w.out()
-	w.line("}")
-	w.out()
-	w.line("}")
-	g.batchFinish(w)
-	w.out()
-	w.line("}")
+	g.blockLanes(w, func() { g.chainChains(w, b) })
 }
 
 // chainSteps is the steps of the chained walk between two tests: on the
