@@ -181,9 +181,8 @@ func (g *gen) buildBlock() *blockForest {
 			chunk = g.o.BlockChunkBytes
 		}
 		g.chain(b, chunk)
-		b.kidTyp = "uint32_t"
-		g.blockSetRows(b)
 	}
+	g.blockSetRows(b)
 	return b
 }
 
@@ -213,8 +212,9 @@ func pairOrder(t *compile.Tree, num []int) []int32 {
 	return order
 }
 
-// blockTypes chooses the key type (float where exact), the key index's and
-// the child number's types and a block's rows.
+// blockTypes chooses the key type (float where exact) and the child
+// number's type: 4 bytes where the trees are chained (numbers count from
+// the forest's first node), else the biggest tree's size.
 func (g *gen) blockTypes(b *blockForest, biggest int) {
 	b.keyType = g.keyType(b.thr, b.ge)
 	if b.keyType != "float" {
@@ -223,6 +223,8 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 		}
 	}
 	switch {
+	case b.chainable():
+		b.kidTyp = "uint32_t"
 	case biggest <= 256:
 		b.kidTyp = "uint8_t"
 	case biggest <= 65536:
@@ -230,17 +232,22 @@ func (g *gen) blockTypes(b *blockForest, biggest int) {
 	default:
 		b.kidTyp = "uint32_t"
 	}
-	g.blockSetRows(b)
 }
 
 // blockSetRows chooses a block's rows from the keys' and the nodes' sizes.
 func (g *gen) blockSetRows(b *blockForest) {
 	keys := 2*len(g.p.Features) + 1
-	kb := map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType]
+	kb := bvElemBytes(b.keyType, 8)
 	b.rows8 = blockRows(keys, kb)
 	if b.big() {
 		b.rows8 = blockRowsBig(keys, kb)
 	}
+}
+
+// blockLeafKey is the key index every leaf has: the -inf key after each
+// feature's two, times the chains.
+func (g *gen) blockLeafKey() uint32 {
+	return uint32(2 * len(g.p.Features) * blockChains)
 }
 
 // blockNode appends node ni of tree ti, whose number from the root is
@@ -248,7 +255,7 @@ func (g *gen) blockSetRows(b *blockForest) {
 func (g *gen) blockNode(b *blockForest, ti int, ni int32, num []int) {
 	n := &g.p.Trees[ti].Nodes[ni]
 	if n.IsLeaf() {
-		b.key = append(b.key, uint32(2*len(g.p.Features)*blockChains))
+		b.key = append(b.key, g.blockLeafKey())
 		b.thr = append(b.thr, math.Inf(1))
 		b.kid = append(b.kid, uint32(num[ni]))
 		if b.rows != nil {
@@ -591,29 +598,36 @@ func (g *gen) blockChains(w *printer, b *blockForest) {
 // The sum is 32 bits where eight times the biggest tree's nodes fit (no
 // step then adds 2^32), else 64.
 func (g *gen) blockWalkUntilStill(w *printer, b *blockForest) {
-	st := "uint32_t"
-	if int64(b.biggest)*8 >= 1<<32 {
-		st = "uint64_t"
-	}
-	var sum []string
-	for c := 0; c < blockChains; c++ {
-		if st == "uint32_t" {
-			sum = append(sum, fmt.Sprintf("i%d", c))
-			continue
-		}
-		sum = append(sum, fmt.Sprintf("(%s)i%d", st, c))
-	}
+	st, sum := chainsSum(b.biggest)
 	w.line("%s was = 0u;", st)
 	w.line("for (s = 0; s < steps; s++) {")
 	g.blockSteps(w, b, 1)
 	w.in()
-	w.line("const %s now = %s;", st, strings.Join(sum, " + "))
+	w.line("const %s now = %s;", st, sum)
 	w.line("if (now == was) {")
 	w.line("\tbreak; /* no row moved: the eight rows sit on leaves */")
 	w.line("}")
 	w.line("was = now;")
 	w.out()
 	w.line("}")
+}
+
+// chainsSum is the C type and expression of the sum of the blockChains
+// node numbers i0, i1, ..., each at most most: 32 bits where blockChains
+// times most is below 2^32, else 64.
+func chainsSum(most int) (typ, sum string) {
+	typ = "uint32_t"
+	if int64(most)*blockChains >= 1<<32 {
+		typ = "uint64_t"
+	}
+	terms := make([]string, blockChains)
+	for c := range terms {
+		terms[c] = fmt.Sprintf("i%d", c)
+		if typ != "uint32_t" {
+			terms[c] = fmt.Sprintf("(%s)i%d", typ, c)
+		}
+	}
+	return typ, strings.Join(terms, " + ")
 }
 
 // blockSteps writes n steps of every chain, one chain after the other in

@@ -32,7 +32,7 @@ type blockRankKeys struct {
 // has more than blockRankMaxCuts of them.
 func (g *gen) blockRanks(b *blockForest) *blockRankKeys {
 	nf := len(g.p.Features)
-	leafKey := uint32(2 * nf * blockChains)
+	leafKey := g.blockLeafKey()
 	seen := make([]map[float64]bool, nf)
 	for i := range seen {
 		seen[i] = map[float64]bool{}

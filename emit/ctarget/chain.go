@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"strings"
 )
 
 // The chained block walk. Where the forest has one output and a tree
@@ -61,11 +60,10 @@ func (b *blockForest) chainable() bool {
 	return false
 }
 
-// chainNodeBytes is a chained node's size: a 4-byte child, the key, a
-// 2-byte key index and the value.
+// chainNodeBytes is a chained node's size: the three arrays' (a 4-byte
+// child) and the value.
 func (g *gen) chainNodeBytes(b *blockForest) int {
-	key := map[string]int{"uint16_t": 2, "float": 4, "double": 8}[b.keyType]
-	return 4 + key + 2 + g.elemBytes()
+	return b.nodeBytes() + g.elemBytes()
 }
 
 // blockChunks splits the trees into chunks of at most max bytes of nodes
@@ -89,25 +87,23 @@ func blockChunks(sizes []int, nodeBytes, max int) []int {
 // split's value -0.0; the stop node is appended as a leaf that is its own
 // child.
 func (g *gen) chain(b *blockForest, chunkBytes int) {
-	nf := len(g.p.Features)
-	leafKey := uint32(2 * nf * blockChains)
+	leafKey := g.blockLeafKey()
 	sizes := make([]int, len(b.root))
 	for t, r := range b.root {
 		sizes[t] = b.treeEnd(t) - r
 	}
 	firstTree := blockChunks(sizes, g.chainNodeBytes(b), chunkBytes)
 	c := &blockChain{stop: len(b.kid)}
-	chunkEnd := map[int]bool{len(b.root) - 1: true}
+	starts := make([]bool, len(b.root)+1) // per tree: it starts a chunk; past the last, the stop
+	starts[len(b.root)] = true
 	for _, t := range firstTree {
 		c.first = append(c.first, b.root[t])
-		if t > 0 {
-			chunkEnd[t-1] = true
-		}
+		starts[t] = true
 	}
 	negZero := math.Copysign(0, -1)
 	for t, r := range b.root {
 		next := c.stop
-		if !chunkEnd[t] {
+		if !starts[t+1] {
 			next = b.root[t+1]
 		}
 		for i := r; i < b.treeEnd(t); i++ {
@@ -184,17 +180,10 @@ func (g *gen) chainChains(w *printer, b *blockForest) {
 	for c := 0; c < blockChains; c++ {
 		w.line("%s s%d = sum[lane + %du];", g.at, c, c)
 	}
-	st, stop := "uint32_t", fmt.Sprintf("%du * %s_BK_STOP", blockChains, u)
-	if int64(b.chain.stop)*blockChains >= 1<<32 {
-		st, stop = "uint64_t", fmt.Sprintf("(uint64_t)%du * %s_BK_STOP", blockChains, u)
-	}
-	var at []string
-	for c := 0; c < blockChains; c++ {
-		if st == "uint32_t" {
-			at = append(at, fmt.Sprintf("i%d", c))
-		} else {
-			at = append(at, fmt.Sprintf("(%s)i%d", st, c))
-		}
+	st, at := chainsSum(b.chain.stop)
+	stop := fmt.Sprintf("%du * %s_BK_STOP", blockChains, u)
+	if st != "uint32_t" {
+		stop = fmt.Sprintf("(%s)%s", st, stop)
 	}
 	w.line("for (;;) {")
 	w.in()
@@ -204,7 +193,7 @@ func (g *gen) chainChains(w *printer, b *blockForest) {
 			w.line("i%d = %s_bk_kid[i%d] + (uint32_t)(kb[%s_bk_k[i%d] + %du] %s %s_bk_thr[i%d]);", c, n, c, n, c, c, b.cmp(), n, c)
 		}
 	}
-	w.line("if (%s == %s) {", strings.Join(at, " + "), stop)
+	w.line("if (%s == %s) {", at, stop)
 	w.line("\tbreak; /* the eight rows reached the stop node */")
 	w.line("}")
 	w.out()
