@@ -37,25 +37,25 @@ func TestCPerfectBuilds(t *testing.T) {
 	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
 }
 
-// TestCPerfectLanes builds the perfect layout without target flags (the
-// scalar walk), with -mavx2 (scalar too: see emit/ctarget/perfect_simd.go)
-// and with -march=x86-64-v4 (the AVX-512 lanes) in gcc and clang, where
-// the CPU runs them (cpuMatrix), and
-// requires every build to print the same bytes (score checks it) and those
-// to be the interpreter's, in double and float, the driver checking
-// NAME_predict_batch over all rows and over runs of 1 to 70 rows against
-// NAME_predict. The golden cases include NaN to both sides, several outputs
-// and float32 sums; the random forests of depth 4 (neighbourForests) put
-// rows at, beside and a float away from every threshold, and NaN, ±inf,
-// ±0 and subnormals; float32 models and float builds take the lanes,
-// float64 models' double builds (double keys) and several outputs the
-// scalar walk, and the test requires both to occur. Cost: 6 cases and 8
-// forests in the perfect layout x 2 variants x 4 builds, about 30 s of
-// gcc/clang on 2 shared cores.
-func TestCPerfectLanes(t *testing.T) {
+// TestCPerfectWalks builds the perfect layout with gcc without target
+// flags (the step's inline assembly), with -march=x86-64-v4 in gcc and
+// clang where the CPU runs it (cpuMatrix; gcc then allocates the walk's
+// registers differently), and with gcc and clang from C alone
+// (-DPUMPMODEL_NO_ASM), and requires every build to print the same bytes
+// (score checks it) and those to be the interpreter's, in double and
+// float, the driver checking NAME_predict_batch over all rows and over
+// runs of 1 to 70 rows against NAME_predict. The golden cases include NaN
+// to both sides, several outputs and float32 sums; the random forests of
+// depth 4 (neighbourForests) put rows at, beside and a float away from
+// every threshold, and NaN, ±inf, ±0 and subnormals; float32 models and
+// float builds take the packed walk (float keys), float64 models' double
+// builds the walk of double keys, and the test requires both to occur.
+// Cost: 6 cases and 8 forests in the perfect layout x 2 variants x 5
+// builds, about 40 s of gcc/clang on 2 shared cores.
+func TestCPerfectWalks(t *testing.T) {
 	testenv.Need(t, cTools(true))
-	matrix := cpuMatrix(t, []cBuild{{"gcc", "c99", "O2", false}},
-		cpuBuilds{"avx2", "AVX2", []cBuild{{"gcc", "c99", "O2 -mavx2", false}}},
+	noAsm := "O2 -D" + strings.ToUpper(cName) + "_NO_ASM"
+	matrix := cpuMatrix(t, []cBuild{{"gcc", "c99", "O2", false}, {"gcc", "c99", noAsm, false}, {"clang", "c11", noAsm, false}},
 		cpuBuilds{"avx512f", "AVX-512F", []cBuild{{"gcc", "c99", "O2 -march=x86-64-v4", false}, {"clang", "c11", "O2 -march=x86-64-v4", false}}})
 	checkLayoutBuilds(t, ctarget.Perfect, perfectCases, matrix)
 	r := testCRunner()
@@ -76,12 +76,12 @@ func TestCPerfectLanes(t *testing.T) {
 			}
 			files, err := ctarget.Emit(p, o)
 			require.NoError(t, err)
-			lanes := false
+			packed := false
 			for _, f := range files {
-				lanes = lanes || strings.Contains(string(f.Data), "_pf_avx512(key, used, sum)")
+				packed = packed || strings.Contains(string(f.Data), "_PF_STEP(i0, 0u);")
 			}
-			paths[lanes]++
-			t.Run(fmt.Sprintf("%s/%s/lanes=%v", c.name, variant, lanes), func(t *testing.T) {
+			paths[packed]++
+			t.Run(fmt.Sprintf("%s/%s/packed=%v", c.name, variant, packed), func(t *testing.T) {
 				t.Parallel()
 				res, err := r.score(context.Background(), p, o, c.rows, t.TempDir(), matrix, false)
 				require.NoError(t, err)
@@ -92,29 +92,34 @@ func TestCPerfectLanes(t *testing.T) {
 			})
 		}
 	}
-	require.Positive(t, paths[true], "no forest took the AVX-512 lanes")
-	require.Positive(t, paths[false], "no forest took the scalar walk")
+	require.Positive(t, paths[true], "no forest took the packed walk")
+	require.Positive(t, paths[false], "no forest took the walk of double keys")
 }
 
-// TestCPerfectLaneDepths builds the perfect layout in float, one output,
-// for forests of every depth the AVX-512 lanes take (1 to
-// PerfectSimdMaxDepth: the leaves are looked up by one permute of one
-// register up to depth 4, of two at 5, of two pairs at 6), without target
-// flags and with -march=x86-64-v4, and checks NAME_predict_batch over every
-// prefix of the rows (values at and next to thresholds, NaN, ±inf, ±0)
-// against NAME_predict byte for byte, and the two builds' outputs against
-// each other; each forest once as compiled (splits x <= t) and once with
-// every split a < (the walk compares key >= t). The AVX-512 build is left
-// out, with a line in the log, on a CPU without AVX-512F. Cost: 12
-// forests, 24 builds with gcc -O2, about 15 s.
-func TestCPerfectLaneDepths(t *testing.T) {
+// perfectDepthsTested is the deepest forest TestCPerfectDepths builds:
+// deeper ones of perfectForestOfDepth, pruned by compile where their
+// random splits contradict, hold less than a quarter of their padding and
+// fall back to the table layout (perfectMaxGrowth).
+const perfectDepthsTested = 7
+
+// TestCPerfectDepths builds the perfect layout in float, one output, for
+// forests of every depth from 1 to perfectDepthsTested (the packed walk: float
+// keys), with the step's inline assembly, from C alone (-DDEEP_NO_ASM) and,
+// where the CPU runs it, with -march=x86-64-v4, and checks
+// NAME_predict_batch over every prefix of the rows (values at and next to
+// thresholds, NaN, ±inf, ±0) against NAME_predict byte for byte, and the
+// builds' outputs against each other; each forest once as compiled (splits
+// x <= t: keys over a low half of zeros) and once with every split a <
+// (the walk goes right at x >= t: keys over ones, and -0 >= 0 must hold).
+// Cost: 14 forests, 42 builds with gcc -O2, about 30 s.
+func TestCPerfectDepths(t *testing.T) {
 	testenv.Need(t, cTools(false))
-	flags := [][]string{nil, {"-march=x86-64-v4"}}
+	flags := [][]string{nil, {"-DDEEP_NO_ASM"}, {"-march=x86-64-v4"}}
 	if err := hasCPUFlag("avx512f", "AVX-512F"); err != nil {
 		t.Logf("the -march=x86-64-v4 builds left out: %v", err)
-		flags = flags[:1]
+		flags = flags[:2]
 	}
-	for depth := 1; depth <= ctarget.PerfectSimdMaxDepth; depth++ {
+	for depth := 1; depth <= perfectDepthsTested; depth++ {
 		for _, lt := range []bool{false, true} {
 			p, values := perfectForestOfDepth(t, depth)
 			if lt { // every split a <: the walk compares key >= t, and -0 >= 0 must hold
@@ -125,16 +130,16 @@ func TestCPerfectLaneDepths(t *testing.T) {
 				}
 			}
 			t.Run(fmt.Sprintf("depth%d/lt=%v", depth, lt), func(t *testing.T) {
-				checkPerfectLanes(t, p, values, flags)
+				checkPerfectWalks(t, p, values, flags)
 			})
 		}
 	}
 }
 
-// checkPerfectLanes emits p in the perfect layout (float), requires the
-// lanes in the file, and runs runBlockParts with each of flags, requiring
-// the same outputs of every build.
-func checkPerfectLanes(t *testing.T, p *compile.Program, values []float64, flags [][]string) {
+// checkPerfectWalks emits p in the perfect layout (float), requires the
+// packed walk in the file, and runs runBlockParts with each of flags,
+// requiring the same outputs of every build.
+func checkPerfectWalks(t *testing.T, p *compile.Program, values []float64, flags [][]string) {
 	o := ctarget.Options{Layout: ctarget.Perfect, Float: true, Name: "deep"}
 	files, err := ctarget.Emit(p, o)
 	require.NoError(t, err)
@@ -142,7 +147,7 @@ func checkPerfectLanes(t *testing.T, p *compile.Program, values []float64, flags
 	for _, f := range files {
 		text += string(f.Data)
 	}
-	require.Contains(t, text, "_pf_avx512(key, used, sum)", "the lanes are written")
+	require.True(t, strings.Contains(text, "DEEP_PF_STEP(i0, 0u);"), "the packed walk is not written: %s", strings.SplitN(text, "\n", 6)[4])
 	var first []float64
 	for _, f := range flags {
 		got, _ := runBlockParts(t, p, o, values, f...)
@@ -150,7 +155,7 @@ func checkPerfectLanes(t *testing.T, p *compile.Program, values []float64, flags
 			first = got
 			continue
 		}
-		require.Equal(t, first, got, "%v against no target flags", f)
+		require.Equal(t, first, got, "%v against no flags", f)
 	}
 }
 

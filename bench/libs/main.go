@@ -9,7 +9,7 @@
 //
 //	go run ./bench/libs -dir DIR -libs LIBS.txt [-models xgb,lgbm,rf,rfbig]
 //	       [-batches 1,100,10000] [-threads 1,2] [-reps 5] [-single-rows 1000]
-//	       [-c auto,table,block,block+avx2,perfect,perfect+avx512] [-callgrind 0]
+//	       [-c auto,table,block,perfect,perfect+avx512] [-callgrind 0]
 //
 // DIR holds what libs.py wrote (rows.bin, MODEL.model, MODEL.LIB.pred);
 // LIBS.txt is libs.py's output (its "time" lines).

@@ -28,10 +28,10 @@
 #
 # Usage: bench/libs/run.sh [REPS]        (default 5; best of REPS per figure)
 #   ROWS=20000 MODELS=xgb,lgbm,rf,rfbig BATCHES=1,100,10000 THREADS=1,2
-#   C_LAYOUTS=auto,table,block,block+avx2,perfect (+avx2: built with -mavx2 too,
-#   +avx512 with -march=x86-64-v4; the default has block+avx2 and perfect+avx2
-#   only where /proc/cpuinfo lists avx2, perfect+avx512 where it lists avx512f,
-#   and a +avx2 or +avx512 asked for on a CPU without it is dropped with a note)
+#   C_LAYOUTS=auto,table,block,perfect (the default; LAYOUT+avx2 is built with
+#   -mavx2 too, LAYOUT+avx512 with -march=x86-64-v4, to see what a user's target
+#   flags do to the same C; a +avx2 or +avx512 asked for on a CPU without it is
+#   dropped with a note)
 #   BIG_TREES=1000 BIG_LEAVES=0 SINGLE_ROWS=1000 CALLGRIND=0 (rows per count)
 #   LATENCY_ROWS=2000 (one row per call through sawmill's C and the XGBoost and
 #   LightGBM C APIs, p50 and p99; the wheels' shared libraries)
@@ -53,11 +53,8 @@ lgblib=$("$py" -c 'import os, lightgbm; print(os.path.join(os.path.dirname(light
 "$tmp/train-bench" -gen "$tmp/data.csv" -rows "${ROWS:-20000}" -seed 1
 models=${MODELS:-xgb,lgbm,rf,rfbig}
 # An -mavx2 build cannot run on a CPU without AVX2 (this one may lack it).
-avx2= avx512=
-! grep -qw avx2 /proc/cpuinfo 2>/dev/null || avx2=,block+avx2,perfect+avx2
-! grep -qw avx512f /proc/cpuinfo 2>/dev/null || avx512=,perfect+avx512
 layouts=
-for l in $(echo "${C_LAYOUTS:-auto,table,block$avx2,perfect$avx512}" | tr , ' '); do
+for l in $(echo "${C_LAYOUTS:-auto,table,block,perfect}" | tr , ' '); do
 	case $l in
 	*+avx2) grep -qw avx2 /proc/cpuinfo 2>/dev/null || { echo "note: $l left out, the CPU has no AVX2" >&2; continue; } ;;
 	*+avx512) grep -qw avx512f /proc/cpuinfo 2>/dev/null || { echo "note: $l left out, the CPU has no AVX-512F" >&2; continue; } ;;

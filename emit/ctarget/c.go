@@ -799,7 +799,13 @@ func (g *gen) header() []byte {
 		w.line(" * interleaved, without branches on the data. */")
 	case Perfect:
 		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
-		g.perfectLanesNote(&w)
+		if g.buildPerfect().ord {
+			w.line(" * tree, in a fixed number of steps without branches on the data. Built by")
+			w.line(" * gcc or clang for x86-64, a step is four instructions of inline assembly;")
+			w.line(" * define %s_NO_ASM to build it from C alone, with the same bits. */", u)
+		} else {
+			w.line(" * tree, in a fixed number of steps without branches on the data. */")
+		}
 	default:
 		w.line(" * Row by row. */")
 	}

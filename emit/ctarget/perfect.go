@@ -3,7 +3,6 @@ package ctarget
 import (
 	"fmt"
 	"math"
-	"slices"
 
 	"github.com/sawmill-dev/sawmill/compile"
 	"github.com/sawmill-dev/sawmill/emit"
@@ -23,11 +22,13 @@ import (
 //
 //	i = 2*i + 1 + (key[f2] > t)
 //
-// eight rows interleaved, with no branch on the data, and adds the leaf
+// rows interleaved (perfectChains), with no branch on the data, and adds the leaf
 // 2^D-1 places below the last node; each row's leaves are added in tree
 // order, so the outputs are NAME_predict's bit for bit. In double C the
 // keys and thresholds are floats where that is exact for every split (see
-// floatExact): XGBoost's cuts are. NAME_predict is what auto would write
+// floatExact): XGBoost's cuts are. Float keys and thresholds are walked as
+// ordered integers packed with the key index into one word a node
+// (perfect_ord.go). NAME_predict is what auto would write
 // for the model, nested or table (perfectNested).
 const Perfect = "perfect"
 
@@ -38,19 +39,20 @@ const Perfect = "perfect"
 // (cachegrind, 32 KB L1 data cache, 2,000 rows, reading included).
 const PerfectMaxRows = 64
 
-// perfectKeyBytes bounds a block's keys on the stack.
+// perfectKeyBytes bounds a block's keys on the stack, but for one group
+// of chains (perfectRows).
 const perfectKeyBytes = 32768
 
 // perfectChains is the number of rows whose steps are interleaved in the
-// code, so that their loads overlap. On the XGBoost depth-6 model, 8 took
-// 1,957 and 1,973 ns a row against 4's 2,289 and 2,307 (best of 5 runs of
-// 5, 10,000 rows, two runs, load average 4.4 on 2 cores) though they run
-// 22,953 instructions a row against 19,740 (gcc 12 -O2 spills some).
+// code, so that their loads overlap, where keys are doubles. On the XGBoost
+// depth-6 model, 8 took 1,957 and 1,973 ns a row against 4's 2,289 and
+// 2,307 (best of 5 runs of 5, 10,000 rows, two runs, load average 4.4 on 2
+// cores) though they run 22,953 instructions a row against 19,740 (gcc 12
+// -O2 spills some).
 const perfectChains = 8
 
-// PerfectMaxFeatures bounds the features, so that a block of
-// perfectChains rows' keys (two per feature and row) fit perfectKeyBytes
-// in double.
+// PerfectMaxFeatures bounds the features, so that a group of chains'
+// keys (two per feature and row, 8 bytes each) take at most 64 KiB of stack.
 const PerfectMaxFeatures = 256
 
 // PerfectMaxDepth is the deepest forest the layout pads: a tree takes
@@ -78,15 +80,25 @@ type perfectForest struct {
 	keyType string
 	featTyp string // uint8_t or uint16_t
 	rows    int    // a block's rows: see perfectRows
-	ord     bool   // float keys stored as ordered integers (perfectOrd)
-	simd    bool   // NAME_perfect has AVX-512 lanes (perfectSimd)
+	ord     bool   // float keys: nodes and keys as packed ordered integers (perfect_ord.go)
 }
 
-// perfectRows is the rows of a block: as many as perfectKeyBytes of keys
-// hold, a multiple of perfectChains, at most PerfectMaxRows.
-func perfectRows(features, keyBytes int) int {
-	r := perfectKeyBytes / (2 * features * keyBytes) / perfectChains * perfectChains
-	return max(perfectChains, min(PerfectMaxRows, r))
+// chains is the number of rows whose steps the walk interleaves:
+// perfectOrdChains where keys are ordered integers, else perfectChains.
+func (pf *perfectForest) chains() int {
+	if pf.ord {
+		return perfectOrdChains
+	}
+	return perfectChains
+}
+
+// perfectRows is the rows of a block of chains-row groups with features
+// features: as many as perfectKeyBytes of keys hold (8 bytes a key, two a
+// feature), a multiple of chains, at most PerfectMaxRows, and at least
+// one group.
+func perfectRows(features, chains int) int {
+	r := min(perfectKeyBytes/(2*features*8), PerfectMaxRows) / chains * chains
+	return max(chains, r)
 }
 
 // forestDepth is the depth of p's deepest tree (a lone leaf has depth 0).
@@ -204,13 +216,12 @@ func (g *gen) buildPerfect() *perfectForest {
 		g.perfectPlace(pf, ti, 0, 0, pf.feat[base:], pf.thr[base:], pf.leaf[lbase:])
 	}
 	pf.keyType = g.keyType(pf.thr, pf.ge)
-	pf.rows = perfectRows(len(p.Features), map[string]int{"float": 4, "double": 8}[pf.keyType])
 	pf.featTyp = "uint16_t"
 	if len(p.Features) <= 128 {
 		pf.featTyp = "uint8_t"
 	}
 	pf.ord = pf.keyType == "float"
-	pf.simd = perfectSimd(g, pf)
+	pf.rows = perfectRows(len(p.Features), pf.chains())
 	return pf
 }
 
@@ -290,8 +301,8 @@ func (g *gen) perfect(w *printer) error {
 	pf := g.buildPerfect()
 	g.batch = func(w *printer) {
 		g.perfectTables(w, pf)
-		if pf.simd {
-			g.perfectSimdWalk(w, pf)
+		if pf.ord {
+			g.perfectOrdStep(w, pf)
 		}
 		g.perfectBlock(w, pf)
 		g.blockLoop(w, "perfect", "PF_ROWS")
@@ -304,38 +315,34 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	inner := 1<<pf.depth - 1
 	w.line("#define %s_PF_DEPTH %d", g.upper, pf.depth)
 	w.line("#define %s_PF_INNER %du /* splits a tree: 2^depth - 1 */", g.upper, inner)
-	w.line("#define %s_PF_ROWS %d /* a block's rows: %d bytes of keys at most */", g.upper, pf.rows, perfectKeyBytes)
+	w.line("#define %s_PF_ROWS %d /* a block's rows: %d bytes of keys */", g.upper, pf.rows, pf.rows*2*len(g.p.Features)*8)
 	w.line("#define %s_PF_KEYS (2u * %s_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */", g.upper, g.upper)
 	w.line("")
-	if pf.simd {
-		g.perfectSimdDefs(w)
+	if pf.ord {
+		g.perfectOrdFunc(w)
+		g.perfectOrdNodes(w, pf)
+	} else {
+		g.perfectFloatTables(w, pf)
 	}
-	if pf.simd && pf.ord {
-		g.perfectOrdDefs(w)
-	}
+	g.bvArray(w, g.at, "pf_leaf", "perfect walk: per tree, per leaf left to right, per output, the value", len(pf.leaf), func(i int) string {
+		return g.alit(pf.leaf[i])
+	})
+}
+
+// perfectFloatTables writes the key indexes and the thresholds of the walk
+// whose keys are doubles.
+func (g *gen) perfectFloatTables(w *printer, pf *perfectForest) {
 	g.bvArray(w, pf.featTyp, "pf_feat", "perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right", len(pf.feat), func(i int) string {
 		return fmt.Sprintf("%du", pf.feat[i])
 	})
-	thr, what := pf.thr, fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp())
-	if pf.ord { // one more, so that a tree's thresholds convert 2^depth at a time
-		thr, what = append(slices.Clone(pf.thr), math.Inf(1)), what+", and one +inf past the last tree"
-	}
-	g.bvArray(w, pf.keyType, "pf_thr", what, len(thr), func(i int) string {
-		t := thr[i]
+	what := fmt.Sprintf("perfect walk: per tree, per split, the row goes right when its key %s this (+inf in padding)", pf.cmp())
+	g.bvArray(w, pf.keyType, "pf_thr", what, len(pf.thr), func(i int) string {
+		t := pf.thr[i]
 		if math.IsInf(t, 0) { // +inf in padding; -inf where the model splits off x <= -inf
 			sign := map[bool]string{true: "", false: "-"}[t > 0]
 			return sign + hugeVal(pf.keyType)
 		}
-		if pf.keyType == "float" {
-			return floatLit(t)
-		}
 		return doubleLit(t)
-	})
-	if pf.ord {
-		g.perfectOrdFunc(w, pf.simd)
-	}
-	g.bvArray(w, g.at, "pf_leaf", "perfect walk: per tree, per leaf left to right, per output, the value", len(pf.leaf), func(i int) string {
-		return g.alit(pf.leaf[i])
 	})
 }
 
@@ -377,32 +384,20 @@ func (g *gen) perfectBlock(w *printer, pf *perfectForest) {
 	w.line("/* Scores the count <= %s_PF_ROWS rows at x into outs: writes each row's", u)
 	w.line(" * keys, then tree by tree every row of the block takes %s_PF_DEPTH steps,", u)
 	w.line(" * each a comparison and an addition (no branch on the data), and adds its")
-	w.line(" * leaf, in tree order as %s_predict adds them. Up to %d lanes past count", g.name, perfectChains-1)
+	w.line(" * leaf, in tree order as %s_predict adds them. Up to %d lanes past count", g.name, pf.chains()-1)
 	w.line(" * walk row 0 and are dropped. */")
 	w.line("static void %s_perfect(const %s *x, size_t count, %s *outs)", g.name, ft, ft)
 	w.line("{")
 	w.in()
 	w.line("%s sum[%s_PF_ROWS * %s_NUM_OUTPUTS];", g.at, u, u)
 	w.line("%s key[%s_PF_ROWS * %s_PF_KEYS];", g.keyCType(pf), u, u)
-	if pf.simd {
-		w.line("#if defined(__AVX512F__)")
-		w.line("const size_t used = (count + %du) / %du * %du; /* whole registers */", 16*perfectSimdRegs-1, 16*perfectSimdRegs, 16*perfectSimdRegs)
-		w.line("#else")
-	}
-	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", perfectChains-1, perfectChains, perfectChains)
-	if pf.simd {
-		w.line("#endif")
-	}
+	c := pf.chains()
+	w.line("const size_t used = (count + %du) / %du * %du; /* whole chains */", c-1, c, c)
 	w.line("size_t lane;")
 	w.line("uint32_t tree;")
 	w.line("int j;")
 	g.perfectKeys(w, pf)
-	if !pf.simd {
-		g.perfectTrees(w, pf)
-	} else {
-		g.perfectSimdCall(w, func() { g.perfectTrees(w, pf) })
-		w.line("(void)tree;")
-	}
+	g.perfectTrees(w, pf)
 	g.batchFinish(w)
 	w.out()
 	w.line("}")
@@ -413,16 +408,20 @@ func (g *gen) perfectTrees(w *printer, pf *perfectForest) {
 	u := g.upper
 	w.line("for (tree = 0; tree < %du; tree++) {", len(g.p.Trees))
 	w.in()
-	w.line("const %s *const fe = %s_pf_feat + tree * %s_PF_INNER;", pf.featTyp, g.name, u)
-	w.line("const %s *const lv = %s_pf_leaf + tree * (%s_PF_INNER + 1u) * %s_NUM_OUTPUTS;", g.at, g.name, u, u)
 	if pf.ord {
-		g.perfectOrdThr(w)
+		w.line("const uint64_t *const nd = %s_pf_node + tree * %s_PF_INNER;", g.name, u)
 	} else {
+		w.line("const %s *const fe = %s_pf_feat + tree * %s_PF_INNER;", pf.featTyp, g.name, u)
 		w.line("const %s *const th = %s_pf_thr + tree * %s_PF_INNER;", pf.keyType, g.name, u)
 	}
-	w.line("for (lane = 0; lane < used; lane += %du) {", perfectChains)
+	w.line("const %s *const lv = %s_pf_leaf + tree * (%s_PF_INNER + 1u) * %s_NUM_OUTPUTS;", g.at, g.name, u, u)
+	w.line("for (lane = 0; lane < used; lane += %du) {", pf.chains())
 	w.in()
-	g.perfectChains(w, pf)
+	if pf.ord {
+		g.perfectOrdChains(w, pf)
+	} else {
+		g.perfectChains(w, pf)
+	}
 	w.out()
 	w.line("}")
 	w.out()
@@ -437,12 +436,7 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	w.in()
 	w.line("const %s *const xr = x + (lane < count ? lane : 0u) * %s_NUM_FEATURES;", g.ft, u)
 	lo, hi := "k[2 * j]", "k[2 * j + 1]"
-	if pf.simd { // the SIMD lanes' keys are feature-major (perfectSimdKeys)
-		w.line("%s *const k = key + lane * %s_PF_LANE;", kt, u)
-		lo, hi = fmt.Sprintf("k[(uint32_t)(2 * j) * %s_PF_KEY]", u), fmt.Sprintf("k[(uint32_t)(2 * j + 1) * %s_PF_KEY]", u)
-	} else {
-		w.line("%s *const k = key + lane * %s_PF_KEYS;", kt, u)
-	}
+	w.line("%s *const k = key + lane * %s_PF_KEYS;", kt, u)
 	w.line("for (j = 0; j < %s_NUM_FEATURES; j++) {", u)
 	w.in()
 	w.line("const %s v = xr[j];", g.ft)
@@ -460,8 +454,9 @@ func (g *gen) perfectKeys(w *printer, pf *perfectForest) {
 	w.line("}")
 }
 
-// perfectChains writes the walk of perfectChains rows through one tree,
-// their steps interleaved and unrolled, and the addition of their leaves.
+// perfectChains writes the walk of perfectChains rows through one tree
+// (double keys), their steps interleaved and unrolled, and the addition of
+// their leaves.
 func (g *gen) perfectChains(w *printer, pf *perfectForest) {
 	u := g.upper
 	for c := 0; c < perfectChains; c++ {
@@ -475,13 +470,20 @@ func (g *gen) perfectChains(w *printer, pf *perfectForest) {
 			w.line("i%d = 2u * i%d + 1u + (size_t)(k%d[fe[i%d]] %s th[i%d]);", c, c, c, c, pf.cmp(), c)
 		}
 	}
-	for c := 0; c < perfectChains; c++ {
+	g.perfectLeaves(w, perfectChains, u+"_PF_INNER")
+}
+
+// perfectLeaves writes the addition of chains rows' leaves, row c's at
+// ic - below.
+func (g *gen) perfectLeaves(w *printer, chains int, below string) {
+	u := g.upper
+	for c := 0; c < chains; c++ {
 		if g.p.NumOutputs == 1 {
-			w.line("sum[lane + %du] += lv[i%d - %s_PF_INNER];", c, c, u)
+			w.line("sum[lane + %du] += lv[i%d - %s];", c, c, below)
 			continue
 		}
 		w.line("for (j = 0; j < %s_NUM_OUTPUTS; j++) {", u)
-		w.line("\tsum[(lane + %du) * %s_NUM_OUTPUTS + (size_t)j] += lv[(i%d - %s_PF_INNER) * %s_NUM_OUTPUTS + (size_t)j];", c, u, c, u, u)
+		w.line("\tsum[(lane + %du) * %s_NUM_OUTPUTS + (size_t)j] += lv[(i%d - %s) * %s_NUM_OUTPUTS + (size_t)j];", c, u, c, below, u)
 		w.line("}")
 	}
 }

@@ -1,65 +1,78 @@
 package ctarget
 
-// Ordered integer keys. Where the perfect walk's keys and thresholds are
-// floats, it stores each key as the unsigned integer whose order is the
-// float's (perfectOrdFunc): for floats a and b, neither NaN, a > b exactly
+import (
+	"fmt"
+	"math"
+)
+
+// Packed ordered keys. Where the perfect walk's keys and thresholds are
+// floats, it compares them as the unsigned integers whose order is the
+// floats' (NAME_pf_ord): for floats a and b, neither NaN, a > b exactly
 // when ord(a) > ord(b), with -0 taken as +0 (a split never tells them
 // apart). Keys are never NaN (NaN is stored as -inf or +inf), so each
-// comparison decides as the float one does. The thresholds table stays
-// floats, readable as the model's cuts; each tree's thresholds are
-// converted into a small local array once a block, before its rows walk
-// the tree (63 conversions for up to 64 rows at depth 6).
+// comparison decides as the float one does.
 //
-// A step then compiles to five instructions (gcc 12 -O2: the key index,
-// the key, a compare with the threshold in memory, an address, an add
-// with carry) where the float step took seven. On the 500-round depth-6
-// XGBoost model (10,000 rows, gcc 12 -O2) NAME_predict_batch ran 19,345
-// instructions a row against float keys' 22,930 (callgrind), and took
-// 1,713 to 1,871 ns a row against 1,965 to 2,025 (best of 5, three
-// interleaved runs, load average 1.5). The tree's conversion is a loop of
-// 2^depth (vectorized by gcc -O2; a loop of 63 calls of NAME_pf_ord ran
-// 23,537 instructions a row, more than float keys), and a first form
-// whose conversion branched on -0 and on the sign took 1,972 to 2,119 ns. The AVX-512 lanes keep float keys (they
-// measured slower on integers: perfect_simd.go), so where both walks are
-// in a file the key type is chosen under __AVX512F__ (perfectOrdDefs).
+// Each split is one 64-bit word, NAME_pf_node: its threshold's ordered
+// integer in the high half, its key index (feature << 1 | NaN goes right)
+// in the low half. Each key is stored as its ordered integer in the high
+// half, over a low half of zeros (x > t) or of ones (x >= t, every split a
+// <). The key index is below 2^32 - 1, so for a key k and a node word n,
+// k > n exactly when the key is above the threshold (x > t), or at or above
+// it (x >= t): one 64-bit comparison, and one load of the node gives both
+// the threshold and where the key is. A step from node i, counted from 1
+// (children 2i and 2i + 1), is then
+//
+//	i = 2*i + (kg[r*KEYS + (uint32_t)nd[i-1]] > nd[i-1])
+//
+// two loads (the node, the key) where the walk with separate key index and
+// threshold arrays took three. gcc 12 and clang 14 compile the addition of
+// the comparison to setb, movzbl and lea; on x86-64 under gcc and clang
+// the step is written with two instructions of inline assembly, a compare
+// with the key in memory and an add with carry of i to itself
+// (NAME_PF_STEP; NAME_NO_ASM leaves the C), so a step is four instructions
+// (load the node, copy its low half, compare, add with carry).
+//
+// Measured on the 500-round depth-6 XGBoost model of bench/libs (10,000
+// rows of the invented table, gcc 12 -O2, best of 7, five interleaved
+// runs, ns a row): the step of three loads, eight rows interleaved (the
+// walk before this one) 1,449 to 1,452 (callgrind 19,340 instructions a
+// row); the two-instruction step alone on it, 1,420 (16,263); packed words,
+// eight rows 1,187 to 1,206 (13,918), twelve rows 1,094 to 1,110 (15,162),
+// sixteen rows 1,066 to 1,072 (16,457; gcc spills some of the sixteen
+// node numbers); the AVX-512 lanes that this walk replaced, 1,365. The
+// step is a chain of two dependent loads, so more rows interleaved hide
+// more of it (perfectOrdChains). A per-tree copy of the packed words
+// built once a block from the float table took 1,698 (23,652): building
+// it costs more than it saves.
+
+// perfectOrdChains is the number of rows whose steps the packed walk
+// interleaves: see the measurements above.
+const perfectOrdChains = 16
 
 // ordBits is the C expression of the ordered integer of a float's bits
-// b.u (no -0): NAME_pf_ord and the thresholds' loop write it alike.
+// b.u (no -0), as ordFloat computes it.
 const ordBits = "b.u ^ ((0u - (b.u >> 31)) | 0x80000000u)"
 
-// keyCType is the C type of a block's stored keys: under simd, the macro
-// perfectOrdDefs defines.
+// ordFloat is the ordered integer of f (-0 taken as +0), as NAME_pf_ord
+// computes it.
+func ordFloat(f float32) uint32 {
+	u := math.Float32bits(f)
+	if u == 0x80000000 {
+		u = 0
+	}
+	return u ^ ((0 - (u >> 31)) | 0x80000000)
+}
+
+// keyCType is the C type of a block's stored keys.
 func (g *gen) keyCType(pf *perfectForest) string {
-	switch {
-	case pf.ord && pf.simd:
-		return g.upper + "_PF_KEYT"
-	case pf.ord:
-		return "uint32_t"
+	if pf.ord {
+		return "uint64_t"
 	}
 	return pf.keyType
 }
 
-// perfectOrdDefs writes, where the AVX-512 lanes are in the file, the
-// stored keys' type and conversion: floats for the lanes, ordered
-// integers for the scalar walk.
-func (g *gen) perfectOrdDefs(w *printer) {
-	u := g.upper
-	w.line("#if defined(__AVX512F__)")
-	w.line("#define %s_PF_KEYT float /* the lanes compare floats */", u)
-	w.line("#define %s_PF_KEY_OF(f) (f)", u)
-	w.line("#else")
-	w.line("#define %s_PF_KEYT uint32_t /* the scalar walk compares ordered integers */", u)
-	w.line("#define %s_PF_KEY_OF(f) %s_pf_ord(f)", u, g.name)
-	w.line("#endif")
-	w.line("")
-}
-
-// perfectOrdFunc writes NAME_pf_ord, the ordered integer of a float
-// (where the lanes are in the file, for builds without AVX-512 only).
-func (g *gen) perfectOrdFunc(w *printer, simd bool) {
-	if simd {
-		w.line("#if !defined(__AVX512F__)")
-	}
+// perfectOrdFunc writes NAME_pf_ord, the ordered integer of a float.
+func (g *gen) perfectOrdFunc(w *printer) {
 	w.line("/* The unsigned integer whose order is f's: for floats a and b, neither NaN,")
 	w.line(" * a > b exactly when %s_pf_ord(a) > %s_pf_ord(b); -0 is taken as +0. */", g.name, g.name)
 	w.line("static uint32_t %s_pf_ord(float f)", g.name)
@@ -71,40 +84,75 @@ func (g *gen) perfectOrdFunc(w *printer, simd bool) {
 	w.line("return %s; /* negative: all bits flipped, else the sign bit */", ordBits)
 	w.out()
 	w.line("}")
-	if simd {
-		w.line("#endif")
-	}
 	w.line("")
 }
 
-// perfectOrdThr writes th, the current tree's thresholds as ordered
-// integers, converted from the float table: 2^depth of them (the last the
-// next tree's first, or the table's extra +inf), so that gcc -O2
-// vectorizes the loop. A threshold is never -0 (perfectPlace).
-func (g *gen) perfectOrdThr(w *printer) {
-	u := g.upper
-	w.line("const float *const tf = %s_pf_thr + tree * %s_PF_INNER;", g.name, u)
-	w.line("uint32_t th[%s_PF_INNER + 1u];", u)
-	w.line("for (j = 0; j < (int)%s_PF_INNER + 1; j++) { /* as %s_pf_ord */", u, g.name)
-	w.in()
-	w.line("union { float f; uint32_t u; } b;")
-	w.line("b.f = tf[j];")
-	w.line("th[j] = %s;", ordBits)
-	w.out()
-	w.line("}")
+// perfectOrdNodes writes NAME_pf_node, the packed words of every split.
+func (g *gen) perfectOrdNodes(w *printer, pf *perfectForest) {
+	what := fmt.Sprintf("perfect walk: per tree, per split in level order (node i's children 2i and 2i + 1, from 1), the threshold as %s_pf_ord gives it << 32 | the key: feature << 1 | NaN goes right; a row goes right when its key %s the threshold (+inf in padding)", g.name, pf.cmp())
+	g.bvArray(w, "uint64_t", "pf_node", what, len(pf.thr), func(i int) string {
+		return fmt.Sprintf("0x%016xu", uint64(ordFloat(float32(pf.thr[i])))<<32|uint64(pf.feat[i]))
+	})
 }
 
-// perfectOrdPair writes the two ordered keys of the input v (under simd,
-// through NAME_PF_KEY_OF).
+// ordLow is the low half of every stored key: ones where a row goes right
+// at x >= t, so that a key equal to the threshold is above the node word.
+func (pf *perfectForest) ordLow() string {
+	if pf.ge {
+		return " | 0xffffffffu"
+	}
+	return ""
+}
+
+// perfectOrdPair writes the two packed keys of the input v.
 func (g *gen) perfectOrdPair(w *printer, pf *perfectForest, lo, hi string) {
 	cast, note := "", ""
 	if g.ft != "float" {
 		cast, note = "(float)", " /* exact: see the thresholds */"
 	}
-	conv := g.name + "_pf_ord"
-	if pf.simd {
-		conv = g.upper + "_PF_KEY_OF"
+	w.line("%s = (uint64_t)%s_pf_ord(v != v ? -HUGE_VALF : %sv) << 32%s;%s", lo, g.name, cast, pf.ordLow(), note)
+	w.line("%s = (uint64_t)%s_pf_ord(v != v ? HUGE_VALF : %sv) << 32%s;", hi, g.name, cast, pf.ordLow())
+}
+
+// perfectOrdStep writes NAME_PF_STEP, one step of row r of a group (keys
+// at kg) from node i of the tree whose words are at nd.
+func (g *gen) perfectOrdStep(w *printer, pf *perfectForest) {
+	u := g.upper
+	w.line("/* One step of row r of a group (its keys at kg + r * %s_PF_KEYS) from node i", u)
+	w.line(" * (from 1) of the tree whose words are at nd: i becomes 2i + 1 when the key")
+	w.line(" * is above the word (the row goes right), else 2i. On x86-64 under gcc and")
+	w.line(" * clang, four instructions of inline assembly (load the word, copy its low")
+	w.line(" * half, compare the key with it, add with carry), as neither compiler writes")
+	w.line(" * the add with carry and gcc may route the word through a vector register;")
+	w.line(" * define %s_NO_ASM for the C alone, with the same bits. */", u)
+	w.line("#if defined(__GNUC__) && defined(__x86_64__) && !defined(%s_NO_ASM)", u)
+	w.line("#define %s_PF_STEP(i, r) do { \\", u)
+	w.line("\tuint64_t n_, x_; \\")
+	w.line("%s", "\t__asm__(\"movq -8(%[nd],%[at],8), %[n]\\n\\tmovl %k[n], %k[ix]\\n\\tcmpq %c[of](%[kg],%[ix],8), %[n]\\n\\tadcq %[at], %[at]\" \\")
+	w.line("\t\t: [at] \"+r\"(i), [n] \"=&r\"(n_), [ix] \"=&r\"(x_) \\")
+	w.line("\t\t: [nd] \"r\"(nd), [kg] \"r\"(kg), [of] \"i\"((r) * %s_PF_KEYS * 8u), \\", u)
+	w.line("\t\t  \"m\"(*(const uint64_t (*)[%s_PF_INNER])nd), \"m\"(*(const uint64_t (*)[%s_PF_ROWS * %s_PF_KEYS])key) \\", u, u, u)
+	w.line("\t\t: \"cc\"); \\")
+	w.line("} while (0)")
+	w.line("#else")
+	w.line("#define %s_PF_STEP(i, r) ((i) = 2u * (i) + (size_t)(kg[(size_t)(uint32_t)nd[(i) - 1u] + (r) * %s_PF_KEYS] > nd[(i) - 1u]))", u, u)
+	w.line("#endif")
+	w.line("")
+}
+
+// perfectOrdChains writes the walk of perfectOrdChains rows through one
+// tree, their steps interleaved and unrolled, and the addition of their
+// leaves (node numbers from 1: the leaf is 2^D places below the last).
+func (g *gen) perfectOrdChains(w *printer, pf *perfectForest) {
+	u := g.upper
+	w.line("const uint64_t *const kg = key + lane * %s_PF_KEYS;", u)
+	for c := 0; c < perfectOrdChains; c++ {
+		w.line("size_t i%d = 1u;", c)
 	}
-	w.line("%s = %s(v != v ? -HUGE_VALF : %sv);%s", lo, conv, cast, note)
-	w.line("%s = %s(v != v ? HUGE_VALF : %sv);", hi, conv, cast)
+	for d := 0; d < pf.depth; d++ {
+		for c := 0; c < perfectOrdChains; c++ {
+			w.line("%s_PF_STEP(i%d, %du);", u, c, c)
+		}
+	}
+	g.perfectLeaves(w, perfectOrdChains, u+"_PF_INNER - 1u")
 }

@@ -104,11 +104,13 @@ func TestFloatExact(t *testing.T) {
 }
 
 // TestPerfectRows: a block holds as many rows as perfectKeyBytes of keys
-// allow, in eights, from 8 to PerfectMaxRows.
+// allow, in groups of chains, from one group to PerfectMaxRows.
 func TestPerfectRows(t *testing.T) {
-	require.Equal(t, 64, perfectRows(20, 4))  // 64 rows x 40 keys x 4 bytes = 10 KiB
-	require.Equal(t, 16, perfectRows(100, 8)) // 16 x 200 x 8 = 25,600 bytes
+	require.Equal(t, 64, perfectRows(20, 16))  // 64 rows x 40 keys x 8 bytes = 20 KiB
+	require.Equal(t, 16, perfectRows(100, 16)) // 16 x 200 x 8 = 25,600 bytes
+	require.Equal(t, 16, perfectRows(100, 8))
 	require.Equal(t, 8, perfectRows(PerfectMaxFeatures, 8))
+	require.Equal(t, 16, perfectRows(PerfectMaxFeatures, 16)) // one group: 64 KiB
 }
 
 // chainTree is a tree of depth d: each split's right child is a leaf, its
@@ -126,40 +128,47 @@ func chainTree(d int) (compile.Tree, [][]float64) {
 	return tr, append(leaves, []float64{-1})
 }
 
-// TestPerfectSimdRule: the AVX-512 lanes are written for float keys, one
-// output and depth at most PerfectSimdMaxDepth, and the C says so with
-// the scalar walk under #else; double keys, a deeper forest or two outputs
-// keep the scalar walk alone.
-func TestPerfectSimdRule(t *testing.T) {
-	for _, c := range []struct {
-		depth, outputs int
-		ft             string
-		lanes          bool
-	}{
-		{PerfectSimdMaxDepth, 1, "float", true},
-		{1, 1, "float", true},
-		{PerfectSimdMaxDepth + 1, 1, "float", false},
-		{3, 2, "float", false},
-	} {
-		tr, leaves := chainTree(c.depth)
-		for i := range tr.Nodes {
-			if tr.Nodes[i].IsLeaf() {
-				tr.Nodes[i].Value = make([]float64, c.outputs)
-				leaves[i] = make([]float64, c.outputs)
+// TestPerfectOrdRule: float keys take the packed walk (one word a node,
+// perfectOrdChains rows interleaved), double keys the walk of separate
+// key indexes and thresholds.
+func TestPerfectOrdRule(t *testing.T) {
+	tr, leaves := chainTree(6)
+	p := &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
+	g := &gen{p: p, ft: "float", at: "float", leaves: [][][]float64{leaves}}
+	pf := g.buildPerfect()
+	require.True(t, pf.ord)
+	require.Equal(t, perfectOrdChains, pf.chains())
+	tr = compile.Tree{Nodes: []compile.Node{{Feature: 0, Threshold: 0.1, Op: compile.LE, Left: 1, Right: 2}, perfectLeaf(1), perfectLeaf(2)}}
+	p = &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
+	g = &gen{p: p, ft: "double", at: "double", leaves: [][][]float64{{nil, {1}, {2}}}}
+	pf = g.buildPerfect()
+	require.Equal(t, "double", pf.keyType, "0.1 is no float")
+	require.False(t, pf.ord, "double keys keep the walk of separate arrays")
+	require.Equal(t, perfectChains, pf.chains())
+}
+
+// TestOrdPacked: a packed key (ordered integer << 32 over zeros, or ones
+// for x >= t) is above a packed node word (threshold << 32 | key index)
+// exactly when the float key is above the threshold (at or above it), for
+// every pair of floats from a list of edges (±0, ±inf, subnormals, the
+// largest floats, neighbours) and key indexes 0, 1 and the largest
+// feature's; thresholds are never -0 (perfectPlace).
+func TestOrdPacked(t *testing.T) {
+	fs := []float32{0, float32(math.Copysign(0, -1)), float32(math.Inf(1)), float32(math.Inf(-1)),
+		math.SmallestNonzeroFloat32, -math.SmallestNonzeroFloat32, math.MaxFloat32, -math.MaxFloat32,
+		1, -1, 1.5, -1.5, math.Nextafter32(1, 2), math.Nextafter32(1, 0), math.Nextafter32(-1, 0), 1e-38, -1e-38, 3.25e7}
+	for _, k := range fs {
+		for _, th := range fs {
+			if th == 0 && math.Signbit(float64(th)) {
+				continue
+			}
+			for _, idx := range []uint64{0, 1, PerfectMaxFeatures<<1 | 1} {
+				node := uint64(ordFloat(th))<<32 | idx
+				require.Equal(t, k > th, uint64(ordFloat(k))<<32 > node, "%v > %v, key index %d", k, th, idx)
+				require.Equal(t, k >= th, uint64(ordFloat(k))<<32|0xffffffff > node, "%v >= %v, key index %d", k, th, idx)
 			}
 		}
-		p := &compile.Program{NumOutputs: c.outputs, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
-		g := &gen{p: p, ft: c.ft, at: c.ft, leaves: [][][]float64{leaves}}
-		pf := g.buildPerfect()
-		require.Equal(t, c.depth, pf.depth)
-		require.Equal(t, c.lanes, pf.simd, "%+v", c)
 	}
-	tr := compile.Tree{Nodes: []compile.Node{{Feature: 0, Threshold: 0.1, Op: compile.LE, Left: 1, Right: 2}, perfectLeaf(1), perfectLeaf(2)}}
-	p := &compile.Program{NumOutputs: 1, Features: make([]compile.Feature, 3), Trees: []compile.Tree{tr}}
-	g := &gen{p: p, ft: "double", at: "double", leaves: [][][]float64{{nil, {1}, {2}}}}
-	pf := g.buildPerfect()
-	require.Equal(t, "double", pf.keyType, "0.1 is no float")
-	require.False(t, pf.simd, "double keys keep the scalar walk")
 }
 
 // TestBatchResolve: batch asks for perfect where it builds, else block,

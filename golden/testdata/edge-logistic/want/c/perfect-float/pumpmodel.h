@@ -21,10 +21,9 @@
  *   1 bearing_wear
  *
  * Static tables in pumpmodel.c:
- *   pumpmodel_pf_feat: perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right, 9 x 1 = 9 bytes
- *   pumpmodel_pf_thr: perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree, 10 x 4 = 40 bytes
+ *   pumpmodel_pf_node: perfect walk: per tree, per split in level order (node i's children 2i and 2i + 1, from 1), the threshold as pumpmodel_pf_ord gives it << 32 | the key: feature << 1 | NaN goes right; a row goes right when its key > the threshold (+inf in padding), 9 x 8 = 72 bytes
  *   pumpmodel_pf_leaf: perfect walk: per tree, per leaf left to right, per output, the value, 12 x 4 = 48 bytes
- *   total 97 bytes (8.82 bytes per node; code not counted)
+ *   total 120 bytes (10.91 bytes per node; code not counted)
  * At most 4 splits are tested per prediction (the sum of the trees' depths).
  * Flash, RAM, stack and instructions per prediction on Cortex-M and RISC-V
  * boards: sawmill inspect --c-sizes (emitting runs no compiler).
@@ -72,8 +71,9 @@ void pumpmodel_predict(const float *x, float *out);
 /* Scores n rows, x row after row (n * PUMPMODEL_NUM_FEATURES values), into out
  * (n * PUMPMODEL_NUM_OUTPUTS values): each row exactly as pumpmodel_predict scores it.
  * Blocks of rows (PUMPMODEL_PF_ROWS in pumpmodel.c) walk each tree, padded to a perfect
- * tree, in a fixed number of steps without branches on the data; 16 rows
- * a register where __AVX512F__ is defined, with the same bits. */
+ * tree, in a fixed number of steps without branches on the data. Built by
+ * gcc or clang for x86-64, a step is four instructions of inline assembly;
+ * define PUMPMODEL_NO_ASM to build it from C alone, with the same bits. */
 void pumpmodel_predict_batch(const float *x, size_t n, float *out);
 
 /* The predicted class of x: 1 when the output is above 0.5, else 0. */

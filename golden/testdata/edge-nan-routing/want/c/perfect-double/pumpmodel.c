@@ -72,7 +72,7 @@ void pumpmodel_predict(const double *x, double *out)
 
 #define PUMPMODEL_PF_DEPTH 2
 #define PUMPMODEL_PF_INNER 3u /* splits a tree: 2^depth - 1 */
-#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 32768 bytes of keys at most */
+#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 2048 bytes of keys */
 #define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
 /* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
@@ -115,8 +115,8 @@ static void pumpmodel_perfect(const double *x, size_t count, double *outs)
 	}
 	for (tree = 0; tree < 2u; tree++) {
 		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
-		const double *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
 		const double *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
+		const double *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
 		for (lane = 0; lane < used; lane += 8u) {
 			const double *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
 			const double *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;

@@ -7,9 +7,6 @@
 #include <float.h>
 #include <math.h>
 #include <stdint.h>
-#if defined(__AVX512F__) || defined(__AVX2__)
-#include <immintrin.h>
-#endif
 
 /* Exactness needs IEEE 754 arithmetic evaluated in its own type (see pumpmodel.h);
  * define PUMPMODEL_ALLOW_INEXACT_FP to build where these checks fail. */
@@ -75,36 +72,9 @@ void pumpmodel_predict(const float *x, float *out)
 
 #define PUMPMODEL_PF_DEPTH 2
 #define PUMPMODEL_PF_INNER 3u /* splits a tree: 2^depth - 1 */
-#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 32768 bytes of keys at most */
+#define PUMPMODEL_PF_ROWS 64 /* a block's rows: 2048 bytes of keys */
 #define PUMPMODEL_PF_KEYS (2u * PUMPMODEL_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */
 
-#if defined(__AVX512F__)
-#define PUMPMODEL_PF_LANE 1u /* keys feature-major: key[k * PUMPMODEL_PF_ROWS + lane] */
-#define PUMPMODEL_PF_KEY PUMPMODEL_PF_ROWS
-#else
-#define PUMPMODEL_PF_LANE PUMPMODEL_PF_KEYS /* keys row-major: key[lane * PUMPMODEL_PF_KEYS + k] */
-#define PUMPMODEL_PF_KEY 1u
-#endif
-
-#if defined(__AVX512F__)
-#define PUMPMODEL_PF_KEYT float /* the lanes compare floats */
-#define PUMPMODEL_PF_KEY_OF(f) (f)
-#else
-#define PUMPMODEL_PF_KEYT uint32_t /* the scalar walk compares ordered integers */
-#define PUMPMODEL_PF_KEY_OF(f) pumpmodel_pf_ord(f)
-#endif
-
-/* perfect walk: per tree, per split in level order (node i's children 2i+1 and 2i+2), the key: feature << 1 | NaN goes right */
-static const uint8_t pumpmodel_pf_feat[6] = {
-	0u, 3u, 0u, 3u, 0u, 0u
-};
-
-/* perfect walk: per tree, per split, the row goes right when its key > this (+inf in padding), and one +inf past the last tree */
-static const float pumpmodel_pf_thr[7] = {
-	0.5f, 0.0f, HUGE_VALF, 0.0f, HUGE_VALF, HUGE_VALF, HUGE_VALF
-};
-
-#if !defined(__AVX512F__)
 /* The unsigned integer whose order is f's: for floats a and b, neither NaN,
  * a > b exactly when pumpmodel_pf_ord(a) > pumpmodel_pf_ord(b); -0 is taken as +0. */
 static uint32_t pumpmodel_pf_ord(float f)
@@ -114,160 +84,131 @@ static uint32_t pumpmodel_pf_ord(float f)
 	b.u = b.u == 0x80000000u ? 0u : b.u; /* -0 */
 	return b.u ^ ((0u - (b.u >> 31)) | 0x80000000u); /* negative: all bits flipped, else the sign bit */
 }
-#endif
+
+/* perfect walk: per tree, per split in level order (node i's children 2i and 2i + 1, from 1), the threshold as pumpmodel_pf_ord gives it << 32 | the key: feature << 1 | NaN goes right; a row goes right when its key > the threshold (+inf in padding) */
+static const uint64_t pumpmodel_pf_node[6] = {
+	0xbf00000000000000u, 0x8000000000000003u, 0xff80000000000000u, 0x8000000000000003u, 0xff80000000000000u, 0xff80000000000000u
+};
 
 /* perfect walk: per tree, per leaf left to right, per output, the value */
 static const float pumpmodel_pf_leaf[8] = {
 	1.5f, -0.0f, -2.25f, -2.25f, -0.0f, -0.0f, 0.0f, 0.0f
 };
 
-#if defined(__AVX512F__)
-/* The walk of a block's first used rows (a multiple of 32) through every
- * tree, 32 rows at a time in 2 registers, keys feature-major: node by node
- * depth first, each node under the mask of the lanes that reach it
- * (m<node>_<register>); a lane's right turns, level by level (r<level>_<register>,
- * the root's m2), are the bits of its leaf's index, and its leaf is looked up
- * by permutes of the tree's leaves; the leaves are added to the sums once a
- * tree, in tree order. */
-static void pumpmodel_pf_avx512(const float *key, size_t used, float *sum)
-{
-	uint32_t tree;
-	size_t c;
-	for (c = 0; c < used; c += 32u) {
-		const float *const kc = key + c;
-		__m512 s0 = _mm512_loadu_ps(sum + c + 0u);
-		__m512 s1 = _mm512_loadu_ps(sum + c + 16u);
-		for (tree = 0; tree < 2u; tree++) {
-			const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
-			const float *const th = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
-			const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u);
-			const __mmask16 m0_0 = 0xffffu;
-			__mmask16 r1_0 = 0u;
-			const __mmask16 m0_1 = 0xffffu;
-			__mmask16 r1_1 = 0u;
-			const float *k;
-			__m512 t;
-			k = kc + (size_t)fe[0] * PUMPMODEL_PF_ROWS;
-			t = _mm512_set1_ps(th[0]);
-			const __mmask16 m2_0 = _mm512_mask_cmp_ps_mask(m0_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
-			const __mmask16 m1_0 = (__mmask16)(m0_0 & ~m2_0);
-			const __mmask16 m2_1 = _mm512_mask_cmp_ps_mask(m0_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
-			const __mmask16 m1_1 = (__mmask16)(m0_1 & ~m2_1);
-			k = kc + (size_t)fe[1] * PUMPMODEL_PF_ROWS;
-			t = _mm512_set1_ps(th[1]);
-			const __mmask16 m4_0 = _mm512_mask_cmp_ps_mask(m1_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
-			r1_0 = (__mmask16)(r1_0 | m4_0);
-			const __mmask16 m4_1 = _mm512_mask_cmp_ps_mask(m1_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
-			r1_1 = (__mmask16)(r1_1 | m4_1);
-			k = kc + (size_t)fe[2] * PUMPMODEL_PF_ROWS;
-			t = _mm512_set1_ps(th[2]);
-			const __mmask16 m6_0 = _mm512_mask_cmp_ps_mask(m2_0, _mm512_loadu_ps(k + 0u), t, _CMP_GT_OQ);
-			r1_0 = (__mmask16)(r1_0 | m6_0);
-			const __mmask16 m6_1 = _mm512_mask_cmp_ps_mask(m2_1, _mm512_loadu_ps(k + 16u), t, _CMP_GT_OQ);
-			r1_1 = (__mmask16)(r1_1 | m6_1);
-			const __m512 l0 = _mm512_maskz_loadu_ps(0xfu, lv);
-			__m512i x0 = _mm512_setzero_si512();
-			x0 = _mm512_mask_or_epi32(x0, m2_0, x0, _mm512_set1_epi32(2));
-			x0 = _mm512_mask_or_epi32(x0, r1_0, x0, _mm512_set1_epi32(1));
-			const __m512 v0 = _mm512_permutexvar_ps(x0, l0);
-			__m512i x1 = _mm512_setzero_si512();
-			x1 = _mm512_mask_or_epi32(x1, m2_1, x1, _mm512_set1_epi32(2));
-			x1 = _mm512_mask_or_epi32(x1, r1_1, x1, _mm512_set1_epi32(1));
-			const __m512 v1 = _mm512_permutexvar_ps(x1, l0);
-			s0 = _mm512_add_ps(s0, v0);
-			s1 = _mm512_add_ps(s1, v1);
-		}
-		_mm512_storeu_ps(sum + c + 0u, s0);
-		_mm512_storeu_ps(sum + c + 16u, s1);
-	}
-}
+/* One step of row r of a group (its keys at kg + r * PUMPMODEL_PF_KEYS) from node i
+ * (from 1) of the tree whose words are at nd: i becomes 2i + 1 when the key
+ * is above the word (the row goes right), else 2i. On x86-64 under gcc and
+ * clang, four instructions of inline assembly (load the word, copy its low
+ * half, compare the key with it, add with carry), as neither compiler writes
+ * the add with carry and gcc may route the word through a vector register;
+ * define PUMPMODEL_NO_ASM for the C alone, with the same bits. */
+#if defined(__GNUC__) && defined(__x86_64__) && !defined(PUMPMODEL_NO_ASM)
+#define PUMPMODEL_PF_STEP(i, r) do { \
+	uint64_t n_, x_; \
+	__asm__("movq -8(%[nd],%[at],8), %[n]\n\tmovl %k[n], %k[ix]\n\tcmpq %c[of](%[kg],%[ix],8), %[n]\n\tadcq %[at], %[at]" \
+		: [at] "+r"(i), [n] "=&r"(n_), [ix] "=&r"(x_) \
+		: [nd] "r"(nd), [kg] "r"(kg), [of] "i"((r) * PUMPMODEL_PF_KEYS * 8u), \
+		  "m"(*(const uint64_t (*)[PUMPMODEL_PF_INNER])nd), "m"(*(const uint64_t (*)[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS])key) \
+		: "cc"); \
+} while (0)
+#else
+#define PUMPMODEL_PF_STEP(i, r) ((i) = 2u * (i) + (size_t)(kg[(size_t)(uint32_t)nd[(i) - 1u] + (r) * PUMPMODEL_PF_KEYS] > nd[(i) - 1u]))
 #endif
 
 /* Scores the count <= PUMPMODEL_PF_ROWS rows at x into outs: writes each row's
  * keys, then tree by tree every row of the block takes PUMPMODEL_PF_DEPTH steps,
  * each a comparison and an addition (no branch on the data), and adds its
- * leaf, in tree order as pumpmodel_predict adds them. Up to 7 lanes past count
+ * leaf, in tree order as pumpmodel_predict adds them. Up to 15 lanes past count
  * walk row 0 and are dropped. */
 static void pumpmodel_perfect(const float *x, size_t count, float *outs)
 {
 	float sum[PUMPMODEL_PF_ROWS * PUMPMODEL_NUM_OUTPUTS];
-	PUMPMODEL_PF_KEYT key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
-	#if defined(__AVX512F__)
-	const size_t used = (count + 31u) / 32u * 32u; /* whole registers */
-	#else
-	const size_t used = (count + 7u) / 8u * 8u; /* whole chains */
-	#endif
+	uint64_t key[PUMPMODEL_PF_ROWS * PUMPMODEL_PF_KEYS];
+	const size_t used = (count + 15u) / 16u * 16u; /* whole chains */
 	size_t lane;
 	uint32_t tree;
 	int j;
 	for (lane = 0; lane < used; lane++) {
 		const float *const xr = x + (lane < count ? lane : 0u) * PUMPMODEL_NUM_FEATURES;
-		PUMPMODEL_PF_KEYT *const k = key + lane * PUMPMODEL_PF_LANE;
+		uint64_t *const k = key + lane * PUMPMODEL_PF_KEYS;
 		for (j = 0; j < PUMPMODEL_NUM_FEATURES; j++) {
 			const float v = xr[j];
-			k[(uint32_t)(2 * j) * PUMPMODEL_PF_KEY] = PUMPMODEL_PF_KEY_OF(v != v ? -HUGE_VALF : v);
-			k[(uint32_t)(2 * j + 1) * PUMPMODEL_PF_KEY] = PUMPMODEL_PF_KEY_OF(v != v ? HUGE_VALF : v);
+			k[2 * j] = (uint64_t)pumpmodel_pf_ord(v != v ? -HUGE_VALF : v) << 32;
+			k[2 * j + 1] = (uint64_t)pumpmodel_pf_ord(v != v ? HUGE_VALF : v) << 32;
 		}
 		sum[lane * PUMPMODEL_NUM_OUTPUTS + 0u] = -0.0f;
 	}
-	#if defined(__AVX512F__)
-	pumpmodel_pf_avx512(key, used, sum);
-	#else
 	for (tree = 0; tree < 2u; tree++) {
-		const uint8_t *const fe = pumpmodel_pf_feat + tree * PUMPMODEL_PF_INNER;
+		const uint64_t *const nd = pumpmodel_pf_node + tree * PUMPMODEL_PF_INNER;
 		const float *const lv = pumpmodel_pf_leaf + tree * (PUMPMODEL_PF_INNER + 1u) * PUMPMODEL_NUM_OUTPUTS;
-		const float *const tf = pumpmodel_pf_thr + tree * PUMPMODEL_PF_INNER;
-		uint32_t th[PUMPMODEL_PF_INNER + 1u];
-		for (j = 0; j < (int)PUMPMODEL_PF_INNER + 1; j++) { /* as pumpmodel_pf_ord */
-			union { float f; uint32_t u; } b;
-			b.f = tf[j];
-			th[j] = b.u ^ ((0u - (b.u >> 31)) | 0x80000000u);
-		}
-		for (lane = 0; lane < used; lane += 8u) {
-			const PUMPMODEL_PF_KEYT *const k0 = key + (lane + 0u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k1 = key + (lane + 1u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k2 = key + (lane + 2u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k3 = key + (lane + 3u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k4 = key + (lane + 4u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k5 = key + (lane + 5u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k6 = key + (lane + 6u) * PUMPMODEL_PF_KEYS;
-			const PUMPMODEL_PF_KEYT *const k7 = key + (lane + 7u) * PUMPMODEL_PF_KEYS;
-			size_t i0 = 0u;
-			size_t i1 = 0u;
-			size_t i2 = 0u;
-			size_t i3 = 0u;
-			size_t i4 = 0u;
-			size_t i5 = 0u;
-			size_t i6 = 0u;
-			size_t i7 = 0u;
-			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
-			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
-			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
-			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
-			i4 = 2u * i4 + 1u + (size_t)(k4[fe[i4]] > th[i4]);
-			i5 = 2u * i5 + 1u + (size_t)(k5[fe[i5]] > th[i5]);
-			i6 = 2u * i6 + 1u + (size_t)(k6[fe[i6]] > th[i6]);
-			i7 = 2u * i7 + 1u + (size_t)(k7[fe[i7]] > th[i7]);
-			i0 = 2u * i0 + 1u + (size_t)(k0[fe[i0]] > th[i0]);
-			i1 = 2u * i1 + 1u + (size_t)(k1[fe[i1]] > th[i1]);
-			i2 = 2u * i2 + 1u + (size_t)(k2[fe[i2]] > th[i2]);
-			i3 = 2u * i3 + 1u + (size_t)(k3[fe[i3]] > th[i3]);
-			i4 = 2u * i4 + 1u + (size_t)(k4[fe[i4]] > th[i4]);
-			i5 = 2u * i5 + 1u + (size_t)(k5[fe[i5]] > th[i5]);
-			i6 = 2u * i6 + 1u + (size_t)(k6[fe[i6]] > th[i6]);
-			i7 = 2u * i7 + 1u + (size_t)(k7[fe[i7]] > th[i7]);
-			sum[lane + 0u] += lv[i0 - PUMPMODEL_PF_INNER];
-			sum[lane + 1u] += lv[i1 - PUMPMODEL_PF_INNER];
-			sum[lane + 2u] += lv[i2 - PUMPMODEL_PF_INNER];
-			sum[lane + 3u] += lv[i3 - PUMPMODEL_PF_INNER];
-			sum[lane + 4u] += lv[i4 - PUMPMODEL_PF_INNER];
-			sum[lane + 5u] += lv[i5 - PUMPMODEL_PF_INNER];
-			sum[lane + 6u] += lv[i6 - PUMPMODEL_PF_INNER];
-			sum[lane + 7u] += lv[i7 - PUMPMODEL_PF_INNER];
+		for (lane = 0; lane < used; lane += 16u) {
+			const uint64_t *const kg = key + lane * PUMPMODEL_PF_KEYS;
+			size_t i0 = 1u;
+			size_t i1 = 1u;
+			size_t i2 = 1u;
+			size_t i3 = 1u;
+			size_t i4 = 1u;
+			size_t i5 = 1u;
+			size_t i6 = 1u;
+			size_t i7 = 1u;
+			size_t i8 = 1u;
+			size_t i9 = 1u;
+			size_t i10 = 1u;
+			size_t i11 = 1u;
+			size_t i12 = 1u;
+			size_t i13 = 1u;
+			size_t i14 = 1u;
+			size_t i15 = 1u;
+			PUMPMODEL_PF_STEP(i0, 0u);
+			PUMPMODEL_PF_STEP(i1, 1u);
+			PUMPMODEL_PF_STEP(i2, 2u);
+			PUMPMODEL_PF_STEP(i3, 3u);
+			PUMPMODEL_PF_STEP(i4, 4u);
+			PUMPMODEL_PF_STEP(i5, 5u);
+			PUMPMODEL_PF_STEP(i6, 6u);
+			PUMPMODEL_PF_STEP(i7, 7u);
+			PUMPMODEL_PF_STEP(i8, 8u);
+			PUMPMODEL_PF_STEP(i9, 9u);
+			PUMPMODEL_PF_STEP(i10, 10u);
+			PUMPMODEL_PF_STEP(i11, 11u);
+			PUMPMODEL_PF_STEP(i12, 12u);
+			PUMPMODEL_PF_STEP(i13, 13u);
+			PUMPMODEL_PF_STEP(i14, 14u);
+			PUMPMODEL_PF_STEP(i15, 15u);
+			PUMPMODEL_PF_STEP(i0, 0u);
+			PUMPMODEL_PF_STEP(i1, 1u);
+			PUMPMODEL_PF_STEP(i2, 2u);
+			PUMPMODEL_PF_STEP(i3, 3u);
+			PUMPMODEL_PF_STEP(i4, 4u);
+			PUMPMODEL_PF_STEP(i5, 5u);
+			PUMPMODEL_PF_STEP(i6, 6u);
+			PUMPMODEL_PF_STEP(i7, 7u);
+			PUMPMODEL_PF_STEP(i8, 8u);
+			PUMPMODEL_PF_STEP(i9, 9u);
+			PUMPMODEL_PF_STEP(i10, 10u);
+			PUMPMODEL_PF_STEP(i11, 11u);
+			PUMPMODEL_PF_STEP(i12, 12u);
+			PUMPMODEL_PF_STEP(i13, 13u);
+			PUMPMODEL_PF_STEP(i14, 14u);
+			PUMPMODEL_PF_STEP(i15, 15u);
+			sum[lane + 0u] += lv[i0 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 1u] += lv[i1 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 2u] += lv[i2 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 3u] += lv[i3 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 4u] += lv[i4 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 5u] += lv[i5 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 6u] += lv[i6 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 7u] += lv[i7 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 8u] += lv[i8 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 9u] += lv[i9 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 10u] += lv[i10 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 11u] += lv[i11 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 12u] += lv[i12 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 13u] += lv[i13 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 14u] += lv[i14 - PUMPMODEL_PF_INNER - 1u];
+			sum[lane + 15u] += lv[i15 - PUMPMODEL_PF_INNER - 1u];
 		}
 	}
-	#endif
-	(void)tree;
 	for (lane = 0; lane < count; lane++) {
 		float acc[PUMPMODEL_NUM_OUTPUTS];
 		float *const out = outs + lane * PUMPMODEL_NUM_OUTPUTS;
