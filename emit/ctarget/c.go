@@ -963,11 +963,6 @@ func (g *gen) source(body []byte) []byte {
 	if g.layout == emit.Table || g.layout == emit.Binned || g.layout == Bitvector || g.layout == Block || g.layout == Perfect || len(g.sets.sets) > 0 {
 		w.line("#include <stdint.h>")
 	}
-	if g.layout == Perfect && bytes.Contains(body, []byte("_mm512_")) {
-		w.line("#if defined(__AVX512F__) || defined(__AVX2__)")
-		w.line("#include <immintrin.h>")
-		w.line("#endif")
-	}
 	if g.layout == emit.Binned {
 		w.line("#include <string.h>")
 	}

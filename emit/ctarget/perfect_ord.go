@@ -24,29 +24,44 @@ import (
 //
 //	i = 2*i + (kg[r*KEYS + (uint32_t)nd[i-1]] > nd[i-1])
 //
-// two loads (the node, the key) where the walk with separate key index and
-// threshold arrays took three. gcc 12 and clang 14 compile the addition of
-// the comparison to setb, movzbl and lea; on x86-64 under gcc and clang
-// the step is written with two instructions of inline assembly, a compare
-// with the key in memory and an add with carry of i to itself
-// (NAME_PF_STEP; NAME_NO_ASM leaves the C), so a step is four instructions
-// (load the node, copy its low half, compare, add with carry).
+// two loads (the node, the key) where the walk of separate key index and
+// threshold arrays takes three. gcc 12 and clang 14 compile the addition
+// of the comparison to setb, movzbl and lea, and gcc -march=x86-64-v4
+// loads the word into a vector register and moves it back; on x86-64
+// under gcc and clang the whole step is four instructions of inline
+// assembly (NAME_PF_STEP: load the word, copy its low half, compare the
+// key in memory with it, add i to itself with carry); NAME_NO_ASM leaves
+// the C.
 //
 // Measured on the 500-round depth-6 XGBoost model of bench/libs (10,000
-// rows of the invented table, gcc 12 -O2, best of 7, five interleaved
-// runs, ns a row): the step of three loads, eight rows interleaved (the
-// walk before this one) 1,449 to 1,452 (callgrind 19,340 instructions a
-// row); the two-instruction step alone on it, 1,420 (16,263); packed words,
-// eight rows 1,187 to 1,206 (13,918), twelve rows 1,094 to 1,110 (15,162),
-// sixteen rows 1,066 to 1,072 (16,457; gcc spills some of the sixteen
-// node numbers); the AVX-512 lanes that this walk replaced, 1,365. The
-// step is a chain of two dependent loads, so more rows interleaved hide
-// more of it (perfectOrdChains). A per-tree copy of the packed words
-// built once a block from the float table took 1,698 (23,652): building
-// it costs more than it saves.
+// rows of the invented table, gcc 12 -O2 unless said, best of 7, five
+// interleaved runs per comparison, ns a row; callgrind instructions a row
+// in brackets):
+//   - the walk of three arrays, eight rows (the walk before this one):
+//     1,444 to 1,452 (19,340);
+//   - hand-made copies of the emitted file: that walk with the compare and
+//     add with carry in assembly, 1,420 (16,263); packed words, the word
+//     loaded in C, eight rows 1,187 to 1,206 (13,918), twelve 1,094 to
+//     1,110 (15,162), sixteen 1,064 to 1,072 (16,457: gcc spills some of
+//     the sixteen node numbers); packed words rebuilt from the float table
+//     once a tree a block, eight rows, 1,698 (23,652);
+//   - emitted, sixteen rows: the word loaded and copied in C, 1,063 to
+//     1,099, but 1,180 to 1,259 built with -march=x86-64-v4; the four
+//     instructions in assembly (this walk) 1,100 to 1,139 (17,917), 1,080
+//     to 1,100 with -march=x86-64-v4, 1,101 to 1,110 with clang 14 -O2;
+//     the low half loaded again instead of copied (three loads a step)
+//     1,341; ten rows 1,176, twelve 1,163;
+//   - from C alone (NAME_NO_ASM): gcc 1,440 to 1,445 (23,231), clang 14
+//     1,604 to 1,605, against the walk of three arrays' 1,444 to 1,452 and
+//     1,650 under the same compilers: no slower without the assembly;
+//   - the AVX-512 lanes that this walk replaced (-march=x86-64-v4): 1,250
+//     to 1,365.
+// A step is a chain of two dependent loads, so more rows interleaved hide
+// more of it, and the load ports bound it: the three-load step loses what
+// the packed word gains.
 
 // perfectOrdChains is the number of rows whose steps the packed walk
-// interleaves: see the measurements above.
+// interleaves: see the measurements above (sixteen against ten and twelve).
 const perfectOrdChains = 16
 
 // ordBits is the C expression of the ordered integer of a float's bits
