@@ -51,7 +51,7 @@ func TestCPerfectBuilds(t *testing.T) {
 // float builds take the packed walk (float keys), float64 models' double
 // builds the walk of double keys, and the test requires both to occur.
 // Cost: 6 cases and 8 forests in the perfect layout x 2 variants x 5
-// builds, about 40 s of gcc/clang on 2 shared cores.
+// builds, about 12 s of gcc/clang on 2 idle cores.
 func TestCPerfectWalks(t *testing.T) {
 	testenv.Need(t, cTools(true))
 	noAsm := "O2 -D" + strings.ToUpper(cName) + "_NO_ASM"
@@ -111,7 +111,7 @@ const perfectDepthsTested = 7
 // builds' outputs against each other; each forest once as compiled (splits
 // x <= t: keys over a low half of zeros) and once with every split a <
 // (the walk goes right at x >= t: keys over ones, and -0 >= 0 must hold).
-// Cost: 14 forests, 42 builds with gcc -O2, about 30 s.
+// Cost: 14 forests, 42 builds with gcc -O2, about 9 s.
 func TestCPerfectDepths(t *testing.T) {
 	testenv.Need(t, cTools(false))
 	flags := [][]string{nil, {"-DDEEP_NO_ASM"}, {"-march=x86-64-v4"}}
