@@ -330,6 +330,8 @@ type gen struct {
 	// batch, set by the table layout, writes NAME_predict_batch; nil
 	// writes it as a loop over NAME_predict.
 	batch func(w *printer)
+	// pf is the perfect layout's padded forest, set by it for the header.
+	pf *perfectForest
 	// ct holds the constant-time counts the header states, or nil.
 	ct       *ctFacts
 	featMac  []string // NAME_F_... macro per feature
@@ -799,7 +801,7 @@ func (g *gen) header() []byte {
 		w.line(" * interleaved, without branches on the data. */")
 	case Perfect:
 		w.line(" * Blocks of rows (%s_PF_ROWS in %s.c) walk each tree, padded to a perfect", u, g.name)
-		if g.buildPerfect().ord {
+		if g.pf.ord {
 			w.line(" * tree, in a fixed number of steps without branches on the data. Built by")
 			w.line(" * gcc or clang for x86-64, a step is four instructions of inline assembly;")
 			w.line(" * define %s_NO_ASM to build it from C alone, with the same bits. */", u)

@@ -92,12 +92,15 @@ func (pf *perfectForest) chains() int {
 	return perfectChains
 }
 
+// perfectRowKeyBytes is a row's keys in a block: two a feature, 8 bytes
+// each (packed ordered integers or doubles).
+func perfectRowKeyBytes(features int) int { return 2 * features * 8 }
+
 // perfectRows is the rows of a block of chains-row groups with features
-// features: as many as perfectKeyBytes of keys hold (8 bytes a key, two a
-// feature), a multiple of chains, at most PerfectMaxRows, and at least
-// one group.
+// features: as many as perfectKeyBytes of keys hold, a multiple of chains,
+// at most PerfectMaxRows, and at least one group.
 func perfectRows(features, chains int) int {
-	r := min(perfectKeyBytes/(2*features*8), PerfectMaxRows) / chains * chains
+	r := min(perfectKeyBytes/perfectRowKeyBytes(features), PerfectMaxRows) / chains * chains
 	return max(chains, r)
 }
 
@@ -299,6 +302,7 @@ func (g *gen) perfect(w *printer) error {
 		return err
 	}
 	pf := g.buildPerfect()
+	g.pf = pf
 	g.batch = func(w *printer) {
 		g.perfectTables(w, pf)
 		if pf.ord {
@@ -315,7 +319,7 @@ func (g *gen) perfectTables(w *printer, pf *perfectForest) {
 	inner := 1<<pf.depth - 1
 	w.line("#define %s_PF_DEPTH %d", g.upper, pf.depth)
 	w.line("#define %s_PF_INNER %du /* splits a tree: 2^depth - 1 */", g.upper, inner)
-	w.line("#define %s_PF_ROWS %d /* a block's rows: %d bytes of keys */", g.upper, pf.rows, pf.rows*2*len(g.p.Features)*8)
+	w.line("#define %s_PF_ROWS %d /* a block's rows: %d bytes of keys */", g.upper, pf.rows, pf.rows*perfectRowKeyBytes(len(g.p.Features)))
 	w.line("#define %s_PF_KEYS (2u * %s_NUM_FEATURES) /* a row's keys: each feature with NaN as -inf, then as +inf */", g.upper, g.upper)
 	w.line("")
 	if pf.ord {
